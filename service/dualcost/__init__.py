@@ -1,0 +1,3 @@
+"""dualcost: true (Konüs) cost-of-living indices beside the formula price indices."""
+
+__version__ = "0.1.0"

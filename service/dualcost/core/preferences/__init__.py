@@ -1,0 +1,55 @@
+"""Preference families, one module each, all implementing :class:`~.base.Preferences`.
+
+Adding a family is one module here and one line in ``FAMILIES``.
+"""
+
+from __future__ import annotations
+
+from collections.abc import Mapping
+from typing import Any
+
+from ..errors import InvalidInput
+from .base import BaseBudget, Notice, ParameterSpec, Preferences
+from .ces import CES
+from .cobb_douglas import CobbDouglas
+
+FAMILIES: dict[str, type[Preferences]] = {
+    cls.family: cls
+    for cls in (
+        CobbDouglas,
+        CES,
+    )
+}
+
+
+def calibrate(family: str, base: BaseBudget, parameters: Mapping[str, Any] | None = None) -> Preferences:
+    """Calibrate the named family to ``base`` with its behavioural ``parameters``.
+
+    Unknown family names and unknown parameter names are errors, never ignored.
+    """
+    try:
+        cls = FAMILIES[family]
+    except KeyError:
+        known = ", ".join(sorted(FAMILIES))
+        raise InvalidInput("family", f"unknown preference family {family!r}; known: {known}") from None
+    given = dict(parameters or {})
+    allowed = {spec.name for spec in cls.parameter_specs}
+    for name in given:
+        if name not in allowed:
+            accepted = ", ".join(sorted(allowed)) or "none"
+            raise InvalidInput(
+                name, f"is not a parameter of the {family} family (it takes: {accepted})"
+            )
+    return cls.calibrate(base, **given)
+
+
+__all__ = [
+    "FAMILIES",
+    "BaseBudget",
+    "CES",
+    "CobbDouglas",
+    "Notice",
+    "ParameterSpec",
+    "Preferences",
+    "calibrate",
+]

@@ -1,0 +1,112 @@
+"""Constant elasticity of substitution (CES) preferences (Arrow, Chenery, Minhas and Solow 1961).
+
+In the calibrated share form, with base shares ``s`` at base prices ``p0`` and elasticity of
+substitution ``sigma >= 0``, the unit cost is the power mean of order ``1 - sigma`` of the price
+relatives,
+
+    c(p) = ( sum_i s_i (p_i / p0_i)^(1 - sigma) )^(1 / (1 - sigma)),      c(p0) = 1,
+
+so ``e(p, u) = u c(p)`` with utility measured as money at base prices. The dual utility is
+``u(x) = ( sum_i s_i (p0_i x_i / s_i)^rho )^(1/rho)`` with ``rho = (sigma - 1) / sigma``.
+Demands are ``x_i = m w_i(p) / p_i`` with current shares
+``w_i(p) = s_i (p_i/p0_i)^(1-sigma) / sum_j s_j (p_j/p0_j)^(1-sigma)``.
+
+``sigma = 0`` is Leontief (fixed proportions) and ``sigma = 1`` Cobb-Douglas; both are exact
+limits of the same evaluation (see :mod:`dualcost.core._means`), and large ``sigma`` cannot
+overflow. The Lloyd-Moulton index with base shares and the same ``sigma`` equals the Konüs index
+(Lloyd 1975; Moulton 1996), and so does the Sato-Vartia index (Sato 1976; Vartia 1976).
+"""
+
+from __future__ import annotations
+
+from collections.abc import Mapping
+from typing import Any
+
+import numpy as np
+
+from .. import _checks
+from ..errors import InvalidInput
+from .._means import log_power_mean, power_mean_shares
+from .base import BaseBudget, ParameterSpec, Preferences, Vector
+
+
+def check_sigma(name: str, sigma: Any) -> float:
+    """An elasticity of substitution: a finite number, zero or more."""
+    if sigma is None:
+        raise InvalidInput(name, "is required: give the elasticity of substitution (0 or more)")
+    value = _checks.scalar(name, sigma)
+    if value < 0.0:
+        raise InvalidInput(
+            name, f"an elasticity of substitution must be zero or more, got {value:g}"
+        )
+    return value
+
+
+class CES(Preferences):
+    """CES preferences in calibrated share form."""
+
+    family = "ces"
+    title = "CES: one constant elasticity of substitution between all items"
+    source = (
+        "Arrow, Chenery, Minhas and Solow (1961), Review of Economics and Statistics 43(3); "
+        "calibrated share form as in Lloyd (1975) and Moulton (1996)"
+    )
+    homothetic = True
+    parameter_specs = (
+        ParameterSpec(
+            "sigma",
+            "Elasticity of substitution, 0 or more (0: Leontief, 1: Cobb-Douglas).",
+            required=True,
+        ),
+    )
+
+    def __init__(self, shares: Vector, reference_prices: Vector, sigma: float) -> None:
+        self.shares = np.asarray(shares, dtype=np.float64)
+        self.reference_prices = np.asarray(reference_prices, dtype=np.float64)
+        self.sigma = float(sigma)
+        self.n_items = int(self.shares.size)
+        self._log_p_ref = np.log(self.reference_prices)
+
+    @classmethod
+    def calibrate(cls, base: BaseBudget, *, sigma: float | None = None, **_: Any) -> CES:
+        """Weights are the base shares; the caller must give ``sigma`` (no default)."""
+        return cls(base.shares, base.prices, check_sigma("sigma", sigma))
+
+    def _log_relatives(self, prices: Vector) -> Vector:
+        return np.log(prices) - self._log_p_ref
+
+    def unit_cost(self, prices: Vector) -> float:
+        """c(p), the power mean of order 1 - sigma of p / p0 with base-share weights."""
+        return float(np.exp(log_power_mean(self._log_relatives(prices), self.shares, 1.0 - self.sigma)))
+
+    def budget_shares(self, prices: Vector) -> Vector:
+        """w_i(p) = d ln c / d ln p_i."""
+        return power_mean_shares(self._log_relatives(prices), self.shares, 1.0 - self.sigma)
+
+    def expenditure(self, prices: Vector, utility: float) -> float:
+        return utility * self.unit_cost(prices)
+
+    def indirect_utility(self, prices: Vector, income: float) -> float:
+        return income / self.unit_cost(prices)
+
+    def marshallian(self, prices: Vector, income: float) -> Vector:
+        return income * self.budget_shares(prices) / prices
+
+    def hicksian(self, prices: Vector, utility: float) -> Vector:
+        return self.expenditure(prices, utility) * self.budget_shares(prices) / prices
+
+    def direct_utility(self, quantities: Vector) -> float:
+        used = self.shares > 0.0
+        s = self.shares[used]
+        z = np.log(self.reference_prices[used] * quantities[used] / s)
+        if self.sigma == 0.0:
+            return float(np.exp(z.min()))
+        rho = (self.sigma - 1.0) / self.sigma
+        return float(np.exp(log_power_mean(z, s, rho)))
+
+    @property
+    def substitution_elasticity(self) -> float:
+        return self.sigma
+
+    def parameters(self) -> Mapping[str, Any]:
+        return {"sigma": self.sigma, "weights": self.shares.tolist()}

@@ -1,0 +1,69 @@
+"""Cobb-Douglas preferences (Cobb and Douglas 1928).
+
+Utility ``u(x) = prod_i (p0_i x_i / a_i)^(a_i)`` with exponents ``a_i >= 0`` summing to one.
+Calibrated to a base budget, ``a`` is the vector of base expenditure shares and utility is money
+at base prices, so the expenditure function is
+
+    e(p, u) = u * prod_i (p_i / p0_i)^(a_i),
+
+demands are ``x_i(p, m) = a_i m / p_i`` (constant budget shares) and
+``h_i(p, u) = a_i e(p, u) / p_i``. The geometric Laspeyres index with base shares equals the
+Konüs index exactly (e.g. ILO et al. 2004, *Consumer Price Index Manual*, 17.61-17.64).
+"""
+
+from __future__ import annotations
+
+from collections.abc import Mapping
+from typing import Any
+
+import numpy as np
+
+from .base import BaseBudget, Preferences, Vector
+
+
+class CobbDouglas(Preferences):
+    """Cobb-Douglas preferences with exponents ``shares`` and reference prices ``reference_prices``."""
+
+    family = "cobb_douglas"
+    title = "Cobb-Douglas: constant budget shares, unit elasticity of substitution"
+    source = "Cobb and Douglas (1928), American Economic Review 18(1)"
+    homothetic = True
+
+    def __init__(self, shares: Vector, reference_prices: Vector) -> None:
+        self.shares = np.asarray(shares, dtype=np.float64)
+        self.reference_prices = np.asarray(reference_prices, dtype=np.float64)
+        self.n_items = int(self.shares.size)
+        self._log_p_ref = np.log(self.reference_prices)
+
+    @classmethod
+    def calibrate(cls, base: BaseBudget, **parameters: Any) -> CobbDouglas:
+        """Exponents are the base expenditure shares; no behavioural parameter is needed."""
+        return cls(base.shares, base.prices)
+
+    def unit_cost(self, prices: Vector) -> float:
+        """c(p) = prod_i (p_i / p0_i)^(a_i); c(p0) = 1."""
+        return float(np.exp(self.shares @ (np.log(prices) - self._log_p_ref)))
+
+    def expenditure(self, prices: Vector, utility: float) -> float:
+        return utility * self.unit_cost(prices)
+
+    def indirect_utility(self, prices: Vector, income: float) -> float:
+        return income / self.unit_cost(prices)
+
+    def marshallian(self, prices: Vector, income: float) -> Vector:
+        return self.shares * income / prices
+
+    def hicksian(self, prices: Vector, utility: float) -> Vector:
+        return self.shares * self.expenditure(prices, utility) / prices
+
+    def direct_utility(self, quantities: Vector) -> float:
+        used = self.shares > 0.0
+        a = self.shares[used]
+        return float(np.exp(a @ np.log(self.reference_prices[used] * quantities[used] / a)))
+
+    @property
+    def substitution_elasticity(self) -> float:
+        return 1.0
+
+    def parameters(self) -> Mapping[str, Any]:
+        return {"exponents": self.shares.tolist()}
