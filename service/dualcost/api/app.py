@@ -1,0 +1,54 @@
+"""The FastAPI application: ``create_app(settings)`` mounts the routers and problem handlers."""
+
+from __future__ import annotations
+
+from typing import Any
+
+from fastapi import FastAPI
+
+from .. import __version__
+from ..config import Settings
+from . import problems
+from .routes import catalogue, comparisons, service
+
+DESCRIPTION = """\
+dualcost computes the true (Konüs) cost-of-living index of a preference model calibrated to a
+base-period budget, and sets it beside the Laspeyres, Paasche, Fisher, Törnqvist and other formula
+indices, to measure the substitution bias of a fixed-basket index, the compensation that keeps a
+living standard, and which items drive the gap.
+
+**Caution.** Model-based cost-of-living figures are estimates that depend on the preference model
+and parameters chosen. Where results feed wage, pension or benefit indexation, defer to official
+statistics and to the applicable law or agreement.
+
+Errors are RFC 9457 problem details (`application/problem+json`) whose `errors` list points at
+each offending field with a JSON Pointer. Indices are ratios (1 = no change); biases are given in
+index points (base 100) and in percent.
+"""
+
+
+def create_app(settings: Settings | None = None) -> FastAPI:
+    settings = settings or Settings()
+    app = FastAPI(
+        title="dualcost",
+        version=__version__,
+        description=DESCRIPTION,
+        openapi_tags=[
+            {"name": "comparisons", "description": "The Konüs index beside the formula indices."},
+            {"name": "catalogue", "description": "Preference families and index formulas."},
+            {"name": "demo", "description": "The invented demo scenario."},
+            {"name": "service", "description": "Health and problem types."},
+        ],
+    )
+    app.state.settings = settings
+    problems.install(app)
+    app.include_router(comparisons.router(settings))
+    app.include_router(catalogue.router)
+    app.include_router(service.router)
+
+    @app.get("/", include_in_schema=False)
+    def index() -> dict[str, Any]:
+        return {"service": "dualcost", "version": __version__, "docs": "/docs",
+                "openapi": "/openapi.json", "demo": "/v1/demo"}
+
+    return app

@@ -1,0 +1,175 @@
+"""Problem details (RFC 9457): the one place where errors become HTTP statuses.
+
+Every error answer is ``application/problem+json`` with ``type``, ``title``, ``status``,
+``detail`` and, for bad input, an ``errors`` list of ``{"pointer", "detail"}`` where ``pointer`` is
+a JSON Pointer (RFC 6901) into the request body (or ``#/query/<name>`` for a query parameter).
+Problem types are relative URIs served by the app at ``/problems/<slug>``.
+"""
+
+from __future__ import annotations
+
+import logging
+from dataclasses import dataclass
+from typing import Any
+
+from fastapi import FastAPI, Request
+from fastapi.exceptions import RequestValidationError
+from fastapi.responses import JSONResponse
+from starlette.exceptions import HTTPException as StarletteHTTPException
+
+from ..core.errors import InvalidInput, NumericalFailure
+
+PROBLEM_MEDIA_TYPE = "application/problem+json"
+log = logging.getLogger("dualcost.api")
+
+
+@dataclass(frozen=True)
+class ProblemType:
+    slug: str
+    status: int
+    title: str
+    description: str
+
+
+PROBLEM_TYPES: dict[str, ProblemType] = {
+    p.slug: p
+    for p in (
+        ProblemType("invalid-input", 422, "The request breaks a rule",
+                    "A field of the request is missing, malformed, out of range, or inconsistent "
+                    "with another field. Each entry of `errors` names the field by a JSON Pointer "
+                    "and states the rule."),
+        ProblemType("numerical-failure", 422, "The model cannot be evaluated at these inputs",
+                    "The inputs are valid one by one, but evaluating the model with them left the "
+                    "range of floating-point numbers or did not converge."),
+        ProblemType("malformed-request", 400, "The request body is not valid JSON",
+                    "The body could not be parsed as JSON."),
+        ProblemType("not-found", 404, "Nothing here", "No resource at this address."),
+        ProblemType("method-not-allowed", 405, "Method not allowed",
+                    "This address does not answer that HTTP method."),
+        ProblemType("http-error", 400, "The request was refused", "An HTTP-level refusal."),
+        ProblemType("internal-error", 500, "Internal error",
+                    "The service failed on a request it should have answered. This is a bug: "
+                    "please report it with the request."),
+    )
+}
+
+
+@dataclass(frozen=True)
+class FieldError:
+    pointer: str
+    detail: str
+
+
+class RequestProblem(Exception):
+    """Raised by the API layer for bad input it finds itself, or translated from the core."""
+
+    def __init__(self, errors: list[FieldError], *, slug: str = "invalid-input") -> None:
+        self.errors = errors
+        self.slug = slug
+        super().__init__("; ".join(f"{e.pointer}: {e.detail}" for e in errors))
+
+
+def problem_body(slug: str, detail: str, *, status: int | None = None,
+                 errors: list[FieldError] | None = None, instance: str | None = None) -> dict[str, Any]:
+    kind = PROBLEM_TYPES[slug]
+    body: dict[str, Any] = {
+        "type": f"/problems/{slug}",
+        "title": kind.title,
+        "status": status or kind.status,
+        "detail": detail,
+    }
+    if instance:
+        body["instance"] = instance
+    if errors:
+        body["errors"] = [{"pointer": e.pointer, "detail": e.detail} for e in errors]
+    return body
+
+
+def problem_response(slug: str, detail: str, *, status: int | None = None,
+                     errors: list[FieldError] | None = None,
+                     instance: str | None = None) -> JSONResponse:
+    body = problem_body(slug, detail, status=status, errors=errors, instance=instance)
+    return JSONResponse(body, status_code=body["status"], media_type=PROBLEM_MEDIA_TYPE)
+
+
+def _pointer(loc: tuple[Any, ...]) -> str:
+    """Pydantic's error location as a JSON Pointer; query parameters as ``#/query/<name>``."""
+    parts = list(loc)
+    if parts and parts[0] == "body":
+        parts = parts[1:]
+        prefix = ""
+    elif parts and parts[0] in ("query", "path", "header"):
+        prefix = "#/" + str(parts.pop(0))
+    else:
+        prefix = ""
+    # Pydantic adds the name of a union member or a tagged-union tag; they are not fields.
+    clean = [str(p).replace("~", "~0").replace("/", "~1") for p in parts
+             if not (isinstance(p, str) and (p.startswith("function-") or "[" in p))]
+    return prefix + "".join("/" + p for p in clean)
+
+
+def _pydantic_message(err: dict[str, Any]) -> str:
+    kind = err.get("type", "")
+    if kind == "finite_number":
+        return "must be a finite number (not NaN or infinity)"
+    if kind == "missing":
+        return "is required"
+    if kind == "extra_forbidden":
+        return "is not a field of this request (check the spelling; unknown fields are not ignored)"
+    return str(err.get("msg", "is not valid"))
+
+
+async def _on_validation_error(request: Request, exc: RequestValidationError) -> JSONResponse:
+    raw = exc.errors()
+    if any(e.get("type") == "json_invalid" for e in raw):
+        ctx = next(e for e in raw if e.get("type") == "json_invalid").get("ctx", {})
+        return problem_response("malformed-request",
+                                f"The body is not valid JSON: {ctx.get('error', 'parse error')}.",
+                                instance=request.url.path)
+    errors = [FieldError(_pointer(tuple(e.get("loc", ()))), _pydantic_message(e)) for e in raw]
+    return problem_response("invalid-input", _summary(errors), errors=errors,
+                            instance=request.url.path)
+
+
+async def _on_request_problem(request: Request, exc: RequestProblem) -> JSONResponse:
+    return problem_response(exc.slug, _summary(exc.errors), errors=exc.errors,
+                            instance=request.url.path)
+
+
+async def _on_invalid_input(request: Request, exc: InvalidInput) -> JSONResponse:
+    # Reached only when a route did not translate a core error to a pointer itself.
+    errors = [FieldError("", str(exc))]
+    return problem_response("invalid-input", str(exc), errors=errors, instance=request.url.path)
+
+
+async def _on_numerical_failure(request: Request, exc: NumericalFailure) -> JSONResponse:
+    return problem_response("numerical-failure", str(exc), instance=request.url.path)
+
+
+async def _on_http_error(request: Request, exc: StarletteHTTPException) -> JSONResponse:
+    slug = {404: "not-found", 405: "method-not-allowed"}.get(exc.status_code, "http-error")
+    return problem_response(slug, str(exc.detail), status=exc.status_code,
+                            instance=request.url.path)
+
+
+async def _on_unexpected(request: Request, exc: Exception) -> JSONResponse:
+    log.exception("unhandled error on %s", request.url.path)
+    return problem_response("internal-error", "The service failed to answer this request.",
+                            instance=request.url.path)
+
+
+def _summary(errors: list[FieldError]) -> str:
+    if len(errors) == 1:
+        e = errors[0]
+        return f"{e.pointer or 'The request'}: {e.detail}"
+    return f"{len(errors)} fields break a rule; see errors."
+
+
+def install(app: FastAPI) -> None:
+    """Register the problem handlers on ``app``."""
+    app.add_exception_handler(RequestValidationError, _on_validation_error)  # type: ignore[arg-type]
+    app.add_exception_handler(RequestProblem, _on_request_problem)  # type: ignore[arg-type]
+    app.add_exception_handler(InvalidInput, _on_invalid_input)  # type: ignore[arg-type]
+    app.add_exception_handler(NumericalFailure, _on_numerical_failure)  # type: ignore[arg-type]
+    app.add_exception_handler(StarletteHTTPException, _on_http_error)  # type: ignore[arg-type]
+    app.add_exception_handler(Exception, _on_unexpected)

@@ -1,0 +1,62 @@
+"""GET /v1/preference-families and GET /v1/index-formulas: what the engine offers, with sources."""
+
+from __future__ import annotations
+
+from typing import Any, Literal
+
+from fastapi import APIRouter
+from pydantic import Field
+
+from ...core.indices import FORMULAS
+from ...core.preferences import FAMILIES
+from ..schemas.common import StrictModel
+
+
+class ParameterOut(StrictModel):
+    name: str
+    meaning: str
+    required: bool
+    default: Any = None
+
+
+class FamilyOut(StrictModel):
+    family: str
+    title: str
+    source: str
+    homothetic: bool
+    parameters: list[ParameterOut]
+
+
+class FormulaInfoOut(StrictModel):
+    formula: str
+    title: str
+    source: str
+    compared_with: Literal["base", "current", "midpoint"]
+    needs: list[str] = Field(description="Optional inputs the formula cannot do without.")
+    superlative: bool
+
+
+router = APIRouter(prefix="/v1", tags=["catalogue"])
+
+
+@router.get("/preference-families", operation_id="listPreferenceFamilies",
+            response_model=list[FamilyOut])
+def list_families() -> list[FamilyOut]:
+    """The preference families, their behavioural parameters with defaults, and sources."""
+    return [
+        FamilyOut(family=name, title=cls.title, source=cls.source, homothetic=cls.homothetic,
+                  parameters=[ParameterOut(name=s.name, meaning=s.meaning, required=s.required,
+                                           default=s.default) for s in cls.parameter_specs])
+        for name, cls in FAMILIES.items()
+    ]
+
+
+@router.get("/index-formulas", operation_id="listIndexFormulas",
+            response_model=list[FormulaInfoOut])
+def list_formulas() -> list[FormulaInfoOut]:
+    """The formula indices, which Konüs index each is compared with, and sources."""
+    return [
+        FormulaInfoOut(formula=f.name, title=f.title, source=f.source, compared_with=f.target,
+                       needs=list(f.needs), superlative=f.superlative)
+        for f in FORMULAS.values()
+    ]

@@ -1,0 +1,48 @@
+"""POST /v1/comparisons: the Konüs index beside the formula indices for one price change."""
+
+# No ``from __future__ import annotations`` here: the request body's annotation carries the
+# examples loaded when the router is built, and FastAPI must see it as an object, not a string.
+
+from typing import Annotated
+
+from fastapi import APIRouter, Body
+
+from ...config import Settings
+from ..examples import load_examples
+from ..problems import PROBLEM_MEDIA_TYPE
+from ..deps import SettingsDep
+from ..schemas.comparison import ComparisonRequest, ComparisonResponse
+
+PROBLEM_RESPONSES = {
+    422: {"description": "The request breaks a rule (RFC 9457 problem details).",
+          "content": {PROBLEM_MEDIA_TYPE: {}}},
+    400: {"description": "The body is not valid JSON (RFC 9457 problem details).",
+          "content": {PROBLEM_MEDIA_TYPE: {}}},
+}
+
+
+def router(settings: Settings) -> APIRouter:
+    r = APIRouter(prefix="/v1", tags=["comparisons"])
+    examples = load_examples(settings.examples_dir, "compare")
+
+    @r.post(
+        "/comparisons",
+        operation_id="compare",
+        summary="Compare two price situations: Konüs index, formula indices, bias, compensation",
+        response_model=ComparisonResponse,
+        responses=PROBLEM_RESPONSES,  # type: ignore[arg-type]
+    )
+    def compare(
+        request: Annotated[ComparisonRequest, Body(openapi_examples=examples)],  # type: ignore[arg-type]
+        settings: SettingsDep,
+    ) -> ComparisonResponse:
+        """Calibrate the chosen preference model to the base budget, evaluate its expenditure
+        function at base and current prices, and set the true (Konüs) cost-of-living index beside
+        the formula indices, with each formula's substitution bias, the compensating and
+        equivalent variation, the Hicks decomposition of demand changes and each item's
+        contribution to the Laspeyres gap."""
+        result, model, axis = request.run(max_items=settings.max_items,
+                                          max_tree_depth=settings.max_tree_depth)
+        return ComparisonResponse.from_result(result, model, axis)
+
+    return r

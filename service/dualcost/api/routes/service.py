@@ -1,0 +1,71 @@
+"""Service endpoints: health, problem-type pages, and the demo scenario."""
+
+from __future__ import annotations
+
+import json
+from functools import cache
+from importlib import resources
+from typing import Any
+
+from fastapi import APIRouter
+from fastapi.responses import HTMLResponse
+
+from ... import __version__
+from ..deps import SettingsDep
+from ..problems import PROBLEM_TYPES, RequestProblem, FieldError
+from ..schemas.comparison import ComparisonRequest, ComparisonResponse
+from ..schemas.common import StrictModel
+
+router = APIRouter()
+
+
+class HealthOut(StrictModel):
+    status: str
+    version: str
+
+
+@router.get("/health", operation_id="health", response_model=HealthOut, tags=["service"])
+def health() -> HealthOut:
+    """Liveness for containers and load balancers."""
+    return HealthOut(status="ok", version=__version__)
+
+
+@router.get("/problems/{slug}", operation_id="describeProblem", response_class=HTMLResponse,
+            tags=["service"])
+def describe_problem(slug: str) -> HTMLResponse:
+    """A human-readable page for each problem ``type`` URI."""
+    kind = PROBLEM_TYPES.get(slug)
+    if kind is None:
+        raise RequestProblem([FieldError("#/path/slug", f"{slug!r} is not a problem type of "
+                                         "this service")], slug="invalid-input")
+    return HTMLResponse(f"<!doctype html><title>{kind.title}</title><h1>{kind.title}</h1>"
+                        f"<p>HTTP {kind.status}.</p><p>{kind.description}</p>")
+
+
+@cache
+def demo_request() -> dict[str, Any]:
+    """The demo scenario's comparison request (shipped with the package)."""
+    text = resources.files("dualcost.demo").joinpath("wrenmouth.json").read_text("utf-8")
+    return json.loads(text)  # type: ignore[no-any-return]
+
+
+class DemoOut(StrictModel):
+    scenario: str
+    request: dict[str, Any]
+    result: ComparisonResponse
+
+
+@router.get("/v1/demo", operation_id="demo", response_model=DemoOut, tags=["demo"])
+def demo(settings: SettingsDep) -> DemoOut:
+    """The demo scenario (an invented town's statistics office): its request and its answer.
+    Send the request to POST /v1/comparisons and change it to explore."""
+    body = demo_request()
+    req = ComparisonRequest.model_validate(body)
+    result, model, axis = req.run(max_items=settings.max_items,
+                                  max_tree_depth=settings.max_tree_depth)
+    return DemoOut(
+        scenario="Wrenmouth, an invented river town: its statistics office compares the "
+                 "household basket of 2025 with this year's prices under a nested CES model.",
+        request=body,
+        result=ComparisonResponse.from_result(result, model, axis),
+    )

@@ -1,0 +1,53 @@
+"""The ``dualcost`` command: ``dualcost serve`` starts the service."""
+
+from __future__ import annotations
+
+import argparse
+import os
+import sys
+from collections.abc import Sequence
+
+from . import __version__
+from .config import Settings
+
+
+def _parser() -> argparse.ArgumentParser:
+    parser = argparse.ArgumentParser(prog="dualcost", description="True cost-of-living indices "
+                                     "beside the formula price indices.")
+    parser.add_argument("--version", action="version", version=f"dualcost {__version__}")
+    sub = parser.add_subparsers(dest="command", required=True)
+    serve = sub.add_parser("serve", help="start the HTTP service (demo scenario at /v1/demo)")
+    defaults = Settings()
+    serve.add_argument("--host", default=defaults.host, help="address (default %(default)s)")
+    serve.add_argument("--port", type=int, default=defaults.port, help="port (default %(default)s)")
+    serve.add_argument("--workers", type=int, default=defaults.workers,
+                       help="worker processes (default %(default)s)")
+    serve.add_argument("--log-level", default="info",
+                       choices=["critical", "error", "warning", "info", "debug"])
+    return parser
+
+
+def serve(host: str, port: int, workers: int, log_level: str) -> int:
+    import uvicorn
+
+    # Workers are separate processes: they read their settings from the environment.
+    os.environ["DUALCOST_HOST"] = host
+    os.environ["DUALCOST_PORT"] = str(port)
+    os.environ["DUALCOST_WORKERS"] = str(workers)
+    Settings()  # fail here, with pydantic's message, if the environment is invalid
+    print(f"dualcost {__version__}: http://{host}:{port}/docs (demo: /v1/demo), "
+          f"{workers} worker(s)", flush=True)
+    uvicorn.run("dualcost.api.app:create_app", factory=True, host=host, port=port,
+                workers=workers, log_level=log_level)
+    return 0
+
+
+def main(argv: Sequence[str] | None = None) -> int:
+    args = _parser().parse_args(argv)
+    if args.command == "serve":
+        return serve(args.host, args.port, args.workers, args.log_level)
+    return 2  # pragma: no cover - argparse has already refused unknown commands
+
+
+if __name__ == "__main__":  # pragma: no cover
+    sys.exit(main())

@@ -1,0 +1,26 @@
+"""Service settings, read from the environment (prefix ``DUALCOST_``) by the API and the CLI only."""
+
+from __future__ import annotations
+
+from pathlib import Path
+
+from pydantic import Field
+from pydantic_settings import BaseSettings, SettingsConfigDict
+
+_REPO_EXAMPLES = Path(__file__).resolve().parents[2] / "openapi_examples"
+
+
+class Settings(BaseSettings):
+    """Settings of one service process; every field can be set as ``DUALCOST_<NAME>``."""
+
+    model_config = SettingsConfigDict(env_prefix="DUALCOST_", frozen=True)
+
+    host: str = Field("127.0.0.1", description="Address to listen on.")
+    port: int = Field(8000, ge=1, le=65535, description="Port to listen on.")
+    workers: int = Field(1, ge=1, le=64, description="Worker processes (uvicorn).")
+    examples_dir: Path = Field(
+        _REPO_EXAMPLES,
+        description="Folder of example request bodies shown in the OpenAPI document.",
+    )
+    max_items: int = Field(20_000, ge=1, description="Most items one request may carry.")
+    max_tree_depth: int = Field(64, ge=1, description="Deepest nested CES tree accepted.")

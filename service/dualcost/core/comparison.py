@@ -1,0 +1,441 @@
+"""One comparison of two price situations: the Konüs index beside the formula indices.
+
+Definitions used throughout (utility ``u``, expenditure function ``e``, indirect utility ``v``):
+
+- Base and current living standards: ``u0 = v(p0, m0)``, ``u1 = v(p1, m1)``.
+- Konüs (1924) cost-of-living index at living standard ``u``: ``K(u) = e(p1, u) / e(p0, u)``.
+  ``K(u0)`` is the target of base-weighted formulas (Laspeyres-type), ``K(u1)`` of
+  current-weighted ones (Paasche-type); Konüs showed ``K(u0) <= P_L`` and ``K(u1) >= P_P``.
+- Midpoint living standard, the target of the symmetric formulas: the one whose cost at base
+  prices is the geometric mean of the base and current living standards' costs at base prices,
+  ``e(p0, u*) = (e(p0, u0) e(p0, u1))^(1/2)``. Superlative indices approximate the Konüs index at
+  such an intermediate standard (Diewert 1976; for the translog exactly, Caves, Christensen and
+  Diewert 1982, Econometrica 50(6)).
+- Compensating variation ``CV = e(p1, u0) - m1`` and equivalent variation
+  ``EV = m0 - e(p0, u1)``. Sign convention: both are *losses*, positive when the change of prices
+  and income leaves the household worse off. (Hicks 1942; Mas-Colell, Whinston and Green 1995,
+  3.I, define them with the opposite sign, as gains.)
+- Substitution bias of a formula: ``P - K`` in index points (times 100) and ``100 (P / K - 1)``
+  in percent, against the Konüs index the formula is meant to approximate.
+- Hicks decomposition of each item's quantity change ``x1 - x0``: substitution part
+  ``h(p1, u0) - x(p0, m0)`` (moving along the base indifference surface) plus income part
+  ``x(p1, m1) - h(p1, u0)``; the two add up exactly.
+- Item contributions to the gap between Laspeyres and ``K(u0)``:
+  ``c_i = p1_i q0_i / (p0 . q0) - p1_i h_i(p1, u0) / e(p0, u0)``. Since
+  ``e(p1, u0) = p1 . h(p1, u0)`` (Euler, e is homogeneous of degree one in prices), the ``c_i`` add
+  up exactly to ``P_L - K(u0)``; an item contributes in proportion to how far the household,
+  compensated, moves away from it.
+"""
+
+from __future__ import annotations
+
+from collections.abc import Iterator, Sequence
+from contextlib import contextmanager
+from dataclasses import dataclass, field
+
+import numpy as np
+import numpy.typing as npt
+
+from . import _checks
+from .errors import InvalidInput, NumericalFailure
+from .indices import FORMULAS, IndexData, Target, check_formula_names, check_positive_shares
+from .preferences.base import BaseBudget, Notice, Preferences, Vector
+
+#: Duality residuals above this (relative) are reported as a notice.
+DUALITY_TOLERANCE = 1e-8
+
+
+@dataclass(frozen=True)
+class WeightReference:
+    """An earlier weight-reference period b for the Lowe and Young indices.
+
+    Give quantities (the basket, for Lowe) or shares (for Young); with ``prices`` of period b
+    either one yields the other: ``w_b = p_b q_b / p_b . q_b``.
+    """
+
+    quantities: Vector | None = None
+    shares: Vector | None = None
+    prices: Vector | None = None
+
+    @classmethod
+    def checked(
+        cls,
+        n_items: int,
+        *,
+        quantities: npt.ArrayLike | None = None,
+        shares: npt.ArrayLike | None = None,
+        prices: npt.ArrayLike | None = None,
+    ) -> WeightReference:
+        qb = None if quantities is None else _checks.nonnegative("qb", quantities, size=n_items)
+        wb = None if shares is None else _checks.shares("wb", shares, size=n_items)
+        pb = None if prices is None else _checks.positive("pb", prices, size=n_items)
+        if qb is not None and not np.any(qb > 0):
+            raise InvalidInput("qb", "at least one quantity of the weight-reference basket must "
+                               "be greater than zero")
+        if qb is not None and wb is not None:
+            raise InvalidInput("wb", "give the weight-reference basket or its shares, not both")
+        if pb is not None:
+            if qb is not None:
+                wb = pb * qb / float(pb @ qb)
+            elif wb is not None:
+                qb = wb / pb
+            else:
+                raise InvalidInput("pb", "weight-reference prices need a basket or shares to go "
+                                   "with them")
+        return cls(quantities=qb, shares=wb, prices=pb)
+
+
+@dataclass(frozen=True)
+class FormulaResult:
+    """One formula's value and its substitution bias against the Konüs index it targets."""
+
+    name: str
+    value: float
+    target: Target
+    konus: float
+    bias_points: float
+    bias_percent: float
+
+
+@dataclass(frozen=True)
+class KonusIndices:
+    """The Konüs index at the base, current, midpoint and (optionally) a reference standard."""
+
+    base: float
+    current: float
+    midpoint: float
+    reference: float | None
+    homothetic: bool
+
+    def at(self, target: Target) -> float:
+        return {"base": self.base, "current": self.current, "midpoint": self.midpoint}[target]
+
+
+@dataclass(frozen=True)
+class LivingStandards:
+    """Utilities reached, with the incomes that define them (model's own utility scale)."""
+
+    base: float
+    current: float
+    midpoint: float
+    reference: float | None
+    base_income: float
+    current_income: float
+    midpoint_income: float
+    reference_income: float | None
+
+
+@dataclass(frozen=True)
+class Demands:
+    """Quantities per item: model demands and the Hicks decomposition of their change."""
+
+    base: Vector  # x(p0, m0)
+    current: Vector  # x(p1, m1)
+    compensated: Vector  # h(p1, u0)
+    substitution_effect: Vector  # h(p1, u0) - x(p0, m0)
+    income_effect: Vector  # x(p1, m1) - h(p1, u0)
+    formula_base_quantities: Vector  # what the formulas used as q0
+    formula_current_quantities: Vector  # what the formulas used as q1
+    current_quantities_observed: bool
+
+
+@dataclass(frozen=True)
+class Diagnostics:
+    duality_residual: float  # max relative |h(p,u) - x(p, e(p,u))|
+    expenditure_residual: float  # max relative |e(p, v(p,m)) - m|
+    base_bundle_gap: float  # max relative |x(p0,m0) - q0|: how far the base bundle is from optimal
+
+
+@dataclass(frozen=True)
+class Comparison:
+    """Everything one comparison returns; see the module docstring for each definition."""
+
+    family: str
+    base_prices: Vector
+    current_prices: Vector
+    konus: KonusIndices
+    standards: LivingStandards
+    formulas: dict[str, FormulaResult]
+    compensating_variation: float
+    equivalent_variation: float
+    compensated_income: float
+    demands: Demands
+    laspeyres_gap_contributions: Vector | None
+    diagnostics: Diagnostics
+    lloyd_moulton_sigma: float | None
+    notices: list[Notice] = field(default_factory=list)
+
+
+@contextmanager
+def _naming(**names: str) -> Iterator[None]:
+    """Re-label a family's errors about ``prices``/``income``/``utility`` with the caller's names."""
+    try:
+        yield
+    except InvalidInput as exc:
+        if exc.parameter in names:
+            raise exc.renamed(names[exc.parameter]) from exc
+        raise
+
+
+def _relative_gap(a: Vector, b: Vector) -> float:
+    scale = max(float(np.max(np.abs(b))), 1e-300)
+    return float(np.max(np.abs(a - b))) / scale
+
+
+def compare(
+    model: Preferences,
+    base: BaseBudget,
+    current_prices: npt.ArrayLike,
+    *,
+    current_income: float | None = None,
+    current_quantities: npt.ArrayLike | None = None,
+    reference_income: float | None = None,
+    weight_reference: WeightReference | None = None,
+    lloyd_moulton_sigma: float | None = None,
+    formulas: Sequence[str] | None = None,
+) -> Comparison:
+    """Compare base prices ``base.prices`` with ``current_prices`` under ``model``.
+
+    Parameters
+    ----------
+    model:
+        A family calibrated to ``base`` (see :func:`dualcost.core.preferences.calibrate`).
+    base:
+        Base prices, quantities and income ``m0 = p0 . q0``.
+    current_prices:
+        ``p1``, one positive price per item.
+    current_income:
+        ``m1``; defaults to ``p1 . q1`` when current quantities are given, else to ``m0``.
+    current_quantities:
+        Observed ``q1``; when absent the formula indices use the model's ``x(p1, m1)``.
+    reference_income:
+        An income at base prices naming a further living standard for the Konüs index.
+    weight_reference:
+        An earlier period's basket or shares, for the Lowe and Young indices.
+    lloyd_moulton_sigma:
+        The Lloyd-Moulton elasticity; defaults to the model's own where it has a single one.
+    formulas:
+        Formula names to compute (default: all). A formula named here that cannot be computed
+        is an error; under the default it is left out with a notice.
+    """
+    n = base.n_items
+    if model.n_items != n:
+        raise InvalidInput("model", f"the model has {model.n_items} items but the base budget {n}")
+    p0, m0 = base.prices, base.expenditure
+    p1 = _checks.positive("p1", current_prices, size=n)
+    notices: list[Notice] = list(base.notices)
+
+    q1_obs = None
+    if current_quantities is not None:
+        q1_obs = _checks.nonnegative("q1", current_quantities, size=n)
+        if not np.any(q1_obs > 0):
+            raise InvalidInput("q1", "at least one current quantity must be greater than zero")
+    if current_income is not None:
+        m1 = _checks.scalar("m1", current_income, minimum=0.0)
+        if q1_obs is not None:
+            value = float(p1 @ q1_obs)
+            if abs(m1 - value) > _checks.ADDING_UP_TOLERANCE * value:
+                raise InvalidInput("m1", f"current income {m1:.10g} differs from the value of "
+                                   f"the current basket p1 . q1 = {value:.10g}; give one of "
+                                   "them, or make them agree")
+    elif q1_obs is not None:
+        m1 = float(p1 @ q1_obs)
+    else:
+        m1 = m0
+    m_ref = None
+    if reference_income is not None:
+        m_ref = _checks.scalar("reference_income", reference_income, minimum=0.0)
+
+    for name, prices, income in (("m0", p0, m0), ("m1", p1, m1), ("reference_income", p0, m_ref)):
+        if income is None:
+            continue
+        floor = model.income_floor(prices)
+        if income <= floor:
+            raise InvalidInput(name, f"income {income:.10g} does not exceed the model's "
+                               f"subsistence cost {floor:.10g} at those prices")
+
+    with _naming(prices="p0", income="m0", utility="m0"):
+        u0 = model.indirect_utility(p0, m0)
+        x0 = model.marshallian(p0, m0)
+        e00 = model.expenditure(p0, u0)
+        h00 = model.hicksian(p0, u0)
+    with _naming(prices="p1", income="m1", utility="m1"):
+        u1 = model.indirect_utility(p1, m1)
+        x1 = model.marshallian(p1, m1)
+        e11 = model.expenditure(p1, u1)
+        h11 = model.hicksian(p1, u1)
+        x11 = model.marshallian(p1, e11)
+    with _naming(prices="p1", income="m0", utility="m0"):
+        e10 = model.expenditure(p1, u0)
+        h10 = model.hicksian(p1, u0)
+        x10 = model.marshallian(p1, e10)
+    with _naming(prices="p0", income="m1", utility="m1"):
+        e01 = model.expenditure(p0, u1)
+        x00 = model.marshallian(p0, e00)
+    m_mid = float(np.sqrt(e00 * e01))
+    with _naming(prices="p1", income="m1", utility="m1"):
+        u_mid = model.indirect_utility(p0, m_mid)
+        k_mid = model.expenditure(p1, u_mid) / model.expenditure(p0, u_mid)
+    u_ref = k_ref = None
+    if m_ref is not None:
+        with _naming(prices="p1", income="reference_income", utility="reference_income"):
+            u_ref = model.indirect_utility(p0, m_ref)
+            k_ref = model.expenditure(p1, u_ref) / model.expenditure(p0, u_ref)
+
+    konus = KonusIndices(
+        base=e10 / e00,
+        current=e11 / e01,
+        midpoint=k_mid,
+        reference=k_ref,
+        homothetic=model.homothetic,
+    )
+    if model.homothetic:
+        notices.append(Notice("homothetic", f"The {model.family} model is homothetic: the Konüs "
+                              "index is the same at every living standard."))
+
+    q0 = base.quantities
+    q1 = q1_obs if q1_obs is not None else x1
+    if q1_obs is None:
+        notices.append(Notice("current_quantities_from_model", "No current quantities were "
+                              "given: the formula indices use the model's demands at current "
+                              "prices and income."))
+
+    lm_sigma = lloyd_moulton_sigma
+    if lm_sigma is None:
+        lm_sigma = model.substitution_elasticity
+    elif lm_sigma < 0 or not np.isfinite(lm_sigma):
+        raise InvalidInput("lloyd_moulton_sigma", "an elasticity of substitution must be a "
+                           f"finite number, zero or more, got {lm_sigma:g}")
+    weights = weight_reference or WeightReference()
+    data = IndexData(p0=p0, p1=p1, q0=q0, q1=q1, weight_quantities=weights.quantities,
+                     weight_shares=weights.shares, sigma=lm_sigma)
+    results = _formula_results(data, konus, formulas, notices)
+
+    gap_contrib = None
+    if "laspeyres" in results:
+        gap_contrib = p1 * q0 / float(p0 @ q0) - p1 * h10 / e00
+
+    demands = Demands(
+        base=x0,
+        current=x1,
+        compensated=h10,
+        substitution_effect=h10 - x0,
+        income_effect=x1 - h10,
+        formula_base_quantities=q0,
+        formula_current_quantities=q1,
+        current_quantities_observed=q1_obs is not None,
+    )
+    diagnostics = Diagnostics(
+        duality_residual=max(_relative_gap(h00, x00), _relative_gap(h10, x10),
+                             _relative_gap(h11, x11)),
+        expenditure_residual=max(abs(e00 - m0) / m0, abs(e11 - m1) / m1),
+        base_bundle_gap=_relative_gap(x0, q0),
+    )
+    notices.extend(_diagnostic_notices(model, diagnostics, konus, results, p0, m0, p1, m1))
+
+    comparison = Comparison(
+        family=model.family,
+        base_prices=p0,
+        current_prices=p1,
+        konus=konus,
+        standards=LivingStandards(
+            base=u0, current=u1, midpoint=u_mid, reference=u_ref, base_income=m0,
+            current_income=m1, midpoint_income=m_mid, reference_income=m_ref,
+        ),
+        formulas=results,
+        compensating_variation=e10 - m1,
+        equivalent_variation=m0 - e01,
+        compensated_income=e10,
+        demands=demands,
+        laspeyres_gap_contributions=gap_contrib,
+        diagnostics=diagnostics,
+        lloyd_moulton_sigma=lm_sigma,
+        notices=notices,
+    )
+    _check_finite(comparison)
+    return comparison
+
+
+def _formula_results(
+    data: IndexData,
+    konus: KonusIndices,
+    requested: Sequence[str] | None,
+    notices: list[Notice],
+) -> dict[str, FormulaResult]:
+    explicit = requested is not None
+    names = check_formula_names(list(requested)) if requested is not None else tuple(FORMULAS)
+    available = {
+        "sigma": data.sigma is not None,
+        "weight_quantities": data.weight_quantities is not None,
+        "weight_shares": data.weight_shares is not None,
+    }
+    why = {
+        "sigma": "an elasticity of substitution (lloyd_moulton_sigma; the model has no single one)",
+        "weight_quantities": "a weight-reference basket (quantities, or shares with prices)",
+        "weight_shares": "weight-reference shares (shares, or a basket with prices)",
+    }
+    out: dict[str, FormulaResult] = {}
+    for i, name in enumerate(names):
+        formula = FORMULAS[name]
+        missing = [need for need in formula.needs if not available[need]]
+        if missing:
+            text = f"The {formula.title} index needs {why[missing[0]]}"
+            if explicit:
+                raise InvalidInput("formulas", text + ", which was not given.", i)
+            notices.append(Notice("formula_not_computed", text + "; it was left out."))
+            continue
+        check_positive_shares(data, formula)
+        value = float(formula.compute(data))
+        k = konus.at(formula.target)
+        out[name] = FormulaResult(
+            name=name,
+            value=value,
+            target=formula.target,
+            konus=k,
+            bias_points=100.0 * (value - k),
+            bias_percent=100.0 * (value / k - 1.0),
+        )
+    return out
+
+
+def _diagnostic_notices(
+    model: Preferences,
+    diag: Diagnostics,
+    konus: KonusIndices,
+    results: dict[str, FormulaResult],
+    p0: Vector,
+    m0: float,
+    p1: Vector,
+    m1: float,
+) -> list[Notice]:
+    notices: list[Notice] = []
+    for where, prices, income in (("base", p0, m0), ("current", p1, m1)):
+        for notice in model.regularity(prices, income):
+            notices.append(Notice(notice.code, f"At {where} prices: {notice.message}"))
+    if diag.duality_residual > DUALITY_TOLERANCE or diag.expenditure_residual > DUALITY_TOLERANCE:
+        notices.append(Notice("duality_residual", "The model's demands and expenditure "
+                              "function disagree (relative residual "
+                              f"{max(diag.duality_residual, diag.expenditure_residual):.3g}); "
+                              "treat its Konüs index with care."))
+    if diag.base_bundle_gap > 1e-8:
+        notices.append(Notice("base_bundle_not_optimal", "With the parameters given, the base "
+                              "bundle is not the model's optimal choice at base prices (largest "
+                              f"relative gap {diag.base_bundle_gap:.3g}); the formula indices use "
+                              "the observed base bundle."))
+    tol = 1e-10
+    lasp = results.get("laspeyres")
+    if lasp is not None and konus.base > lasp.value * (1 + tol) and diag.base_bundle_gap <= 1e-8:
+        notices.append(Notice("konus_bound_failed", "The Konüs index at base utility exceeds "
+                              "the Laspeyres index, which a regular model cannot do (Konüs 1924)."))
+    return notices
+
+
+def _check_finite(c: Comparison) -> None:
+    scalars = [c.konus.base, c.konus.current, c.konus.midpoint, c.compensating_variation,
+               c.equivalent_variation, c.compensated_income]
+    scalars += [r.value for r in c.formulas.values()]
+    vectors = [c.demands.base, c.demands.current, c.demands.compensated]
+    if not (np.all(np.isfinite(scalars)) and all(np.all(np.isfinite(v)) for v in vectors)):
+        raise NumericalFailure("comparison", "the model could not be evaluated in floating "
+                               "point at these prices and incomes (a result overflowed or is "
+                               "undefined); check the inputs' magnitudes")
