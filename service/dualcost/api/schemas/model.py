@@ -81,6 +81,8 @@ def model_to_core(spec: ModelSpec, base: BaseBudget, axis: ItemAxis, pointers: P
         known = ", ".join(sorted(FAMILIES))
         raise RequestProblem([FieldError("/model/family", f"unknown preference family "
                                          f"{spec.family!r}; known: {known}")])
+    for known in FAMILIES[spec.family].parameter_specs:  # a missing one is pointed at too
+        pointers.note(known.name, f"/model/{known.name}", per_item=False)
     converted: dict[str, Any] = {}
     for name, value in spec.parameters().items():
         where = f"/model/{name}"

@@ -1,0 +1,197 @@
+"""Every bad input gets a 422 problem (RFC 9457) naming the field by JSON Pointer and the rule.
+
+One test per rule of the comparison operation; never a 500.
+"""
+
+from __future__ import annotations
+
+import json
+from typing import Any
+
+import pytest
+
+from tests.api.test_comparisons import small_request
+
+
+def post(client, body: Any, raw: str | None = None):
+    if raw is not None:
+        return client.post("/v1/comparisons", content=raw,
+                           headers={"content-type": "application/json"})
+    return client.post("/v1/comparisons", json=body)
+
+
+def assert_problem(r, pointer: str, *words: str, status: int = 422) -> dict:
+    assert r.status_code == status, r.text
+    assert r.headers["content-type"].startswith("application/problem+json")
+    body = r.json()
+    assert {"type", "title", "status", "detail"} <= set(body)
+    assert body["status"] == status
+    pointers = [e["pointer"] for e in body.get("errors", [])]
+    assert pointer in pointers, (pointer, body)
+    text = " ".join(e["detail"] for e in body["errors"]).lower()
+    for w in words:
+        assert w.lower() in text, (w, body)
+    return body
+
+
+@pytest.mark.parametrize("value,words", [
+    (0.0, ["greater than zero"]),
+    (-2.0, ["greater than zero"]),
+])
+def test_zero_or_negative_price(client, value, words) -> None:
+    req = small_request()
+    req["current"]["prices"][1] = value
+    assert_problem(post(client, req), "/current/prices/1", *words)
+
+
+def test_zero_base_price_keyed_by_id(client) -> None:
+    req = small_request()
+    req["base"]["prices"]["b"] = 0
+    assert_problem(post(client, req), "/base/prices/b", "greater than zero")
+
+
+@pytest.mark.parametrize("token", ["NaN", "Infinity", "-Infinity"])
+def test_nan_or_infinite_price(client, token) -> None:
+    raw = json.dumps(small_request()).replace('"a": 1.0', f'"a": {token}', 1)
+    assert_problem(post(client, None, raw), "/base/prices/a", "finite")
+
+
+def test_negative_quantity(client) -> None:
+    req = small_request()
+    req["base"]["quantities"][2] = -1.0
+    assert_problem(post(client, req), "/base/quantities/2", "negative")
+
+
+def test_vector_of_the_wrong_length(client) -> None:
+    req = small_request()
+    req["current"]["prices"] = [1.0, 2.0]
+    assert_problem(post(client, req), "/current/prices", "2 values", "3 items")
+
+
+def test_unknown_item_id(client) -> None:
+    req = small_request()
+    req["base"]["prices"]["z"] = 1.0
+    assert_problem(post(client, req), "/base/prices/z", "not an item id")
+
+
+def test_missing_item_in_a_keyed_vector(client) -> None:
+    req = small_request()
+    del req["base"]["prices"]["c"]
+    assert_problem(post(client, req), "/base/prices", "no value", "'c'")
+
+
+def test_duplicate_item_id(client) -> None:
+    req = small_request()
+    req["items"] = ["a", "b", "a"]
+    assert_problem(post(client, req), "/items/2", "twice")
+
+
+def test_shares_not_summing_to_one(client) -> None:
+    req = small_request()
+    req["base"] = {"prices": [1.0, 2.0, 4.0], "shares": [0.5, 0.3, 0.3], "expenditure": 100.0}
+    assert_problem(post(client, req), "/base/shares", "sum to 1", "1.1")
+
+
+def test_shares_normalised_only_when_asked_and_then_said(client) -> None:
+    req = small_request()
+    req["base"] = {"prices": [1.0, 2.0, 4.0], "shares": [0.5, 0.3, 0.3], "expenditure": 100.0}
+    req["normalise_shares"] = True
+    r = post(client, req)
+    assert r.status_code == 200, r.text
+    notices = {n["code"]: n["message"] for n in r.json()["notices"]}
+    assert "shares_normalised" in notices and "1.1" in notices["shares_normalised"]
+
+
+def test_negative_sigma(client) -> None:
+    req = small_request(family="ces", sigma=-0.5)
+    assert_problem(post(client, req), "/model/sigma", "zero or more")
+
+
+def test_missing_sigma(client) -> None:
+    assert_problem(post(client, small_request(family="ces")), "/model/sigma", "required")
+
+
+def test_unknown_model_parameter_is_not_ignored(client) -> None:
+    assert_problem(post(client, small_request(family="ces", sigma=0.5, sigmaa=1)),
+                   "/model/sigmaa", "not a parameter")
+
+
+def test_unknown_family(client) -> None:
+    assert_problem(post(client, small_request(family="leontief_plus")), "/model/family",
+                   "unknown preference family")
+
+
+def test_unknown_top_level_field_is_not_ignored(client) -> None:
+    req = small_request()
+    req["base_prices"] = [1, 2, 3]
+    assert_problem(post(client, req), "/base_prices", "not a field")
+
+
+AIDS_OK: dict[str, Any] = {
+    "family": "aids",
+    "beta": [0.05, -0.02, -0.03],
+    "gamma": [[-0.04, 0.02, 0.02], [0.02, -0.03, 0.01], [0.02, 0.01, -0.03]],
+}
+
+
+def test_aids_with_valid_parameters_answers(client) -> None:
+    r = post(client, small_request(**AIDS_OK))
+    assert r.status_code == 200, r.text
+    assert r.json()["konus"]["homothetic"] is False
+
+
+def test_aids_gamma_not_symmetric(client) -> None:
+    model = json.loads(json.dumps(AIDS_OK))
+    # An antisymmetric circulant keeps every row and column sum at zero: only symmetry breaks.
+    bump = [[0, 1, -1], [-1, 0, 1], [1, -1, 0]]
+    model["gamma"] = [[g + 0.01 * b for g, b in zip(row, brow)]
+                      for row, brow in zip(model["gamma"], bump)]
+    r = post(client, small_request(**model))
+    assert r.status_code == 422
+    (error,) = r.json()["errors"]
+    assert error["pointer"] in ("/model/gamma/0/1", "/model/gamma/0/2", "/model/gamma/1/2")
+    assert "symmetric" in error["detail"]
+
+
+def test_aids_beta_breaking_adding_up(client) -> None:
+    model = dict(AIDS_OK, beta=[0.05, 0.02, -0.03])
+    assert_problem(post(client, small_request(**model)), "/model/beta", "sum")
+
+
+def test_reference_income_below_subsistence(client) -> None:
+    """Stone-Geary is undefined below the subsistence cost p0 . gamma (here 6+2+2 = 10)."""
+    req = small_request(family="stone_geary", subsistence_quantities=[6.0, 1.0, 0.5])
+    req["reference_income"] = 9.0
+    assert_problem(post(client, req), "/reference_income", "subsistence")
+
+
+def test_zero_quantity_where_a_formula_takes_logs(client) -> None:
+    """Sato-Vartia takes logarithms of expenditure shares (Sato 1976; Vartia 1976)."""
+    req = small_request()
+    req["current"]["quantities"] = [8.0, 0.0, 2.5]
+    assert_problem(post(client, req), "/current/quantities/1", "logarithms")
+    req["formulas"] = ["laspeyres", "paasche", "fisher"]
+    assert post(client, req).status_code == 200
+
+
+def test_base_expenditure_inconsistent_with_basket(client) -> None:
+    req = small_request()
+    req["base"]["expenditure"] = 999.0
+    assert_problem(post(client, req), "/base/expenditure", "differs")
+
+
+def test_malformed_json_is_a_400_problem(client) -> None:
+    r = post(client, None, '{"items": [')
+    assert r.status_code == 400
+    assert r.headers["content-type"].startswith("application/problem+json")
+
+
+def test_bad_tree_points_into_the_tree(client) -> None:
+    tree = {"sigma": 0.5, "children": [{"sigma": 1.0, "children": ["a", "q"]}, "b", "c"]}
+    assert_problem(post(client, small_request(family="nested_ces", tree=tree)),
+                   "/model/tree/children/0/children/1", "not an item id")
+
+
+def test_tree_missing_an_item(client) -> None:
+    tree = {"sigma": 0.5, "children": ["a", "b"]}
+    assert_problem(post(client, small_request(family="nested_ces", tree=tree)), "/model/tree")
