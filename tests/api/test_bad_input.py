@@ -144,8 +144,8 @@ def test_aids_gamma_not_symmetric(client) -> None:
     model = json.loads(json.dumps(AIDS_OK))
     # An antisymmetric circulant keeps every row and column sum at zero: only symmetry breaks.
     bump = [[0, 1, -1], [-1, 0, 1], [1, -1, 0]]
-    model["gamma"] = [[g + 0.01 * b for g, b in zip(row, brow)]
-                      for row, brow in zip(model["gamma"], bump)]
+    model["gamma"] = [[g + 0.01 * b for g, b in zip(row, brow, strict=True)]
+                      for row, brow in zip(model["gamma"], bump, strict=True)]
     r = post(client, small_request(**model))
     assert r.status_code == 422
     (error,) = r.json()["errors"]

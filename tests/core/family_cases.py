@@ -12,7 +12,18 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from dualcost.core.preferences import AIDS, CES, QUAIDS, BaseBudget, CobbDouglas, Preferences
+from dualcost.core.preferences import (
+    AIDS,
+    CES,
+    QUAIDS,
+    BaseBudget,
+    CobbDouglas,
+    HomogeneousQuadratic,
+    NestedCES,
+    Preferences,
+    StoneGeary,
+    Translog,
+)
 
 
 @dataclass(frozen=True)
@@ -54,18 +65,66 @@ def aids_parameters(
     return params
 
 
+def stone_geary_elasticities(rng: np.random.Generator, base: BaseBudget) -> np.ndarray:
+    """Expenditure elasticities scaled so that sum w0 eta = 1 (Engel aggregation).
+
+    Drawn in [0.6, 1.4] before scaling, so every eta stays below 1.4 / 0.6 < 2.5: with
+    frisch = -2.5 every subsistence quantity q0 (1 - eta / 2.5) is then positive.
+    """
+    raw = rng.uniform(0.6, 1.4, base.n_items)
+    return raw / float(base.shares @ raw)
+
+
+def nested_ces_tree(n: int) -> dict:
+    """A three-level tree for any n >= 3: root sigma 0.3 over group "a" (items 0..k-1,
+    sigma 2.0) and group "b" (sigma 0.7: item k and subgroup "b1" of the rest, sigma 1.0)."""
+    k = (n - 1) // 2
+    return {
+        "sigma": 0.3,
+        "children": [
+            {"name": "a", "sigma": 2.0, "children": list(range(k))},
+            {
+                "name": "b",
+                "sigma": 0.7,
+                "children": [k, {"name": "b1", "sigma": 1.0, "children": list(range(k + 1, n))}],
+            },
+        ],
+    }
+
+
 CASES: list[FamilyCase] = [
     FamilyCase("cobb_douglas", lambda rng, b: CobbDouglas.calibrate(b), True),
     FamilyCase("ces_0.4", lambda rng, b: CES.calibrate(b, sigma=0.4), True),
     FamilyCase("ces_leontief", lambda rng, b: CES.calibrate(b, sigma=0.0), True),
     FamilyCase("ces_near_1", lambda rng, b: CES.calibrate(b, sigma=1.0 + 1e-9), True),
     FamilyCase("ces_3", lambda rng, b: CES.calibrate(b, sigma=3.0), True),
+    FamilyCase(
+        "nested_ces",
+        lambda rng, b: NestedCES.calibrate(b, tree=nested_ces_tree(b.n_items)),
+        True,
+    ),
     FamilyCase("aids", lambda rng, b: AIDS.calibrate(b, **aids_parameters(rng, b)), False),
     FamilyCase(
         "quaids",
         lambda rng, b: QUAIDS.calibrate(b, **aids_parameters(rng, b, quadratic=True)),
         False,
     ),
+    FamilyCase(
+        "stone_geary",
+        lambda rng, b: StoneGeary.calibrate(
+            b, expenditure_elasticities=stone_geary_elasticities(rng, b), frisch=-2.5
+        ),
+        False,
+    ),
+    FamilyCase(
+        "stone_geary_subsistence",
+        lambda rng, b: StoneGeary.calibrate(b, subsistence_quantities=0.3 * b.quantities),
+        False,
+    ),
+    FamilyCase("translog_0.6", lambda rng, b: Translog.calibrate(b, sigma=0.6), True),
+    # sigma 0.4, not 0.5: with relatives in [1/1.8, 1.8] a demand stays non-negative only while
+    # rho_i < (1 + sigma) / sigma * mean(rho), which needs (1 + sigma) / sigma >= 3.24.
+    FamilyCase("quadratic_0.4", lambda rng, b: HomogeneousQuadratic.calibrate(b, sigma=0.4), True),
 ]
 
 CASE_IDS = [c.id for c in CASES]

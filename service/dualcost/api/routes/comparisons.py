@@ -8,9 +8,9 @@ from typing import Annotated
 from fastapi import APIRouter, Body
 
 from ...config import Settings
+from ..deps import SettingsDep
 from ..examples import load_examples
 from ..problems import PROBLEM_MEDIA_TYPE
-from ..deps import SettingsDep
 from ..schemas.comparison import ComparisonRequest, ComparisonResponse
 
 PROBLEM_RESPONSES = {

@@ -12,9 +12,9 @@ from fastapi.responses import HTMLResponse
 
 from ... import __version__
 from ..deps import SettingsDep
-from ..problems import PROBLEM_TYPES, RequestProblem, FieldError
-from ..schemas.comparison import ComparisonRequest, ComparisonResponse
+from ..problems import PROBLEM_TYPES, FieldError, RequestProblem
 from ..schemas.common import StrictModel
+from ..schemas.comparison import ComparisonRequest, ComparisonResponse
 
 router = APIRouter()
 

@@ -9,15 +9,26 @@ from collections.abc import Mapping
 from typing import Any
 
 from ..errors import InvalidInput
+from .aids import AIDS, QUAIDS
 from .base import BaseBudget, Notice, ParameterSpec, Preferences
 from .ces import CES
 from .cobb_douglas import CobbDouglas
+from .nested_ces import NestedCES
+from .quadratic import HomogeneousQuadratic
+from .stone_geary import StoneGeary
+from .translog import Translog
 
 FAMILIES: dict[str, type[Preferences]] = {
     cls.family: cls
     for cls in (
         CobbDouglas,
         CES,
+        NestedCES,
+        StoneGeary,
+        Translog,
+        HomogeneousQuadratic,
+        AIDS,
+        QUAIDS,
     )
 }
 
@@ -44,12 +55,18 @@ def calibrate(family: str, base: BaseBudget, parameters: Mapping[str, Any] | Non
 
 
 __all__ = [
+    "AIDS",
     "FAMILIES",
     "BaseBudget",
     "CES",
     "CobbDouglas",
+    "NestedCES",
+    "HomogeneousQuadratic",
     "Notice",
     "ParameterSpec",
     "Preferences",
+    "QUAIDS",
+    "StoneGeary",
+    "Translog",
     "calibrate",
 ]

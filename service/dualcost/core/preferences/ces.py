@@ -25,8 +25,8 @@ from typing import Any
 import numpy as np
 
 from .. import _checks
-from ..errors import InvalidInput
 from .._means import log_power_mean, power_mean_shares
+from ..errors import InvalidInput
 from .base import BaseBudget, ParameterSpec, Preferences, Vector
 
 

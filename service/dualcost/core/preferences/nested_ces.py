@@ -1,0 +1,498 @@
+"""Nested CES preferences: a tree of item groups, each with its own elasticity of substitution
+(Sato 1967; Keller 1976).
+
+The items sit at the leaves of a tree of groups, the way consumer price index hierarchies are
+built. Group ``g`` has an elasticity of substitution ``sigma_g >= 0`` between its children and a
+base share ``S_g`` (the sum of its items' base shares; ``S_root = 1``). In the calibrated share
+form each node has a cost relative ``P``: an item's is ``p_i / p0_i``, and a group's is the power
+mean of order ``1 - sigma_g`` of its children's, weighted by their within-group base shares
+``omega_c = S_c / S_g``,
+
+    P_g(p) = ( sum_c omega_c P_c(p)^(1 - sigma_g) )^(1 / (1 - sigma_g)),
+
+with the geometric mean at ``sigma_g = 1`` (Hardy, Littlewood and Polya 1934, ch. II). The unit
+cost is the root's relative, ``c(p) = P_root(p)``, ``c(p0) = 1``, and ``e(p, u) = u c(p)`` with
+utility measured as money at base prices (Sato 1967, in share form).
+
+Demands follow from Shephard's lemma: the share of item ``i`` is the product, along the path from
+the root to ``i``, of each child's current share in its group,
+``omega_c P_c^(1 - sigma_g) / sum_k omega_k P_k^(1 - sigma_g)``; then ``x = m w / p`` and
+``h = e(p, u) w / p`` (Keller 1976).
+
+The dual direct utility has the same tree with power means of order
+``rho_g = (sigma_g - 1) / sigma_g`` of the children's quantity indices ``Z``,
+
+    Z_i = p0_i x_i / s_i,    Z_g = ( sum_c omega_c Z_c^(rho_g) )^(1 / rho_g),    u(x) = Z_root,
+
+the minimum at ``sigma_g = 0`` and the geometric mean at ``sigma_g = 1``. Each group is a flat
+calibrated CES aggregate of its children, valued at base prices, so ``u(q0) = m0`` and ``u`` is
+dual to ``c`` group by group (Sato 1967).
+
+Zero base shares. An item with zero base share carries zero weight in its group: it never enters
+the cost, gets zero demand and is left out of ``u``. A group whose items all have zero base share
+is handled the same way: it carries zero weight in its parent. To keep its own (unused) cost
+relative defined, its children are given equal weights.
+
+Evaluation never recurses: calibration compiles the tree into arrays grouped by height (every
+group after all of its children), and each height is one vectorised segment reduction, so a
+1,000-deep chain is as safe as a three-level tree. Each power mean is shifted by its weighted mean
+of ``(1 - sigma) ln P`` and evaluated with ``expm1``/``log1p``, which keeps full accuracy as
+``sigma`` approaches 1, and falls back to a max shift where a term could overflow (large sigma).
+"""
+
+from __future__ import annotations
+
+import math
+from collections.abc import Mapping, Sequence
+from dataclasses import dataclass
+from numbers import Integral, Real
+from typing import Any
+
+import numpy as np
+from numpy.typing import NDArray
+
+from .. import _checks
+from .._means import log_power_mean
+from ..errors import InvalidInput
+from .base import BaseBudget, ParameterSpec, Preferences, Vector
+
+IndexArray = NDArray[np.intp]
+
+#: The root group's name when the tree does not give one.
+ROOT_NAME = "all items"
+_GROUP_KEYS = ("name", "sigma", "children")
+# Beyond this shifted exponent an exp could overflow; the shift moves to the largest term.
+_SHIFT_LIMIT = 30.0
+_TINY = float(np.finfo(np.float64).tiny)
+
+
+# -- the tree as given: parsing and validation ------------------------------------------------
+
+
+@dataclass(frozen=True)
+class _Tree:
+    """A checked tree. Group 0 is the root; a group's id is larger than its parent's.
+
+    ``children[g]`` holds node ids: ``0..n-1`` are items, ``n + k`` is group ``k``.
+    """
+
+    n_items: int
+    labels: tuple[str, ...]
+    parents: tuple[int, ...]
+    sigmas: tuple[float, ...]
+    children: tuple[tuple[int, ...], ...]
+
+    def path(self, group: int) -> str:
+        return _path(self.labels, self.parents, group)
+
+
+def _path(labels: Sequence[str | None], parents: Sequence[int], group: int) -> str:
+    """``'all items > food > fresh'``: the group's name preceded by its ancestors'."""
+    parts = []
+    while group >= 0:
+        parts.append(str(labels[group]))
+        group = parents[group]
+    return " > ".join(reversed(parts))
+
+
+def _tree_error(rule: str) -> InvalidInput:
+    return InvalidInput("tree", rule)
+
+
+def _check_group_sigma(where: str, node: Mapping[str, Any]) -> float:
+    if "sigma" not in node or node["sigma"] is None:
+        raise _tree_error(
+            f"group '{where}' has no sigma; give its elasticity of substitution (0 or more)"
+        )
+    raw = node["sigma"]
+    if isinstance(raw, bool) or not isinstance(raw, Real):
+        raise _tree_error(f"group '{where}' has sigma {raw!r}, which is not a number")
+    sigma = float(raw)
+    if not math.isfinite(sigma):
+        raise _tree_error(f"group '{where}' has sigma {sigma}; it must be a finite number")
+    if sigma < 0.0:
+        raise _tree_error(
+            f"group '{where}' has sigma {sigma:g}; an elasticity of substitution must be zero "
+            "or more"
+        )
+    return sigma
+
+
+def _group_label(node: Mapping[str, Any], parent_path: str | None, position: int) -> str:
+    """The group's own name, or a stand-in saying where it sits when it has none."""
+    if "name" not in node or node["name"] is None:
+        return ROOT_NAME if parent_path is None else f"group #{position}"
+    name = node["name"]
+    if not isinstance(name, str) or not name.strip():
+        where = "the root group" if parent_path is None else (
+            f"child {position} of '{parent_path}'"
+        )
+        raise _tree_error(f"{where} has name {name!r}; a group name must be non-empty text")
+    return name.strip()
+
+
+def _parse_tree(spec: Any, n_items: int) -> _Tree:
+    """Check the nested ``{"name", "sigma", "children"}`` spec and flatten it (no recursion)."""
+    if spec is None:
+        raise _tree_error(
+            "is required: give the grouping of items as a group with sigma and children"
+        )
+    if not isinstance(spec, Mapping):
+        raise _tree_error(
+            "must be a group: an object with 'sigma' and 'children' (and an optional 'name')"
+        )
+    labels: list[str | None] = [None]
+    parents: list[int] = [-1]
+    sigmas: list[float] = [math.nan]
+    children: list[list[int]] = [[]]
+    owner = [-1] * n_items
+    named: dict[str, int] = {}
+    visited: set[int] = set()
+    # (spec, group id, 1-based position among its parent's children)
+    stack: list[tuple[Mapping[str, Any], int, int]] = [(spec, 0, 0)]
+    while stack:
+        node, g, position = stack.pop()
+        parent_path = None if parents[g] < 0 else _path(labels, parents, parents[g])
+        label = _group_label(node, parent_path, position)
+        labels[g] = label
+        where = _path(labels, parents, g)
+        if id(node) in visited:
+            raise _tree_error(
+                f"group '{where}' appears more than once in the tree (or inside itself); "
+                "every group must appear once"
+            )
+        visited.add(id(node))
+        unknown = sorted(str(k) for k in node if k not in _GROUP_KEYS)
+        if unknown:
+            raise _tree_error(
+                f"group '{where}' has unknown key(s) {', '.join(map(repr, unknown))}; a group "
+                "takes 'name', 'sigma' and 'children'"
+            )
+        if parents[g] < 0 or node.get("name") is not None:
+            if label in named:
+                other = _path(labels, parents, named[label])
+                raise _tree_error(
+                    f"two groups are named '{label}' ('{other}' and '{where}'); group names "
+                    "must be unique"
+                )
+            named[label] = g
+        sigmas[g] = _check_group_sigma(where, node)
+        kids = node.get("children")
+        if isinstance(kids, (str, bytes)) or not isinstance(kids, Sequence) or not kids:
+            raise _tree_error(
+                f"group '{where}' has no children; every group needs at least one item "
+                "position or subgroup in 'children'"
+            )
+        for k, child in enumerate(kids, start=1):
+            if isinstance(child, Integral) and not isinstance(child, bool):
+                i = int(child)
+                if not 0 <= i < n_items:
+                    raise _tree_error(
+                        f"group '{where}' lists item {i}, but item positions run from 0 to "
+                        f"{n_items - 1} (there are {n_items} items)"
+                    )
+                if owner[i] >= 0:
+                    first = _path(labels, parents, owner[i])
+                    second = "again" if owner[i] == g else f"and in '{where}'"
+                    raise _tree_error(
+                        f"item {i} appears twice, in '{first}' {second}; every item must "
+                        "appear exactly once"
+                    )
+                owner[i] = g
+                children[g].append(i)
+            elif isinstance(child, Mapping):
+                cid = len(labels)
+                labels.append(None)
+                parents.append(g)
+                sigmas.append(math.nan)
+                children.append([])
+                children[g].append(n_items + cid)
+                stack.append((child, cid, k))
+            else:
+                raise _tree_error(
+                    f"child {k} of group '{where}' is {child!r}, which is neither an item "
+                    "position (a whole number) nor a group (an object with sigma and children)"
+                )
+    missing = [i for i in range(n_items) if owner[i] < 0]
+    if missing:
+        shown = ", ".join(str(i) for i in missing[:10]) + (", ..." if len(missing) > 10 else "")
+        noun = "item" if len(missing) == 1 else "items"
+        verb = "is" if len(missing) == 1 else "are"
+        raise _tree_error(
+            f"{noun} {shown} {verb} not in the tree; every item position from 0 to "
+            f"{n_items - 1} must appear exactly once"
+        )
+    return _Tree(
+        n_items=n_items,
+        labels=tuple(str(x) for x in labels),
+        parents=tuple(parents),
+        sigmas=tuple(sigmas),
+        children=tuple(tuple(c) for c in children),
+    )
+
+
+# -- the tree compiled for evaluation ------------------------------------------------------------
+
+
+@dataclass(frozen=True)
+class _Level:
+    """All groups of one height, with their child edges stored contiguously per group."""
+
+    nodes: IndexArray  # node id of each group at this height
+    starts: IndexArray  # first edge of each group
+    child: IndexArray  # node id of each edge's child
+    seg: IndexArray  # position (within this level) of each edge's group
+    parent: IndexArray  # node id of each edge's group
+    weight: Vector  # omega_c, the child's within-group base share
+    log_weight: Vector  # ln omega_c, -inf where omega_c = 0
+    positive: NDArray[np.bool_]
+    t_edge: Vector  # 1 - sigma of the edge's group
+    t_safe: Vector  # 1 - sigma per group, with 1 where it is 0 (the geometric limit)
+    geometric: bool  # every group here has sigma = 1
+
+
+def _compile(tree: _Tree, shares: Vector) -> tuple[Vector, Vector, list[_Level]]:
+    """Node base shares, within-group weights per group's edges, and the levels bottom-up."""
+    n, n_groups = tree.n_items, len(tree.labels)
+    node_share = np.zeros(n + n_groups)
+    node_share[:n] = shares
+    height = np.zeros(n + n_groups, dtype=np.intp)
+    # Children have larger ids than their parents: reverse id order is bottom-up.
+    for g in range(n_groups - 1, -1, -1):
+        kids = tree.children[g]
+        node_share[n + g] = math.fsum(float(node_share[c]) for c in kids)
+        height[n + g] = 1 + max(int(height[c]) for c in kids)
+    by_height: dict[int, list[int]] = {}
+    for g in range(n_groups):
+        by_height.setdefault(int(height[n + g]), []).append(g)
+    levels = []
+    for h in sorted(by_height):
+        groups = by_height[h]
+        starts, child, seg, weight, t_edge = [], [], [], [], []
+        for j, g in enumerate(groups):
+            kids = tree.children[g]
+            total = node_share[n + g]
+            starts.append(len(child))
+            child.extend(kids)
+            seg.extend([j] * len(kids))
+            t_edge.extend([1.0 - tree.sigmas[g]] * len(kids))
+            if total > 0.0:
+                weight.extend(float(node_share[c] / total) for c in kids)
+            else:
+                # An all-zero group: equal weights keep its unused relative defined.
+                weight.extend([1.0 / len(kids)] * len(kids))
+        w = np.asarray(weight)
+        positive = w > 0.0
+        log_w = np.full(w.shape, -np.inf)
+        log_w[positive] = np.log(w[positive])
+        t_group = np.array([1.0 - tree.sigmas[g] for g in groups])
+        nodes = np.asarray([n + g for g in groups], dtype=np.intp)
+        seg_arr = np.asarray(seg, dtype=np.intp)
+        levels.append(
+            _Level(
+                nodes=nodes,
+                starts=np.asarray(starts, dtype=np.intp),
+                child=np.asarray(child, dtype=np.intp),
+                seg=seg_arr,
+                parent=nodes[seg_arr],
+                weight=w,
+                log_weight=log_w,
+                positive=positive,
+                t_edge=np.asarray(t_edge),
+                t_safe=np.where(t_group == 0.0, 1.0, t_group),
+                geometric=bool(np.all(t_group == 0.0)),
+            )
+        )
+    return node_share, height, levels
+
+
+def _level_up(level: _Level, log_rel: Vector) -> tuple[Vector, Vector]:
+    """Log cost relatives of the level's groups and the current within-group shares of its edges.
+
+    With ``d_e = t (ln P_e - a)``, ``a`` the weighted mean of the children's ``ln P``,
+    ``ln P_g = a + ln(sum_e omega_e exp(d_e)) / t``; by Jensen's inequality the sum is at least
+    1, so ``log1p(sum omega expm1(d))`` is accurate as ``t -> 0`` and cannot fail.
+    """
+    lc = log_rel[level.child]
+    mean = np.add.reduceat(level.weight * lc, level.starts)
+    if level.geometric:
+        return mean, level.weight
+    d = np.where(level.positive, level.t_edge * (lc - mean[level.seg]), 0.0)
+    # Zero-weight edges sit at 0, below the largest weighted term (which is at least 0).
+    excess = np.maximum(np.maximum.reduceat(d, level.starts) - _SHIFT_LIMIT, 0.0)
+    if np.any(excess > 0.0):
+        big = excess > 0.0
+        shifted = d - excess[level.seg]
+        plain = np.add.reduceat(level.weight * np.expm1(np.minimum(d, _SHIFT_LIMIT)), level.starts)
+        direct = np.add.reduceat(level.weight * np.exp(shifted), level.starts)
+        log_sum = np.where(
+            big,
+            excess + np.log(np.maximum(direct, _TINY)),
+            np.log1p(np.where(big, 0.0, plain)),
+        )
+    else:
+        log_sum = np.log1p(np.add.reduceat(level.weight * np.expm1(d), level.starts))
+    within = np.exp(d + level.log_weight - log_sum[level.seg])
+    return mean + log_sum / level.t_safe, within
+
+
+# -- the family ------------------------------------------------------------------------------------
+
+
+class NestedCES(Preferences):
+    """Nested CES preferences in calibrated share form, over a tree of item groups."""
+
+    family = "nested_ces"
+    title = "Nested CES: a tree of item groups, each with its own elasticity of substitution"
+    source = (
+        "Sato (1967), Review of Economic Studies 34(2); Keller (1976), European Economic "
+        "Review 7; calibrated share form as for CES (Lloyd 1975; Moulton 1996)"
+    )
+    homothetic = True
+    parameter_specs = (
+        ParameterSpec(
+            "tree",
+            "The grouping of items: a group is {\"name\": optional text, \"sigma\": elasticity "
+            "of substitution between its children (0 or more), \"children\": item positions "
+            "0..n-1 and subgroups}; every item appears exactly once.",
+            required=True,
+        ),
+    )
+
+    def __init__(self, shares: Vector, reference_prices: Vector, tree: _Tree) -> None:
+        self.shares = np.asarray(shares, dtype=np.float64)
+        self.reference_prices = np.asarray(reference_prices, dtype=np.float64)
+        self.n_items = int(self.shares.size)
+        if tree.n_items != self.n_items:
+            raise InvalidInput("tree", f"is built for {tree.n_items} items, not {self.n_items}")
+        self._tree = tree
+        self._log_p_ref = np.log(self.reference_prices)
+        self._node_share, _, self._levels = _compile(tree, self.shares)
+        self._root = self.n_items  # node id of group 0
+        self._utility_plan = self._plan_direct_utility()
+
+    @classmethod
+    def calibrate(cls, base: BaseBudget, *, tree: Any = None, **_: Any) -> NestedCES:
+        """Within-group weights come from the base shares; the caller gives the tree."""
+        return cls(base.shares, base.prices, _parse_tree(tree, base.n_items))
+
+    # -- evaluation --------------------------------------------------------------------------
+    def _log_relatives(self, prices: Vector) -> tuple[Vector, list[Vector]]:
+        """ln P for every node (items first, then groups) and each level's within shares."""
+        log_rel = np.empty(self._node_share.size)
+        log_rel[: self.n_items] = np.log(prices) - self._log_p_ref
+        within = []
+        for level in self._levels:
+            log_rel[level.nodes], w = _level_up(level, log_rel)
+            within.append(w)
+        return log_rel, within
+
+    def _cost_and_shares(self, prices: Vector) -> tuple[float, Vector]:
+        log_rel, within = self._log_relatives(prices)
+        node_w = np.empty(self._node_share.size)
+        node_w[self._root] = 1.0
+        for level, w in zip(reversed(self._levels), reversed(within), strict=True):
+            node_w[level.child] = node_w[level.parent] * w
+        return float(np.exp(log_rel[self._root])), node_w[: self.n_items]
+
+    def unit_cost(self, prices: Vector) -> float:
+        """c(p) = P_root(p), the nested power mean of the price relatives; c(p0) = 1."""
+        log_rel, _ = self._log_relatives(prices)
+        return float(np.exp(log_rel[self._root]))
+
+    def budget_shares(self, prices: Vector) -> Vector:
+        """w_i(p) = d ln c / d ln p_i: the product of current within-group shares on i's path."""
+        return self._cost_and_shares(prices)[1]
+
+    def group_cost_relatives(self, prices: Vector) -> Vector:
+        """Each group's cost relative P_g(p), in the order of :meth:`groups`."""
+        log_rel, _ = self._log_relatives(prices)
+        return np.exp(log_rel[self.n_items :])
+
+    def expenditure(self, prices: Vector, utility: float) -> float:
+        return utility * self.unit_cost(prices)
+
+    def indirect_utility(self, prices: Vector, income: float) -> float:
+        return income / self.unit_cost(prices)
+
+    def marshallian(self, prices: Vector, income: float) -> Vector:
+        return income * self.budget_shares(prices) / prices
+
+    def hicksian(self, prices: Vector, utility: float) -> Vector:
+        cost, w = self._cost_and_shares(prices)
+        return utility * cost * w / prices
+
+    # -- direct utility ----------------------------------------------------------------------
+    def _plan_direct_utility(self) -> list[tuple[int, IndexArray, Vector, float]]:
+        """Bottom-up list of (node, positive-weight children, their weights, sigma)."""
+        n, share = self.n_items, self._node_share
+        plan = []
+        for g in range(len(self._tree.labels) - 1, -1, -1):
+            if share[n + g] <= 0.0:
+                continue
+            kids = np.asarray([c for c in self._tree.children[g] if share[c] > 0.0], dtype=np.intp)
+            plan.append((n + g, kids, share[kids] / share[n + g], self._tree.sigmas[g]))
+        return plan
+
+    def direct_utility(self, quantities: Vector) -> float:
+        """u(x) = Z_root, nested power means of order (sigma_g - 1)/sigma_g (Sato 1967)."""
+        x = _checks.nonnegative("x", quantities, size=self.n_items)
+        log_z = np.full(self._node_share.size, -np.inf)
+        used = (self.shares > 0.0) & (x > 0.0)
+        log_z[: self.n_items][used] = np.log(
+            self.reference_prices[used] * x[used] / self.shares[used]
+        )
+        for node, kids, weights, sigma in self._utility_plan:
+            log_z[node] = _log_quantity_mean(log_z[kids], weights, sigma)
+        return float(np.exp(log_z[self._root]))
+
+    # -- reporting -----------------------------------------------------------------------------
+    @property
+    def substitution_elasticity(self) -> float | None:
+        """The common sigma when every group has the same one (the tree is then flat CES)."""
+        sigmas = set(self._tree.sigmas)
+        return sigmas.pop() if len(sigmas) == 1 else None
+
+    def groups(self) -> list[dict[str, Any]]:
+        """Each group, root first: its path, name, sigma, base share and its own items."""
+        n = self.n_items
+        return [
+            {
+                "path": self._tree.path(g),
+                "name": self._tree.labels[g],
+                "sigma": self._tree.sigmas[g],
+                "base_share": float(self._node_share[n + g]),
+                "items": [c for c in self._tree.children[g] if c < n],
+            }
+            for g in range(len(self._tree.labels))
+        ]
+
+    def parameters(self) -> Mapping[str, Any]:
+        return {"groups": self.groups(), "weights": self.shares.tolist()}
+
+
+def _log_quantity_mean(log_z: Vector, weights: Vector, sigma: float) -> float:
+    """ln of the power mean of order (sigma - 1)/sigma of exp(log_z); zeros (``-inf``) allowed.
+
+    A zero quantity index pulls the mean to zero when the order is 0 or less (sigma <= 1) and
+    contributes nothing to the sum otherwise.
+    """
+    if sigma == 0.0:
+        return float(log_z.min())
+    rho = (sigma - 1.0) / sigma
+    finite = np.isfinite(log_z)
+    if np.all(finite):
+        return _centred_log_power_mean(log_z, weights, rho)
+    if rho <= 0.0 or not np.any(finite):
+        return -math.inf
+    kept = float(weights[finite].sum())
+    return math.log(kept) / rho + _centred_log_power_mean(
+        log_z[finite], weights[finite] / kept, rho
+    )
+
+
+def _centred_log_power_mean(log_z: Vector, weights: Vector, rho: float) -> float:
+    """``ln M_rho`` shifted by the weighted mean of ``log_z`` first: the expm1 form loses digits
+    when every term is far below 1."""
+    centre = float(weights @ log_z)
+    return centre + float(log_power_mean(log_z - centre, weights, rho))
