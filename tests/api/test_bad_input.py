@@ -195,3 +195,16 @@ def test_bad_tree_points_into_the_tree(client) -> None:
 def test_tree_missing_an_item(client) -> None:
     tree = {"sigma": 0.5, "children": ["a", "b"]}
     assert_problem(post(client, small_request(family="nested_ces", tree=tree)), "/model/tree")
+
+
+@pytest.mark.parametrize("family", ["translog", "quadratic", "aids"])
+def test_prices_beyond_floating_point_range_are_a_numerical_failure_problem(client, family) -> None:
+    """A model that cannot be evaluated at extreme prices answers a problem, never NaN or a 500."""
+    model = dict(AIDS_OK) if family == "aids" else {"family": family, "sigma": 0.5}
+    req = small_request(**model)
+    req["current"]["prices"] = [1e300, 2.0, 1e-300]
+    r = post(client, req)
+    assert r.status_code == 422, r.text
+    assert r.headers["content-type"].startswith("application/problem+json")
+    assert r.json()["type"] == "/problems/numerical-failure"
+    assert "nan" not in r.text.lower()

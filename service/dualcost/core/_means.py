@@ -27,12 +27,15 @@ _EXPM1_LIMIT = 30.0
 
 def log_power_mean(log_relatives: Array, weights: Array, t: float) -> Any:
     """``ln M_t(r; s)`` along the last axis, for weights ``s`` summing to one (zeros allowed)."""
+    centre = np.sum(weights * log_relatives, axis=-1)
     if t == 0.0:
-        return np.sum(weights * log_relatives, axis=-1)
-    z = t * log_relatives
+        return centre
+    # Centring on the weighted mean keeps the expm1 terms small when the inputs are levels
+    # rather than relatives near one, so no digits are lost (ln M_t(r) = c + ln M_t(r e^-c)).
+    z = t * (log_relatives - np.expand_dims(centre, -1))
     if np.max(np.abs(z)) < _EXPM1_LIMIT:
-        return np.log1p(np.sum(weights * np.expm1(z), axis=-1)) / t
-    return logsumexp(z, b=weights, axis=-1) / t
+        return centre + np.log1p(np.sum(weights * np.expm1(z), axis=-1)) / t
+    return centre + logsumexp(z, b=weights, axis=-1) / t
 
 
 def power_mean_shares(log_relatives: Array, weights: Array, t: float) -> Array:

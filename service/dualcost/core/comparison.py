@@ -223,7 +223,7 @@ def compare(
         raise InvalidInput("model", f"the model has {model.n_items} items but the base budget {n}")
     p0, m0 = base.prices, base.expenditure
     p1 = _checks.positive("p1", current_prices, size=n)
-    notices: list[Notice] = list(base.notices)
+    notices: list[Notice] = list(base.notices) + list(model.calibration_notices)
 
     q1_obs = None
     if current_quantities is not None:

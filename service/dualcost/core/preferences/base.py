@@ -163,6 +163,9 @@ class Preferences(abc.ABC):
     homothetic: ClassVar[bool]
 
     n_items: int
+    #: What calibration did to the parameters given (for example a within-tolerance rescaling),
+    #: so that the answer can say so; families set it on the instance.
+    calibration_notices: tuple[Notice, ...] = ()
 
     # -- the dual quartet --------------------------------------------------------------------
     @abc.abstractmethod

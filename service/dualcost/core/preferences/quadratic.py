@@ -42,7 +42,7 @@ import numpy as np
 import numpy.typing as npt
 
 from .. import _checks
-from ..errors import InvalidInput
+from ..errors import InvalidInput, NumericalFailure
 from .base import BaseBudget, Matrix, Notice, ParameterSpec, Preferences, Vector, slutsky_notices
 from .ces import check_sigma
 
@@ -130,8 +130,12 @@ class HomogeneousQuadratic(Preferences):
     # -- pieces ----------------------------------------------------------------------------------
     def _quadratic_form(self, prices: Vector) -> tuple[float, Vector]:
         """(p' B p, B p), raising where the cost function is not defined."""
-        bp = self.cost_matrix @ prices
-        level = float(prices @ bp)
+        with np.errstate(over="ignore", invalid="ignore"):
+            bp = self.cost_matrix @ prices
+            level = float(prices @ bp)
+        if not (np.isfinite(level) and np.all(np.isfinite(bp))):
+            raise NumericalFailure("unit cost", "p'Bp is beyond the floating-point range; the "
+                                   "prices are too far from base for the quadratic model")
         if level <= 0.0:
             raise InvalidInput(
                 "prices",

@@ -35,7 +35,7 @@ import numpy.typing as npt
 
 from .. import _checks
 from ..errors import InvalidInput
-from .base import BaseBudget, Matrix, ParameterSpec, Preferences, Vector
+from .base import BaseBudget, Matrix, Notice, ParameterSpec, Preferences, Vector
 
 #: Frisch (1959) conjectured values of the money flexibility around -2 for typical incomes, and
 #: Lluch, Powell and Williams (1977), *Patterns in Household Demand and Saving*, report estimates
@@ -178,7 +178,15 @@ class StoneGeary(Preferences):
             gamma, beta = _subsistence_route(base, subsistence_quantities)
         else:
             gamma, beta = _elasticity_route(base, expenditure_elasticities, frisch)
-        return cls(gamma, beta, base.prices, base.expenditure)
+        model = cls(gamma, beta, base.prices, base.expenditure)
+        if expenditure_elasticities is not None:
+            mean = float(base.shares @ np.asarray(expenditure_elasticities, dtype=np.float64))
+            if abs(mean - 1.0) > 1e-12:
+                model.calibration_notices = (Notice(
+                    "elasticities_rescaled", "The expenditure elasticities' base-share-weighted "
+                    f"mean is {mean:.10g}, within the 1e-6 tolerance of 1; the marginal budget "
+                    "shares were divided by it so that they sum to 1 exactly."),)
+        return model
 
     # -- pieces ----------------------------------------------------------------------------------
     def price_index(self, prices: Vector) -> float:

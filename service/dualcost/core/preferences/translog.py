@@ -120,7 +120,15 @@ class Translog(Preferences):
         if sigma is not None and gamma is not None:
             raise InvalidInput("gamma", "give sigma or gamma, not both")
         if gamma is not None:
-            return cls(w0, base.prices, check_gamma(gamma, base.n_items))
+            given = _checks.square_matrix("gamma", gamma, base.n_items)
+            cleaned = check_gamma(given, base.n_items)
+            model = cls(w0, base.prices, cleaned)
+            moved = float(np.max(np.abs(cleaned - given)))
+            if moved > 1e-12:
+                model.calibration_notices = (Notice(
+                    "gamma_adjusted", "Within the 1e-6 tolerance, gamma was made exactly "
+                    f"symmetric with rows summing to zero (largest change {moved:.3g})."),)
+            return model
         if sigma is None:
             raise InvalidInput("sigma", "give sigma or gamma")
         s = check_sigma("sigma", sigma)
