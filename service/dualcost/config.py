@@ -22,5 +22,8 @@ class Settings(BaseSettings):
         _REPO_EXAMPLES,
         description="Folder of example request bodies shown in the OpenAPI document.",
     )
+    cors_origins: tuple[str, ...] = Field(
+        (), description="Origins allowed to call the API from a browser (CORS), e.g. "
+                        '\'["https://dashboards.example"]\' as JSON; empty: none.')
     max_items: int = Field(20_000, ge=1, description="Most items one request may carry.")
     max_tree_depth: int = Field(64, ge=1, description="Deepest nested CES tree accepted.")

@@ -5,11 +5,12 @@ from __future__ import annotations
 from typing import Any
 
 from fastapi import FastAPI
+from fastapi.middleware.cors import CORSMiddleware
 
 from .. import __version__
 from ..config import Settings
 from . import problems
-from .routes import catalogue, comparisons, service
+from .routes import catalogue, comparisons, service, spreadsheet
 
 DESCRIPTION = """\
 dualcost computes the true (Konüs) cost-of-living index of a preference model calibrated to a
@@ -41,10 +42,14 @@ def create_app(settings: Settings | None = None) -> FastAPI:
         ],
     )
     app.state.settings = settings
+    if settings.cors_origins:
+        app.add_middleware(CORSMiddleware, allow_origins=list(settings.cors_origins),
+                           allow_methods=["GET", "HEAD", "POST", "OPTIONS"], allow_headers=["*"])
     problems.install(app)
     app.include_router(comparisons.router(settings))
     app.include_router(catalogue.router)
     app.include_router(service.router)
+    app.include_router(spreadsheet.router)
 
     @app.get("/", include_in_schema=False)
     def index() -> dict[str, Any]:

@@ -14,7 +14,7 @@ from typing import Any
 
 from fastapi import FastAPI, Request
 from fastapi.exceptions import RequestValidationError
-from fastapi.responses import JSONResponse
+from fastapi.responses import JSONResponse, PlainTextResponse
 from starlette.exceptions import HTTPException as StarletteHTTPException
 
 from ..core.errors import InvalidInput, NumericalFailure
@@ -127,8 +127,16 @@ async def _on_validation_error(request: Request, exc: RequestValidationError) ->
                                 f"The body is not valid JSON: {ctx.get('error', 'parse error')}.",
                                 instance=request.url.path)
     errors = [FieldError(_pointer(tuple(e.get("loc", ()))), _pydantic_message(e)) for e in raw]
+    if request.query_params.get("on_error") == "text":
+        # The spreadsheet forms' documented switch: a 200 whose text says what is wrong.
+        return PlainTextResponse(error_text(errors))
     return problem_response("invalid-input", _summary(errors), errors=errors,
                             instance=request.url.path)
+
+
+def error_text(errors: list[FieldError]) -> str:
+    """One line for a spreadsheet cell: ``ERROR: <parameter>: <rule>; ...``."""
+    return "ERROR: " + "; ".join(f"{e.pointer.removeprefix('#/query/')}: {e.detail}" for e in errors)
 
 
 async def _on_request_problem(request: Request, exc: RequestProblem) -> JSONResponse:
