@@ -2,15 +2,19 @@
 
 from __future__ import annotations
 
-from typing import Any
+from pathlib import Path
 
 from fastapi import FastAPI
 from fastapi.middleware.cors import CORSMiddleware
+from fastapi.responses import FileResponse
+from fastapi.staticfiles import StaticFiles
 
 from .. import __version__
 from ..config import Settings
 from . import problems
 from .routes import catalogue, comparisons, service, spreadsheet
+
+WEB_DIR = Path(__file__).resolve().parents[1] / "web"
 
 DESCRIPTION = """\
 dualcost computes the true (Konüs) cost-of-living index of a preference model calibrated to a
@@ -51,9 +55,11 @@ def create_app(settings: Settings | None = None) -> FastAPI:
     app.include_router(service.router)
     app.include_router(spreadsheet.router)
 
+    app.mount("/static", StaticFiles(directory=WEB_DIR), name="static")
+
     @app.get("/", include_in_schema=False)
-    def index() -> dict[str, Any]:
-        return {"service": "dualcost", "version": __version__, "docs": "/docs",
-                "openapi": "/openapi.json", "demo": "/v1/demo"}
+    def dashboard() -> FileResponse:
+        """The dashboard page: paste prices and a budget, see the indices, bias and items."""
+        return FileResponse(WEB_DIR / "index.html", media_type="text/html")
 
     return app
