@@ -3,10 +3,15 @@
 from __future__ import annotations
 
 import json
+import socket
+import threading
+import time
+from collections.abc import Iterator
 from pathlib import Path
 from typing import Any
 
 import pytest
+import uvicorn
 from fastapi.testclient import TestClient
 
 from dualcost.api.app import create_app
@@ -24,3 +29,26 @@ def client() -> TestClient:
 def load_example(name: str) -> dict[str, Any]:
     with open(EXAMPLES / name, encoding="utf-8") as fh:
         return json.load(fh)  # type: ignore[no-any-return]
+
+
+def free_port() -> int:
+    with socket.socket() as s:
+        s.bind(("127.0.0.1", 0))
+        return int(s.getsockname()[1])
+
+
+@pytest.fixture(scope="session")
+def live_url() -> Iterator[str]:
+    """The service on a free loopback port, in a thread, for clients that need a real socket."""
+    config = uvicorn.Config(create_app(Settings(examples_dir=EXAMPLES)), host="127.0.0.1",
+                            port=free_port(), log_level="warning")
+    server = uvicorn.Server(config)
+    thread = threading.Thread(target=server.run, daemon=True)
+    thread.start()
+    deadline = time.monotonic() + 20
+    while not server.started:
+        assert time.monotonic() < deadline, "the service did not start"
+        time.sleep(0.05)
+    yield f"http://127.0.0.1:{config.port}"
+    server.should_exit = True
+    thread.join(timeout=10)

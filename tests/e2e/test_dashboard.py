@@ -10,19 +10,13 @@ from __future__ import annotations
 
 import os
 import shutil
-import socket
-import threading
-import time
 from collections.abc import Iterator
 from pathlib import Path
 
 import httpx
 import pytest
-import uvicorn
 
-from dualcost.api.app import create_app
-from dualcost.config import Settings
-from tests.conftest import EXAMPLES, ROOT
+from tests.conftest import ROOT
 
 CHROMIUM = shutil.which("chromium") or "/usr/bin/chromium"
 CHROMEDRIVER = shutil.which("chromedriver") or "/usr/bin/chromedriver"
@@ -40,29 +34,6 @@ from selenium.webdriver.support import expected_conditions as ec  # noqa: E402
 from selenium.webdriver.support.ui import WebDriverWait  # noqa: E402
 
 
-def _free_port() -> int:
-    with socket.socket() as s:
-        s.bind(("127.0.0.1", 0))
-        return int(s.getsockname()[1])
-
-
-@pytest.fixture(scope="module")
-def base_url() -> Iterator[str]:
-    port = _free_port()
-    config = uvicorn.Config(create_app(Settings(examples_dir=EXAMPLES)), host="127.0.0.1",
-                            port=port, log_level="warning")
-    server = uvicorn.Server(config)
-    thread = threading.Thread(target=server.run, daemon=True)
-    thread.start()
-    deadline = time.monotonic() + 20
-    while not server.started:
-        assert time.monotonic() < deadline, "the service did not start"
-        time.sleep(0.05)
-    yield f"http://127.0.0.1:{port}"
-    server.should_exit = True
-    thread.join(timeout=10)
-
-
 @pytest.fixture(scope="module")
 def browser() -> Iterator[object]:
     options = webdriver.ChromeOptions()
@@ -78,8 +49,8 @@ def browser() -> Iterator[object]:
         driver.quit()
 
 
-def test_dashboard_shows_the_same_numbers_as_the_api(base_url, browser) -> None:
-    browser.get(base_url + "/")
+def test_dashboard_shows_the_same_numbers_as_the_api(live_url, browser) -> None:
+    browser.get(live_url + "/")
     assert "official statistics" in browser.find_element(By.ID, "caution").text
     browser.find_element(By.ID, "load-example").click()
     WebDriverWait(browser, 10).until(
@@ -89,10 +60,10 @@ def test_dashboard_shows_the_same_numbers_as_the_api(base_url, browser) -> None:
 
     shown = {key: browser.find_element(By.ID, key).text for key in ("konus-base", "laspeyres", "bias")}
     # The same request through the API: the page sends CES with sigma 0.7 on the demo basket.
-    demo = httpx.get(base_url + "/v1/demo").json()["request"]
+    demo = httpx.get(live_url + "/v1/demo").json()["request"]
     demo["model"] = {"family": "ces", "sigma": 0.7}
     demo.pop("reference_income", None)
-    answer = httpx.post(base_url + "/v1/comparisons", json=demo).json()
+    answer = httpx.post(live_url + "/v1/comparisons", json=demo).json()
     lasp = next(f["value"] for f in answer["formulas"] if f["formula"] == "laspeyres")
     assert shown["konus-base"] == f"{answer['konus']['base']:.4f}"
     assert shown["laspeyres"] == f"{lasp:.4f}"
@@ -106,8 +77,8 @@ def test_dashboard_shows_the_same_numbers_as_the_api(base_url, browser) -> None:
     assert browser.save_screenshot(str(ARTIFACTS / "dashboard.png"))
 
 
-def test_dashboard_shows_the_problem_for_bad_input(base_url, browser) -> None:
-    browser.get(base_url + "/")
+def test_dashboard_shows_the_problem_for_bad_input(live_url, browser) -> None:
+    browser.get(live_url + "/")
     data = browser.find_element(By.ID, "data")
     data.clear()
     data.send_keys("item,label,base_price,current_price,base_share\n"
