@@ -71,7 +71,7 @@ def test_on_error_text_answers_200_with_the_reason(client) -> None:
     """A spreadsheet hides non-2xx bodies, so with on_error=text the reason comes back as text."""
     cases = {
         "p1=2.52,-12.15": "p1/1: must be greater than zero",
-        "p1=2.52,12;15": "p1/1: '12;15' is not a finite number",
+        "p1=2.52,12;15,41": "p1/0: '2.52,12' is not a finite number",
         "p1=2.52,12,15": "p1: has 4 values but there are 3 items",
         "sigma=0.6": None,
     }
@@ -87,6 +87,13 @@ def test_on_error_text_answers_200_with_the_reason(client) -> None:
     assert r.status_code == 200 and r.text.startswith("ERROR: sigma:")
     r = client.get(VALUE.replace("sigma=0.6", "sigma=-1") + "&on_error=text")
     assert r.status_code == 200 and "sigma" in r.text and "zero or more" in r.text
+
+
+def test_semicolons_separate_values_for_comma_decimal_sheets(client) -> None:
+    """A sheet in a comma-decimal locale joins with ';' and sends '.' decimals."""
+    plain = client.get(VALUE).text
+    semi = client.get(VALUE.replace("p0=2.40,9,38", "p0=2.40;9;38").replace("q0=12,6,1", "q0=12;6;1"))
+    assert semi.text == plain
 
 
 def test_shares_with_total_expenditure_and_a_reference_income(client) -> None:

@@ -68,8 +68,8 @@ Measure = Literal[
     "compensating_variation", "equivalent_variation", "compensated_income",
 ]
 
-Vector = Annotated[str | None, Query(description="Comma-separated numbers in the order of items, "
-                                                 "'.' as decimal point.")]
+Vector = Annotated[str | None, Query(description="Numbers in the order of items, separated by commas "
+                                                 "(or all by semicolons), '.' as decimal point.")]
 
 
 def _query_pointer(body_pointer: str) -> str:
@@ -83,8 +83,11 @@ def _query_pointer(body_pointer: str) -> str:
 def _vector(name: str, text: str | None) -> list[float] | None:
     if text is None:
         return None
+    # Semicolons may separate the values instead of commas: a sheet in a comma-decimal locale
+    # joins cells with ';' and turns its decimal commas into points before sending.
+    separator = ";" if ";" in text else ","
     values = []
-    for i, cell in enumerate(text.split(",")):
+    for i, cell in enumerate(text.split(separator)):
         value = parse_number(cell)
         if value is None:
             raise RequestProblem([FieldError(f"#/query/{name}/{i}", f"{cell.strip()!r} is not a "
