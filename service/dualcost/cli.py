@@ -34,11 +34,23 @@ def serve(host: str, port: int, workers: int, log_level: str) -> int:
     os.environ["DUALCOST_HOST"] = host
     os.environ["DUALCOST_PORT"] = str(port)
     os.environ["DUALCOST_WORKERS"] = str(workers)
-    Settings()  # fail here, with pydantic's message, if the environment is invalid
-    print(f"dualcost {__version__}: http://{host}:{port}/docs (demo: /v1/demo), "
+    settings = Settings()  # fail here, with pydantic's message, if the environment is invalid
+    from .api.access import load_keys
+    from .api.observability import configure_logging
+
+    keys = load_keys(settings.api_keys, str(settings.api_keys_file) if settings.api_keys_file else None)
+    print(f"dualcost {__version__}: http://{host}:{port}/ (API docs /docs, demo /v1/demo), "
           f"{workers} worker(s)", flush=True)
+    if keys:
+        print(f"access control: on, {len(keys)} API key(s); send one in the X-API-Key header",
+              flush=True)
+    else:
+        print("access control: OFF (no API keys configured): anyone who can reach this address "
+              "can use the service; set DUALCOST_API_KEYS or DUALCOST_API_KEYS_FILE to require keys",
+              flush=True)
+    configure_logging(log_level, json_lines=settings.log_json)
     uvicorn.run("dualcost.api.app:create_app", factory=True, host=host, port=port,
-                workers=workers, log_level=log_level)
+                workers=workers, log_level=log_level, access_log=False)
     return 0
 
 

@@ -25,5 +25,14 @@ class Settings(BaseSettings):
     cors_origins: tuple[str, ...] = Field(
         (), description="Origins allowed to call the API from a browser (CORS), e.g. "
                         '\'["https://dashboards.example"]\' as JSON; empty: none.')
+    api_keys: tuple[str, ...] = Field(
+        (), description="API keys accepted in X-API-Key (JSON list); empty with no key file: "
+                        "access control is off.")
+    api_keys_file: Path | None = Field(
+        None, description="A secret file of API keys, one per line ('#' starts a comment).")
+    rate_limit_per_minute: int | None = Field(
+        None, ge=1, description="Requests a minute allowed per API key and worker process.")
+    max_body_bytes: int = Field(10_000_000, ge=1_000, description="Largest request body (413 above).")
+    log_json: bool = Field(True, description="Log one JSON object per line (false: plain text).")
     max_items: int = Field(20_000, ge=1, description="Most items one request may carry.")
     max_tree_depth: int = Field(64, ge=1, description="Deepest nested CES tree accepted.")

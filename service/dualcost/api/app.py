@@ -2,6 +2,8 @@
 
 from __future__ import annotations
 
+from collections.abc import AsyncIterator
+from contextlib import asynccontextmanager
 from pathlib import Path
 
 from fastapi import FastAPI
@@ -12,6 +14,9 @@ from fastapi.staticfiles import StaticFiles
 from .. import __version__
 from ..config import Settings
 from . import problems
+from .access import AccessControlMiddleware, load_keys
+from .limits import BodySizeLimitMiddleware
+from .observability import RequestContextMiddleware
 from .routes import catalogue, comparisons, service, spreadsheet
 
 WEB_DIR = Path(__file__).resolve().parents[1] / "web"
@@ -32,9 +37,23 @@ index points (base 100) and in percent.
 """
 
 
+@asynccontextmanager
+async def _lifespan(app: FastAPI) -> AsyncIterator[None]:
+    """Warm up the numerical core once, then declare the process ready."""
+    from ..core.comparison import compare
+    from ..core.preferences import BaseBudget, calibrate
+
+    base = BaseBudget.from_quantities([1.0, 2.0], [1.0, 1.0])
+    compare(calibrate("ces", base, {"sigma": 0.5}), base, [1.1, 2.0])
+    app.state.ready = True
+    yield
+    app.state.ready = False
+
+
 def create_app(settings: Settings | None = None) -> FastAPI:
     settings = settings or Settings()
     app = FastAPI(
+        lifespan=_lifespan,
         title="dualcost",
         version=__version__,
         description=DESCRIPTION,
@@ -46,10 +65,18 @@ def create_app(settings: Settings | None = None) -> FastAPI:
         ],
     )
     app.state.settings = settings
+    keys = load_keys(settings.api_keys, str(settings.api_keys_file) if settings.api_keys_file else None)
+    app.state.access_control = bool(keys)
+    if keys or settings.rate_limit_per_minute:
+        app.add_middleware(AccessControlMiddleware, keys=keys,
+                           rate_limit_per_minute=settings.rate_limit_per_minute)
+    app.add_middleware(BodySizeLimitMiddleware, max_body_bytes=settings.max_body_bytes)
     if settings.cors_origins:
         app.add_middleware(CORSMiddleware, allow_origins=list(settings.cors_origins),
                            allow_methods=["GET", "HEAD", "POST", "OPTIONS"], allow_headers=["*"])
     problems.install(app)
+    # Outermost: every request gets its id, log line and metrics, refusals included.
+    app.add_middleware(RequestContextMiddleware)
     app.include_router(comparisons.router(settings))
     app.include_router(catalogue.router)
     app.include_router(service.router)

@@ -43,6 +43,18 @@ PROBLEM_TYPES: dict[str, ProblemType] = {
                     "range of floating-point numbers or did not converge."),
         ProblemType("malformed-request", 400, "The request body is not valid JSON",
                     "The body could not be parsed as JSON."),
+        ProblemType("payload-too-large", 413, "The request body is too large",
+                    "The body is larger than the service's limit (DUALCOST_MAX_BODY_BYTES)."),
+        ProblemType("unauthorized", 401, "An API key is needed",
+                    "This service requires an API key in the X-API-Key header (or as "
+                    "'Authorization: Bearer <key>')."),
+        ProblemType("too-many-requests", 429, "Too many requests",
+                    "This API key has used up its request rate; retry after the number of "
+                    "seconds in the Retry-After header."),
+        ProblemType("deadline-exceeded", 503, "The computation ran past its deadline",
+                    "The request's computation took longer than the service's compute deadline "
+                    "(DUALCOST_COMPUTE_DEADLINE_SECONDS) and was stopped. Reduce the problem's size "
+                    "or ask the operator for a longer deadline."),
         ProblemType("not-found", 404, "Nothing here", "No resource at this address."),
         ProblemType("method-not-allowed", 405, "Method not allowed",
                     "This address does not answer that HTTP method."),
@@ -52,6 +64,15 @@ PROBLEM_TYPES: dict[str, ProblemType] = {
                     "please report it with the request."),
     )
 }
+
+
+class BodyTooLarge(BaseException):
+    """Raised while a request body is read, when it passes the size limit.
+
+    Deliberately not an ``Exception``: the framework wraps body reading in ``except Exception``
+    (turning anything into a 400), and this must reach the size-limit middleware, which answers
+    413 (see :mod:`dualcost.api.limits`).
+    """
 
 
 @dataclass(frozen=True)

@@ -10,6 +10,7 @@ from fastapi import APIRouter, Body
 from ...config import Settings
 from ..deps import SettingsDep
 from ..examples import load_examples
+from ..observability import compute_time
 from ..problems import PROBLEM_MEDIA_TYPE
 from ..schemas.comparison import ComparisonRequest, ComparisonResponse
 
@@ -41,8 +42,9 @@ def router(settings: Settings) -> APIRouter:
         the formula indices, with each formula's substitution bias, the compensating and
         equivalent variation, the Hicks decomposition of demand changes and each item's
         contribution to the Laspeyres gap."""
-        result, model, axis = request.run(max_items=settings.max_items,
-                                          max_tree_depth=settings.max_tree_depth)
+        with compute_time("compare"):
+            result, model, axis = request.run(max_items=settings.max_items,
+                                              max_tree_depth=settings.max_tree_depth)
         return ComparisonResponse.from_result(result, model, axis)
 
     return r

@@ -7,11 +7,12 @@ from functools import cache
 from importlib import resources
 from typing import Any
 
-from fastapi import APIRouter
-from fastapi.responses import HTMLResponse
+from fastapi import APIRouter, Request
+from fastapi.responses import HTMLResponse, JSONResponse, PlainTextResponse, Response
 
 from ... import __version__
 from ..deps import SettingsDep
+from ..observability import metrics_text
 from ..problems import PROBLEM_TYPES, FieldError, RequestProblem
 from ..schemas.common import StrictModel
 from ..schemas.comparison import ComparisonRequest, ComparisonResponse
@@ -28,6 +29,29 @@ class HealthOut(StrictModel):
 def health() -> HealthOut:
     """Liveness for containers and load balancers."""
     return HealthOut(status="ok", version=__version__)
+
+
+@router.get("/live", operation_id="live", response_model=HealthOut, tags=["service"])
+def live() -> HealthOut:
+    """Liveness: the process answers."""
+    return HealthOut(status="ok", version=__version__)
+
+
+@router.get("/ready", operation_id="ready", response_model=HealthOut, tags=["service"],
+            responses={503: {"description": "Not ready yet (or shutting down)."}})
+def ready(request: Request) -> Response:
+    """Readiness: start-up (including a warm-up comparison) has finished."""
+    if not getattr(request.app.state, "ready", False):
+        return JSONResponse({"status": "starting", "version": __version__}, status_code=503)
+    return JSONResponse({"status": "ready", "version": __version__})
+
+
+@router.get("/metrics", operation_id="metrics", tags=["service"], response_class=PlainTextResponse,
+            responses={200: {"content": {"text/plain": {}}}})
+def metrics() -> Response:
+    """Prometheus metrics: requests, latency and compute time by operation."""
+    data, media = metrics_text()
+    return Response(data, media_type=media)
 
 
 @router.get("/problems/{slug}", operation_id="describeProblem", response_class=HTMLResponse,

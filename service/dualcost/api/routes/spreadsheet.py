@@ -212,7 +212,8 @@ def _params(
 Params = Annotated[dict[str, Any], Depends(_params)]
 
 
-@router.api_route("/comparison", methods=["GET", "HEAD"], operation_id="sheetComparison",
+@router.head("/comparison", include_in_schema=False)
+@router.get("/comparison", operation_id="sheetComparison",
                   response_class=Response,
                   responses={200: {"content": {"text/csv": {}}, "description": "measure,value,"
                                    "compared_with,bias_points,bias_percent"}})
@@ -225,7 +226,8 @@ def sheet_comparison(params: Params, settings: SettingsDep) -> Response:
                    "text/csv; charset=utf-8")
 
 
-@router.api_route("/value", methods=["GET", "HEAD"], operation_id="sheetValue",
+@router.head("/value", include_in_schema=False)
+@router.get("/value", operation_id="sheetValue",
                   response_class=PlainTextResponse,
                   responses={200: {"content": {"text/plain": {}}, "description": "One number."}})
 def sheet_value(params: Params, settings: SettingsDep,

@@ -1,0 +1,134 @@
+"""Request ids, structured JSON logs and Prometheus metrics.
+
+Every request gets an id (the caller's ``X-Request-ID`` if it sends a sane one, else a new one),
+echoed in the response header and written in every log line of that request. One JSON line is
+logged per request: time, level, request id, method, path, operation, status, duration. API keys
+are never logged (only a short hash label, see :mod:`dualcost.api.access`).
+
+Metrics, served at ``/metrics`` in the Prometheus text format: request counts by operation and
+status, request latency by operation, and compute time by operation (the time spent in the core).
+With several worker processes, set ``PROMETHEUS_MULTIPROC_DIR`` to an empty folder so that the
+workers' metrics are added up (prometheus-client's multiprocess mode).
+"""
+
+from __future__ import annotations
+
+import contextvars
+import json
+import logging
+import os
+import re
+import time
+import uuid
+from collections.abc import Iterator
+from contextlib import contextmanager
+from typing import Any
+
+from prometheus_client import CONTENT_TYPE_LATEST, CollectorRegistry, Counter, Histogram, generate_latest
+from starlette.types import ASGIApp, Message, Receive, Scope, Send
+
+REQUEST_ID: contextvars.ContextVar[str] = contextvars.ContextVar("request_id", default="-")
+_SANE_ID = re.compile(r"^[A-Za-z0-9._-]{1,64}$")
+log = logging.getLogger("dualcost.requests")
+
+_BUCKETS = (0.001, 0.0025, 0.005, 0.01, 0.025, 0.05, 0.1, 0.25, 0.5, 1.0, 2.5, 5.0, 10.0, 30.0)
+REQUESTS = Counter("dualcost_requests_total", "Requests answered, by operation and status.",
+                   ["operation", "status"])
+LATENCY = Histogram("dualcost_request_seconds", "Time to answer a request, by operation.",
+                    ["operation"], buckets=_BUCKETS)
+COMPUTE = Histogram("dualcost_compute_seconds", "Time spent in the numerical core, by operation.",
+                    ["operation"], buckets=_BUCKETS)
+
+
+@contextmanager
+def compute_time(operation: str) -> Iterator[None]:
+    """Time a core call for the compute-time metric."""
+    start = time.perf_counter()
+    try:
+        yield
+    finally:
+        COMPUTE.labels(operation).observe(time.perf_counter() - start)
+
+
+def metrics_text() -> tuple[bytes, str]:
+    """The metrics in Prometheus text format (added up over workers in multiprocess mode)."""
+    if os.environ.get("PROMETHEUS_MULTIPROC_DIR"):
+        from prometheus_client import multiprocess
+
+        registry = CollectorRegistry()
+        multiprocess.MultiProcessCollector(registry)
+        return generate_latest(registry), CONTENT_TYPE_LATEST
+    return generate_latest(), CONTENT_TYPE_LATEST
+
+
+class JsonLogFormatter(logging.Formatter):
+    """One JSON object per line, with the request id of the request being served."""
+
+    def format(self, record: logging.LogRecord) -> str:
+        entry: dict[str, Any] = {
+            "time": self.formatTime(record, "%Y-%m-%dT%H:%M:%S%z"),
+            "level": record.levelname.lower(),
+            "logger": record.name,
+            "request_id": REQUEST_ID.get(),
+            "message": record.getMessage(),
+        }
+        entry.update(getattr(record, "fields", {}))
+        if record.exc_info:
+            entry["exception"] = self.formatException(record.exc_info)
+        return json.dumps(entry, ensure_ascii=False)
+
+
+def configure_logging(level: str = "info", *, json_lines: bool = True) -> None:
+    """Send dualcost's logs to standard error, as JSON lines unless asked otherwise."""
+    handler = logging.StreamHandler()
+    handler.setFormatter(JsonLogFormatter() if json_lines else logging.Formatter(
+        "%(asctime)s %(levelname)s %(name)s %(message)s"))
+    root = logging.getLogger("dualcost")
+    root.handlers[:] = [handler]
+    root.setLevel(level.upper())
+    root.propagate = False
+
+
+def _operation(scope: Scope) -> str:
+    route = scope.get("route")
+    name = getattr(route, "operation_id", None) or getattr(route, "name", None)
+    return str(name) if name else "unmatched"
+
+
+class RequestContextMiddleware:
+    """Request id, one log line and the metrics for every HTTP request."""
+
+    def __init__(self, app: ASGIApp) -> None:
+        self.app = app
+
+    async def __call__(self, scope: Scope, receive: Receive, send: Send) -> None:
+        if scope["type"] != "http":
+            await self.app(scope, receive, send)
+            return
+        given = dict(scope.get("headers") or []).get(b"x-request-id", b"").decode("latin-1")
+        request_id = given if _SANE_ID.match(given) else uuid.uuid4().hex
+        token = REQUEST_ID.set(request_id)
+        start = time.perf_counter()
+        status = 500
+
+        async def send_with_id(message: Message) -> None:
+            nonlocal status
+            if message["type"] == "http.response.start":
+                status = message["status"]
+                message.setdefault("headers", [])
+                message["headers"] = [*message["headers"], (b"x-request-id", request_id.encode())]
+            await send(message)
+
+        try:
+            await self.app(scope, receive, send_with_id)
+        finally:
+            elapsed = time.perf_counter() - start
+            operation = _operation(scope)
+            REQUESTS.labels(operation, str(status)).inc()
+            LATENCY.labels(operation).observe(elapsed)
+            log.info("request", extra={"fields": {
+                "method": scope.get("method"), "path": scope.get("path"), "operation": operation,
+                "status": status, "duration_ms": round(elapsed * 1000, 3),
+                "client": scope.get("state", {}).get("client_label", "-"),
+            }})
+            REQUEST_ID.reset(token)
