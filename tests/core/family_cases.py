@@ -40,9 +40,10 @@ def random_budget(rng: np.random.Generator, n: int = 5) -> BaseBudget:
     return BaseBudget.from_quantities(prices, quantities)
 
 
-def random_prices(rng: np.random.Generator, base: BaseBudget) -> np.ndarray:
-    """Base prices each moved by a factor between 1/1.8 and 1.8."""
-    return base.prices * np.exp(rng.uniform(-0.6, 0.6, base.n_items))
+def random_prices(rng: np.random.Generator, base: BaseBudget, spread: float = 0.6) -> np.ndarray:
+    """Base prices each moved by a factor between exp(-spread) and exp(spread) (about 1/1.8 to
+    1.8 at the default)."""
+    return base.prices * np.exp(rng.uniform(-spread, spread, base.n_items))
 
 
 def aids_parameters(

@@ -12,7 +12,6 @@ the family was calibrated to. Each draw is seeded (``np.random.default_rng(seed)
 
 from __future__ import annotations
 
-from collections.abc import Callable
 from dataclasses import dataclass
 
 import numpy as np
@@ -22,6 +21,7 @@ from numpy.testing import assert_allclose
 from dualcost.core.preferences import BaseBudget, Preferences
 
 from .family_cases import CASE_IDS, CASES, FamilyCase, random_budget, random_prices
+from .numeric_helpers import central_derivative, central_jacobian
 
 SEEDS = (0, 1, 2)
 
@@ -71,27 +71,6 @@ def draw(case: FamilyCase, seed: int) -> Draw:
     other_income = supernumerary_income(prefs, base, other_prices, rng.uniform(0.8, 1.25))
     utility = prefs.indirect_utility(other_prices, other_income)
     return Draw(prefs, base, prices, income, utility)
-
-
-def central_jacobian(
-    f: Callable[[np.ndarray], np.ndarray | float], x: np.ndarray, step: float = STEP
-) -> np.ndarray:
-    """d f / d x by central differences with steps ``step * x_j`` (x > 0); columns index x."""
-    columns = []
-    for j in range(x.size):
-        h = step * x[j]
-        up = x.copy()
-        down = x.copy()
-        up[j] += h
-        down[j] -= h
-        columns.append((np.asarray(f(up)) - np.asarray(f(down))) / (up[j] - down[j]))
-    return np.stack(columns, axis=-1)
-
-
-def central_derivative(f: Callable[[float], np.ndarray | float], x: float) -> np.ndarray:
-    """d f / d x for scalar x > 0 by central differences with step ``STEP * x``."""
-    h = STEP * x
-    return (np.asarray(f(x + h)) - np.asarray(f(x - h))) / (2.0 * h)
 
 
 # -- closed-form identities -------------------------------------------------------------------
@@ -195,7 +174,7 @@ def test_shephard_lemma(case: FamilyCase, seed: int) -> None:
     """h_i(p, u) = d e(p, u) / d p_i, against central differences (Shephard 1953; Mas-Colell,
     Whinston and Green 1995, Proposition 3.G.1)."""
     d = draw(case, seed)
-    gradient = central_jacobian(lambda p: d.prefs.expenditure(p, d.utility), d.prices)
+    gradient = central_jacobian(lambda p: d.prefs.expenditure(p, d.utility), d.prices, STEP)
     h = d.prefs.hicksian(d.prices, d.utility)
     assert_allclose(gradient, h, rtol=1e-6, atol=1e-9 * float(np.max(h)))
 
@@ -206,16 +185,16 @@ def test_roy_identity(case: FamilyCase, seed: int) -> None:
     """x_i(p, m) = -(d v / d p_i) / (d v / d m), against central differences (Roy 1947;
     Mas-Colell, Whinston and Green 1995, Proposition 3.G.4)."""
     d = draw(case, seed)
-    dv_dp = central_jacobian(lambda p: d.prefs.indirect_utility(p, d.income), d.prices)
-    dv_dm = central_derivative(lambda m: d.prefs.indirect_utility(d.prices, m), d.income)
+    dv_dp = central_jacobian(lambda p: d.prefs.indirect_utility(p, d.income), d.prices, STEP)
+    dv_dm = central_derivative(lambda m: d.prefs.indirect_utility(d.prices, m), d.income, STEP)
     x = d.prefs.marshallian(d.prices, d.income)
     assert_allclose(-dv_dp / dv_dm, x, rtol=1e-6, atol=1e-9 * float(np.max(x)))
 
 
 def slutsky_from_marshallian(prefs: Preferences, prices: np.ndarray, income: float) -> np.ndarray:
     """d x_i / d p_j + x_j d x_i / d m, by central differences of the Marshallian demands."""
-    dx_dp = central_jacobian(lambda p: prefs.marshallian(p, income), prices)
-    dx_dm = central_derivative(lambda m: prefs.marshallian(prices, m), income)
+    dx_dp = central_jacobian(lambda p: prefs.marshallian(p, income), prices, STEP)
+    dx_dm = central_derivative(lambda m: prefs.marshallian(prices, m), income, STEP)
     x = prefs.marshallian(prices, income)
     return dx_dp + np.outer(dx_dm, x)
 
@@ -236,7 +215,7 @@ def test_slutsky_equation(case: FamilyCase, seed: int) -> None:
     """
     d = draw(case, seed)
     u = d.prefs.indirect_utility(d.prices, d.income)
-    dh_dp = central_jacobian(lambda p: d.prefs.hicksian(p, u), d.prices)
+    dh_dp = central_jacobian(lambda p: d.prefs.hicksian(p, u), d.prices, STEP)
     rhs = scaled(slutsky_from_marshallian(d.prefs, d.prices, d.income), d.prices)
     atol = 1e-7 * d.income
     assert_allclose(scaled(dh_dp, d.prices), rhs, rtol=1e-5, atol=atol)

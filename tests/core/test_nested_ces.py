@@ -21,6 +21,8 @@ from dualcost.core.preferences.base import slutsky_notices
 from dualcost.core.preferences.ces import CES
 from dualcost.core.preferences.nested_ces import NestedCES
 
+from .numeric_helpers import central_derivative, central_jacobian, moved_prices, seeded_budget
+
 # The example tree of the interface: 7 items, three levels.
 TREE7: dict[str, Any] = {
     "sigma": 0.3,
@@ -37,13 +39,13 @@ TREE7: dict[str, Any] = {
 
 
 def budget(seed: int, n: int = 7) -> BaseBudget:
-    rng = np.random.default_rng(seed)
-    return BaseBudget.from_quantities(rng.uniform(1.0, 5.0, n), rng.uniform(1.0, 10.0, n))
+    """A seeded base budget, with the seven items of ``TREE7`` unless told."""
+    return seeded_budget(seed, n)
 
 
 def moved(seed: int, base: BaseBudget, spread: float = 0.6) -> np.ndarray:
-    rng = np.random.default_rng(seed + 1000)
-    return base.prices * np.exp(rng.uniform(-spread, spread, base.n_items))
+    """Seeded prices moved from base, drawn from this module's own stream (seed + 1000)."""
+    return moved_prices(seed, base, spread, offset=1000)
 
 
 def with_sigmas(tree: dict[str, Any], sigma: float) -> dict[str, Any]:
@@ -88,13 +90,7 @@ def test_shephards_lemma(seed: int) -> None:
     Green 1995, 3.G.1)."""
     model, base = model7(seed)
     p, u = moved(seed, base), base.expenditure
-    grad = np.empty(p.size)
-    for j in range(p.size):
-        step = 1e-5 * p[j]
-        up, down = p.copy(), p.copy()
-        up[j] += step
-        down[j] -= step
-        grad[j] = (model.expenditure(up, u) - model.expenditure(down, u)) / (2 * step)
+    grad = central_jacobian(lambda q: model.expenditure(q, u), p, rel=1e-5)
     assert_allclose(model.hicksian(p, u), grad, rtol=1e-7)
 
 
@@ -104,16 +100,8 @@ def test_roys_identity(seed: int) -> None:
     Green 1995, 3.G.4)."""
     model, base = model7(seed)
     p, m = moved(seed, base), 1.7 * base.expenditure
-    dv_dm = (model.indirect_utility(p, m * (1 + 1e-5)) - model.indirect_utility(p, m * (1 - 1e-5))
-             ) / (2e-5 * m)
-    x = np.empty(p.size)
-    for i in range(p.size):
-        step = 1e-5 * p[i]
-        up, down = p.copy(), p.copy()
-        up[i] += step
-        down[i] -= step
-        dv_dp = (model.indirect_utility(up, m) - model.indirect_utility(down, m)) / (2 * step)
-        x[i] = -dv_dp / dv_dm
+    dv_dm = central_derivative(lambda income: model.indirect_utility(p, income), m, rel=1e-5)
+    x = -central_jacobian(lambda q: model.indirect_utility(q, m), p, rel=1e-5) / dv_dm
     assert_allclose(model.marshallian(p, m), x, rtol=1e-7)
 
 

@@ -12,49 +12,18 @@ from numpy.testing import assert_allclose
 
 from dualcost.core.errors import InvalidInput
 from dualcost.core.indices import IndexData, fisher, laspeyres, paasche
-from dualcost.core.preferences import FAMILIES, BaseBudget, Preferences, calibrate
+from dualcost.core.preferences import FAMILIES, BaseBudget, calibrate
 from dualcost.core.preferences.quadratic import HomogeneousQuadratic
 
-STEP = 1e-6
-
-
-def _budget(seed: int, n: int = 4) -> BaseBudget:
-    rng = np.random.default_rng(seed)
-    return BaseBudget.from_quantities(rng.uniform(1.0, 5.0, n), rng.uniform(1.0, 10.0, n))
-
-
-def _moved(seed: int, base: BaseBudget, spread: float = 0.5) -> np.ndarray:
-    rng = np.random.default_rng(seed + 100)
-    return base.prices * np.exp(rng.uniform(-spread, spread, base.n_items))
-
-
-def _gradient(f, p: np.ndarray) -> np.ndarray:
-    out = np.empty(p.size)
-    for j in range(p.size):
-        h = STEP * p[j]
-        up, down = p.copy(), p.copy()
-        up[j] += h
-        down[j] -= h
-        out[j] = (f(up) - f(down)) / (2.0 * h)
-    return out
-
-
-def _hessian(f, p: np.ndarray, rel: float = 1e-4) -> np.ndarray:
-    """Second derivatives by the four-point central formula."""
-    n = p.size
-    out = np.empty((n, n))
-    for i in range(n):
-        for j in range(n):
-            hi, hj = rel * p[i], rel * p[j]
-            total = 0.0
-            for si, sj, sign in ((1, 1, 1), (1, -1, -1), (-1, 1, -1), (-1, -1, 1)):
-                q = p.copy()
-                q[i] += si * hi
-                q[j] += sj * hj
-                total += sign * f(q)
-            out[i, j] = total / (4.0 * hi * hj)
-    return out
-
+from .numeric_helpers import (
+    assert_closed_form_slutsky,
+    assert_duality_identities,
+    assert_shephard_and_roy,
+    ces_allen_elasticities,
+    moved_prices,
+    numeric_allen_elasticities,
+    seeded_budget,
+)
 
 CASES = [(seed, sigma) for seed in (1, 2) for sigma in (0.0, 0.4, 1.0, 1.5)]
 
@@ -63,7 +32,7 @@ CASES = [(seed, sigma) for seed in (1, 2) for sigma in (0.0, 0.4, 1.0, 1.5)]
 def test_base_bundle_is_the_optimal_choice(seed: int, sigma: float) -> None:
     """Calibration: c(p0) = 1 and x(p0, m0) = q0 to 1e-12, since B p0 = q0 / E (closed form of
     the calibrated B); the reported gap is zero."""
-    base = _budget(seed)
+    base = seeded_budget(seed)
     model = HomogeneousQuadratic.calibrate(base, sigma=sigma)
     assert_allclose(model.unit_cost(base.prices), 1.0, rtol=1e-14, atol=0.0)
     assert_allclose(model.marshallian(base.prices, base.expenditure), base.quantities,
@@ -75,9 +44,9 @@ def test_base_bundle_is_the_optimal_choice(seed: int, sigma: float) -> None:
 def test_cost_is_mean_squared_less_sigma_times_variance(seed: int, sigma: float) -> None:
     """c(p)^2 = (sum s_i rho_i)^2 - sigma Var_s(rho) with rho = p / p0 and base shares s
     (algebra of the calibrated B, stated in the module docstring)."""
-    base = _budget(seed)
+    base = seeded_budget(seed)
     model = HomogeneousQuadratic.calibrate(base, sigma=sigma)
-    rho = _moved(seed, base) / base.prices
+    rho = moved_prices(seed, base) / base.prices
     s = base.shares
     mean = float(s @ rho)
     variance = float(s @ (rho - mean) ** 2)
@@ -89,16 +58,12 @@ def test_cost_is_mean_squared_less_sigma_times_variance(seed: int, sigma: float)
 def test_duality_identities(seed: int, sigma: float) -> None:
     """e(p, v(p, m)) = m, v(p, e(p, u)) = u, h(p, u) = x(p, e(p, u)), p . x(p, m) = m and
     e(t p, u) = t e(p, u) (Mas-Colell, Whinston and Green 1995, 3.E and 3.G)."""
-    base = _budget(seed)
+    base = seeded_budget(seed)
     model = HomogeneousQuadratic.calibrate(base, sigma=sigma)
-    p = _moved(seed, base)
+    p = moved_prices(seed, base)
     m = 1.3 * base.expenditure
+    assert_duality_identities(model, p, m)
     u = model.indirect_utility(p, m)
-    assert_allclose(model.expenditure(p, u), m, rtol=1e-13, atol=0.0)
-    assert_allclose(model.indirect_utility(p, model.expenditure(p, 2.0 * u)), 2.0 * u,
-                    rtol=1e-13, atol=0.0)
-    assert_allclose(model.hicksian(p, u), model.marshallian(p, m), rtol=1e-12, atol=0.0)
-    assert_allclose(p @ model.marshallian(p, m), m, rtol=1e-13, atol=0.0)
     assert_allclose(model.expenditure(3.0 * p, u), 3.0 * m, rtol=1e-13, atol=0.0)
 
 
@@ -107,17 +72,11 @@ def test_shephard_and_roy(seed: int, sigma: float) -> None:
     """Shephard's lemma h = grad_p e(p, u) (Shephard 1953) and Roy's identity
     x_i = -(dv/dp_i)/(dv/dm) (Roy 1947), by central differences (Mas-Colell, Whinston and Green
     1995, 3.G.1 and 3.G.4)."""
-    base = _budget(seed)
+    base = seeded_budget(seed)
     model = HomogeneousQuadratic.calibrate(base, sigma=sigma)
-    p = _moved(seed, base, spread=0.3)
+    p = moved_prices(seed, base, spread=0.3)
     m = base.expenditure
-    u = model.indirect_utility(p, m)
-    assert_allclose(_gradient(lambda q: model.expenditure(q, u), p), model.hicksian(p, u),
-                    rtol=1e-7, atol=0.0)
-    dv_dp = _gradient(lambda q: model.indirect_utility(q, m), p)
-    h = STEP * m
-    dv_dm = (model.indirect_utility(p, m + h) - model.indirect_utility(p, m - h)) / (2.0 * h)
-    assert_allclose(-dv_dp / dv_dm, model.marshallian(p, m), rtol=1e-7, atol=0.0)
+    assert_shephard_and_roy(model, p, m, rtol=1e-7)
 
 
 @pytest.mark.parametrize(("seed", "sigma"), [(s, g) for s, g in CASES if g > 0.0])
@@ -125,22 +84,11 @@ def test_slutsky_matrix(seed: int, sigma: float) -> None:
     """The closed-form Slutsky matrix equals the central-difference derivative of h and the
     Slutsky equation S = D_p x + D_m x x' (Slutsky 1915); it is symmetric, negative semidefinite
     and S p = 0 (Mas-Colell, Whinston and Green 1995, 2.F and 3.G)."""
-    base = _budget(seed)
+    base = seeded_budget(seed)
     model = HomogeneousQuadratic.calibrate(base, sigma=sigma)
-    p = _moved(seed, base, spread=0.3)
+    p = moved_prices(seed, base, spread=0.3)
     m = base.expenditure
-    s = model.slutsky_matrix(p, m)
-    scale = float(np.max(np.abs(s)))
-    assert_allclose(s, Preferences.slutsky_matrix(model, p, m), rtol=0.0, atol=1e-8 * scale)
-    jac = np.column_stack([_gradient(lambda q, i=i: model.marshallian(q, m)[i], p)
-                           for i in range(p.size)]).T
-    h = STEP * m
-    dx_dm = (model.marshallian(p, m + h) - model.marshallian(p, m - h)) / (2.0 * h)
-    assert_allclose(jac + np.outer(dx_dm, model.marshallian(p, m)), s, rtol=0.0,
-                    atol=1e-7 * scale)
-    assert_allclose(s, s.T, rtol=0.0, atol=1e-14 * scale)
-    assert np.max(np.linalg.eigvalsh(s)) <= 1e-12 * scale
-    assert_allclose(s @ p, 0.0, rtol=0.0, atol=1e-13 * scale * float(np.max(p)))
+    assert_closed_form_slutsky(model, p, m)
     assert model.regularity(p, m) == []
 
 
@@ -149,13 +97,10 @@ def test_allen_elasticities_at_base_equal_sigma(sigma: float) -> None:
     """The Allen elasticities c c_ij / (c_i c_j) at the base (Allen 1938; Uzawa 1962), from
     finite differences of c, are sigma off the diagonal and -sigma (1 - s_i) / s_i on it, as for
     CES (closed form of the calibrated B)."""
-    base = _budget(3, n=4)
+    base = seeded_budget(3, n=4)
     model = HomogeneousQuadratic.calibrate(base, sigma=sigma)
-    p0, s = base.prices, base.shares
-    grad = _gradient(model.unit_cost, p0)
-    allen = model.unit_cost(p0) * _hessian(model.unit_cost, p0) / np.outer(grad, grad)
-    expected = np.full((4, 4), sigma)
-    np.fill_diagonal(expected, -sigma * (1.0 - s) / s)
+    allen = numeric_allen_elasticities(model.unit_cost, base.prices)
+    expected = ces_allen_elasticities(sigma, base.shares)
     scale = max(1.0, float(np.max(np.abs(expected))))
     assert_allclose(allen, expected, rtol=0.0, atol=2e-6 * scale)
     assert model.substitution_elasticity == sigma
@@ -165,11 +110,11 @@ def test_allen_elasticities_at_base_equal_sigma(sigma: float) -> None:
 def test_fisher_is_exact(seed: int, sigma: float) -> None:
     """The Fisher index of the optimal quantities at (p0, m0) and (p1, m1) equals c(p1) / c(p0)
     to 1e-10 (Diewert 1976, "Exact and superlative index numbers"; Konüs and Byushgens 1926)."""
-    base = _budget(seed, n=5)
+    base = seeded_budget(seed, n=5)
     model = HomogeneousQuadratic.calibrate(base, sigma=sigma)
     p0 = base.prices
     for k in range(3):
-        p1 = _moved(seed + 10 * k, base)
+        p1 = moved_prices(seed + 10 * k, base)
         q0 = model.marshallian(p0, base.expenditure)
         q1 = model.marshallian(p1, (0.8 + 0.5 * k) * base.expenditure)
         value = fisher(IndexData(p0, p1, q0, q1))
@@ -179,9 +124,9 @@ def test_fisher_is_exact(seed: int, sigma: float) -> None:
 def test_leontief_limit_makes_laspeyres_and_paasche_exact() -> None:
     """With sigma = 0 the model is Leontief: Laspeyres = Paasche = Konüs (Konüs 1924; CPI Manual
     2004, ch. 17)."""
-    base = _budget(4)
+    base = seeded_budget(4)
     model = HomogeneousQuadratic.calibrate(base, sigma=0.0)
-    p1 = _moved(4, base)
+    p1 = moved_prices(4, base)
     q1 = model.marshallian(p1, 2.0 * base.expenditure)
     data = IndexData(base.prices, p1, base.quantities, q1)
     konus = model.unit_cost(p1) / model.unit_cost(base.prices)
@@ -194,10 +139,10 @@ def test_direct_utility_is_maximised_by_the_demands(seed: int, sigma: float) -> 
     f(x(p, m)) = v(p, m), and every other bundle nearby on the budget line gives less utility
     (utility maximisation, Mas-Colell, Whinston and Green 1995, 3.D). sigma = 0 uses the
     Leontief form."""
-    base = _budget(seed)
+    base = seeded_budget(seed)
     model = HomogeneousQuadratic.calibrate(base, sigma=sigma)
     assert_allclose(model.direct_utility(base.quantities), base.expenditure, rtol=1e-12, atol=0.0)
-    p = _moved(seed, base, spread=0.3)
+    p = moved_prices(seed, base, spread=0.3)
     m = base.expenditure
     x = model.marshallian(p, m)
     best = model.direct_utility(x)
@@ -239,10 +184,10 @@ def test_regularity_reports_negative_shares() -> None:
 def test_leontief_regularity_has_no_rounding_notice() -> None:
     """With sigma = 0 the Slutsky matrix is zero (Leontief: no substitution); rounding noise must
     not read as a positive eigenvalue (Mas-Colell, Whinston and Green 1995, 3.G)."""
-    base = _budget(5)
+    base = seeded_budget(5)
     model = HomogeneousQuadratic.calibrate(base, sigma=0.0)
     for k in range(5):
-        p = _moved(5 + k, base)
+        p = moved_prices(5 + k, base)
         assert model.regularity(p, base.expenditure) == []
 
 
@@ -250,7 +195,7 @@ def test_explicit_cost_matrix_is_scaled_and_reports_the_gap() -> None:
     """An explicit B is scaled so that c(p0) = 1; a multiple of the calibrated B gives the same
     model with zero gap, and a B for which q0 is not optimal reports
     max|x(p0, m0) - q0| / max q0 (definition in the module)."""
-    base = _budget(6)
+    base = seeded_budget(6)
     calibrated = HomogeneousQuadratic.calibrate(base, sigma=0.7)
     scaled = HomogeneousQuadratic.calibrate(base, cost_matrix=7.0 * calibrated.cost_matrix)
     assert_allclose(scaled.cost_matrix, calibrated.cost_matrix, rtol=1e-14, atol=1e-16)

@@ -12,15 +12,16 @@ from numpy.testing import assert_allclose
 
 from dualcost.core.errors import InvalidInput
 from dualcost.core.indices import IndexData, laspeyres, paasche
-from dualcost.core.preferences import FAMILIES, BaseBudget, Preferences, calibrate
+from dualcost.core.preferences import FAMILIES, BaseBudget, calibrate
 from dualcost.core.preferences.stone_geary import StoneGeary
 
-STEP = 1e-6
-
-
-def _budget(seed: int, n: int = 4) -> BaseBudget:
-    rng = np.random.default_rng(seed)
-    return BaseBudget.from_quantities(rng.uniform(1.0, 5.0, n), rng.uniform(1.0, 10.0, n))
+from .numeric_helpers import (
+    assert_closed_form_slutsky,
+    assert_duality_identities,
+    assert_shephard_and_roy,
+    moved_prices,
+    seeded_budget,
+)
 
 
 def _elasticities(seed: int, base: BaseBudget) -> np.ndarray:
@@ -30,27 +31,12 @@ def _elasticities(seed: int, base: BaseBudget) -> np.ndarray:
 
 
 def _models(seed: int) -> list[tuple[StoneGeary, BaseBudget]]:
-    base = _budget(seed)
+    base = seeded_budget(seed)
     return [
         (StoneGeary.calibrate(base, subsistence_quantities=0.3 * base.quantities), base),
         (StoneGeary.calibrate(base, expenditure_elasticities=_elasticities(seed, base),
                               frisch=-2.5), base),
     ]
-
-
-def _moved(seed: int, base: BaseBudget) -> np.ndarray:
-    return base.prices * np.exp(np.random.default_rng(seed + 100).uniform(-0.5, 0.5, base.n_items))
-
-
-def _gradient(f, p: np.ndarray) -> np.ndarray:
-    out = np.empty(p.size)
-    for j in range(p.size):
-        h = STEP * p[j]
-        up, down = p.copy(), p.copy()
-        up[j] += h
-        down[j] -= h
-        out[j] = (f(up) - f(down)) / (2.0 * h)
-    return out
 
 
 CASES = [(seed, k) for seed in (1, 2, 3) for k in (0, 1)]
@@ -72,7 +58,7 @@ def test_base_bundle_is_the_optimal_choice(seed: int, k: int) -> None:
 def test_subsistence_route_keeps_the_given_subsistence_bundle() -> None:
     """Route (a): beta_i = p0_i (q0_i - gamma_i) / (m0 - p0 . gamma) (the LES demand solved for
     beta at the base; Stone 1954)."""
-    base = _budget(4)
+    base = seeded_budget(4)
     gamma = np.array([0.5, 0.0, 1.0, 0.2]) * base.quantities
     model = StoneGeary.calibrate(base, subsistence_quantities=gamma)
     assert_allclose(model.subsistence, gamma, rtol=0.0, atol=0.0)
@@ -84,7 +70,7 @@ def test_elasticity_route_reproduces_elasticities_and_frisch() -> None:
     """Route (b): d ln x_i / d ln m at the base equals eta_i (central differences in ln m), and
     -m0 / (m0 - p0 . gamma) equals the Frisch parameter phi (Frisch 1959; Deaton and
     Muellbauer 1980, 5.1)."""
-    base = _budget(5, n=5)
+    base = seeded_budget(5, n=5)
     eta = _elasticities(5, base)
     model = StoneGeary.calibrate(base, expenditure_elasticities=eta, frisch=-2.5)
     m0, p0 = base.expenditure, base.prices
@@ -102,7 +88,7 @@ def test_elasticity_route_reproduces_elasticities_and_frisch() -> None:
 def test_defaults_give_half_the_base_bundle_as_subsistence() -> None:
     """With eta = 1 and phi = -2 (the defaults), gamma_i = m0 (w0_i - w0_i / 2) / p0_i = q0_i / 2
     (closed form of route (b))."""
-    base = _budget(6)
+    base = seeded_budget(6)
     model = StoneGeary.calibrate(base)
     assert_allclose(model.subsistence, 0.5 * base.quantities, rtol=1e-14, atol=0.0)
     assert_allclose(model.marginal_shares, base.shares, rtol=1e-14, atol=0.0)
@@ -111,7 +97,7 @@ def test_defaults_give_half_the_base_bundle_as_subsistence() -> None:
 def test_frisch_between_minus_one_and_zero_gives_nonpositive_subsistence_cost() -> None:
     """For -1 <= phi < 0, p0 . gamma = m0 (1 + 1/phi) <= 0 (closed form), and the base bundle is
     still optimal."""
-    base = _budget(7)
+    base = seeded_budget(7)
     model = StoneGeary.calibrate(base, frisch=-0.5)
     assert_allclose(base.prices @ model.subsistence, -base.expenditure, rtol=1e-13, atol=0.0)
     assert_allclose(model.marshallian(base.prices, base.expenditure), base.quantities,
@@ -123,14 +109,9 @@ def test_duality_identities(seed: int, k: int) -> None:
     """e(p, v(p, m)) = m, v(p, e(p, u)) = u, h(p, u) = x(p, e(p, u)) and p . x(p, m) = m
     (Mas-Colell, Whinston and Green 1995, 3.E and 3.G)."""
     model, base = _models(seed)[k]
-    p = _moved(seed, base)
+    p = moved_prices(seed, base)
     m = 1.3 * base.expenditure
-    u = model.indirect_utility(p, m)
-    assert_allclose(model.expenditure(p, u), m, rtol=1e-13, atol=0.0)
-    assert_allclose(model.indirect_utility(p, model.expenditure(p, 2.0 * u)), 2.0 * u,
-                    rtol=1e-13, atol=0.0)
-    assert_allclose(model.hicksian(p, u), model.marshallian(p, m), rtol=1e-12, atol=0.0)
-    assert_allclose(p @ model.marshallian(p, m), m, rtol=1e-13, atol=0.0)
+    assert_duality_identities(model, p, m)
 
 
 @pytest.mark.parametrize(("seed", "k"), CASES)
@@ -139,15 +120,9 @@ def test_shephard_and_roy(seed: int, k: int) -> None:
     x_i = -(dv/dp_i)/(dv/dm) (Roy 1947), both by central differences (Mas-Colell, Whinston and
     Green 1995, 3.G.1 and 3.G.4)."""
     model, base = _models(seed)[k]
-    p = _moved(seed, base)
+    p = moved_prices(seed, base)
     m = 1.1 * base.expenditure
-    u = model.indirect_utility(p, m)
-    assert_allclose(_gradient(lambda q: model.expenditure(q, u), p), model.hicksian(p, u),
-                    rtol=1e-7, atol=0.0)
-    dv_dp = _gradient(lambda q: model.indirect_utility(q, m), p)
-    h = STEP * m
-    dv_dm = (model.indirect_utility(p, m + h) - model.indirect_utility(p, m - h)) / (2.0 * h)
-    assert_allclose(-dv_dp / dv_dm, model.marshallian(p, m), rtol=1e-7, atol=0.0)
+    assert_shephard_and_roy(model, p, m, rtol=1e-7)
 
 
 @pytest.mark.parametrize(("seed", "k"), CASES)
@@ -156,20 +131,9 @@ def test_slutsky_matrix(seed: int, k: int) -> None:
     Slutsky equation S = D_p x + D_m x x' (Slutsky 1915); it is symmetric, negative
     semidefinite and S p = 0 (Mas-Colell, Whinston and Green 1995, 2.F and 3.G)."""
     model, base = _models(seed)[k]
-    p = _moved(seed, base)
+    p = moved_prices(seed, base)
     m = 1.2 * base.expenditure
-    s = model.slutsky_matrix(p, m)
-    scale = float(np.max(np.abs(s)))
-    assert_allclose(s, Preferences.slutsky_matrix(model, p, m), rtol=0.0, atol=1e-8 * scale)
-    jac = np.column_stack([_gradient(lambda q, i=i: model.marshallian(q, m)[i], p)
-                           for i in range(p.size)]).T
-    h = STEP * m
-    dx_dm = (model.marshallian(p, m + h) - model.marshallian(p, m - h)) / (2.0 * h)
-    assert_allclose(jac + np.outer(dx_dm, model.marshallian(p, m)), s, rtol=0.0,
-                    atol=1e-7 * scale)
-    assert_allclose(s, s.T, rtol=0.0, atol=1e-14 * scale)
-    assert np.max(np.linalg.eigvalsh(s)) <= 1e-12 * scale
-    assert_allclose(s @ p, 0.0, rtol=0.0, atol=1e-13 * scale * float(np.max(p)))
+    assert_closed_form_slutsky(model, p, m)
     assert model.regularity(p, m) == []
 
 
@@ -178,7 +142,7 @@ def test_direct_utility_is_maximised_by_the_demands(seed: int, k: int) -> None:
     """u(x(p, m)) = v(p, m), and every other bundle on the budget line p . x = m nearby gives less
     utility (utility maximisation, Mas-Colell, Whinston and Green 1995, 3.D)."""
     model, base = _models(seed)[k]
-    p = _moved(seed, base)
+    p = moved_prices(seed, base)
     m = base.expenditure
     x = model.marshallian(p, m)
     best = model.direct_utility(x)
@@ -198,7 +162,7 @@ def test_konus_bounds_and_dependence_on_utility(seed: int, k: int) -> None:
     bundle's Laspeyres index and the Cobb-Douglas index B(p1), so it lies between them and
     moves monotonically from one to the other (closed form)."""
     model, base = _models(seed)[k]
-    p0, p1, m0 = base.prices, _moved(seed, base), base.expenditure
+    p0, p1, m0 = base.prices, moved_prices(seed, base), base.expenditure
     m1 = 1.05 * m0
     u0, u1 = model.indirect_utility(p0, m0), model.indirect_utility(p1, m1)
     q1 = model.marshallian(p1, m1)
@@ -222,7 +186,7 @@ def test_konus_bounds_and_dependence_on_utility(seed: int, k: int) -> None:
 
 def test_income_at_or_below_subsistence_is_refused() -> None:
     """The LES is defined only above the subsistence cost p . gamma (Stone 1954)."""
-    base = _budget(8)
+    base = seeded_budget(8)
     model = StoneGeary.calibrate(base, subsistence_quantities=0.3 * base.quantities)
     floor = model.income_floor(base.prices)
     assert_allclose(floor, 0.3 * base.expenditure, rtol=1e-14, atol=0.0)
@@ -262,7 +226,7 @@ def test_invalid_parameters_name_the_parameter(params: dict, name: str, index: i
 
 def test_subsistence_equal_to_the_base_bundle_is_refused() -> None:
     """With gamma = q0 nothing is left to spend (m0 - p0 . gamma = 0): no beta exists."""
-    base = _budget(9)
+    base = seeded_budget(9)
     with pytest.raises(InvalidInput) as info:
         StoneGeary.calibrate(base, subsistence_quantities=base.quantities)
     assert info.value.parameter == "subsistence_quantities"

@@ -12,49 +12,18 @@ from numpy.testing import assert_allclose
 
 from dualcost.core.errors import InvalidInput, NumericalFailure
 from dualcost.core.indices import IndexData, tornqvist
-from dualcost.core.preferences import FAMILIES, BaseBudget, Preferences, calibrate
+from dualcost.core.preferences import FAMILIES, BaseBudget, calibrate
 from dualcost.core.preferences.translog import Translog
 
-STEP = 1e-6
-
-
-def _budget(seed: int, n: int = 4) -> BaseBudget:
-    rng = np.random.default_rng(seed)
-    return BaseBudget.from_quantities(rng.uniform(1.0, 5.0, n), rng.uniform(1.0, 10.0, n))
-
-
-def _moved(seed: int, base: BaseBudget, spread: float = 0.5) -> np.ndarray:
-    rng = np.random.default_rng(seed + 100)
-    return base.prices * np.exp(rng.uniform(-spread, spread, base.n_items))
-
-
-def _gradient(f, p: np.ndarray) -> np.ndarray:
-    out = np.empty(p.size)
-    for j in range(p.size):
-        h = STEP * p[j]
-        up, down = p.copy(), p.copy()
-        up[j] += h
-        down[j] -= h
-        out[j] = (f(up) - f(down)) / (2.0 * h)
-    return out
-
-
-def _hessian(f, p: np.ndarray, rel: float = 1e-4) -> np.ndarray:
-    """Second derivatives by the four-point central formula."""
-    n = p.size
-    out = np.empty((n, n))
-    for i in range(n):
-        for j in range(n):
-            hi, hj = rel * p[i], rel * p[j]
-            total = 0.0
-            for si, sj, sign in ((1, 1, 1), (1, -1, -1), (-1, 1, -1), (-1, -1, 1)):
-                q = p.copy()
-                q[i] += si * hi
-                q[j] += sj * hj
-                total += sign * f(q)
-            out[i, j] = total / (4.0 * hi * hj)
-    return out
-
+from .numeric_helpers import (
+    assert_closed_form_slutsky,
+    assert_duality_identities,
+    assert_shephard_and_roy,
+    ces_allen_elasticities,
+    moved_prices,
+    numeric_allen_elasticities,
+    seeded_budget,
+)
 
 CASES = [(seed, sigma) for seed in (1, 2) for sigma in (0.0, 0.6, 1.0, 2.0)]
 
@@ -63,7 +32,7 @@ CASES = [(seed, sigma) for seed in (1, 2) for sigma in (0.0, 0.6, 1.0, 2.0)]
 def test_base_bundle_is_the_optimal_choice(seed: int, sigma: float) -> None:
     """Calibration: c(p0) = 1 and x(p0, m0) = q0 to 1e-12 (closed form of the translog shares,
     Christensen, Jorgenson and Lau 1975)."""
-    base = _budget(seed)
+    base = seeded_budget(seed)
     model = Translog.calibrate(base, sigma=sigma)
     assert model.unit_cost(base.prices) == 1.0
     assert_allclose(model.marshallian(base.prices, base.expenditure), base.quantities,
@@ -74,16 +43,12 @@ def test_base_bundle_is_the_optimal_choice(seed: int, sigma: float) -> None:
 def test_duality_identities(seed: int, sigma: float) -> None:
     """e(p, v(p, m)) = m, v(p, e(p, u)) = u, h(p, u) = x(p, e(p, u)), p . x(p, m) = m and
     e(t p, u) = t e(p, u) (Mas-Colell, Whinston and Green 1995, 3.E and 3.G)."""
-    base = _budget(seed)
+    base = seeded_budget(seed)
     model = Translog.calibrate(base, sigma=sigma)
-    p = _moved(seed, base)
+    p = moved_prices(seed, base)
     m = 1.3 * base.expenditure
+    assert_duality_identities(model, p, m)
     u = model.indirect_utility(p, m)
-    assert_allclose(model.expenditure(p, u), m, rtol=1e-13, atol=0.0)
-    assert_allclose(model.indirect_utility(p, model.expenditure(p, 2.0 * u)), 2.0 * u,
-                    rtol=1e-13, atol=0.0)
-    assert_allclose(model.hicksian(p, u), model.marshallian(p, m), rtol=1e-12, atol=0.0)
-    assert_allclose(p @ model.marshallian(p, m), m, rtol=1e-13, atol=0.0)
     assert_allclose(model.expenditure(3.0 * p, u), 3.0 * m, rtol=1e-13, atol=0.0)
 
 
@@ -92,17 +57,11 @@ def test_shephard_and_roy(seed: int, sigma: float) -> None:
     """Shephard's lemma h = grad_p e(p, u) (Shephard 1953) and Roy's identity
     x_i = -(dv/dp_i)/(dv/dm) (Roy 1947), by central differences (Mas-Colell, Whinston and Green
     1995, 3.G.1 and 3.G.4)."""
-    base = _budget(seed)
+    base = seeded_budget(seed)
     model = Translog.calibrate(base, sigma=sigma)
-    p = _moved(seed, base)
+    p = moved_prices(seed, base)
     m = base.expenditure
-    u = model.indirect_utility(p, m)
-    assert_allclose(_gradient(lambda q: model.expenditure(q, u), p), model.hicksian(p, u),
-                    rtol=1e-7, atol=0.0)
-    dv_dp = _gradient(lambda q: model.indirect_utility(q, m), p)
-    h = STEP * m
-    dv_dm = (model.indirect_utility(p, m + h) - model.indirect_utility(p, m - h)) / (2.0 * h)
-    assert_allclose(-dv_dp / dv_dm, model.marshallian(p, m), rtol=1e-7, atol=0.0)
+    assert_shephard_and_roy(model, p, m, rtol=1e-7)
 
 
 @pytest.mark.parametrize(("seed", "sigma"), [(s, g) for s, g in CASES if g > 0.0])
@@ -111,22 +70,11 @@ def test_slutsky_matrix(seed: int, sigma: float) -> None:
     Slutsky equation S = D_p x + D_m x x' (Slutsky 1915); it is symmetric, negative semidefinite
     and S p = 0 (Mas-Colell, Whinston and Green 1995, 2.F and 3.G). Checked near the base, where
     a translog with sigma > 0 is regular."""
-    base = _budget(seed)
+    base = seeded_budget(seed)
     model = Translog.calibrate(base, sigma=sigma)
-    p = _moved(seed, base, spread=0.2)
+    p = moved_prices(seed, base, spread=0.2)
     m = base.expenditure
-    s = model.slutsky_matrix(p, m)
-    scale = float(np.max(np.abs(s)))
-    assert_allclose(s, Preferences.slutsky_matrix(model, p, m), rtol=0.0, atol=1e-8 * scale)
-    jac = np.column_stack([_gradient(lambda q, i=i: model.marshallian(q, m)[i], p)
-                           for i in range(p.size)]).T
-    h = STEP * m
-    dx_dm = (model.marshallian(p, m + h) - model.marshallian(p, m - h)) / (2.0 * h)
-    assert_allclose(jac + np.outer(dx_dm, model.marshallian(p, m)), s, rtol=0.0,
-                    atol=1e-7 * scale)
-    assert_allclose(s, s.T, rtol=0.0, atol=1e-14 * scale)
-    assert np.max(np.linalg.eigvalsh(s)) <= 1e-12 * scale
-    assert_allclose(s @ p, 0.0, rtol=0.0, atol=1e-13 * scale * float(np.max(p)))
+    assert_closed_form_slutsky(model, p, m)
     assert model.regularity(p, m) == []
 
 
@@ -135,14 +83,10 @@ def test_allen_elasticities_at_base_equal_sigma(sigma: float) -> None:
     """With Gamma = (1 - sigma)(diag(w0) - w0 w0'), the Allen elasticities c c_ij / (c_i c_j) at
     the base (Allen 1938; Uzawa 1962), from finite differences of c, are sigma off the diagonal
     and -sigma (1 - w0_i) / w0_i on it, as for CES (closed form)."""
-    base = _budget(3, n=4)
+    base = seeded_budget(3, n=4)
     model = Translog.calibrate(base, sigma=sigma)
-    p0, w0 = base.prices, base.shares
-    c = model.unit_cost(p0)
-    grad = _gradient(model.unit_cost, p0)
-    allen = c * _hessian(model.unit_cost, p0) / np.outer(grad, grad)
-    expected = np.full((4, 4), sigma)
-    np.fill_diagonal(expected, -sigma * (1.0 - w0) / w0)
+    allen = numeric_allen_elasticities(model.unit_cost, base.prices)
+    expected = ces_allen_elasticities(sigma, base.shares)
     scale = max(1.0, float(np.max(np.abs(expected))))
     assert_allclose(allen, expected, rtol=0.0, atol=2e-6 * scale)
     assert model.substitution_elasticity == sigma
@@ -153,14 +97,14 @@ def test_tornqvist_is_exact(seed: int) -> None:
     """The Törnqvist index of the optimal quantities at (p0, m0) and (p1, m1) equals
     c(p1) / c(p0) to 1e-10 (Diewert 1976, "Exact and superlative index numbers"), for a Gamma
     from sigma and for a general symmetric zero-row-sum Gamma."""
-    base = _budget(seed, n=5)
+    base = seeded_budget(seed, n=5)
     rng = np.random.default_rng(seed)
     z = rng.normal(size=(5, 5))
     centre = np.eye(5) - 1.0 / 5
     general = 0.02 * centre @ (z + z.T) @ centre
     for model in (Translog.calibrate(base, sigma=0.6), Translog.calibrate(base, gamma=general)):
         p0 = base.prices
-        p1 = _moved(seed, base)
+        p1 = moved_prices(seed, base)
         q0 = model.marshallian(p0, base.expenditure)
         q1 = model.marshallian(p1, 1.7 * base.expenditure)
         value = tornqvist(IndexData(p0, p1, q0, q1))
@@ -170,13 +114,13 @@ def test_tornqvist_is_exact(seed: int) -> None:
 def test_explicit_gamma_equals_the_sigma_form() -> None:
     """Giving Gamma = (1 - sigma)(diag(w0) - w0 w0') explicitly gives the same model (closed
     form); rows summing to zero within 1e-6 are projected to sum to zero exactly."""
-    base = _budget(7)
+    base = seeded_budget(7)
     w0 = base.shares
     gamma = 0.4 * (np.diag(w0) - np.outer(w0, w0))
     a = Translog.calibrate(base, sigma=0.6)
     b = Translog.calibrate(base, gamma=gamma + 1e-8)
     assert_allclose(b.gamma.sum(axis=1), 0.0, rtol=0.0, atol=1e-15)
-    p = _moved(7, base)
+    p = moved_prices(7, base)
     assert_allclose(b.unit_cost(p), a.unit_cost(p), rtol=1e-12, atol=0.0)
     assert b.substitution_elasticity is None
     assert b.parameters()["sigma"] is None
@@ -187,7 +131,7 @@ def test_regularity_reports_negative_shares_and_a_non_concave_cost() -> None:
     Lau 1975 note the form is only locally regular); with sigma = 0 the Slutsky matrix
     Gamma + w w' - diag(w) loses negative semidefiniteness as soon as w moves from w0
     (Mas-Colell, Whinston and Green 1995, 3.G). At the base there is no notice."""
-    base = _budget(8)
+    base = seeded_budget(8)
     p0, m0 = base.prices, base.expenditure
     high = Translog.calibrate(base, sigma=3.0)
     assert high.regularity(p0, m0) == []
@@ -197,7 +141,7 @@ def test_regularity_reports_negative_shares_and_a_non_concave_cost() -> None:
     assert "shares_outside_unit_interval" in codes
     fixed = Translog.calibrate(base, sigma=0.0)
     assert fixed.regularity(p0, m0) == []
-    codes = [n.code for n in fixed.regularity(_moved(8, base), m0)]
+    codes = [n.code for n in fixed.regularity(moved_prices(8, base), m0)]
     assert codes == ["slutsky_not_negative_semidefinite"]
 
 
@@ -205,7 +149,7 @@ def test_extreme_prices_fail_cleanly() -> None:
     """Where exp(ln c) or exp(-ln c) leaves the floating-point range (overflow, or underflow to
     zero) the model raises NumericalFailure and emits no numpy warning (pytest turns warnings
     into errors; common practice)."""
-    base = _budget(9)
+    base = seeded_budget(9)
     model = Translog.calibrate(base, sigma=0.0)
     p = base.prices * np.array([1e300, 1e-300, 1.0, 1.0])
     with pytest.raises(NumericalFailure):
@@ -247,4 +191,4 @@ def test_registered_under_its_family_name() -> None:
     assert FAMILIES["translog"] is Translog
     assert Translog.homothetic
     with pytest.raises(NotImplementedError):
-        Translog.calibrate(_budget(1), sigma=0.5).direct_utility(np.ones(4))
+        Translog.calibrate(seeded_budget(1), sigma=0.5).direct_utility(np.ones(4))

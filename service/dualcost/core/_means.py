@@ -13,6 +13,7 @@ log-sum-exp form, which cannot overflow for large ``sigma``.
 
 from __future__ import annotations
 
+import math
 from typing import Any
 
 import numpy as np
@@ -50,6 +51,27 @@ def power_mean_shares(log_relatives: Array, weights: Array, t: float) -> Array:
     z = z - np.max(np.where(weights > 0.0, z, -np.inf), axis=-1, keepdims=True)
     terms = weights * np.exp(z)
     return terms / np.sum(terms, axis=-1, keepdims=True)
+
+
+def log_quantity_mean(log_z: Array, weights: Array, sigma: float) -> float:
+    """``ln`` of the CES quantity aggregate of ``exp(log_z)``: the power mean of order
+    ``rho = (sigma - 1) / sigma``, the minimum at ``sigma = 0`` (Arrow, Chenery, Minhas and
+    Solow 1961; Sato 1967). Weights sum to one.
+
+    Zero quantity indices (``log_z = -inf``) are allowed: a zero term pulls the mean to zero when
+    ``rho <= 0`` (sigma <= 1) and adds nothing to the sum otherwise (Hardy, Littlewood and Polya
+    1934, ch. II), where the other weights are rescaled to sum to one.
+    """
+    if sigma == 0.0:
+        return float(log_z.min())
+    rho = (sigma - 1.0) / sigma
+    finite = np.isfinite(log_z)
+    if np.all(finite):
+        return float(log_power_mean(log_z, weights, rho))
+    if rho <= 0.0 or not np.any(finite):
+        return -math.inf
+    kept = float(weights[finite].sum())
+    return math.log(kept) / rho + float(log_power_mean(log_z[finite], weights[finite] / kept, rho))
 
 
 def log_mean(a: Array, b: Array) -> Array:

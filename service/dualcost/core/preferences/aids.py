@@ -56,6 +56,7 @@ from .base import (
     ParameterSpec,
     Preferences,
     Vector,
+    share_notices,
     slutsky_notices,
 )
 
@@ -256,19 +257,8 @@ class _LogQuadraticCost(Preferences):
 
     def regularity(self, prices: Vector, income: float) -> list[Notice]:
         """Shares outside [0, 1] (monotonicity) and Slutsky symmetry/negativity at (p, m)."""
-        notices = []
-        w = self.budget_shares(prices, income)
-        for i in np.flatnonzero((w < 0.0) | (w > 1.0)):
-            what = "negative demand" if w[i] < 0.0 else "a share above one"
-            notices.append(
-                Notice(
-                    "share_out_of_range",
-                    f"The {self.family.upper()} budget share of item {int(i)} is {w[i]:.6g}, "
-                    f"outside [0, 1] ({what}): the model is not monotone here.",
-                )
-            )
-        notices.extend(slutsky_notices(self.slutsky_matrix(prices, income), prices))
-        return notices
+        notices = share_notices(self.budget_shares(prices, income), self.family.upper())
+        return notices + slutsky_notices(self.slutsky_matrix(prices, income), prices)
 
     # -- reporting -----------------------------------------------------------------------------
     def parameters(self) -> Mapping[str, Any]:

@@ -235,6 +235,75 @@ class Preferences(abc.ABC):
         return out
 
 
+class HomotheticPreferences(Preferences):
+    """A homothetic family, given through its unit cost ``c(p)`` and budget shares ``w(p)``.
+
+    ``e(p, u) = u c(p)``, ``v(p, m) = m / c(p)``, ``x(p, m) = m w(p) / p`` and
+    ``h(p, u) = e(p, u) w(p) / p``, with ``w = d ln c / d ln p`` by Shephard's lemma (Shephard
+    1953; Diewert 1974, "Applications of duality theory"). Families with a cheaper or safer form
+    of one of the four override it.
+    """
+
+    homothetic = True
+
+    @abc.abstractmethod
+    def unit_cost(self, prices: Vector) -> float:
+        """c(p) = e(p, 1), with c(p0) = 1 for the calibrated families."""
+
+    @abc.abstractmethod
+    def budget_shares(self, prices: Vector) -> Vector:
+        """w_i(p) = d ln c / d ln p_i, which do not depend on income."""
+
+    def expenditure(self, prices: Vector, utility: float) -> float:
+        return utility * self.unit_cost(prices)
+
+    def indirect_utility(self, prices: Vector, income: float) -> float:
+        return income / self.unit_cost(prices)
+
+    def marshallian(self, prices: Vector, income: float) -> Vector:
+        return income * self.budget_shares(prices) / prices
+
+    def hicksian(self, prices: Vector, utility: float) -> Vector:
+        return self.expenditure(prices, utility) * self.budget_shares(prices) / prices
+
+
+def share_notices(shares: Vector, model: str) -> list[Notice]:
+    """One notice when budget shares lie outside [0, 1], naming the first such item.
+
+    A share below zero is a negative demand, and with shares adding up to one a share above one
+    goes with one below zero: the model is not monotone there. Flexible forms are regular only
+    near their base point (Christensen, Jorgenson and Lau 1975; Deaton and Muellbauer 1980), so
+    the check is made at every evaluation (common practice). ``model`` starts the sentence,
+    e.g. ``"translog"`` or ``"quadratic model's"``.
+    """
+    bad = np.flatnonzero((shares < 0.0) | (shares > 1.0))
+    if not bad.size:
+        return []
+    i = int(bad[0])
+    message = (
+        f"The {model} budget share of item {i} is {shares[i]:.6g}, outside [0, 1]: the model is "
+        "not regular at these prices."
+    )
+    if bad.size == 2:
+        message += f" The share of item {int(bad[1])} is outside [0, 1] too."
+    elif bad.size > 2:
+        rest = ", ".join(str(int(j)) for j in bad[1:])
+        message += f" The shares of items {rest} are outside [0, 1] too."
+    return [Notice("shares_outside_unit_interval", message)]
+
+
+def drop_rounding(difference: Matrix, magnitude: Matrix) -> Matrix:
+    """Zero the entries of a difference that are within rounding error of its terms' size.
+
+    Where the terms of a closed-form Slutsky matrix cancel (the Leontief limit), the leftover
+    rounding noise would otherwise read as a relative positive eigenvalue in
+    :func:`slutsky_notices`. The bound, 64 machine epsilons of the terms' absolute sum, is
+    common practice.
+    """
+    noise = 64.0 * np.finfo(np.float64).eps * magnitude
+    return np.where(np.abs(difference) <= noise, 0.0, difference)
+
+
 def slutsky_notices(matrix: Matrix, prices: Vector, *, tolerance: float = 1e-8) -> list[Notice]:
     """Notices when a Slutsky matrix is not symmetric or not negative semidefinite.
 

@@ -25,9 +25,9 @@ from typing import Any
 import numpy as np
 
 from .. import _checks
-from .._means import log_power_mean, power_mean_shares
+from .._means import log_power_mean, log_quantity_mean, power_mean_shares
 from ..errors import InvalidInput
-from .base import BaseBudget, ParameterSpec, Preferences, Vector
+from .base import BaseBudget, HomotheticPreferences, ParameterSpec, Vector
 
 
 def check_sigma(name: str, sigma: Any) -> float:
@@ -42,7 +42,7 @@ def check_sigma(name: str, sigma: Any) -> float:
     return value
 
 
-class CES(Preferences):
+class CES(HomotheticPreferences):
     """CES preferences in calibrated share form."""
 
     family = "ces"
@@ -51,7 +51,6 @@ class CES(Preferences):
         "Arrow, Chenery, Minhas and Solow (1961), Review of Economics and Statistics 43(3); "
         "calibrated share form as in Lloyd (1975) and Moulton (1996)"
     )
-    homothetic = True
     parameter_specs = (
         ParameterSpec(
             "sigma",
@@ -83,26 +82,19 @@ class CES(Preferences):
         """w_i(p) = d ln c / d ln p_i."""
         return power_mean_shares(self._log_relatives(prices), self.shares, 1.0 - self.sigma)
 
-    def expenditure(self, prices: Vector, utility: float) -> float:
-        return utility * self.unit_cost(prices)
-
-    def indirect_utility(self, prices: Vector, income: float) -> float:
-        return income / self.unit_cost(prices)
-
-    def marshallian(self, prices: Vector, income: float) -> Vector:
-        return income * self.budget_shares(prices) / prices
-
-    def hicksian(self, prices: Vector, utility: float) -> Vector:
-        return self.expenditure(prices, utility) * self.budget_shares(prices) / prices
-
     def direct_utility(self, quantities: Vector) -> float:
+        """u(x) = M_rho(p0 x / s; s) with rho = (sigma - 1) / sigma, over the items with s > 0.
+
+        The same aggregate as each group of a nested CES tree (Sato 1967), so a zero quantity
+        is handled as there.
+        """
+        x = _checks.nonnegative("x", quantities, size=self.n_items)
         used = self.shares > 0.0
         s = self.shares[used]
-        z = np.log(self.reference_prices[used] * quantities[used] / s)
-        if self.sigma == 0.0:
-            return float(np.exp(z.min()))
-        rho = (self.sigma - 1.0) / self.sigma
-        return float(np.exp(log_power_mean(z, s, rho)))
+        log_z = np.full(s.size, -np.inf)
+        bought = x[used] > 0.0
+        log_z[bought] = np.log(self.reference_prices[used][bought] * x[used][bought] / s[bought])
+        return float(np.exp(log_quantity_mean(log_z, s, self.sigma)))
 
     @property
     def substitution_elasticity(self) -> float:

@@ -18,16 +18,15 @@ from typing import Any
 
 import numpy as np
 
-from .base import BaseBudget, Preferences, Vector
+from .base import BaseBudget, HomotheticPreferences, Vector
 
 
-class CobbDouglas(Preferences):
+class CobbDouglas(HomotheticPreferences):
     """Cobb-Douglas preferences with exponents ``shares`` and reference prices ``reference_prices``."""
 
     family = "cobb_douglas"
     title = "Cobb-Douglas: constant budget shares, unit elasticity of substitution"
     source = "Cobb and Douglas (1928), American Economic Review 18(1)"
-    homothetic = True
 
     def __init__(self, shares: Vector, reference_prices: Vector) -> None:
         self.shares = np.asarray(shares, dtype=np.float64)
@@ -44,17 +43,9 @@ class CobbDouglas(Preferences):
         """c(p) = prod_i (p_i / p0_i)^(a_i); c(p0) = 1."""
         return float(np.exp(self.shares @ (np.log(prices) - self._log_p_ref)))
 
-    def expenditure(self, prices: Vector, utility: float) -> float:
-        return utility * self.unit_cost(prices)
-
-    def indirect_utility(self, prices: Vector, income: float) -> float:
-        return income / self.unit_cost(prices)
-
-    def marshallian(self, prices: Vector, income: float) -> Vector:
-        return self.shares * income / prices
-
-    def hicksian(self, prices: Vector, utility: float) -> Vector:
-        return self.shares * self.expenditure(prices, utility) / prices
+    def budget_shares(self, prices: Vector) -> Vector:
+        """w(p) = a at every price: the budget shares are constant."""
+        return self.shares.copy()
 
     def direct_utility(self, quantities: Vector) -> float:
         used = self.shares > 0.0

@@ -52,9 +52,9 @@ import numpy as np
 from numpy.typing import NDArray
 
 from .. import _checks
-from .._means import log_power_mean
+from .._means import log_quantity_mean
 from ..errors import InvalidInput
-from .base import BaseBudget, ParameterSpec, Preferences, Vector
+from .base import BaseBudget, HomotheticPreferences, ParameterSpec, Vector
 
 IndexArray = NDArray[np.intp]
 
@@ -339,7 +339,7 @@ def _level_up(level: _Level, log_rel: Vector) -> tuple[Vector, Vector]:
 # -- the family ------------------------------------------------------------------------------------
 
 
-class NestedCES(Preferences):
+class NestedCES(HomotheticPreferences):
     """Nested CES preferences in calibrated share form, over a tree of item groups."""
 
     family = "nested_ces"
@@ -348,7 +348,6 @@ class NestedCES(Preferences):
         "Sato (1967), Review of Economic Studies 34(2); Keller (1976), European Economic "
         "Review 7; calibrated share form as for CES (Lloyd 1975; Moulton 1996)"
     )
-    homothetic = True
     parameter_specs = (
         ParameterSpec(
             "tree",
@@ -409,16 +408,8 @@ class NestedCES(Preferences):
         log_rel, _ = self._log_relatives(prices)
         return np.exp(log_rel[self.n_items :])
 
-    def expenditure(self, prices: Vector, utility: float) -> float:
-        return utility * self.unit_cost(prices)
-
-    def indirect_utility(self, prices: Vector, income: float) -> float:
-        return income / self.unit_cost(prices)
-
-    def marshallian(self, prices: Vector, income: float) -> Vector:
-        return income * self.budget_shares(prices) / prices
-
     def hicksian(self, prices: Vector, utility: float) -> Vector:
+        """h = u c(p) w(p) / p, with c and w from one pass over the tree."""
         cost, w = self._cost_and_shares(prices)
         return utility * cost * w / prices
 
@@ -443,7 +434,7 @@ class NestedCES(Preferences):
             self.reference_prices[used] * x[used] / self.shares[used]
         )
         for node, kids, weights, sigma in self._utility_plan:
-            log_z[node] = _log_quantity_mean(log_z[kids], weights, sigma)
+            log_z[node] = log_quantity_mean(log_z[kids], weights, sigma)
         return float(np.exp(log_z[self._root]))
 
     # -- reporting -----------------------------------------------------------------------------
@@ -470,29 +461,3 @@ class NestedCES(Preferences):
     def parameters(self) -> Mapping[str, Any]:
         return {"groups": self.groups(), "weights": self.shares.tolist()}
 
-
-def _log_quantity_mean(log_z: Vector, weights: Vector, sigma: float) -> float:
-    """ln of the power mean of order (sigma - 1)/sigma of exp(log_z); zeros (``-inf``) allowed.
-
-    A zero quantity index pulls the mean to zero when the order is 0 or less (sigma <= 1) and
-    contributes nothing to the sum otherwise.
-    """
-    if sigma == 0.0:
-        return float(log_z.min())
-    rho = (sigma - 1.0) / sigma
-    finite = np.isfinite(log_z)
-    if np.all(finite):
-        return _centred_log_power_mean(log_z, weights, rho)
-    if rho <= 0.0 or not np.any(finite):
-        return -math.inf
-    kept = float(weights[finite].sum())
-    return math.log(kept) / rho + _centred_log_power_mean(
-        log_z[finite], weights[finite] / kept, rho
-    )
-
-
-def _centred_log_power_mean(log_z: Vector, weights: Vector, rho: float) -> float:
-    """``ln M_rho`` shifted by the weighted mean of ``log_z`` first: the expm1 form loses digits
-    when every term is far below 1."""
-    centre = float(weights @ log_z)
-    return centre + float(log_power_mean(log_z - centre, weights, rho))

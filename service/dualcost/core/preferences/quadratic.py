@@ -43,7 +43,17 @@ import numpy.typing as npt
 
 from .. import _checks
 from ..errors import InvalidInput, NumericalFailure
-from .base import BaseBudget, Matrix, Notice, ParameterSpec, Preferences, Vector, slutsky_notices
+from .base import (
+    BaseBudget,
+    HomotheticPreferences,
+    Matrix,
+    Notice,
+    ParameterSpec,
+    Vector,
+    drop_rounding,
+    share_notices,
+    slutsky_notices,
+)
 from .ces import check_sigma
 
 
@@ -62,23 +72,12 @@ def _explicit_matrix(base: BaseBudget, value: npt.ArrayLike) -> Matrix:
     return b / level
 
 
-def _drop_rounding(difference: Matrix, magnitude: Matrix) -> Matrix:
-    """Zero the entries of a difference that are within rounding error of its terms' size.
-
-    Near the Leontief limit the two terms of the Slutsky matrix cancel; the leftover rounding
-    noise would otherwise read as a (relative) positive eigenvalue in :func:`slutsky_notices`.
-    """
-    noise = 64.0 * np.finfo(np.float64).eps * magnitude
-    return np.where(np.abs(difference) <= noise, 0.0, difference)
-
-
-class HomogeneousQuadratic(Preferences):
+class HomogeneousQuadratic(HomotheticPreferences):
     """Homogeneous quadratic preferences through the unit cost ``c(p) = (p' B p)^(1/2)``."""
 
     family = "quadratic"
     title = "Homogeneous quadratic: square root of a quadratic form, exact for the Fisher index"
     source = "Diewert (1976), Journal of Econometrics 4; Konüs and Byushgens (1926)"
-    homothetic = True
     parameter_specs = (
         ParameterSpec(
             "sigma",
@@ -153,13 +152,7 @@ class HomogeneousQuadratic(Preferences):
         level, bp = self._quadratic_form(prices)
         return prices * bp / level
 
-    # -- the dual quartet --------------------------------------------------------------------
-    def expenditure(self, prices: Vector, utility: float) -> float:
-        return float(utility) * self.unit_cost(prices)
-
-    def indirect_utility(self, prices: Vector, income: float) -> float:
-        return float(income) / self.unit_cost(prices)
-
+    # -- the dual quartet: e and v from the base class, x and h from one p' B p ----------------
     def marshallian(self, prices: Vector, income: float) -> Vector:
         level, bp = self._quadratic_form(prices)
         return income * bp / level
@@ -208,21 +201,13 @@ class HomogeneousQuadratic(Preferences):
         u = float(income) / c
         full = level * self.cost_matrix
         rank_one = np.outer(bp, bp)
-        core = _drop_rounding(full - rank_one, np.abs(full) + np.abs(rank_one))
+        # Near the Leontief limit the two terms cancel.
+        core = drop_rounding(full - rank_one, np.abs(full) + np.abs(rank_one))
         return u * core / (c * level)
 
     def regularity(self, prices: Vector, income: float) -> list[Notice]:
         """Shares outside [0, 1] and a Slutsky matrix that is not negative semidefinite."""
-        notices = []
-        w = self.budget_shares(prices)
-        bad = np.flatnonzero((w < 0.0) | (w > 1.0))
-        if bad.size:
-            i = int(bad[0])
-            notices.append(
-                Notice("shares_outside_unit_interval", f"The quadratic model's budget share of "
-                       f"item {i} is {w[i]:.6g}, outside [0, 1]: the model is not regular at "
-                       "these prices.")
-            )
+        notices = share_notices(self.budget_shares(prices), "quadratic model's")
         return notices + slutsky_notices(self.slutsky_matrix(prices, income), prices)
 
     @property

@@ -34,7 +34,17 @@ import numpy.typing as npt
 
 from .. import _checks
 from ..errors import InvalidInput, NumericalFailure
-from .base import BaseBudget, Matrix, Notice, ParameterSpec, Preferences, Vector, slutsky_notices
+from .base import (
+    BaseBudget,
+    HomotheticPreferences,
+    Matrix,
+    Notice,
+    ParameterSpec,
+    Vector,
+    drop_rounding,
+    share_notices,
+    slutsky_notices,
+)
 from .ces import check_sigma
 
 
@@ -73,7 +83,7 @@ def _exp(x: float, what: str) -> float:
     return value
 
 
-class Translog(Preferences):
+class Translog(HomotheticPreferences):
     """Homothetic translog unit cost around base prices ``reference_prices``."""
 
     family = "translog"
@@ -82,7 +92,6 @@ class Translog(Preferences):
         "Christensen, Jorgenson and Lau (1975), American Economic Review 65(3); "
         "Diewert (1976), Journal of Econometrics 4"
     )
-    homothetic = True
     parameter_specs = (
         ParameterSpec(
             "sigma",
@@ -150,41 +159,22 @@ class Translog(Preferences):
         """w(p) = d ln c / d ln p = w0 + Gamma r."""
         return self.shares + self.gamma @ self._log_relatives(prices)
 
-    def expenditure(self, prices: Vector, utility: float) -> float:
-        return float(utility) * self.unit_cost(prices)
-
     def indirect_utility(self, prices: Vector, income: float) -> float:
+        """m exp(-ln c(p)): where c(p) overflows, 1 / c would quietly give zero; this raises."""
         return float(income) * _exp(-self.log_unit_cost(prices), "indirect utility")
-
-    def marshallian(self, prices: Vector, income: float) -> Vector:
-        return income * self.budget_shares(prices) / prices
-
-    def hicksian(self, prices: Vector, utility: float) -> Vector:
-        return self.expenditure(prices, utility) * self.budget_shares(prices) / prices
 
     def slutsky_matrix(self, prices: Vector, income: float) -> Matrix:
         """S_ij = e / (p_i p_j) (Gamma_ij + w_i w_j - delta_ij w_i), with e = m at u = v(p, m)."""
         w = self.budget_shares(prices)
         ww = np.outer(w, w)
         dw = np.diag(w)
-        core = self.gamma + ww - dw
-        # At the base with sigma = 0 the terms cancel exactly; keep the rounding noise out of
-        # the regularity test, where it would read as a relative positive eigenvalue.
-        noise = 64.0 * np.finfo(np.float64).eps * (np.abs(self.gamma) + np.abs(ww) + np.abs(dw))
-        core = np.where(np.abs(core) <= noise, 0.0, core)
+        # At the base with sigma = 0 the terms cancel exactly.
+        core = drop_rounding(self.gamma + ww - dw, np.abs(self.gamma) + np.abs(ww) + np.abs(dw))
         return income * core / np.outer(prices, prices)
 
     def regularity(self, prices: Vector, income: float) -> list[Notice]:
         """Shares outside [0, 1] and a Slutsky matrix that is not negative semidefinite."""
-        notices = []
-        w = self.budget_shares(prices)
-        bad = np.flatnonzero((w < 0.0) | (w > 1.0))
-        if bad.size:
-            i = int(bad[0])
-            notices.append(
-                Notice("shares_outside_unit_interval", f"The translog budget share of item {i} "
-                       f"is {w[i]:.6g}, outside [0, 1]: the model is not regular at these prices.")
-            )
+        notices = share_notices(self.budget_shares(prices), "translog")
         return notices + slutsky_notices(self.slutsky_matrix(prices, income), prices)
 
     @property
