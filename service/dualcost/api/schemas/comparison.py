@@ -225,9 +225,6 @@ class ComparisonResponse(StrictModel):
 
     @classmethod
     def from_result(cls, r: Comparison, model: Preferences, axis: ItemAxis) -> ComparisonResponse:
-        d = r.demands
-        p0, p1 = r.base_prices, r.current_prices
-        contrib = r.laspeyres_gap_contributions
         lasp = r.formulas.get("laspeyres")
         return cls(
             family=r.family,
@@ -247,16 +244,7 @@ class ComparisonResponse(StrictModel):
                 compensating_variation=r.compensating_variation,
                 equivalent_variation=r.equivalent_variation,
                 compensated_income=r.compensated_income, sign_convention=SIGN_CONVENTION),
-            by_item=[
-                ItemOut(item=axis.ids[i], label=axis.labels[i], base_price=float(p0[i]),
-                        current_price=float(p1[i]), price_relative=float(p1[i] / p0[i]),
-                        base_quantity=float(d.base[i]), current_quantity=float(d.current[i]),
-                        compensated_quantity=float(d.compensated[i]),
-                        substitution_effect=float(d.substitution_effect[i]),
-                        income_effect=float(d.income_effect[i]),
-                        laspeyres_gap_points=None if contrib is None else 100.0 * float(contrib[i]))
-                for i in range(len(axis))
-            ],
+            by_item=_items(r, axis),
             lloyd_moulton_sigma=r.lloyd_moulton_sigma,
             model_parameters=dict(model.parameters()),
             diagnostics=DiagnosticsOut(duality_residual=r.diagnostics.duality_residual,
@@ -265,6 +253,28 @@ class ComparisonResponse(StrictModel):
             notices=[NoticeOut(code=n.code, message=n.message) for n in r.notices],
             caution=CAUTION,
         )
+
+
+def _items(r: Comparison, axis: ItemAxis) -> list[ItemOut]:
+    """One record per item. Built without re-validation (``model_construct``): every value is a
+    float the core produced and checked finite, and for thousands of items validation would
+    cost more than the computation."""
+    d = r.demands
+    columns = {
+        "base_price": r.base_prices, "current_price": r.current_prices,
+        "price_relative": r.current_prices / r.base_prices, "base_quantity": d.base,
+        "current_quantity": d.current, "compensated_quantity": d.compensated,
+        "substitution_effect": d.substitution_effect, "income_effect": d.income_effect,
+    }
+    lists = {k: v.tolist() for k, v in columns.items()}
+    gap = (None if r.laspeyres_gap_contributions is None
+           else (100.0 * r.laspeyres_gap_contributions).tolist())
+    return [
+        ItemOut.model_construct(item=item, label=axis.labels[i],
+                                laspeyres_gap_points=None if gap is None else gap[i],
+                                **{k: v[i] for k, v in lists.items()})
+        for i, item in enumerate(axis.ids)
+    ]
 
 
 __all__ = ["CAUTION", "ComparisonRequest", "ComparisonResponse", "MatrixIn"]

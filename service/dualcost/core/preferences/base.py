@@ -254,17 +254,39 @@ class HomotheticPreferences(Preferences):
     def budget_shares(self, prices: Vector) -> Vector:
         """w_i(p) = d ln c / d ln p_i, which do not depend on income."""
 
+    def cost_and_shares(self, prices: Vector) -> tuple[float, Vector]:
+        """(c(p), w(p)); a family that gets both from one pass overrides this."""
+        return self.unit_cost(prices), self.budget_shares(prices)
+
+    def _at(self, prices: Vector) -> tuple[float, Vector]:
+        """(c(p), w(p)), remembered for the last few price vectors: a comparison asks for them
+        at the same two or three price vectors many times, and for a large tree one evaluation
+        costs more than the rest of the comparison."""
+        key = prices.tobytes()
+        cache: dict[bytes, tuple[float, Vector]] = self.__dict__.setdefault("_evaluations", {})
+        found = cache.get(key)
+        if found is None:
+            cost, shares = self.cost_and_shares(prices)
+            shares = np.array(shares, dtype=np.float64)
+            shares.setflags(write=False)
+            found = (float(cost), shares)
+            if len(cache) >= 8:
+                cache.clear()
+            cache[key] = found
+        return found
+
     def expenditure(self, prices: Vector, utility: float) -> float:
-        return utility * self.unit_cost(prices)
+        return utility * self._at(prices)[0]
 
     def indirect_utility(self, prices: Vector, income: float) -> float:
-        return income / self.unit_cost(prices)
+        return income / self._at(prices)[0]
 
     def marshallian(self, prices: Vector, income: float) -> Vector:
-        return income * self.budget_shares(prices) / prices
+        return income * self._at(prices)[1] / prices
 
     def hicksian(self, prices: Vector, utility: float) -> Vector:
-        return self.expenditure(prices, utility) * self.budget_shares(prices) / prices
+        cost, shares = self._at(prices)
+        return utility * cost * shares / prices
 
 
 def share_notices(shares: Vector, model: str) -> list[Notice]:

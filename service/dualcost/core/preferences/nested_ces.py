@@ -45,6 +45,7 @@ from __future__ import annotations
 import math
 from collections.abc import Mapping, Sequence
 from dataclasses import dataclass
+from functools import cached_property
 from numbers import Integral, Real
 from typing import Any
 
@@ -184,7 +185,8 @@ def _parse_tree(spec: Any, n_items: int) -> _Tree:
                 "position or subgroup in 'children'"
             )
         for k, child in enumerate(kids, start=1):
-            if isinstance(child, Integral) and not isinstance(child, bool):
+            # type() first: the abstract-class check is slow, and trees have thousands of items.
+            if type(child) is int or (isinstance(child, Integral) and not isinstance(child, bool)):
                 i = int(child)
                 if not 0 <= i < n_items:
                     raise _tree_error(
@@ -258,10 +260,11 @@ def _compile(tree: _Tree, shares: Vector) -> tuple[Vector, Vector, list[_Level]]
     node_share[:n] = shares
     height = np.zeros(n + n_groups, dtype=np.intp)
     # Children have larger ids than their parents: reverse id order is bottom-up.
+    kid_arrays = [np.asarray(kids, dtype=np.intp) for kids in tree.children]
     for g in range(n_groups - 1, -1, -1):
-        kids = tree.children[g]
-        node_share[n + g] = math.fsum(float(node_share[c]) for c in kids)
-        height[n + g] = 1 + max(int(height[c]) for c in kids)
+        kids = kid_arrays[g]
+        node_share[n + g] = math.fsum(node_share[kids].tolist())
+        height[n + g] = 1 + int(height[kids].max())
     by_height: dict[int, list[int]] = {}
     for g in range(n_groups):
         by_height.setdefault(int(height[n + g]), []).append(g)
@@ -277,7 +280,7 @@ def _compile(tree: _Tree, shares: Vector) -> tuple[Vector, Vector, list[_Level]]
             seg.extend([j] * len(kids))
             t_edge.extend([1.0 - tree.sigmas[g]] * len(kids))
             if total > 0.0:
-                weight.extend(float(node_share[c] / total) for c in kids)
+                weight.extend((node_share[kid_arrays[g]] / total).tolist())
             else:
                 # An all-zero group: equal weights keep its unused relative defined.
                 weight.extend([1.0 / len(kids)] * len(kids))
@@ -368,7 +371,6 @@ class NestedCES(HomotheticPreferences):
         self._log_p_ref = np.log(self.reference_prices)
         self._node_share, _, self._levels = _compile(tree, self.shares)
         self._root = self.n_items  # node id of group 0
-        self._utility_plan = self._plan_direct_utility()
 
     @classmethod
     def calibrate(cls, base: BaseBudget, *, tree: Any = None, **_: Any) -> NestedCES:
@@ -386,7 +388,7 @@ class NestedCES(HomotheticPreferences):
             within.append(w)
         return log_rel, within
 
-    def _cost_and_shares(self, prices: Vector) -> tuple[float, Vector]:
+    def cost_and_shares(self, prices: Vector) -> tuple[float, Vector]:
         log_rel, within = self._log_relatives(prices)
         node_w = np.empty(self._node_share.size)
         node_w[self._root] = 1.0
@@ -401,7 +403,7 @@ class NestedCES(HomotheticPreferences):
 
     def budget_shares(self, prices: Vector) -> Vector:
         """w_i(p) = d ln c / d ln p_i: the product of current within-group shares on i's path."""
-        return self._cost_and_shares(prices)[1]
+        return self.cost_and_shares(prices)[1]
 
     def group_cost_relatives(self, prices: Vector) -> Vector:
         """Each group's cost relative P_g(p), in the order of :meth:`groups`."""
@@ -410,11 +412,12 @@ class NestedCES(HomotheticPreferences):
 
     def hicksian(self, prices: Vector, utility: float) -> Vector:
         """h = u c(p) w(p) / p, with c and w from one pass over the tree."""
-        cost, w = self._cost_and_shares(prices)
+        cost, w = self.cost_and_shares(prices)
         return utility * cost * w / prices
 
     # -- direct utility ----------------------------------------------------------------------
-    def _plan_direct_utility(self) -> list[tuple[int, IndexArray, Vector, float]]:
+    @cached_property
+    def _utility_plan(self) -> list[tuple[int, IndexArray, Vector, float]]:
         """Bottom-up list of (node, positive-weight children, their weights, sigma)."""
         n, share = self.n_items, self._node_share
         plan = []
