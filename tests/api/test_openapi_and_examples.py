@@ -4,6 +4,7 @@ from __future__ import annotations
 
 import pytest
 
+from dualcost.api.schemas.comparison import ComparisonResponse
 from tests.conftest import EXAMPLES, load_example
 
 EXAMPLE_FILES = sorted(p.name for p in EXAMPLES.glob("*.json"))
@@ -43,6 +44,7 @@ def test_every_example_gets_a_sound_answer(client, name) -> None:
     if operation_id != "compare":
         return
     body = r.json()
+    ComparisonResponse.model_validate(body)  # the answer has its documented shape
     formulas = {f["formula"]: f["value"] for f in body["formulas"]}
     assert body["konus"]["base"] <= formulas["laspeyres"] * (1 + 1e-12)
     assert not [n for n in body["notices"] if n["code"].startswith("slutsky")]

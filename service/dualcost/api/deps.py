@@ -9,7 +9,7 @@ from fastapi import Depends, Request
 from ..config import Settings
 
 
-def get_settings(request: Request) -> Settings:
+async def get_settings(request: Request) -> Settings:
     return request.app.state.settings  # type: ignore[no-any-return]
 
 

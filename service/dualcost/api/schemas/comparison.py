@@ -225,56 +225,69 @@ class ComparisonResponse(StrictModel):
 
     @classmethod
     def from_result(cls, r: Comparison, model: Preferences, axis: ItemAxis) -> ComparisonResponse:
-        lasp = r.formulas.get("laspeyres")
-        return cls(
-            family=r.family,
-            items=axis.ids,
-            konus=KonusOut(base=r.konus.base, current=r.konus.current, midpoint=r.konus.midpoint,
-                           reference=r.konus.reference, homothetic=r.konus.homothetic),
-            living_standards=LivingStandardsOut(
-                base_income=r.standards.base_income, current_income=r.standards.current_income,
-                midpoint_income=r.standards.midpoint_income,
-                reference_income=r.standards.reference_income, utility_base=r.standards.base,
-                utility_current=r.standards.current, utility_reference=r.standards.reference),
-            formulas=[FormulaOut(formula=f.name, title=FORMULAS[f.name].title, value=f.value,
-                                 compared_with=f.target, konus=f.konus, bias_points=f.bias_points,
-                                 bias_percent=f.bias_percent) for f in r.formulas.values()],
-            laspeyres_gap_points=None if lasp is None else 100.0 * (lasp.value - r.konus.base),
-            compensation=CompensationOut(
-                compensating_variation=r.compensating_variation,
-                equivalent_variation=r.equivalent_variation,
-                compensated_income=r.compensated_income, sign_convention=SIGN_CONVENTION),
-            by_item=_items(r, axis),
-            lloyd_moulton_sigma=r.lloyd_moulton_sigma,
-            model_parameters=dict(model.parameters()),
-            diagnostics=DiagnosticsOut(duality_residual=r.diagnostics.duality_residual,
-                                       expenditure_residual=r.diagnostics.expenditure_residual,
-                                       base_bundle_gap=r.diagnostics.base_bundle_gap),
-            notices=[NoticeOut(code=n.code, message=n.message) for n in r.notices],
-            caution=CAUTION,
-        )
+        return cls.model_validate(comparison_document(r, model, axis))
 
 
-def _items(r: Comparison, axis: ItemAxis) -> list[ItemOut]:
-    """One record per item. Built without re-validation (``model_construct``): every value is a
-    float the core produced and checked finite, and for thousands of items validation would
-    cost more than the computation."""
-    d = r.demands
-    columns = {
-        "base_price": r.base_prices, "current_price": r.current_prices,
-        "price_relative": r.current_prices / r.base_prices, "base_quantity": d.base,
-        "current_quantity": d.current, "compensated_quantity": d.compensated,
-        "substitution_effect": d.substitution_effect, "income_effect": d.income_effect,
+def comparison_document(r: Comparison, model: Preferences, axis: ItemAxis) -> dict[str, Any]:
+    """The answer as plain JSON-ready values, in the shape of :class:`ComparisonResponse`.
+
+    The comparison route renders this directly (validating 300 item records would cost more than
+    the computation); tests check that every answer validates against the response model.
+    """
+    lasp = r.formulas.get("laspeyres")
+    st = r.standards
+    return {
+        "family": r.family,
+        "items": axis.ids,
+        "konus": {"base": r.konus.base, "current": r.konus.current, "midpoint": r.konus.midpoint,
+                  "reference": r.konus.reference, "homothetic": r.konus.homothetic},
+        "living_standards": {
+            "base_income": st.base_income, "current_income": st.current_income,
+            "midpoint_income": st.midpoint_income, "reference_income": st.reference_income,
+            "utility_base": st.base, "utility_current": st.current,
+            "utility_reference": st.reference,
+        },
+        "formulas": [{"formula": f.name, "title": FORMULAS[f.name].title, "value": f.value,
+                      "compared_with": f.target, "konus": f.konus, "bias_points": f.bias_points,
+                      "bias_percent": f.bias_percent} for f in r.formulas.values()],
+        "laspeyres_gap_points": None if lasp is None else 100.0 * (lasp.value - r.konus.base),
+        "compensation": {
+            "compensating_variation": r.compensating_variation,
+            "equivalent_variation": r.equivalent_variation,
+            "compensated_income": r.compensated_income, "sign_convention": SIGN_CONVENTION,
+        },
+        "by_item": _items(r, axis),
+        "lloyd_moulton_sigma": r.lloyd_moulton_sigma,
+        "model_parameters": dict(model.parameters()),
+        "diagnostics": {"duality_residual": r.diagnostics.duality_residual,
+                        "expenditure_residual": r.diagnostics.expenditure_residual,
+                        "base_bundle_gap": r.diagnostics.base_bundle_gap},
+        "notices": [{"code": n.code, "message": n.message} for n in r.notices],
+        "caution": CAUTION,
     }
-    lists = {k: v.tolist() for k, v in columns.items()}
-    gap = (None if r.laspeyres_gap_contributions is None
-           else (100.0 * r.laspeyres_gap_contributions).tolist())
-    return [
-        ItemOut.model_construct(item=item, label=axis.labels[i],
-                                laspeyres_gap_points=None if gap is None else gap[i],
-                                **{k: v[i] for k, v in lists.items()})
-        for i, item in enumerate(axis.ids)
-    ]
 
 
-__all__ = ["CAUTION", "ComparisonRequest", "ComparisonResponse", "MatrixIn"]
+def _items(r: Comparison, axis: ItemAxis) -> list[dict[str, Any]]:
+    """One record per item, built column-wise from the core's arrays (plain dicts: the response
+    model validates them in one pass, which for thousands of items is far cheaper than building
+    one model object per item)."""
+    d = r.demands
+    gap = r.laspeyres_gap_contributions
+    columns = {
+        "item": axis.ids,
+        "label": axis.labels,
+        "base_price": r.base_prices.tolist(),
+        "current_price": r.current_prices.tolist(),
+        "price_relative": (r.current_prices / r.base_prices).tolist(),
+        "base_quantity": d.base.tolist(),
+        "current_quantity": d.current.tolist(),
+        "compensated_quantity": d.compensated.tolist(),
+        "substitution_effect": d.substitution_effect.tolist(),
+        "income_effect": d.income_effect.tolist(),
+        "laspeyres_gap_points": [None] * len(axis.ids) if gap is None else (100.0 * gap).tolist(),
+    }
+    names = list(columns)
+    return [dict(zip(names, row, strict=True)) for row in zip(*columns.values(), strict=True)]
+
+
+__all__ = ["CAUTION", "ComparisonRequest", "ComparisonResponse", "MatrixIn", "comparison_document"]

@@ -1,0 +1,138 @@
+"""Load test: the service with two workers on loopback, against a bare parse-and-echo endpoint.
+
+Run: ``python benchmarks/load.py [--seconds 30] [--clients 64]`` (needs ``wrk``, from Debian's
+packages: ``apt-get install wrk``). It starts ``dualcost serve --workers 2`` and, in the same run,
+a bare FastAPI app with two workers whose endpoint only parses and echoes the same body, then
+drives each with the same number of concurrent connections for the same time, sending the
+300-item nested CES comparison of benchmarks/comparison_speed.py. It prints throughput, p50 and
+p99 latency and errors for both, and the ratio of the two throughputs (the figure to watch:
+target at least 0.5, with zero errors). Traffic goes to 127.0.0.1 only, and every run is
+bounded in time.
+"""
+
+from __future__ import annotations
+
+import argparse
+import json
+import os
+import re
+import shutil
+import signal
+import socket
+import subprocess
+import sys
+import tempfile
+import time
+import urllib.request
+from pathlib import Path
+
+sys.path.insert(0, str(Path(__file__).resolve().parent))
+from comparison_speed import scenario  # noqa: E402
+
+HERE = Path(__file__).resolve().parent
+
+LUA = """
+wrk.method = "POST"
+wrk.headers["Content-Type"] = "application/json"
+local f = io.open("{path}", "r")
+wrk.body = f:read("*a")
+f:close()
+"""
+
+
+def free_port() -> int:
+    with socket.socket() as s:
+        s.bind(("127.0.0.1", 0))
+        return int(s.getsockname()[1])
+
+
+def wait_until_up(url: str, timeout: float = 60.0) -> None:
+    deadline = time.monotonic() + timeout
+    while time.monotonic() < deadline:
+        try:
+            with urllib.request.urlopen(url, timeout=1):
+                return
+        except OSError:
+            time.sleep(0.2)
+    raise RuntimeError(f"{url} did not come up")
+
+
+def start(cmd: list[str], env: dict[str, str]) -> subprocess.Popen[bytes]:
+    return subprocess.Popen(cmd, env=env, stdout=subprocess.DEVNULL, stderr=subprocess.DEVNULL,
+                            start_new_session=True)
+
+
+def stop(proc: subprocess.Popen[bytes]) -> None:
+    try:
+        os.killpg(proc.pid, signal.SIGTERM)
+        proc.wait(timeout=15)
+    except (ProcessLookupError, subprocess.TimeoutExpired):
+        os.killpg(proc.pid, signal.SIGKILL)
+
+
+def to_ms(text: str) -> float:
+    value, unit = re.match(r"([\d.]+)(us|ms|s)", text).groups()  # type: ignore[union-attr]
+    return float(value) * {"us": 0.001, "ms": 1.0, "s": 1000.0}[unit]
+
+
+def drive(url: str, script: str, seconds: int, clients: int) -> dict[str, float]:
+    out = subprocess.run(["wrk", "-t2", f"-c{clients}", f"-d{seconds}s", "--timeout", "10s",
+                          "--latency", "-s", script, url], capture_output=True, text=True,
+                         timeout=seconds + 60, check=True).stdout
+    rps = float(re.search(r"Requests/sec:\s+([\d.]+)", out).group(1))  # type: ignore[union-attr]
+    p50 = to_ms(re.search(r"50%\s+(\S+)", out).group(1))  # type: ignore[union-attr]
+    p99 = to_ms(re.search(r"99%\s+(\S+)", out).group(1))  # type: ignore[union-attr]
+    total = int(re.search(r"(\d+) requests in", out).group(1))  # type: ignore[union-attr]
+    non2xx = re.search(r"Non-2xx or 3xx responses: (\d+)", out)
+    sock = re.search(r"Socket errors: connect (\d+), read (\d+), write (\d+), timeout (\d+)", out)
+    errors = (int(non2xx.group(1)) if non2xx else 0) + (sum(map(int, sock.groups())) if sock else 0)
+    return {"rps": rps, "p50": p50, "p99": p99, "requests": total, "errors": errors}
+
+
+def main() -> int:
+    parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
+    parser.add_argument("--seconds", type=int, default=30)
+    parser.add_argument("--clients", type=int, default=64)
+    args = parser.parse_args()
+    if not shutil.which("wrk"):
+        print("wrk is needed: apt-get install wrk", file=sys.stderr)
+        return 2
+
+    body = json.dumps(scenario()).encode()
+    with tempfile.TemporaryDirectory() as tmp:
+        body_path = Path(tmp) / "body.json"
+        body_path.write_bytes(body)
+        script = Path(tmp) / "post.lua"
+        script.write_text(LUA.format(path=body_path))
+        env = dict(os.environ, PYTHONPATH=str(HERE))
+        results = {}
+        for name in ("dualcost", "echo"):
+            port = free_port()
+            if name == "dualcost":
+                cmd = [sys.executable, "-m", "dualcost.cli", "serve", "--port", str(port),
+                       "--workers", "2"]
+                url, probe = f"http://127.0.0.1:{port}/v1/comparisons", f"http://127.0.0.1:{port}/ready"
+            else:
+                cmd = [sys.executable, "-m", "uvicorn", "echo_app:app", "--port", str(port),
+                       "--workers", "2", "--log-level", "warning", "--no-access-log"]
+                url, probe = f"http://127.0.0.1:{port}/echo", f"http://127.0.0.1:{port}/docs"
+            proc = start(cmd, env)
+            try:
+                wait_until_up(probe)
+                drive(url, str(script), 3, args.clients)  # warm-up
+                results[name] = drive(url, str(script), args.seconds, args.clients)
+            finally:
+                stop(proc)
+
+    print(f"load: {args.clients} connections for {args.seconds} s each, 2 workers, 300-item "
+          f"nested CES comparison ({len(body)} bytes)")
+    for name, r in results.items():
+        print(f"  {name:9s} {r['rps']:9.1f} req/s   p50 {r['p50']:8.2f} ms   p99 {r['p99']:8.2f} ms"
+              f"   requests {r['requests']:7d}   errors {r['errors']}")
+    ratio = results["dualcost"]["rps"] / results["echo"]["rps"]
+    print(f"  throughput ratio dualcost / echo: {ratio:.2f} (target at least 0.5)")
+    return 0
+
+
+if __name__ == "__main__":
+    sys.exit(main())
