@@ -17,6 +17,7 @@ from . import problems
 from .access import AccessControlMiddleware, load_keys
 from .limits import BodySizeLimitMiddleware
 from .observability import RequestContextMiddleware
+from .openapi import problem_openapi
 from .routes import catalogue, comparisons, service, spreadsheet
 
 WEB_DIR = Path(__file__).resolve().parents[1] / "web"
@@ -82,6 +83,7 @@ def create_app(settings: Settings | None = None) -> FastAPI:
     app.include_router(service.router)
     app.include_router(spreadsheet.router)
 
+    app.openapi = lambda: problem_openapi(app)  # type: ignore[method-assign]
     app.mount("/static", StaticFiles(directory=WEB_DIR), name="static")
 
     @app.get("/", include_in_schema=False)

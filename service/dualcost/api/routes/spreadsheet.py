@@ -215,8 +215,10 @@ Params = Annotated[dict[str, Any], Depends(_params)]
 @router.head("/comparison", include_in_schema=False)
 @router.get("/comparison", operation_id="sheetComparison",
                   response_class=Response,
-                  responses={200: {"content": {"text/csv": {}}, "description": "measure,value,"
-                                   "compared_with,bias_points,bias_percent"}})
+                  responses={200: {"content": {"text/csv": {}, "text/plain": {}},
+                                   "description": "CSV: measure,value,compared_with,bias_points,"
+                                   "bias_percent; with on_error=text a bad request is answered "
+                                   "as text/plain 'ERROR: ...'"}})
 def sheet_comparison(params: Params, settings: SettingsDep) -> Response:
     """The comparison as CSV: one row per measure (Konüs indices, formulas with their bias,
     compensation), for a spreadsheet's CSV-import function."""

@@ -1,0 +1,76 @@
+"""The OpenAPI document, with every error answer described as what it is: a problem.
+
+FastAPI describes a validation error as ``application/json`` with its own error shape. This
+service answers every error with RFC 9457 problem details (``application/problem+json``), so the
+document is rewritten to say so: for every operation, each 4xx/5xx answer it can give points at
+one ``Problem`` schema.
+"""
+
+from __future__ import annotations
+
+from typing import Any
+
+from fastapi import FastAPI
+from fastapi.openapi.utils import get_openapi
+from pydantic import BaseModel, Field
+
+from .problems import PROBLEM_MEDIA_TYPE
+
+
+class FieldErrorOut(BaseModel):
+    pointer: str = Field(description="JSON Pointer into the body, '#/query/<name>' for a query "
+                                     "parameter, or an RFC 7111 fragment ('#cell=row,col') for CSV.")
+    detail: str
+
+
+class ProblemOut(BaseModel):
+    """RFC 9457 problem details."""
+
+    type: str
+    title: str
+    status: int
+    detail: str
+    instance: str | None = None
+    errors: list[FieldErrorOut] | None = None
+
+
+#: Error answers every operation can give (the request size limit, malformed input, a bug).
+_ALWAYS = {
+    "400": "The body is not valid JSON.",
+    "413": "The request body is larger than the limit.",
+    "422": "The request breaks a rule; `errors` points at each field.",
+    "500": "Internal error (a bug: please report it).",
+}
+_PROTECTED = {
+    "401": "An API key is needed (when the service is configured with keys).",
+    "429": "This API key's rate limit is used up (when configured); see Retry-After.",
+}
+_COMPUTING = {"503": "The computation ran past the service's compute deadline."}
+
+
+def problem_openapi(app: FastAPI) -> dict[str, Any]:
+    """Build (once) the document with problem responses on every operation."""
+    if app.openapi_schema:
+        return app.openapi_schema
+    doc = get_openapi(title=app.title, version=app.version, description=app.description,
+                      routes=app.routes, tags=app.openapi_tags)
+    schemas = doc.setdefault("components", {}).setdefault("schemas", {})
+    problem_schema = ProblemOut.model_json_schema(ref_template="#/components/schemas/{model}")
+    schemas.update(problem_schema.pop("$defs", {}))
+    schemas["Problem"] = problem_schema
+    problem = {PROBLEM_MEDIA_TYPE: {"schema": {"$ref": "#/components/schemas/Problem"}}}
+    for path, item in doc.get("paths", {}).items():
+        for method, op in item.items():
+            responses = op.setdefault("responses", {})
+            extra = dict(_ALWAYS)
+            if path.startswith("/v1/"):
+                extra |= _PROTECTED | (_COMPUTING if method in ("get", "post") else {})
+            for code, text in extra.items():
+                responses.setdefault(code, {"description": text})
+            for code, response in responses.items():
+                if code[0] in "45":
+                    response["content"] = problem
+    for unused in ("HTTPValidationError", "ValidationError"):
+        schemas.pop(unused, None)
+    app.openapi_schema = doc
+    return doc
