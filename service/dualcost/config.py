@@ -36,3 +36,6 @@ class Settings(BaseSettings):
     log_json: bool = Field(True, description="Log one JSON object per line (false: plain text).")
     max_items: int = Field(20_000, ge=1, description="Most items one request may carry.")
     max_tree_depth: int = Field(64, ge=1, description="Deepest nested CES tree accepted.")
+    max_periods: int = Field(1_000, ge=2, description="Most periods one index-series panel may carry.")
+    max_panel_cells: int = Field(
+        2_000_000, ge=1, description="Most periods times items (and CSV rows) in one panel.")

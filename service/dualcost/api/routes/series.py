@@ -1,0 +1,145 @@
+"""POST /v1/index-series (JSON) and POST /v1/index-series/csv (CSV upload): index series over a
+panel of periods, answered as JSON or, on request, as a CSV table with one row per period."""
+
+# No ``from __future__ import annotations`` here: the request body's annotation carries the
+# examples loaded when the router is built, and FastAPI must see it as an object, not a string.
+
+from typing import Annotated, Any, Literal
+
+from fastapi import APIRouter, Body, Depends, Query, Request
+from fastapi.responses import Response
+
+from ...config import Settings
+from ..deps import SettingsDep
+from ..examples import load_examples
+from ..problems import PROBLEM_MEDIA_TYPE
+from ..schemas.series import (
+    SeriesRequest,
+    SeriesResponse,
+    SeriesRun,
+    csv_table,
+    options_from_query,
+    panel_from_csv,
+    panel_from_json,
+    run_series,
+)
+from ..tabular import CSV_MEDIA_TYPE, CSV_REQUEST_BODY, csv_body, csv_response, wants_csv
+
+RESPONSES: dict[int | str, dict[str, Any]] = {
+    200: {"description": "The series as JSON, or as a CSV table with one row per period when "
+                         "asked (Accept: text/csv, or format=csv).",
+          "content": {CSV_MEDIA_TYPE: {"schema": {"type": "string"}}}},
+    422: {"description": "The request breaks a rule (RFC 9457 problem details).",
+          "content": {PROBLEM_MEDIA_TYPE: {}}},
+    400: {"description": "The body is not valid JSON (RFC 9457 problem details).",
+          "content": {PROBLEM_MEDIA_TYPE: {}}},
+}
+
+DESCRIPTION = """\
+For every formula, the **fixed-base** series (direct comparisons with the base period) and the
+**chained** series (period-to-period links multiplied), published on the index reference period
+(1 or 100). With a `model`, calibrated to the base period's budget, the **Konüs** series: fixed
+base at base-period utility (and at each period's own and the midpoint standard), and chained with
+each link at its starting period's utility (or its end's, or the midpoint); then each formula's
+**bias** per period, and the **average annual bias** in percentage points per year over a `span`,
+with the frequency stated.
+
+**Chain drift**: chained against direct per formula, and the circularity failure over a `loop`
+of periods. **GEKS** on Fisher and on Törnqvist links (Gini 1931; Eltetö and Köves 1964; Szulc
+1964) over the whole panel, and over a rolling window (default 13 months, 5 quarters or 2 years)
+spliced onto the published series by `geks.splice` (Ivancic, Diewert and Fox 2011): `movement`
+(default) `P_t = P_{t-1} G_W(t-1,t)`; `window` splices on the first period of the new window,
+`half` on its middle period, `mean` on all overlapping periods (geometric mean).
+
+**Items that come and go**: every comparison uses the items priced in both of its periods; each
+formula's `rule_for_items_that_come_and_go` says what that amounts to, and `item_treatment` lists
+every period and item left out of a comparison or valued otherwise by the model. The `feenstra`
+series adds the CES new-goods adjustment (Feenstra 1994) with elasticity `new_goods_sigma` > 1.
+
+**Lowe and Young** series take the basket or shares of a `weight_reference` period at or before the
+base; `weights` gives the shares and their price-updated form (the form in which Young equals
+Lowe).
+"""
+
+
+def router(settings: Settings) -> APIRouter:
+    r = APIRouter(prefix="/v1", tags=["series"])
+    examples = load_examples(settings.examples_dir, "indexSeries")
+
+    def answer(run: SeriesRun, request: Request, fmt: str | None) -> Any:
+        if wants_csv(request, fmt):
+            header, rows = csv_table(run)
+            return csv_response(header, rows, filename="index-series.csv")
+        return SeriesResponse.from_run(run)
+
+    @r.post(
+        "/index-series",
+        operation_id="indexSeries",
+        summary="Index series over a panel: fixed-base, chained, Konüs, bias, drift, GEKS",
+        description=DESCRIPTION,
+        response_model=SeriesResponse,
+        responses=RESPONSES,
+    )
+    def index_series(
+        body: Annotated[SeriesRequest, Body(openapi_examples=examples)],  # type: ignore[arg-type]
+        request: Request,
+        settings: SettingsDep,
+        format: Annotated[Literal["json", "csv"] | None, Query(
+            description="Answer format; default by the Accept header (JSON unless text/csv is "
+                        "preferred).")] = None,
+    ) -> Any:
+        data = panel_from_json(body, max_periods=settings.max_periods, max_items=settings.max_items,
+                               max_cells=settings.max_panel_cells)
+        run = run_series(data, body, max_tree_depth=settings.max_tree_depth)
+        return answer(run, request, format)
+
+    @r.post(
+        "/index-series/csv",
+        operation_id="indexSeriesFromCsv",
+        summary="Index series from a CSV panel in long form (one row per period and item)",
+        description=(
+            "The body is `text/csv` with columns `period`, `item`, `price` and, where known, "
+            "`quantity` and/or `expenditure` (and an optional item `label`); one row per period "
+            "and item, rows grouped by period in time order; an item not priced in a period has "
+            "no row. Options are query parameters; `model` is a JSON object "
+            '(`{"family": "ces", "sigma": 0.7}`), `formulas` and `loop` are comma-separated. '
+            "Errors name the row and column (`#cell=row,column`, RFC 7111).\n\n" + DESCRIPTION),
+        response_model=SeriesResponse,
+        responses=RESPONSES,
+        openapi_extra=CSV_REQUEST_BODY,
+    )
+    def index_series_from_csv(
+        text: Annotated[str, Depends(csv_body)],
+        request: Request,
+        settings: SettingsDep,
+        base_period: Annotated[str | None, Query(description="Base (price-reference) period.")] = None,
+        reference_period: Annotated[str | None, Query(description="Index reference period.")] = None,
+        reference_value: Annotated[int | None, Query(description="1 or 100 (default 100).")] = None,
+        frequency: Annotated[Literal["monthly", "quarterly", "annual"] | None, Query()] = None,
+        formulas: Annotated[str | None, Query(description="Comma-separated formula names.")] = None,
+        model: Annotated[str | None, Query(description="The preference model as a JSON object.")] = None,
+        lloyd_moulton_sigma: Annotated[float | None, Query(allow_inf_nan=False)] = None,
+        new_goods_sigma: Annotated[float | None, Query(allow_inf_nan=False)] = None,
+        weight_reference_period: Annotated[str | None, Query()] = None,
+        geks_window: Annotated[int | None, Query(ge=2)] = None,
+        geks_splice: Annotated[Literal["movement", "window", "half", "mean"] | None, Query()] = None,
+        span_start: Annotated[str | None, Query()] = None,
+        span_end: Annotated[str | None, Query()] = None,
+        loop: Annotated[str | None, Query(description="Comma-separated period labels.")] = None,
+        format: Annotated[Literal["json", "csv"] | None, Query()] = None,
+    ) -> Any:
+        options = options_from_query(dict(
+            base_period=base_period, reference_period=reference_period,
+            reference_value=reference_value, frequency=frequency, formulas=formulas, model=model,
+            lloyd_moulton_sigma=lloyd_moulton_sigma, new_goods_sigma=new_goods_sigma,
+            weight_reference_period=weight_reference_period, geks_window=geks_window,
+            geks_splice=geks_splice, span_start=span_start, span_end=span_end, loop=loop))
+        data = panel_from_csv(text, max_periods=settings.max_periods, max_items=settings.max_items,
+                              max_cells=settings.max_panel_cells)
+        run = run_series(data, options, max_tree_depth=settings.max_tree_depth)
+        return answer(run, request, format)
+
+    return r
+
+
+__all__ = ["Response", "router"]

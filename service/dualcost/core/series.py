@@ -1,0 +1,938 @@
+"""Index series over many periods: fixed-base and chained formula series beside the Konüs series
+of a model calibrated to the base period, with bias per period and per year, chain drift, GEKS
+series, items that come and go, and Lowe and Young series from an earlier weight-reference period.
+
+Definitions (``b`` the base, or price-reference, period; ``r`` the index reference period):
+
+- Fixed-base series of a formula ``P``: ``P(b, t)`` for every period ``t``, the direct comparison.
+- Chained series: the period-to-period links ``P(t-1, t)`` multiplied, ``C_t = prod_{k<=t} P(k-1, k)``,
+  divided by ``C_b`` so that it starts from the same base (CPI Manual 2004, 15.83-15.88 and ch. 9).
+- Both are published on the index reference period ``r``: ``100 X_t / X_r`` (or ``X_t / X_r``).
+- Konüs series of a model calibrated to the base budget (Konüs 1924), ``e`` its expenditure and
+  ``v`` its indirect utility function, ``u_t = v(p_t, m_t)`` with ``m_t`` period t's spending:
+  fixed base at base-period utility ``e(p_t, u_b) / e(p_b, u_b)`` (``base``), at the compared
+  period's utility ``e(p_t, u_t) / e(p_b, u_t)`` (``current``) and at the midpoint standard ``u*``
+  with ``e(p_b, u*) = (e(p_b, u_b) e(p_b, u_t))^(1/2)`` (``midpoint``); chained, each link
+  ``t-1 -> t`` at its own starting period's utility ``u_{t-1}`` (``base``), at ``u_t``
+  (``current``) or at their midpoint. For homothetic models all six coincide.
+- Bias of a series against the Konüs series its formula approximates (``compared_with``: base
+  for Laspeyres-type and unweighted formulas, current for Paasche, midpoint for the symmetric
+  ones; fixed base against fixed base, chained against chained): ``100 (P_t - K_t)`` index points
+  on reference 100, and ``100 (P_t / K_t - 1)`` percent.
+- Average annual bias over a span from period ``a`` to ``c`` of ``Y`` years
+  (``Y = (time_c - time_a) / periods per year``): the gap between the two average annual rates
+  of change, ``100 [ (P_c/P_a)^(1/Y) - (K_c/K_a)^(1/Y) ]``, in percentage points per year, the
+  way the trade reports substitution bias (e.g. Boskin et al. 1996).
+- Chain drift: ``100 (C_t / P(b, t) - 1)`` percent, chained against direct; circularity failure
+  over a loop of periods ``l_0, l_1, ..., l_k``: ``prod_j P(l_j, l_{j+1}) P(l_k, l_0) - 1``,
+  zero for a transitive index (Fisher 1922 called it the circular test; CPI Manual 2004, 15.76).
+
+Items that come and go (the matched-sample rule): every bilateral comparison, whether a fixed-base
+comparison, a chain link or a GEKS link, uses the items priced in both of its periods; an item
+priced in only one of them is left out of that comparison, which for each formula is the same as
+imputing the item's price change by the formula's own index over the matched items (``RULES``
+says so per formula). The answer lists every period and item concerned (``item_treatment``).
+The Feenstra (1994) series instead measures the gain from items that arrive and the loss from
+items that leave for a CES consumer (see :mod:`dualcost.core.new_goods`).
+
+Weight-reference period ``w`` before the price-reference period ``b`` (Lowe and Young series):
+the Lowe index prices the basket ``q_w``, ``sum p_t q_w / sum p_b q_w``; the Young index averages
+price relatives with period ``w``'s expenditure shares, ``sum s_w (p_t / p_b)``. Offices that keep
+the basket update the shares from ``w`` to ``b`` by the price change in between,
+``s_i^(w->b) = s_i^w (p_ib / p_iw) / sum_j s_j^w (p_jb / p_jw)``; the Young formula with these
+price-updated shares is the Lowe index (CPI Manual 2004, 15.33-15.37 and 9.9-9.16). The answer
+gives both sets of shares.
+"""
+
+from __future__ import annotations
+
+from collections.abc import Callable, Mapping, Sequence
+from dataclasses import dataclass, field
+from typing import Any
+
+import numpy as np
+
+from ._means import log_power_mean
+from .comparison import WeightReference
+from .errors import InvalidInput, NumericalFailure
+from .indices import FORMULAS, IndexData, Target
+from .multilateral import Splice, bilateral_log_matrix, geks, rolling_geks
+from .new_goods import check_new_goods_sigma, feenstra, sato_vartia_matched
+from .preferences import BaseBudget, Notice, Preferences, calibrate
+from .series_panel import PERIODS_PER_YEAR, Array, Mask, Panel
+
+#: The series name of Feenstra's (1994) CES new-goods adjustment, beside the formula names.
+FEENSTRA = "feenstra"
+#: The multilateral series, named like formulas so that ``formulas`` can ask for them.
+GEKS_SERIES: tuple[str, ...] = ("geks_fisher", "geks_tornqvist")
+SERIES_FORMULAS: tuple[str, ...] = (*FORMULAS, FEENSTRA, *GEKS_SERIES)
+TARGETS: tuple[Target, ...] = ("base", "current", "midpoint")
+
+#: Formulas that weight by quantities of the compared periods themselves.
+_NEEDS_PERIOD_QUANTITIES = frozenset(SERIES_FORMULAS) - {"carli", "jevons", "dutot", "lowe",
+                                                         "young"}
+_TITLES = {FEENSTRA: "Feenstra CES new-goods adjustment", "geks_fisher": "GEKS on Fisher links",
+           "geks_tornqvist": "GEKS on Törnqvist links"}
+
+_MATCHED = ("Each comparison uses the items priced in both of its periods (matched sample); an "
+            "item priced in only one is left out of that comparison")
+
+GEKS_RULE = ("Each bilateral link between two periods uses the items priced in both (matched "
+             "sample), so an item counts in every pair of periods where it is priced.")
+
+#: The rule for items that come and go, per series, in words (see the module docstring).
+RULES: dict[str, str] = {
+    "geks_fisher": GEKS_RULE,
+    "geks_tornqvist": GEKS_RULE,
+    "laspeyres": f"{_MATCHED}: the same as imputing its price relative by the Laspeyres index of "
+                 "the matched items.",
+    "paasche": f"{_MATCHED}: the same as imputing its price relative by the Paasche index of the "
+               "matched items.",
+    "fisher": f"{_MATCHED}: Laspeyres and Paasche are both taken over the matched items.",
+    "tornqvist": f"{_MATCHED}; expenditure shares are taken over the matched items.",
+    "walsh": f"{_MATCHED}: both baskets are taken over the matched items.",
+    "marshall_edgeworth": f"{_MATCHED}: both baskets are taken over the matched items.",
+    "sato_vartia": f"{_MATCHED}; expenditure shares are taken over the matched items, and an item "
+                   "with a zero share in one period has no weight (the logarithmic mean's limit).",
+    "geometric_laspeyres": f"{_MATCHED}: the same as imputing its price relative by the geometric "
+                           "Laspeyres index of the matched items.",
+    "lloyd_moulton": f"{_MATCHED}: the same as imputing its price relative by the Lloyd-Moulton "
+                     "index of the matched items.",
+    "lowe": f"{_MATCHED}: the weight-reference basket is priced over the matched items.",
+    "young": f"{_MATCHED}: the weight-reference shares are rescaled to sum to one over the "
+             "matched items.",
+    "carli": f"{_MATCHED}: the same as imputing its price relative by the mean relative of the "
+             "matched items.",
+    "jevons": f"{_MATCHED}: the same as imputing its price relative by the geometric mean of the "
+              "matched items' relatives.",
+    "dutot": f"{_MATCHED}: average prices are taken over the matched items.",
+    FEENSTRA: "Items bought in both periods are common and priced by the Sato-Vartia index; an "
+              "item bought in only one enters through the common items' share of that period's "
+              "spending (Feenstra 1994), so arrivals lower the index and departures raise it.",
+}
+MODEL_RULE = ("The model is calibrated to the items priced in the base period; items first "
+              "priced later are outside it. A model item not priced in a period is valued at its "
+              "nearest observed price (the last earlier one, else the first later one), as "
+              "offices carry a temporarily missing price forward (CPI Manual 2004, ch. 7).")
+# -- results -----------------------------------------------------------------------------------
+
+
+@dataclass(frozen=True)
+class FormulaSeries:
+    """One formula's fixed-base and chained series (on the reference scale) and its links."""
+
+    name: str
+    title: str
+    target: Target
+    fixed_base: Array
+    chained: Array
+    links: Array  # P(t-1, t) for t = 1..T-1, as ratios
+    rule: str
+
+
+@dataclass(frozen=True)
+class KonusSeries:
+    """The model's Konüs series, fixed base and chained, at each living standard (see above)."""
+
+    family: str
+    homothetic: bool
+    fixed_base: dict[str, Array]
+    chained: dict[str, Array]
+    incomes: Array  # m_t, spending on the model's items
+    utilities: Array  # u_t = v(p_t, m_t), the model's own scale
+    items: tuple[int, ...]  # panel positions of the model's items
+    carried_from: Array  # (T, n_model): period whose price was used, -1 where priced
+    rule: str = MODEL_RULE
+
+
+@dataclass(frozen=True)
+class Multilateral:
+    """A GEKS series over the whole span, and rolling-window spliced where a window is set."""
+
+    name: str
+    link: str
+    full_span: Array
+    rolling: Array | None
+    window: int | None
+    splice: str
+    rule: str = GEKS_RULE
+
+
+@dataclass(frozen=True)
+class Bias:
+    """A series' gap to its Konüs series, per period."""
+
+    series: str
+    kind: str  # fixed_base | chained | full_span | rolling
+    compared_with: Target
+    points: Array
+    percent: Array
+
+
+@dataclass(frozen=True)
+class AnnualBias:
+    """Average annual rates of change over the span and their gap, in percentage points."""
+
+    series: str
+    kind: str
+    compared_with: Target
+    rate_percent: float
+    konus_rate_percent: float
+    bias_pp: float
+
+
+@dataclass(frozen=True)
+class Span:
+    start: int
+    end: int
+    years: float | None
+    frequency: str | None
+    periods_per_year: int | None
+
+
+@dataclass(frozen=True)
+class ChainDrift:
+    """Chained against direct per formula, and the circularity failure over a loop."""
+
+    drift_percent: dict[str, Array]
+    loop: tuple[int, ...]
+    loop_product: dict[str, float]
+    periods_with_base_prices: tuple[int, ...]
+
+
+@dataclass(frozen=True)
+class ItemTreatment:
+    """What was done with one item in one period (only the entries where it was not used fully).
+
+    ``fixed_base``: ``used`` or ``left_out`` of the comparison with the base period; ``chained``:
+    of the link from the previous period (``none`` in the first period); ``model``: ``used``,
+    ``price_carried`` (from period ``carried_from``), ``outside_model`` or ``no_model``.
+    """
+
+    period: int
+    item: int
+    priced: bool
+    fixed_base: str
+    chained: str
+    model: str
+    carried_from: int | None
+
+
+@dataclass(frozen=True)
+class WeightShares:
+    """Weight-reference shares and their price-updated form (``NaN`` where not defined)."""
+
+    period: int | None
+    shares: Array
+    price_updated: Array | None
+
+
+@dataclass(frozen=True)
+class IndexSeries:
+    """Everything :func:`index_series` returns; see the module docstring for each definition."""
+
+    periods: tuple[str, ...]
+    items: tuple[str, ...]
+    base: int
+    reference: int
+    reference_value: float
+    formulas: dict[str, FormulaSeries]
+    konus: KonusSeries | None
+    multilateral: list[Multilateral]
+    bias: list[Bias]
+    annual_bias: list[AnnualBias]
+    span: Span
+    chain_drift: ChainDrift
+    item_treatment: list[ItemTreatment]
+    weights: WeightShares | None
+    lloyd_moulton_sigma: float | None
+    new_goods_sigma: float | None
+    notices: list[Notice] = field(default_factory=list)
+
+
+# -- the model and its base budget ----------------------------------------------------------------
+
+
+def base_budget(panel: Panel, base: int) -> tuple[BaseBudget, tuple[int, ...]]:
+    """The base period's budget over the items priced in it, and those items' panel positions."""
+    if not panel.has_quantities[base]:
+        raise InvalidInput("quantities", f"the base period {panel.periods[base]!r} has prices "
+                           "only: the model is calibrated to the base budget, so give its "
+                           "quantities or expenditures", (base,))
+    items = tuple(int(i) for i in np.flatnonzero(panel.priced[base]))
+    idx = list(items)
+    return BaseBudget.from_quantities(panel.prices[base, idx], panel.quantities[base, idx]), items
+
+
+def calibrate_to_base(panel: Panel, base: int, family: str,
+                      parameters: Mapping[str, Any] | None = None) -> Preferences:
+    """Calibrate a family to the base period's budget (:func:`preferences.calibrate`)."""
+    budget, _ = base_budget(panel, base)
+    return calibrate(family, budget, parameters)
+
+
+# -- bilateral comparisons over matched items ------------------------------------------------------
+
+
+def _count(both: Mask) -> Array:
+    return np.sum(both, axis=-1).astype(np.float64)
+
+
+def _carli(p0: Array, p1: Array, both: Mask) -> Array:
+    """Mean of the matched items' relatives (Carli 1764; CPI Manual 2004, 20.32)."""
+    return np.asarray(np.sum(np.where(both, p1 / p0, 0.0), axis=-1) / _count(both))
+
+
+def _jevons(p0: Array, p1: Array, both: Mask) -> Array:
+    """Geometric mean of the matched items' relatives (Jevons 1863; CPI Manual 2004, 20.35)."""
+    return np.asarray(np.exp(np.sum(np.where(both, np.log(p1 / p0), 0.0), axis=-1) / _count(both)))
+
+
+def _dutot(p0: Array, p1: Array, both: Mask) -> Array:
+    """Ratio of the matched items' average prices (Dutot 1738; CPI Manual 2004, 20.30)."""
+    return np.asarray(np.sum(np.where(both, p1, 0.0), axis=-1) / np.sum(np.where(both, p0, 0.0),
+                                                                         axis=-1))
+
+
+@dataclass(frozen=True)
+class _Weights:
+    quantities: Array | None
+    shares: Array | None
+
+
+def _compare(
+    name: str,
+    p0: Array,
+    p1: Array,
+    q0: Array,
+    q1: Array,
+    both: Mask,
+    weights: _Weights,
+    sigma: float | None,
+    new_goods_sigma: float | None,
+    priced0: Mask,
+    priced1: Mask,
+) -> Array:
+    """``P(0, 1)`` along leading axes, over matched items; ``NaN`` where undefined.
+
+    Prices are filled (1 where not priced) and quantities are 0 where not priced.
+    """
+    with np.errstate(divide="ignore", invalid="ignore", over="ignore"):
+        if name == FEENSTRA:
+            assert new_goods_sigma is not None
+            return feenstra(p0, p1, q0, q1, priced0, priced1, new_goods_sigma).index
+        if name == "carli":
+            return _carli(p0, p1, both)
+        if name == "jevons":
+            return _jevons(p0, p1, both)
+        if name == "dutot":
+            return _dutot(p0, p1, both)
+        if name == "sato_vartia":
+            return sato_vartia_matched(p0, p1, q0, q1, both)
+        qb = wb = None
+        if weights.quantities is not None:
+            qb = np.where(both, weights.quantities, 0.0)
+        if weights.shares is not None:
+            wb = np.where(both, weights.shares, 0.0)
+            wb = wb / np.sum(wb, axis=-1, keepdims=True)
+        data = IndexData(p0=np.where(both, p0, 1.0), p1=np.where(both, p1, 1.0),
+                         q0=np.where(both, q0, 0.0), q1=np.where(both, q1, 0.0),
+                         weight_quantities=qb, weight_shares=wb, sigma=sigma)
+        return np.asarray(FORMULAS[name].compute(data), dtype=np.float64)
+
+
+def _check_defined(values: Array, name: str, pairs: Sequence[tuple[int, int]],
+                   periods: Sequence[str]) -> None:
+    bad = np.flatnonzero(~(np.isfinite(values) & (values > 0.0)))
+    if bad.size:
+        s, t = pairs[int(bad[0])]
+        raise InvalidInput("prices", f"the {_title(name)} index from period {periods[s]!r} to "
+                           f"{periods[t]!r} is undefined: the two periods have no item priced in "
+                           "both with the quantities or weights this formula needs", (t,))
+
+
+class _Comparer:
+    """Bilateral comparisons between any pairs of periods of one panel, per formula."""
+
+    def __init__(self, panel: Panel, quantities: Array, weights: _Weights, sigma: float | None,
+                 new_goods_sigma: float | None) -> None:
+        self.panel = panel
+        self.prices = panel.filled_prices()
+        self.quantities = quantities
+        self.weights = weights
+        self.sigma = sigma
+        self.new_goods_sigma = new_goods_sigma
+
+    def __call__(self, name: str, pairs: Sequence[tuple[int, int]]) -> Array:
+        s = np.fromiter((a for a, _ in pairs), dtype=np.intp, count=len(pairs))
+        t = np.fromiter((b for _, b in pairs), dtype=np.intp, count=len(pairs))
+        pr = self.panel.priced
+        values = _compare(name, self.prices[s], self.prices[t], self.quantities[s],
+                          self.quantities[t], pr[s] & pr[t], self.weights, self.sigma,
+                          self.new_goods_sigma, pr[s], pr[t])
+        _check_defined(values, name, pairs, self.panel.periods)
+        return values
+
+
+# -- Konüs series -------------------------------------------------------------------------------
+
+
+def _carry_prices(panel: Panel, items: Sequence[int]) -> tuple[Array, Array]:
+    """Prices of the model's items with each gap filled by the nearest observed price."""
+    idx = list(items)
+    prices = panel.prices[:, idx]
+    priced = panel.priced[:, idx]
+    n_t = prices.shape[0]
+    rows = np.arange(n_t)[:, None]
+    last = np.maximum.accumulate(np.where(priced, rows, -1), axis=0)
+    nxt = np.minimum.accumulate(np.where(priced, rows, n_t)[::-1], axis=0)[::-1]
+    source = np.where(last >= 0, last, nxt)
+    cols = np.arange(prices.shape[1])[None, :]
+    filled = prices[source, cols]
+    return filled, np.where(priced, -1, source)
+
+
+def _vector_log_unit_costs(model: Preferences, prices: Array) -> Array | None:
+    """``ln c(p_t)`` for all periods at once, for the families whose unit cost is a power mean.
+
+    Returns ``None`` for other families (they are evaluated one period at a time) or when the
+    family no longer exposes what this needs; the caller checks the result against the family's
+    own expenditure function.
+    """
+    shares = getattr(model, "shares", None)
+    ref = getattr(model, "reference_prices", None)
+    if shares is None or ref is None or model.family not in ("ces", "cobb_douglas"):
+        return None
+    log_rel = np.log(prices) - np.log(np.asarray(ref))
+    if model.family == "cobb_douglas":
+        return np.asarray(log_rel @ np.asarray(shares))
+    sigma = getattr(model, "sigma", None)
+    if sigma is None:
+        return None
+    return np.asarray(log_power_mean(log_rel, np.asarray(shares), 1.0 - float(sigma)))
+
+
+def _homothetic_costs(model: Preferences, prices: Array, u: float) -> Array:
+    """``e(p_t, u)`` for every period, vectorised where the family allows."""
+    fast = _vector_log_unit_costs(model, prices)
+    if fast is not None:
+        values = u * np.exp(fast)
+        check = [0, prices.shape[0] - 1]
+        own = np.array([model.expenditure(prices[t], u) for t in check])
+        if np.allclose(values[check], own, rtol=1e-10, atol=0.0):
+            return np.asarray(values)
+    return np.array([model.expenditure(prices[t], u) for t in range(prices.shape[0])])
+
+
+def _at_period(panel: Panel, t: int, fn: Callable[[], float]) -> float:
+    try:
+        value = fn()
+    except InvalidInput as exc:
+        raise InvalidInput("prices", f"the model cannot be evaluated at period "
+                           f"{panel.periods[t]!r}: {exc.rule}", (t,)) from exc
+    return float(value)
+
+
+def _chain(links: Array, base: int) -> Array:
+    levels = np.concatenate(([1.0], np.cumprod(links)))
+    return np.asarray(levels / levels[base])
+
+
+def konus_series(model: Preferences, panel: Panel, base: int, quantities: Array,
+                 items: Sequence[int]) -> KonusSeries:
+    """The model's Konüs series, fixed base and chained (module docstring), on base = 1."""
+    if model.n_items != len(items):
+        raise InvalidInput("model", f"the model has {model.n_items} items but the base period "
+                           f"prices {len(items)}")
+    pm, carried = _carry_prices(panel, items)
+    idx = list(items)
+    spent = np.sum(np.where(panel.priced[:, idx], np.nan_to_num(panel.prices[:, idx]), 0.0)
+                   * quantities[:, idx], axis=1)
+    m = np.where(panel.has_quantities, spent, spent[base])
+    for t in range(panel.n_periods):
+        floor = model.income_floor(pm[t])
+        if m[t] <= floor:
+            raise InvalidInput("quantities", f"spending on the model's items in period "
+                               f"{panel.periods[t]!r} ({m[t]:.10g}) does not exceed the model's "
+                               f"subsistence cost {floor:.10g} at that period's prices", (t,))
+    e, v = model.expenditure, model.indirect_utility
+    n_t = panel.n_periods
+    u_b = _at_period(panel, base, lambda: v(pm[base], m[base]))
+    if model.homothetic:
+        costs = _homothetic_costs(model, pm, u_b)
+        fixed = costs / costs[base]
+        chained = _chain(costs[1:] / costs[:-1], base)
+        utilities = m / (costs / u_b)
+        return KonusSeries(model.family, True, {k: fixed for k in TARGETS},
+                           {k: chained for k in TARGETS}, m, utilities, tuple(items), carried)
+    u = np.array([_at_period(panel, t, lambda t=t: v(pm[t], m[t])) for t in range(n_t)])
+    fixed_b, fixed_c, fixed_m = np.empty(n_t), np.empty(n_t), np.empty(n_t)
+    e_bb = _at_period(panel, base, lambda: e(pm[base], u_b))
+    for t in range(n_t):
+        e_bt = _at_period(panel, t, lambda t=t: e(pm[base], u[t]))
+        fixed_b[t] = _at_period(panel, t, lambda t=t: e(pm[t], u_b)) / e_bb
+        fixed_c[t] = _at_period(panel, t, lambda t=t: e(pm[t], u[t])) / e_bt
+        fixed_m[t] = _midpoint(panel, t, model, pm[base], pm[t], e_bb, e_bt)
+    links = np.empty((3, n_t - 1))
+    for t in range(1, n_t):
+        e_ss = _at_period(panel, t, lambda t=t: e(pm[t - 1], u[t - 1]))
+        e_st = _at_period(panel, t, lambda t=t: e(pm[t - 1], u[t]))
+        links[0, t - 1] = _at_period(panel, t, lambda t=t: e(pm[t], u[t - 1])) / e_ss
+        links[1, t - 1] = _at_period(panel, t, lambda t=t: e(pm[t], u[t])) / e_st
+        links[2, t - 1] = _midpoint(panel, t, model, pm[t - 1], pm[t], e_ss, e_st)
+    result = KonusSeries(model.family, False, {"base": fixed_b, "current": fixed_c,
+                                               "midpoint": fixed_m},
+                         {k: _chain(links[j], base) for j, k in enumerate(TARGETS)}, m, u,
+                         tuple(items), carried)
+    _check_finite_konus(result)
+    return result
+
+
+def _midpoint(panel: Panel, t: int, model: Preferences, p_from: Array, p_to: Array,
+              e_own: float, e_other: float) -> float:
+    """Konüs index at the standard whose cost at ``p_from`` is the geometric mean of the two."""
+    m_star = float(np.sqrt(e_own * e_other))
+    u_star = _at_period(panel, t, lambda: model.indirect_utility(p_from, m_star))
+    return _at_period(panel, t, lambda: model.expenditure(p_to, u_star)) / _at_period(
+        panel, t, lambda: model.expenditure(p_from, u_star))
+
+
+def _check_finite_konus(k: KonusSeries) -> None:
+    for kind in (k.fixed_base, k.chained):
+        for target, values in kind.items():
+            if not np.all(np.isfinite(values) & (values > 0.0)):
+                raise NumericalFailure("konus", f"the model's Konüs series ({target} standard) "
+                                       "left the floating-point range; check the magnitudes")
+
+
+# -- options ------------------------------------------------------------------------------------
+
+
+def _weights(panel: Panel, quantities: Array, weight_reference: WeightReference | int | None,
+             base: int) -> tuple[_Weights, WeightShares | None]:
+    """Lowe's basket and Young's shares, and the shares price-updated to the base period."""
+    if weight_reference is None:
+        return _Weights(None, None), None
+    prices = panel.filled_prices()
+    period: int | None = None
+    if isinstance(weight_reference, (int, np.integer)):
+        period = int(weight_reference)
+        if period > base:
+            raise InvalidInput("weight_reference", f"the weight-reference period "
+                               f"{panel.periods[period]!r} is later than the base period "
+                               f"{panel.periods[base]!r}; it must be the base or earlier")
+        if not panel.has_quantities[period]:
+            raise InvalidInput("weight_reference", f"the weight-reference period "
+                               f"{panel.periods[period]!r} has prices only; its basket needs "
+                               "quantities or expenditures")
+        qb = np.where(panel.priced[period], quantities[period], 0.0)
+        pb = prices[period]
+        wb = pb * qb / float(pb @ qb)
+    else:
+        qb, wb, pb = weight_reference.quantities, weight_reference.shares, weight_reference.prices
+        if qb is not None and wb is None and pb is not None:
+            wb = pb * qb / float(pb @ qb)
+    shares = wb if wb is not None else np.full(panel.n_items, np.nan)
+    updated = None
+    if qb is not None:
+        # Price-updated shares s^(w->b) are proportional to s^w p_b / p_w = p_b q_w.
+        at_base = panel.priced[base]
+        value = np.where(at_base, prices[base] * qb, 0.0)
+        total = float(value.sum())
+        if total > 0.0:
+            updated = np.where(at_base, value / total, np.nan)
+    return _Weights(qb, wb), WeightShares(period, shares, updated)
+
+
+def _title(name: str) -> str:
+    return FORMULAS[name].title if name in FORMULAS else _TITLES[name]
+
+
+def _needs(name: str, available: dict[str, bool]) -> str | None:
+    if name == FEENSTRA and not available["new_goods_sigma"]:
+        return "an elasticity of substitution above 1 (new_goods_sigma, or a model with one)"
+    why = {
+        "sigma": "an elasticity of substitution (lloyd_moulton_sigma; the model has no single one)",
+        "weight_quantities": "a weight-reference basket (a weight-reference period, or quantities)",
+        "weight_shares": "weight-reference shares (a weight-reference period, or shares)",
+    }
+    for need in FORMULAS[name].needs if name in FORMULAS else ():
+        if not available[need]:
+            return why[need]
+    if name in _NEEDS_PERIOD_QUANTITIES and not available["quantities"]:
+        return ("quantities in every period (some periods have prices only; give a model to "
+                "fill them in with its demands)")
+    return None
+
+
+def _choose_formulas(requested: Sequence[str] | None, available: dict[str, bool],
+                     notices: list[Notice]) -> list[str]:
+    explicit = requested is not None
+    names = list(requested) if requested is not None else list(SERIES_FORMULAS)
+    seen: set[str] = set()
+    chosen = []
+    for i, name in enumerate(names):
+        if name not in SERIES_FORMULAS:
+            raise InvalidInput("formulas", f"unknown series formula {name!r}; known: "
+                               f"{', '.join(SERIES_FORMULAS)}", i)
+        if name in seen:
+            raise InvalidInput("formulas", f"formula {name!r} is named twice", i)
+        seen.add(name)
+        missing = _needs(name, available)
+        if missing is None:
+            chosen.append(name)
+            continue
+        text = f"The {_title(name)} series needs {missing}"
+        if explicit:
+            raise InvalidInput("formulas", text + ", which was not given.", i)
+        notices.append(Notice("formula_not_computed", text + "; it was left out."))
+    return chosen
+
+
+def _fill_quantities(panel: Panel, model: Preferences | None, items: Sequence[int], base: int,
+                     notices: list[Notice]) -> Array:
+    """Observed quantities; in prices-only periods, the model's demands at base income."""
+    q = panel.quantities.copy()
+    missing = np.flatnonzero(~panel.has_quantities)
+    if model is None or not missing.size:
+        return q
+    pm, _ = _carry_prices(panel, items)
+    idx = np.asarray(items)
+    m_b = float(np.nansum(panel.prices[base, idx] * panel.quantities[base, idx]))
+    for t in (int(x) for x in missing):
+        try:
+            demand = model.marshallian(pm[t], m_b)
+        except InvalidInput as exc:
+            raise InvalidInput("prices", f"the model cannot be evaluated at period "
+                               f"{panel.periods[t]!r}: {exc.rule}", (t,)) from exc
+        q[t, idx] = np.where(panel.priced[t, idx], demand, 0.0)
+    shown = ", ".join(repr(panel.periods[t]) for t in missing[:10])
+    notices.append(Notice("quantities_from_model", f"Periods {shown}{' ...' if missing.size > 10 else ''} "
+                          "have prices only: their quantities are the model's demands at that "
+                          "period's prices and the base period's spending; items outside the "
+                          "model get quantity 0 there."))
+    return q
+
+
+# -- the series ---------------------------------------------------------------------------------
+
+
+def index_series(
+    panel: Panel,
+    *,
+    base: int = 0,
+    reference: int | None = None,
+    reference_value: float = 100.0,
+    formulas: Sequence[str] | None = None,
+    model: Preferences | None = None,
+    lloyd_moulton_sigma: float | None = None,
+    weight_reference: WeightReference | int | None = None,
+    new_goods_sigma: float | None = None,
+    geks_window: int | None = None,
+    geks_splice: Splice = "movement",
+    span: tuple[int, int] | None = None,
+    loop: Sequence[int] | None = None,
+) -> IndexSeries:
+    """Formula, Konüs and GEKS series over a panel, with bias, chain drift and item treatment.
+
+    Parameters
+    ----------
+    panel:
+        The checked panel (:meth:`Panel.checked`).
+    base:
+        Position of the base (price-reference) period; the model must be calibrated to it
+        (:func:`calibrate_to_base`).
+    reference, reference_value:
+        The index reference period (default: the base) and its value, 1 or 100.
+    formulas:
+        Names from ``SERIES_FORMULAS`` (default: every one the data allow; the others are left
+        out with a notice).
+    model:
+        A preference family calibrated to the base period, for the Konüs series and the bias.
+    lloyd_moulton_sigma, new_goods_sigma:
+        Elasticities for the Lloyd-Moulton and Feenstra series (default: the model's own, the
+        latter only when above 1).
+    weight_reference:
+        The weight-reference period (a position, at or before the base) or an explicit basket,
+        for the Lowe and Young series.
+    geks_window, geks_splice:
+        Rolling GEKS window in periods (default: a year and one period, 13 months, when the
+        frequency is known) and the splice (``movement``, ``window``, ``half``, ``mean``).
+    span:
+        First and last period of the average annual bias (default: the whole panel).
+    loop:
+        Periods of the circularity check (default: the span in order, closing back to its start).
+    """
+    n_t = panel.n_periods
+    if n_t < 2:
+        raise InvalidInput("periods", "a series needs at least two periods")
+    _check_position("base_period", base, n_t)
+    ref = base if reference is None else reference
+    _check_position("reference_period", ref, n_t)
+    scale = float(reference_value)
+    if not np.isfinite(scale) or scale <= 0.0:
+        raise InvalidInput("reference_value", f"must be greater than zero, got {scale:g}")
+    notices: list[Notice] = []
+
+    items: tuple[int, ...] = ()
+    if model is not None:
+        budget, items = base_budget(panel, base)
+        notices.extend(budget.notices)
+        notices.extend(model.calibration_notices)
+    quantities = _fill_quantities(panel, model, items, base, notices)
+    wts, weight_shares = _weights(panel, quantities, weight_reference, base)
+
+    lm_sigma = lloyd_moulton_sigma
+    if lm_sigma is None and model is not None:
+        lm_sigma = model.substitution_elasticity
+    elif lm_sigma is not None and (not np.isfinite(lm_sigma) or lm_sigma < 0.0):
+        raise InvalidInput("lloyd_moulton_sigma", "an elasticity of substitution must be a "
+                           f"finite number, zero or more, got {lm_sigma:g}")
+    ng_sigma = new_goods_sigma
+    if ng_sigma is not None:
+        ng_sigma = check_new_goods_sigma("new_goods_sigma", ng_sigma)
+    elif model is not None and (model.substitution_elasticity or 0.0) > 1.0:
+        ng_sigma = model.substitution_elasticity
+    available = {
+        "sigma": lm_sigma is not None,
+        "weight_quantities": wts.quantities is not None,
+        "weight_shares": wts.shares is not None,
+        "new_goods_sigma": ng_sigma is not None,
+        "quantities": bool(panel.has_quantities.all()) or model is not None,
+    }
+    names = _choose_formulas(formulas, available, notices)
+
+    compare = _Comparer(panel, quantities, wts, lm_sigma, ng_sigma)
+    fixed_pairs = [(base, t) for t in range(n_t)]
+    link_pairs = [(t - 1, t) for t in range(1, n_t)]
+    raw: dict[str, tuple[Array, Array, Array]] = {}
+    for name in (n for n in names if n not in GEKS_SERIES):
+        fixed = compare(name, fixed_pairs)
+        links = compare(name, link_pairs)
+        raw[name] = (fixed / fixed[base], _chain(links, base), links)
+
+    konus = None
+    if model is not None:
+        konus = konus_series(model, panel, base, quantities, items)
+        if model.homothetic:
+            notices.append(Notice("homothetic", f"The {model.family} model is homothetic: its "
+                                  "Konüs series is the same at every living standard, and its "
+                                  "chained and fixed-base series agree."))
+
+    geks_links = [n.removeprefix("geks_") for n in names if n in GEKS_SERIES]
+    multilateral = _multilateral(panel, quantities, base, geks_links, geks_window, geks_splice,
+                                 explicit=formulas is not None, notices=notices)
+
+    def published(values: Array) -> Array:
+        return np.asarray(scale * values / values[ref])
+
+    series = {
+        name: FormulaSeries(name, _title(name),
+                            FORMULAS[name].target if name in FORMULAS else "midpoint",
+                            published(fixed), published(chained), links, RULES[name])
+        for name, (fixed, chained, links) in raw.items()
+    }
+    geks_out = [Multilateral(g.name, g.link, published(g.full_span),
+                             None if g.rolling is None else published(g.rolling), g.window,
+                             g.splice) for g in multilateral]
+    konus_out = None
+    if konus is not None:
+        konus_out = KonusSeries(konus.family, konus.homothetic,
+                                {k: published(v) for k, v in konus.fixed_base.items()},
+                                {k: published(v) for k, v in konus.chained.items()},
+                                konus.incomes, konus.utilities, konus.items, konus.carried_from)
+
+    the_span = _span(panel, span, notices)
+    bias, annual = _bias(series, geks_out, konus_out, the_span, scale)
+    if konus_out is None:
+        notices.append(Notice("no_model", "No model was given: the Konüs series and the bias "
+                              "are not computed."))
+    drift = _drift(compare, raw, multilateral, panel, base, the_span, loop)
+    treatment = item_treatment(panel, base, konus)
+    return IndexSeries(
+        periods=panel.periods, items=panel.items, base=base, reference=ref,
+        reference_value=scale, formulas=series, konus=konus_out, multilateral=geks_out,
+        bias=bias, annual_bias=annual, span=the_span, chain_drift=drift,
+        item_treatment=treatment, weights=weight_shares, lloyd_moulton_sigma=lm_sigma,
+        new_goods_sigma=ng_sigma, notices=notices)
+
+
+def _check_position(name: str, position: int, n_t: int) -> None:
+    if not 0 <= position < n_t:
+        raise InvalidInput(name, f"position {position} is outside the panel's {n_t} periods")
+
+
+def _multilateral(panel: Panel, quantities: Array, base: int, links: Sequence[str],
+                  window: int | None, splice: Splice, *, explicit: bool,
+                  notices: list[Notice]) -> list[Multilateral]:
+    n_t = panel.n_periods
+    if not links:
+        return []
+    if window is None and panel.frequency is not None:
+        # A year and one period, as Ivancic, Diewert and Fox (2011) used 13 months; a shorter
+        # panel is one window.
+        window = min(PERIODS_PER_YEAR[panel.frequency] + 1, n_t)
+    if window is not None:
+        if window < 2:
+            raise InvalidInput("geks_window", f"a GEKS window needs at least 2 periods, got "
+                               f"{window}")
+        if window > n_t:
+            raise InvalidInput("geks_window", f"the window of {window} periods is longer than the "
+                               f"panel's {n_t} periods")
+    else:
+        notices.append(Notice("rolling_geks_not_computed", "The frequency is not known (period "
+                              "labels are not dates and none was given), so no rolling GEKS "
+                              "window was chosen; give geks_window to get one."))
+    if window is not None and window == n_t:
+        notices.append(Notice("rolling_geks_whole_span", f"The GEKS window of {window} periods "
+                              "covers the whole panel: the rolling series is the full-span one."))
+    out = []
+    for link in links:
+        try:
+            g = bilateral_log_matrix(panel.prices, quantities, panel.priced, link,  # type: ignore[arg-type]
+                                     panel.periods)
+        except InvalidInput as exc:
+            if explicit:
+                raise
+            notices.append(Notice("formula_not_computed", f"The GEKS series on {link} links was "
+                                  f"left out: {exc.rule}."))
+            continue
+        full = geks(g, base)
+        rolling = None
+        if window is not None:
+            r = rolling_geks(g, window, splice)
+            rolling = r / r[base]
+        out.append(Multilateral(f"geks_{link}", link, full, rolling, window, splice))
+    return out
+
+
+def _span(panel: Panel, span: tuple[int, int] | None, notices: list[Notice]) -> Span:
+    n_t = panel.n_periods
+    a, c = span if span is not None else (0, n_t - 1)
+    _check_position("span", a, n_t)
+    _check_position("span", c, n_t)
+    if c <= a:
+        raise InvalidInput("span", f"the span must run forwards over at least two periods; it "
+                           f"runs from {panel.periods[a]!r} to {panel.periods[c]!r}")
+    freq = panel.frequency
+    if freq is None:
+        notices.append(Notice("annual_bias_not_computed", "The frequency is not known (period "
+                              "labels are not dates and none was given), so the average annual "
+                              "bias is not computed; give the frequency to get it."))
+        return Span(a, c, None, None, None)
+    ppy = PERIODS_PER_YEAR[freq]
+    return Span(a, c, float(panel.times[c] - panel.times[a]) / ppy, freq, ppy)
+
+
+def _annual_rate(values: Array, span: Span) -> float:
+    assert span.years is not None
+    return 100.0 * float(np.expm1(np.log(values[span.end] / values[span.start]) / span.years))
+
+
+def _bias(series: dict[str, FormulaSeries], multilateral: list[Multilateral],
+          konus: KonusSeries | None, span: Span,
+          scale: float) -> tuple[list[Bias], list[AnnualBias]]:
+    """Per-period and average annual bias; points are on reference 100 whatever the scale."""
+    if konus is None:
+        return [], []
+    bias: list[Bias] = []
+    annual: list[AnnualBias] = []
+    entries: list[tuple[str, str, Target, Array, Array]] = []
+    for f in series.values():
+        entries.append((f.name, "fixed_base", f.target, f.fixed_base, konus.fixed_base[f.target]))
+        entries.append((f.name, "chained", f.target, f.chained, konus.chained[f.target]))
+    for g in multilateral:
+        entries.append((g.name, "full_span", "midpoint", g.full_span, konus.fixed_base["midpoint"]))
+        if g.rolling is not None:
+            entries.append((g.name, "rolling", "midpoint", g.rolling,
+                            konus.fixed_base["midpoint"]))
+    for name, kind, target, values, k in entries:
+        bias.append(Bias(name, kind, target, 100.0 * (values - k) / scale,
+                         100.0 * (values / k - 1.0)))
+        if span.years is not None:
+            rate, k_rate = _annual_rate(values, span), _annual_rate(k, span)
+            annual.append(AnnualBias(name, kind, target, rate, k_rate, rate - k_rate))
+    return bias, annual
+
+
+def _drift(compare: _Comparer, raw: dict[str, tuple[Array, Array, Array]],
+           multilateral: list[Multilateral], panel: Panel, base: int, span: Span,
+           loop: Sequence[int] | None) -> ChainDrift:
+    n_t = panel.n_periods
+    if loop is None:
+        path = list(range(span.start, span.end + 1))
+    else:
+        path = list(loop)
+        for j, t in enumerate(path):
+            if not 0 <= t < n_t:
+                raise InvalidInput("loop", f"position {t} is outside the panel's {n_t} periods",
+                                   j)
+        if path and path[-1] == path[0]:
+            path = path[:-1]
+        if len(set(path)) < 2:
+            raise InvalidInput("loop", "a loop needs at least two different periods")
+    pairs = [(path[j], path[(j + 1) % len(path)]) for j in range(len(path))]
+    drift = {name: 100.0 * (chained / fixed - 1.0) for name, (fixed, chained, _) in raw.items()}
+    # Steps to the next period are chain links already computed; only the others are new.
+    forward = [b for a, b in pairs if b == a + 1]
+    others = [(a, b) for a, b in pairs if b != a + 1]
+    product = {}
+    for name, (_, _, links) in raw.items():
+        log_sum = float(np.sum(np.log(links[np.asarray(forward, dtype=np.intp) - 1])))
+        if others:
+            log_sum += float(np.sum(np.log(compare(name, others))))
+        product[name] = float(np.exp(log_sum))
+    for g in multilateral:
+        logs = np.log(g.full_span)
+        product[g.name] = float(np.exp(sum(logs[b] - logs[a] for a, b in pairs)))
+    prices = panel.filled_prices()
+    same = [t for t in range(n_t) if t != base and np.array_equal(panel.priced[t], panel.priced[base])
+            and np.allclose(prices[t], prices[base], rtol=1e-12, atol=0.0)]
+    return ChainDrift(drift, tuple(path), product, tuple(same))
+
+
+def item_treatment(panel: Panel, base: int, konus: KonusSeries | None) -> list[ItemTreatment]:
+    """One entry per period and item that some comparison left out or the model valued otherwise."""
+    priced = panel.priced
+    in_base = priced[base][None, :]
+    prev = np.vstack([np.ones((1, panel.n_items), dtype=bool), priced[:-1]])
+    fixed_out = ~(priced & in_base)
+    link_out = ~(priced & prev)
+    link_out[0] = ~priced[0]
+    flagged = fixed_out | link_out
+    # Per cell: -3 no model, -2 outside the model, -1 model price used, else the period whose
+    # price the model carried.
+    source = np.full(priced.shape, -3 if konus is None else -2, dtype=np.intp)
+    if konus is not None:
+        source[:, np.asarray(konus.items, dtype=np.intp)] = konus.carried_from
+    states = {-3: "no_model", -2: "outside_model", -1: "used"}
+    out = []
+    for t, i in np.argwhere(flagged).tolist():
+        code = int(source[t, i])
+        out.append(ItemTreatment(
+            period=t, item=i, priced=bool(priced[t, i]),
+            fixed_base="left_out" if fixed_out[t, i] else "used",
+            chained="none" if t == 0 else ("left_out" if link_out[t, i] else "used"),
+            model=states.get(code, "price_carried"),
+            carried_from=code if code >= 0 else None))
+    return out
+
+
+def describe_treatment(entry: ItemTreatment, periods: Sequence[str], base: int) -> str:
+    """One sentence saying what was done with an item in a period."""
+    label = periods[entry.period]
+    parts = []
+    if not entry.priced:
+        parts.append(f"not priced in {label}")
+    if entry.fixed_base == "left_out":
+        reason = "" if not entry.priced else f" (not priced in the base period {periods[base]})"
+        parts.append(f"left out of the comparison with the base period{reason}")
+    if entry.chained == "left_out":
+        reason = "" if not entry.priced else f" (not priced in {periods[entry.period - 1]})"
+        parts.append(f"left out of the link from {periods[entry.period - 1]}{reason}")
+    if entry.model == "price_carried" and entry.carried_from is not None:
+        parts.append(f"the model values it at its price of {periods[entry.carried_from]}")
+    elif entry.model == "outside_model":
+        parts.append("outside the model (not priced in the base period)")
+    text = "; ".join(parts)
+    return text[:1].upper() + text[1:] + "."
