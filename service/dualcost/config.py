@@ -39,3 +39,8 @@ class Settings(BaseSettings):
     max_periods: int = Field(1_000, ge=2, description="Most periods one index-series panel may carry.")
     max_panel_cells: int = Field(
         2_000_000, ge=1, description="Most periods times items (and CSV rows) in one panel.")
+    compute_deadline_seconds: float = Field(
+        10.0, gt=0, le=3600,
+        description="Seconds one request may spend in the numerical solves of the families without a "
+                    "closed form (demand systems integrated along a price path, utility formulas).",
+    )

@@ -17,7 +17,7 @@ from fastapi.exceptions import RequestValidationError
 from fastapi.responses import JSONResponse, PlainTextResponse
 from starlette.exceptions import HTTPException as StarletteHTTPException
 
-from ..core.errors import InvalidInput, NumericalFailure
+from ..core.errors import DeadlineExceeded, InvalidInput, NumericalFailure
 
 PROBLEM_MEDIA_TYPE = "application/problem+json"
 log = logging.getLogger("dualcost.api")
@@ -172,7 +172,8 @@ async def _on_invalid_input(request: Request, exc: InvalidInput) -> JSONResponse
 
 
 async def _on_numerical_failure(request: Request, exc: NumericalFailure) -> JSONResponse:
-    return problem_response("numerical-failure", str(exc), instance=request.url.path)
+    slug = "deadline-exceeded" if isinstance(exc, DeadlineExceeded) else "numerical-failure"
+    return problem_response(slug, str(exc), instance=request.url.path)
 
 
 async def _on_http_error(request: Request, exc: StarletteHTTPException) -> JSONResponse:

@@ -5,7 +5,8 @@
     DualcostError                 every error the core raises on purpose
      ├── InvalidInput             an argument breaks a stated rule (sign, shape, adding-up, domain)
      └── NumericalFailure         valid inputs, but the evaluation left the finite floating-point range
-                                  or an iterative step did not converge
+          │                       or an iterative step did not converge
+          └── DeadlineExceeded    an iterative solve ran past the compute deadline it was given
 
 The core never knows an HTTP status; ``dualcost.api.problems`` is the one place that maps these
 classes to problem responses.
@@ -62,3 +63,7 @@ class NumericalFailure(DualcostError, ArithmeticError):
 
     def __str__(self) -> str:
         return f"{self.what}: {self.reason}"
+
+
+class DeadlineExceeded(NumericalFailure):
+    """An iterative solve ran past the compute deadline it was given."""

@@ -47,7 +47,8 @@ def router(settings: Settings) -> APIRouter:
         contribution to the Laspeyres gap."""
         with compute_time("compare"):
             result, model, axis = request.run(max_items=settings.max_items,
-                                              max_tree_depth=settings.max_tree_depth)
+                                              max_tree_depth=settings.max_tree_depth,
+                              compute_deadline_seconds=settings.compute_deadline_seconds)
         # Rendered here in one step from plain values: building and validating one response
         # object per item would cost more than the computation for large baskets. The document
         # has the shape of ComparisonResponse (checked by the tests and the schema fuzzing).

@@ -83,7 +83,8 @@ class ComparisonRequest(StrictModel):
     normalise_shares: bool = Field(
         False, description="Divide base shares by their sum when it is not 1; the answer says so.")
 
-    def run(self, *, max_items: int, max_tree_depth: int) -> tuple[Comparison, Preferences, ItemAxis]:
+    def run(self, *, max_items: int, max_tree_depth: int, compute_deadline_seconds: float | None = None,
+            ) -> tuple[Comparison, Preferences, ItemAxis]:
         """Translate to core calls; core errors come back pointing at the request field."""
         axis = ItemAxis.from_request(self.items)
         if len(axis) > max_items:
@@ -105,7 +106,8 @@ class ComparisonRequest(StrictModel):
                 ptr.note("q0", "/base/shares", b.shares)
                 budget = BaseBudget.from_shares(p0, axis.vector(b.shares, "/base/shares"),
                                                 b.expenditure, normalise=self.normalise_shares)
-        model = model_to_core(self.model, budget, axis, ptr, max_tree_depth=max_tree_depth)
+        model = model_to_core(self.model, budget, axis, ptr, max_tree_depth=max_tree_depth,
+                              compute_deadline_seconds=compute_deadline_seconds)
 
         ptr.note("p1", "/current/prices", c.prices)
         p1 = axis.vector(c.prices, "/current/prices")

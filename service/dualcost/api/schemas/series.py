@@ -416,7 +416,8 @@ def _period(panel: Panel, locator: Locator, name: str, label: Any, default: int)
         return panel.period_index(name, None if label is None else str(label), default)
 
 
-def run_series(data: PanelInput, options: SeriesOptions, *, max_tree_depth: int) -> SeriesRun:
+def run_series(data: PanelInput, options: SeriesOptions, *, max_tree_depth: int,
+               compute_deadline_seconds: float | None = None) -> SeriesRun:
     """Check the panel, calibrate the model to the base period and compute the series."""
     loc = data.locator
     with loc.translating():
@@ -459,7 +460,8 @@ def run_series(data: PanelInput, options: SeriesOptions, *, max_tree_depth: int)
         ptr = Pointers(sub)
         loc.model_pointers = ptr
         try:
-            model = model_to_core(options.model, budget, sub, ptr, max_tree_depth=max_tree_depth)
+            model = model_to_core(options.model, budget, sub, ptr, max_tree_depth=max_tree_depth,
+                                  compute_deadline_seconds=compute_deadline_seconds)
         except RequestProblem as problem:
             raise loc.rewrite(problem) from problem
     with loc.translating():

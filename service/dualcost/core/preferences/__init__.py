@@ -13,6 +13,8 @@ from .aids import AIDS, QUAIDS
 from .base import BaseBudget, Notice, ParameterSpec, Preferences
 from .ces import CES
 from .cobb_douglas import CobbDouglas
+from .demand_system import DemandSystem
+from .formula_utility import UtilityFormula
 from .nested_ces import NestedCES
 from .quadratic import HomogeneousQuadratic
 from .stone_geary import StoneGeary
@@ -29,6 +31,8 @@ FAMILIES: dict[str, type[Preferences]] = {
         HomogeneousQuadratic,
         AIDS,
         QUAIDS,
+        DemandSystem,
+        UtilityFormula,
     )
 }
 
@@ -60,6 +64,7 @@ __all__ = [
     "BaseBudget",
     "CES",
     "CobbDouglas",
+    "DemandSystem",
     "NestedCES",
     "HomogeneousQuadratic",
     "Notice",
@@ -68,5 +73,6 @@ __all__ = [
     "QUAIDS",
     "StoneGeary",
     "Translog",
+    "UtilityFormula",
     "calibrate",
 ]
