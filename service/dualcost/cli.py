@@ -24,6 +24,26 @@ def _parser() -> argparse.ArgumentParser:
                        help="worker processes (default %(default)s)")
     serve.add_argument("--log-level", default="info",
                        choices=["critical", "error", "warning", "info", "debug"])
+    check = sub.add_parser(
+        "check", help="recompute published index numbers from their panel; exit 1 if one differs",
+        description="Recompute a pipeline's published index numbers from the prices and "
+                    "quantities they were computed from, print a table, optionally write JUnit "
+                    "XML, and exit 0 (all agree), 1 (a value differs) or 2 (inputs unreadable).")
+    check.add_argument("published", help="published values: CSV (formula,period,value[,series]) "
+                       "or JSON")
+    check.add_argument("panel", help="the panel: long-form CSV (period,item,price[,quantity]"
+                       "[,expenditure]) or the JSON body of POST /v1/index-series")
+    check.add_argument("--base-period", help="base (price-reference) period (default: the first)")
+    check.add_argument("--reference-period", help="index reference period (default: the base)")
+    check.add_argument("--reference-value", type=int, choices=[1, 100],
+                       help="value of the series in the reference period (default 100)")
+    check.add_argument("--model", help="a preference model as JSON, if the published figures "
+                       "include model-based ones")
+    check.add_argument("--tolerance", type=float, help="absolute tolerance (default: half a unit "
+                       "in the last published decimal place)")
+    check.add_argument("--url", help="check against a running service instead of in process")
+    check.add_argument("--api-key", help="API key for --url (or set DUALCOST_API_KEY)")
+    check.add_argument("--junit", help="write a JUnit XML report to this file")
     return parser
 
 
@@ -58,6 +78,12 @@ def main(argv: Sequence[str] | None = None) -> int:
     args = _parser().parse_args(argv)
     if args.command == "serve":
         return serve(args.host, args.port, args.workers, args.log_level)
+    if args.command == "check":
+        from .pipeline_check import check
+
+        if args.api_key is None:
+            args.api_key = os.environ.get("DUALCOST_API_KEY")
+        return check(args)
     return 2  # pragma: no cover - argparse has already refused unknown commands
 
 

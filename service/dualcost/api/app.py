@@ -18,7 +18,7 @@ from .access import AccessControlMiddleware, load_keys
 from .limits import BodySizeLimitMiddleware
 from .observability import RequestContextMiddleware
 from .openapi import problem_openapi
-from .routes import catalogue, comparisons, series, service, spreadsheet
+from .routes import audit, catalogue, comparisons, series, service, spreadsheet
 
 WEB_DIR = Path(__file__).resolve().parents[1] / "web"
 
@@ -80,6 +80,7 @@ def create_app(settings: Settings | None = None) -> FastAPI:
     app.add_middleware(RequestContextMiddleware)
     app.include_router(comparisons.router(settings))
     app.include_router(series.router(settings))
+    app.include_router(audit.router(settings))
     app.include_router(catalogue.router)
     app.include_router(service.router)
     app.include_router(spreadsheet.router)
