@@ -114,3 +114,15 @@ def test_liveness_and_readiness() -> None:
     with TestClient(app) as client:  # runs the start-up (lifespan), including the warm-up
         assert client.get("/live").json()["status"] == "ok"
         assert client.get("/ready").json()["status"] == "ready"
+
+
+def test_cors_origins_are_configurable_for_dashboards() -> None:
+    client = make(cors_origins=("https://dashboards.wrenmouth.example",))
+    r = client.options("/v1/comparisons", headers={
+        "origin": "https://dashboards.wrenmouth.example", "access-control-request-method": "POST",
+        "access-control-request-headers": "content-type"})
+    assert r.status_code == 200
+    assert r.headers["access-control-allow-origin"] == "https://dashboards.wrenmouth.example"
+    other = client.options("/v1/comparisons", headers={
+        "origin": "https://elsewhere.example", "access-control-request-method": "POST"})
+    assert "access-control-allow-origin" not in other.headers
