@@ -44,3 +44,14 @@ class Settings(BaseSettings):
         description="Seconds one request may spend in the numerical solves of the families without a "
                     "closed form (demand systems integrated along a price path, utility formulas).",
     )
+    max_households: int = Field(100_000, ge=1, description="Most households in one JSON request "
+                                "(larger batches: a household job with a CSV upload).")
+    household_chunk_rows: int | None = Field(None, ge=1, description="Household rows evaluated "
+                                             "together (default: about 128k numbers per chunk).")
+    max_household_jobs: int = Field(32, ge=1, description="Household jobs kept in memory.")
+    dask_scheduler: str | None = Field(None, description="Dask scheduler address (e.g. "
+                                       "tcp://10.0.0.5:8786) for large household jobs; unset: "
+                                       "everything runs in process.")
+    dask_min_households: int = Field(100_000, ge=1, description="Household jobs at least this "
+                                     "large go to the Dask cluster under engine=auto.")
+    dask_rows_per_task: int = Field(16_384, ge=1, description="Household rows per Dask task.")

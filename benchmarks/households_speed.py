@@ -1,0 +1,200 @@
+"""How fast a household batch runs: 10,000 households by 200 items under a CES model.
+
+Run: ``python benchmarks/households_speed.py`` (needs ``dualcost[cluster]`` for the last part).
+It prints, measured in the same run:
+
+- a baseline: bare numpy evaluation of the CES Konüs index, Laspeyres, Paasche, Fisher and
+  Törnqvist for every household, on the same arrays, written the direct way;
+- the core batch (:func:`dualcost.core.households.run_households`: row checks, the same indices
+  per household, Konüs indices at three living standards, CV, EV, biases, the Prais aggregates
+  and weighted quantiles), its ratio to the baseline (target: at most 2) and households per
+  second; and the chunk evaluation alone, without the summaries;
+- peak memory of one batch: the largest Python-heap allocation above the input (tracemalloc,
+  which numpy reports to), beside the size of the input shares;
+- the same job on a two-worker LocalCluster (two processes, one thread each), its ratio to the
+  in-process batch, and whether the two results are identical bit for bit;
+- the HTTP path of a household job in process: the CSV upload parsed, evaluated and streamed
+  back, in households per second.
+
+The machine is shared and noisy, so the ratios are the figures to compare between runs.
+"""
+
+from __future__ import annotations
+
+import resource
+import statistics
+import time
+import tracemalloc
+import warnings
+from collections.abc import Callable
+from typing import Any
+
+import numpy as np
+
+from dualcost.core.households import HouseholdJob, chunks_of, evaluate_chunk, run_households
+
+HOUSEHOLDS, ITEMS, SIGMA = 10_000, 200, 0.7
+FORMULAS = ["laspeyres", "paasche", "fisher", "tornqvist"]
+
+
+def scenario(seed: int = 6) -> dict[str, Any]:
+    """Invented shares (Dirichlet), incomes and prices moving by about +-10 %."""
+    rng = np.random.default_rng(seed)
+    p0 = rng.uniform(0.5, 20.0, ITEMS)
+    return {"p0": p0, "p1": p0 * np.exp(rng.normal(0.02, 0.1, ITEMS)),
+            "w": rng.dirichlet(np.full(ITEMS, 0.8), HOUSEHOLDS),
+            "m": rng.uniform(500.0, 6000.0, HOUSEHOLDS)}
+
+
+def baseline(s: dict[str, Any]) -> tuple[np.ndarray, ...]:
+    """The five indices in bare numpy: CES unit cost and shares, then the four formulas."""
+    p0, p1, w, m = s["p0"], s["p1"], s["w"], s["m"]
+    r = p1 / p0
+    t = 1.0 - SIGMA
+    terms = w * r**t
+    total = terms.sum(axis=1)
+    konus = total ** (1.0 / t)
+    w1 = terms / total[:, None]
+    q0 = w * (m / 1.0)[:, None] / p0
+    q1 = w1 * m[:, None] / p1
+    lasp = (q0 * p1).sum(axis=1) / (q0 * p0).sum(axis=1)
+    paas = (q1 * p1).sum(axis=1) / (q1 * p0).sum(axis=1)
+    fish = np.sqrt(lasp * paas)
+    torn = np.exp((0.5 * (w + w1) * np.log(r)).sum(axis=1))
+    return konus, lasp, paas, fish, torn
+
+
+def median_seconds(fn: Callable[[], object], repeat: int) -> float:
+    fn()  # warm up
+    times = []
+    for _ in range(repeat):
+        start = time.perf_counter()
+        fn()
+        times.append(time.perf_counter() - start)
+    return statistics.median(times)
+
+
+def peak_bytes(fn: Callable[[], object]) -> int:
+    tracemalloc.start()
+    tracemalloc.reset_peak()
+    before = tracemalloc.get_traced_memory()[0]
+    fn()
+    peak = tracemalloc.get_traced_memory()[1]
+    tracemalloc.stop()
+    return peak - before
+
+
+def loop_family_job() -> tuple[HouseholdJob, np.ndarray, np.ndarray]:
+    """A job for a family evaluated one household at a time: 1,500 households, 20 items, nested
+    CES with two groups; there the work per byte sent is large and workers pay off."""
+    rng = np.random.default_rng(8)
+    p0 = rng.uniform(1.0, 10.0, 20)
+    tree = {"sigma": 0.4, "children": [{"sigma": 1.5, "children": list(range(10))},
+                                       {"sigma": 0.3, "children": list(range(10, 20))}]}
+    job = HouseholdJob.checked("nested_ces", {"tree": tree}, p0,
+                               p0 * np.exp(rng.normal(0.02, 0.1, 20)), formulas=FORMULAS,
+                               chunk_rows=100)
+    return job, rng.dirichlet(np.ones(20), 1_500), rng.uniform(500.0, 6000.0, 1_500)
+
+
+def on_cluster(s: dict[str, Any], job: HouseholdJob, local: Any) -> list[str]:
+    """The CES batch and the one-by-one batch on two worker processes, against in process."""
+    try:
+        from distributed import Client, LocalCluster
+    except ImportError:
+        return ["  (dask.distributed is not installed: pip install 'dualcost[cluster]')"]
+    loop_job, loop_w, loop_m = loop_family_job()
+    lines = []
+    with LocalCluster(n_workers=2, threads_per_worker=1, processes=True,
+                      dashboard_address="127.0.0.1:0") as cluster, Client(cluster) as client:
+        for title, the_job, w, m, expected, repeat in (
+            ("CES batch", job, s["w"], s["m"], local, 5),
+            ("nested CES, one by one, 1,500 x 20", loop_job, loop_w, loop_m, None, 1),
+        ):
+            per_task = max(1, 2_500 // the_job.chunk_rows)
+            if expected is None:
+                start = time.perf_counter()
+                expected = run_households(the_job, w, expenditure=m)
+                t_here = time.perf_counter() - start
+            else:
+                t_here = median_seconds(lambda j=the_job, w=w, m=m: run_households(
+                    j, w, expenditure=m), repeat)
+
+            def remote(j: HouseholdJob = the_job, w: Any = w, m: Any = m,
+                       k: int = per_task) -> Any:
+                return run_households(j, w, expenditure=m, scheduler=client, chunks_per_task=k)
+
+            t_there = median_seconds(remote, repeat)
+            got = remote()
+            same = (all(np.array_equal(expected.values[k], got.values[k]) for k in expected.values)
+                    and expected.summary == got.summary)
+            lines.append(f"  two-worker LocalCluster, {title:<36}{t_there * 1e3:9.1f} ms   "
+                         f"in process {t_here * 1e3:9.1f} ms   ratio {t_there / t_here:5.2f}   "
+                         f"identical: {same}")
+    return lines
+
+
+def over_http(s: dict[str, Any]) -> float:
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")  # the test client's httpx notice is not ours to print
+        from fastapi.testclient import TestClient
+
+        from dualcost.api.app import create_app
+        from dualcost.config import Settings
+
+        client = TestClient(create_app(Settings(max_body_bytes=1 << 30)))
+    ids = [f"item_{i:03d}" for i in range(ITEMS)]
+    lines = [",".join(["household", "expenditure", *ids])]
+    lines += [",".join([f"h{h}", repr(float(s["m"][h])), *map(repr, s["w"][h].tolist())])
+              for h in range(HOUSEHOLDS)]
+    text = ("\n".join(lines) + "\n").encode()
+    spec = {"items": ids, "base_prices": s["p0"].tolist(), "current_prices": s["p1"].tolist(),
+            "model": {"family": "ces", "sigma": SIGMA}, "formulas": FORMULAS}
+
+    def run() -> None:
+        job = client.post("/v1/household-jobs", json=spec).json()
+        r = client.post(job["links"]["households"], content=text,
+                        headers={"content-type": "text/csv"})
+        assert r.status_code == 200 and r.text.count("\n") == HOUSEHOLDS + 1, r.text[:300]
+
+    return median_seconds(run, 3)
+
+
+def main() -> None:
+    s = scenario()
+    job = HouseholdJob.checked("ces", {"sigma": SIGMA}, s["p0"], s["p1"], formulas=FORMULAS)
+
+    def batch() -> Any:
+        return run_households(job, s["w"], expenditure=s["m"])
+
+    def chunks_only() -> Any:
+        return [evaluate_chunk(job, c) for c in chunks_of(job, s["w"], expenditure=s["m"])]
+
+    t_base = median_seconds(lambda: baseline(s), 15)
+    t_batch = median_seconds(batch, 15)
+    t_chunks = median_seconds(chunks_only, 15)
+    local = batch()
+    reference = baseline(s)
+    agree = max(float(np.max(np.abs(local.values[name][0] / ref - 1.0)))
+                for name, ref in zip(["konus", *FORMULAS], reference, strict=True))
+    peak = peak_bytes(batch)
+    print(f"household batch: {HOUSEHOLDS} households x {ITEMS} items, CES sigma {SIGMA}, "
+          f"{', '.join(FORMULAS)} and the Konüs index (chunks of {job.chunk_rows} rows)")
+    print(f"  baseline (bare numpy, five indices)   {t_base * 1e3:8.1f} ms")
+    print(f"  core batch, with summaries            {t_batch * 1e3:8.1f} ms   ratio "
+          f"{t_batch / t_base:5.2f}   {HOUSEHOLDS / t_batch:10,.0f} households/s")
+    print(f"  core chunks only, no summaries        {t_chunks * 1e3:8.1f} ms   ratio "
+          f"{t_chunks / t_base:5.2f}")
+    print(f"  largest relative gap to the baseline  {agree:.1e}")
+    print(f"  peak memory of one batch              {peak / 2**20:8.1f} MiB above the input "
+          f"(input shares {s['w'].nbytes / 2**20:.1f} MiB); process max RSS "
+          f"{resource.getrusage(resource.RUSAGE_SELF).ru_maxrss / 1024:.0f} MiB")
+    for line in on_cluster(s, job, local):
+        print(line)
+    t_http = over_http(s)
+    print(f"  HTTP job, CSV in and out (in process) {t_http * 1e3:8.1f} ms   "
+          f"{HOUSEHOLDS / t_http:10,.0f} households/s (parsing and writing CSV dominate)")
+
+
+if __name__ == "__main__":
+    main()

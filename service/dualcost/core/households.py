@@ -1,0 +1,1029 @@
+"""Many households at once: one price change, or a series of them, applied to H budgets.
+
+Every household (or group: an income decile, a region) has its own base expenditure shares
+``w0_h`` and, where the family needs it, its own income ``m_h``; all share the base prices ``p0``,
+the current prices ``p1_t`` of each period ``t`` and the model's behavioural parameters. For each
+household and period we give the formula indices, the Konüs (1924) index, the compensating and
+equivalent variation and each formula's substitution bias, with the definitions of
+:mod:`dualcost.core.comparison`:
+
+- base quantities ``q0_h = m_h w0_h / p0``; current quantities are the model's demands at
+  current prices and the household's own income, ``q1_h = x_h(p1_t, m_h)``: the operation
+  isolates the price change, so income is held at its base value (``m1 = m0``);
+- ``K(u0) = e(p1, u0) / e(p0, u0)`` (column ``konus``), ``K(u1)`` (``konus_current``) and the
+  midpoint standard's index (``konus_midpoint``); ``CV = e(p1, u0) - m`` and
+  ``EV = m - e(p0, u1)``, losses positive (Hicks 1942);
+- the bias of a formula in index points, ``100 (P - K)``, against the Konüs index it targets.
+
+Vectorised families (no Python loop per household): Cobb-Douglas, CES and Stone-Geary, by the
+closed forms below, along the last (item) axis with a leading household axis; the formula indices
+are those of :mod:`dualcost.core.indices` on the same arrays. Stone-Geary takes either one
+subsistence bundle for all households (each household's marginal shares then follow from its own
+budget, and a household whose budget does not cover the bundle is refused by row), or expenditure
+elasticities and a Frisch parameter common to all (rescaled per household so that Engel
+aggregation holds; the answer counts them). Every other family (nested CES, translog,
+homogeneous quadratic, AIDS, QUAIDS, and any family added later) is calibrated and compared one
+household at a time with :func:`dualcost.core.comparison.compare`, a Python loop; the answer
+says so in a notice.
+
+Rows are processed in chunks of ``HouseholdJob.chunk_rows``: the chunking is part of the job, so
+that every engine (in process, or on a cluster: :mod:`dualcost.core.cluster`) evaluates exactly
+the same arrays with the same code and gets the same bits.
+
+Distribution summaries (Prais 1959, "Whose cost of living?", Review of Economic Studies 26(2)):
+the *democratic* index weights households equally (by their survey weight ``a_h``),
+``sum_h a_h P_h / sum_h a_h``; the *plutocratic* index weights them by expenditure,
+``sum_h a_h m_h P_h / sum_h a_h m_h``, which for Laspeyres is the Laspeyres index of the
+aggregate basket, the index a consumer price index approximates.
+"""
+
+from __future__ import annotations
+
+from collections.abc import Iterable, Iterator, Mapping, Sequence
+from dataclasses import dataclass, field
+from functools import cached_property
+from typing import Any, Literal
+
+import numpy as np
+import numpy.typing as npt
+from numpy.typing import NDArray
+
+from . import _checks
+from ._means import log_power_mean, power_mean_shares
+from .comparison import compare
+from .errors import DualcostError, InvalidInput
+from .indices import FORMULAS, IndexData
+from .preferences import FAMILIES, BaseBudget, Notice, calibrate
+
+Vector = NDArray[np.float64]
+Matrix = NDArray[np.float64]
+OnBadRows = Literal["reject", "skip"]
+
+#: Formulas a household batch can compute: the weighted bilateral ones. The unweighted formulas
+#: are the same for every household, and Lowe and Young need a weight-reference period.
+HOUSEHOLD_FORMULAS: tuple[str, ...] = (
+    "laspeyres", "paasche", "fisher", "tornqvist", "walsh", "marshall_edgeworth", "sato_vartia",
+    "geometric_laspeyres", "lloyd_moulton",
+)
+DEFAULT_FORMULAS: tuple[str, ...] = (
+    "laspeyres", "paasche", "fisher", "tornqvist", "geometric_laspeyres",
+)
+#: Families evaluated in closed form over the household axis.
+VECTORISED_FAMILIES: tuple[str, ...] = ("cobb_douglas", "ces", "stone_geary")
+DEFAULT_QUANTILES: tuple[float, ...] = (0.1, 0.25, 0.5, 0.75, 0.9)
+#: Numbers per work array of a chunk unless the job says otherwise: enough rows to amortise
+#: numpy's cost per call, few enough that a chunk's work arrays stay in cache (common practice).
+CHUNK_CELLS = 131_072
+#: How many skipped rows a report lists one by one (all are counted).
+LISTED_PROBLEMS = 100
+
+KONUS_COLUMNS = ("konus", "konus_current", "konus_midpoint")
+MONEY_COLUMNS = ("compensating_variation", "equivalent_variation")
+
+
+class InvalidRows(InvalidInput):
+    """Households that break a rule: each problem names the row, the field and the rule."""
+
+    def __init__(self, problems: Sequence[RowProblem], count: int) -> None:
+        first = problems[0]
+        super().__init__("households", f"{count} household row(s) break a rule; first: row "
+                         f"{first.row}: {first.rule}", first.row)
+        self.problems = tuple(problems)
+        self.count = count
+
+
+@dataclass(frozen=True)
+class RowProblem:
+    """Why one household row was refused.
+
+    ``row`` is the caller's label for the row (its position in a JSON list, its record number
+    in a CSV file); ``field`` is ``"shares"``, ``"expenditure"`` or ``"weight"``; ``item`` is
+    the position of the offending item for a share; ``code`` is a stable word for counting.
+    """
+
+    row: int
+    field: str
+    rule: str
+    code: str
+    item: int | None = None
+
+
+@dataclass(frozen=True)
+class HouseholdJob:
+    """What is common to all households: prices, model, formulas, and the chunking.
+
+    Build it with :meth:`checked`. ``parameters`` are the family's behavioural parameters in
+    the form :func:`dualcost.core.preferences.calibrate` takes (vectors in item order).
+    """
+
+    family: str
+    parameters: Mapping[str, Any]
+    base_prices: Vector
+    current_prices: Matrix  # (periods, items)
+    formulas: tuple[str, ...]
+    lloyd_moulton_sigma: float | None
+    normalise_shares: bool = False
+    chunk_rows: int = 1024
+    notices: tuple[Notice, ...] = ()
+
+    @classmethod
+    def checked(
+        cls,
+        family: str,
+        parameters: Mapping[str, Any] | None,
+        base_prices: npt.ArrayLike,
+        current_prices: npt.ArrayLike,
+        *,
+        formulas: Sequence[str] | None = None,
+        lloyd_moulton_sigma: float | None = None,
+        normalise_shares: bool = False,
+        chunk_rows: int | None = None,
+    ) -> HouseholdJob:
+        """Check everything that does not depend on a household.
+
+        ``current_prices`` is one price vector or a (periods, items) matrix, each row compared
+        with ``base_prices``; ``chunk_rows`` defaults to :func:`default_chunk_rows`.
+        """
+        p0 = _checks.positive("p0", base_prices)
+        p1 = _current_prices(current_prices, p0.size)
+        if family not in FAMILIES:
+            known = ", ".join(sorted(FAMILIES))
+            raise InvalidInput("family", f"unknown preference family {family!r}; known: {known}")
+        params = dict(parameters or {})
+        allowed = {spec.name for spec in FAMILIES[family].parameter_specs}
+        for name in params:
+            if name not in allowed:
+                accepted = ", ".join(sorted(allowed)) or "none"
+                raise InvalidInput(name, f"is not a parameter of the {family} family (it takes: "
+                                   f"{accepted})")
+        params, notices = _checked_parameters(family, params, p0)
+        names = _checked_formulas(formulas)
+        lm_sigma = lloyd_moulton_sigma
+        if lm_sigma is not None:
+            lm_sigma = _checks.scalar("lloyd_moulton_sigma", lm_sigma)
+            if lm_sigma < 0.0:
+                raise InvalidInput("lloyd_moulton_sigma", "an elasticity of substitution must be "
+                                   f"zero or more, got {lm_sigma:g}")
+        elif family == "ces":
+            lm_sigma = float(params["sigma"])
+        elif family == "cobb_douglas":
+            lm_sigma = 1.0
+        if "lloyd_moulton" in names and lm_sigma is None:
+            raise InvalidInput("formulas", "the Lloyd-Moulton index needs an elasticity of "
+                               "substitution (lloyd_moulton_sigma; the model has no single one)",
+                               names.index("lloyd_moulton"))
+        if chunk_rows is None:
+            chunk_rows = default_chunk_rows(p0.size)
+        if int(chunk_rows) < 1:
+            raise InvalidInput("chunk_rows", f"must be 1 or more, got {chunk_rows}")
+        if family not in VECTORISED_FAMILIES:
+            notices += (Notice("evaluated_one_by_one", f"The {family} family has no closed form "
+                               "over households here: each household was calibrated and "
+                               "compared in turn (slower than the vectorised families)."),)
+        return cls(family=family, parameters=params, base_prices=p0, current_prices=p1,
+                   formulas=names, lloyd_moulton_sigma=lm_sigma,
+                   normalise_shares=bool(normalise_shares), chunk_rows=int(chunk_rows),
+                   notices=notices)
+
+    @property
+    def n_items(self) -> int:
+        return int(self.base_prices.size)
+
+    @property
+    def n_periods(self) -> int:
+        return int(self.current_prices.shape[0])
+
+    @property
+    def homothetic(self) -> bool:
+        return bool(FAMILIES[self.family].homothetic)
+
+    @property
+    def needs_income(self) -> bool:
+        """Non-homothetic families need each household's income; homothetic ones do not."""
+        return not self.homothetic
+
+    @property
+    def summarised(self) -> tuple[str, ...]:
+        """The indices that get distribution summaries: every formula, and the Konüs index."""
+        return (*self.formulas, "konus")
+
+    def output_columns(self, with_income: bool) -> tuple[str, ...]:
+        """Per household and period: formulas, Konüs indices, CV/EV (money, with incomes only),
+        CV in percent of income, and each formula's bias in index points."""
+        money = MONEY_COLUMNS if with_income else ()
+        return (*self.formulas, *KONUS_COLUMNS, *money, "cv_percent",
+                *(f"bias_{name}" for name in self.formulas))
+
+
+@dataclass(frozen=True)
+class HouseholdChunk:
+    """A block of consecutive household rows.
+
+    ``rows`` labels each row for error messages (see :class:`RowProblem`); ``expenditure`` is
+    ``None`` when no incomes were given (homothetic families only); ``weights`` default to 1.
+    """
+
+    rows: NDArray[np.int64]
+    shares: Matrix
+    expenditure: Vector | None = None
+    weights: Vector | None = None
+    ids: tuple[str | None, ...] | None = None
+    #: Problems found before the chunk was built (a cell that is not a number, in a CSV).
+    problems: tuple[RowProblem, ...] = ()
+
+
+@dataclass(frozen=True)
+class ChunkResult:
+    """The households of one chunk that passed, with their results; and the rows refused."""
+
+    rows: NDArray[np.int64]
+    ids: tuple[str | None, ...] | None
+    weights: Vector
+    expenditure: Vector | None
+    values: dict[str, Matrix]  # column -> (periods, households)
+    problems: tuple[RowProblem, ...]
+    normalised: int = 0
+    rescaled: int = 0
+    #: Households evaluated one by one: how many drew each notice of the single comparison
+    #: (code -> count and the first message), e.g. a regularity warning of a flexible form.
+    notice_counts: dict[str, tuple[int, str]] = field(default_factory=dict)
+
+    @property
+    def size(self) -> int:
+        return int(self.rows.size)
+
+
+# -- job checks -------------------------------------------------------------------------------
+
+
+def default_chunk_rows(n_items: int) -> int:
+    """Rows per chunk: about ``CHUNK_CELLS`` numbers per work array, between 16 and 8192 rows."""
+    return max(16, min(8192, CHUNK_CELLS // max(1, n_items)))
+
+
+def _current_prices(values: npt.ArrayLike, n: int) -> Matrix:
+    try:
+        arr = np.asarray(values, dtype=np.float64)
+    except (TypeError, ValueError) as exc:
+        raise InvalidInput("p1", "must be numbers") from exc
+    if arr.ndim == 1:
+        arr = arr[None, :]
+    if arr.ndim != 2 or arr.shape[1] != n or arr.shape[0] == 0:
+        raise InvalidInput("p1", f"must be one price vector of {n} items, or one per period")
+    bad = np.argwhere(~np.isfinite(arr) | (arr <= 0.0))
+    if bad.size:
+        t, i = (int(v) for v in bad[0])
+        raise InvalidInput("p1", "must be a finite number greater than zero", (t, i))
+    return arr
+
+
+def _checked_formulas(formulas: Sequence[str] | None) -> tuple[str, ...]:
+    if formulas is None:
+        return DEFAULT_FORMULAS
+    seen: list[str] = []
+    for i, name in enumerate(formulas):
+        if name not in HOUSEHOLD_FORMULAS:
+            known = ", ".join(HOUSEHOLD_FORMULAS)
+            raise InvalidInput("formulas", f"{name!r} is not a formula a household batch "
+                               f"computes; it computes: {known}", i)
+        if name in seen:
+            raise InvalidInput("formulas", f"formula {name!r} is named twice", i)
+        seen.append(name)
+    if not seen:
+        raise InvalidInput("formulas", "name at least one formula")
+    return tuple(seen)
+
+
+def _checked_parameters(
+    family: str, params: dict[str, Any], p0: Vector
+) -> tuple[dict[str, Any], tuple[Notice, ...]]:
+    """The vectorised families' parameters, checked here; the others by a probe calibration."""
+    n = p0.size
+    if family == "ces":
+        sigma = params.get("sigma")
+        if sigma is None:
+            raise InvalidInput("sigma", "is required: give the elasticity of substitution (0 or "
+                               "more)")
+        value = _checks.scalar("sigma", sigma)
+        if value < 0.0:
+            raise InvalidInput("sigma", f"an elasticity of substitution must be zero or more, "
+                               f"got {value:g}")
+        return {"sigma": value}, ()
+    if family == "cobb_douglas":
+        return {}, ()
+    if family == "stone_geary":
+        return _stone_geary_parameters(params, n)
+    # A probe budget with equal shares finds errors in the parameters themselves (a matrix that
+    # is not symmetric, a tree that misses an item); errors about the probe's own budget are
+    # left for the households.
+    probe = BaseBudget.from_shares(p0, np.full(n, 1.0 / n), 1.0)
+    own = set(params) | {spec.name for spec in FAMILIES[family].parameter_specs} | {"family"}
+    try:
+        calibrate(family, probe, params)
+    except InvalidInput as exc:
+        if exc.parameter in own:
+            raise
+    except DualcostError:
+        pass
+    return params, ()
+
+
+def _stone_geary_parameters(params: dict[str, Any], n: int) -> tuple[dict[str, Any], tuple[Notice, ...]]:
+    gamma = params.get("subsistence_quantities")
+    eta = params.get("expenditure_elasticities")
+    frisch = params.get("frisch")
+    if gamma is not None:
+        for name, value in (("expenditure_elasticities", eta), ("frisch", frisch)):
+            if value is not None:
+                raise InvalidInput(name, "give subsistence_quantities, or expenditure "
+                                   "elasticities with frisch, not both")
+        return {"subsistence_quantities": _checks.vector("subsistence_quantities", gamma,
+                                                         size=n)}, ()
+    out: dict[str, Any] = {}
+    out["expenditure_elasticities"] = (
+        np.ones(n) if eta is None else _checks.nonnegative("expenditure_elasticities", eta, size=n)
+    )
+    phi = -2.0 if frisch is None else _checks.scalar("frisch", frisch)
+    if phi >= 0.0:
+        raise InvalidInput("frisch", "the Frisch money flexibility -m / (m - p . gamma) must be "
+                           f"negative, got {phi:g}")
+    out["frisch"] = phi
+    return out, ()
+
+
+# -- row checks -------------------------------------------------------------------------------
+
+
+def _share_problems(rows: NDArray[np.int64], w: Matrix, normalise: bool,
+                    problems: list[RowProblem], bad: NDArray[np.bool_]) -> tuple[Matrix, int]:
+    """Refuse negative or non-finite shares and sums away from 1; normalise if asked."""
+    finite = np.isfinite(w)
+    negative = ~finite | (w < 0.0)
+    for h in np.flatnonzero(negative.any(axis=-1) & ~bad):
+        i = int(np.argmax(negative[h]))
+        rule = ("must be a finite number" if not finite[h, i] else
+                f"a budget share must not be negative, got {w[h, i]:.6g}")
+        problems.append(RowProblem(int(rows[h]), "shares", rule, "negative_share", i))
+        bad[h] = True
+    total = np.sum(np.where(negative, 0.0, w), axis=-1)
+    off = np.abs(total - 1.0) > _checks.ADDING_UP_TOLERANCE
+    normalised = 0
+    if normalise:
+        empty = off & (total <= 0.0) & ~bad
+        for h in np.flatnonzero(empty):
+            problems.append(RowProblem(int(rows[h]), "shares", "at least one budget share must "
+                                       "be greater than zero", "shares_sum"))
+            bad[h] = True
+        fix = off & ~bad
+        normalised = int(np.count_nonzero(fix))
+        if normalised:
+            w = w.copy()
+            w[fix] /= total[fix, None]
+        return w, normalised
+    for h in np.flatnonzero(off & ~bad):
+        problems.append(RowProblem(int(rows[h]), "shares", "expenditure shares must sum to 1 "
+                                   f"(within 1e-6); they sum to {total[h]:.10g}", "shares_sum"))
+        bad[h] = True
+    return w, 0
+
+
+def _scalar_problems(rows: NDArray[np.int64], values: Vector, name: str, code: str,
+                     problems: list[RowProblem], bad: NDArray[np.bool_]) -> None:
+    wrong = ~np.isfinite(values) | (values <= 0.0)
+    for h in np.flatnonzero(wrong & ~bad):
+        what = "income (total expenditure)" if name == "expenditure" else "weight"
+        problems.append(RowProblem(int(rows[h]), name, f"the household's {what} must be "
+                                   f"greater than zero, got {values[h]:.10g}", code))
+        bad[h] = True
+
+
+# -- the vectorised families ------------------------------------------------------------------
+
+
+class _SharedIndexData(IndexData):
+    """IndexData whose shares and relatives are computed once for all the formulas."""
+
+    @cached_property
+    def relatives(self) -> Any:  # type: ignore[override]
+        return self.p1 / self.p0
+
+    @cached_property
+    def w0(self) -> Any:  # type: ignore[override]
+        return IndexData.w0.fget(self)  # type: ignore[attr-defined]
+
+    @cached_property
+    def w1(self) -> Any:  # type: ignore[override]
+        return IndexData.w1.fget(self)  # type: ignore[attr-defined]
+
+
+@dataclass
+class _Period:
+    """One period's evaluation for a block of households (all arrays over households)."""
+
+    konus: Vector
+    konus_current: Vector
+    konus_midpoint: Vector
+    cv: Vector  # e(p1, u0) - m
+    ev: Vector  # m - e(p0, u1)
+    q1: Matrix
+
+
+def _cobb_douglas(w0: Matrix, m: Vector, log_r: Vector, p1: Vector) -> _Period:
+    """ln K = sum_i w0_i ln(p1_i / p0_i), shares constant, q1 = m w0 / p1 (Cobb and Douglas 1928;
+    CPI Manual 17.61-17.64: the geometric Laspeyres index is exact)."""
+    k = np.exp(np.sum(w0 * log_r, axis=-1))
+    return _homothetic(k, m, w0, p1)
+
+
+def _ces(w0: Matrix, m: Vector, log_r: Vector, p1: Vector, sigma: float) -> _Period:
+    """ln K = ln M_(1-sigma)(p1/p0; w0), the power mean of the relatives with base-share weights;
+    current shares ``w1_i = w0_i r_i^(1-sigma) / sum_j w0_j r_j^(1-sigma)`` (Arrow, Chenery,
+    Minhas and Solow 1961; Lloyd 1975; Moulton 1996)."""
+    t = 1.0 - sigma
+    k = np.exp(log_power_mean(log_r, w0, t))
+    w1 = power_mean_shares(log_r, w0, t)
+    return _homothetic(k, m, w1, p1)
+
+
+def _homothetic(k: Vector, m: Vector, w1: Matrix, p1: Vector) -> _Period:
+    """With e(p, u) = u c(p) every Konüs index is c(p1) = K; CV = m (K - 1), EV = m (1 - 1/K)."""
+    return _Period(konus=k, konus_current=k, konus_midpoint=k, cv=m * k - m, ev=m - m / k,
+                   q1=(m[:, None] * w1) / p1)
+
+
+@dataclass
+class _StoneGeary:
+    """Per-household Stone-Geary parameters: subsistence ``gamma`` and marginal shares ``beta``.
+
+    ``e(p, u) = p . gamma + u B(p)``, ``B(p) = prod_i (p_i / p0_i)^beta_i``, utility measured as
+    supernumerary income at base prices (Stone 1954; Geary 1950; see
+    :mod:`dualcost.core.preferences.stone_geary`).
+    """
+
+    gamma: Matrix  # (H, N) or (N,)
+    beta: Matrix  # (H, N)
+    floor0: Vector  # p0 . gamma
+
+    def period(self, m: Vector, log_r: Vector, p1: Vector) -> _Period:
+        b = np.exp(np.sum(self.beta * log_r, axis=-1))
+        floor1 = np.sum(self.gamma * p1, axis=-1)
+        u0 = m - self.floor0
+        e00 = self.floor0 + u0
+        e10 = floor1 + u0 * b
+        u1 = (m - floor1) / b
+        e01 = self.floor0 + u1
+        m_mid = np.sqrt(e00 * e01)
+        u_mid = m_mid - self.floor0
+        q1 = self.gamma + self.beta * ((m - floor1)[:, None] / p1)
+        return _Period(konus=e10 / e00, konus_current=m / e01,
+                       konus_midpoint=(floor1 + u_mid * b) / (self.floor0 + u_mid),
+                       cv=e10 - m, ev=m - e01, q1=q1)
+
+
+def _stone_geary(job: HouseholdJob, rows: NDArray[np.int64], w0: Matrix, m: Vector,
+                 problems: list[RowProblem], bad: NDArray[np.bool_]) -> tuple[_StoneGeary, int]:
+    """Calibrate every household at once; rows below subsistence are refused by name.
+
+    Subsistence route: ``beta_h = p0 (q0_h - gamma) / (m_h - p0 . gamma)``, defined when every
+    base quantity is at least its subsistence quantity and income exceeds ``p0 . gamma``.
+    Elasticity route: ``beta_h = eta w0_h / (w0_h . eta)`` (the common elasticities divided by
+    the household's share-weighted mean, so that Engel aggregation holds for each household) and
+    ``gamma_h = m_h (w0_h + beta_h / phi) / p0`` (Frisch 1959).
+    """
+    p0 = job.base_prices
+    params = job.parameters
+    rescaled = 0
+    if "subsistence_quantities" in params:
+        gamma = np.asarray(params["subsistence_quantities"])
+        floor0 = np.full(m.shape, float(p0 @ gamma))
+        q0 = w0 * (m[:, None] / p0)
+        above = q0 - gamma
+        short = above < 0.0
+        for h in np.flatnonzero(short.any(axis=-1) & ~bad):
+            i = int(np.argmax(short[h]))
+            problems.append(RowProblem(int(rows[h]), "shares", f"the household is below "
+                                       f"subsistence: its base quantity {q0[h, i]:.6g} (share "
+                                       f"times income over price) is less than the subsistence "
+                                       f"quantity {gamma[i]:.6g}", "below_subsistence", i))
+            bad[h] = True
+        supernumerary = np.sum(above * p0, axis=-1)
+        for h in np.flatnonzero((supernumerary <= 0.0) & ~bad):
+            problems.append(RowProblem(int(rows[h]), "expenditure", f"the household is below "
+                                       f"subsistence: its income {m[h]:.10g} does not exceed the "
+                                       f"subsistence cost p0 . gamma = {floor0[h]:.10g}",
+                                       "below_subsistence"))
+            bad[h] = True
+        safe = np.where(bad, 1.0, supernumerary)
+        beta = above * p0 / safe[:, None]
+    else:
+        eta = np.asarray(params["expenditure_elasticities"])
+        phi = float(params["frisch"])
+        mean = np.sum(w0 * eta, axis=-1)
+        for h in np.flatnonzero((mean <= 0.0) & ~bad):
+            problems.append(RowProblem(int(rows[h]), "shares", "the expenditure elasticities "
+                                       "are zero on every item this household buys, so its "
+                                       "marginal budget shares cannot sum to 1", "below_subsistence"))
+            bad[h] = True
+        safe = np.where(bad, 1.0, mean)
+        rescaled = int(np.count_nonzero((np.abs(safe - 1.0) > 1e-12) & ~bad))
+        beta = eta * w0 / safe[:, None]
+        gamma = (m[:, None] * (w0 + beta / phi)) / p0
+        floor0 = np.sum(gamma * p0, axis=-1)
+    for t in range(job.n_periods):
+        floor1 = np.sum(gamma * job.current_prices[t], axis=-1)
+        for h in np.flatnonzero((m <= floor1) & ~bad):
+            problems.append(RowProblem(int(rows[h]), "expenditure", f"the household falls below "
+                                       f"subsistence at the current prices of period {t}: its "
+                                       f"income {m[h]:.10g} does not exceed the subsistence cost "
+                                       f"p1 . gamma = {float(np.broadcast_to(floor1, m.shape)[h]):.10g}",
+                                       "below_subsistence"))
+            bad[h] = True
+    return _StoneGeary(gamma=gamma, beta=beta, floor0=floor0), rescaled
+
+
+def _formula_values(job: HouseholdJob, p1: Vector, q0: Matrix, q1: Matrix) -> dict[str, Vector]:
+    """The formula indices of :mod:`dualcost.core.indices`, along the item axis."""
+    data = _SharedIndexData(p0=job.base_prices, p1=p1, q0=q0, q1=q1, sigma=job.lloyd_moulton_sigma)
+    out: dict[str, Vector] = {}
+    for name in job.formulas:
+        if name == "fisher" and "laspeyres" in out and "paasche" in out:
+            # P_F = (P_L P_P)^(1/2), from the two already computed rather than again.
+            out[name] = np.sqrt(out["laspeyres"] * out["paasche"])
+        else:
+            out[name] = np.asarray(FORMULAS[name].compute(data), dtype=np.float64)
+    return out
+
+
+def _evaluate_vectorised(job: HouseholdJob, rows: NDArray[np.int64], w0: Matrix, m: Vector,
+                         problems: list[RowProblem], bad: NDArray[np.bool_]
+                         ) -> tuple[dict[str, Matrix], int]:
+    sg: _StoneGeary | None = None
+    rescaled = 0
+    if job.family == "stone_geary":
+        sg, rescaled = _stone_geary(job, rows, w0, m, problems, bad)
+    keep = ~bad
+    if not keep.all():
+        w0, m = w0[keep], m[keep]
+        if sg is not None:
+            gamma = sg.gamma if sg.gamma.ndim == 1 else sg.gamma[keep]
+            sg = _StoneGeary(gamma=gamma, beta=sg.beta[keep], floor0=sg.floor0[keep])
+    if not keep.any():
+        names = (*job.formulas, *KONUS_COLUMNS, *MONEY_COLUMNS)
+        return {name: np.empty((job.n_periods, 0)) for name in names}, rescaled
+    p0 = job.base_prices
+    q0 = w0 * (m[:, None] / p0)
+    columns: dict[str, list[Vector]] = {}
+    log_p0 = np.log(p0)
+    for t in range(job.n_periods):
+        p1 = job.current_prices[t]
+        log_r = np.log(p1) - log_p0
+        if sg is not None:
+            period = sg.period(m, log_r, p1)
+        elif job.family == "ces":
+            period = _ces(w0, m, log_r, p1, float(job.parameters["sigma"]))
+        else:
+            period = _cobb_douglas(w0, m, log_r, p1)
+        values = _formula_values(job, p1, q0, period.q1)
+        values.update(konus=period.konus, konus_current=period.konus_current,
+                      konus_midpoint=period.konus_midpoint,
+                      compensating_variation=period.cv, equivalent_variation=period.ev)
+        for name, v in values.items():
+            columns.setdefault(name, []).append(v)
+    return {name: np.stack(v) for name, v in columns.items()}, rescaled
+
+
+# -- one household at a time ------------------------------------------------------------------
+
+
+#: Notices of a single comparison that the batch states once for all households.
+_JOB_LEVEL_NOTICES = frozenset({"homothetic", "current_quantities_from_model"})
+
+
+def _evaluate_one_by_one(job: HouseholdJob, rows: NDArray[np.int64], w0: Matrix, m: Vector,
+                         problems: list[RowProblem], bad: NDArray[np.bool_],
+                         counts: dict[str, tuple[int, str]]) -> dict[str, Matrix]:
+    """Calibrate and compare each household with the single-comparison engine."""
+    names = (*job.formulas, *KONUS_COLUMNS, *MONEY_COLUMNS)
+    out = {name: np.full((job.n_periods, w0.shape[0]), np.nan) for name in names}
+    for h in np.flatnonzero(~bad):
+        try:
+            base = BaseBudget.from_shares(job.base_prices, w0[h], float(m[h]))
+            model = calibrate(job.family, base, job.parameters)
+            for t in range(job.n_periods):
+                r = compare(model, base, job.current_prices[t], current_income=float(m[h]),
+                            lloyd_moulton_sigma=job.lloyd_moulton_sigma, formulas=job.formulas)
+                for name in job.formulas:
+                    out[name][t, h] = r.formulas[name].value
+                out["konus"][t, h] = r.konus.base
+                out["konus_current"][t, h] = r.konus.current
+                out["konus_midpoint"][t, h] = r.konus.midpoint
+                out["compensating_variation"][t, h] = r.compensating_variation
+                out["equivalent_variation"][t, h] = r.equivalent_variation
+                for code in {n.code for n in r.notices} - _JOB_LEVEL_NOTICES:
+                    message = next(n.message for n in r.notices if n.code == code)
+                    seen, first = counts.get(code, (0, message))
+                    counts[code] = (seen + 1, first)
+        except DualcostError as exc:
+            field_name = "expenditure" if getattr(exc, "parameter", "") in ("m0", "m1") else "shares"
+            problems.append(RowProblem(int(rows[h]), field_name, f"the {job.family} model "
+                                       f"cannot be evaluated for this household: {exc}",
+                                       "model_failed"))
+            bad[h] = True
+    keep = ~bad
+    return {name: v[:, keep] for name, v in out.items()}
+
+
+# -- a chunk ----------------------------------------------------------------------------------
+
+
+def evaluate_chunk(job: HouseholdJob, chunk: HouseholdChunk) -> ChunkResult:
+    """Check and evaluate one chunk of households; rows that break a rule are left out and
+    reported, never silently repaired (normalised shares are counted)."""
+    rows = np.asarray(chunk.rows, dtype=np.int64)
+    w0 = np.asarray(chunk.shares, dtype=np.float64)
+    h, n = rows.size, job.n_items
+    if w0.shape != (h, n):
+        raise InvalidInput("shares", f"must be a {h} by {n} array (households by items), got "
+                           f"shape {w0.shape}")
+    problems: list[RowProblem] = list(chunk.problems)
+    bad = np.zeros(h, dtype=bool)
+    known = {p.row for p in problems}
+    if known:
+        bad |= np.isin(rows, np.fromiter(known, dtype=np.int64))
+    with np.errstate(all="ignore"):
+        w0, normalised = _share_problems(rows, w0, job.normalise_shares, problems, bad)
+        with_income = chunk.expenditure is not None
+        if with_income:
+            m = np.asarray(chunk.expenditure, dtype=np.float64)
+            _scalar_problems(rows, m, "expenditure", "bad_income", problems, bad)
+        elif job.needs_income:
+            raise InvalidInput("expenditure", f"the {job.family} family is not homothetic: give "
+                               "each household's income (total expenditure)")
+        else:
+            # Homothetic: the indices do not depend on income; money amounts are per unit.
+            m = np.ones(h)
+        weights = np.ones(h) if chunk.weights is None else np.asarray(chunk.weights, np.float64)
+        _scalar_problems(rows, weights, "weight", "bad_weight", problems, bad)
+        if "sato_vartia" in job.formulas:
+            zero = w0 <= 0.0
+            for r in np.flatnonzero(zero.any(axis=-1) & ~bad):
+                i = int(np.argmax(zero[r]))
+                problems.append(RowProblem(int(rows[r]), "shares", "the Sato-Vartia index takes "
+                                           "logarithms of expenditure shares, so every share must "
+                                           "be greater than zero; leave the formula out to keep "
+                                           "this household", "zero_share", i))
+                bad[r] = True
+        rescaled = 0
+        counts: dict[str, tuple[int, str]] = {}
+        if job.family in VECTORISED_FAMILIES:
+            safe_m = np.where(bad, 1.0, m)
+            values, rescaled = _evaluate_vectorised(job, rows, w0, safe_m, problems, bad)
+        else:
+            values = _evaluate_one_by_one(job, rows, w0, m, problems, bad, counts)
+        keep = ~bad
+        kept_m = m[keep]
+        values["cv_percent"] = 100.0 * values["compensating_variation"] / kept_m
+        for name in job.formulas:
+            target = FORMULAS[name].target
+            k = values[{"base": "konus", "current": "konus_current",
+                        "midpoint": "konus_midpoint"}[target]]
+            values[f"bias_{name}"] = 100.0 * (values[name] - k)
+        # Rows the arithmetic could not carry (an overflow at extreme inputs) are refused too.
+        finite = np.ones(int(np.count_nonzero(keep)), dtype=bool)
+        for v in values.values():
+            finite &= np.all(np.isfinite(v), axis=0)
+    kept_rows = rows[keep]
+    if not finite.all():
+        for r in kept_rows[~finite]:
+            problems.append(RowProblem(int(r), "shares", "the model could not be evaluated in "
+                                       "floating point for this household (a result overflowed or "
+                                       "is undefined)", "not_evaluable"))
+        values = {name: v[:, finite] for name, v in values.items()}
+        keep_idx = np.flatnonzero(keep)[finite]
+        keep = np.zeros(h, dtype=bool)
+        keep[keep_idx] = True
+        kept_rows = rows[keep]
+        kept_m = m[keep]
+    if not with_income:
+        for name in MONEY_COLUMNS:
+            values.pop(name)
+    ids = None if chunk.ids is None else tuple(chunk.ids[i] for i in np.flatnonzero(keep))
+    return ChunkResult(
+        rows=kept_rows, ids=ids, weights=weights[keep],
+        expenditure=kept_m if with_income else None,
+        values={name: values[name] for name in job.output_columns(with_income)},
+        problems=tuple(sorted(problems, key=lambda p: p.row)), normalised=normalised,
+        rescaled=rescaled, notice_counts=counts,
+    )
+
+
+def chunks_of(
+    job: HouseholdJob,
+    shares: npt.ArrayLike,
+    *,
+    expenditure: npt.ArrayLike | None = None,
+    weights: npt.ArrayLike | None = None,
+    ids: Sequence[str | None] | None = None,
+    rows: npt.ArrayLike | None = None,
+) -> Iterator[HouseholdChunk]:
+    """Split in-memory arrays into the job's chunks (views, not copies)."""
+    w = np.asarray(shares, dtype=np.float64)
+    if w.ndim != 2 or w.shape[1] != job.n_items:
+        raise InvalidInput("shares", f"must be a households by items array with {job.n_items} "
+                           f"columns, got shape {w.shape}")
+    h = w.shape[0]
+    if h == 0:
+        raise InvalidInput("shares", "give at least one household")
+    m = None if expenditure is None else _sized("expenditure", expenditure, h)
+    a = None if weights is None else _sized("weights", weights, h)
+    labels = np.arange(h, dtype=np.int64) if rows is None else _sized("rows", rows, h).astype(np.int64)
+    if ids is not None and len(ids) != h:
+        raise InvalidInput("ids", f"must hold {h} ids, one per household, got {len(ids)}")
+    step = job.chunk_rows
+    for start in range(0, h, step):
+        part = slice(start, start + step)
+        yield HouseholdChunk(rows=labels[part], shares=w[part],
+                             expenditure=None if m is None else m[part],
+                             weights=None if a is None else a[part],
+                             ids=None if ids is None else tuple(ids[part]))
+
+
+def _sized(name: str, values: npt.ArrayLike, h: int) -> Vector:
+    arr = np.asarray(values, dtype=np.float64)
+    if arr.shape != (h,):
+        raise InvalidInput(name, f"must hold {h} values, one per household, got shape {arr.shape}")
+    return arr
+
+
+# -- summaries --------------------------------------------------------------------------------
+
+
+def weighted_quantiles(values: Vector, weights: Vector, probabilities: Sequence[float]) -> Vector:
+    """Quantiles of the weighted empirical distribution, by inverting it:
+    ``Q(p) = min {x : F(x) >= p}`` with ``F`` the share of weight at or below ``x`` (Hyndman and
+    Fan 1996, definition 1, with weights)."""
+    order = np.argsort(values, kind="stable")
+    v = values[order]
+    cumulative = np.cumsum(weights[order])
+    target = np.asarray(probabilities, dtype=np.float64) * cumulative[-1]
+    idx = np.minimum(np.searchsorted(cumulative, target, side="left"), v.size - 1)
+    return np.asarray(v[idx], dtype=np.float64)
+
+
+@dataclass(frozen=True)
+class IndexSummary:
+    """How one index is spread over the households in one period."""
+
+    index: str
+    democratic: float
+    plutocratic: float | None
+    quantiles: tuple[tuple[float, float], ...]
+    share_above_democratic: float
+    share_above_plutocratic: float | None
+    minimum: float
+    maximum: float
+
+
+@dataclass(frozen=True)
+class PeriodSummary:
+    period: int
+    households: int
+    weight_total: float
+    expenditure_total: float | None
+    indices: tuple[IndexSummary, ...]
+    compensating_variation_total: float | None
+    #: 100 sum_h a_h CV_h / sum_h a_h m_h: the compensation as a percent of all income.
+    cv_percent_of_income: float | None
+
+
+def summarise_index(name: str, values: Vector, weights: Vector, expenditure: Vector | None,
+                    quantiles: Sequence[float]) -> IndexSummary:
+    """Democratic and plutocratic means (Prais 1959), weighted quantiles, and the weighted share
+    of households whose index exceeds each mean."""
+    total = float(np.sum(weights))
+    democratic = float(np.sum(weights * values) / total)
+    plutocratic = share_pluto = None
+    if expenditure is not None:
+        spend = weights * expenditure
+        plutocratic = float(np.sum(spend * values) / np.sum(spend))
+        share_pluto = float(np.sum(weights[values > plutocratic]) / total)
+    qs = weighted_quantiles(values, weights, quantiles)
+    return IndexSummary(
+        index=name, democratic=democratic, plutocratic=plutocratic,
+        quantiles=tuple((float(p), float(q)) for p, q in zip(quantiles, qs, strict=True)),
+        share_above_democratic=float(np.sum(weights[values > democratic]) / total),
+        share_above_plutocratic=share_pluto,
+        minimum=float(values.min()), maximum=float(values.max()),
+    )
+
+
+@dataclass
+class SkipReport:
+    """Rows left out: all counted, by reason; the first ``LISTED_PROBLEMS`` listed."""
+
+    count: int = 0
+    by_reason: dict[str, int] = field(default_factory=dict)
+    listed: list[RowProblem] = field(default_factory=list)
+
+    def add(self, problems: Iterable[RowProblem]) -> None:
+        for p in problems:
+            self.count += 1
+            self.by_reason[p.code] = self.by_reason.get(p.code, 0) + 1
+            if len(self.listed) < LISTED_PROBLEMS:
+                self.listed.append(p)
+
+
+class Accumulator:
+    """Collects chunk results in order: what the summaries need, and the rows left out.
+
+    It keeps the summarised indices, weights and incomes of every household (a few numbers
+    each), not the shares; with ``keep_all`` it keeps every output column too (for an answer
+    that lists every household).
+    """
+
+    def __init__(self, job: HouseholdJob, *, keep_all: bool = False) -> None:
+        self.job = job
+        self.keep_all = keep_all
+        self.parts: list[ChunkResult] = []
+        self.skipped = SkipReport()
+        self.households = 0
+        self.chunks = 0
+        self.normalised = 0
+        self.rescaled = 0
+        self.with_income: bool | None = None
+        self.notice_counts: dict[str, tuple[int, str]] = {}
+
+    def add(self, result: ChunkResult) -> None:
+        self.chunks += 1
+        self.households += result.size
+        self.normalised += result.normalised
+        self.rescaled += result.rescaled
+        for code, (count, message) in result.notice_counts.items():
+            seen, first = self.notice_counts.get(code, (0, message))
+            self.notice_counts[code] = (seen + count, first)
+        self.skipped.add(result.problems)
+        if result.size:
+            self.with_income = result.expenditure is not None
+        if not self.keep_all:
+            names = self.job.summarised
+            result = ChunkResult(rows=result.rows, ids=None, weights=result.weights,
+                                 expenditure=result.expenditure,
+                                 values={n: result.values[n] for n in names}
+                                 | ({"compensating_variation": result.values["compensating_variation"]}
+                                    if "compensating_variation" in result.values else {}),
+                                 problems=(), normalised=0)
+        self.parts.append(result)
+
+    def column(self, name: str) -> Matrix:
+        parts = [p.values[name] for p in self.parts if p.size]
+        return np.concatenate(parts, axis=1) if parts else np.empty((self.job.n_periods, 0))
+
+    def weights(self) -> Vector:
+        return np.concatenate([p.weights for p in self.parts]) if self.parts else np.empty(0)
+
+    def expenditure(self) -> Vector | None:
+        if not self.with_income:
+            return None
+        return np.concatenate([p.expenditure for p in self.parts if p.expenditure is not None])
+
+    def summary(self, quantiles: Sequence[float] = DEFAULT_QUANTILES) -> tuple[PeriodSummary, ...]:
+        if self.households == 0:
+            return ()
+        a = self.weights()
+        m = self.expenditure()
+        columns = {name: self.column(name) for name in self.job.summarised}
+        cv = self.column("compensating_variation") if m is not None else None
+        out = []
+        for t in range(self.job.n_periods):
+            cv_total = None if cv is None else float(np.sum(a * cv[t]))
+            spend = None if m is None else float(np.sum(a * m))
+            out.append(PeriodSummary(
+                period=t, households=self.households, weight_total=float(np.sum(a)),
+                expenditure_total=spend,
+                indices=tuple(summarise_index(name, columns[name][t], a, m, quantiles)
+                              for name in self.job.summarised),
+                compensating_variation_total=cv_total,
+                cv_percent_of_income=None if cv_total is None or spend is None
+                else 100.0 * cv_total / spend,
+            ))
+        return tuple(out)
+
+    def notices(self) -> tuple[Notice, ...]:
+        out = list(self.job.notices)
+        if self.job.homothetic:
+            out.append(Notice("homothetic", f"The {self.job.family} model is homothetic: each "
+                              "household's Konüs index is the same at every living standard."))
+        out.append(Notice("current_quantities_from_model", "The Paasche, Fisher, Törnqvist and "
+                          "other current-weighted formulas use each household's model demands at "
+                          "current prices and its own (unchanged) income."))
+        if self.normalised:
+            out.append(Notice("shares_normalised", f"The shares of {self.normalised} "
+                              "household(s) did not sum to 1; as asked, each was divided by its "
+                              "sum."))
+        if self.rescaled:
+            out.append(Notice("elasticities_rescaled", f"For {self.rescaled} household(s) the "
+                              "expenditure elasticities' share-weighted mean was not 1; their "
+                              "marginal budget shares were divided by it (Engel aggregation)."))
+        for code, (count, message) in self.notice_counts.items():
+            out.append(Notice(code, f"{count} household-period(s) drew this notice; the first: "
+                              f"{message}"))
+        if self.with_income is False:
+            out.append(Notice("no_incomes", "No incomes were given: compensating variation is "
+                              "stated only in percent of income, and the plutocratic "
+                              "(expenditure-weighted) aggregates are not available."))
+        return tuple(out)
+
+
+# -- the whole job ----------------------------------------------------------------------------
+
+
+@dataclass(frozen=True)
+class HouseholdResults:
+    """Every household's results (columns over periods by households), with the summaries."""
+
+    job: HouseholdJob
+    rows: NDArray[np.int64]
+    ids: tuple[str | None, ...] | None
+    weights: Vector
+    expenditure: Vector | None
+    values: dict[str, Matrix]
+    summary: tuple[PeriodSummary, ...]
+    skipped: SkipReport
+    notices: tuple[Notice, ...]
+    engine: str
+    chunks: int
+
+
+def evaluate_locally(job: HouseholdJob, chunks: Iterable[HouseholdChunk]) -> Iterator[ChunkResult]:
+    """Evaluate the chunks one after another in this process."""
+    for chunk in chunks:
+        yield evaluate_chunk(job, chunk)
+
+
+def collect(
+    job: HouseholdJob,
+    results: Iterable[ChunkResult],
+    *,
+    on_bad_rows: OnBadRows = "reject",
+    quantiles: Sequence[float] = DEFAULT_QUANTILES,
+    engine: str = "local",
+) -> HouseholdResults:
+    """Gather chunk results in order into one answer. With ``on_bad_rows="reject"`` any refused
+    row raises :class:`InvalidRows` (listing up to 20); with ``"skip"`` they are reported."""
+    acc = Accumulator(job, keep_all=True)
+    for result in results:
+        acc.add(result)
+    if acc.skipped.count and on_bad_rows == "reject":
+        raise InvalidRows(acc.skipped.listed[:20], acc.skipped.count)
+    if acc.households == 0:
+        raise InvalidInput("households", f"no household could be evaluated: all "
+                           f"{acc.skipped.count} rows were refused")
+    names = job.output_columns(bool(acc.with_income))
+    has_ids = any(p.ids is not None for p in acc.parts)
+    ids = tuple(i for p in acc.parts for i in (p.ids or (None,) * p.size)) if has_ids else None
+    return HouseholdResults(
+        job=job, rows=np.concatenate([p.rows for p in acc.parts]), ids=ids,
+        weights=acc.weights(), expenditure=acc.expenditure(),
+        values={name: acc.column(name) for name in names},
+        summary=acc.summary(quantiles), skipped=acc.skipped, notices=acc.notices(),
+        engine=engine, chunks=acc.chunks,
+    )
+
+
+def check_quantiles(quantiles: Sequence[float]) -> tuple[float, ...]:
+    out = []
+    for i, q in enumerate(quantiles):
+        value = _checks.scalar("quantiles", q)
+        if not 0.0 <= value <= 1.0:
+            raise InvalidInput("quantiles", f"a quantile is a probability between 0 and 1, got "
+                               f"{value:g}", i)
+        out.append(value)
+    return tuple(out)
+
+
+def run_households(
+    job: HouseholdJob,
+    shares: npt.ArrayLike,
+    *,
+    expenditure: npt.ArrayLike | None = None,
+    weights: npt.ArrayLike | None = None,
+    ids: Sequence[str | None] | None = None,
+    on_bad_rows: OnBadRows = "reject",
+    quantiles: Sequence[float] = DEFAULT_QUANTILES,
+    scheduler: Any = None,
+    chunks_per_task: int = 1,
+) -> HouseholdResults:
+    """Evaluate a whole batch held in memory: ``shares`` is households by items.
+
+    With ``scheduler`` (an address like ``"tcp://10.0.0.5:8786"`` or a ``distributed.Client``)
+    the chunks run on a Dask cluster (:mod:`dualcost.core.cluster`); the result is the same,
+    bit for bit, as in process.
+    """
+    qs = check_quantiles(quantiles)
+    chunks = chunks_of(job, shares, expenditure=expenditure, weights=weights, ids=ids)
+    if scheduler is None:
+        return collect(job, evaluate_locally(job, chunks), on_bad_rows=on_bad_rows, quantiles=qs)
+    from .cluster import evaluate_on_cluster
+
+    results = evaluate_on_cluster(job, chunks, scheduler, chunks_per_task=chunks_per_task)
+    return collect(job, results, on_bad_rows=on_bad_rows, quantiles=qs, engine="cluster")
