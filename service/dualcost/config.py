@@ -36,14 +36,20 @@ class Settings(BaseSettings):
     log_json: bool = Field(True, description="Log one JSON object per line (false: plain text).")
     max_items: int = Field(20_000, ge=1, description="Most items one request may carry.")
     max_tree_depth: int = Field(64, ge=1, description="Deepest nested CES tree accepted.")
-    max_periods: int = Field(1_000, ge=2, description="Most periods one index-series panel may carry.")
-    max_panel_cells: int = Field(
-        2_000_000, ge=1, description="Most periods times items (and CSV rows) in one panel.")
+    max_fit_cells: int = Field(200_000, ge=1, description="Most observations times items in one "
+                               "model fit (and CSV rows of one fit upload).")
+    max_fit_jacobian: int = Field(5_000_000, ge=1, description="Most entries, observations times "
+                                  "equations times parameters, of one fit's Jacobian (its memory).")
+    max_bootstrap_draws: int = Field(5_000, ge=10, description="Most parameter draws for the "
+                                     "intervals of a fitted comparison.")
     compute_deadline_seconds: float = Field(
         10.0, gt=0, le=3600,
         description="Seconds one request may spend in the numerical solves of the families without a "
                     "closed form (demand systems integrated along a price path, utility formulas).",
     )
+    max_periods: int = Field(1_000, ge=2, description="Most periods one index-series panel may carry.")
+    max_panel_cells: int = Field(
+        2_000_000, ge=1, description="Most periods times items (and CSV rows) in one panel.")
     max_households: int = Field(100_000, ge=1, description="Most households in one JSON request "
                                 "(larger batches: a household job with a CSV upload).")
     household_chunk_rows: int | None = Field(None, ge=1, description="Household rows evaluated "

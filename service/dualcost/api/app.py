@@ -18,7 +18,16 @@ from .access import AccessControlMiddleware, load_keys
 from .limits import BodySizeLimitMiddleware
 from .observability import RequestContextMiddleware
 from .openapi import problem_openapi
-from .routes import audit, catalogue, comparisons, households, series, service, spreadsheet
+from .routes import (
+    audit,
+    catalogue,
+    comparisons,
+    estimation,
+    households,
+    series,
+    service,
+    spreadsheet,
+)
 
 WEB_DIR = Path(__file__).resolve().parents[1] / "web"
 
@@ -85,6 +94,7 @@ def create_app(settings: Settings | None = None) -> FastAPI:
     app.include_router(service.router)
     app.include_router(spreadsheet.router)
     app.include_router(households.router(settings))
+    app.include_router(estimation.router(settings))
 
     app.openapi = lambda: problem_openapi(app)  # type: ignore[method-assign]
     app.mount("/static", StaticFiles(directory=WEB_DIR), name="static")
