@@ -125,3 +125,19 @@ def test_demo_scenario_answers(client) -> None:
     assert body["result"]["family"] == "nested_ces"
     assert body["request"] == load_example("compare.wrenmouth_nested_ces.json")
     assert body["result"]["laspeyres_gap_points"] > 0
+
+
+def test_negative_model_demand_leaves_out_current_weighted_formulas(client) -> None:
+    """Far from its base point a flexible form (here translog with sigma 3) can demand a negative
+    quantity; the formulas weighted by current quantities are then undefined and are left out
+    with a notice, beside the regularity warning (never NaN, never a numpy warning)."""
+    req = small_request(family="translog", sigma=3.0)
+    req["current"]["prices"] = [4.0, 2.0, 0.5]
+    r = client.post("/v1/comparisons", json=req)
+    assert r.status_code == 200, r.text
+    body = r.json()
+    codes = [n["code"] for n in body["notices"]]
+    assert "shares_outside_unit_interval" in codes
+    names = {f["formula"] for f in body["formulas"]}
+    assert "laspeyres" in names and "walsh" not in names and "paasche" not in names
+    assert any("negative" in n["message"] for n in body["notices"] if n["code"] == "formula_not_computed")

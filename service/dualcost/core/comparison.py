@@ -374,6 +374,9 @@ def _formula_results(
         "weight_quantities": "a weight-reference basket (quantities, or shares with prices)",
         "weight_shares": "weight-reference shares (shares, or a basket with prices)",
     }
+    # The model's demands can turn negative where a flexible form is not regular; the formulas
+    # that weight by current quantities are then undefined (a regularity notice says why).
+    negative = np.flatnonzero(data.q1 < 0.0)
     out: dict[str, FormulaResult] = {}
     for i, name in enumerate(names):
         formula = FORMULAS[name]
@@ -382,6 +385,15 @@ def _formula_results(
             text = f"The {formula.title} index needs {why[missing[0]]}"
             if explicit:
                 raise InvalidInput("formulas", text + ", which was not given.", i)
+            notices.append(Notice("formula_not_computed", text + "; it was left out."))
+            continue
+        if negative.size and formula.target != "base":
+            text = (f"The {formula.title} index weights by current quantities, and the model's "
+                    f"current demand for item {int(negative[0])} is negative")
+            if explicit:
+                raise InvalidInput("formulas", text + "; the model is not regular at these "
+                                   "prices (give observed current quantities, or leave this "
+                                   "formula out).", i)
             notices.append(Notice("formula_not_computed", text + "; it was left out."))
             continue
         check_positive_shares(data, formula)
