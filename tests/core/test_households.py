@@ -16,7 +16,6 @@ from scipy.optimize import minimize
 from dualcost.core.comparison import compare
 from dualcost.core.errors import InvalidInput
 from dualcost.core.households import (
-    DEFAULT_FORMULAS,
     HouseholdJob,
     InvalidRows,
     run_households,
@@ -285,19 +284,24 @@ def test_a_chunk_of_only_bad_rows(family: str) -> None:
     assert res.rows.tolist() == [0, 3, 4] and res.skipped.count == 2 and res.chunks == 3
 
 
-def test_one_by_one_families_pass_on_the_regularity_warnings() -> None:
+def test_one_by_one_families_refuse_households_where_the_model_is_not_regular() -> None:
     """A flexible form is regular only near its base point (Christensen, Jorgenson and Lau 1975;
     Diewert 1976): a large price change sends some households' translog shares outside [0, 1],
-    and the batch counts the households whose single comparison warns of it."""
+    that is, a negative current demand, where the current-weighted formulas are undefined. Those
+    households are refused with the reason (skipped and counted under bad_rows="skip"), exactly
+    the ones whose single comparison warns of it; the others pass."""
     rng = np.random.default_rng(24)
     p0, p1 = np.ones(4), np.array([0.4, 1.0, 1.6, 1.0])
     w = rng.dirichlet(np.ones(4), 20)
-    res = run_households(HouseholdJob.checked("translog", {"sigma": 3.0}, p0, p1), w)
-    expected = 0
+    res = run_households(HouseholdJob.checked("translog", {"sigma": 3.0}, p0, p1), w,
+                         on_bad_rows="skip")
+    irregular = []
     for h in range(20):
         base = BaseBudget.from_shares(p0, w[h], 1.0)
-        r = compare(calibrate("translog", base, {"sigma": 3.0}), base, p1, current_income=1.0,
-                    formulas=list(DEFAULT_FORMULAS))
-        expected += any(n.code == "shares_outside_unit_interval" for n in r.notices)
-    (notice,) = [n for n in res.notices if n.code == "shares_outside_unit_interval"]
-    assert expected > 0 and notice.message.startswith(f"{expected} household-period(s)")
+        r = compare(calibrate("translog", base, {"sigma": 3.0}), base, p1, current_income=1.0)
+        if any(n.code == "shares_outside_unit_interval" for n in r.notices):
+            irregular.append(h)
+    assert 0 < len(irregular) < 20
+    assert res.skipped.count == len(irregular)
+    assert sorted(p.row for p in res.skipped.listed) == irregular
+    assert all("negative" in p.rule for p in res.skipped.listed)
