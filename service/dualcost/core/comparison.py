@@ -443,11 +443,19 @@ def _diagnostic_notices(
 
 
 def _check_finite(c: Comparison) -> None:
-    scalars = [c.konus.base, c.konus.current, c.konus.midpoint, c.compensating_variation,
-               c.equivalent_variation, c.compensated_income]
-    scalars += [r.value for r in c.formulas.values()]
-    vectors = [c.demands.base, c.demands.current, c.demands.compensated]
-    if not (np.all(np.isfinite(scalars)) and all(np.all(np.isfinite(v)) for v in vectors)):
+    """Every number of the answer is finite, or the comparison fails here (never NaN in a 200)."""
+    k, s, d = c.konus, c.standards, c.diagnostics
+    scalars = [k.base, k.current, k.midpoint, k.reference, c.compensating_variation,
+               c.equivalent_variation, c.compensated_income, c.lloyd_moulton_sigma,
+               s.base, s.current, s.midpoint, s.reference, s.midpoint_income,
+               d.duality_residual, d.expenditure_residual, d.base_bundle_gap]
+    scalars += [x for r in c.formulas.values() for x in (r.value, r.bias_points, r.bias_percent)]
+    vectors = [c.demands.base, c.demands.current, c.demands.compensated,
+               c.demands.substitution_effect, c.demands.income_effect]
+    if c.laspeyres_gap_contributions is not None:
+        vectors.append(c.laspeyres_gap_contributions)
+    numbers = np.array([x for x in scalars if x is not None], dtype=np.float64)
+    if not (np.all(np.isfinite(numbers)) and all(np.all(np.isfinite(v)) for v in vectors)):
         raise NumericalFailure("comparison", "the model could not be evaluated in floating "
                                "point at these prices and incomes (a result overflowed or is "
                                "undefined); check the inputs' magnitudes")

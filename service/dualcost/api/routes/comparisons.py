@@ -3,11 +3,11 @@
 # No ``from __future__ import annotations`` here: the request body's annotation carries the
 # examples loaded when the router is built, and FastAPI must see it as an object, not a string.
 
-import json
 from typing import Annotated
 
 from fastapi import APIRouter, Body
 from fastapi.responses import Response
+from pydantic_core import to_json
 
 from ...config import Settings
 from ...core.errors import NumericalFailure
@@ -15,7 +15,12 @@ from ..deps import SettingsDep
 from ..examples import load_examples
 from ..observability import compute_time
 from ..problems import PROBLEM_MEDIA_TYPE
-from ..schemas.comparison import ComparisonRequest, ComparisonResponse, comparison_document
+from ..schemas.comparison import (
+    ComparisonRequest,
+    ComparisonResponse,
+    all_finite,
+    comparison_document,
+)
 
 PROBLEM_RESPONSES = {
     422: {"description": "The request breaks a rule (RFC 9457 problem details).",
@@ -48,16 +53,15 @@ def router(settings: Settings) -> APIRouter:
         with compute_time("compare"):
             result, model, axis = request.run(max_items=settings.max_items,
                                               max_tree_depth=settings.max_tree_depth,
-                              compute_deadline_seconds=settings.compute_deadline_seconds)
+                                              compute_deadline_seconds=settings.compute_deadline_seconds)
         # Rendered here in one step from plain values: building and validating one response
         # object per item would cost more than the computation for large baskets. The document
         # has the shape of ComparisonResponse (checked by the tests and the schema fuzzing).
         document = comparison_document(result, model, axis)
-        try:
-            text = json.dumps(document, allow_nan=False, ensure_ascii=False)
-        except ValueError:
-            raise NumericalFailure("answer", "a value of the answer is not a finite number; the "
-                                   "inputs are beyond what the model can evaluate") from None
-        return Response(text, media_type="application/json")
+        if not all_finite(document["model_parameters"]):
+            raise NumericalFailure("model parameters", "a calibrated parameter is not a finite "
+                                   "number; the inputs are beyond what the model can evaluate")
+        # Every other number was checked finite by the core (comparison._check_finite).
+        return Response(to_json(document), media_type="application/json")
 
     return r

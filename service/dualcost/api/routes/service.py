@@ -87,7 +87,7 @@ def demo(settings: SettingsDep) -> DemoOut:
     req = ComparisonRequest.model_validate(body)
     result, model, axis = req.run(max_items=settings.max_items,
                                   max_tree_depth=settings.max_tree_depth,
-                              compute_deadline_seconds=settings.compute_deadline_seconds)
+                                  compute_deadline_seconds=settings.compute_deadline_seconds)
     return DemoOut(
         scenario="Wrenmouth, an invented river town: its statistics office compares the "
                  "household basket of 2025 with this year's prices under a nested CES model.",

@@ -133,7 +133,7 @@ def _run(params: dict[str, Any], settings: Any) -> ComparisonResponse:
     try:
         result, model, axis = request.run(max_items=settings.max_items,
                                           max_tree_depth=settings.max_tree_depth,
-                              compute_deadline_seconds=settings.compute_deadline_seconds)
+                                          compute_deadline_seconds=settings.compute_deadline_seconds)
     except RequestProblem as exc:
         raise RequestProblem([FieldError(_query_pointer(e.pointer), e.detail) for e in exc.errors],
                              slug=exc.slug) from None

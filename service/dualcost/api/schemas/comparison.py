@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import math
 from typing import Any, Literal
 
 from pydantic import Field, model_validator
@@ -269,6 +270,21 @@ def comparison_document(r: Comparison, model: Preferences, axis: ItemAxis) -> di
     }
 
 
+def all_finite(value: Any) -> bool:
+    """True when every number in a nested structure of dicts and lists is finite."""
+    stack = [value]
+    while stack:
+        v = stack.pop()
+        if isinstance(v, float):
+            if not math.isfinite(v):
+                return False
+        elif isinstance(v, dict):
+            stack.extend(v.values())
+        elif isinstance(v, (list, tuple)):
+            stack.extend(v)
+    return True
+
+
 def _items(r: Comparison, axis: ItemAxis) -> list[dict[str, Any]]:
     """One record per item, built column-wise from the core's arrays (plain dicts: the response
     model validates them in one pass, which for thousands of items is far cheaper than building
@@ -292,4 +308,5 @@ def _items(r: Comparison, axis: ItemAxis) -> list[dict[str, Any]]:
     return [dict(zip(names, row, strict=True)) for row in zip(*columns.values(), strict=True)]
 
 
-__all__ = ["CAUTION", "ComparisonRequest", "ComparisonResponse", "MatrixIn", "comparison_document"]
+__all__ = ["CAUTION", "ComparisonRequest", "ComparisonResponse", "MatrixIn", "all_finite",
+           "comparison_document"]
