@@ -12,13 +12,11 @@ The machine is shared and noisy, so the ratios are the figures to compare betwee
 
 from __future__ import annotations
 
-import statistics
-import time
 import warnings
-from collections.abc import Callable
 from typing import Any
 
 import numpy as np
+from _timing import median_seconds  # benchmarks/, on the path when run as a script
 
 from dualcost.core.comparison import compare
 from dualcost.core.preferences import BaseBudget, calibrate
@@ -49,16 +47,6 @@ def _positions(tree: dict[str, Any], ids: list[str]) -> dict[str, Any]:
     where = {item: i for i, item in enumerate(ids)}
     return {"name": tree["name"], "sigma": tree["sigma"], "children": [
         where[c] if isinstance(c, str) else _positions(c, ids) for c in tree["children"]]}
-
-
-def median_seconds(fn: Callable[[], object], repeat: int) -> float:
-    fn()  # warm up
-    times = []
-    for _ in range(repeat):
-        t = time.perf_counter()
-        fn()
-        times.append(time.perf_counter() - t)
-    return statistics.median(times)
 
 
 def main() -> None:

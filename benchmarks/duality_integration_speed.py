@@ -15,26 +15,13 @@ The machine is shared and noisy, so the ratios are the figures to compare betwee
 
 from __future__ import annotations
 
-import statistics
-import time
-from collections.abc import Callable
-
 import numpy as np
+from _timing import median_seconds  # benchmarks/, on the path when run as a script
 
 from dualcost.core.path_integration import integrate, straight_path
 from dualcost.core.preferences import BaseBudget, DemandSystem, calibrate
 
 N_ITEMS = 50
-
-
-def median_seconds(fn: Callable[[], object], repeat: int) -> float:
-    fn()  # warm up
-    times = []
-    for _ in range(repeat):
-        t = time.perf_counter()
-        fn()
-        times.append(time.perf_counter() - t)
-    return statistics.median(times)
 
 
 def scenario(seed: int = 11) -> tuple[BaseBudget, np.ndarray]:

@@ -22,7 +22,6 @@ The machine is shared and noisy, so the ratios are the figures to compare betwee
 from __future__ import annotations
 
 import resource
-import statistics
 import time
 import tracemalloc
 import warnings
@@ -30,6 +29,7 @@ from collections.abc import Callable
 from typing import Any
 
 import numpy as np
+from _timing import median_seconds  # benchmarks/, on the path when run as a script
 
 from dualcost.core.households import HouseholdJob, chunks_of, evaluate_chunk, run_households
 
@@ -62,16 +62,6 @@ def baseline(s: dict[str, Any]) -> tuple[np.ndarray, ...]:
     fish = np.sqrt(lasp * paas)
     torn = np.exp((0.5 * (w + w1) * np.log(r)).sum(axis=1))
     return konus, lasp, paas, fish, torn
-
-
-def median_seconds(fn: Callable[[], object], repeat: int) -> float:
-    fn()  # warm up
-    times = []
-    for _ in range(repeat):
-        start = time.perf_counter()
-        fn()
-        times.append(time.perf_counter() - start)
-    return statistics.median(times)
 
 
 def peak_bytes(fn: Callable[[], object]) -> int:

@@ -18,13 +18,11 @@ The machine is shared and noisy, so the ratios are the figures to compare betwee
 
 from __future__ import annotations
 
-import statistics
-import time
 import warnings
-from collections.abc import Callable
 from typing import Any
 
 import numpy as np
+from _timing import median_seconds  # benchmarks/, on the path when run as a script
 
 from dualcost.core.series import calibrate_to_base, index_series
 from dualcost.core.series_panel import Panel
@@ -49,16 +47,6 @@ def scenario(seed: int = 11) -> tuple[list[str], list[str], np.ndarray, np.ndarr
     p[90:, 1::50] = np.nan
     q = np.where(np.isnan(p), np.nan, q)
     return periods, items, p, q
-
-
-def median_seconds(fn: Callable[[], object], repeat: int) -> float:
-    fn()  # warm up
-    times = []
-    for _ in range(repeat):
-        t = time.perf_counter()
-        fn()
-        times.append(time.perf_counter() - t)
-    return statistics.median(times)
 
 
 def main() -> None:

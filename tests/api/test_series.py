@@ -15,26 +15,10 @@ from tests.conftest import load_example
 
 # CPI Manual (2004) ch. 19: Table 19.1 prices, Table 19.2 quantities (periods 1-5 by
 # commodities 1-6), and Table 19.3 fixed-base indices to four decimals; recalled from memory.
-PRICES = [
-    [1.0, 1.0, 1.0, 1.0, 1.0, 1.0],
-    [1.2, 3.0, 1.3, 0.7, 1.4, 0.8],
-    [1.0, 1.0, 1.5, 0.5, 1.7, 0.6],
-    [0.8, 0.5, 1.6, 0.3, 1.9, 0.4],
-    [1.0, 1.0, 1.6, 0.1, 2.0, 0.2],
-]
-QUANTITIES = [
-    [1.0, 1.0, 2.0, 1.0, 4.5, 0.5],
-    [0.8, 0.9, 1.9, 1.3, 4.7, 0.6],
-    [1.0, 1.1, 1.8, 3.0, 5.0, 0.8],
-    [1.2, 1.2, 1.9, 6.0, 5.6, 1.3],
-    [0.9, 1.2, 2.0, 12.0, 6.5, 2.5],
-]
-PRINTED = {
-    "laspeyres": [1.0000, 1.4200, 1.3450, 1.3550, 1.4400],
-    "paasche": [1.0000, 1.3824, 1.2031, 1.0209, 0.7968],
-    "fisher": [1.0000, 1.4011, 1.2721, 1.1762, 1.0712],
-    "tornqvist": [1.0000, 1.4052, 1.2890, 1.2268, 1.2477],
-}
+from tests.reference_data import SIX_COMMODITY_PRICES as PRICES
+from tests.reference_data import SIX_COMMODITY_PRINTED as PRINTED
+from tests.reference_data import SIX_COMMODITY_QUANTITIES as QUANTITIES
+
 ITEMS = ["c1", "c2", "c3", "c4", "c5", "c6"]
 
 

@@ -14,18 +14,13 @@ from pathlib import Path
 
 import pytest
 
-PRICES = [[1.0, 1.0, 1.0, 1.0, 1.0, 1.0], [1.2, 3.0, 1.3, 0.7, 1.4, 0.8],
-          [1.0, 1.0, 1.5, 0.5, 1.7, 0.6], [0.8, 0.5, 1.6, 0.3, 1.9, 0.4],
-          [1.0, 1.0, 1.6, 0.1, 2.0, 0.2]]
-QUANTITIES = [[1.0, 1.0, 2.0, 1.0, 4.5, 0.5], [0.8, 0.9, 1.9, 1.3, 4.7, 0.6],
-              [1.0, 1.1, 1.8, 3.0, 5.0, 0.8], [1.2, 1.2, 1.9, 6.0, 5.6, 1.3],
-              [0.9, 1.2, 2.0, 12.0, 6.5, 2.5]]
-PUBLISHED = {
-    "laspeyres": ["1.0000", "1.4200", "1.3450", "1.3550", "1.4400"],
-    "paasche": ["1.0000", "1.3824", "1.2031", "1.0209", "0.7968"],
-    "fisher": ["1.0000", "1.4011", "1.2721", "1.1762", "1.0712"],
-    "tornqvist": ["1.0000", "1.4052", "1.2890", "1.2268", "1.2477"],
-}
+from tests.reference_data import SIX_COMMODITY_PRICES as PRICES
+from tests.reference_data import SIX_COMMODITY_PRINTED
+from tests.reference_data import SIX_COMMODITY_QUANTITIES as QUANTITIES
+
+# The printed table as a pipeline's published file holds it: four decimals as text.
+PUBLISHED = {formula: [f"{value:.4f}" for value in values]
+             for formula, values in SIX_COMMODITY_PRINTED.items()}
 
 
 def write_inputs(folder: Path, *, wrong: bool = False) -> tuple[Path, Path]:

@@ -24,6 +24,8 @@ from typing import TYPE_CHECKING
 import numpy as np
 from numpy.typing import NDArray
 
+from ._differences import central_jacobian
+
 if TYPE_CHECKING:
     from .estimation.system import ShareSystem
 
@@ -64,22 +66,15 @@ def elasticity_table(system: ShareSystem, theta: Vector, covariance: Matrix,
     n = system.n_items
     log_prices = np.log(prices)
     log_expenditure = float(np.log(expenditure))
+
+    def stacked_elasticities(th: Vector) -> Vector:  # eta, E and E^c as one vector
+        parts = _stacked(system, th, log_prices, log_expenditure)[1:]
+        return np.concatenate([a.ravel() for a in parts])
+
     with np.errstate(divide="ignore", invalid="ignore", over="ignore"):
         w, eta, marshallian, hicksian = _stacked(system, theta, log_prices, log_expenditure)
         value = np.concatenate([eta, marshallian.ravel(), hicksian.ravel()])
-        grads = []
-        for k in range(theta.size):
-            h = 1e-6 * (1.0 + abs(float(theta[k])))
-            up = theta.copy()
-            down = theta.copy()
-            up[k] += h
-            down[k] -= h
-            hi = np.concatenate([a.ravel() for a in _stacked(system, up, log_prices,
-                                                             log_expenditure)[1:]])
-            lo = np.concatenate([a.ravel() for a in _stacked(system, down, log_prices,
-                                                             log_expenditure)[1:]])
-            grads.append((hi - lo) / (2.0 * h))
-        g = np.column_stack(grads)
+        g = central_jacobian(stacked_elasticities, theta)
         var = np.einsum("ek,kl,el->e", g, covariance, g)
         se = np.sqrt(np.where(var >= 0.0, var, np.nan))
     bad = ~np.isfinite(value)

@@ -3,8 +3,8 @@ list, and the map from core argument names back to JSON Pointers into the reques
 
 from __future__ import annotations
 
-from collections.abc import Iterator
-from contextlib import contextmanager
+from collections.abc import Callable, Iterator
+from contextlib import AbstractContextManager, contextmanager
 from dataclasses import dataclass, field
 from typing import Annotated, Any
 
@@ -133,17 +133,31 @@ class Pointers:
             return f"{pointer}/{_escape(self.axis.ids[exc.index])}"
         return f"{pointer}/{exc.index}"
 
-    @contextmanager
-    def translating(self) -> Iterator[None]:
+    def _rule(self, exc: InvalidInput) -> str:
+        if self._per_item(exc):
+            assert isinstance(exc.index, int)
+            return f"{exc.rule} (item {self.axis.ids[exc.index]!r})"
+        return exc.rule
+
+    def translating(self) -> AbstractContextManager[None]:
         """Turn the core's :class:`InvalidInput` into a problem pointing at the request field."""
-        try:
-            yield
-        except InvalidInput as exc:
-            pointer = self.pointer_for(exc)
-            rule = exc.rule
-            if self._per_item(exc):
-                assert isinstance(exc.index, int)
-                rule = f"{rule} (item {self.axis.ids[exc.index]!r})"
-            if not pointer:
-                rule = f"{exc.parameter}: {rule}"
-            raise RequestProblem([FieldError(pointer, rule)]) from exc
+        return invalid_input_as_problem(self.pointer_for, self._rule)
+
+
+def _plain_rule(exc: InvalidInput) -> str:
+    return exc.rule
+
+
+@contextmanager
+def invalid_input_as_problem(pointer: Callable[[InvalidInput], str],
+                             rule: Callable[[InvalidInput], str] = _plain_rule) -> Iterator[None]:
+    """Turn the core's :class:`InvalidInput` raised inside into a problem at ``pointer(exc)``
+    with detail ``rule(exc)``; one that points nowhere names the core argument instead."""
+    try:
+        yield
+    except InvalidInput as exc:
+        where = pointer(exc)
+        detail = rule(exc)
+        if not where:
+            detail = f"{exc.parameter}: {detail}"
+        raise RequestProblem([FieldError(where, detail)]) from exc

@@ -18,8 +18,8 @@ import csv
 import io
 import json
 import math
-from collections.abc import Iterator, Sequence
-from contextlib import contextmanager
+from collections.abc import Sequence
+from contextlib import AbstractContextManager
 from dataclasses import dataclass, field
 from typing import Annotated, Any, Literal
 
@@ -33,7 +33,7 @@ from ...core.estimation.system import Label
 from ...core.preferences import BaseBudget
 from ..problems import FieldError, RequestProblem
 from ..tabular import read_table
-from .common import FiniteFloat, ItemAxis, ItemIn, StrictModel, VectorIn
+from .common import FiniteFloat, ItemAxis, ItemIn, StrictModel, VectorIn, invalid_input_as_problem
 from .comparison import (
     CAUTION,
     ComparisonRequest,
@@ -42,6 +42,7 @@ from .comparison import (
     FormulaName,
     WeightReferenceIn,
 )
+from .tree import tree_to_core
 
 FittedFamily = Literal["ces", "nested_ces", "stone_geary", "aids", "quaids"]
 Estimator = Literal["nonlinear", "linear_approximate"]
@@ -249,21 +250,16 @@ class Locator:
             return "#row=1" if self.csv else "/items"
         return ""
 
-    @contextmanager
-    def translating(self) -> Iterator[None]:
-        try:
-            yield
-        except InvalidInput as exc:
-            pointer = self.pointer(exc)
-            rule = exc.rule
-            idx = exc.index
-            if exc.parameter in ("prices", "shares") and isinstance(idx, tuple) and len(idx) == 2:
-                rule = f"{rule} (item {self.axis.ids[idx[1]]!r})"
-            if exc.parameter == "items" and isinstance(idx, int):
-                rule = f"item {self.axis.ids[idx]!r}: {rule}"
-            if not pointer:
-                rule = f"{exc.parameter}: {rule}"
-            raise RequestProblem([FieldError(pointer, rule)]) from exc
+    def _rule(self, exc: InvalidInput) -> str:
+        rule, idx = exc.rule, exc.index
+        if exc.parameter in ("prices", "shares") and isinstance(idx, tuple) and len(idx) == 2:
+            return f"{rule} (item {self.axis.ids[idx[1]]!r})"
+        if exc.parameter == "items" and isinstance(idx, int):
+            return f"item {self.axis.ids[idx]!r}: {rule}"
+        return rule
+
+    def translating(self) -> AbstractContextManager[None]:
+        return invalid_input_as_problem(self.pointer, self._rule)
 
 
 def _json_field(core_name: str, loc: Locator) -> str:
@@ -522,39 +518,6 @@ def options_of(request: FitRequest) -> FitOptions:
                       request.normalise_shares, request.residuals)
 
 
-def _tree_positions(tree: Any, axis: ItemAxis, where: str, max_depth: int) -> dict[str, Any]:
-    """The grouping with item ids replaced by positions (explicit stack: no recursion)."""
-    if not isinstance(tree, dict):
-        raise RequestProblem([FieldError(where, "must be a group: an object with children")])
-    root: dict[str, Any] = {}
-    stack: list[tuple[dict[str, Any], dict[str, Any], str, int]] = [(tree, root, where, 1)]
-    while stack:
-        node, out, here, depth = stack.pop()
-        if depth > max_depth:
-            raise RequestProblem([FieldError(here, f"the tree is deeper than the limit of "
-                                             f"{max_depth} levels")])
-        out.update({k: v for k, v in node.items() if k != "children"})
-        children = node.get("children")
-        if not isinstance(children, list):
-            raise RequestProblem([FieldError(f"{here}/children", "must be a list of item ids and "
-                                             "groups")])
-        out["children"] = []
-        for j, child in enumerate(children):
-            spot = f"{here}/children/{j}"
-            if isinstance(child, str):
-                if child not in axis.position:
-                    raise RequestProblem([FieldError(spot, f"{child!r} is not an item id listed in "
-                                                     "items")])
-                out["children"].append(axis.position[child])
-            elif isinstance(child, dict):
-                sub: dict[str, Any] = {}
-                out["children"].append(sub)
-                stack.append((child, sub, spot, depth + 1))
-            else:
-                raise RequestProblem([FieldError(spot, "must be an item id or a group")])
-    return root
-
-
 def run_fit(data: PanelInput, spec: FitModelIn, options: FitOptions, settings: Any, *,
             csv: bool) -> tuple[FitResult, PanelInput]:
     """Check the limits, build the panel and fit; errors come back pointing at the input."""
@@ -570,7 +533,8 @@ def run_fit(data: PanelInput, spec: FitModelIn, options: FitOptions, settings: A
     tree = None
     if spec.tree is not None:
         where = "#/query/tree" if csv else "/model/tree"
-        tree = _tree_positions(spec.tree, axis, where, settings.max_tree_depth)
+        # the fit estimates the sigmas: a group's keys go to the core, which checks them
+        tree = tree_to_core(spec.tree, axis, where, settings.max_tree_depth, fields=None)
     panel = data.panel(normalise=options.normalise_shares)
     with data.locator.translating():
         result = fit(

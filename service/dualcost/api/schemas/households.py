@@ -33,12 +33,12 @@ from ...core.households import (
     SkipReport,
     check_quantiles,
 )
-from ...core.preferences import FAMILIES, Notice
+from ...core.preferences import Notice
 from ..problems import FieldError, RequestProblem
 from ..tabular import format_cell, parse_number
 from .common import FiniteFloat, ItemAxis, ItemIn, Pointers, StrictModel, VectorIn
 from .comparison import CAUTION, SIGN_CONVENTION
-from .model import ModelSpec, _is_number, _tree_to_core
+from .model import ModelSpec, model_family, parameters_to_core
 
 HouseholdFormula = Literal[HOUSEHOLD_FORMULAS]  # type: ignore[valid-type]
 ID_COLUMN, EXPENDITURE_COLUMN, WEIGHT_COLUMN = "household", "expenditure", "weight"
@@ -160,34 +160,10 @@ class HouseholdJobSpec(StrictModel):
 
 def model_parameters(spec: ModelSpec, axis: ItemAxis, ptr: Pointers, max_tree_depth: int
                      ) -> dict[str, Any]:
-    """The model's parameters in core form (vectors in item order), without calibrating."""
-    if spec.family not in FAMILIES:
-        known = ", ".join(sorted(FAMILIES))
-        raise RequestProblem([FieldError("/model/family", f"unknown preference family "
-                                         f"{spec.family!r}; known: {known}")])
-    for known_spec in FAMILIES[spec.family].parameter_specs:
-        ptr.note(known_spec.name, f"/model/{known_spec.name}", per_item=False)
-    out: dict[str, Any] = {}
-    for name, value in spec.parameters().items():
-        where = f"/model/{name}"
-        if name == "tree":
-            out[name] = _tree_to_core(value, axis, where, max_tree_depth)
-            ptr.note(name, where, per_item=False)
-        elif _is_number(value) or value is None:
-            out[name] = value
-            ptr.note(name, where, per_item=False)
-        elif isinstance(value, list) and value and all(isinstance(r, list) for r in value):
-            out[name] = axis.matrix(value, where)
-            ptr.note(name, where, per_item=False)
-        elif isinstance(value, (list, dict)) and all(
-            _is_number(v) for v in (value.values() if isinstance(value, dict) else value)
-        ):
-            out[name] = axis.vector(value, where)
-            ptr.note(name, where, value)
-        else:
-            raise RequestProblem([FieldError(where, "must be a number, a vector (object keyed by "
-                                             "item id, or list in item order), a matrix, or a "
-                                             "tree")])
+    """The model's parameters in core form (vectors in item order), without calibrating; a
+    parameter given as null is left out."""
+    model_family(spec, ptr)
+    out = parameters_to_core(spec, axis, ptr, max_tree_depth)
     return {k: v for k, v in out.items() if v is not None}
 
 

@@ -19,6 +19,7 @@ from ...config import Settings
 from ...core.preferences import FAMILIES, BaseBudget, Preferences, calibrate
 from ..problems import FieldError, RequestProblem
 from .common import ItemAxis, Pointers
+from .tree import tree_to_core
 
 
 class ModelSpec(BaseModel):
@@ -36,47 +37,6 @@ class ModelSpec(BaseModel):
 
 def _is_number(v: Any) -> bool:
     return isinstance(v, (int, float)) and not isinstance(v, bool)
-
-
-def _tree_to_core(tree: Any, axis: ItemAxis, pointer: str, max_depth: int) -> dict[str, Any]:
-    """Replace item ids by positions; walk with an explicit stack so depth costs no recursion."""
-    if not isinstance(tree, dict):
-        raise RequestProblem([FieldError(pointer, "must be a group: an object with sigma and "
-                                         "children")])
-    root: dict[str, Any] = {}
-    stack: list[tuple[Any, dict[str, Any], str, int]] = [(tree, root, pointer, 1)]
-    while stack:
-        node, out, where, depth = stack.pop()
-        if depth > max_depth:
-            raise RequestProblem([FieldError(where, f"the tree is deeper than the limit of "
-                                             f"{max_depth} levels")])
-        unknown = set(node) - {"name", "sigma", "children"}
-        if unknown:
-            key = sorted(unknown)[0]
-            raise RequestProblem([FieldError(f"{where}/{key}", "is not a field of a group (a "
-                                             "group has name, sigma and children)")])
-        for key in ("name", "sigma"):
-            if key in node:
-                out[key] = node[key]
-        children = node.get("children")
-        if not isinstance(children, list):
-            raise RequestProblem([FieldError(f"{where}/children", "must be a list of item ids "
-                                             "and groups")])
-        out["children"] = []
-        for j, child in enumerate(children):
-            here = f"{where}/children/{j}"
-            if isinstance(child, str):
-                if child not in axis.position:
-                    raise RequestProblem([FieldError(here, f"{child!r} is not an item id listed "
-                                                     "in items")])
-                out["children"].append(axis.position[child])
-            elif isinstance(child, dict):
-                sub: dict[str, Any] = {}
-                out["children"].append(sub)
-                stack.append((child, sub, here, depth + 1))
-            else:
-                raise RequestProblem([FieldError(here, "must be an item id or a group")])
-    return root
 
 
 def _escape(token: str) -> str:
@@ -202,37 +162,28 @@ def _formulas_to_core(name: str, value: Any, axis: ItemAxis, where: str,
     return out
 
 
-def model_to_core(spec: ModelSpec, base: BaseBudget, axis: ItemAxis, pointers: Pointers,
-                  *, max_tree_depth: int, compute_deadline_seconds: float | None = None) -> Preferences:
-    """Calibrate the requested family to the base budget.
-
-    Families that declare ``parameter_shapes`` (those without a closed form) get their
-    parameters converted by shape, the item ids and the service's compute deadline
-    (``compute_deadline_seconds``; by default the ``DUALCOST_COMPUTE_DEADLINE_SECONDS`` setting).
-    """
+def model_family(spec: ModelSpec, pointers: Pointers) -> type[Preferences]:
+    """The requested family's class. Each parameter it takes is given its pointer first, so that a
+    missing one is pointed at too."""
     if spec.family not in FAMILIES:
         known = ", ".join(sorted(FAMILIES))
         raise RequestProblem([FieldError("/model/family", f"unknown preference family "
                                          f"{spec.family!r}; known: {known}")])
     cls = FAMILIES[spec.family]
-    for known in cls.parameter_specs:  # a missing one is pointed at too
-        pointers.note(known.name, f"/model/{known.name}", per_item=False)
+    for known_spec in cls.parameter_specs:
+        pointers.note(known_spec.name, f"/model/{known_spec.name}", per_item=False)
+    return cls
+
+
+def parameters_to_core(spec: ModelSpec, axis: ItemAxis, pointers: Pointers, max_tree_depth: int
+                       ) -> dict[str, Any]:
+    """The parameters of a family with a closed form, in core form: numbers (a null stays None),
+    vectors in item order, matrices, a nested CES tree with item positions."""
     converted: dict[str, Any] = {}
-    shapes: dict[str, str] | None = getattr(cls, "parameter_shapes", None)
-    if shapes is not None:
-        for name, value in spec.parameters().items():
-            converted[name] = _shaped_to_core(cls, name, value, axis, pointers)
-        if "item_names" in shapes.values():
-            converted["item_names"] = list(axis.ids)
-        if "deadline" in shapes.values():
-            if compute_deadline_seconds is None:
-                compute_deadline_seconds = Settings().compute_deadline_seconds
-            converted["deadline_seconds"] = compute_deadline_seconds
-        return _calibrated(spec, base, converted, pointers)
     for name, value in spec.parameters().items():
         where = f"/model/{name}"
         if name == "tree":
-            converted[name] = _tree_to_core(value, axis, where, max_tree_depth)
+            converted[name] = tree_to_core(value, axis, where, max_tree_depth, fields=("name", "sigma"))
             pointers.note(name, where, per_item=False)
         elif _is_number(value) or value is None:
             converted[name] = value
@@ -249,7 +200,31 @@ def model_to_core(spec: ModelSpec, base: BaseBudget, axis: ItemAxis, pointers: P
             raise RequestProblem([FieldError(where, "must be a number, a vector (object keyed by "
                                              "item id, or list in item order), a matrix, or a "
                                              "tree")])
-    return _calibrated(spec, base, converted, pointers)
+    return converted
+
+
+def model_to_core(spec: ModelSpec, base: BaseBudget, axis: ItemAxis, pointers: Pointers,
+                  *, max_tree_depth: int, compute_deadline_seconds: float | None = None) -> Preferences:
+    """Calibrate the requested family to the base budget.
+
+    Families that declare ``parameter_shapes`` (those without a closed form) get their
+    parameters converted by shape, the item ids and the service's compute deadline
+    (``compute_deadline_seconds``; by default the ``DUALCOST_COMPUTE_DEADLINE_SECONDS`` setting).
+    """
+    cls = model_family(spec, pointers)
+    shapes: dict[str, str] | None = getattr(cls, "parameter_shapes", None)
+    if shapes is not None:
+        converted: dict[str, Any] = {}
+        for name, value in spec.parameters().items():
+            converted[name] = _shaped_to_core(cls, name, value, axis, pointers)
+        if "item_names" in shapes.values():
+            converted["item_names"] = list(axis.ids)
+        if "deadline" in shapes.values():
+            if compute_deadline_seconds is None:
+                compute_deadline_seconds = Settings().compute_deadline_seconds
+            converted["deadline_seconds"] = compute_deadline_seconds
+        return _calibrated(spec, base, converted, pointers)
+    return _calibrated(spec, base, parameters_to_core(spec, axis, pointers, max_tree_depth), pointers)
 
 
 def _calibrated(spec: ModelSpec, base: BaseBudget, converted: dict[str, Any],

@@ -11,8 +11,8 @@ from __future__ import annotations
 import csv
 import io
 import json
-from collections.abc import Iterator, Sequence
-from contextlib import contextmanager
+from collections.abc import Sequence
+from contextlib import AbstractContextManager
 from dataclasses import dataclass, field
 from typing import Annotated, Any, Literal
 
@@ -33,7 +33,15 @@ from ...core.series import (
 from ...core.series_panel import Panel
 from ..problems import FieldError, RequestProblem
 from ..tabular import read_table
-from .common import FiniteFloat, ItemAxis, ItemIn, Pointers, StrictModel, VectorIn
+from .common import (
+    FiniteFloat,
+    ItemAxis,
+    ItemIn,
+    Pointers,
+    StrictModel,
+    VectorIn,
+    invalid_input_as_problem,
+)
 from .comparison import CAUTION
 from .model import ModelSpec, model_to_core
 
@@ -220,16 +228,8 @@ class Locator:
             return f"/{name}/{t}"
         return "#row=1" if self.csv else f"/{name}"
 
-    @contextmanager
-    def translating(self) -> Iterator[None]:
-        try:
-            yield
-        except InvalidInput as exc:
-            pointer = self.pointer(exc)
-            rule = exc.rule
-            if not pointer:
-                rule = f"{exc.parameter}: {rule}"
-            raise RequestProblem([FieldError(pointer, rule)]) from exc
+    def translating(self) -> AbstractContextManager[None]:
+        return invalid_input_as_problem(self.pointer)
 
     def rewrite(self, problem: RequestProblem) -> RequestProblem:
         """A problem raised with JSON pointers into ``/model``, re-pointed for the CSV form."""

@@ -33,7 +33,7 @@ the residual degrees of freedom of one equation in that case.
 from __future__ import annotations
 
 import abc
-from collections.abc import Callable, Sequence
+from collections.abc import Sequence
 from dataclasses import dataclass
 from typing import Any
 
@@ -41,6 +41,7 @@ import numpy as np
 from numpy.typing import NDArray
 from scipy.optimize import least_squares
 
+from .._differences import central_jacobian
 from ..errors import InvalidInput, NumericalFailure
 from .panel import Panel
 
@@ -124,20 +125,6 @@ class ShareSystem(abc.ABC):
     def full(self, theta: Vector) -> Vector:
         a, c = self.full_map
         return a @ theta + c
-
-
-def central_jacobian(func: Callable[[Vector], Matrix], theta: Vector) -> Array3:
-    """Central differences of ``func`` (returning T by n) in each parameter, step
-    ``1e-6 (1 + |theta_k|)``: truncation error of order 1e-12, rounding of order 1e-10."""
-    cols = []
-    for k in range(theta.size):
-        h = 1e-6 * (1.0 + abs(float(theta[k])))
-        up = theta.copy()
-        down = theta.copy()
-        up[k] += h
-        down[k] -= h
-        cols.append((func(up) - func(down)) / (2.0 * h))
-    return np.stack(cols, axis=-1)
 
 
 @dataclass(frozen=True)
