@@ -71,8 +71,9 @@ def stop(proc: subprocess.Popen[bytes]) -> None:
 
 
 def to_ms(text: str) -> float:
-    value, unit = re.match(r"([\d.]+)(us|ms|s)", text).groups()  # type: ignore[union-attr]
-    return float(value) * {"us": 0.001, "ms": 1.0, "s": 1000.0}[unit]
+    """wrk's latency cells: '812.00us', '3.41ms', '1.20s' or '2.00m'."""
+    value, unit = re.match(r"([\d.]+)(us|ms|s|m)$", text).groups()  # type: ignore[union-attr]
+    return float(value) * {"us": 0.001, "ms": 1.0, "s": 1000.0, "m": 60_000.0}[unit]
 
 
 def drive(url: str, script: str, seconds: int, clients: int) -> dict[str, float]:

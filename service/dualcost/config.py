@@ -18,6 +18,8 @@ class Settings(BaseSettings):
     host: str = Field("127.0.0.1", description="Address to listen on.")
     port: int = Field(8000, ge=1, le=65535, description="Port to listen on.")
     workers: int = Field(1, ge=1, le=64, description="Worker processes (uvicorn).")
+    compute_threads: int = Field(2, ge=1, le=64, description="Requests one worker process "
+                                 "computes at the same time (the rest wait their turn).")
     examples_dir: Path = Field(
         _REPO_EXAMPLES,
         description="Folder of example request bodies shown in the OpenAPI document.",

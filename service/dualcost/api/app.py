@@ -6,6 +6,7 @@ from collections.abc import AsyncIterator
 from contextlib import asynccontextmanager
 from pathlib import Path
 
+import anyio.to_thread
 from fastapi import FastAPI
 from fastapi.middleware.cors import CORSMiddleware
 from fastapi.responses import FileResponse
@@ -55,6 +56,10 @@ async def _lifespan(app: FastAPI) -> AsyncIterator[None]:
 
     base = BaseBudget.from_quantities([1.0, 2.0], [1.0, 1.0])
     compare(calibrate("ces", base, {"sigma": 0.5}), base, [1.1, 2.0])
+    # The computations hold the interpreter lock: more threads than this per process only
+    # switch between each other (the framework's default is 40).
+    anyio.to_thread.current_default_thread_limiter().total_tokens = (
+        app.state.settings.compute_threads)
     app.state.ready = True
     yield
     app.state.ready = False
