@@ -44,6 +44,10 @@ class Settings(BaseSettings):
                                   "equations times parameters, of one fit's Jacobian (its memory).")
     max_bootstrap_draws: int = Field(5_000, ge=10, description="Most parameter draws for the "
                                      "intervals of a fitted comparison.")
+    max_formula_chars: int = Field(4_000, ge=10, le=1_000_000, description="Longest formula "
+                                   "(demand or utility) accepted, in characters.")
+    max_formula_depth: int = Field(64, ge=2, le=500, description="Deepest nesting of brackets and "
+                                   "functions accepted in a formula.")
     compute_deadline_seconds: float = Field(
         10.0, gt=0, le=3600,
         description="Seconds one request may spend in the numerical solves of the families without a "

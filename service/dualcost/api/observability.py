@@ -27,6 +27,9 @@ from typing import Any
 from prometheus_client import CONTENT_TYPE_LATEST, CollectorRegistry, Counter, Histogram, generate_latest
 from starlette.types import ASGIApp, Message, Receive, Scope, Send
 
+from ..core.deadline import deadline
+from ..core.expressions import formula_limits
+
 REQUEST_ID: contextvars.ContextVar[str] = contextvars.ContextVar("request_id", default="-")
 _SANE_ID = re.compile(r"^[A-Za-z0-9._-]{1,64}$")
 log = logging.getLogger("dualcost.requests")
@@ -48,6 +51,15 @@ def compute_time(operation: str) -> Iterator[None]:
         yield
     finally:
         COMPUTE.labels(operation).observe(time.perf_counter() - start)
+
+
+@contextmanager
+def computing(operation: str, settings: Any) -> Iterator[None]:
+    """A request's computation: timed for the metrics, under the compute deadline and the
+    formula limits of the service's settings."""
+    with compute_time(operation), deadline(settings.compute_deadline_seconds), formula_limits(
+            settings.max_formula_chars, settings.max_formula_depth):
+        yield
 
 
 def metrics_text() -> tuple[bytes, str]:

@@ -40,7 +40,9 @@ argument that is smallest, or largest, there).
 from __future__ import annotations
 
 import difflib
-from collections.abc import Callable, Collection, Mapping, Sequence
+from collections.abc import Callable, Collection, Iterator, Mapping, Sequence
+from contextlib import contextmanager
+from contextvars import ContextVar
 from dataclasses import dataclass, field
 from typing import Any
 
@@ -841,6 +843,19 @@ def evaluate_all(formulas: Sequence[Expression], values: Mapping[str, float], *,
     return out
 
 
+_LIMITS: ContextVar[tuple[int, int] | None] = ContextVar("dualcost_formula_limits", default=None)
+
+
+@contextmanager
+def formula_limits(max_length: int, max_depth: int) -> Iterator[None]:
+    """Parse formulas in the enclosed work with these limits (the service sets them per request)."""
+    token = _LIMITS.set((int(max_length), int(max_depth)))
+    try:
+        yield
+    finally:
+        _LIMITS.reset(token)
+
+
 def parse(
     text: Any,
     names: Collection[str],
@@ -848,8 +863,8 @@ def parse(
     parameter: str = "formula",
     index: int | None = None,
     describe_names: str | None = None,
-    max_length: int = MAX_LENGTH,
-    max_depth: int = MAX_DEPTH,
+    max_length: int | None = None,
+    max_depth: int | None = None,
 ) -> Expression:
     """Parse ``text`` into an :class:`Expression` that may use only ``names``.
 
@@ -864,8 +879,14 @@ def parse(
     describe_names:
         How the allowed names are described in an error (default: lists a few of them).
     max_length, max_depth:
-        Longest text and deepest nesting accepted.
+        Longest text and deepest nesting accepted (default: the limits set with
+        :func:`formula_limits` for the work in progress, else ``MAX_LENGTH`` and ``MAX_DEPTH``).
     """
+    limits = _LIMITS.get()
+    if max_length is None:
+        max_length = limits[0] if limits else MAX_LENGTH
+    if max_depth is None:
+        max_depth = limits[1] if limits else MAX_DEPTH
     if not isinstance(text, str):
         raise InvalidInput(parameter, "must be a formula written as text", index)
     if len(text) > max_length:
@@ -885,4 +906,4 @@ def parse(
     return Expression.from_node(text, root, frozenset(parser.used), parameter, index)
 
 
-__all__ = ["Expression", "MAX_DEPTH", "MAX_LENGTH", "evaluate_all", "parse"]
+__all__ = ["Expression", "MAX_DEPTH", "MAX_LENGTH", "evaluate_all", "formula_limits", "parse"]

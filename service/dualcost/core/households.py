@@ -51,6 +51,7 @@ from numpy.typing import NDArray
 from . import _checks
 from ._means import log_power_mean, power_mean_shares
 from .comparison import compare
+from .deadline import check as check_deadline
 from .errors import DualcostError, InvalidInput
 from .indices import FORMULAS, IndexData
 from .preferences import FAMILIES, BaseBudget, Notice, calibrate
@@ -606,6 +607,7 @@ def _evaluate_one_by_one(job: HouseholdJob, rows: NDArray[np.int64], w0: Matrix,
     names = (*job.formulas, *KONUS_COLUMNS, *MONEY_COLUMNS)
     out = {name: np.full((job.n_periods, w0.shape[0]), np.nan) for name in names}
     for h in np.flatnonzero(~bad):
+        check_deadline("calibrating and comparing households one by one")
         try:
             base = BaseBudget.from_shares(job.base_prices, w0[h], float(m[h]))
             model = calibrate(job.family, base, job.parameters)

@@ -41,6 +41,7 @@ from typing import Literal
 import numpy as np
 from numpy.typing import NDArray
 
+from .deadline import check as check_deadline
 from .errors import InvalidInput
 
 Array = NDArray[np.float64]
@@ -128,6 +129,7 @@ def rolling_geks(log_matrix: Array, window: int, splice: Splice = "movement") ->
     out[:window] = first - first[0]  # log values
     half = (window - 1) // 2
     for t in range(window, n_t):
+        check_deadline("splicing the rolling GEKS windows")
         lo = t - window + 1
         level = np.mean(g[lo : t + 1, lo : t + 1], axis=0)  # l_j for j in the window
         if splice == "movement":

@@ -54,6 +54,7 @@ import numpy as np
 
 from ._means import log_power_mean
 from .comparison import WeightReference
+from .deadline import check as check_deadline
 from .errors import InvalidInput, NumericalFailure
 from .indices import FORMULAS, IndexData, Target
 from .multilateral import Splice, bilateral_log_matrix, geks, rolling_geks
@@ -425,6 +426,7 @@ def _homothetic_costs(model: Preferences, prices: Array, u: float) -> Array:
 
 
 def _at_period(panel: Panel, t: int, fn: Callable[[], float]) -> float:
+    check_deadline(f"evaluating the model at period {panel.periods[t]!r}")
     try:
         value = fn()
     except InvalidInput as exc:

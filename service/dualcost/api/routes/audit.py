@@ -10,7 +10,7 @@ from fastapi import APIRouter, Body
 from ...config import Settings
 from ..deps import SettingsDep
 from ..examples import load_examples
-from ..observability import compute_time
+from ..observability import computing
 from ..schemas.audit import AuditRequest, AuditResponse, run_audit
 
 
@@ -29,7 +29,7 @@ def router(settings: Settings) -> APIRouter:
         each a formula, a series (fixed_base or chained), a period and a value. Every value is
         recomputed and passes when within its tolerance; `passed` is true when all do. The same
         check runs from the command line as `dualcost check`."""
-        with compute_time("auditPublishedSeries"):
+        with computing("auditPublishedSeries", settings):
             return run_audit(request, settings)
 
     return r

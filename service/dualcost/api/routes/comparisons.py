@@ -13,7 +13,7 @@ from ...config import Settings
 from ...core.errors import NumericalFailure
 from ..deps import SettingsDep
 from ..examples import load_examples
-from ..observability import compute_time
+from ..observability import computing
 from ..problems import PROBLEM_MEDIA_TYPE
 from ..schemas.comparison import (
     ComparisonRequest,
@@ -50,7 +50,7 @@ def router(settings: Settings) -> APIRouter:
         the formula indices, with each formula's substitution bias, the compensating and
         equivalent variation, the Hicks decomposition of demand changes and each item's
         contribution to the Laspeyres gap."""
-        with compute_time("compare"):
+        with computing("compare", settings):
             result, model, axis = request.run(max_items=settings.max_items,
                                               max_tree_depth=settings.max_tree_depth,
                                               compute_deadline_seconds=settings.compute_deadline_seconds)

@@ -12,7 +12,7 @@ from fastapi.responses import Response
 from ...config import Settings
 from ..deps import SettingsDep
 from ..examples import load_examples
-from ..observability import compute_time
+from ..observability import computing
 from ..problems import PROBLEM_MEDIA_TYPE
 from ..schemas.comparison import CAUTION, ComparisonResponse
 from ..schemas.estimation import (
@@ -96,7 +96,7 @@ def router(settings: Settings) -> APIRouter:
             description="Answer format; default by the Accept header (JSON unless text/csv is "
                         "preferred). CSV gives the parameter table.")] = None,
     ) -> Response:
-        with compute_time("fitModel"):
+        with computing("fitModel", settings):
             result, data = body.run(settings)
         return _fit_answer(result, data, request, format, residuals=body.residuals,
                            given_point=body.elasticities_at is not None)
@@ -133,7 +133,7 @@ def router(settings: Settings) -> APIRouter:
                                    tree=tree)
         data = data_from_csv(text, max_rows=settings.max_fit_cells)
         options = FitOptions(confidence_level, None, max_iterations, normalise_shares, residuals)
-        with compute_time("fitModelCsv"):
+        with computing("fitModelCsv", settings):
             result, data = run_fit(data, spec, options, settings, csv=True)
         return _fit_answer(result, data, request, format, residuals=residuals, given_point=False)
 
@@ -157,7 +157,7 @@ def router(settings: Settings) -> APIRouter:
         body: Annotated[FitAndCompareRequest, Body(openapi_examples=compare_examples)],  # type: ignore[arg-type]
         settings: SettingsDep,
     ) -> Response:
-        with compute_time("fitAndCompare"):
+        with computing("fitAndCompare", settings):
             result, data, point, (model, axis), intervals = run_fit_and_compare(body, settings)
         answer = FitAndCompareResponse(
             fit=FitResponse.from_result(result, data, residuals=body.residuals,

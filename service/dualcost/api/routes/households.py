@@ -48,7 +48,7 @@ from ...core.households import (
 )
 from ..deps import SettingsDep
 from ..examples import load_examples
-from ..observability import compute_time
+from ..observability import computing
 from ..problems import PROBLEM_MEDIA_TYPE, FieldError, RequestProblem
 from ..schemas.common import ItemAxis
 from ..schemas.comparison import CAUTION
@@ -420,7 +420,7 @@ def router(settings: Settings) -> APIRouter:
         scheduler = _scheduler(request.engine, len(request.households), settings)
         labels = request.period_labels()
         try:
-            with compute_time("householdIndices"):
+            with computing("householdIndices", settings):
                 chunks = chunks_of(job, shares, expenditure=incomes, weights=weights, ids=ids)
                 result = collect(job, _evaluate(job, chunks, scheduler, settings),
                                  on_bad_rows=request.bad_rows or "reject", quantiles=quantiles,

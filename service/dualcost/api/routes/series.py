@@ -12,6 +12,7 @@ from fastapi.responses import Response
 from ...config import Settings
 from ..deps import SettingsDep
 from ..examples import load_examples
+from ..observability import computing
 from ..problems import PROBLEM_MEDIA_TYPE
 from ..schemas.series import (
     SeriesRequest,
@@ -90,8 +91,9 @@ def router(settings: Settings) -> APIRouter:
     ) -> Any:
         data = panel_from_json(body, max_periods=settings.max_periods, max_items=settings.max_items,
                                max_cells=settings.max_panel_cells)
-        run = run_series(data, body, max_tree_depth=settings.max_tree_depth,
-                         compute_deadline_seconds=settings.compute_deadline_seconds)
+        with computing("indexSeries", settings):
+            run = run_series(data, body, max_tree_depth=settings.max_tree_depth,
+                             compute_deadline_seconds=settings.compute_deadline_seconds)
         return answer(run, request, format)
 
     @r.post(
@@ -137,8 +139,9 @@ def router(settings: Settings) -> APIRouter:
             geks_splice=geks_splice, span_start=span_start, span_end=span_end, loop=loop))
         data = panel_from_csv(text, max_periods=settings.max_periods, max_items=settings.max_items,
                               max_cells=settings.max_panel_cells)
-        run = run_series(data, options, max_tree_depth=settings.max_tree_depth,
-                         compute_deadline_seconds=settings.compute_deadline_seconds)
+        with computing("indexSeriesFromCsv", settings):
+            run = run_series(data, options, max_tree_depth=settings.max_tree_depth,
+                             compute_deadline_seconds=settings.compute_deadline_seconds)
         return answer(run, request, format)
 
     return r

@@ -25,6 +25,7 @@ from fastapi.responses import PlainTextResponse, Response
 from pydantic import ValidationError
 
 from ..deps import SettingsDep
+from ..observability import computing
 from ..problems import (
     FieldError,
     RequestProblem,
@@ -131,9 +132,10 @@ def _build(params: dict[str, Any]) -> ComparisonRequest:
 def _run(params: dict[str, Any], settings: Any) -> ComparisonResponse:
     request = _build(params)
     try:
-        result, model, axis = request.run(max_items=settings.max_items,
-                                          max_tree_depth=settings.max_tree_depth,
-                                          compute_deadline_seconds=settings.compute_deadline_seconds)
+        with computing("sheetComparison", settings):
+            result, model, axis = request.run(max_items=settings.max_items,
+                                              max_tree_depth=settings.max_tree_depth,
+                                              compute_deadline_seconds=settings.compute_deadline_seconds)
     except RequestProblem as exc:
         raise RequestProblem([FieldError(_query_pointer(e.pointer), e.detail) for e in exc.errors],
                              slug=exc.slug) from None

@@ -42,6 +42,7 @@ from numpy.typing import NDArray
 from scipy.optimize import least_squares
 
 from .._differences import central_jacobian
+from ..deadline import check as check_deadline
 from ..errors import InvalidInput, NumericalFailure
 from .panel import Panel
 
@@ -177,6 +178,7 @@ def fit_system(system: ShareSystem, panel: Panel, *, max_iterations: int = 200,
     previous: Vector | None = None
     iterations = 0
     for step in range(1, max_iterations + 1):
+        check_deadline("fitting the model by iterated least squares")
         iterations = step
         chol = _cholesky(weighting)
         if design is not None:

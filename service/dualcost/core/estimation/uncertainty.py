@@ -25,6 +25,7 @@ import numpy as np
 import numpy.typing as npt
 
 from ..comparison import Comparison, compare
+from ..deadline import check as check_deadline
 from ..errors import DualcostError, InvalidInput, NumericalFailure
 from ..preferences import calibrate
 from ..preferences.base import BaseBudget, Notice
@@ -102,6 +103,7 @@ def comparison_intervals(
     failed = 0
     first: str | None = None
     for theta in thetas:
+        check_deadline("drawing parameters for the intervals")
         # A drawn model may leave the floating-point range (a NaN the comparison then refuses):
         # such a draw counts as failed, so numpy's warnings on the way are not wanted.
         try:
