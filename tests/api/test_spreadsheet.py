@@ -102,3 +102,41 @@ def test_shares_with_total_expenditure_and_a_reference_income(client) -> None:
     r = client.get(url)
     assert r.status_code == 200, r.text
     assert 1.0 < spreadsheet_number(r.text) < 1.25
+
+
+# The CPI Manual's six-commodity table as a spreadsheet would send it: one `prices` and one
+# `quantities` parameter per period (ILO et al. 2004, CPI Manual ch. 19, Tables 19.1-19.3;
+# recalled from memory).
+def _series_url() -> str:
+    from tests.reference_data import SIX_COMMODITY_PRICES as PRICES
+    from tests.reference_data import SIX_COMMODITY_QUANTITIES as QUANTITIES
+
+    def rows(name, table):
+        return "".join(f"&{name}=" + ",".join(repr(float(v)) for v in row) for row in table)
+
+    return ("/v1/sheet/series?items=c1,c2,c3,c4,c5,c6&periods=1,2,3,4,5&reference_value=1"
+            "&formulas=laspeyres,paasche,fisher,tornqvist" + rows("prices", PRICES)
+            + rows("quantities", QUANTITIES))
+
+
+def test_series_form_gives_the_published_table_as_csv(client) -> None:
+    from tests.reference_data import SIX_COMMODITY_PRINTED as PRINTED
+
+    r = client.get(_series_url())
+    assert r.status_code == 200 and r.headers["content-type"].startswith("text/csv")
+    rows = list(csv.reader(io.StringIO(r.text)))
+    header = rows[0]
+    assert header[0] == "period"
+    for formula in ("laspeyres", "paasche", "fisher", "tornqvist"):
+        column = header.index(f"{formula}_fixed_base")
+        values = [spreadsheet_number(row[column]) for row in rows[1:]]
+        assert_allclose(values, PRINTED[formula], atol=5e-5)
+
+
+def test_series_form_reports_a_bad_cell_as_text_when_asked(client) -> None:
+    url = _series_url().replace("&prices=1.2,3.0", "&prices=1.2,-3.0", 1) + "&on_error=text"
+    r = client.get(url)
+    assert r.status_code == 200 and r.text.startswith("ERROR: prices/1/1")
+    missing = client.get(_series_url().replace("&prices=1.0,1.0,1.0,1.0,1.0,1.0", "", 1))
+    assert missing.status_code == 422
+    assert missing.json()["errors"][0]["pointer"] == "#/query/prices"

@@ -20,7 +20,7 @@ from __future__ import annotations
 
 from typing import Annotated, Any, Literal
 
-from fastapi import APIRouter, Depends, Query
+from fastapi import APIRouter, Depends, Query, Request
 from fastapi.responses import PlainTextResponse, Response
 from pydantic import ValidationError
 
@@ -245,4 +245,121 @@ def sheet_value(params: Params, settings: SettingsDep,
 @router.options("/comparison", include_in_schema=False)
 @router.options("/value", include_in_schema=False)
 def sheet_options() -> Response:
+    return Response(status_code=204, headers={"allow": "GET, HEAD, OPTIONS"})
+
+
+# -- the series, for a short panel -------------------------------------------------------------
+
+
+def _series_rows(name: str, values: list[str] | None, n_periods: int) -> list[list[float]] | None:
+    """One repeated query parameter per period, each a vector in item order."""
+    if not values:
+        return None
+    if len(values) != n_periods:
+        raise RequestProblem([FieldError(f"#/query/{name}", f"is given {len(values)} times but there "
+                                         f"are {n_periods} periods; give it once per period, in "
+                                         "the order of periods")])
+    rows = []
+    for t, text in enumerate(values):
+        try:
+            row = _vector(name, text)
+        except RequestProblem as exc:
+            raise RequestProblem([FieldError(e.pointer.replace(f"#/query/{name}/",
+                                                               f"#/query/{name}/{t}/"), e.detail)
+                                  for e in exc.errors]) from None
+        assert row is not None
+        rows.append(row)
+    return rows
+
+
+def _series_query_pointer(body_pointer: str) -> str:
+    """``/prices/2/1`` becomes ``#/query/prices/2/1``; ``/model/sigma`` becomes ``#/query/sigma``."""
+    if not body_pointer.startswith("/"):
+        return body_pointer
+    if body_pointer == "/model":
+        return "#/query/family"
+    return "#/query" + body_pointer.removeprefix("/model")
+
+
+def _series_table(request: Request, settings: Any, digits: int | None, sigma: float | None) -> str:
+    from ..schemas.series import SeriesRequest, csv_table, panel_from_json, run_series
+
+    q = request.query_params
+    items = [s.strip() for s in q.get("items", "").split(",") if s.strip()]
+    periods = [s.strip() for s in q.get("periods", "").split(",") if s.strip()]
+    body: dict[str, Any] = {"items": items, "periods": periods,
+                            "prices": _series_rows("prices", q.getlist("prices"), len(periods)) or []}
+    quantities = _series_rows("quantities", q.getlist("quantities"), len(periods))
+    if quantities is not None:
+        body["quantities"] = quantities
+    for key in ("base_period", "reference_period"):
+        if q.get(key):
+            body[key] = q[key]
+    if q.get("reference_value"):
+        body["reference_value"] = int(q["reference_value"])
+    if q.get("formulas"):
+        body["formulas"] = [s.strip() for s in q["formulas"].split(",") if s.strip()]
+    if q.get("family"):
+        body["model"] = {"family": q["family"]}
+        if sigma is not None:
+            body["model"]["sigma"] = sigma
+    try:
+        series_request = SeriesRequest.model_validate(body)
+    except ValidationError as exc:
+        raise RequestProblem([FieldError(_series_query_pointer(_pointer(("body", *e["loc"]))),
+                                         _pydantic_message(e)) for e in exc.errors()]) from None
+    try:
+        data = panel_from_json(series_request, max_periods=settings.max_periods,
+                               max_items=settings.max_items, max_cells=settings.max_panel_cells)
+        with computing("sheetSeries", settings):
+            run = run_series(data, series_request, max_tree_depth=settings.max_tree_depth,
+                             compute_deadline_seconds=settings.compute_deadline_seconds)
+    except RequestProblem as exc:
+        raise RequestProblem([FieldError(_series_query_pointer(e.pointer), e.detail)
+                              for e in exc.errors], slug=exc.slug) from None
+    header, rows = csv_table(run)
+    return csv_text(header, _formatted(rows, digits))
+
+
+@router.head("/series", include_in_schema=False)
+@router.get("/series", operation_id="sheetSeries",
+            response_class=Response,
+            responses={200: {"content": {"text/csv": {}, "text/plain": {}},
+                             "description": "CSV: one row per period, one column per series (as "
+                             "POST /v1/index-series answers in CSV); with on_error=text a bad "
+                             "request is answered as text/plain 'ERROR: ...'"}})
+def sheet_series(
+    request: Request,
+    settings: SettingsDep,
+    items: Annotated[str, Query(description="Item ids, comma-separated: the order of every row.")],
+    periods: Annotated[str, Query(description="Period labels, comma-separated, in time order.")],
+    prices: Annotated[list[str], Query(description="Repeated once per period, in period order: "
+                                                   "that period's prices in item order.")],
+    quantities: Annotated[list[str] | None, Query(description="Repeated once per period, like "
+                                                               "prices (optional).")] = None,
+    base_period: str | None = None,
+    reference_period: str | None = None,
+    reference_value: Annotated[int | None, Query(description="1 or 100 (default 100).")] = None,
+    formulas: Annotated[str | None, Query(description="Comma-separated formula names.")] = None,
+    family: Annotated[str | None, Query(description="A model for the Konüs series (ces, "
+                                                    "cobb_douglas, translog, quadratic).")] = None,
+    sigma: float | None = None,
+    digits: Annotated[int | None, Query(ge=0, le=15)] = None,
+    on_error: Literal["problem", "text"] = "problem",
+) -> Response:
+    """The index series of a short panel for a spreadsheet's CSV import: each period's prices
+    (and quantities) as one repeated query parameter, e.g.
+    `?items=rye_loaf,ferry_pass&periods=2025-01,2025-02&prices=2.40,38&prices=2.45,38`."""
+    try:
+        text = _series_table(request, settings, digits, sigma)
+    except RequestProblem as exc:
+        if on_error == "text":
+            return PlainTextResponse(error_text(exc.errors))
+        return problem_response(exc.slug, "; ".join(f"{e.pointer}: {e.detail}" for e in exc.errors),
+                                errors=exc.errors)
+    return Response(text, media_type="text/csv; charset=utf-8")
+
+
+@router.options("/series", include_in_schema=False)
+def sheet_series_options() -> Response:
     return Response(status_code=204, headers={"allow": "GET, HEAD, OPTIONS"})
