@@ -81,8 +81,8 @@ def drive(url: str, script: str, seconds: int, clients: int) -> dict[str, float]
                           "--latency", "-s", script, url], capture_output=True, text=True,
                          timeout=seconds + 60, check=True).stdout
     rps = float(re.search(r"Requests/sec:\s+([\d.]+)", out).group(1))  # type: ignore[union-attr]
-    p50 = to_ms(re.search(r"50%\s+(\S+)", out).group(1))  # type: ignore[union-attr]
-    p99 = to_ms(re.search(r"99%\s+(\S+)", out).group(1))  # type: ignore[union-attr]
+    p50 = to_ms(re.search(r"^\s+50%\s+(\S+)", out, re.M).group(1))  # type: ignore[union-attr]
+    p99 = to_ms(re.search(r"^\s+99%\s+(\S+)", out, re.M).group(1))  # type: ignore[union-attr]
     total = int(re.search(r"(\d+) requests in", out).group(1))  # type: ignore[union-attr]
     non2xx = re.search(r"Non-2xx or 3xx responses: (\d+)", out)
     sock = re.search(r"Socket errors: connect (\d+), read (\d+), write (\d+), timeout (\d+)", out)
