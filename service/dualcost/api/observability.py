@@ -14,6 +14,7 @@ workers' metrics are added up (prometheus-client's multiprocess mode).
 from __future__ import annotations
 
 import contextvars
+import itertools
 import json
 import logging
 import os
@@ -107,6 +108,16 @@ def _operation(scope: Scope) -> str:
     return str(name) if name else "unmatched"
 
 
+_ID_PREFIX = uuid.uuid4().hex[:16]
+_ID_COUNTER = itertools.count(1)
+
+
+def _new_request_id() -> str:
+    """A random prefix per process and a counter: unique across workers and restarts, and far
+    cheaper per request than a fresh random UUID."""
+    return f"{_ID_PREFIX}{next(_ID_COUNTER):016x}"
+
+
 class RequestContextMiddleware:
     """Request id, one log line and the metrics for every HTTP request."""
 
@@ -118,7 +129,7 @@ class RequestContextMiddleware:
             await self.app(scope, receive, send)
             return
         given = dict(scope.get("headers") or []).get(b"x-request-id", b"").decode("latin-1")
-        request_id = given if _SANE_ID.match(given) else uuid.uuid4().hex
+        request_id = given if _SANE_ID.match(given) else _new_request_id()
         token = REQUEST_ID.set(request_id)
         start = time.perf_counter()
         status = 500

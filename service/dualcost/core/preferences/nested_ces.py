@@ -410,11 +410,6 @@ class NestedCES(HomotheticPreferences):
         log_rel, _ = self._log_relatives(prices)
         return np.exp(log_rel[self.n_items :])
 
-    def hicksian(self, prices: Vector, utility: float) -> Vector:
-        """h = u c(p) w(p) / p, with c and w from one pass over the tree."""
-        cost, w = self.cost_and_shares(prices)
-        return utility * cost * w / prices
-
     # -- direct utility ----------------------------------------------------------------------
     @cached_property
     def _utility_plan(self) -> list[tuple[int, IndexArray, Vector, float]]:
