@@ -901,8 +901,9 @@ def run_fit_and_compare(request: FitAndCompareRequest, settings: Any
     }
     try:
         comparison_request = ComparisonRequest.model_validate(body)
-        point, model, caxis = comparison_request.run(max_items=settings.max_items,
-                                                     max_tree_depth=settings.max_tree_depth)
+        point, model, caxis = comparison_request.run(
+            max_items=settings.max_items, max_tree_depth=settings.max_tree_depth,
+            compute_deadline_seconds=settings.compute_deadline_seconds)
     except RequestProblem as exc:
         raise _prefixed(exc) from exc
     except ValidationError as exc:  # pragma: no cover - every piece was validated above

@@ -15,7 +15,6 @@ from typing import Any
 import numpy as np
 from pydantic import BaseModel, ConfigDict, Field
 
-from ...config import Settings
 from ...core.preferences import FAMILIES, BaseBudget, Preferences, calibrate
 from ..problems import FieldError, RequestProblem
 from .common import ItemAxis, Pointers
@@ -209,7 +208,7 @@ def model_to_core(spec: ModelSpec, base: BaseBudget, axis: ItemAxis, pointers: P
 
     Families that declare ``parameter_shapes`` (those without a closed form) get their
     parameters converted by shape, the item ids and the service's compute deadline
-    (``compute_deadline_seconds``; by default the ``DUALCOST_COMPUTE_DEADLINE_SECONDS`` setting).
+    (``compute_deadline_seconds``; None for none).
     """
     cls = model_family(spec, pointers)
     shapes: dict[str, str] | None = getattr(cls, "parameter_shapes", None)
@@ -220,8 +219,8 @@ def model_to_core(spec: ModelSpec, base: BaseBudget, axis: ItemAxis, pointers: P
         if "item_names" in shapes.values():
             converted["item_names"] = list(axis.ids)
         if "deadline" in shapes.values():
-            if compute_deadline_seconds is None:
-                compute_deadline_seconds = Settings().compute_deadline_seconds
+            # None: no deadline of the family's own (direct use from Python); the service
+            # always passes its setting.
             converted["deadline_seconds"] = compute_deadline_seconds
         return _calibrated(spec, base, converted, pointers)
     return _calibrated(spec, base, parameters_to_core(spec, axis, pointers, max_tree_depth), pointers)
