@@ -1,4 +1,6 @@
 # dualcost service image: slim Python, non-root user, health check on /health.
+# Household jobs live in the memory of one worker process: set DUALCOST_WORKERS=1 (or route a
+# job's requests to one instance) when you use them; every other operation is stateless.
 FROM python:3.11-slim
 
 ENV PYTHONDONTWRITEBYTECODE=1 \
