@@ -184,6 +184,35 @@ def test_malformed_json_is_a_400_problem(client) -> None:
     r = post(client, None, '{"items": [')
     assert r.status_code == 400
     assert r.headers["content-type"].startswith("application/problem+json")
+    # The parser says where it stopped (bodies are parsed by pydantic-core, see json_route).
+    assert "line 1 column 11" in r.json()["detail"]
+
+
+@pytest.mark.parametrize("raw", ['{"items": ["a", "b"]} trailing', '\n\n  {"items": [1,,]}', "\ufeff"])
+def test_text_that_is_not_json_is_a_400_problem(client, raw) -> None:
+    r = post(client, None, raw)
+    assert r.status_code == 400, r.text
+    assert r.json()["type"].endswith("/malformed-request")
+
+
+def test_body_parsing_keeps_the_standard_library_reading(client) -> None:
+    """Bodies are parsed with pydantic-core instead of json.loads; a repeated key still means
+    its last value (as json.loads reads it, Python docs, json module), so the same comparison
+    comes back."""
+    req = small_request()
+    plain = post(client, req).json()
+    first = json.dumps(req)
+    raw = first.replace('"items":', '"items": ["x", "y"], "items":', 1)
+    assert json.loads(raw) == req
+    assert post(client, None, raw).json() == plain
+
+
+def test_decode_error_position_matches_the_line_and_column() -> None:
+    from dualcost.api.json_route import _decode_error
+
+    body = b'{\n  "a": [1,,\n]}'
+    err = _decode_error("expected value at line 2 column 11", body)
+    assert (err.lineno, err.colno) == (2, 11)
 
 
 def test_bad_tree_points_into_the_tree(client) -> None:

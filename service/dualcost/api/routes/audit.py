@@ -10,12 +10,13 @@ from fastapi import APIRouter, Body
 from ...config import Settings
 from ..deps import SettingsDep
 from ..examples import load_examples
+from ..json_route import JsonRoute
 from ..observability import computing
 from ..schemas.audit import AuditRequest, AuditResponse, run_audit
 
 
 def router(settings: Settings) -> APIRouter:
-    r = APIRouter(prefix="/v1", tags=["audits"])
+    r = APIRouter(route_class=JsonRoute, prefix="/v1", tags=["audits"])
     examples = load_examples(settings.examples_dir, "auditPublishedSeries")
 
     @r.post("/audits", operation_id="auditPublishedSeries", response_model=AuditResponse,

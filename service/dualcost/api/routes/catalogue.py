@@ -9,6 +9,7 @@ from pydantic import Field
 
 from ...core.indices import FORMULAS
 from ...core.preferences import FAMILIES
+from ..json_route import JsonRoute
 from ..schemas.common import StrictModel
 
 
@@ -36,7 +37,7 @@ class FormulaInfoOut(StrictModel):
     superlative: bool
 
 
-router = APIRouter(prefix="/v1", tags=["catalogue"])
+router = APIRouter(route_class=JsonRoute, prefix="/v1", tags=["catalogue"])
 
 
 @router.get("/preference-families", operation_id="listPreferenceFamilies",

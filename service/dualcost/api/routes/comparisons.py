@@ -13,6 +13,7 @@ from ...config import Settings
 from ...core.errors import NumericalFailure
 from ..deps import SettingsDep
 from ..examples import load_examples
+from ..json_route import JsonRoute
 from ..observability import computing
 from ..problems import PROBLEM_MEDIA_TYPE
 from ..schemas.comparison import (
@@ -31,7 +32,7 @@ PROBLEM_RESPONSES = {
 
 
 def router(settings: Settings) -> APIRouter:
-    r = APIRouter(prefix="/v1", tags=["comparisons"])
+    r = APIRouter(route_class=JsonRoute, prefix="/v1", tags=["comparisons"])
     examples = load_examples(settings.examples_dir, "compare")
 
     @r.post(

@@ -12,6 +12,7 @@ from fastapi.responses import Response
 from ...config import Settings
 from ..deps import SettingsDep
 from ..examples import load_examples
+from ..json_route import JsonRoute
 from ..observability import computing
 from ..problems import PROBLEM_MEDIA_TYPE
 from ..schemas.comparison import CAUTION, ComparisonResponse
@@ -75,7 +76,7 @@ def _fit_answer(result: Any, data: Any, request: Request, fmt: str | None, *, re
 
 
 def router(settings: Settings) -> APIRouter:
-    r = APIRouter(prefix="/v1", tags=["estimation"])
+    r = APIRouter(route_class=JsonRoute, prefix="/v1", tags=["estimation"])
     fit_examples = load_examples(settings.examples_dir, "fitModel")
     compare_examples = load_examples(settings.examples_dir, "fitAndCompare")
 

@@ -48,6 +48,7 @@ from ...core.households import (
 )
 from ..deps import SettingsDep
 from ..examples import load_examples
+from ..json_route import JsonRoute
 from ..observability import computing
 from ..problems import PROBLEM_MEDIA_TYPE, FieldError, RequestProblem
 from ..schemas.common import ItemAxis
@@ -377,7 +378,7 @@ def _file_pieces(out: Any) -> Iterator[str]:
 
 
 def router(settings: Settings) -> APIRouter:
-    r = APIRouter(prefix="/v1", tags=["households"])
+    r = APIRouter(route_class=JsonRoute, prefix="/v1", tags=["households"])
     examples = load_examples(settings.examples_dir, "householdIndices")
     job_examples = {name: {"summary": ex["summary"],
                            "value": {k: v for k, v in ex["value"].items() if k != "households"}}

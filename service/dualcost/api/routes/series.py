@@ -12,6 +12,7 @@ from fastapi.responses import Response
 from ...config import Settings
 from ..deps import SettingsDep
 from ..examples import load_examples
+from ..json_route import JsonRoute
 from ..observability import computing
 from ..problems import PROBLEM_MEDIA_TYPE
 from ..schemas.series import (
@@ -64,7 +65,7 @@ Lowe).
 
 
 def router(settings: Settings) -> APIRouter:
-    r = APIRouter(prefix="/v1", tags=["series"])
+    r = APIRouter(route_class=JsonRoute, prefix="/v1", tags=["series"])
     examples = load_examples(settings.examples_dir, "indexSeries")
 
     def answer(run: SeriesRun, request: Request, fmt: str | None) -> Any:

@@ -12,12 +12,13 @@ from fastapi.responses import HTMLResponse, JSONResponse, PlainTextResponse, Res
 
 from ... import __version__
 from ..deps import SettingsDep
+from ..json_route import JsonRoute
 from ..observability import metrics_text
 from ..problems import PROBLEM_TYPES, FieldError, RequestProblem
 from ..schemas.common import StrictModel
 from ..schemas.comparison import ComparisonRequest, ComparisonResponse
 
-router = APIRouter()
+router = APIRouter(route_class=JsonRoute)
 
 
 class HealthOut(StrictModel):

@@ -25,6 +25,7 @@ from fastapi.responses import PlainTextResponse, Response
 from pydantic import ValidationError
 
 from ..deps import SettingsDep
+from ..json_route import JsonRoute
 from ..observability import computing
 from ..problems import (
     FieldError,
@@ -37,7 +38,7 @@ from ..problems import (
 from ..schemas.comparison import ComparisonRequest, ComparisonResponse
 from ..tabular import csv_text, parse_number
 
-router = APIRouter(prefix="/v1/sheet", tags=["spreadsheets"])
+router = APIRouter(route_class=JsonRoute, prefix="/v1/sheet", tags=["spreadsheets"])
 
 #: Where each request-body field travels in the query string.
 _QUERY_NAME = {
