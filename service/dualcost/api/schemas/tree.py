@@ -45,18 +45,23 @@ def tree_to_core(tree: Any, axis: ItemAxis, pointer: str, max_depth: int, *,
         if not isinstance(children, list):
             raise RequestProblem([FieldError(f"{where}/children", "must be a list of item ids "
                                              "and groups")])
-        out["children"] = []
+        kids: list[Any] = []
+        out["children"] = kids
+        position = axis.position
         for j, child in enumerate(children):
-            here = f"{where}/children/{j}"
+            # The pointer is spelled out only for an error or a subgroup: trees have thousands
+            # of items.
             if isinstance(child, str):
-                if child not in axis.position:
-                    raise RequestProblem([FieldError(here, f"{child!r} is not an item id listed "
-                                                     "in items")])
-                out["children"].append(axis.position[child])
+                where_item = position.get(child)
+                if where_item is None:
+                    raise RequestProblem([FieldError(f"{where}/children/{j}", f"{child!r} is not "
+                                                     "an item id listed in items")])
+                kids.append(where_item)
             elif isinstance(child, dict):
                 sub: dict[str, Any] = {}
-                out["children"].append(sub)
-                stack.append((child, sub, here, depth + 1))
+                kids.append(sub)
+                stack.append((child, sub, f"{where}/children/{j}", depth + 1))
             else:
-                raise RequestProblem([FieldError(here, "must be an item id or a group")])
+                raise RequestProblem([FieldError(f"{where}/children/{j}", "must be an item id or "
+                                                 "a group")])
     return root

@@ -43,7 +43,7 @@ of ``(1 - sigma) ln P`` and evaluated with ``expm1``/``log1p``, which keeps full
 from __future__ import annotations
 
 import math
-from collections.abc import Mapping, Sequence
+from collections.abc import Callable, Mapping, Sequence
 from dataclasses import dataclass
 from functools import cached_property
 from numbers import Integral, Real
@@ -83,9 +83,6 @@ class _Tree:
     sigmas: tuple[float, ...]
     children: tuple[tuple[int, ...], ...]
 
-    def path(self, group: int) -> str:
-        return _path(self.labels, self.parents, group)
-
 
 def _path(labels: Sequence[str | None], parents: Sequence[int], group: int) -> str:
     """``'all items > food > fresh'``: the group's name preceded by its ancestors'."""
@@ -100,12 +97,16 @@ def _tree_error(rule: str) -> InvalidInput:
     return InvalidInput("tree", rule)
 
 
-def _check_group_sigma(where: str, node: Mapping[str, Any]) -> float:
-    if "sigma" not in node or node["sigma"] is None:
+def _check_group_sigma(spell_where: Callable[[], str], node: Mapping[str, Any]) -> float:
+    """The group's sigma, checked; ``spell_where`` gives its path for a message."""
+    raw = node.get("sigma")
+    if type(raw) is float and 0.0 <= raw < math.inf:
+        return raw
+    where = spell_where()
+    if raw is None:
         raise _tree_error(
             f"group '{where}' has no sigma; give its elasticity of substitution (0 or more)"
         )
-    raw = node["sigma"]
     if isinstance(raw, bool) or not isinstance(raw, Real):
         raise _tree_error(f"group '{where}' has sigma {raw!r}, which is not a number")
     sigma = float(raw)
@@ -119,21 +120,26 @@ def _check_group_sigma(where: str, node: Mapping[str, Any]) -> float:
     return sigma
 
 
-def _group_label(node: Mapping[str, Any], parent_path: str | None, position: int) -> str:
+def _group_label(node: Mapping[str, Any], parents: Sequence[int], labels: Sequence[str | None],
+                 g: int, position: int) -> str:
     """The group's own name, or a stand-in saying where it sits when it has none."""
-    if "name" not in node or node["name"] is None:
-        return ROOT_NAME if parent_path is None else f"group #{position}"
-    name = node["name"]
+    name = node.get("name")
+    if name is None:
+        return ROOT_NAME if parents[g] < 0 else f"group #{position}"
     if not isinstance(name, str) or not name.strip():
-        where = "the root group" if parent_path is None else (
-            f"child {position} of '{parent_path}'"
+        where = "the root group" if parents[g] < 0 else (
+            f"child {position} of '{_path(labels, parents, parents[g])}'"
         )
         raise _tree_error(f"{where} has name {name!r}; a group name must be non-empty text")
     return name.strip()
 
 
 def _parse_tree(spec: Any, n_items: int) -> _Tree:
-    """Check the nested ``{"name", "sigma", "children"}`` spec and flatten it (no recursion)."""
+    """Check the nested ``{"name", "sigma", "children"}`` spec and flatten it (no recursion).
+
+    A group's path (``'all items > food'``) is spelled out only for an error message: building
+    it for every group would cost more than the rest of the walk.
+    """
     if spec is None:
         raise _tree_error(
             "is required: give the grouping of items as a group with sigma and children"
@@ -153,70 +159,70 @@ def _parse_tree(spec: Any, n_items: int) -> _Tree:
     stack: list[tuple[Mapping[str, Any], int, int]] = [(spec, 0, 0)]
     while stack:
         node, g, position = stack.pop()
-        parent_path = None if parents[g] < 0 else _path(labels, parents, parents[g])
-        label = _group_label(node, parent_path, position)
+        label = _group_label(node, parents, labels, g, position)
         labels[g] = label
-        where = _path(labels, parents, g)
         if id(node) in visited:
             raise _tree_error(
-                f"group '{where}' appears more than once in the tree (or inside itself); "
-                "every group must appear once"
+                f"group '{_path(labels, parents, g)}' appears more than once in the tree (or "
+                "inside itself); every group must appear once"
             )
         visited.add(id(node))
-        unknown = sorted(str(k) for k in node if k not in _GROUP_KEYS)
-        if unknown:
+        if len(node) > 3 or any(k not in _GROUP_KEYS for k in node):
+            unknown = sorted(str(k) for k in node if k not in _GROUP_KEYS)
             raise _tree_error(
-                f"group '{where}' has unknown key(s) {', '.join(map(repr, unknown))}; a group "
-                "takes 'name', 'sigma' and 'children'"
+                f"group '{_path(labels, parents, g)}' has unknown key(s) "
+                f"{', '.join(map(repr, unknown))}; a group takes 'name', 'sigma' and 'children'"
             )
-        if parents[g] < 0 or node.get("name") is not None:
+        if g == 0 or node.get("name") is not None:
             if label in named:
                 other = _path(labels, parents, named[label])
                 raise _tree_error(
-                    f"two groups are named '{label}' ('{other}' and '{where}'); group names "
-                    "must be unique"
+                    f"two groups are named '{label}' ('{other}' and "
+                    f"'{_path(labels, parents, g)}'); group names must be unique"
                 )
             named[label] = g
-        sigmas[g] = _check_group_sigma(where, node)
+        sigmas[g] = _check_group_sigma(lambda: _path(labels, parents, g), node)  # noqa: B023
         kids = node.get("children")
         if isinstance(kids, (str, bytes)) or not isinstance(kids, Sequence) or not kids:
             raise _tree_error(
-                f"group '{where}' has no children; every group needs at least one item "
-                "position or subgroup in 'children'"
+                f"group '{_path(labels, parents, g)}' has no children; every group needs at "
+                "least one item position or subgroup in 'children'"
             )
+        mine = children[g]
         for k, child in enumerate(kids, start=1):
-            # type() first: the abstract-class check is slow, and trees have thousands of items.
+            # type() first: the abstract-class checks are slow, and trees have thousands of items.
             if type(child) is int or (isinstance(child, Integral) and not isinstance(child, bool)):
                 i = int(child)
                 if not 0 <= i < n_items:
                     raise _tree_error(
-                        f"group '{where}' lists item {i}, but item positions run from 0 to "
-                        f"{n_items - 1} (there are {n_items} items)"
+                        f"group '{_path(labels, parents, g)}' lists item {i}, but item positions "
+                        f"run from 0 to {n_items - 1} (there are {n_items} items)"
                     )
                 if owner[i] >= 0:
                     first = _path(labels, parents, owner[i])
-                    second = "again" if owner[i] == g else f"and in '{where}'"
+                    second = "again" if owner[i] == g else f"and in '{_path(labels, parents, g)}'"
                     raise _tree_error(
                         f"item {i} appears twice, in '{first}' {second}; every item must "
                         "appear exactly once"
                     )
                 owner[i] = g
-                children[g].append(i)
+                mine.append(i)
             elif isinstance(child, Mapping):
                 cid = len(labels)
                 labels.append(None)
                 parents.append(g)
                 sigmas.append(math.nan)
                 children.append([])
-                children[g].append(n_items + cid)
+                mine.append(n_items + cid)
                 stack.append((child, cid, k))
             else:
                 raise _tree_error(
-                    f"child {k} of group '{where}' is {child!r}, which is neither an item "
-                    "position (a whole number) nor a group (an object with sigma and children)"
+                    f"child {k} of group '{_path(labels, parents, g)}' is {child!r}, which is "
+                    "neither an item position (a whole number) nor a group (an object with "
+                    "sigma and children)"
                 )
-    missing = [i for i in range(n_items) if owner[i] < 0]
-    if missing:
+    if -1 in owner:
+        missing = [i for i in range(n_items) if owner[i] < 0]
         shown = ", ".join(str(i) for i in missing[:10]) + (", ..." if len(missing) > 10 else "")
         noun = "item" if len(missing) == 1 else "items"
         verb = "is" if len(missing) == 1 else "are"
@@ -253,25 +259,31 @@ class _Level:
     geometric: bool  # every group here has sigma = 1
 
 
-def _compile(tree: _Tree, shares: Vector) -> tuple[Vector, Vector, list[_Level]]:
-    """Node base shares, within-group weights per group's edges, and the levels bottom-up."""
+def _compile(tree: _Tree, shares: Vector) -> tuple[Vector, list[_Level]]:
+    """Node base shares and the levels bottom-up, each with its groups' child edges.
+
+    Built with plain Python numbers and one array per field and level: a tree has few groups,
+    and a small array per group would cost more than the arithmetic.
+    """
     n, n_groups = tree.n_items, len(tree.labels)
-    node_share = np.zeros(n + n_groups)
-    node_share[:n] = shares
-    height = np.zeros(n + n_groups, dtype=np.intp)
+    node_share = shares.tolist() + [0.0] * n_groups
+    height = [0] * (n + n_groups)
     # Children have larger ids than their parents: reverse id order is bottom-up.
-    kid_arrays = [np.asarray(kids, dtype=np.intp) for kids in tree.children]
     for g in range(n_groups - 1, -1, -1):
-        kids = kid_arrays[g]
-        node_share[n + g] = math.fsum(node_share[kids].tolist())
-        height[n + g] = 1 + int(height[kids].max())
+        kids = tree.children[g]
+        node_share[n + g] = math.fsum([node_share[k] for k in kids])
+        height[n + g] = 1 + max([height[k] for k in kids])
     by_height: dict[int, list[int]] = {}
     for g in range(n_groups):
-        by_height.setdefault(int(height[n + g]), []).append(g)
+        by_height.setdefault(height[n + g], []).append(g)
     levels = []
     for h in sorted(by_height):
         groups = by_height[h]
-        starts, child, seg, weight, t_edge = [], [], [], [], []
+        starts: list[int] = []
+        child: list[int] = []
+        seg: list[int] = []
+        weight: list[float] = []
+        t_edge: list[float] = []
         for j, g in enumerate(groups):
             kids = tree.children[g]
             total = node_share[n + g]
@@ -280,16 +292,16 @@ def _compile(tree: _Tree, shares: Vector) -> tuple[Vector, Vector, list[_Level]]
             seg.extend([j] * len(kids))
             t_edge.extend([1.0 - tree.sigmas[g]] * len(kids))
             if total > 0.0:
-                weight.extend((node_share[kid_arrays[g]] / total).tolist())
+                weight.extend([node_share[k] / total for k in kids])
             else:
                 # An all-zero group: equal weights keep its unused relative defined.
                 weight.extend([1.0 / len(kids)] * len(kids))
         w = np.asarray(weight)
         positive = w > 0.0
         log_w = np.full(w.shape, -np.inf)
-        log_w[positive] = np.log(w[positive])
+        np.log(w, out=log_w, where=positive)
         t_group = np.array([1.0 - tree.sigmas[g] for g in groups])
-        nodes = np.asarray([n + g for g in groups], dtype=np.intp)
+        nodes = np.arange(n, n + n_groups, dtype=np.intp)[groups]
         seg_arr = np.asarray(seg, dtype=np.intp)
         levels.append(
             _Level(
@@ -306,7 +318,7 @@ def _compile(tree: _Tree, shares: Vector) -> tuple[Vector, Vector, list[_Level]]
                 geometric=bool(np.all(t_group == 0.0)),
             )
         )
-    return node_share, height, levels
+    return np.asarray(node_share), levels
 
 
 def _level_up(level: _Level, log_rel: Vector) -> tuple[Vector, Vector]:
@@ -369,7 +381,7 @@ class NestedCES(HomotheticPreferences):
             raise InvalidInput("tree", f"is built for {tree.n_items} items, not {self.n_items}")
         self._tree = tree
         self._log_p_ref = np.log(self.reference_prices)
-        self._node_share, _, self._levels = _compile(tree, self.shares)
+        self._node_share, self._levels = _compile(tree, self.shares)
         self._root = self.n_items  # node id of group 0
 
     @classmethod
@@ -444,10 +456,14 @@ class NestedCES(HomotheticPreferences):
 
     def groups(self) -> list[dict[str, Any]]:
         """Each group, root first: its path, name, sigma, base share and its own items."""
-        n = self.n_items
+        n, tree = self.n_items, self._tree
+        # A parent's id is smaller than its children's: one pass spells every path.
+        paths: list[str] = []
+        for label, parent in zip(tree.labels, tree.parents, strict=True):
+            paths.append(label if parent < 0 else f"{paths[parent]} > {label}")
         return [
             {
-                "path": self._tree.path(g),
+                "path": paths[g],
                 "name": self._tree.labels[g],
                 "sigma": self._tree.sigmas[g],
                 "base_share": float(self._node_share[n + g]),
