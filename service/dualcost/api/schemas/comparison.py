@@ -286,26 +286,24 @@ def all_finite(value: Any) -> bool:
 
 
 def _items(r: Comparison, axis: ItemAxis) -> list[dict[str, Any]]:
-    """One record per item, built column-wise from the core's arrays (plain dicts: the response
-    model validates them in one pass, which for thousands of items is far cheaper than building
-    one model object per item)."""
+    """One record per item, built from the core's arrays as plain dicts (the response model
+    validates them in one pass, which for thousands of items is far cheaper than building one
+    model object per item). Written out as a dict display: about twice as fast as zipping
+    names with rows, for baskets of hundreds of items."""
     d = r.demands
     gap = r.laspeyres_gap_contributions
-    columns = {
-        "item": axis.ids,
-        "label": axis.labels,
-        "base_price": r.base_prices.tolist(),
-        "current_price": r.current_prices.tolist(),
-        "price_relative": (r.current_prices / r.base_prices).tolist(),
-        "base_quantity": d.base.tolist(),
-        "current_quantity": d.current.tolist(),
-        "compensated_quantity": d.compensated.tolist(),
-        "substitution_effect": d.substitution_effect.tolist(),
-        "income_effect": d.income_effect.tolist(),
-        "laspeyres_gap_points": [None] * len(axis.ids) if gap is None else (100.0 * gap).tolist(),
-    }
-    names = list(columns)
-    return [dict(zip(names, row, strict=True)) for row in zip(*columns.values(), strict=True)]
+    gaps = [None] * len(axis.ids) if gap is None else (100.0 * gap).tolist()
+    return [
+        {"item": item, "label": label, "base_price": p0, "current_price": p1,
+         "price_relative": rel, "base_quantity": q0, "current_quantity": q1,
+         "compensated_quantity": h1, "substitution_effect": sub, "income_effect": inc,
+         "laspeyres_gap_points": g}
+        for item, label, p0, p1, rel, q0, q1, h1, sub, inc, g in zip(
+            axis.ids, axis.labels, r.base_prices.tolist(), r.current_prices.tolist(),
+            (r.current_prices / r.base_prices).tolist(), d.base.tolist(), d.current.tolist(),
+            d.compensated.tolist(), d.substitution_effect.tolist(), d.income_effect.tolist(),
+            gaps, strict=True)
+    ]
 
 
 __all__ = ["CAUTION", "ComparisonRequest", "ComparisonResponse", "MatrixIn", "all_finite",
