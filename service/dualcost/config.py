@@ -20,6 +20,10 @@ class Settings(BaseSettings):
     workers: int = Field(1, ge=1, le=64, description="Worker processes (uvicorn).")
     compute_threads: int = Field(2, ge=1, le=64, description="Requests one worker process "
                                  "computes at the same time (the rest wait their turn).")
+    inline_compute_max_bytes: int = Field(
+        65_536, ge=0, description="Comparisons, index series, audits and spreadsheet requests "
+        "whose body is at most this many bytes are computed on the worker's event loop, where "
+        "they cost less than a thread handoff; larger ones use the compute threads (0: always).")
     examples_dir: Path = Field(
         _REPO_EXAMPLES,
         description="Folder of example request bodies shown in the OpenAPI document.",

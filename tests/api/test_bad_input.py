@@ -184,7 +184,7 @@ def test_malformed_json_is_a_400_problem(client) -> None:
     r = post(client, None, '{"items": [')
     assert r.status_code == 400
     assert r.headers["content-type"].startswith("application/problem+json")
-    # The parser says where it stopped (bodies are parsed by pydantic-core, see json_route).
+    # The parser says where it stopped (bodies are parsed by pydantic-core, see api/routing.py).
     assert "line 1 column 11" in r.json()["detail"]
 
 
@@ -208,7 +208,7 @@ def test_body_parsing_keeps_the_standard_library_reading(client) -> None:
 
 
 def test_decode_error_position_matches_the_line_and_column() -> None:
-    from dualcost.api.json_route import _decode_error
+    from dualcost.api.routing import _decode_error
 
     body = b'{\n  "a": [1,,\n]}'
     err = _decode_error("expected value at line 2 column 11", body)

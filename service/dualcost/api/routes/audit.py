@@ -10,8 +10,8 @@ from fastapi import APIRouter, Body
 from ...config import Settings
 from ..deps import SettingsDep
 from ..examples import load_examples
-from ..json_route import JsonRoute
 from ..observability import computing
+from ..routing import JsonRoute, inline_when_small
 from ..schemas.audit import AuditRequest, AuditResponse, run_audit
 
 
@@ -21,6 +21,7 @@ def router(settings: Settings) -> APIRouter:
 
     @r.post("/audits", operation_id="auditPublishedSeries", response_model=AuditResponse,
             summary="Recompute published index numbers from their panel and compare")
+    @inline_when_small
     def audit_published(
         request: Annotated[AuditRequest, Body(openapi_examples=examples)],  # type: ignore[arg-type]
         settings: SettingsDep,

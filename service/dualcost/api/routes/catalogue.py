@@ -9,7 +9,7 @@ from pydantic import Field
 
 from ...core.indices import FORMULAS
 from ...core.preferences import FAMILIES
-from ..json_route import JsonRoute
+from ..routing import JsonRoute
 from ..schemas.common import StrictModel
 
 

@@ -13,9 +13,9 @@ from ...config import Settings
 from ...core.errors import NumericalFailure
 from ..deps import SettingsDep
 from ..examples import load_examples
-from ..json_route import JsonRoute
 from ..observability import computing
 from ..problems import PROBLEM_MEDIA_TYPE
+from ..routing import JsonRoute, inline_when_small
 from ..schemas.comparison import (
     ComparisonRequest,
     ComparisonResponse,
@@ -42,6 +42,7 @@ def router(settings: Settings) -> APIRouter:
         response_model=ComparisonResponse,
         responses=PROBLEM_RESPONSES,  # type: ignore[arg-type]
     )
+    @inline_when_small
     def compare(
         request: Annotated[ComparisonRequest, Body(openapi_examples=examples)],  # type: ignore[arg-type]
         settings: SettingsDep,

@@ -12,9 +12,9 @@ from fastapi.responses import Response
 from ...config import Settings
 from ..deps import SettingsDep
 from ..examples import load_examples
-from ..json_route import JsonRoute
 from ..observability import computing
 from ..problems import PROBLEM_MEDIA_TYPE
+from ..routing import JsonRoute
 from ..schemas.comparison import CAUTION, ComparisonResponse
 from ..schemas.estimation import (
     CSV_DESCRIPTION,

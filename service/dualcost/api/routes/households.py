@@ -48,9 +48,9 @@ from ...core.households import (
 )
 from ..deps import SettingsDep
 from ..examples import load_examples
-from ..json_route import JsonRoute
 from ..observability import computing
 from ..problems import PROBLEM_MEDIA_TYPE, FieldError, RequestProblem
+from ..routing import JsonRoute
 from ..schemas.common import ItemAxis
 from ..schemas.comparison import CAUTION
 from ..schemas.households import (

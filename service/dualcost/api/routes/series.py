@@ -12,9 +12,9 @@ from fastapi.responses import Response
 from ...config import Settings
 from ..deps import SettingsDep
 from ..examples import load_examples
-from ..json_route import JsonRoute
 from ..observability import computing
 from ..problems import PROBLEM_MEDIA_TYPE
+from ..routing import JsonRoute, inline_when_small
 from ..schemas.series import (
     SeriesRequest,
     SeriesResponse,
@@ -82,6 +82,7 @@ def router(settings: Settings) -> APIRouter:
         response_model=SeriesResponse,
         responses=RESPONSES,
     )
+    @inline_when_small
     def index_series(
         body: Annotated[SeriesRequest, Body(openapi_examples=examples)],  # type: ignore[arg-type]
         request: Request,
@@ -112,6 +113,7 @@ def router(settings: Settings) -> APIRouter:
         responses=RESPONSES,
         openapi_extra=CSV_REQUEST_BODY,
     )
+    @inline_when_small
     def index_series_from_csv(
         text: Annotated[str, Depends(csv_body)],
         request: Request,

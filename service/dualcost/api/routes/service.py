@@ -12,9 +12,9 @@ from fastapi.responses import HTMLResponse, JSONResponse, PlainTextResponse, Res
 
 from ... import __version__
 from ..deps import SettingsDep
-from ..json_route import JsonRoute
 from ..observability import metrics_text
 from ..problems import PROBLEM_TYPES, FieldError, RequestProblem
+from ..routing import JsonRoute
 from ..schemas.common import StrictModel
 from ..schemas.comparison import ComparisonRequest, ComparisonResponse
 

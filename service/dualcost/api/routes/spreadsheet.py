@@ -25,7 +25,6 @@ from fastapi.responses import PlainTextResponse, Response
 from pydantic import ValidationError
 
 from ..deps import SettingsDep
-from ..json_route import JsonRoute
 from ..observability import computing
 from ..problems import (
     FieldError,
@@ -35,6 +34,7 @@ from ..problems import (
     error_text,
     problem_response,
 )
+from ..routing import JsonRoute, inline_when_small
 from ..schemas.comparison import ComparisonRequest, ComparisonResponse
 from ..tabular import csv_text, parse_number
 
@@ -223,6 +223,7 @@ Params = Annotated[dict[str, Any], Depends(_params)]
                                    "description": "CSV: measure,value,compared_with,bias_points,"
                                    "bias_percent; with on_error=text a bad request is answered "
                                    "as text/plain 'ERROR: ...'"}})
+@inline_when_small
 def sheet_comparison(params: Params, settings: SettingsDep) -> Response:
     """The comparison as CSV: one row per measure (Konüs indices, formulas with their bias,
     compensation), for a spreadsheet's CSV-import function."""
@@ -236,6 +237,7 @@ def sheet_comparison(params: Params, settings: SettingsDep) -> Response:
 @router.get("/value", operation_id="sheetValue",
                   response_class=PlainTextResponse,
                   responses={200: {"content": {"text/plain": {}}, "description": "One number."}})
+@inline_when_small
 def sheet_value(params: Params, settings: SettingsDep,
                 measure: Measure = "konus_base") -> Response:
     """One number as text/plain, for a spreadsheet's web-fetch function."""
@@ -329,6 +331,7 @@ def _series_table(request: Request, settings: Any, digits: int | None, sigma: fl
                              "description": "CSV: one row per period, one column per series (as "
                              "POST /v1/index-series answers in CSV); with on_error=text a bad "
                              "request is answered as text/plain 'ERROR: ...'"}})
+@inline_when_small
 def sheet_series(
     request: Request,
     settings: SettingsDep,

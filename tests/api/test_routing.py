@@ -1,0 +1,84 @@
+"""Where a computation runs: on the event loop for a small request, in a thread for a large one
+(service/dualcost/api/routing.py)."""
+
+from __future__ import annotations
+
+import threading
+
+import pytest
+from fastapi import APIRouter, FastAPI
+from fastapi.testclient import TestClient
+
+from dualcost.api.app import create_app
+from dualcost.api.routing import JsonRoute, inline_when_small
+from dualcost.config import Settings
+from tests.api.test_comparisons import small_request
+
+
+def _app(limit: int) -> FastAPI:
+    app = FastAPI()
+    app.state.settings = Settings(inline_compute_max_bytes=limit)
+    router = APIRouter(route_class=JsonRoute)
+
+    @router.get("/loop")
+    async def loop_thread() -> int:
+        return threading.get_ident()
+
+    @router.post("/work")
+    @inline_when_small
+    def work(body: dict[str, str]) -> dict[str, int]:
+        return {"thread": threading.get_ident(), "keys": len(body)}
+
+    @router.get("/work")
+    @inline_when_small
+    def work_get(x: int = 0) -> dict[str, int]:
+        return {"thread": threading.get_ident(), "keys": x}
+
+    app.include_router(router)
+    return app
+
+
+@pytest.mark.parametrize("limit,inline", [(1_000, True), (10, False), (0, False)])
+def test_small_bodies_compute_on_the_event_loop(limit, inline) -> None:
+    with TestClient(_app(limit)) as client:
+        loop = client.get("/loop").json()
+        r = client.post("/work", json={"a": "x" * 20})
+        assert r.status_code == 200
+        assert r.json()["keys"] == 1
+        assert (r.json()["thread"] == loop) is inline
+
+
+def test_a_get_has_no_body_and_computes_on_the_event_loop() -> None:
+    with TestClient(_app(0)) as client:
+        assert client.get("/work", params={"x": 3}).json()["thread"] == client.get("/loop").json()
+
+
+def test_a_body_of_unknown_length_goes_to_a_thread() -> None:
+    def chunks():
+        yield b'{"a": '
+        yield b'"b"}'
+
+    with TestClient(_app(1_000_000)) as client:
+        r = client.post("/work", content=chunks(), headers={"content-type": "application/json"})
+        assert r.status_code == 200, r.text
+        assert r.json()["thread"] != client.get("/loop").json()
+
+
+@pytest.mark.parametrize("limit", [0, 65_536])
+def test_the_answer_does_not_depend_on_where_it_is_computed(limit) -> None:
+    """The same comparison, computed in a thread and on the event loop."""
+    with TestClient(create_app(Settings(inline_compute_max_bytes=limit))) as client:
+        r = client.post("/v1/comparisons", json=small_request())
+        assert r.status_code == 200
+        with TestClient(create_app()) as other:
+            assert other.post("/v1/comparisons", json=small_request()).json() == r.json()
+
+
+@pytest.mark.parametrize("limit", [0, 65_536])
+def test_problems_are_the_same_wherever_computed(limit) -> None:
+    req = small_request()
+    req["current"]["prices"][1] = -1.0
+    with TestClient(create_app(Settings(inline_compute_max_bytes=limit))) as client:
+        r = client.post("/v1/comparisons", json=req)
+        assert r.status_code == 422
+        assert r.json()["errors"][0]["pointer"] == "/current/prices/1"
