@@ -82,3 +82,25 @@ def test_problems_are_the_same_wherever_computed(limit) -> None:
         r = client.post("/v1/comparisons", json=req)
         assert r.status_code == 422
         assert r.json()["errors"][0]["pointer"] == "/current/prices/1"
+
+
+@pytest.mark.parametrize("model", [
+    {"family": "ces", "sigma": 0.6},
+    {"family": "nested_ces", "tree": {"sigma": 0.4, "children": [
+        {"name": "ab", "sigma": 1.7, "children": ["a", "b"]}, "c"]}},
+])
+def test_the_rendered_answer_reads_back_to_the_same_numbers(client, model) -> None:
+    """The comparison answer is written with orjson; every float must read back bit for bit
+    (json.dumps writes Python's shortest round-trip repr, the reference here)."""
+    import json
+
+    from dualcost.api.schemas.comparison import ComparisonRequest, comparison_document
+
+    req = small_request(**model)
+    settings = Settings()
+    result = ComparisonRequest.model_validate(req).run(
+        max_items=settings.max_items, max_tree_depth=settings.max_tree_depth)
+    expected = json.loads(json.dumps(comparison_document(*result)))
+    r = client.post("/v1/comparisons", json=req)
+    assert r.status_code == 200
+    assert json.loads(r.content) == expected
