@@ -33,8 +33,9 @@ the cost, gets zero demand and is left out of ``u``. A group whose items all hav
 is handled the same way: it carries zero weight in its parent. To keep its own (unused) cost
 relative defined, its children are given equal weights.
 
-Evaluation never recurses: calibration compiles the tree into arrays grouped by height (every
-group after all of its children), and each height is one vectorised segment reduction, so a
+Evaluation never recurses: calibration compiles the tree into arrays grouped by depth (the
+deepest first, so every group comes after its children), and each depth is one vectorised
+segment reduction, so a
 1,000-deep chain is as safe as a three-level tree. Each power mean is shifted by its weighted mean
 of ``(1 - sigma) ln P`` and evaluated with ``expm1``/``log1p``, which keeps full accuracy as
 ``sigma`` approaches 1, and falls back to a max shift where a term could overflow (large sigma).
@@ -244,9 +245,9 @@ def _parse_tree(spec: Any, n_items: int) -> _Tree:
 
 @dataclass(frozen=True)
 class _Level:
-    """All groups of one height, with their child edges stored contiguously per group."""
+    """All groups at one depth, with their child edges stored contiguously per group."""
 
-    nodes: IndexArray  # node id of each group at this height
+    nodes: IndexArray  # node id of each group at this depth
     starts: IndexArray  # first edge of each group
     child: IndexArray  # node id of each edge's child
     seg: IndexArray  # position (within this level) of each edge's group
@@ -260,65 +261,64 @@ class _Level:
 
 
 def _compile(tree: _Tree, shares: Vector) -> tuple[Vector, list[_Level]]:
-    """Node base shares and the levels bottom-up, each with its groups' child edges.
+    """Node base shares and the levels, deepest groups first, each with its groups' edges.
 
-    Built with plain Python numbers and one array per field and level: a tree has few groups,
-    and a small array per group would cost more than the arithmetic.
+    A group's children are one level deeper than it, so evaluating the levels from the
+    deepest up finds every child's relative ready. The per-edge arithmetic is done level by
+    level in arrays; the per-group work in plain Python is a handful of steps.
     """
     n, n_groups = tree.n_items, len(tree.labels)
-    node_share = shares.tolist() + [0.0] * n_groups
-    height = [0] * (n + n_groups)
-    # Children have larger ids than their parents: reverse id order is bottom-up.
-    for g in range(n_groups - 1, -1, -1):
-        kids = tree.children[g]
-        node_share[n + g] = math.fsum([node_share[k] for k in kids])
-        height[n + g] = 1 + max([height[k] for k in kids])
-    by_height: dict[int, list[int]] = {}
+    depth = [0] * n_groups
+    for g in range(1, n_groups):
+        depth[g] = depth[tree.parents[g]] + 1
+    by_depth: dict[int, list[int]] = {}
     for g in range(n_groups):
-        by_height.setdefault(height[n + g], []).append(g)
+        by_depth.setdefault(depth[g], []).append(g)
+    node_share = np.empty(n + n_groups)
+    node_share[:n] = shares
     levels = []
-    for h in sorted(by_height):
-        groups = by_height[h]
-        starts: list[int] = []
-        child: list[int] = []
-        seg: list[int] = []
-        weight: list[float] = []
-        t_edge: list[float] = []
-        for j, g in enumerate(groups):
+    for d in sorted(by_depth, reverse=True):
+        groups = by_depth[d]
+        child_list: list[int] = []
+        counts_list = []
+        for g in groups:
             kids = tree.children[g]
-            total = node_share[n + g]
-            starts.append(len(child))
-            child.extend(kids)
-            seg.extend([j] * len(kids))
-            t_edge.extend([1.0 - tree.sigmas[g]] * len(kids))
-            if total > 0.0:
-                weight.extend([node_share[k] / total for k in kids])
-            else:
-                # An all-zero group: equal weights keep its unused relative defined.
-                weight.extend([1.0 / len(kids)] * len(kids))
-        w = np.asarray(weight)
+            child_list.extend(kids)
+            counts_list.append(len(kids))
+        child = np.asarray(child_list, dtype=np.intp)
+        counts = np.asarray(counts_list, dtype=np.intp)
+        starts = np.cumsum(counts) - counts
+        nodes = np.asarray(groups, dtype=np.intp) + n
+        # Exact sums (Shewchuk's algorithm, as math.fsum) of the children's shares.
+        kid_shares = node_share[child].tolist()
+        totals = np.array([math.fsum(kid_shares[a:a + c])
+                           for a, c in zip(starts.tolist(), counts_list, strict=True)])
+        node_share[nodes] = totals
+        seg = np.repeat(np.arange(len(groups), dtype=np.intp), counts)
+        edge_total = totals[seg]
+        # An all-zero group: equal weights keep its unused relative defined.
+        w = np.divide(node_share[child], edge_total, out=1.0 / counts[seg].astype(np.float64),
+                      where=edge_total > 0.0)
         positive = w > 0.0
         log_w = np.full(w.shape, -np.inf)
         np.log(w, out=log_w, where=positive)
-        t_group = np.array([1.0 - tree.sigmas[g] for g in groups])
-        nodes = np.arange(n, n + n_groups, dtype=np.intp)[groups]
-        seg_arr = np.asarray(seg, dtype=np.intp)
+        t_group = 1.0 - np.array([tree.sigmas[g] for g in groups])
         levels.append(
             _Level(
                 nodes=nodes,
-                starts=np.asarray(starts, dtype=np.intp),
-                child=np.asarray(child, dtype=np.intp),
-                seg=seg_arr,
-                parent=nodes[seg_arr],
+                starts=starts,
+                child=child,
+                seg=seg,
+                parent=nodes[seg],
                 weight=w,
                 log_weight=log_w,
                 positive=positive,
-                t_edge=np.asarray(t_edge),
+                t_edge=t_group[seg],
                 t_safe=np.where(t_group == 0.0, 1.0, t_group),
                 geometric=bool(np.all(t_group == 0.0)),
             )
         )
-    return np.asarray(node_share), levels
+    return node_share, levels
 
 
 def _level_up(level: _Level, log_rel: Vector) -> tuple[Vector, Vector]:
