@@ -104,3 +104,43 @@ def test_the_rendered_answer_reads_back_to_the_same_numbers(client, model) -> No
     r = client.post("/v1/comparisons", json=req)
     assert r.status_code == 200
     assert json.loads(r.content) == expected
+
+
+def _examples_by_model():
+    """Each example body with the body model of its operation (the routers' JsonRoutes)."""
+    import importlib
+
+    from dualcost.api.routing import _body_model
+    from tests.conftest import EXAMPLES
+
+    models = {}
+    for module in ("comparisons", "series", "audit", "estimation", "households"):
+        router = importlib.import_module(f"dualcost.api.routes.{module}").router(Settings())
+        for route in router.routes:
+            if isinstance(route, JsonRoute) and _body_model(route) is not None:
+                models[route.operation_id] = _body_model(route)
+    cases = [(models[path.name.split(".")[0]], path) for path in sorted(EXAMPLES.glob("*.json"))
+             if path.name.split(".")[0] in models]
+    assert len(cases) >= 15
+    return cases
+
+
+@pytest.mark.parametrize("model,path", _examples_by_model(), ids=lambda v: getattr(v, "name", ""))
+def test_validating_bytes_equals_validating_parsed_json(model, path) -> None:
+    """The body model validated straight from bytes (as JsonRequest does) equals the model
+    validated from the standard library's parse (as FastAPI does), for every example body."""
+    import json
+
+    raw = path.read_bytes()
+    assert model.model_validate_json(raw) == model.model_validate(json.loads(raw))
+
+
+def test_a_body_that_breaks_rules_is_reported_field_by_field(client) -> None:
+    """The bytes path gives up on a failing body; FastAPI's validation then names each field."""
+    req = small_request()
+    req["current"]["prices"] = "cheap"
+    req["base"]["expenditure"] = "lots"
+    r = client.post("/v1/comparisons", json=req)
+    assert r.status_code == 422
+    pointers = {e["pointer"] for e in r.json()["errors"]}
+    assert {"/current/prices", "/base/expenditure"} <= pointers, r.json()
