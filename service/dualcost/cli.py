@@ -56,7 +56,7 @@ def serve(host: str, port: int, workers: int, log_level: str) -> int:
     os.environ["DUALCOST_WORKERS"] = str(workers)
     settings = Settings()  # fail here, with pydantic's message, if the environment is invalid
     from .api.access import load_keys
-    from .api.observability import configure_logging
+    from .api.observability import logging_config
 
     keys = load_keys(settings.api_keys, str(settings.api_keys_file) if settings.api_keys_file else None)
     print(f"dualcost {__version__}: http://{host}:{port}/ (API docs /docs, demo /v1/demo), "
@@ -68,9 +68,9 @@ def serve(host: str, port: int, workers: int, log_level: str) -> int:
         print("access control: OFF (no API keys configured): anyone who can reach this address "
               "can use the service; set DUALCOST_API_KEYS or DUALCOST_API_KEYS_FILE to require keys",
               flush=True)
-    configure_logging(log_level, json_lines=settings.log_json)
     uvicorn.run("dualcost.api.app:create_app", factory=True, host=host, port=port,
-                workers=workers, log_level=log_level, access_log=False)
+                workers=workers, log_level=log_level, access_log=False,
+                log_config=logging_config(log_level, json_lines=settings.log_json))
     return 0
 
 

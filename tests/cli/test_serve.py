@@ -61,3 +61,40 @@ def test_serve_starts_with_the_demo_ready() -> None:
         finally:
             if proc.stdout:
                 proc.stdout.close()
+
+
+def test_every_worker_writes_json_request_logs() -> None:
+    """With two worker processes each one logs its requests as JSON lines with the request id
+    (worker processes start afresh, so the logging set-up must reach them through uvicorn)."""
+    port = _free_port()
+    proc = subprocess.Popen(
+        [sys.executable, "-m", "dualcost.cli", "serve", "--port", str(port), "--workers", "2"],
+        stdout=subprocess.DEVNULL, stderr=subprocess.PIPE, text=True,
+    )
+    try:
+        deadline = time.monotonic() + 60
+        while True:
+            try:
+                with urllib.request.urlopen(f"http://127.0.0.1:{port}/ready", timeout=1):
+                    break
+            except OSError:
+                assert proc.poll() is None, proc.stderr.read() if proc.stderr else ""
+                assert time.monotonic() < deadline, "service did not start in 60 s"
+                time.sleep(0.2)
+        for k in range(6):
+            request = urllib.request.Request(f"http://127.0.0.1:{port}/v1/demo",
+                                             headers={"X-Request-ID": f"worker-log-{k}"})
+            with urllib.request.urlopen(request, timeout=10) as r:
+                assert r.status == 200
+    finally:
+        proc.terminate()
+        _, err = proc.communicate(timeout=20)
+    entries = []
+    for line in err.splitlines():
+        try:
+            entries.append(json.loads(line))
+        except ValueError:
+            continue
+    logged = {e["request_id"] for e in entries if e.get("message") == "request"}
+    assert {f"worker-log-{k}" for k in range(6)} <= logged, err[-2000:]
+    assert all(e.get("status") == 200 for e in entries if e.get("request_id", "").startswith("worker-log"))

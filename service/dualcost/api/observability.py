@@ -14,6 +14,7 @@ workers' metrics are added up (prometheus-client's multiprocess mode).
 from __future__ import annotations
 
 import contextvars
+import copy
 import itertools
 import json
 import logging
@@ -91,15 +92,24 @@ class JsonLogFormatter(logging.Formatter):
         return json.dumps(entry, ensure_ascii=False)
 
 
-def configure_logging(level: str = "info", *, json_lines: bool = True) -> None:
-    """Send dualcost's logs to standard error, as JSON lines unless asked otherwise."""
-    handler = logging.StreamHandler()
-    handler.setFormatter(JsonLogFormatter() if json_lines else logging.Formatter(
-        "%(asctime)s %(levelname)s %(name)s %(message)s"))
-    root = logging.getLogger("dualcost")
-    root.handlers[:] = [handler]
-    root.setLevel(level.upper())
-    root.propagate = False
+def logging_config(level: str = "info", *, json_lines: bool = True) -> dict[str, Any]:
+    """uvicorn's logging configuration with dualcost's logs added: to standard error, as JSON
+    lines unless asked otherwise.
+
+    It is given to uvicorn as ``log_config``, which applies it in every worker process; worker
+    processes start afresh, so a configuration made only in the parent would not reach them.
+    """
+    from uvicorn.config import LOGGING_CONFIG
+
+    config = copy.deepcopy(LOGGING_CONFIG)
+    config["formatters"]["dualcost"] = (
+        {"()": f"{__name__}.JsonLogFormatter"} if json_lines
+        else {"format": "%(asctime)s %(levelname)s %(name)s %(message)s"})
+    config["handlers"]["dualcost"] = {"class": "logging.StreamHandler", "formatter": "dualcost",
+                                      "stream": "ext://sys.stderr"}
+    config["loggers"]["dualcost"] = {"handlers": ["dualcost"], "level": level.upper(),
+                                     "propagate": False}
+    return config
 
 
 def _operation(scope: Scope) -> str:
