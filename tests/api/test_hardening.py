@@ -126,3 +126,32 @@ def test_cors_origins_are_configurable_for_dashboards() -> None:
     other = client.options("/v1/comparisons", headers={
         "origin": "https://elsewhere.example", "access-control-request-method": "POST"})
     assert "access-control-allow-origin" not in other.headers
+
+
+def test_probes_answer_while_every_compute_thread_is_busy() -> None:
+    """Liveness, readiness and metrics must not queue behind long computations for a thread."""
+    import threading
+
+    import anyio.to_thread
+    from fastapi.testclient import TestClient
+
+    from dualcost.api.app import create_app
+    from dualcost.config import Settings
+
+    with TestClient(create_app(Settings(compute_threads=1))) as client:
+        limiter = client.portal.call(anyio.to_thread.current_default_thread_limiter)
+        holder = object()
+        client.portal.call(limiter.acquire_on_behalf_of_nowait, holder)
+        try:
+            answers: dict[str, int] = {}
+
+            def probe() -> None:
+                for path in ("/live", "/ready", "/health", "/metrics"):
+                    answers[path] = client.get(path).status_code
+
+            worker = threading.Thread(target=probe, daemon=True)
+            worker.start()
+            worker.join(timeout=10)
+            assert answers == {"/live": 200, "/ready": 200, "/health": 200, "/metrics": 200}
+        finally:
+            client.portal.call(limiter.release_on_behalf_of, holder)

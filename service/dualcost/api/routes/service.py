@@ -26,21 +26,23 @@ class HealthOut(StrictModel):
     version: str
 
 
+# The probes and the metrics are coroutines: they answer on the event loop even when every
+# compute thread is busy with a long computation (a plain function would queue for a thread).
 @router.get("/health", operation_id="health", response_model=HealthOut, tags=["service"])
-def health() -> HealthOut:
+async def health() -> HealthOut:
     """Liveness for containers and load balancers."""
     return HealthOut(status="ok", version=__version__)
 
 
 @router.get("/live", operation_id="live", response_model=HealthOut, tags=["service"])
-def live() -> HealthOut:
+async def live() -> HealthOut:
     """Liveness: the process answers."""
     return HealthOut(status="ok", version=__version__)
 
 
 @router.get("/ready", operation_id="ready", response_model=HealthOut, tags=["service"],
             responses={503: {"description": "Not ready yet (or shutting down)."}})
-def ready(request: Request) -> Response:
+async def ready(request: Request) -> Response:
     """Readiness: start-up (including a warm-up comparison) has finished."""
     if not getattr(request.app.state, "ready", False):
         return JSONResponse({"status": "starting", "version": __version__}, status_code=503)
@@ -49,7 +51,7 @@ def ready(request: Request) -> Response:
 
 @router.get("/metrics", operation_id="metrics", tags=["service"], response_class=PlainTextResponse,
             responses={200: {"content": {"text/plain": {}}}})
-def metrics() -> Response:
+async def metrics() -> Response:
     """Prometheus metrics: requests, latency and compute time by operation."""
     data, media = metrics_text()
     return Response(data, media_type=media)
