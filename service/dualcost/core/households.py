@@ -41,7 +41,6 @@ from __future__ import annotations
 
 from collections.abc import Iterable, Iterator, Mapping, Sequence
 from dataclasses import dataclass, field
-from functools import cached_property
 from typing import Any, Literal
 
 import numpy as np
@@ -401,22 +400,6 @@ def _scalar_problems(rows: NDArray[np.int64], values: Vector, name: str, code: s
 # -- the vectorised families ------------------------------------------------------------------
 
 
-class _SharedIndexData(IndexData):
-    """IndexData whose shares and relatives are computed once for all the formulas."""
-
-    @cached_property
-    def relatives(self) -> Any:  # type: ignore[override]
-        return self.p1 / self.p0
-
-    @cached_property
-    def w0(self) -> Any:  # type: ignore[override]
-        return IndexData.w0.fget(self)  # type: ignore[attr-defined]
-
-    @cached_property
-    def w1(self) -> Any:  # type: ignore[override]
-        return IndexData.w1.fget(self)  # type: ignore[attr-defined]
-
-
 @dataclass
 class _Period:
     """One period's evaluation for a block of households (all arrays over households)."""
@@ -544,7 +527,7 @@ def _stone_geary(job: HouseholdJob, rows: NDArray[np.int64], w0: Matrix, m: Vect
 
 def _formula_values(job: HouseholdJob, p1: Vector, q0: Matrix, q1: Matrix) -> dict[str, Vector]:
     """The formula indices of :mod:`dualcost.core.indices`, along the item axis."""
-    data = _SharedIndexData(p0=job.base_prices, p1=p1, q0=q0, q1=q1, sigma=job.lloyd_moulton_sigma)
+    data = IndexData(p0=job.base_prices, p1=p1, q0=q0, q1=q1, sigma=job.lloyd_moulton_sigma)
     out: dict[str, Vector] = {}
     for name in job.formulas:
         if name == "fisher" and "laspeyres" in out and "paasche" in out:

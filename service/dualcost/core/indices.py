@@ -12,6 +12,7 @@ from __future__ import annotations
 
 from collections.abc import Callable
 from dataclasses import dataclass
+from functools import cached_property
 from typing import Any, Literal
 
 import numpy as np
@@ -44,16 +45,17 @@ class IndexData:
     weight_shares: Array | None = None
     sigma: float | None = None
 
-    @property
+    # Computed once per comparison, shared by all the formulas that use them.
+    @cached_property
     def relatives(self) -> Array:
         return self.p1 / self.p0
 
-    @property
+    @cached_property
     def w0(self) -> Array:
         v = self.p0 * self.q0
         return v / np.sum(v, axis=-1, keepdims=True)
 
-    @property
+    @cached_property
     def w1(self) -> Array:
         v = self.p1 * self.q1
         return v / np.sum(v, axis=-1, keepdims=True)
