@@ -467,3 +467,40 @@ def test_registry_and_report() -> None:
     with pytest.raises(InvalidInput) as info:
         calibrate("nested_ces", base, {})
     assert info.value.parameter == "tree"
+
+
+def test_a_tree_naming_items_by_id_equals_the_tree_of_positions() -> None:
+    """The service hands the core a tree with item ids (ItemIdTree); it must give the same model
+    as the tree of positions."""
+    from dualcost.core.preferences.nested_ces import ItemIdTree
+
+    base = BaseBudget.from_quantities([1.0, 2.0, 4.0, 3.0], [10.0, 5.0, 2.0, 1.0])
+    by_position = {"sigma": 0.5, "children": [{"name": "ab", "sigma": 1.7, "children": [0, 1]}, 2, 3]}
+    by_id = {"sigma": 0.5, "children": [{"name": "ab", "sigma": 1.7, "children": ["a", "b"]}, "c", 3]}
+    ids = {"a": 0, "b": 1, "c": 2, "d": 3}
+    p1 = np.array([1.3, 2.0, 3.6, 3.3])
+    plain = calibrate("nested_ces", base, {"tree": by_position})
+    named = calibrate("nested_ces", base, {"tree": ItemIdTree(by_id, ids)})
+    assert named.unit_cost(p1) == plain.unit_cost(p1)
+    assert named.groups() == plain.groups()
+
+
+@pytest.mark.parametrize("tree,words", [
+    ({"sigma": 0.5, "children": ["a", "z", 2]}, "'z', which is not one of the items"),
+    ({"sigma": 0.5, "children": ["a", "b", "a"]}, "item 0 appears twice"),
+    ({"sigma": 0.5, "children": [{"sigma": 1, "children": [{"sigma": 1, "children": ["a"]}]},
+                                 "b", 2]}, "deeper than the limit of 2 levels"),
+])
+def test_a_tree_of_item_ids_is_checked(tree, words) -> None:
+    from dualcost.core.preferences.nested_ces import ItemIdTree
+
+    base = BaseBudget.from_quantities([1.0, 2.0, 4.0], [10.0, 5.0, 2.0])
+    with pytest.raises(InvalidInput, match=words):
+        calibrate("nested_ces", base, {"tree": ItemIdTree(tree, {"a": 0, "b": 1, "c": 2},
+                                                          max_depth=2)})
+
+
+def test_ids_are_not_items_without_their_positions() -> None:
+    base = BaseBudget.from_quantities([1.0, 2.0], [10.0, 5.0])
+    with pytest.raises(InvalidInput, match="neither an item position"):
+        calibrate("nested_ces", base, {"tree": {"sigma": 0.5, "children": ["a", 1]}})

@@ -16,6 +16,7 @@ import numpy as np
 from pydantic import BaseModel, ConfigDict, Field
 
 from ...core.preferences import FAMILIES, BaseBudget, Preferences, calibrate
+from ...core.preferences.nested_ces import ItemIdTree
 from ..problems import FieldError, RequestProblem
 from .common import ItemAxis, Pointers
 from .tree import tree_to_core
@@ -182,7 +183,10 @@ def parameters_to_core(spec: ModelSpec, axis: ItemAxis, pointers: Pointers, max_
     for name, value in spec.parameters().items():
         where = f"/model/{name}"
         if name == "tree":
-            converted[name] = tree_to_core(value, axis, where, max_tree_depth, fields=("name", "sigma"))
+            # The core reads item ids itself; only a tree it refuses is walked here again, to
+            # point at the offending place (see model_to_core).
+            converted[name] = (ItemIdTree(value, axis.position, max_tree_depth)
+                               if isinstance(value, dict) else _tree_at(value, axis, max_tree_depth))
             pointers.note(name, where, per_item=False)
         elif _is_number(value) or value is None:
             converted[name] = value
@@ -223,7 +227,19 @@ def model_to_core(spec: ModelSpec, base: BaseBudget, axis: ItemAxis, pointers: P
             # always passes its setting.
             converted["deadline_seconds"] = compute_deadline_seconds
         return _calibrated(spec, base, converted, pointers)
-    return _calibrated(spec, base, parameters_to_core(spec, axis, pointers, max_tree_depth), pointers)
+    converted = parameters_to_core(spec, axis, pointers, max_tree_depth)
+    try:
+        return _calibrated(spec, base, converted, pointers)
+    except RequestProblem:
+        tree = converted.get("tree")
+        if isinstance(tree, ItemIdTree):
+            _tree_at(tree.spec, axis, max_tree_depth)  # a more exact pointer, if there is one
+        raise
+
+
+def _tree_at(tree: Any, axis: ItemAxis, max_tree_depth: int) -> dict[str, Any]:
+    """The tree walked in the request's terms: a problem here points into the tree."""
+    return tree_to_core(tree, axis, "/model/tree", max_tree_depth, fields=("name", "sigma"))
 
 
 def _calibrated(spec: ModelSpec, base: BaseBudget, converted: dict[str, Any],

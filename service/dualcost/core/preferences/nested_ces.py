@@ -135,11 +135,23 @@ def _group_label(node: Mapping[str, Any], parents: Sequence[int], labels: Sequen
     return name.strip()
 
 
-def _parse_tree(spec: Any, n_items: int) -> _Tree:
+@dataclass(frozen=True)
+class ItemIdTree:
+    """A tree whose children name items by id, as a request gives them: ``positions`` maps each
+    id to its item position, and ``max_depth`` (if given) limits the levels of groups."""
+
+    spec: Any
+    positions: Mapping[str, int]
+    max_depth: int | None = None
+
+
+def _parse_tree(spec: Any, n_items: int, item_ids: Mapping[str, int] | None = None,
+                max_depth: int | None = None) -> _Tree:
     """Check the nested ``{"name", "sigma", "children"}`` spec and flatten it (no recursion).
 
-    A group's path (``'all items > food'``) is spelled out only for an error message: building
-    it for every group would cost more than the rest of the walk.
+    Items are positions ``0..n-1``, or ids found in ``item_ids``. A group's path
+    (``'all items > food'``) is spelled out only for an error message: building it for every
+    group would cost more than the rest of the walk.
     """
     if spec is None:
         raise _tree_error(
@@ -150,6 +162,7 @@ def _parse_tree(spec: Any, n_items: int) -> _Tree:
             "must be a group: an object with 'sigma' and 'children' (and an optional 'name')"
         )
     labels: list[str | None] = [None]
+    depths: list[int] = [1]
     parents: list[int] = [-1]
     sigmas: list[float] = [math.nan]
     children: list[list[int]] = [[]]
@@ -192,36 +205,47 @@ def _parse_tree(spec: Any, n_items: int) -> _Tree:
         mine = children[g]
         for k, child in enumerate(kids, start=1):
             # type() first: the abstract-class checks are slow, and trees have thousands of items.
-            if type(child) is int or (isinstance(child, Integral) and not isinstance(child, bool)):
+            if type(child) is str and item_ids is not None:
+                i = item_ids.get(child, -1)
+                if i < 0:
+                    raise _tree_error(f"group '{_path(labels, parents, g)}' lists {child!r}, "
+                                      "which is not one of the items")
+            elif type(child) is int or (isinstance(child, Integral) and not isinstance(child, bool)):
                 i = int(child)
                 if not 0 <= i < n_items:
                     raise _tree_error(
                         f"group '{_path(labels, parents, g)}' lists item {i}, but item positions "
                         f"run from 0 to {n_items - 1} (there are {n_items} items)"
                     )
-                if owner[i] >= 0:
-                    first = _path(labels, parents, owner[i])
-                    second = "again" if owner[i] == g else f"and in '{_path(labels, parents, g)}'"
-                    raise _tree_error(
-                        f"item {i} appears twice, in '{first}' {second}; every item must "
-                        "appear exactly once"
-                    )
-                owner[i] = g
-                mine.append(i)
             elif isinstance(child, Mapping):
                 cid = len(labels)
+                depth = depths[g] + 1
+                if max_depth is not None and depth > max_depth:
+                    raise _tree_error(f"child {k} of group '{_path(labels, parents, g)}' makes "
+                                      f"the tree deeper than the limit of {max_depth} levels")
                 labels.append(None)
+                depths.append(depth)
                 parents.append(g)
                 sigmas.append(math.nan)
                 children.append([])
                 mine.append(n_items + cid)
                 stack.append((child, cid, k))
+                continue
             else:
                 raise _tree_error(
                     f"child {k} of group '{_path(labels, parents, g)}' is {child!r}, which is "
                     "neither an item position (a whole number) nor a group (an object with "
                     "sigma and children)"
                 )
+            if owner[i] >= 0:
+                first = _path(labels, parents, owner[i])
+                second = "again" if owner[i] == g else f"and in '{_path(labels, parents, g)}'"
+                raise _tree_error(
+                    f"item {i} appears twice, in '{first}' {second}; every item must "
+                    "appear exactly once"
+                )
+            owner[i] = g
+            mine.append(i)
     if -1 in owner:
         missing = [i for i in range(n_items) if owner[i] < 0]
         shown = ", ".join(str(i) for i in missing[:10]) + (", ..." if len(missing) > 10 else "")
@@ -386,8 +410,13 @@ class NestedCES(HomotheticPreferences):
 
     @classmethod
     def calibrate(cls, base: BaseBudget, *, tree: Any = None, **_: Any) -> NestedCES:
-        """Within-group weights come from the base shares; the caller gives the tree."""
-        return cls(base.shares, base.prices, _parse_tree(tree, base.n_items))
+        """Within-group weights come from the base shares; the caller gives the tree (items as
+        positions, or by id in an :class:`ItemIdTree`)."""
+        if isinstance(tree, ItemIdTree):
+            parsed = _parse_tree(tree.spec, base.n_items, tree.positions, tree.max_depth)
+        else:
+            parsed = _parse_tree(tree, base.n_items)
+        return cls(base.shares, base.prices, parsed)
 
     # -- evaluation --------------------------------------------------------------------------
     def _log_relatives(self, prices: Vector) -> tuple[Vector, list[Vector]]:
