@@ -504,3 +504,20 @@ def test_ids_are_not_items_without_their_positions() -> None:
     base = BaseBudget.from_quantities([1.0, 2.0], [10.0, 5.0])
     with pytest.raises(InvalidInput, match="neither an item position"):
         calibrate("nested_ces", base, {"tree": {"sigma": 0.5, "children": ["a", 1]}})
+
+
+def test_at_the_calibration_prices_cost_is_one_and_shares_are_the_base_shares() -> None:
+    """c(p0) = 1 and w(p0) = w0 hold exactly at the calibration point (calibrated share form,
+    Sato 1967); just off it the general evaluation agrees."""
+    base = BaseBudget.from_quantities([1.0, 2.0, 4.0, 3.0], [10.0, 5.0, 2.0, 1.0])
+    tree = {"sigma": 0.5, "children": [{"sigma": 1.7, "children": [0, 1]},
+                                       {"sigma": 0.0, "children": [2, 3]}]}
+    model = calibrate("nested_ces", base, {"tree": tree})
+    cost, shares = model.cost_and_shares(base.prices.copy())
+    assert cost == 1.0
+    assert np.array_equal(shares, base.shares)
+    shares[0] = 99.0  # the caller's copy: the model is not changed
+    assert model.cost_and_shares(base.prices)[1][0] == base.shares[0]
+    near_cost, near_shares = model.cost_and_shares(base.prices * (1.0 + 1e-14))
+    assert near_cost == pytest.approx(1.0 + 1e-14, rel=1e-13)
+    assert_allclose(near_shares, base.shares, rtol=1e-12)

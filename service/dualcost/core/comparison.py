@@ -29,6 +29,7 @@ Definitions used throughout (utility ``u``, expenditure function ``e``, indirect
 
 from __future__ import annotations
 
+import math
 from collections.abc import Iterator, Sequence
 from contextlib import contextmanager
 from dataclasses import dataclass, field
@@ -454,8 +455,8 @@ def _check_finite(c: Comparison) -> None:
                c.demands.substitution_effect, c.demands.income_effect]
     if c.laspeyres_gap_contributions is not None:
         vectors.append(c.laspeyres_gap_contributions)
-    numbers = np.array([x for x in scalars if x is not None], dtype=np.float64)
-    if not (np.all(np.isfinite(numbers)) and all(np.all(np.isfinite(v)) for v in vectors)):
+    if not (all(math.isfinite(x) for x in scalars if x is not None)
+            and np.isfinite(np.concatenate(vectors)).all()):
         raise NumericalFailure("comparison", "the model could not be evaluated in floating "
                                "point at these prices and incomes (a result overflowed or is "
                                "undefined); check the inputs' magnitudes")

@@ -358,8 +358,8 @@ def _level_up(level: _Level, log_rel: Vector) -> tuple[Vector, Vector]:
         return mean, level.weight
     d = np.where(level.positive, level.t_edge * (lc - mean[level.seg]), 0.0)
     # Zero-weight edges sit at 0, below the largest weighted term (which is at least 0).
-    excess = np.maximum(np.maximum.reduceat(d, level.starts) - _SHIFT_LIMIT, 0.0)
-    if np.any(excess > 0.0):
+    if d.max() > _SHIFT_LIMIT:
+        excess = np.maximum(np.maximum.reduceat(d, level.starts) - _SHIFT_LIMIT, 0.0)
         big = excess > 0.0
         shifted = d - excess[level.seg]
         plain = np.add.reduceat(level.weight * np.expm1(np.minimum(d, _SHIFT_LIMIT)), level.starts)
@@ -430,6 +430,10 @@ class NestedCES(HomotheticPreferences):
         return log_rel, within
 
     def cost_and_shares(self, prices: Vector) -> tuple[float, Vector]:
+        if np.array_equal(prices, self.reference_prices):
+            # The calibration point: c(p0) = 1 and w(p0) = w0, exactly (the tree's products
+            # of within-group weights give w0 only to rounding), and without a pass.
+            return 1.0, self.shares.copy()
         log_rel, within = self._log_relatives(prices)
         node_w = np.empty(self._node_share.size)
         node_w[self._root] = 1.0
