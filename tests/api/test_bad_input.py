@@ -237,3 +237,10 @@ def test_prices_beyond_floating_point_range_are_a_numerical_failure_problem(clie
     assert r.headers["content-type"].startswith("application/problem+json")
     assert r.json()["type"] == "/problems/numerical-failure"
     assert "nan" not in r.text.lower()
+
+
+def test_tree_with_an_item_position_instead_of_an_id(client) -> None:
+    """A request's tree names items by id; a number there is refused, not read as a position."""
+    tree = {"sigma": 0.5, "children": [{"sigma": 1.0, "children": ["a", "b"]}, 2]}
+    assert_problem(post(client, small_request(family="nested_ces", tree=tree)),
+                   "/model/tree/children/1", "item id or a group")

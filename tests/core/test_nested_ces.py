@@ -476,7 +476,7 @@ def test_a_tree_naming_items_by_id_equals_the_tree_of_positions() -> None:
 
     base = BaseBudget.from_quantities([1.0, 2.0, 4.0, 3.0], [10.0, 5.0, 2.0, 1.0])
     by_position = {"sigma": 0.5, "children": [{"name": "ab", "sigma": 1.7, "children": [0, 1]}, 2, 3]}
-    by_id = {"sigma": 0.5, "children": [{"name": "ab", "sigma": 1.7, "children": ["a", "b"]}, "c", 3]}
+    by_id = {"sigma": 0.5, "children": [{"name": "ab", "sigma": 1.7, "children": ["a", "b"]}, "c", "d"]}
     ids = {"a": 0, "b": 1, "c": 2, "d": 3}
     p1 = np.array([1.3, 2.0, 3.6, 3.3])
     plain = calibrate("nested_ces", base, {"tree": by_position})
@@ -486,10 +486,11 @@ def test_a_tree_naming_items_by_id_equals_the_tree_of_positions() -> None:
 
 
 @pytest.mark.parametrize("tree,words", [
-    ({"sigma": 0.5, "children": ["a", "z", 2]}, "'z', which is not one of the items"),
+    ({"sigma": 0.5, "children": ["a", "z", "c"]}, "'z', which is not one of the items"),
+    ({"sigma": 0.5, "children": ["a", "b", 2]}, "2, which is neither an item id nor a group"),
     ({"sigma": 0.5, "children": ["a", "b", "a"]}, "item 0 appears twice"),
     ({"sigma": 0.5, "children": [{"sigma": 1, "children": [{"sigma": 1, "children": ["a"]}]},
-                                 "b", 2]}, "deeper than the limit of 2 levels"),
+                                 "b", "c"]}, "deeper than the limit of 2 levels"),
 ])
 def test_a_tree_of_item_ids_is_checked(tree, words) -> None:
     from dualcost.core.preferences.nested_ces import ItemIdTree

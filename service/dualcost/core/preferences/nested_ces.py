@@ -149,7 +149,8 @@ def _parse_tree(spec: Any, n_items: int, item_ids: Mapping[str, int] | None = No
                 max_depth: int | None = None) -> _Tree:
     """Check the nested ``{"name", "sigma", "children"}`` spec and flatten it (no recursion).
 
-    Items are positions ``0..n-1``, or ids found in ``item_ids``. A group's path
+    Items are positions ``0..n-1``, or, when ``item_ids`` is given, ids found in it (and only
+    those). A group's path
     (``'all items > food'``) is spelled out only for an error message: building it for every
     group would cost more than the rest of the walk.
     """
@@ -210,7 +211,8 @@ def _parse_tree(spec: Any, n_items: int, item_ids: Mapping[str, int] | None = No
                 if i < 0:
                     raise _tree_error(f"group '{_path(labels, parents, g)}' lists {child!r}, "
                                       "which is not one of the items")
-            elif type(child) is int or (isinstance(child, Integral) and not isinstance(child, bool)):
+            elif item_ids is None and (
+                    type(child) is int or (isinstance(child, Integral) and not isinstance(child, bool))):
                 i = int(child)
                 if not 0 <= i < n_items:
                     raise _tree_error(
@@ -232,10 +234,10 @@ def _parse_tree(spec: Any, n_items: int, item_ids: Mapping[str, int] | None = No
                 stack.append((child, cid, k))
                 continue
             else:
+                item = "an item id" if item_ids is not None else "an item position (a whole number)"
                 raise _tree_error(
                     f"child {k} of group '{_path(labels, parents, g)}' is {child!r}, which is "
-                    "neither an item position (a whole number) nor a group (an object with "
-                    "sigma and children)"
+                    f"neither {item} nor a group (an object with sigma and children)"
                 )
             if owner[i] >= 0:
                 first = _path(labels, parents, owner[i])
