@@ -35,10 +35,10 @@ relative defined, its children are given equal weights.
 
 Evaluation never recurses: calibration compiles the tree into arrays grouped by depth (the
 deepest first, so every group comes after its children), and each depth is one vectorised
-segment reduction, so a
-1,000-deep chain is as safe as a three-level tree. Each power mean is shifted by its weighted mean
-of ``(1 - sigma) ln P`` and evaluated with ``expm1``/``log1p``, which keeps full accuracy as
-``sigma`` approaches 1, and falls back to a max shift where a term could overflow (large sigma).
+segment reduction, so a 1,000-deep chain is as safe as a three-level tree. Each power mean is
+shifted by its weighted mean of ``(1 - sigma) ln P`` and evaluated with ``expm1``/``log1p``,
+which keeps full accuracy as ``sigma`` approaches 1, and falls back to a max shift where a term
+could overflow (large sigma).
 """
 
 from __future__ import annotations
@@ -150,9 +150,8 @@ def _parse_tree(spec: Any, n_items: int, item_ids: Mapping[str, int] | None = No
     """Check the nested ``{"name", "sigma", "children"}`` spec and flatten it (no recursion).
 
     Items are positions ``0..n-1``, or, when ``item_ids`` is given, ids found in it (and only
-    those). A group's path
-    (``'all items > food'``) is spelled out only for an error message: building it for every
-    group would cost more than the rest of the walk.
+    those). A group's path (``'all items > food'``) is spelled out only for an error message:
+    building it for every group would cost more than the rest of the walk.
     """
     if spec is None:
         raise _tree_error(
@@ -182,7 +181,7 @@ def _parse_tree(spec: Any, n_items: int, item_ids: Mapping[str, int] | None = No
                 "inside itself); every group must appear once"
             )
         visited.add(id(node))
-        if len(node) > 3 or any(k not in _GROUP_KEYS for k in node):
+        if any(k not in _GROUP_KEYS for k in node):
             unknown = sorted(str(k) for k in node if k not in _GROUP_KEYS)
             raise _tree_error(
                 f"group '{_path(labels, parents, g)}' has unknown key(s) "
