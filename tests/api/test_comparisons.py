@@ -141,3 +141,17 @@ def test_negative_model_demand_leaves_out_current_weighted_formulas(client) -> N
     names = {f["formula"] for f in body["formulas"]}
     assert "laspeyres" in names and "walsh" not in names and "paasche" not in names
     assert any("negative" in n["message"] for n in body["notices"] if n["code"] == "formula_not_computed")
+
+
+@pytest.mark.parametrize("value,finite", [
+    ({"groups": [{"sigma": 1.0, "items": [1, 2]}], "weights": [0.1, 0.9]}, True),
+    ({"a": [1.0, 2.0, {"b": float("inf")}]}, False),
+    ([1.0, float("nan")], False),
+    ([1.0, 10**400, "text", None], True),
+    ([[1.0, 2.0], [3.0, -float("inf")]], False),
+])
+def test_all_finite_finds_any_nan_or_infinity(value, finite) -> None:
+    """The guard before a model's parameters are written (never NaN or infinity in a 200)."""
+    from dualcost.api.schemas.comparison import all_finite
+
+    assert all_finite(value) is finite

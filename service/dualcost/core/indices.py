@@ -51,6 +51,10 @@ class IndexData:
         return self.p1 / self.p0
 
     @cached_property
+    def log_relatives(self) -> Array:
+        return np.log(self.relatives)
+
+    @cached_property
     def w0(self) -> Array:
         v = self.p0 * self.q0
         return v / np.sum(v, axis=-1, keepdims=True)
@@ -78,7 +82,7 @@ def fisher(d: IndexData) -> Any:
 
 def tornqvist(d: IndexData) -> Any:
     """ln P_T = sum (w0 + w1)/2 ln(p1/p0) (Törnqvist 1936; CPI Manual 15.81)."""
-    return np.exp(np.sum(0.5 * (d.w0 + d.w1) * np.log(d.relatives), axis=-1))
+    return np.exp(np.sum(0.5 * (d.w0 + d.w1) * d.log_relatives, axis=-1))
 
 
 def walsh(d: IndexData) -> Any:
@@ -101,19 +105,19 @@ def sato_vartia(d: IndexData) -> Any:
     """
     lm = log_mean(d.w1, d.w0)
     phi = lm / np.sum(lm, axis=-1, keepdims=True)
-    return np.exp(np.sum(phi * np.log(d.relatives), axis=-1))
+    return np.exp(np.sum(phi * d.log_relatives, axis=-1))
 
 
 def geometric_laspeyres(d: IndexData) -> Any:
     """ln P_GL = sum w0 ln(p1/p0) (CPI Manual 15.69; Konüs for Cobb-Douglas)."""
-    return np.exp(np.sum(d.w0 * np.log(d.relatives), axis=-1))
+    return np.exp(np.sum(d.w0 * d.log_relatives, axis=-1))
 
 
 def lloyd_moulton(d: IndexData) -> Any:
     """P_LM = (sum w0 (p1/p0)^(1-sigma))^(1/(1-sigma)) (Lloyd 1975; Moulton 1996;
     CPI Manual 17.61); the geometric Laspeyres at sigma = 1, Laspeyres at sigma = 0."""
     assert d.sigma is not None
-    return np.exp(log_power_mean(np.log(d.relatives), d.w0, 1.0 - d.sigma))
+    return np.exp(log_power_mean(d.log_relatives, d.w0, 1.0 - d.sigma))
 
 
 def lowe(d: IndexData) -> Any:
@@ -136,7 +140,7 @@ def carli(d: IndexData) -> Any:
 
 def jevons(d: IndexData) -> Any:
     """P_J = prod (p1/p0)^(1/N), unweighted geometric mean (Jevons 1863; CPI Manual 20.35)."""
-    return np.exp(np.mean(np.log(d.relatives), axis=-1))
+    return np.exp(np.mean(d.log_relatives, axis=-1))
 
 
 def dutot(d: IndexData) -> Any:

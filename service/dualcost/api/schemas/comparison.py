@@ -281,7 +281,12 @@ def all_finite(value: Any) -> bool:
         elif isinstance(v, dict):
             stack.extend(v.values())
         elif isinstance(v, (list, tuple)):
-            stack.extend(v)
+            try:
+                # A list of numbers (the common case: a parameter vector) in one pass.
+                if not all(map(math.isfinite, v)):
+                    return False
+            except (TypeError, OverflowError):  # not all numbers, or an int beyond floats
+                stack.extend(v)
     return True
 
 
