@@ -8,7 +8,6 @@ from typing import Annotated
 from fastapi import APIRouter, Body
 
 from ...config import Settings
-from ..deps import SettingsDep
 from ..examples import load_examples
 from ..observability import computing
 from ..routing import JsonRoute, inline_when_small
@@ -24,7 +23,6 @@ def router(settings: Settings) -> APIRouter:
     @inline_when_small
     def audit_published(
         request: Annotated[AuditRequest, Body(openapi_examples=examples)],  # type: ignore[arg-type]
-        settings: SettingsDep,
     ) -> AuditResponse:
         """The panel (prices with quantities or expenditures, as for POST /v1/index-series, with
         the same options: base period, reference value 1 or 100...) and the published values,

@@ -11,7 +11,6 @@ from fastapi.responses import Response
 
 from ...config import Settings
 from ...core.errors import NumericalFailure
-from ..deps import SettingsDep
 from ..examples import load_examples
 from ..observability import computing
 from ..problems import PROBLEM_MEDIA_TYPE
@@ -45,7 +44,6 @@ def router(settings: Settings) -> APIRouter:
     @inline_when_small
     def compare(
         request: Annotated[ComparisonRequest, Body(openapi_examples=examples)],  # type: ignore[arg-type]
-        settings: SettingsDep,
     ) -> Response:
         """Calibrate the chosen preference model to the base budget, evaluate its expenditure
         function at base and current prices, and set the true (Konüs) cost-of-living index beside

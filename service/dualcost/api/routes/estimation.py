@@ -10,7 +10,6 @@ from fastapi import APIRouter, Body, Depends, Query, Request
 from fastapi.responses import Response
 
 from ...config import Settings
-from ..deps import SettingsDep
 from ..examples import load_examples
 from ..observability import computing
 from ..problems import PROBLEM_MEDIA_TYPE
@@ -92,7 +91,6 @@ def router(settings: Settings) -> APIRouter:
     def fit_model(
         body: Annotated[FitRequest, Body(openapi_examples=fit_examples)],  # type: ignore[arg-type]
         request: Request,
-        settings: SettingsDep,
         format: Annotated[Literal["json", "csv"] | None, Query(
             description="Answer format; default by the Accept header (JSON unless text/csv is "
                         "preferred). CSV gives the parameter table.")] = None,
@@ -115,7 +113,6 @@ def router(settings: Settings) -> APIRouter:
     def fit_model_csv(
         text: Annotated[str, Depends(csv_body)],
         request: Request,
-        settings: SettingsDep,
         family: Annotated[Literal["ces", "nested_ces", "stone_geary", "aids", "quaids"], Query()],
         estimator: Annotated[Literal["nonlinear", "linear_approximate"] | None, Query()] = None,
         restrictions: Annotated[Literal["none", "homogeneity", "symmetry"] | None, Query()] = None,
@@ -156,7 +153,6 @@ def router(settings: Settings) -> APIRouter:
     )
     def fit_and_compare(
         body: Annotated[FitAndCompareRequest, Body(openapi_examples=compare_examples)],  # type: ignore[arg-type]
-        settings: SettingsDep,
     ) -> Response:
         with computing("fitAndCompare", settings):
             result, data, point, (model, axis), intervals = run_fit_and_compare(body, settings)

@@ -46,7 +46,6 @@ from ...core.households import (
     collect,
     evaluate_locally,
 )
-from ..deps import SettingsDep
 from ..examples import load_examples
 from ..observability import computing
 from ..problems import PROBLEM_MEDIA_TYPE, FieldError, RequestProblem
@@ -395,7 +394,6 @@ def router(settings: Settings) -> APIRouter:
     def household_indices(
         request: Annotated[HouseholdIndicesRequest, Body(openapi_examples=examples)],  # type: ignore[arg-type]
         http: Request,
-        settings: SettingsDep,
         format: FormatParam = None,
     ) -> Response:
         """Apply one price change, or a series, to every household: each gets its own model,
@@ -453,7 +451,6 @@ def router(settings: Settings) -> APIRouter:
     )
     def create_household_job(
         spec: Annotated[HouseholdJobSpec, Body(openapi_examples=job_examples)],  # type: ignore[arg-type]
-        settings: SettingsDep,
     ) -> JSONResponse:
         """The same fields as householdIndices without the households. The answer is the job
         (status waiting_for_households); send its households as CSV to the households link.
@@ -477,8 +474,7 @@ def router(settings: Settings) -> APIRouter:
                    409: {"description": "The job already has its households."}},
         openapi_extra=CSV_REQUEST_BODY,
     )
-    async def household_indices_from_csv(job_id: str, request: Request,
-                                         settings: SettingsDep) -> Response:
+    async def household_indices_from_csv(job_id: str, request: Request) -> Response:
         """One CSV record per household: a column per item id holding the base share, and the
         optional columns household (an id), expenditure (income; required for non-homothetic
         families) and weight. The answer streams one CSV row per household and period as

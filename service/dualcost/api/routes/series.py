@@ -10,7 +10,6 @@ from fastapi import APIRouter, Body, Depends, Query, Request
 from fastapi.responses import Response
 
 from ...config import Settings
-from ..deps import SettingsDep
 from ..examples import load_examples
 from ..observability import computing
 from ..problems import PROBLEM_MEDIA_TYPE
@@ -86,7 +85,6 @@ def router(settings: Settings) -> APIRouter:
     def index_series(
         body: Annotated[SeriesRequest, Body(openapi_examples=examples)],  # type: ignore[arg-type]
         request: Request,
-        settings: SettingsDep,
         format: Annotated[Literal["json", "csv"] | None, Query(
             description="Answer format; default by the Accept header (JSON unless text/csv is "
                         "preferred).")] = None,
@@ -117,7 +115,6 @@ def router(settings: Settings) -> APIRouter:
     def index_series_from_csv(
         text: Annotated[str, Depends(csv_body)],
         request: Request,
-        settings: SettingsDep,
         base_period: Annotated[str | None, Query(description="Base (price-reference) period.")] = None,
         reference_period: Annotated[str | None, Query(description="Index reference period.")] = None,
         reference_value: Annotated[int | None, Query(description="1 or 100 (default 100).")] = None,
