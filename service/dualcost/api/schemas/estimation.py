@@ -47,7 +47,8 @@ from .tree import tree_to_core
 FittedFamily = Literal["ces", "nested_ces", "stone_geary", "aids", "quaids"]
 Estimator = Literal["nonlinear", "linear_approximate"]
 Restrictions = Literal["none", "homogeneity", "symmetry"]
-Row = Annotated[dict[str, FiniteFloat] | list[FiniteFloat], Field(
+Row = Annotated[list[FiniteFloat] | dict[str, FiniteFloat], Field(
+    union_mode="left_to_right",  # the forms cannot be confused (see VectorIn)
     description="One observation: an object keyed by item id, or a list in the order of `items`.")]
 ObservationLabel = Annotated[str | int, Field(description="A household id, a period, or both.")]
 #: The model options, by core argument name, as (JSON Pointer, CSV query parameter).

@@ -49,7 +49,8 @@ SeriesFormula = Literal[tuple(SERIES_FORMULAS)]  # type: ignore[valid-type]
 PeriodLabel = Annotated[str | int, Field(description="A period label: YYYY-MM, YYYY-Qn, YYYY, an "
                                          "integer, or any other text.")]
 Cell = FiniteFloat | None
-Row = Annotated[dict[str, Cell] | list[Cell], Field(
+Row = Annotated[list[Cell] | dict[str, Cell], Field(
+    union_mode="left_to_right",  # the forms cannot be confused (see VectorIn)
     description="One period: an object keyed by item id, or a list in the order of `items`; "
                 "null (or, in an object, no entry) where the item is not priced.")]
 
