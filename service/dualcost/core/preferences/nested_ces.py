@@ -62,7 +62,7 @@ IndexArray = NDArray[np.intp]
 
 #: The root group's name when the tree does not give one.
 ROOT_NAME = "all items"
-_GROUP_KEYS = ("name", "sigma", "children")
+_GROUP_KEYS = frozenset(("name", "sigma", "children"))
 # Beyond this shifted exponent an exp could overflow; the shift moves to the largest term.
 _SHIFT_LIMIT = 30.0
 _TINY = float(np.finfo(np.float64).tiny)
@@ -181,7 +181,7 @@ def _parse_tree(spec: Any, n_items: int, item_ids: Mapping[str, int] | None = No
                 "inside itself); every group must appear once"
             )
         visited.add(id(node))
-        if any(k not in _GROUP_KEYS for k in node):
+        if not node.keys() <= _GROUP_KEYS:
             unknown = sorted(str(k) for k in node if k not in _GROUP_KEYS)
             raise _tree_error(
                 f"group '{_path(labels, parents, g)}' has unknown key(s) "
@@ -197,7 +197,9 @@ def _parse_tree(spec: Any, n_items: int, item_ids: Mapping[str, int] | None = No
             named[label] = g
         sigmas[g] = _check_group_sigma(lambda: _path(labels, parents, g), node)  # noqa: B023
         kids = node.get("children")
-        if isinstance(kids, (str, bytes)) or not isinstance(kids, Sequence) or not kids:
+        # type() first: the abstract-class checks are slow.
+        if not kids or (type(kids) is not list and (
+                isinstance(kids, (str, bytes)) or not isinstance(kids, Sequence))):
             raise _tree_error(
                 f"group '{_path(labels, parents, g)}' has no children; every group needs at "
                 "least one item position or subgroup in 'children'"
@@ -218,7 +220,7 @@ def _parse_tree(spec: Any, n_items: int, item_ids: Mapping[str, int] | None = No
                         f"group '{_path(labels, parents, g)}' lists item {i}, but item positions "
                         f"run from 0 to {n_items - 1} (there are {n_items} items)"
                     )
-            elif isinstance(child, Mapping):
+            elif type(child) is dict or isinstance(child, Mapping):
                 cid = len(labels)
                 depth = depths[g] + 1
                 if max_depth is not None and depth > max_depth:
