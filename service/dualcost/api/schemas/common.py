@@ -64,15 +64,20 @@ class ItemAxis:
     position: dict[str, int] = field(init=False)
 
     def __post_init__(self) -> None:
-        self.position = {}
-        for i, item_id in enumerate(self.ids):
-            if item_id in self.position:
-                raise RequestProblem([FieldError(f"/items/{i}", f"item id {item_id!r} is listed "
-                                                 f"twice (first at position {self.position[item_id]})")])
-            self.position[item_id] = i
+        self.position = dict(zip(self.ids, range(len(self.ids)), strict=True))
+        if len(self.position) < len(self.ids):  # an id is listed twice: name the first repeat
+            first: dict[str, int] = {}
+            for i, item_id in enumerate(self.ids):
+                if item_id in first:
+                    raise RequestProblem([FieldError(f"/items/{i}", f"item id {item_id!r} is "
+                                                     f"listed twice (first at position "
+                                                     f"{first[item_id]})")])
+                first[item_id] = i
 
     @classmethod
     def from_request(cls, items: list[Any]) -> ItemAxis:
+        if set(map(type, items)) == {str}:  # ids only, the common form
+            return cls(list(items), [None] * len(items))
         ids = [it if isinstance(it, str) else it.id for it in items]
         labels = [None if isinstance(it, str) else it.label for it in items]
         return cls(ids, labels)
