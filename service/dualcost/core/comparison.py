@@ -179,8 +179,8 @@ def _naming(**names: str) -> Iterator[None]:
 
 
 def _relative_gap(a: Vector, b: Vector) -> float:
-    scale = max(float(np.max(np.abs(b))), 1e-300)
-    return float(np.max(np.abs(a - b))) / scale
+    scale = max(float(np.abs(b).max()), 1e-300)
+    return float(np.abs(a - b).max()) / scale
 
 
 def compare(

@@ -57,22 +57,22 @@ class IndexData:
     @cached_property
     def w0(self) -> Array:
         v = self.p0 * self.q0
-        return v / np.sum(v, axis=-1, keepdims=True)
+        return v / v.sum(axis=-1, keepdims=True)
 
     @cached_property
     def w1(self) -> Array:
         v = self.p1 * self.q1
-        return v / np.sum(v, axis=-1, keepdims=True)
+        return v / v.sum(axis=-1, keepdims=True)
 
 
 def laspeyres(d: IndexData) -> Any:
     """P_L = sum p1 q0 / sum p0 q0 (Laspeyres 1871; CPI Manual 15.14)."""
-    return np.sum(d.p1 * d.q0, axis=-1) / np.sum(d.p0 * d.q0, axis=-1)
+    return (d.p1 * d.q0).sum(axis=-1) / (d.p0 * d.q0).sum(axis=-1)
 
 
 def paasche(d: IndexData) -> Any:
     """P_P = sum p1 q1 / sum p0 q1 (Paasche 1874; CPI Manual 15.15)."""
-    return np.sum(d.p1 * d.q1, axis=-1) / np.sum(d.p0 * d.q1, axis=-1)
+    return (d.p1 * d.q1).sum(axis=-1) / (d.p0 * d.q1).sum(axis=-1)
 
 
 def fisher(d: IndexData) -> Any:
@@ -82,19 +82,19 @@ def fisher(d: IndexData) -> Any:
 
 def tornqvist(d: IndexData) -> Any:
     """ln P_T = sum (w0 + w1)/2 ln(p1/p0) (Törnqvist 1936; CPI Manual 15.81)."""
-    return np.exp(np.sum(0.5 * (d.w0 + d.w1) * d.log_relatives, axis=-1))
+    return np.exp((0.5 * (d.w0 + d.w1) * d.log_relatives).sum(axis=-1))
 
 
 def walsh(d: IndexData) -> Any:
     """P_W = sum p1 (q0 q1)^(1/2) / sum p0 (q0 q1)^(1/2) (Walsh 1901; CPI Manual 15.24)."""
     g = np.sqrt(d.q0 * d.q1)
-    return np.sum(d.p1 * g, axis=-1) / np.sum(d.p0 * g, axis=-1)
+    return (d.p1 * g).sum(axis=-1) / (d.p0 * g).sum(axis=-1)
 
 
 def marshall_edgeworth(d: IndexData) -> Any:
     """P_ME = sum p1 (q0 + q1) / sum p0 (q0 + q1) (Marshall 1887; Edgeworth 1925)."""
     q = d.q0 + d.q1
-    return np.sum(d.p1 * q, axis=-1) / np.sum(d.p0 * q, axis=-1)
+    return (d.p1 * q).sum(axis=-1) / (d.p0 * q).sum(axis=-1)
 
 
 def sato_vartia(d: IndexData) -> Any:
@@ -104,13 +104,13 @@ def sato_vartia(d: IndexData) -> Any:
     Shares must be positive in both periods: the logarithmic mean takes their logarithms.
     """
     lm = log_mean(d.w1, d.w0)
-    phi = lm / np.sum(lm, axis=-1, keepdims=True)
-    return np.exp(np.sum(phi * d.log_relatives, axis=-1))
+    phi = lm / lm.sum(axis=-1, keepdims=True)
+    return np.exp((phi * d.log_relatives).sum(axis=-1))
 
 
 def geometric_laspeyres(d: IndexData) -> Any:
     """ln P_GL = sum w0 ln(p1/p0) (CPI Manual 15.69; Konüs for Cobb-Douglas)."""
-    return np.exp(np.sum(d.w0 * d.log_relatives, axis=-1))
+    return np.exp((d.w0 * d.log_relatives).sum(axis=-1))
 
 
 def lloyd_moulton(d: IndexData) -> Any:
@@ -124,28 +124,28 @@ def lowe(d: IndexData) -> Any:
     """P_Lo = sum p1 qb / sum p0 qb, basket of an earlier period b (Lowe 1823; CPI Manual 15.33)."""
     assert d.weight_quantities is not None
     qb = d.weight_quantities
-    return np.sum(d.p1 * qb, axis=-1) / np.sum(d.p0 * qb, axis=-1)
+    return (d.p1 * qb).sum(axis=-1) / (d.p0 * qb).sum(axis=-1)
 
 
 def young(d: IndexData) -> Any:
     """P_Y = sum wb (p1/p0), shares of an earlier period b (Young 1812; CPI Manual 15.48)."""
     assert d.weight_shares is not None
-    return np.sum(d.weight_shares * d.relatives, axis=-1)
+    return (d.weight_shares * d.relatives).sum(axis=-1)
 
 
 def carli(d: IndexData) -> Any:
     """P_C = mean(p1/p0), unweighted arithmetic mean of relatives (Carli 1764; CPI Manual 20.32)."""
-    return np.mean(d.relatives, axis=-1)
+    return d.relatives.mean(axis=-1)
 
 
 def jevons(d: IndexData) -> Any:
     """P_J = prod (p1/p0)^(1/N), unweighted geometric mean (Jevons 1863; CPI Manual 20.35)."""
-    return np.exp(np.mean(d.log_relatives, axis=-1))
+    return np.exp(d.log_relatives.mean(axis=-1))
 
 
 def dutot(d: IndexData) -> Any:
     """P_D = mean(p1) / mean(p0), ratio of average prices (Dutot 1738; CPI Manual 20.30)."""
-    return np.mean(d.p1, axis=-1) / np.mean(d.p0, axis=-1)
+    return d.p1.mean(axis=-1) / d.p0.mean(axis=-1)
 
 
 @dataclass(frozen=True)
