@@ -119,8 +119,9 @@ def run_locally(body: dict[str, Any]) -> dict[str, Any]:
         request = AuditRequest.model_validate(body)
         return run_audit(request, Settings()).model_dump()
     except ValidationError as exc:
-        raise CheckInputError("; ".join(f"{_pointer(('body', *e['loc']))}: {_pydantic_message(e)}"
-                                        for e in exc.errors())) from None
+        raise CheckInputError("; ".join(
+            f"{_pointer(('body', *e['loc']), body, e['type'])}: {_pydantic_message(e)}"
+            for e in exc.errors())) from None
     except RequestProblem as exc:
         raise CheckInputError("; ".join(f"{e.pointer}: {e.detail}" for e in exc.errors)) from None
 

@@ -244,3 +244,37 @@ def test_tree_with_an_item_position_instead_of_an_id(client) -> None:
     tree = {"sigma": 0.5, "children": [{"sigma": 1.0, "children": ["a", "b"]}, 2]}
     assert_problem(post(client, small_request(family="nested_ces", tree=tree)),
                    "/model/tree/children/1", "item id or a group")
+
+
+def _resolves(body: Any, pointer: str, missing: bool) -> bool:
+    """Whether a JSON Pointer (RFC 6901) leads to a value of the body; for a missing field,
+    whether it leads to the object that lacks it."""
+    parts = [p.replace("~1", "/").replace("~0", "~") for p in pointer.split("/")[1:]]
+    if missing:
+        parts = parts[:-1]
+    node = body
+    for p in parts:
+        if isinstance(node, dict) and p in node:
+            node = node[p]
+        elif isinstance(node, list) and p.isdigit() and int(p) < len(node):
+            node = node[int(p)]
+        else:
+            return False
+    return True
+
+
+def test_pointers_never_name_a_union_member(client) -> None:
+    """An item or vector that fits none of its accepted forms is pointed at itself: pydantic
+    puts the names of the forms it tried (``Item``, ``constrained-str``, ``list[...]``) in the
+    error location, and a JSON Pointer must lead into the request (RFC 9457 problem details
+    with RFC 6901 pointers; common practice for the ``errors`` member)."""
+    req = small_request()
+    req["items"][1] = 7  # neither an id nor an object
+    req["items"][2] = {"label": "no id"}  # the object form without its id
+    req["base"]["prices"] = {"a": "dear", "b": 2.0, "c": 4.0}
+    body = assert_problem(post(client, req), "/items/1", "valid string")
+    pointers = {e["pointer"] for e in body["errors"]}
+    assert {"/items/1", "/items/2/id", "/base/prices/a"} <= pointers, body
+    for e in body["errors"]:
+        assert _resolves(req, e["pointer"], e["detail"] == "is required"), (e, body)
+        assert "Item" not in e["pointer"] and "constrained" not in e["pointer"], body

@@ -113,20 +113,43 @@ def problem_response(slug: str, detail: str, *, status: int | None = None,
     return JSONResponse(body, status_code=body["status"], media_type=PROBLEM_MEDIA_TYPE)
 
 
-def _pointer(loc: tuple[Any, ...]) -> str:
-    """Pydantic's error location as a JSON Pointer; query parameters as ``#/query/<name>``."""
+_NO_BODY = object()
+
+
+def _pointer(loc: tuple[Any, ...], body: Any = _NO_BODY, kind: str = "") -> str:
+    """Pydantic's error location as a JSON Pointer; query parameters as ``#/query/<name>``.
+
+    Pydantic puts the name of the union member that was tried into the location
+    (``/items/3/Item``, ``/items/3/constrained-str``); those are not fields. With the request
+    ``body`` given, the location is followed through it and a name that is not there is left
+    out, except the last one of a ``missing`` error (``kind``), which names the absent field.
+    Without the body, member names of the forms pydantic gives composite types are left out.
+    """
     parts = list(loc)
     if parts and parts[0] == "body":
         parts = parts[1:]
         prefix = ""
     elif parts and parts[0] in ("query", "path", "header"):
         prefix = "#/" + str(parts.pop(0))
+        body = _NO_BODY
     else:
         prefix = ""
-    # Pydantic adds the name of a union member or a tagged-union tag; they are not fields.
-    clean = [str(p).replace("~", "~0").replace("/", "~1") for p in parts
-             if not (isinstance(p, str) and (p.startswith("function-") or "[" in p))]
-    return prefix + "".join("/" + p for p in clean)
+    if body is _NO_BODY:
+        kept = [p for p in parts
+                if not (isinstance(p, str) and (p.startswith("function-") or "[" in p))]
+    else:
+        kept, node, last = [], body, len(parts) - 1
+        for i, p in enumerate(parts):
+            if isinstance(node, dict) and p in node:
+                node = node[p]
+            elif isinstance(node, list) and type(p) is int and -len(node) <= p < len(node):
+                node = node[p]
+            elif isinstance(p, str) and not (i == last and kind == "missing"):
+                continue  # a union member's name
+            else:
+                node = _NO_BODY
+            kept.append(p)
+    return prefix + "".join("/" + str(p).replace("~", "~0").replace("/", "~1") for p in kept)
 
 
 def _pydantic_message(err: dict[str, Any]) -> str:
@@ -147,7 +170,8 @@ async def _on_validation_error(request: Request, exc: RequestValidationError) ->
         return problem_response("malformed-request",
                                 f"The body is not valid JSON: {ctx.get('error', 'parse error')}.",
                                 instance=request.url.path)
-    errors = [FieldError(_pointer(tuple(e.get("loc", ()))), _pydantic_message(e)) for e in raw]
+    errors = [FieldError(_pointer(tuple(e.get("loc", ())), exc.body, e.get("type", "")),
+                         _pydantic_message(e)) for e in raw]
     if request.query_params.get("on_error") == "text":
         # The spreadsheet forms' documented switch: a 200 whose text says what is wrong.
         return PlainTextResponse(error_text(errors))

@@ -126,7 +126,7 @@ def _build(params: dict[str, Any]) -> ComparisonRequest:
     try:
         return ComparisonRequest.model_validate(body)
     except ValidationError as exc:
-        raise RequestProblem([FieldError(_query_pointer(_pointer(("body", *e["loc"]))),
+        raise RequestProblem([FieldError(_query_pointer(_pointer(("body", *e["loc"]), body, e["type"])),
                                          _pydantic_message(e)) for e in exc.errors()]) from None
 
 
@@ -309,8 +309,9 @@ def _series_table(request: Request, settings: Any, digits: int | None, sigma: fl
     try:
         series_request = SeriesRequest.model_validate(body)
     except ValidationError as exc:
-        raise RequestProblem([FieldError(_series_query_pointer(_pointer(("body", *e["loc"]))),
-                                         _pydantic_message(e)) for e in exc.errors()]) from None
+        raise RequestProblem([
+            FieldError(_series_query_pointer(_pointer(("body", *e["loc"]), body, e["type"])),
+                       _pydantic_message(e)) for e in exc.errors()]) from None
     try:
         data = panel_from_json(series_request, max_periods=settings.max_periods,
                                max_items=settings.max_items, max_cells=settings.max_panel_cells)
