@@ -149,6 +149,9 @@ def test_negative_model_demand_leaves_out_current_weighted_formulas(client) -> N
     ([1.0, float("nan")], False),
     ([1.0, 10**400, "text", None], True),
     ([[1.0, 2.0], [3.0, -float("inf")]], False),
+    ({"path": "all items", "sigma": float("nan"), "items": []}, False),
+    ({"name": "g", "base_share": np.float64("inf")}, False),
+    ({"weights": (0.5, 0.5), "note": None, "count": 2, "flag": True}, True),
 ])
 def test_all_finite_finds_any_nan_or_infinity(value, finite) -> None:
     """The guard before a model's parameters are written (never NaN or infinity in a 200)."""

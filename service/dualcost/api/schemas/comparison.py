@@ -272,21 +272,32 @@ def comparison_document(r: Comparison, model: Preferences, axis: ItemAxis) -> di
 
 def all_finite(value: Any) -> bool:
     """True when every number in a nested structure of dicts and lists is finite."""
+    isfinite = math.isfinite
     stack = [value]
     while stack:
         v = stack.pop()
-        if isinstance(v, float):
-            if not math.isfinite(v):
-                return False
-        elif isinstance(v, dict):
-            stack.extend(v.values())
-        elif isinstance(v, (list, tuple)):
+        kind = type(v)
+        if kind is dict:
+            # The common case, a record of text and numbers, without a trip through the stack.
+            for x in v.values():
+                kx = type(x)
+                if kx is float:
+                    if not isfinite(x):
+                        return False
+                elif not (kx is str or kx is int or kx is bool or x is None):
+                    stack.append(x)
+        elif kind is list or kind is tuple or isinstance(v, (list, tuple)):
             try:
                 # A list of numbers (the common case: a parameter vector) in one pass.
-                if not all(map(math.isfinite, v)):
+                if not all(map(isfinite, v)):
                     return False
             except (TypeError, OverflowError):  # not all numbers, or an int beyond floats
                 stack.extend(v)
+        elif isinstance(v, float):
+            if not isfinite(v):
+                return False
+        elif isinstance(v, dict):
+            stack.extend(v.values())
     return True
 
 
