@@ -47,6 +47,7 @@ import math
 from collections.abc import Callable, Mapping, Sequence
 from dataclasses import dataclass
 from functools import cached_property
+from itertools import accumulate, chain
 from numbers import Integral, Real
 from typing import Any
 
@@ -291,60 +292,63 @@ def _compile(tree: _Tree, shares: Vector) -> tuple[Vector, list[_Level]]:
     """Node base shares and the levels, deepest groups first, each with its groups' edges.
 
     A group's children are one level deeper than it, so evaluating the levels from the
-    deepest up finds every child's relative ready. The per-edge arithmetic is done level by
-    level in arrays; the per-group work in plain Python is a handful of steps.
+    deepest up finds every child's relative ready. The groups are put in that order once, the
+    edge arrays are built for all of them at once, and each level is a slice: a tree has few
+    levels but the fixed cost of an array operation, paid per level, would exceed the work.
     """
     n, n_groups = tree.n_items, len(tree.labels)
     depth = [0] * n_groups
     for g in range(1, n_groups):
         depth[g] = depth[tree.parents[g]] + 1
-    by_depth: dict[int, list[int]] = {}
-    for g in range(n_groups):
-        by_depth.setdefault(depth[g], []).append(g)
-    node_share = np.empty(n + n_groups)
-    node_share[:n] = shares
+    order = sorted(range(n_groups), key=depth.__getitem__, reverse=True)  # stable: ids ascend
+    kids_of = [tree.children[g] for g in order]
+    counts = list(map(len, kids_of))
+    share_of = shares.tolist() + [0.0] * n_groups
+    for g, kids in zip(order, kids_of, strict=True):
+        # Exact sums (Shewchuk's algorithm, as math.fsum) of the children's shares; the
+        # children are deeper, so theirs are known.
+        share_of[n + g] = math.fsum(map(share_of.__getitem__, kids))
+    node_share = np.array(share_of)
+    child = np.array(list(chain.from_iterable(kids_of)), dtype=np.intp)
+    counts_a = np.array(counts, dtype=np.intp)
+    nodes = np.array(order, dtype=np.intp) + n
+    group_of_edge = np.repeat(np.arange(n_groups, dtype=np.intp), counts_a)  # position in order
+    edge_total = node_share[nodes][group_of_edge]
+    # An all-zero group: equal weights keep its unused relative defined.
+    weight = np.divide(node_share[child], edge_total,
+                       out=1.0 / counts_a[group_of_edge].astype(np.float64), where=edge_total > 0.0)
+    positive = weight > 0.0
+    log_weight = np.full(weight.shape, -np.inf)
+    np.log(weight, out=log_weight, where=positive)
+    t_list = [1.0 - tree.sigmas[g] for g in order]
+    t_group = np.array(t_list)
+    t_edge = t_group[group_of_edge]
+    t_safe = np.where(t_group == 0.0, 1.0, t_group)
+    parent = nodes[group_of_edge]
+    first_edge = list(accumulate(counts, initial=0))
     levels = []
-    for d in sorted(by_depth, reverse=True):
-        groups = by_depth[d]
-        child_list: list[int] = []
-        counts_list = []
-        for g in groups:
-            kids = tree.children[g]
-            child_list.extend(kids)
-            counts_list.append(len(kids))
-        child = np.asarray(child_list, dtype=np.intp)
-        counts = np.asarray(counts_list, dtype=np.intp)
-        starts = np.cumsum(counts) - counts
-        nodes = np.asarray(groups, dtype=np.intp) + n
-        # Exact sums (Shewchuk's algorithm, as math.fsum) of the children's shares.
-        kid_shares = node_share[child].tolist()
-        totals = np.array([math.fsum(kid_shares[a:a + c])
-                           for a, c in zip(starts.tolist(), counts_list, strict=True)])
-        node_share[nodes] = totals
-        seg = np.repeat(np.arange(len(groups), dtype=np.intp), counts)
-        edge_total = totals[seg]
-        # An all-zero group: equal weights keep its unused relative defined.
-        w = np.divide(node_share[child], edge_total, out=1.0 / counts[seg].astype(np.float64),
-                      where=edge_total > 0.0)
-        positive = w > 0.0
-        log_w = np.full(w.shape, -np.inf)
-        np.log(w, out=log_w, where=positive)
-        t_group = 1.0 - np.array([tree.sigmas[g] for g in groups])
+    a = 0
+    while a < n_groups:  # groups a..b-1 share a depth; their edges are ea..eb-1
+        b = a + 1
+        while b < n_groups and depth[order[b]] == depth[order[a]]:
+            b += 1
+        ea, eb = first_edge[a], first_edge[b]
         levels.append(
             _Level(
-                nodes=nodes,
-                starts=starts,
-                child=child,
-                seg=seg,
-                parent=nodes[seg],
-                weight=w,
-                log_weight=log_w,
-                positive=positive,
-                t_edge=t_group[seg],
-                t_safe=np.where(t_group == 0.0, 1.0, t_group),
-                geometric=bool(np.all(t_group == 0.0)),
+                nodes=nodes[a:b],
+                starts=np.array(first_edge[a:b], dtype=np.intp) - ea,
+                child=child[ea:eb],
+                seg=group_of_edge[ea:eb] - a,
+                parent=parent[ea:eb],
+                weight=weight[ea:eb],
+                log_weight=log_weight[ea:eb],
+                positive=positive[ea:eb],
+                t_edge=t_edge[ea:eb],
+                t_safe=t_safe[a:b],
+                geometric=all(t == 0.0 for t in t_list[a:b]),
             )
         )
+        a = b
     return node_share, levels
 
 
