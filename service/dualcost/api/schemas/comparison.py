@@ -286,7 +286,7 @@ def all_finite(value: Any) -> bool:
                         return False
                 elif not (kx is str or kx is int or kx is bool or x is None):
                     stack.append(x)
-        elif kind is list or kind is tuple or isinstance(v, (list, tuple)):
+        elif isinstance(v, (list, tuple)):
             try:
                 # A list of numbers (the common case: a parameter vector) in one pass.
                 if not all(map(isfinite, v)):
