@@ -108,6 +108,18 @@ def test_metrics_count_requests_and_compute_time(client) -> None:
     assert 'dualcost_compute_seconds_count{operation="compare"}' in text
 
 
+def test_metrics_name_the_framework_pages_and_keep_unmatched_for_unknown_paths(client) -> None:
+    """The API documents count under their handlers' names, not with requests for unknown paths
+    (a bounded set of labels: one per handler; common practice for Prometheus labels)."""
+    client.get("/openapi.json")
+    client.get("/docs")
+    client.get("/no-such-page")
+    text = client.get("/metrics").text
+    assert 'dualcost_requests_total{operation="openapi",status="200"}' in text
+    assert 'dualcost_requests_total{operation="swagger_ui_html",status="200"}' in text
+    assert 'dualcost_requests_total{operation="unmatched",status="404"}' in text
+
+
 def test_liveness_and_readiness() -> None:
     app = create_app(Settings(examples_dir=EXAMPLES))
     assert TestClient(app).get("/ready").status_code == 503  # start-up has not run

@@ -113,8 +113,12 @@ def logging_config(level: str = "info", *, json_lines: bool = True) -> dict[str,
 
 
 def _operation(scope: Scope) -> str:
+    """The operation id of the route that answered; for the framework's own pages (the API
+    documents, the static files) the name of their handler; "unmatched" when no route did."""
     route = scope.get("route")
     name = getattr(route, "operation_id", None) or getattr(route, "name", None)
+    if not name and (endpoint := scope.get("endpoint")) is not None:
+        name = getattr(endpoint, "__name__", None) or type(endpoint).__name__
     return str(name) if name else "unmatched"
 
 
