@@ -25,7 +25,7 @@ import xml.etree.ElementTree as ET
 from pathlib import Path
 from typing import Any, TextIO
 
-from .api.tabular import read_table
+from .api.inputs.csv import read_table
 from .core.audit import decimals_of
 
 
@@ -109,19 +109,12 @@ def audit_request(published: list[dict[str, Any]], panel: dict[str, Any], *,
 
 
 def run_locally(body: dict[str, Any]) -> dict[str, Any]:
-    from pydantic import ValidationError
-
-    from .api.problems import RequestProblem, _pointer, _pydantic_message
-    from .api.schemas.audit import AuditRequest, run_audit
+    from .api.operations.audit import audit_json
+    from .api.problems import RequestProblem
     from .config import Settings
 
     try:
-        request = AuditRequest.model_validate(body)
-        return run_audit(request, Settings()).model_dump()
-    except ValidationError as exc:
-        raise CheckInputError("; ".join(
-            f"{_pointer(('body', *e['loc']), body, e['type'])}: {_pydantic_message(e)}"
-            for e in exc.errors())) from None
+        return audit_json(body, Settings())
     except RequestProblem as exc:
         raise CheckInputError("; ".join(f"{e.pointer}: {e.detail}" for e in exc.errors)) from None
 

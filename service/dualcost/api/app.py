@@ -27,7 +27,7 @@ from .routes import (
     households,
     series,
     service,
-    spreadsheet,
+    sheets,
 )
 
 WEB_DIR = Path(__file__).resolve().parents[1] / "web"
@@ -92,12 +92,12 @@ def create_app(settings: Settings | None = None) -> FastAPI:
     problems.install(app)
     # Outermost: every request gets its id, log line and metrics, refusals included.
     app.add_middleware(RequestContextMiddleware)
-    app.include_router(comparisons.router(settings))
-    app.include_router(series.router(settings))
-    app.include_router(audit.router(settings))
+    app.include_router(comparisons.router)
+    app.include_router(series.router)
+    app.include_router(audit.router)
     app.include_router(catalogue.router)
     app.include_router(service.router)
-    app.include_router(spreadsheet.router)
+    app.include_router(sheets.router)
     app.include_router(households.router(settings))
     app.include_router(estimation.router(settings))
 

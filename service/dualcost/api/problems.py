@@ -9,6 +9,7 @@ Problem types are relative URIs served by the app at ``/problems/<slug>``.
 from __future__ import annotations
 
 import logging
+from collections.abc import Iterable, Mapping
 from dataclasses import dataclass
 from typing import Any
 
@@ -89,6 +90,11 @@ class RequestProblem(Exception):
         self.slug = slug
         super().__init__("; ".join(f"{e.pointer}: {e.detail}" for e in errors))
 
+    @classmethod
+    def at(cls, pointer: str, detail: str, *, slug: str = "invalid-input") -> RequestProblem:
+        """A problem with one field error."""
+        return cls([FieldError(pointer, detail)], slug=slug)
+
 
 def problem_body(slug: str, detail: str, *, status: int | None = None,
                  errors: list[FieldError] | None = None, instance: str | None = None) -> dict[str, Any]:
@@ -116,7 +122,7 @@ def problem_response(slug: str, detail: str, *, status: int | None = None,
 _NO_BODY = object()
 
 
-def _pointer(loc: tuple[Any, ...], body: Any = _NO_BODY, kind: str = "") -> str:
+def pointer_of(loc: tuple[Any, ...], body: Any = _NO_BODY, kind: str = "") -> str:
     """Pydantic's error location as a JSON Pointer; query parameters as ``#/query/<name>``.
 
     Pydantic puts the name of the union member that was tried into the location
@@ -152,7 +158,8 @@ def _pointer(loc: tuple[Any, ...], body: Any = _NO_BODY, kind: str = "") -> str:
     return prefix + "".join("/" + str(p).replace("~", "~0").replace("/", "~1") for p in kept)
 
 
-def _pydantic_message(err: dict[str, Any]) -> str:
+def rule_of(err: Mapping[str, Any]) -> str:
+    """One validation error's rule in plain words."""
     kind = err.get("type", "")
     if kind == "finite_number":
         return "must be a finite number (not NaN or infinity)"
@@ -170,13 +177,21 @@ async def _on_validation_error(request: Request, exc: RequestValidationError) ->
         return problem_response("malformed-request",
                                 f"The body is not valid JSON: {ctx.get('error', 'parse error')}.",
                                 instance=request.url.path)
-    errors = [FieldError(_pointer(tuple(e.get("loc", ())), exc.body, e.get("type", "")),
-                         _pydantic_message(e)) for e in raw]
+    errors = field_errors(raw, exc.body)
     if request.query_params.get("on_error") == "text":
         # The spreadsheet forms' documented switch: a 200 whose text says what is wrong.
         return PlainTextResponse(error_text(errors))
     return problem_response("invalid-input", _summary(errors), errors=errors,
                             instance=request.url.path)
+
+
+def field_errors(raw: Iterable[Mapping[str, Any]], body: Any = _NO_BODY, *,
+                 prefix: tuple[str, ...] = ()) -> list[FieldError]:
+    """Pydantic's validation errors (``ValidationError.errors()``) as field errors pointing into
+    ``body``; ``prefix`` is put before each location (``("body",)`` for a model validated on its
+    own, as FastAPI reports the body's errors)."""
+    return [FieldError(pointer_of(prefix + tuple(e.get("loc", ())), body, e.get("type", "")),
+                       rule_of(e)) for e in raw]
 
 
 def error_text(errors: list[FieldError]) -> str:

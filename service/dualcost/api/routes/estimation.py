@@ -12,6 +12,7 @@ from fastapi.responses import Response
 from ...config import Settings
 from ..examples import load_examples
 from ..observability import computing
+from ..operations import compare
 from ..problems import PROBLEM_MEDIA_TYPE
 from ..routing import JsonRoute
 from ..schemas.comparison import CAUTION, ComparisonResponse
@@ -159,7 +160,8 @@ def router(settings: Settings) -> APIRouter:
         answer = FitAndCompareResponse(
             fit=FitResponse.from_result(result, data, residuals=body.residuals,
                                         given_point=body.elasticities_at is not None),
-            comparison=ComparisonResponse.from_result(point, model, axis),
+            comparison=ComparisonResponse.model_validate(compare.document(
+                compare.Outcome(point, model, axis))),
             intervals=intervals_out(intervals),
             caution=CAUTION,
         )

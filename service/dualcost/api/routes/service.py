@@ -14,6 +14,7 @@ from ... import __version__
 from ..deps import SettingsDep
 from ..observability import metrics_text
 from ..problems import PROBLEM_TYPES, FieldError, RequestProblem
+from ..operations import compare
 from ..routing import JsonRoute
 from ..schemas.common import StrictModel
 from ..schemas.comparison import ComparisonRequest, ComparisonResponse
@@ -87,13 +88,10 @@ def demo(settings: SettingsDep) -> DemoOut:
     """The demo scenario (an invented town's statistics office): its request and its answer.
     Send the request to POST /v1/comparisons and change it to explore."""
     body = demo_request()
-    req = ComparisonRequest.model_validate(body)
-    result, model, axis = req.run(max_items=settings.max_items,
-                                  max_tree_depth=settings.max_tree_depth,
-                                  compute_deadline_seconds=settings.compute_deadline_seconds)
+    outcome = compare.run(ComparisonRequest.model_validate(body), settings)
     return DemoOut(
         scenario="Wrenmouth, an invented river town: its statistics office compares the "
                  "household basket of 2025 with this year's prices under a nested CES model.",
         request=body,
-        result=ComparisonResponse.from_result(result, model, axis),
+        result=ComparisonResponse.model_validate(compare.document(outcome)),
     )

@@ -39,6 +39,26 @@ class StrictModel(BaseModel):
     model_config = ConfigDict(extra="forbid", allow_inf_nan=False)
 
 
+class NoticeOut(StrictModel):
+    """A remark that goes with an answer: a warning, or a statement of what was done."""
+
+    code: str
+    message: str
+
+
+CAUTION = (
+    "Model-based cost-of-living figures are estimates: they depend on the preference model and "
+    "parameters chosen. For wage, pension or benefit indexation, defer to official statistics "
+    "and to the applicable law or agreement."
+)
+SIGN_CONVENTION = (
+    "Compensating and equivalent variation are stated as losses: positive when the change of "
+    "prices and income leaves the household worse off. compensating_variation = e(p1,u0) - m1, "
+    "money needed at current prices to keep the base living standard; equivalent_variation = "
+    "m0 - e(p0,u1), the loss valued at base prices."
+)
+
+
 class Item(StrictModel):
     id: str = Field(min_length=1, max_length=100, description="The item's id, unique.")
     label: str | None = Field(None, max_length=300, description="A readable name.")

@@ -42,7 +42,7 @@ from .comparison import (
     FormulaName,
     WeightReferenceIn,
 )
-from .tree import tree_to_core
+from ..inputs.tree import tree_to_core
 
 FittedFamily = Literal["ces", "nested_ces", "stone_geary", "aids", "quaids"]
 Estimator = Literal["nonlinear", "linear_approximate"]
@@ -901,10 +901,10 @@ def run_fit_and_compare(request: FitAndCompareRequest, settings: Any
         "lloyd_moulton_sigma": part.lloyd_moulton_sigma, "formulas": part.formulas,
     }
     try:
-        comparison_request = ComparisonRequest.model_validate(body)
-        point, model, caxis = comparison_request.run(
-            max_items=settings.max_items, max_tree_depth=settings.max_tree_depth,
-            compute_deadline_seconds=settings.compute_deadline_seconds)
+        from ..operations import compare
+
+        outcome = compare.run(ComparisonRequest.model_validate(body), settings)
+        point, model, caxis = outcome.result, outcome.model, outcome.axis
     except RequestProblem as exc:
         raise _prefixed(exc) from exc
     except ValidationError as exc:  # pragma: no cover - every piece was validated above

@@ -38,7 +38,7 @@ from ..problems import FieldError, RequestProblem
 from ..tabular import format_cell, parse_number
 from .common import FiniteFloat, ItemAxis, ItemIn, Pointers, StrictModel, VectorIn
 from .comparison import CAUTION, SIGN_CONVENTION
-from .model import ModelSpec, model_family, parameters_to_core
+from ._legacy_model import ModelSpec, model_family, parameters_to_core
 
 HouseholdFormula = Literal[HOUSEHOLD_FORMULAS]  # type: ignore[valid-type]
 ID_COLUMN, EXPENDITURE_COLUMN, WEIGHT_COLUMN = "household", "expenditure", "weight"

@@ -11,7 +11,7 @@ from collections.abc import Collection
 from typing import Any
 
 from ..problems import FieldError, RequestProblem
-from .common import ItemAxis
+from .items import ItemAxis
 
 
 def tree_to_core(tree: Any, axis: ItemAxis, pointer: str, max_depth: int, *,
