@@ -19,11 +19,12 @@ from .access import AccessControlMiddleware, load_keys
 from .limits import BodySizeLimitMiddleware
 from .observability import RequestContextMiddleware
 from .openapi import problem_openapi
+from .operations import jobs
 from .routes import (
     audit,
     catalogue,
     comparisons,
-    estimation,
+    fits,
     households,
     series,
     service,
@@ -80,6 +81,7 @@ def create_app(settings: Settings | None = None) -> FastAPI:
         ],
     )
     app.state.settings = settings
+    app.state.jobs = jobs.JobStore(settings.max_household_jobs)
     keys = load_keys(settings.api_keys, str(settings.api_keys_file) if settings.api_keys_file else None)
     app.state.access_control = bool(keys)
     if keys or settings.rate_limit_per_minute:
@@ -98,8 +100,8 @@ def create_app(settings: Settings | None = None) -> FastAPI:
     app.include_router(catalogue.router)
     app.include_router(service.router)
     app.include_router(sheets.router)
-    app.include_router(households.router(settings))
-    app.include_router(estimation.router(settings))
+    app.include_router(households.router)
+    app.include_router(fits.router)
 
     app.openapi = lambda: problem_openapi(app)  # type: ignore[method-assign]
     app.mount("/static", StaticFiles(directory=WEB_DIR), name="static")

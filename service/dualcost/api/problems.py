@@ -18,7 +18,8 @@ from fastapi.exceptions import RequestValidationError
 from fastapi.responses import JSONResponse, PlainTextResponse
 from starlette.exceptions import HTTPException as StarletteHTTPException
 
-from ..core.errors import DeadlineExceeded, InvalidInput, NumericalFailure
+from ..core.cluster import ClusterUnavailable
+from ..core.errors import DeadlineExceeded, DualcostError, InvalidInput, NumericalFailure
 
 PROBLEM_MEDIA_TYPE = "application/problem+json"
 log = logging.getLogger("dualcost.api")
@@ -82,7 +83,7 @@ class FieldError:
     detail: str
 
 
-class RequestProblem(Exception):
+class RequestProblem(DualcostError):
     """Raised by the API layer for bad input it finds itself, or translated from the core."""
 
     def __init__(self, errors: list[FieldError], *, slug: str = "invalid-input") -> None:
@@ -94,6 +95,30 @@ class RequestProblem(Exception):
     def at(cls, pointer: str, detail: str, *, slug: str = "invalid-input") -> RequestProblem:
         """A problem with one field error."""
         return cls([FieldError(pointer, detail)], slug=slug)
+
+
+class ServiceProblem(DualcostError):
+    """A refusal about the service's state rather than a field of the request: no such job, a
+    job in the wrong state, no room for another, a cluster that cannot be reached."""
+
+    slug = "http-error"
+    status = 400
+
+    def __init__(self, detail: str) -> None:
+        self.detail = detail
+        super().__init__(detail)
+
+
+class JobNotFound(ServiceProblem):
+    slug, status = "not-found", 404
+
+
+class JobConflict(ServiceProblem):
+    slug, status = "http-error", 409
+
+
+class ServiceBusy(ServiceProblem):
+    slug, status = "http-error", 503
 
 
 def problem_body(slug: str, detail: str, *, status: int | None = None,
@@ -210,6 +235,15 @@ async def _on_invalid_input(request: Request, exc: InvalidInput) -> JSONResponse
     return problem_response("invalid-input", str(exc), errors=errors, instance=request.url.path)
 
 
+async def _on_service_problem(request: Request, exc: ServiceProblem) -> JSONResponse:
+    return problem_response(exc.slug, exc.detail, status=exc.status, instance=request.url.path)
+
+
+async def _on_cluster_unavailable(request: Request, exc: ClusterUnavailable) -> JSONResponse:
+    return problem_response("http-error", f"The Dask cluster cannot be used: {exc}", status=503,
+                            instance=request.url.path)
+
+
 async def _on_numerical_failure(request: Request, exc: NumericalFailure) -> JSONResponse:
     slug = "deadline-exceeded" if isinstance(exc, DeadlineExceeded) else "numerical-failure"
     return problem_response(slug, str(exc), instance=request.url.path)
@@ -240,5 +274,7 @@ def install(app: FastAPI) -> None:
     app.add_exception_handler(RequestProblem, _on_request_problem)  # type: ignore[arg-type]
     app.add_exception_handler(InvalidInput, _on_invalid_input)  # type: ignore[arg-type]
     app.add_exception_handler(NumericalFailure, _on_numerical_failure)  # type: ignore[arg-type]
+    app.add_exception_handler(ServiceProblem, _on_service_problem)  # type: ignore[arg-type]
+    app.add_exception_handler(ClusterUnavailable, _on_cluster_unavailable)  # type: ignore[arg-type]
     app.add_exception_handler(StarletteHTTPException, _on_http_error)  # type: ignore[arg-type]
     app.add_exception_handler(Exception, _on_unexpected)

@@ -24,6 +24,8 @@ import orjson
 from fastapi import Request
 from fastapi.responses import PlainTextResponse, Response, StreamingResponse
 
+from ..core.errors import NumericalFailure
+
 JSON_MEDIA_TYPE = "application/json"
 CSV_MEDIA_TYPE = "text/csv"
 CSV_CONTENT_TYPE = "text/csv; charset=utf-8"
@@ -103,6 +105,15 @@ def all_finite(value: Any) -> bool:
     return True
 
 
+def finite(document: Any, what: str) -> Any:
+    """``document`` when every number in it is finite; otherwise the evaluation failed."""
+    if not all_finite(document):
+        raise NumericalFailure(what, "a result is not a finite number: the inputs are beyond "
+                               "what floating point can carry (a weight, income or price too "
+                               "large?)")
+    return document
+
+
 # -- CSV --------------------------------------------------------------------------------------
 
 
@@ -121,6 +132,15 @@ def csv_line(cells: Sequence[Any]) -> str:
     """One CSV line (quoted where needed), CRLF-terminated."""
     buffer = io.StringIO()
     csv.writer(buffer, lineterminator="\r\n").writerow([format_cell(c) for c in cells])
+    return buffer.getvalue()
+
+
+def csv_lines(rows: Iterable[Sequence[Any]]) -> str:
+    """CSV lines (quoted where needed), each CRLF-terminated, written by one writer."""
+    buffer = io.StringIO()
+    writerow = csv.writer(buffer, lineterminator="\r\n").writerow
+    for row in rows:
+        writerow([format_cell(v) for v in row])
     return buffer.getvalue()
 
 

@@ -25,6 +25,7 @@ from dataclasses import dataclass, field
 from typing import Any, Literal
 
 from ...core.errors import InvalidInput
+from ...core.households import InvalidRows, RowProblem
 from ..problems import FieldError, RequestProblem
 
 Form = Literal["json", "query", "csv"]
@@ -47,7 +48,8 @@ class Place:
 
     ``query`` is the parameter that carries it in a query-string form (``None``: the JSON place
     prefixed by ``#/query``); ``column`` the CSV column of an upload's data; ``names_item`` adds
-    ``(item 'id')`` to the rule of an error at one item; ``json_text`` says that the query
+    ``(item 'id')`` to the rule of an error at one item (a ``column`` starting with ``#`` is a
+    fixed RFC 7111 fragment, such as the header row); ``json_text`` says that the query
     parameter holds JSON text (a model), so a pointer goes on inside it.
     """
 
@@ -68,6 +70,8 @@ class CsvRows:
     cells: dict[tuple[int, int], int] = field(default_factory=dict)  # (row t, item i) -> record
     first: dict[int, int] = field(default_factory=dict)  # row t -> its first record
     item_first: dict[int, int] = field(default_factory=dict)  # item i -> its first record
+    #: Wide uploads (one record per household): the column of each item.
+    item_columns: list[int] = field(default_factory=list)
     #: The record named when a row is not found, and whether an error about a whole column
     #: names the column (``#col=3``) rather than the header.
     default_record: int = 2
@@ -95,6 +99,8 @@ class Locator:
         self.form = form
         self.items = list(items)
         self.csv = csv
+        #: The household id of each row of a JSON batch, for messages about refused rows.
+        self.row_names: Sequence[str | None] = ()
         self._keyed: dict[str, list[bool]] = {}
 
     # -- what the request looked like --------------------------------------------------------
@@ -106,6 +112,10 @@ class Locator:
             self._keyed[name] = [isinstance(row, dict) for row in value]
         else:
             self._keyed[name] = [isinstance(value, dict)]
+
+    def given_rows(self, name: str, keyed: Sequence[bool]) -> None:
+        """Note, row by row, whether argument ``name``'s vectors were keyed by item id."""
+        self._keyed[name] = list(keyed)
 
     def add(self, name: str, place: Place) -> None:
         self.places[name] = place
@@ -171,10 +181,13 @@ class Locator:
 
     def _csv_pointer(self, place: Place, index: Any) -> str:
         assert self.csv is not None
+        if place.column is not None and place.column.startswith("#"):  # a fixed fragment
+            return place.column
         parts = index if isinstance(index, tuple) else (() if index is None else (index,))
-        if not parts:
+        if not parts:  # the whole column of a value per row, or the header
             column = self.csv.columns.get(place.column or "")
-            return f"#col={column}" if self.csv.whole_column and column else "#row=1"
+            whole = self.csv.whole_column and place.column not in ("item", "period")
+            return f"#col={column}" if whole and column else "#row=1"
         if place.shape == "panel" and len(parts) == 1:
             return f"#row={self.csv.record(parts[0], None)}"
         if place.shape == "panel":
@@ -213,11 +226,42 @@ class Locator:
         return RequestProblem([FieldError(self.at(e.pointer), e.detail) for e in problem.errors],
                               slug=problem.slug)
 
+    def row_error(self, problem: RowProblem) -> FieldError:
+        """A refused household row (a core :class:`RowProblem`) as a field error: in a JSON body
+        ``/households/3/shares/rye_loaf`` (the place ``row:<field>``), in a CSV upload the cell
+        of the row's record and the field's column."""
+        place = self.places.get(f"row:{problem.field}")
+        if self.form == "csv" and self.csv is not None:
+            column, name = self._row_column(place, problem)
+            where = f"#cell={problem.row},{column}" if column else f"#row={problem.row}"
+            named = f"column {name!r}: " if name else ""
+            return FieldError(where, f"row {problem.row}: {named}{problem.rule}")
+        json_pointer = "" if place is None else place.json.format(row=problem.row)
+        if problem.item is not None and place is not None:
+            keyed = self._keyed.get(f"row:{problem.field}", [])
+            by_id = problem.row < len(keyed) and keyed[problem.row]
+            json_pointer += "/" + (escape(self.items[problem.item]) if by_id else str(problem.item))
+        household = self.row_names[problem.row] if problem.row < len(self.row_names) else None
+        name = f"household row {problem.row}" + (f" ({household!r})" if household else "")
+        return FieldError(json_pointer, f"{name}: {problem.rule}")
+
+    def _row_column(self, place: Place | None, problem: RowProblem) -> tuple[int | None, str]:
+        assert self.csv is not None
+        if place is None or place.column is None:
+            return None, ""
+        if place.column == "*item":
+            if problem.item is None:
+                return None, ""
+            return self.csv.item_columns[problem.item], self.items[problem.item]
+        return self.csv.columns.get(place.column), place.column
+
     @contextmanager
     def translating(self) -> Iterator[None]:
         """Turn the core's :class:`InvalidInput` raised inside into a located problem."""
         try:
             yield
+        except InvalidRows as exc:  # household rows, each named
+            raise RequestProblem([self.row_error(p) for p in exc.problems]) from exc
         except InvalidInput as exc:
             raise RequestProblem([self.error(exc)]) from exc
 

@@ -8,8 +8,8 @@ under one error translation, and the answer is written from the core's result in
 
 from __future__ import annotations
 
-from dataclasses import dataclass
-from typing import Any
+from dataclasses import dataclass, replace
+from typing import Any, Protocol
 
 from ...config import Settings
 from ...core.comparison import Comparison, compare_budgets
@@ -24,7 +24,13 @@ from ..inputs.tree import tree_to_core
 from ..observability import computing
 from ..problems import RequestProblem
 from ..render import all_finite
-from ..schemas.comparison import CAUTION, SIGN_CONVENTION, ComparisonRequest
+from ..schemas.comparison import (
+    CAUTION,
+    SIGN_CONVENTION,
+    ComparisonRequest,
+    CurrentIn,
+    WeightReferenceIn,
+)
 
 #: Where each core argument of a comparison is, in the JSON body and in the spreadsheet forms'
 #: query strings.
@@ -74,7 +80,7 @@ def run(request: ComparisonRequest, settings: Settings, loc: Locator | None = No
     arguments = _base(request, axis, loc)
     parameters = core_parameters(request.model, axis, loc, max_tree_depth=settings.max_tree_depth,
                                  deadline_seconds=settings.compute_deadline_seconds)
-    arguments |= _current(request, axis, loc)
+    arguments |= current_arguments(request, axis, loc)
     try:
         with computing("compare", settings), loc.translating():
             result, model = compare_budgets(request.model.family, parameters, **arguments)
@@ -103,11 +109,22 @@ def _base(request: ComparisonRequest, axis: ItemAxis, loc: Locator) -> dict[str,
 _WEIGHTS = {"pb": "prices", "qb": "quantities", "wb": "shares"}
 
 
-def _current(request: ComparisonRequest, axis: ItemAxis, loc: Locator) -> dict[str, Any]:
+class ComparedPeriod(Protocol):
+    """The parts of a request that describe the current period and the options (a comparison,
+    or the comparison part of a fitted comparison)."""
+
+    current: CurrentIn
+    reference_income: float | None
+    weight_reference: WeightReferenceIn | None
+    lloyd_moulton_sigma: float | None
+    formulas: list[str] | None
+
+
+def current_arguments(request: ComparedPeriod, axis: ItemAxis, loc: Locator) -> dict[str, Any]:
     """The current period's vectors and the options, under the core's argument names."""
     c = request.current
     if c.expenditure is None:  # a current income the core derives is about the current period
-        loc.add("m1", Place("/current", "m1"))
+        loc.add("m1", replace(loc.places["m1"], json=loc.places["p1"].json.rsplit("/", 1)[0]))
     out: dict[str, Any] = {
         "current_prices": axis.vector(loc, "p1", c.prices),
         "current_income": c.expenditure, "reference_income": request.reference_income,

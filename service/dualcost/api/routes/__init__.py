@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
-from . import audit, comparisons, series, sheets
+from . import audit, catalogue, comparisons, fits, households, series, service, sheets
 
-ROUTERS = [comparisons.router, series.router, audit.router, sheets.router]
+ROUTERS = [comparisons.router, series.router, audit.router, catalogue.router, service.router,
+           sheets.router, households.router, fits.router]
