@@ -107,10 +107,9 @@ def test_the_rendered_answer_reads_back_to_the_same_numbers(client, model) -> No
 
 def _examples_by_model():
     """Each example body with the body model of its operation (the routers' JsonRoutes)."""
+    from dualcost.api.routes import ROUTERS
     from dualcost.api.routing import _body_model
     from tests.conftest import EXAMPLES
-
-    from dualcost.api.routes import ROUTERS
 
     models = {}
     for router in ROUTERS:

@@ -8,8 +8,8 @@ import io
 
 import pytest
 
-from dualcost.api.problems import RequestProblem
 from dualcost.api.inputs.csv import parse_number, read_table
+from dualcost.api.problems import RequestProblem
 from dualcost.api.render import csv_text
 
 

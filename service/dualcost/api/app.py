@@ -20,16 +20,7 @@ from .limits import BodySizeLimitMiddleware
 from .observability import RequestContextMiddleware
 from .openapi import problem_openapi
 from .operations import jobs
-from .routes import (
-    audit,
-    catalogue,
-    comparisons,
-    fits,
-    households,
-    series,
-    service,
-    sheets,
-)
+from .routes import ROUTERS
 
 WEB_DIR = Path(__file__).resolve().parents[1] / "web"
 
@@ -94,14 +85,8 @@ def create_app(settings: Settings | None = None) -> FastAPI:
     problems.install(app)
     # Outermost: every request gets its id, log line and metrics, refusals included.
     app.add_middleware(RequestContextMiddleware)
-    app.include_router(comparisons.router)
-    app.include_router(series.router)
-    app.include_router(audit.router)
-    app.include_router(catalogue.router)
-    app.include_router(service.router)
-    app.include_router(sheets.router)
-    app.include_router(households.router)
-    app.include_router(fits.router)
+    for router in ROUTERS:
+        app.include_router(router)
 
     app.openapi = lambda: problem_openapi(app)  # type: ignore[method-assign]
     app.mount("/static", StaticFiles(directory=WEB_DIR), name="static")

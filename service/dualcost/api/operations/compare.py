@@ -19,7 +19,7 @@ from ...core.preferences import Preferences
 from ...core.preferences.nested_ces import ItemIdTree
 from ..inputs.items import ItemAxis
 from ..inputs.locator import Form, Locator, Place
-from ..inputs.model import core_parameters, family_of
+from ..inputs.model import core_parameters
 from ..inputs.tree import tree_to_core
 from ..observability import computing
 from ..problems import RequestProblem

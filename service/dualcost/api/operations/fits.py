@@ -24,8 +24,8 @@ from ...core.estimation.estimator import ParameterEstimate
 from ..inputs.items import ItemAxis
 from ..inputs.locator import Form, Locator, Place
 from ..inputs.observations import Observations
-from ..inputs.tree import tree_to_core
 from ..inputs.query import validated
+from ..inputs.tree import tree_to_core
 from ..observability import computing
 from ..problems import RequestProblem
 from ..schemas.common import CAUTION

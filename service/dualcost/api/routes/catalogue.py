@@ -2,40 +2,12 @@
 
 from __future__ import annotations
 
-from typing import Any, Literal
-
 from fastapi import APIRouter
-from pydantic import Field
 
 from ...core.indices import FORMULAS
 from ...core.preferences import FAMILIES
 from ..routing import JsonRoute
-from ..schemas.common import StrictModel
-
-
-class ParameterOut(StrictModel):
-    name: str
-    meaning: str
-    required: bool
-    default: Any = None
-
-
-class FamilyOut(StrictModel):
-    family: str
-    title: str
-    source: str
-    homothetic: bool
-    parameters: list[ParameterOut]
-
-
-class FormulaInfoOut(StrictModel):
-    formula: str
-    title: str
-    source: str
-    compared_with: Literal["base", "current", "midpoint"]
-    needs: list[str] = Field(description="Optional inputs the formula cannot do without.")
-    superlative: bool
-
+from ..schemas.catalogue import FamilyOut, FormulaInfoOut, ParameterOut
 
 router = APIRouter(route_class=JsonRoute, prefix="/v1", tags=["catalogue"])
 

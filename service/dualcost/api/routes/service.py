@@ -13,18 +13,13 @@ from fastapi.responses import HTMLResponse, JSONResponse, PlainTextResponse, Res
 from ... import __version__
 from ..deps import SettingsDep
 from ..observability import metrics_text
-from ..problems import PROBLEM_TYPES, FieldError, RequestProblem
 from ..operations import compare
+from ..problems import PROBLEM_TYPES, FieldError, RequestProblem
 from ..routing import JsonRoute
-from ..schemas.common import StrictModel
 from ..schemas.comparison import ComparisonRequest, ComparisonResponse
+from ..schemas.service import DemoOut, HealthOut
 
 router = APIRouter(route_class=JsonRoute)
-
-
-class HealthOut(StrictModel):
-    status: str
-    version: str
 
 
 # The probes and the metrics are coroutines: they answer on the event loop even when every
@@ -75,12 +70,6 @@ def demo_request() -> dict[str, Any]:
     """The demo scenario's comparison request (shipped with the package)."""
     text = resources.files("dualcost.demo").joinpath("wrenmouth.json").read_text("utf-8")
     return json.loads(text)  # type: ignore[no-any-return]
-
-
-class DemoOut(StrictModel):
-    scenario: str
-    request: dict[str, Any]
-    result: ComparisonResponse
 
 
 @router.get("/v1/demo", operation_id="demo", response_model=DemoOut, tags=["demo"])
