@@ -8,8 +8,9 @@ Problem types are relative URIs served by the app at ``/problems/<slug>``.
 
 from __future__ import annotations
 
+import json
 import logging
-from collections.abc import Iterable, Mapping
+from collections.abc import Iterable, Mapping, Sequence
 from dataclasses import dataclass
 from typing import Any
 
@@ -17,6 +18,7 @@ from fastapi import FastAPI, Request
 from fastapi.exceptions import RequestValidationError
 from fastapi.responses import JSONResponse, PlainTextResponse
 from starlette.exceptions import HTTPException as StarletteHTTPException
+from starlette.types import Send
 
 from ..core.cluster import ClusterUnavailable
 from ..core.errors import DeadlineExceeded, DualcostError, InvalidInput, NumericalFailure
@@ -135,6 +137,18 @@ def problem_body(slug: str, detail: str, *, status: int | None = None,
     if errors:
         body["errors"] = [{"pointer": e.pointer, "detail": e.detail} for e in errors]
     return body
+
+
+async def send_problem(send: Send, slug: str, detail: str, *, instance: str | None = None,
+                       headers: Sequence[tuple[bytes, bytes]] = ()) -> None:
+    """Answer a problem straight through ASGI (for middleware that refuses a request before
+    it reaches the app); the status is the problem type's."""
+    body = problem_body(slug, detail, instance=instance)
+    data = json.dumps(body).encode()
+    await send({"type": "http.response.start", "status": body["status"],
+                "headers": [(b"content-type", PROBLEM_MEDIA_TYPE.encode()),
+                            (b"content-length", str(len(data)).encode()), *headers]})
+    await send({"type": "http.response.body", "body": data})
 
 
 def problem_response(slug: str, detail: str, *, status: int | None = None,
