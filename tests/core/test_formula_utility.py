@@ -4,7 +4,8 @@ References: the closed forms of the same utility functions as the engine's famil
 Douglas 1928; Arrow, Chenery, Minhas and Solow 1961 for CES; Stone 1954 and Geary 1950 for the
 linear expenditure system, with its Slutsky matrix from Deaton and Muellbauer 1980, 3.1); perfect
 substitutes, e(p, u) = u min_i p_i / a_i (the expenditure minimisation problem of Mas-Colell,
-Whinston and Green 1995, section 3.E; common practice). Random draws are seeded (``np.random.default_rng(seed)``).
+Whinston and Green 1995, section 3.E; common practice). Random draws are seeded
+(``np.random.default_rng(seed)``).
 """
 
 from __future__ import annotations
