@@ -32,19 +32,31 @@ class InvalidInput(DualcostError, ValueError):
     rule:
         One plain sentence saying what the rule is and how the input breaks it.
     index:
-        The position of the offending element in a vector argument, if there is one.
+        Where in the argument the offending element is, if it is one element: its position in a
+        vector (``3``), its row and column in a matrix (``(2, 0)``), or, in a nested argument
+        such as a tree of item groups, the path of keys and list positions that leads to it from
+        the argument as the caller wrote it (``("children", 1, "sigma")``; ``()`` is the
+        argument as a whole).
     """
 
     parameter: str
     rule: str
-    index: int | tuple[int, ...] | None = None
+    index: int | tuple[int | str, ...] | None = None
 
     def __post_init__(self) -> None:
         super().__init__(str(self))
 
     def __str__(self) -> str:
-        where = self.parameter if self.index is None else f"{self.parameter}[{self.index}]"
-        return f"{where}: {self.rule}"
+        return f"{self._where()}: {self.rule}"
+
+    def _where(self) -> str:
+        """``p``, ``p[3]``, ``p[(2, 0)]``, or ``tree['children'][1]['sigma']`` for a path."""
+        index = self.index
+        if index is None or index == ():
+            return self.parameter
+        if isinstance(index, tuple) and any(isinstance(step, str) for step in index):
+            return self.parameter + "".join(f"[{step!r}]" for step in index)
+        return f"{self.parameter}[{index}]"
 
     def renamed(self, parameter: str) -> InvalidInput:
         """The same error, told about the argument under the caller's name for it."""
