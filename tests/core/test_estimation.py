@@ -12,7 +12,7 @@ from scipy import stats
 from dualcost.core.errors import InvalidInput, NumericalFailure
 from dualcost.core.estimation import Panel, fit
 from dualcost.core.estimation.almost_ideal import AlmostIdealShares
-from dualcost.core.estimation.ces import CESShares, NestedCESShares, parse_tree
+from dualcost.core.estimation.ces import CESShares, GroupTree, NestedCESShares
 from dualcost.core.estimation.les import LinearExpenditureShares
 from dualcost.core.estimation.system import ShareSystem, central_jacobian, fit_system
 from dualcost.core.preferences.aids import AIDS, QUAIDS
@@ -38,7 +38,7 @@ def _simulate(system: ShareSystem, theta: np.ndarray, seed: int, t_obs: int,
 
 CASES = {
     "ces": (CESShares(3), np.array([0.7, 0.3, -0.2]), {}),
-    "nested_ces": (NestedCESShares(parse_tree(TREE, 4)),
+    "nested_ces": (NestedCESShares(GroupTree.parse(TREE, 4)),
                    np.array([0.4, 1.6, 0.8, 0.2, 0.1, -0.3]), {"tree": TREE}),
     "stone_geary": (LinearExpenditureShares(3), np.array([0.5, 0.4, 0.25, 0.3, 0.5]), {}),
     "aids": (AlmostIdealShares(3), np.array([0.3, 0.2, -0.05, 0.02, 0.05, -0.02, 0.04]), {}),
@@ -342,7 +342,7 @@ def test_options_that_do_not_apply_and_bad_trees_are_refused() -> None:
 
 
 def test_nested_tree_groups_are_numbered_in_the_order_listed() -> None:
-    tree = parse_tree({"children": [{"name": "a", "children": [0, {"name": "b", "children":
+    tree = GroupTree.parse({"children": [{"name": "a", "children": [0, {"name": "b", "children":
                                                                     [1, 2]}]},
                                     {"name": "c", "children": [3, 4]}]}, 5)
     assert tree.names == ("all items", "a", "b", "c")

@@ -37,7 +37,7 @@ from ..errors import DualcostError, InvalidInput
 from ..preferences.aids import AIDS, QUAIDS
 from ..preferences.base import Notice, slutsky_notices
 from .almost_ideal import AlmostIdealShares, RestrictionTest, restriction_tests
-from .ces import CESShares, NestedCESShares, parse_tree
+from .ces import CESShares, GroupTree, NestedCESShares
 from .les import LinearExpenditureShares
 from .panel import Panel
 from .system import Label, Matrix, ShareSystem, SystemFit, Vector, fit_system
@@ -154,10 +154,7 @@ def _system(family: str, n: int, *, estimator: str | None, restrictions: str | N
     if family == "ces":
         return CESShares(n)
     if family == "nested_ces":
-        if tree is None:
-            raise InvalidInput("tree", "is required: give the grouping of the items (groups with "
-                               "'name' and 'children')")
-        return NestedCESShares(parse_tree(tree, n))
+        return NestedCESShares(GroupTree.parse(tree, n))
     if family == "stone_geary":
         return LinearExpenditureShares(n)
     return AlmostIdealShares(
