@@ -43,7 +43,7 @@ from .._means import log_power_mean
 from ..errors import InvalidInput
 from ..preferences.nested_ces import FIT_TREE, parse_tree
 from .panel import Panel
-from .system import Array3, Label, Matrix, ShareSystem, Vector
+from .system import Array3, FitOptions, Label, Matrix, ShareSystem, Vector
 
 
 def softmax_rows(logits: Matrix) -> Matrix:
@@ -65,6 +65,12 @@ class CESShares(ShareSystem):
     """Flat CES: ``theta = (sigma, ln delta_1, ..., ln delta_{n-1})``."""
 
     family = "ces"
+    method = "nonlinear least squares on the CES share equations"
+
+    @classmethod
+    def from_options(cls, n_items: int, options: FitOptions) -> CESShares:
+        options.refuse_all_but(cls.family, cls.takes)
+        return cls(n_items)
 
     def __init__(self, n_items: int) -> None:
         self.n_items = n_items
@@ -120,6 +126,14 @@ class CESShares(ShareSystem):
         marshallian = r * (np.eye(n) - w[None, :]) - np.eye(n)
         return w, np.ones(n), marshallian
 
+    def comparison_obstacle(self, theta: Vector) -> str | None:
+        """A sigma below zero: no CES cost function has it (Arrow et al. 1961 need sigma >= 0)."""
+        sigma = self.spec(theta)["sigma"]
+        if sigma < 0.0:
+            return (f"the estimated elasticity of substitution is {sigma:.6g}, below zero: no CES "
+                    "cost function has it, so there is no Konüs index to compute")
+        return None
+
     def check_identified(self, panel: Panel) -> None:
         if float(np.max(_relative_price_spread(panel.log_prices, panel.weights))) <= 1e-12:
             raise InvalidInput(
@@ -173,6 +187,13 @@ class NestedCESShares(ShareSystem):
     children but the last."""
 
     family = "nested_ces"
+    takes = frozenset({"tree"})
+    method = "nonlinear least squares on the nested CES share equations, all groups jointly"
+
+    @classmethod
+    def from_options(cls, n_items: int, options: FitOptions) -> NestedCESShares:
+        options.refuse_all_but(cls.family, cls.takes)
+        return cls(GroupTree.parse(options.tree, n_items))
 
     def __init__(self, tree: GroupTree) -> None:
         self.tree = tree
@@ -264,6 +285,14 @@ class NestedCESShares(ShareSystem):
                 d[i] += r * (member[node] * w / node_w[node] - member[n + g] * w / node_w[n + g])
                 node = n + g
         return w, np.ones(n), d - np.eye(n)
+
+    def comparison_obstacle(self, theta: Vector) -> str | None:
+        """The first group whose sigma is below zero: no nested CES cost function has it."""
+        for label, value in zip(self.full_labels, self.full(theta), strict=True):
+            if label.symbol == "sigma" and value < 0.0:
+                return (f"the estimated sigma of group {label.group!r} is {float(value):.6g}, "
+                        "below zero: no nested CES cost function has it")
+        return None
 
     def check_identified(self, panel: Panel) -> None:
         n = self.n_items
