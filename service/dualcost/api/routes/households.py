@@ -113,7 +113,7 @@ def _evaluate(job: HouseholdJob, chunks: Iterator[HouseholdChunk], scheduler: An
               settings: Settings) -> Iterator[ChunkResult]:
     if scheduler is None:
         return evaluate_locally(job, chunks)
-    from ...core.cluster import evaluate_on_cluster
+    from ...engines.dask import evaluate_on_cluster
 
     return evaluate_on_cluster(job, chunks, scheduler,
                                chunks_per_task=max(1, settings.dask_rows_per_task // job.chunk_rows),
@@ -125,14 +125,14 @@ def _cluster_failure(exc: Exception) -> HTTPException:
 
 
 def _is_cluster_failure(exc: Exception) -> bool:
-    from ...core.cluster import ClusterUnavailable
+    from ...engines.dask import ClusterUnavailable
 
     return isinstance(exc, ClusterUnavailable)
 
 
 def _connect(address: str) -> Any:
     """A Dask client for the job's stream; an unreachable scheduler is a 503."""
-    from ...core.cluster import ClusterUnavailable, connect
+    from ...engines.dask import ClusterUnavailable, connect
 
     try:
         return connect(address)[0]

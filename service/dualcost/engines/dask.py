@@ -20,11 +20,12 @@ from __future__ import annotations
 
 from collections import deque
 from collections.abc import Iterable, Iterator
+from functools import partial
 from itertools import islice
 from typing import Any
 
-from .errors import DualcostError
-from .households import ChunkResult, HouseholdChunk, HouseholdJob, evaluate_chunk
+from ..core.errors import DualcostError
+from ..core.households import ChunkResult, Evaluator, HouseholdChunk, HouseholdJob, evaluate_chunk
 
 #: Seconds to wait for the scheduler before giving up.
 CONNECT_TIMEOUT = 10.0
@@ -86,3 +87,12 @@ def evaluate_on_cluster(
             future.cancel()
         if own:
             client.close()
+
+
+def cluster_evaluator(scheduler: Any, *, chunks_per_task: int = 1,
+                      max_in_flight: int = 8) -> Evaluator:
+    """An evaluator for :func:`dualcost.core.households.run_households` (with
+    ``engine="cluster"``) that runs the chunks on the cluster at ``scheduler``, an address like
+    ``"tcp://10.0.0.5:8786"`` or a ``distributed.Client``."""
+    return partial(evaluate_on_cluster, scheduler=scheduler, chunks_per_task=chunks_per_task,
+                   max_in_flight=max_in_flight)
