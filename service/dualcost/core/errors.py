@@ -4,9 +4,12 @@
 
     DualcostError                 every error the core raises on purpose
      ├── InvalidInput             an argument breaks a stated rule (sign, shape, adding-up, domain)
-     └── NumericalFailure         valid inputs, but the evaluation left the finite floating-point range
-          │                       or an iterative step did not converge
-          └── DeadlineExceeded    an iterative solve ran past the compute deadline it was given
+     │    └── InvalidRows         household rows break a rule; each is named (a RowProblem)
+     ├── NumericalFailure         valid inputs, but the evaluation left the finite floating-point range
+     │    │                       or an iterative step did not converge
+     │    └── DeadlineExceeded    an iterative solve ran past the compute deadline it was given
+     └── EngineUnavailable        an engine of dualcost.engines cannot run: its library is not
+                                  installed or its cluster cannot be reached
 
 The core never knows an HTTP status; ``dualcost.api.problems`` is the one place that maps these
 classes to problem responses.
@@ -14,6 +17,7 @@ classes to problem responses.
 
 from __future__ import annotations
 
+from collections.abc import Sequence
 from dataclasses import dataclass
 
 
@@ -63,6 +67,33 @@ class InvalidInput(DualcostError, ValueError):
         return type(self)(parameter=parameter, rule=self.rule, index=self.index)
 
 
+@dataclass(frozen=True)
+class RowProblem:
+    """Why one household row was refused.
+
+    ``row`` is the caller's label for the row (its position in a JSON list, its record number
+    in a CSV file); ``field`` is ``"shares"``, ``"expenditure"`` or ``"weight"``; ``item`` is
+    the position of the offending item for a share; ``code`` is a stable word for counting.
+    """
+
+    row: int
+    field: str
+    rule: str
+    code: str
+    item: int | None = None
+
+
+class InvalidRows(InvalidInput):
+    """Households that break a rule: each problem names the row, the field and the rule."""
+
+    def __init__(self, problems: Sequence[RowProblem], count: int) -> None:
+        first = problems[0]
+        super().__init__("households", f"{count} household row(s) break a rule; first: row "
+                         f"{first.row}: {first.rule}", first.row)
+        self.problems = tuple(problems)
+        self.count = count
+
+
 @dataclass(eq=False)
 class NumericalFailure(DualcostError, ArithmeticError):
     """Valid inputs whose evaluation overflowed, underflowed to nothing, or did not converge."""
@@ -79,3 +110,8 @@ class NumericalFailure(DualcostError, ArithmeticError):
 
 class DeadlineExceeded(NumericalFailure):
     """An iterative solve ran past the compute deadline it was given."""
+
+
+class EngineUnavailable(DualcostError):
+    """An engine of :mod:`dualcost.engines` cannot run here: its library is not installed, or
+    the cluster it sends work to cannot be reached."""

@@ -51,7 +51,7 @@ from . import _checks
 from ._means import log_power_mean, power_mean_shares
 from .comparison import compare
 from .deadline import check as check_deadline
-from .errors import DualcostError, InvalidInput
+from .errors import DualcostError, InvalidInput, InvalidRows, RowProblem
 from .indices import FORMULAS, IndexData
 from .preferences import FAMILIES, BaseBudget, Notice, calibrate
 
@@ -79,33 +79,6 @@ LISTED_PROBLEMS = 100
 
 KONUS_COLUMNS = ("konus", "konus_current", "konus_midpoint")
 MONEY_COLUMNS = ("compensating_variation", "equivalent_variation")
-
-
-class InvalidRows(InvalidInput):
-    """Households that break a rule: each problem names the row, the field and the rule."""
-
-    def __init__(self, problems: Sequence[RowProblem], count: int) -> None:
-        first = problems[0]
-        super().__init__("households", f"{count} household row(s) break a rule; first: row "
-                         f"{first.row}: {first.rule}", first.row)
-        self.problems = tuple(problems)
-        self.count = count
-
-
-@dataclass(frozen=True)
-class RowProblem:
-    """Why one household row was refused.
-
-    ``row`` is the caller's label for the row (its position in a JSON list, its record number
-    in a CSV file); ``field`` is ``"shares"``, ``"expenditure"`` or ``"weight"``; ``item`` is
-    the position of the offending item for a share; ``code`` is a stable word for counting.
-    """
-
-    row: int
-    field: str
-    rule: str
-    code: str
-    item: int | None = None
 
 
 @dataclass(frozen=True)

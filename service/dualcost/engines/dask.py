@@ -24,15 +24,16 @@ from functools import partial
 from itertools import islice
 from typing import Any
 
-from ..core.errors import DualcostError
+from ..core.errors import EngineUnavailable
 from ..core.households import ChunkResult, Evaluator, HouseholdChunk, HouseholdJob, evaluate_chunk
 
 #: Seconds to wait for the scheduler before giving up.
 CONNECT_TIMEOUT = 10.0
 
 
-class ClusterUnavailable(DualcostError):
-    """Dask is not installed here, or the scheduler cannot be reached."""
+#: The error's name before the engines had a package of their own: Dask is not installed here,
+#: or the scheduler cannot be reached.
+ClusterUnavailable = EngineUnavailable
 
 
 def connect(scheduler: Any) -> tuple[Any, bool]:
@@ -40,14 +41,14 @@ def connect(scheduler: Any) -> tuple[Any, bool]:
     try:
         from distributed import Client
     except ImportError as exc:  # pragma: no cover - the test extra installs it
-        raise ClusterUnavailable("dask.distributed is not installed; install it with pip "
+        raise EngineUnavailable("dask.distributed is not installed; install it with pip "
                                  "install 'dualcost[cluster]'") from exc
     if isinstance(scheduler, Client):
         return scheduler, False
     try:
         client = Client(scheduler, set_as_default=False, timeout=CONNECT_TIMEOUT)
     except (OSError, TimeoutError) as exc:
-        raise ClusterUnavailable(f"the Dask scheduler at {scheduler!r} cannot be reached: "
+        raise EngineUnavailable(f"the Dask scheduler at {scheduler!r} cannot be reached: "
                                  f"{exc}") from exc
     return client, True
 
