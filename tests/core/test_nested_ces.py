@@ -532,6 +532,16 @@ def test_every_tree_error_points_at_the_offending_place(form: str, tree: Any, pa
     assert _follow(tree, path) == there
 
 
+def test_children_that_are_not_a_list_are_refused_as_such() -> None:
+    """An array of children is not a list of items and groups: refused with the group's rule,
+    not with numpy's question about the truth of an array (common practice)."""
+    for form in (MODEL_TREE, FIT_TREE):
+        with pytest.raises(InvalidInput) as info:
+            parse_tree({"sigma": 0.5, "children": np.arange(3)} if form is MODEL_TREE
+                       else {"children": np.arange(3)}, 3, form=form)
+        assert info.value.index == ("children",)
+
+
 def test_tree_errors_read_as_places_in_the_tree() -> None:
     """The error's text names the place as a subscript of the tree (common practice)."""
     with pytest.raises(InvalidInput) as info:

@@ -338,7 +338,7 @@ class _Walk:
         """Place the group's items; its subgroups, to be read next, in the order listed."""
         kids = node.get("children")
         place = self.places[g]
-        if not kids or not _is_list(kids) or len(kids) < self.form.min_children:
+        if not _is_list(kids) or len(kids) < self.form.min_children:
             raise self.fail("few_children", place + ("children",), g)
         ids, n, owner = self.item_ids, self.n_items, self.owner
         mine = self.children[g]
