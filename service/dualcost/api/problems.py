@@ -20,8 +20,13 @@ from fastapi.responses import JSONResponse, PlainTextResponse
 from starlette.exceptions import HTTPException as StarletteHTTPException
 from starlette.types import Send
 
-from ..core.cluster import ClusterUnavailable
-from ..core.errors import DeadlineExceeded, DualcostError, InvalidInput, NumericalFailure
+from ..core.errors import (
+    DeadlineExceeded,
+    DualcostError,
+    EngineUnavailable,
+    InvalidInput,
+    NumericalFailure,
+)
 
 PROBLEM_MEDIA_TYPE = "application/problem+json"
 log = logging.getLogger("dualcost.api")
@@ -253,7 +258,7 @@ async def _on_service_problem(request: Request, exc: ServiceProblem) -> JSONResp
     return problem_response(exc.slug, exc.detail, status=exc.status, instance=request.url.path)
 
 
-async def _on_cluster_unavailable(request: Request, exc: ClusterUnavailable) -> JSONResponse:
+async def _on_engine_unavailable(request: Request, exc: EngineUnavailable) -> JSONResponse:
     return problem_response("http-error", f"The Dask cluster cannot be used: {exc}", status=503,
                             instance=request.url.path)
 
@@ -289,6 +294,6 @@ def install(app: FastAPI) -> None:
     app.add_exception_handler(InvalidInput, _on_invalid_input)  # type: ignore[arg-type]
     app.add_exception_handler(NumericalFailure, _on_numerical_failure)  # type: ignore[arg-type]
     app.add_exception_handler(ServiceProblem, _on_service_problem)  # type: ignore[arg-type]
-    app.add_exception_handler(ClusterUnavailable, _on_cluster_unavailable)  # type: ignore[arg-type]
+    app.add_exception_handler(EngineUnavailable, _on_engine_unavailable)  # type: ignore[arg-type]
     app.add_exception_handler(StarletteHTTPException, _on_http_error)  # type: ignore[arg-type]
     app.add_exception_handler(Exception, _on_unexpected)

@@ -17,11 +17,9 @@ from typing import Any
 
 from ...core.preferences import FAMILIES, BaseBudget, Preferences, calibrate
 from ...core.preferences.nested_ces import ItemIdTree
-from ..problems import RequestProblem
 from ..schemas.model import ModelSpec
 from .items import ItemAxis, is_number
 from .locator import Locator, Place, Shape
-from .tree import tree_to_core
 
 
 def family_of(spec: ModelSpec, locator: Locator) -> type[Preferences]:
@@ -68,14 +66,8 @@ def calibrated(spec: ModelSpec, budget: BaseBudget, axis: ItemAxis, locator: Loc
                                  deadline_seconds=deadline_seconds)
     if "model" not in locator.places:
         locator.add("model", Place("/model"))
-    try:
-        with locator.translating():
-            return calibrate(spec.family, budget, parameters)
-    except RequestProblem:
-        tree = parameters.get("tree")
-        if isinstance(tree, ItemIdTree):
-            _walk_tree(tree.spec, axis, locator, max_tree_depth)  # a more exact pointer
-        raise
+    with locator.translating():
+        return calibrate(spec.family, budget, parameters)
 
 
 Converter = Callable[[str, Any, ItemAxis, Locator, int], Any]
@@ -85,11 +77,9 @@ def _by_value(name: str, value: Any, axis: ItemAxis, locator: Locator, max_tree_
     """A parameter of a family with a closed form, converted by what was given: a number (null
     stays None), a vector, a matrix, or a nested CES tree."""
     if name == "tree":
-        _place(locator, name, "scalar")
-        # The core reads item ids itself; only a tree it refuses is walked here again.
-        if isinstance(value, dict):
-            return ItemIdTree(value, axis.position, max_tree_depth)
-        return _walk_tree(value, axis, locator, max_tree_depth)
+        # The core reads the item ids and the depth itself; its errors carry their path.
+        _place(locator, name, "path")
+        return ItemIdTree(value, axis.position, max_tree_depth)
     if is_number(value) or value is None:
         _place(locator, name, "scalar")
         return value
@@ -103,13 +93,6 @@ def _by_value(name: str, value: Any, axis: ItemAxis, locator: Locator, max_tree_
     _place(locator, name, "scalar")
     raise locator.problem(name, "must be a number, a vector (object keyed by item id, or list "
                           "in item order), a matrix, or a tree")
-
-
-def _walk_tree(tree: Any, axis: ItemAxis, locator: Locator, max_tree_depth: int) -> Any:
-    try:
-        return tree_to_core(tree, axis, "/model/tree", max_tree_depth, fields=("name", "sigma"))
-    except RequestProblem as exc:
-        raise locator.relocated(exc) from None
 
 
 def _by_declared_shape(shapes: dict[str, str]) -> Converter:

@@ -16,13 +16,10 @@ from ...core.comparison import Comparison, compare_budgets
 from ...core.errors import NumericalFailure
 from ...core.indices import FORMULAS
 from ...core.preferences import Preferences
-from ...core.preferences.nested_ces import ItemIdTree
 from ..inputs.items import ItemAxis
 from ..inputs.locator import Form, Locator, Place
 from ..inputs.model import core_parameters
-from ..inputs.tree import tree_to_core
 from ..observability import computing
-from ..problems import RequestProblem
 from ..render import all_finite
 from ..schemas.comparison import (
     CAUTION,
@@ -81,12 +78,8 @@ def run(request: ComparisonRequest, settings: Settings, loc: Locator | None = No
     parameters = core_parameters(request.model, axis, loc, max_tree_depth=settings.max_tree_depth,
                                  deadline_seconds=settings.compute_deadline_seconds)
     arguments |= current_arguments(request, axis, loc)
-    try:
-        with computing("compare", settings), loc.translating():
-            result, model = compare_budgets(request.model.family, parameters, **arguments)
-    except RequestProblem:
-        _point_into_tree(parameters.get("tree"), axis, loc, settings.max_tree_depth)
-        raise
+    with computing("compare", settings), loc.translating():
+        result, model = compare_budgets(request.model.family, parameters, **arguments)
     return Outcome(result, model, axis)
 
 
@@ -143,15 +136,6 @@ def current_arguments(request: ComparedPeriod, axis: ItemAxis, loc: Locator) -> 
         out["weight_reference"] = {_WEIGHTS[name]: axis.vector(loc, name, value)
                                    for name, value in given.items() if value is not None}
     return out
-
-
-def _point_into_tree(tree: Any, axis: ItemAxis, loc: Locator, depth: int) -> None:
-    """A tree the core refused, walked in the request's terms for the exact place, if any."""
-    if isinstance(tree, ItemIdTree):
-        try:
-            tree_to_core(tree.spec, axis, "/model/tree", depth, fields=("name", "sigma"))
-        except RequestProblem as exc:
-            raise loc.relocated(exc) from None
 
 
 # -- the answer -------------------------------------------------------------------------------

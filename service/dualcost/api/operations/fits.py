@@ -21,11 +21,11 @@ from scipy import stats
 from ...config import Settings
 from ...core.estimation import FitResult, Panel, fit
 from ...core.estimation.estimator import ParameterEstimate
+from ...core.preferences.nested_ces import ItemIdTree
 from ..inputs.items import ItemAxis
 from ..inputs.locator import Form, Locator, Place
 from ..inputs.observations import Observations
 from ..inputs.query import validated
-from ..inputs.tree import tree_to_core
 from ..observability import computing
 from ..problems import RequestProblem
 from ..schemas.common import CAUTION
@@ -90,11 +90,9 @@ def run(data: Observations, spec: FitModelIn, options: Options, settings: Settin
     if n_obs * n > settings.max_fit_cells:
         raise loc.problem("observations", f"{n_obs} observations of {n} items are more than the "
                           f"limit of {settings.max_fit_cells} cells for one fit")
-    tree = None
-    if spec.tree is not None:
-        # the fit estimates the sigmas: a group's keys go to the core, which checks them
-        where = "#/query/tree" if loc.form == "csv" else "/model/tree"
-        tree = tree_to_core(spec.tree, data.axis, where, settings.max_tree_depth, fields=None)
+    # The core reads the grouping's item ids and depth; its errors carry their path.
+    tree = None if spec.tree is None else ItemIdTree(spec.tree, data.axis.position,
+                                                     settings.max_tree_depth)
     with computing(operation, settings), loc.translating():
         if data.shares is not None:
             panel = Panel.checked(data.prices, data.shares, data.total, data.weights,

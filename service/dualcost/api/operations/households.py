@@ -97,16 +97,15 @@ def evaluate(job: HouseholdJob, chunks: Iterator[HouseholdChunk], scheduler: Any
     """The chunks' results in order, in this process or on the cluster at ``scheduler``."""
     if scheduler is None:
         return evaluate_locally(job, chunks)
-    from ...core.cluster import evaluate_on_cluster
+    from ...engines.dask import cluster_evaluator  # Dask is imported on first use only
 
-    return evaluate_on_cluster(job, chunks, scheduler,
-                               chunks_per_task=max(1, settings.dask_rows_per_task // job.chunk_rows),
-                               max_in_flight=MAX_IN_FLIGHT)
+    return cluster_evaluator(scheduler, max_in_flight=MAX_IN_FLIGHT, chunks_per_task=max(
+        1, settings.dask_rows_per_task // job.chunk_rows))(job, chunks)
 
 
 def connect(address: str) -> Any:
     """A Dask client for a job's stream; an unreachable scheduler is a service problem."""
-    from ...core.cluster import connect as connect_to
+    from ...engines.dask import connect as connect_to
 
     return connect_to(address)[0]
 
