@@ -5,6 +5,11 @@ Arrays may carry leading axes (periods, households); sums run over the last axis
 Formulas and their names follow ILO, IMF, OECD, UNECE, Eurostat and World Bank (2004),
 *Consumer Price Index Manual: Theory and Practice* (the CPI Manual), chapters 15 to 17.
 
+Items that come and go: a comparison between periods whose items differ uses the items priced in
+both (the matched sample, :func:`matched_sample`); an :class:`IndexData` built that way carries
+the mask ``matched``, which the unweighted formulas need to count items and the Sato-Vartia index
+to give a zero share no weight.
+
 Adding a formula is one function here and one :class:`IndexFormula` line in ``FORMULAS``.
 """
 
@@ -22,6 +27,7 @@ from ._means import log_mean, log_power_mean
 from .errors import InvalidInput
 
 Array = NDArray[np.float64]
+Mask = NDArray[np.bool_]
 
 #: What a formula's substitution bias is measured against: the Konüs index at base utility
 #: (base-weighted and unweighted formulas), at current utility (current-weighted), or at the
@@ -35,6 +41,9 @@ class IndexData:
 
     ``weight_quantities`` and ``weight_shares`` describe an earlier weight-reference period b
     (Lowe and Young indices); ``sigma`` is the elasticity for the Lloyd-Moulton index.
+
+    ``matched`` marks the items priced in both periods when the comparison is over a matched
+    sample (:func:`matched_sample`): the other items then have price 1 and quantity 0.
     """
 
     p0: Array
@@ -44,6 +53,7 @@ class IndexData:
     weight_quantities: Array | None = None
     weight_shares: Array | None = None
     sigma: float | None = None
+    matched: Mask | None = None
 
     # Computed once per comparison, shared by all the formulas that use them.
     @cached_property
@@ -63,6 +73,35 @@ class IndexData:
     def w1(self) -> Array:
         v = self.p1 * self.q1
         return v / v.sum(axis=-1, keepdims=True)
+
+
+def matched_sample(
+    p0: Array,
+    p1: Array,
+    q0: Array,
+    q1: Array,
+    matched: Mask,
+    *,
+    weight_quantities: Array | None = None,
+    weight_shares: Array | None = None,
+    sigma: float | None = None,
+) -> IndexData:
+    """The comparison over the items where ``matched`` is true (priced in both periods).
+
+    Elsewhere prices become 1 and quantities 0, so an item left out has no weight in a weighted
+    formula; the weight-reference basket is kept over the matched items and the weight-reference
+    shares are rescaled to sum to one over them. The mask travels with the data for the
+    formulas that count items (Carli, Jevons, Dutot) and for Sato-Vartia.
+    """
+    qb = wb = None
+    if weight_quantities is not None:
+        qb = np.where(matched, weight_quantities, 0.0)
+    if weight_shares is not None:
+        wb = np.where(matched, weight_shares, 0.0)
+        wb = wb / np.sum(wb, axis=-1, keepdims=True)
+    return IndexData(p0=np.where(matched, p0, 1.0), p1=np.where(matched, p1, 1.0),
+                     q0=np.where(matched, q0, 0.0), q1=np.where(matched, q1, 0.0),
+                     weight_quantities=qb, weight_shares=wb, sigma=sigma, matched=matched)
 
 
 def laspeyres(d: IndexData) -> Any:
@@ -101,11 +140,23 @@ def sato_vartia(d: IndexData) -> Any:
     """ln P_SV = sum phi_i ln(p1_i/p0_i), phi_i = L(w1_i, w0_i) / sum_j L(w1_j, w0_j),
     with L the logarithmic mean (Sato 1976; Vartia 1976; CPI Manual 17.69).
 
-    Shares must be positive in both periods: the logarithmic mean takes their logarithms.
+    Over all items, shares must be positive in both periods: the logarithmic mean takes their
+    logarithms. Over a matched sample (``d.matched`` given) an item with a zero share in one
+    period has ``L = 0``, the limit of the logarithmic mean, so it has no weight.
     """
+    if d.matched is not None:
+        return _sato_vartia_zero_shares(d)
     lm = log_mean(d.w1, d.w0)
     phi = lm / lm.sum(axis=-1, keepdims=True)
     return np.exp((phi * d.log_relatives).sum(axis=-1))
+
+
+def _sato_vartia_zero_shares(d: IndexData) -> Array:
+    """Sato-Vartia with ``L(w1_i, w0_i) = 0`` where a share is zero (Sato 1976; Vartia 1976)."""
+    both = (d.w0 > 0.0) & (d.w1 > 0.0)
+    lm = np.where(both, log_mean(np.where(both, d.w1, 1.0), np.where(both, d.w0, 1.0)), 0.0)
+    phi = lm / np.sum(lm, axis=-1, keepdims=True)
+    return np.asarray(np.exp(np.sum(phi * d.log_relatives, axis=-1)))
 
 
 def geometric_laspeyres(d: IndexData) -> Any:
@@ -133,19 +184,33 @@ def young(d: IndexData) -> Any:
     return (d.weight_shares * d.relatives).sum(axis=-1)
 
 
+def _count(matched: Mask) -> Array:
+    return np.sum(matched, axis=-1).astype(np.float64)
+
+
 def carli(d: IndexData) -> Any:
-    """P_C = mean(p1/p0), unweighted arithmetic mean of relatives (Carli 1764; CPI Manual 20.32)."""
-    return d.relatives.mean(axis=-1)
+    """P_C = mean(p1/p0), unweighted arithmetic mean of relatives (Carli 1764; CPI Manual 20.32),
+    over the matched items when ``d.matched`` is given."""
+    if d.matched is None:
+        return d.relatives.mean(axis=-1)
+    return np.sum(np.where(d.matched, d.relatives, 0.0), axis=-1) / _count(d.matched)
 
 
 def jevons(d: IndexData) -> Any:
-    """P_J = prod (p1/p0)^(1/N), unweighted geometric mean (Jevons 1863; CPI Manual 20.35)."""
-    return np.exp(d.log_relatives.mean(axis=-1))
+    """P_J = prod (p1/p0)^(1/N), unweighted geometric mean (Jevons 1863; CPI Manual 20.35),
+    over the N matched items when ``d.matched`` is given."""
+    if d.matched is None:
+        return np.exp(d.log_relatives.mean(axis=-1))
+    return np.exp(np.sum(np.where(d.matched, d.log_relatives, 0.0), axis=-1) / _count(d.matched))
 
 
 def dutot(d: IndexData) -> Any:
-    """P_D = mean(p1) / mean(p0), ratio of average prices (Dutot 1738; CPI Manual 20.30)."""
-    return d.p1.mean(axis=-1) / d.p0.mean(axis=-1)
+    """P_D = mean(p1) / mean(p0), ratio of average prices (Dutot 1738; CPI Manual 20.30), over
+    the matched items when ``d.matched`` is given."""
+    if d.matched is None:
+        return d.p1.mean(axis=-1) / d.p0.mean(axis=-1)
+    return (np.sum(np.where(d.matched, d.p1, 0.0), axis=-1)
+            / np.sum(np.where(d.matched, d.p0, 0.0), axis=-1))
 
 
 @dataclass(frozen=True)

@@ -21,8 +21,8 @@ from dataclasses import dataclass
 import numpy as np
 from numpy.typing import NDArray
 
-from ._means import log_mean
 from .errors import InvalidInput
+from .indices import matched_sample, sato_vartia
 
 Array = NDArray[np.float64]
 Mask = NDArray[np.bool_]
@@ -48,24 +48,6 @@ def check_new_goods_sigma(name: str, sigma: float) -> float:
     return value
 
 
-def sato_vartia_matched(p0: Array, p1: Array, q0: Array, q1: Array, used: Mask) -> Array:
-    """The Sato-Vartia index over the items where ``used`` is true, shares taken among them.
-
-    ``ln P = sum phi_i ln(p1_i/p0_i)`` with ``phi_i = L(w1_i, w0_i) / sum_j L(w1_j, w0_j)`` and
-    ``L`` the logarithmic mean (Sato 1976; Vartia 1976). An item with a zero share in one period
-    has ``L = 0`` (the limit of the logarithmic mean), so it has no weight.
-    """
-    v0 = np.where(used, p0 * q0, 0.0)
-    v1 = np.where(used, p1 * q1, 0.0)
-    w0 = v0 / np.sum(v0, axis=-1, keepdims=True)
-    w1 = v1 / np.sum(v1, axis=-1, keepdims=True)
-    both = (w0 > 0.0) & (w1 > 0.0)
-    lm = np.where(both, log_mean(np.where(both, w1, 1.0), np.where(both, w0, 1.0)), 0.0)
-    phi = lm / np.sum(lm, axis=-1, keepdims=True)
-    log_rel = np.log(np.where(used, p1, 1.0) / np.where(used, p0, 1.0))
-    return np.asarray(np.exp(np.sum(phi * log_rel, axis=-1)))
-
-
 def feenstra(
     p0: Array, p1: Array, q0: Array, q1: Array, available0: Mask, available1: Mask, sigma: float
 ) -> NewGoodsIndex:
@@ -88,8 +70,7 @@ def feenstra(
     v1 = np.where(bought1, p1f * q1, 0.0)
     lam0 = np.sum(np.where(common, v0, 0.0), axis=-1) / np.sum(v0, axis=-1)
     lam1 = np.sum(np.where(common, v1, 0.0), axis=-1) / np.sum(v1, axis=-1)
-    sv = sato_vartia_matched(p0f, p1f, np.where(common, q0, 0.0), np.where(common, q1, 0.0),
-                             common)
+    sv = sato_vartia(matched_sample(p0f, p1f, q0, q1, common))
     index = sv * np.exp((np.log(lam1) - np.log(lam0)) / (s - 1.0))
     return NewGoodsIndex(index=np.asarray(index), sato_vartia_common=sv, common_share_base=lam0,
                          common_share_current=lam1, common=common)

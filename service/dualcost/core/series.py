@@ -56,9 +56,9 @@ from ._means import log_power_mean
 from .comparison import WeightReference
 from .deadline import check as check_deadline
 from .errors import InvalidInput, NumericalFailure
-from .indices import FORMULAS, IndexData, Target
+from .indices import FORMULAS, Target, matched_sample
 from .multilateral import Splice, bilateral_log_matrix, geks, rolling_geks
-from .new_goods import check_new_goods_sigma, feenstra, sato_vartia_matched
+from .new_goods import check_new_goods_sigma, feenstra
 from .preferences import BaseBudget, Notice, Preferences, calibrate
 from .series_panel import PERIODS_PER_YEAR, Array, Mask, Panel
 
@@ -275,26 +275,6 @@ def calibrate_to_base(panel: Panel, base: int, family: str,
 # -- bilateral comparisons over matched items ------------------------------------------------------
 
 
-def _count(both: Mask) -> Array:
-    return np.sum(both, axis=-1).astype(np.float64)
-
-
-def _carli(p0: Array, p1: Array, both: Mask) -> Array:
-    """Mean of the matched items' relatives (Carli 1764; CPI Manual 2004, 20.32)."""
-    return np.asarray(np.sum(np.where(both, p1 / p0, 0.0), axis=-1) / _count(both))
-
-
-def _jevons(p0: Array, p1: Array, both: Mask) -> Array:
-    """Geometric mean of the matched items' relatives (Jevons 1863; CPI Manual 2004, 20.35)."""
-    return np.asarray(np.exp(np.sum(np.where(both, np.log(p1 / p0), 0.0), axis=-1) / _count(both)))
-
-
-def _dutot(p0: Array, p1: Array, both: Mask) -> Array:
-    """Ratio of the matched items' average prices (Dutot 1738; CPI Manual 2004, 20.30)."""
-    return np.asarray(np.sum(np.where(both, p1, 0.0), axis=-1) / np.sum(np.where(both, p0, 0.0),
-                                                                         axis=-1))
-
-
 @dataclass(frozen=True)
 class _Weights:
     quantities: Array | None
@@ -322,23 +302,8 @@ def _compare(
         if name == FEENSTRA:
             assert new_goods_sigma is not None
             return feenstra(p0, p1, q0, q1, priced0, priced1, new_goods_sigma).index
-        if name == "carli":
-            return _carli(p0, p1, both)
-        if name == "jevons":
-            return _jevons(p0, p1, both)
-        if name == "dutot":
-            return _dutot(p0, p1, both)
-        if name == "sato_vartia":
-            return sato_vartia_matched(p0, p1, q0, q1, both)
-        qb = wb = None
-        if weights.quantities is not None:
-            qb = np.where(both, weights.quantities, 0.0)
-        if weights.shares is not None:
-            wb = np.where(both, weights.shares, 0.0)
-            wb = wb / np.sum(wb, axis=-1, keepdims=True)
-        data = IndexData(p0=np.where(both, p0, 1.0), p1=np.where(both, p1, 1.0),
-                         q0=np.where(both, q0, 0.0), q1=np.where(both, q1, 0.0),
-                         weight_quantities=qb, weight_shares=wb, sigma=sigma)
+        data = matched_sample(p0, p1, q0, q1, both, weight_quantities=weights.quantities,
+                              weight_shares=weights.shares, sigma=sigma)
         return np.asarray(FORMULAS[name].compute(data), dtype=np.float64)
 
 
