@@ -596,6 +596,38 @@ def index_series(
     quantities = _fill_quantities(panel, model, items, base, notices)
     wts, weight_shares = _weights(panel, quantities, weight_reference, base)
 
+    lm_sigma, ng_sigma = _elasticities(model, lloyd_moulton_sigma, new_goods_sigma)
+    unmet = _unmet(panel, model, wts, lm_sigma, ng_sigma)
+    names = _choose_formulas(formulas, unmet, notices)
+
+    compare = _Comparer(panel, quantities, wts, lm_sigma, ng_sigma)
+    raw = _formula_series(compare, [n for n in names if REGISTRY[n].kind == "bilateral"], base,
+                          n_t)
+    konus = _konus(model, panel, base, quantities, items, notices)
+    multilateral = _multilateral(panel, quantities, base,
+                                 [REGISTRY[n] for n in names if REGISTRY[n].kind == "multilateral"],
+                                 geks_window, geks_splice, explicit=formulas is not None,
+                                 notices=notices)
+    series, geks_out, konus_out = _published(raw, multilateral, konus, scale, ref)
+
+    the_span = _span(panel, span, notices)
+    bias, annual = _bias(series, geks_out, konus_out, the_span, scale)
+    if konus_out is None:
+        notices.append(Notice("no_model", "No model was given: the Konüs series and the bias "
+                              "are not computed."))
+    drift = _drift(compare, raw, multilateral, panel, base, the_span, loop)
+    treatment = item_treatment(panel, base, konus)
+    return IndexSeries(
+        periods=panel.periods, items=panel.items, base=base, reference=ref,
+        reference_value=scale, formulas=series, konus=konus_out, multilateral=geks_out,
+        bias=bias, annual_bias=annual, span=the_span, chain_drift=drift,
+        item_treatment=treatment, weights=weight_shares, lloyd_moulton_sigma=lm_sigma,
+        new_goods_sigma=ng_sigma, notices=notices)
+
+
+def _elasticities(model: Preferences | None, lloyd_moulton_sigma: float | None,
+                  new_goods_sigma: float | None) -> tuple[float | None, float | None]:
+    """The Lloyd-Moulton and new-goods elasticities, checked, by default the model's own."""
     lm_sigma = lloyd_moulton_sigma
     if lm_sigma is None and model is not None:
         lm_sigma = model.substitution_elasticity
@@ -607,36 +639,51 @@ def index_series(
         ng_sigma = check_new_goods_sigma("new_goods_sigma", ng_sigma)
     elif model is not None and (model.substitution_elasticity or 0.0) > 1.0:
         ng_sigma = model.substitution_elasticity
+    return lm_sigma, ng_sigma
+
+
+def _unmet(panel: Panel, model: Preferences | None, weights: _Weights, lm_sigma: float | None,
+           ng_sigma: float | None) -> set[Need]:
+    """The formulas' needs this request cannot meet (see :data:`dualcost.core.indices.Need`)."""
     given: dict[Need, bool] = {
         "sigma": lm_sigma is not None,
-        "weight_quantities": wts.quantities is not None,
-        "weight_shares": wts.shares is not None,
+        "weight_quantities": weights.quantities is not None,
+        "weight_shares": weights.shares is not None,
         "new_goods_sigma": ng_sigma is not None,
         "period_quantities": bool(panel.has_quantities.all()) or model is not None,
     }
-    names = _choose_formulas(formulas, {need for need, ok in given.items() if not ok}, notices)
+    return {need for need, ok in given.items() if not ok}
 
-    compare = _Comparer(panel, quantities, wts, lm_sigma, ng_sigma)
+
+def _formula_series(compare: _Comparer, names: Sequence[str], base: int,
+                    n_t: int) -> dict[str, tuple[Array, Array, Array]]:
+    """Per bilateral formula: fixed-base and chained series on base = 1, and the chain links."""
     fixed_pairs = [(base, t) for t in range(n_t)]
     link_pairs = [(t - 1, t) for t in range(1, n_t)]
     raw: dict[str, tuple[Array, Array, Array]] = {}
-    for name in (n for n in names if REGISTRY[n].kind == "bilateral"):
+    for name in names:
         fixed = compare(name, fixed_pairs)
         links = compare(name, link_pairs)
         raw[name] = (fixed / fixed[base], _chain(links, base), links)
+    return raw
 
-    konus = None
-    if model is not None:
-        konus = konus_series(model, panel, base, quantities, items)
-        if model.homothetic:
-            notices.append(Notice("homothetic", f"The {model.family} model is homothetic: its "
-                                  "Konüs series is the same at every living standard, and its "
-                                  "chained and fixed-base series agree."))
 
-    multilateral = _multilateral(panel, quantities, base,
-                                 [REGISTRY[n] for n in names if REGISTRY[n].kind == "multilateral"],
-                                 geks_window, geks_splice, explicit=formulas is not None,
-                                 notices=notices)
+def _konus(model: Preferences | None, panel: Panel, base: int, quantities: Array,
+           items: Sequence[int], notices: list[Notice]) -> KonusSeries | None:
+    if model is None:
+        return None
+    konus = konus_series(model, panel, base, quantities, items)
+    if model.homothetic:
+        notices.append(Notice("homothetic", f"The {model.family} model is homothetic: its "
+                              "Konüs series is the same at every living standard, and its "
+                              "chained and fixed-base series agree."))
+    return konus
+
+
+def _published(raw: dict[str, tuple[Array, Array, Array]], multilateral: list[Multilateral],
+               konus: KonusSeries | None, scale: float,
+               ref: int) -> tuple[dict[str, FormulaSeries], list[Multilateral], KonusSeries | None]:
+    """Every series on the index reference period ``ref``, worth ``scale`` there."""
 
     def published(values: Array) -> Array:
         return np.asarray(scale * values / values[ref])
@@ -655,20 +702,7 @@ def index_series(
                                 {k: published(v) for k, v in konus.fixed_base.items()},
                                 {k: published(v) for k, v in konus.chained.items()},
                                 konus.incomes, konus.utilities, konus.items, konus.carried_from)
-
-    the_span = _span(panel, span, notices)
-    bias, annual = _bias(series, geks_out, konus_out, the_span, scale)
-    if konus_out is None:
-        notices.append(Notice("no_model", "No model was given: the Konüs series and the bias "
-                              "are not computed."))
-    drift = _drift(compare, raw, multilateral, panel, base, the_span, loop)
-    treatment = item_treatment(panel, base, konus)
-    return IndexSeries(
-        periods=panel.periods, items=panel.items, base=base, reference=ref,
-        reference_value=scale, formulas=series, konus=konus_out, multilateral=geks_out,
-        bias=bias, annual_bias=annual, span=the_span, chain_drift=drift,
-        item_treatment=treatment, weights=weight_shares, lloyd_moulton_sigma=lm_sigma,
-        new_goods_sigma=ng_sigma, notices=notices)
+    return series, geks_out, konus_out
 
 
 def _check_position(name: str, position: int, n_t: int) -> None:
