@@ -32,6 +32,7 @@ from dualcost.core.indices import (
     check_formula_names,
     formulas_for,
 )
+from dualcost.core.multilateral import bilateral_log_matrix, geks
 from dualcost.core.preferences import BaseBudget, calibrate
 from dualcost.core.series import GEKS_SERIES, SERIES_FORMULAS, calibrate_to_base, index_series
 from dualcost.core.series_panel import Panel
@@ -118,6 +119,19 @@ def test_current_quantities_flag_is_what_the_formula_reads(formula: IndexFormula
     moved = replace(d, q1=d.q1 * np.linspace(0.5, 2.0, d.q1.size))
     changed = not np.isclose(value(formula, moved), value(formula, d), rtol=1e-12, atol=0.0)
     assert changed == formula.uses_current_quantities
+
+
+@pytest.mark.parametrize("name", GEKS_SERIES)
+def test_a_multilateral_entry_over_two_periods_is_its_link(name: str) -> None:
+    """Over a window of two periods the GEKS index is its bilateral link, since
+    (P(s, s) P(s, t) P(s, t) P(t, t))^(1/2) = P(s, t) by the identity test (Gini 1931; CPI
+    Manual 2004, ch. 16), which is what the entry's ``compute`` stands for."""
+    d = random_data(7)
+    formula = REGISTRY[name]
+    assert formula.link is not None
+    g = bilateral_log_matrix(np.vstack([d.p0, d.p1]), np.vstack([d.q0, d.q1]),
+                             np.ones((2, d.p0.size), dtype=bool), formula.link)
+    assert_allclose(geks(g)[1], value(formula, d), rtol=1e-13)
 
 
 def test_missing_inputs_are_worded_for_every_operation_that_offers_the_formula() -> None:

@@ -32,6 +32,7 @@ from numpy.typing import NDArray
 
 from ._means import log_mean, log_power_mean
 from .errors import InvalidInput
+from .multilateral import Link
 
 Array = NDArray[np.float64]
 Mask = NDArray[np.bool_]
@@ -220,7 +221,7 @@ def young(d: IndexData) -> Any:
 
 
 def _count(matched: Mask) -> Array:
-    return np.sum(matched, axis=-1).astype(np.float64)
+    return np.asarray(np.sum(matched, axis=-1), dtype=np.float64)
 
 
 def carli(d: IndexData) -> Any:
@@ -341,7 +342,7 @@ class IndexFormula:
     household_default: bool = False
     kind: Kind = "bilateral"
     #: The bilateral formula a multilateral series is built from.
-    link: str | None = None
+    link: Link | None = None
 
     @property
     def needs(self) -> tuple[Need, ...]:
@@ -362,10 +363,10 @@ class IndexFormula:
     def missing(self, unmet: Collection[Need], scope: Scope) -> str | None:
         """What it needs among ``unmet`` (the needs ``scope`` cannot meet), in that operation's
         words: the first in the order of :data:`Need`, or ``None`` when it has all it needs."""
-        for need in NEEDS:
-            if need in unmet and need in self.requires:
-                return MISSING[need][scope]
-        return None
+        wanted = [need for need in self.requires if need in unmet]
+        if not wanted:
+            return None
+        return MISSING[min(wanted, key=NEEDS.index)][scope]
 
 
 #: Completes "The Lowe index needs ..." when a need is not met; the comparison and the series

@@ -739,7 +739,7 @@ def _multilateral(panel: Panel, quantities: Array, base: int, formulas: Sequence
         link = formula.link
         assert link is not None  # every multilateral entry names its link
         try:
-            g = bilateral_log_matrix(panel.prices, quantities, panel.priced, link,  # type: ignore[arg-type]
+            g = bilateral_log_matrix(panel.prices, quantities, panel.priced, link,
                                      panel.periods)
         except InvalidInput as exc:
             if explicit:
