@@ -52,22 +52,18 @@ from ._means import log_power_mean, power_mean_shares
 from .comparison import compare
 from .deadline import check as check_deadline
 from .errors import DualcostError, InvalidInput, InvalidRows, RowProblem
-from .indices import FORMULAS, IndexData
+from .indices import FORMULAS, HOUSEHOLD_DEFAULT, IndexData, formulas_for
 from .preferences import FAMILIES, BaseBudget, Notice, calibrate
 
 Vector = NDArray[np.float64]
 Matrix = NDArray[np.float64]
 OnBadRows = Literal["reject", "skip"]
 
-#: Formulas a household batch can compute: the weighted bilateral ones. The unweighted formulas
-#: are the same for every household, and Lowe and Young need a weight-reference period.
-HOUSEHOLD_FORMULAS: tuple[str, ...] = (
-    "laspeyres", "paasche", "fisher", "tornqvist", "walsh", "marshall_edgeworth", "sato_vartia",
-    "geometric_laspeyres", "lloyd_moulton",
-)
-DEFAULT_FORMULAS: tuple[str, ...] = (
-    "laspeyres", "paasche", "fisher", "tornqvist", "geometric_laspeyres",
-)
+#: Formulas a household batch can compute (the registry's "households" scope): the weighted
+#: bilateral ones. The unweighted formulas are the same for every household, and Lowe and Young
+#: need a weight-reference period.
+HOUSEHOLD_FORMULAS: tuple[str, ...] = formulas_for("households")
+DEFAULT_FORMULAS: tuple[str, ...] = HOUSEHOLD_DEFAULT
 #: Families evaluated in closed form over the household axis.
 VECTORISED_FAMILIES: tuple[str, ...] = ("cobb_douglas", "ces", "stone_geary")
 DEFAULT_QUANTILES: tuple[float, ...] = (0.1, 0.25, 0.5, 0.75, 0.9)
