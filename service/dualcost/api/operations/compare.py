@@ -14,7 +14,7 @@ from typing import Any, Protocol
 from ...config import Settings
 from ...core.comparison import Comparison, compare_budgets
 from ...core.errors import NumericalFailure
-from ...core.indices import FORMULAS
+from ...core.indices import REGISTRY, formulas_for
 from ...core.preferences import Preferences
 from ..inputs.items import ItemAxis
 from ..inputs.locator import Form, Locator, Place
@@ -167,7 +167,7 @@ def document(outcome: Outcome) -> dict[str, Any]:
             "utility_base": st.base, "utility_current": st.current,
             "utility_reference": st.reference,
         },
-        "formulas": [{"formula": f.name, "title": FORMULAS[f.name].title, "value": f.value,
+        "formulas": [{"formula": f.name, "title": REGISTRY[f.name].title, "value": f.value,
                       "compared_with": f.target, "konus": f.konus, "bias_points": f.bias_points,
                       "bias_percent": f.bias_percent} for f in r.formulas.values()],
         "laspeyres_gap_points": None if lasp is None else 100.0 * (lasp.value - r.konus.base),
@@ -240,8 +240,8 @@ def measure(outcome: Outcome, name: str) -> float | None:
 #: (none needs a weight-reference period, which the forms cannot carry).
 MEASURES: tuple[str, ...] = (
     "konus_base", "konus_current", "konus_midpoint", "konus_reference",
-    *(name for name, f in FORMULAS.items()
-      if not {"weight_quantities", "weight_shares"} & set(f.needs)),
+    *(name for name in formulas_for("comparison")
+      if not {"weight_quantities", "weight_shares"} & set(REGISTRY[name].needs)),
     "laspeyres_bias_points", "compensating_variation", "equivalent_variation",
     "compensated_income",
 )

@@ -4,7 +4,7 @@ from __future__ import annotations
 
 from fastapi import APIRouter
 
-from ...core.indices import FORMULAS
+from ...core.indices import REGISTRY
 from ...core.preferences import FAMILIES
 from ..routing import JsonRoute
 from ..schemas.catalogue import FamilyOut, FormulaInfoOut, ParameterOut
@@ -27,9 +27,13 @@ def list_families() -> list[FamilyOut]:
 @router.get("/index-formulas", operation_id="listIndexFormulas",
             response_model=list[FormulaInfoOut])
 def list_formulas() -> list[FormulaInfoOut]:
-    """The formula indices, which Konüs index each is compared with, and sources."""
+    """The formula indices, which Konüs index each is compared with, which operations compute
+    each one, and sources (one registry serves every operation)."""
     return [
         FormulaInfoOut(formula=f.name, title=f.title, source=f.source, compared_with=f.target,
-                       needs=list(f.needs), superlative=f.superlative)
-        for f in FORMULAS.values()
+                       needs=list(f.needs), superlative=f.superlative, symmetric=f.symmetric,
+                       weighted=f.weighted,
+                       operations=[s for s in ("comparison", "series", "households")
+                                   if s in f.scopes])
+        for f in REGISTRY.values()
     ]

@@ -31,3 +31,7 @@ class FormulaInfoOut(StrictModel):
     compared_with: Literal["base", "current", "midpoint"]
     needs: list[str] = Field(description="Optional inputs the formula cannot do without.")
     superlative: bool
+    symmetric: bool = Field(description="Treats the two periods alike (time reversal).")
+    weighted: bool = Field(description="False for the unweighted elementary formulas.")
+    operations: list[str] = Field(description="Which operations compute it: comparison, series, "
+                                  "households.")

@@ -6,11 +6,11 @@ from typing import Any, Literal
 
 from pydantic import Field, model_validator
 
-from ...core.indices import FORMULAS
+from ...core.indices import formulas_for
 from .common import CAUTION, SIGN_CONVENTION, FiniteFloat, ItemIn, NoticeOut, StrictModel, VectorIn
 from .model import ModelSpec
 
-FormulaName = Literal[tuple(FORMULAS)]  # type: ignore[valid-type]
+FormulaName = Literal[formulas_for("comparison")]  # type: ignore[valid-type]
 
 
 class BaseIn(StrictModel):

@@ -7,11 +7,12 @@ from typing import Literal
 
 from pydantic import Field, model_validator
 
-from ...core.households import DEFAULT_QUANTILES, HOUSEHOLD_FORMULAS
+from ...core.households import DEFAULT_QUANTILES
+from ...core.indices import formulas_for
 from .common import FiniteFloat, ItemIn, NoticeOut, StrictModel, VectorIn
 from .model import ModelSpec
 
-HouseholdFormula = Literal[HOUSEHOLD_FORMULAS]  # type: ignore[valid-type]
+HouseholdFormula = Literal[formulas_for("households")]  # type: ignore[valid-type]
 
 
 class PeriodPricesIn(StrictModel):

@@ -7,11 +7,11 @@ from typing import Annotated, Any, Literal
 
 from pydantic import Field, model_validator
 
-from ...core.series import SERIES_FORMULAS
+from ...core.indices import formulas_for
 from .common import FiniteFloat, ItemIn, NoticeOut, StrictModel, VectorIn
 from .model import ModelSpec
 
-SeriesFormula = Literal[tuple(SERIES_FORMULAS)]  # type: ignore[valid-type]
+SeriesFormula = Literal[formulas_for("series")]  # type: ignore[valid-type]
 PeriodLabel = Annotated[str | int, Field(description="A period label: YYYY-MM, YYYY-Qn, YYYY, an "
                                          "integer, or any other text.")]
 Cell = FiniteFloat | None
