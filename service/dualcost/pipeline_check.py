@@ -65,10 +65,10 @@ def panel_from_file(path: Path) -> dict[str, Any]:
     """The panel as the JSON body of POST /v1/index-series."""
     text = path.read_text(encoding="utf-8")
     if path.suffix.lower() == ".json":
-        body = json.loads(text)
-        if not isinstance(body, dict):
+        given = json.loads(text)
+        if not isinstance(given, dict):
             raise CheckInputError(f"{path}: expected a JSON object with periods, items and prices")
-        return body
+        return given
     from .api.problems import RequestProblem
 
     try:

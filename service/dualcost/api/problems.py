@@ -16,7 +16,7 @@ from typing import Any
 
 from fastapi import FastAPI, Request
 from fastapi.exceptions import RequestValidationError
-from fastapi.responses import JSONResponse, PlainTextResponse
+from fastapi.responses import JSONResponse, PlainTextResponse, Response
 from starlette.exceptions import HTTPException as StarletteHTTPException
 from starlette.types import Send
 
@@ -214,7 +214,7 @@ def rule_of(err: Mapping[str, Any]) -> str:
     return str(err.get("msg", "is not valid"))
 
 
-async def _on_validation_error(request: Request, exc: RequestValidationError) -> JSONResponse:
+async def _on_validation_error(request: Request, exc: RequestValidationError) -> Response:
     raw = exc.errors()
     if any(e.get("type") == "json_invalid" for e in raw):
         ctx = next(e for e in raw if e.get("type") == "json_invalid").get("ctx", {})

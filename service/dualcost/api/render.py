@@ -18,7 +18,7 @@ import csv
 import io
 import math
 from collections.abc import Iterable, Iterator, Sequence
-from typing import Any, Literal
+from typing import Any, Literal, TypeVar
 
 import orjson
 from fastapi import Request
@@ -26,6 +26,7 @@ from fastapi.responses import PlainTextResponse, Response, StreamingResponse
 
 from ..core.errors import NumericalFailure
 
+T = TypeVar("T")
 JSON_MEDIA_TYPE = "application/json"
 CSV_MEDIA_TYPE = "text/csv"
 CSV_CONTENT_TYPE = "text/csv; charset=utf-8"
@@ -105,7 +106,7 @@ def all_finite(value: Any) -> bool:
     return True
 
 
-def finite(document: Any, what: str) -> Any:
+def finite(document: T, what: str) -> T:
     """``document`` when every number in it is finite; otherwise the evaluation failed."""
     if not all_finite(document):
         raise NumericalFailure(what, "a result is not a finite number: the inputs are beyond "

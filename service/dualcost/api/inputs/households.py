@@ -18,7 +18,8 @@ import numpy as np
 from numpy.typing import NDArray
 
 from ...core import _checks
-from ...core.households import HouseholdChunk, HouseholdJob, RowProblem, check_quantiles
+from ...core.errors import RowProblem
+from ...core.households import HouseholdChunk, HouseholdJob, check_quantiles
 from ..problems import FieldError, RequestProblem
 from ..schemas.households import HouseholdIndicesRequest, HouseholdJobSpec
 from .csv import NUMBER_RULE, parse_number
@@ -29,6 +30,7 @@ from .model import core_parameters
 ID_COLUMN, EXPENDITURE_COLUMN, WEIGHT_COLUMN = "household", "expenditure", "weight"
 RESERVED_COLUMNS = (ID_COLUMN, EXPENDITURE_COLUMN, WEIGHT_COLUMN)
 Array = NDArray[np.float64]
+VectorGiven = list[float] | dict[str, float]
 
 #: Where a refused row's field is: in a JSON body, and in a CSV upload's columns.
 ROW_PLACES: dict[str, Place] = {
@@ -51,8 +53,9 @@ def job_of(spec: HouseholdJobSpec, loc: Locator, *, max_items: int, max_tree_dep
     p0 = axis.vector(loc, "p0", spec.base_prices)
     with loc.translating():
         _checks.positive("p0", p0)
-    given = ([("/current_prices", spec.current_prices)] if spec.periods is None else
-             [(f"/periods/{t}/prices", p.prices) for t, p in enumerate(spec.periods)])
+    given: list[tuple[str, VectorGiven]] = (
+        [("/current_prices", spec.current_prices)] if spec.current_prices is not None else
+        [(f"/periods/{t}/prices", p.prices) for t, p in enumerate(spec.periods or [])])
     rows = []
     for where, value in given:
         loc.add("p1", Place(where, shape="items", names_item=True))
@@ -213,7 +216,7 @@ class _ChunkReader:
         shares = np.array(self.values, dtype=np.float64)
         refused = {p.row for p in self.problems if p.field == "row"}
         bad_cells = ~np.isfinite(shares)
-        for k in np.flatnonzero(bad_cells.any(axis=1)):
+        for k in map(int, np.flatnonzero(bad_cells.any(axis=1))):
             if self.rows[k] in refused:
                 continue
             i = int(np.argmax(bad_cells[k]))

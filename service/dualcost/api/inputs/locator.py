@@ -24,8 +24,7 @@ from contextlib import contextmanager
 from dataclasses import dataclass, field
 from typing import Any, Literal
 
-from ...core.errors import InvalidInput
-from ...core.households import InvalidRows, RowProblem
+from ...core.errors import InvalidInput, InvalidRows, RowProblem
 from ..problems import FieldError, RequestProblem
 
 Form = Literal["json", "query", "csv"]

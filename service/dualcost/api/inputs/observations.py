@@ -142,11 +142,11 @@ def _labels(given: Sequence[str | int] | None, n_obs: int) -> list[str]:
 
 
 def _csv_kind(columns: dict[str, int]) -> tuple[list[str], str]:
-    keys = [c for c in ("observation", "period") if c in columns]
+    keys: list[str] = [c for c in ("observation", "period") if c in columns]
     if not keys:
         raise RequestProblem.at("#row=1", "the header needs a column 'observation' (a household "
                                 "id) or 'period', or both")
-    kinds = [c for c in ("share", "expenditure", "quantity") if c in columns]
+    kinds: list[str] = [c for c in ("share", "expenditure", "quantity") if c in columns]
     if len(kinds) != 1:
         raise RequestProblem.at("#row=1", "the header needs exactly one spending column: 'share' "
                                 "(with 'total_expenditure'), 'expenditure' or 'quantity'; it has "

@@ -94,10 +94,11 @@ def run(data: Observations, spec: FitModelIn, options: Options, settings: Settin
     tree = None if spec.tree is None else ItemIdTree(spec.tree, data.axis.position,
                                                      settings.max_tree_depth)
     with computing(operation, settings), loc.translating():
-        if data.shares is not None:
+        if data.shares is not None and data.total is not None:
             panel = Panel.checked(data.prices, data.shares, data.total, data.weights,
                                   normalise=options.normalise_shares)
         else:
+            assert data.spending is not None
             panel = Panel.from_spending(data.prices, data.spending, data.weights)
         result = fit(
             panel, spec.family, estimator=spec.estimator, restrictions=spec.restrictions,

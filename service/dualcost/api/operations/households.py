@@ -93,7 +93,7 @@ def scheduler_for(engine: str, rows: int | None, settings: Settings, loc: Locato
 
 
 def evaluate(job: HouseholdJob, chunks: Iterator[HouseholdChunk], scheduler: Any,
-             settings: Settings) -> Iterator[ChunkResult]:
+             settings: Settings) -> Iterable[ChunkResult]:
     """The chunks' results in order, in this process or on the cluster at ``scheduler``."""
     if scheduler is None:
         return evaluate_locally(job, chunks)
