@@ -278,31 +278,35 @@ class Preferences(abc.ABC):
     # -- the dual quartet, public: they broadcast ---------------------------------------------
     def expenditure(self, prices: npt.ArrayLike, utility: npt.ArrayLike) -> Values:
         """e(p, u): the least expenditure reaching living standard ``utility`` at ``prices``."""
-        if type(utility) is float and _one_vector(self, prices):
-            return float(self._expenditure(prices, utility))  # type: ignore[arg-type]
+        if type(utility) is float and type(prices) is np.ndarray and prices.ndim == 1 \
+                and not self.batch_shape:  # one price vector, one float: the hot path
+            return float(self._expenditure(prices, utility))
         return self._broadcast("_expenditure", False, prices, utility)
 
     def indirect_utility(self, prices: npt.ArrayLike, income: npt.ArrayLike) -> Values:
         """v(p, m): the living standard that ``income`` buys at ``prices``."""
-        if type(income) is float and _one_vector(self, prices):
-            return float(self._indirect_utility(prices, income))  # type: ignore[arg-type]
+        if type(income) is float and type(prices) is np.ndarray and prices.ndim == 1 \
+                and not self.batch_shape:  # one price vector, one float: the hot path
+            return float(self._indirect_utility(prices, income))
         return self._broadcast("_indirect_utility", False, prices, income)
 
     def marshallian(self, prices: npt.ArrayLike, income: npt.ArrayLike) -> Values:
         """x(p, m): the demanded quantities at ``prices`` and ``income``, shape ``(..., N)``."""
-        if type(income) is float and _one_vector(self, prices):
-            return self._marshallian(prices, income)  # type: ignore[arg-type]
+        if type(income) is float and type(prices) is np.ndarray and prices.ndim == 1 \
+                and not self.batch_shape:
+            return self._marshallian(prices, income)
         return self._broadcast("_marshallian", True, prices, income)
 
     def hicksian(self, prices: npt.ArrayLike, utility: npt.ArrayLike) -> Values:
         """h(p, u) = grad_p e(p, u), the least-cost bundle, shape ``(..., N)``."""
-        if type(utility) is float and _one_vector(self, prices):
-            return self._hicksian(prices, utility)  # type: ignore[arg-type]
+        if type(utility) is float and type(prices) is np.ndarray and prices.ndim == 1 \
+                and not self.batch_shape:
+            return self._hicksian(prices, utility)
         return self._broadcast("_hicksian", True, prices, utility)
 
     def income_floor(self, prices: npt.ArrayLike) -> Values:
         """The least income at which the family is defined at ``prices`` (0 for most)."""
-        if _one_vector(self, prices):
+        if type(prices) is np.ndarray and prices.ndim == 1 and not self.batch_shape:
             return float(self._income_floor(prices))  # type: ignore[arg-type]
         return self._broadcast("_income_floor", False, prices)
 
@@ -337,13 +341,7 @@ class Preferences(abc.ABC):
             raise InvalidInput("prices", f"must end with an axis of {self.n_items} prices, one per "
                                f"item; got shape {p.shape}")
         values = [np.asarray(v, dtype=np.float64) for v in numbers]
-        try:
-            shape = np.broadcast_shapes(p.shape[:-1], *(v.shape for v in values),
-                                        self.batch_shape)
-        except ValueError:
-            raise InvalidInput("prices", "the leading axes of the prices "
-                               f"{p.shape[:-1]}, of the numbers {[v.shape for v in values]} and "
-                               f"of the model {self.batch_shape} do not broadcast") from None
+        shape = _leading_shape(p.shape[:-1], *(v.shape for v in values), self.batch_shape)
         want = (*shape, self.n_items) if items else shape
         if self.broadcasts:
             args = [float(v) if v.ndim == 0 else v for v in values]
@@ -377,13 +375,12 @@ class Preferences(abc.ABC):
         """A family with ``broadcasts`` gives the model of the households ``rows``."""
         raise NotImplementedError(f"the {self.family} family does not select households")
 
-    def _remember(self, prices: Vector, compute: Callable[[Vector], _T], what: str = "") -> _T:
-        """``compute(prices)``, remembered for the last few price arrays (``what`` tells apart
-        several things remembered): a comparison asks for the same two or three price vectors
-        many times, and for a large tree one evaluation costs more than the rest of the
-        comparison."""
-        key: Any = (what, prices.shape, prices.tobytes())
-        cache: dict[Any, Any] = self.__dict__.setdefault("_evaluations", {})
+    def _remember(self, prices: Vector, compute: Callable[[Vector], _T]) -> _T:
+        """``compute(prices)``, remembered for the last few price arrays: a comparison asks for
+        the same two or three price vectors many times, and for a large tree one evaluation
+        costs more than the rest of the comparison."""
+        key: Any = prices.tobytes() if prices.ndim == 1 else (prices.shape, prices.tobytes())
+        cache: dict[Any, Any] = self.__dict__.setdefault("_remembered", {})
         found = cache.get(key)
         if found is None:
             found = compute(prices)
@@ -464,6 +461,19 @@ class Preferences(abc.ABC):
         return out
 
 
+def _leading_shape(*shapes: tuple[int, ...]) -> tuple[int, ...]:
+    """The broadcast of the leading axes; the common case, one shape or none, without numpy's
+    general rule (a speed trick: the households call this a dozen times per block)."""
+    given = {shape for shape in shapes if shape}
+    if len(given) <= 1:
+        return given.pop() if given else ()
+    try:
+        return tuple(np.broadcast_shapes(*shapes))
+    except ValueError:
+        raise InvalidInput("prices", f"the leading axes of the prices, the numbers and the model "
+                           f"{list(shapes)} do not broadcast") from None
+
+
 def _one_vector(model: Preferences, prices: Any) -> bool:
     """One price vector for a model without a household axis: the hot path."""
     return type(prices) is np.ndarray and prices.ndim == 1 and not model.batch_shape
@@ -515,45 +525,46 @@ class HomotheticPreferences(Preferences):
             return float(cost), shares
         return self.unit_cost(prices), self.budget_shares(prices)
 
-    # c(p) and w(p) are remembered (Preferences._remember), each when first asked for: the
-    # households path needs only the cost at base prices. A family with ``one_pass`` gets both
-    # at once whenever one is asked for.
-    def _cost(self, prices: Vector) -> Any:
-        if self.one_pass:
-            return self._remember(prices, self._both, "cost and shares")[0]
-        return self._remember(prices, self._cost_number, "cost")
-
-    def _shares(self, prices: Vector) -> Any:
-        if self.one_pass:
-            return self._remember(prices, self._both, "cost and shares")[1]
-        return self._remember(prices, self._frozen_shares, "shares")
-
-    def _cost_number(self, prices: Vector) -> Any:
-        cost = self._unit_cost(prices)
-        return float(cost) if np.ndim(cost) == 0 else np.asarray(cost)
-
-    def _frozen_shares(self, prices: Vector) -> Any:
-        shares = np.asarray(self._budget_shares(prices), dtype=np.float64)
-        shares.setflags(write=False)
-        return shares
-
-    def _both(self, prices: Vector) -> tuple[Any, Any]:
-        cost, shares = self._cost_and_shares(prices)
-        shares = np.asarray(shares, dtype=np.float64)
-        shares.setflags(write=False)
-        return (float(cost) if np.ndim(cost) == 0 else np.asarray(cost)), shares
+    def _evaluated(self, prices: Vector, shares: bool) -> list[Any]:
+        """``[c(p), w(p)]``, remembered for the last few price arrays (see
+        :meth:`Preferences._remember`), the shares (read-only) only once asked for: the
+        households need only the cost at base prices. A family with ``one_pass`` gets both
+        whenever one is asked for."""
+        key = prices.tobytes() if prices.ndim == 1 else (prices.shape, prices.tobytes())
+        cache: dict[Any, list[Any]] = self.__dict__.setdefault("_evaluations", {})
+        entry = cache.get(key)
+        if entry is None:
+            if len(cache) >= _REMEMBERED:
+                cache.clear()
+            entry = cache[key] = [None, None]
+        if entry[0] is None or (shares and entry[1] is None):
+            if self.one_pass:
+                entry[0], entry[1] = self._cost_and_shares(prices)
+            elif entry[0] is None:
+                entry[0] = self._unit_cost(prices)
+            if shares and entry[1] is None:
+                entry[1] = self._budget_shares(prices)
+            if not isinstance(entry[0], np.ndarray) or entry[0].ndim == 0:
+                entry[0] = float(entry[0])
+            if entry[1] is not None:
+                entry[1] = np.asarray(entry[1], dtype=np.float64)
+                entry[1].setflags(write=False)
+        return entry
 
     def _expenditure(self, prices: Vector, utility: Any) -> Any:
-        return utility * self._cost(prices)
+        return utility * self._evaluated(prices, False)[0]
 
     def _indirect_utility(self, prices: Vector, income: Any) -> Any:
-        return income / self._cost(prices)
+        return income / self._evaluated(prices, False)[0]
 
     def _marshallian(self, prices: Vector, income: Any) -> Any:
-        return _per_item(income) * self._shares(prices) / prices
+        m = income if isinstance(income, float) else np.asarray(income)[..., None]
+        return m * self._evaluated(prices, True)[1] / prices
 
     def _hicksian(self, prices: Vector, utility: Any) -> Any:
-        return _per_item(utility * self._cost(prices)) * self._shares(prices) / prices
+        cost, shares = self._evaluated(prices, True)
+        e = utility * cost
+        return (e if isinstance(e, float) else np.asarray(e)[..., None]) * shares / prices
 
 
 def share_notices(shares: Vector, model: str) -> list[Notice]:

@@ -19,7 +19,7 @@ from typing import Any
 import numpy as np
 from numpy.typing import NDArray
 
-from .base import BaseBudget, BatchCalibration, HomotheticPreferences, Vector
+from .base import BaseBudget, BatchCalibration, HomotheticPreferences, Vector, _per_item
 
 
 class CobbDouglas(HomotheticPreferences):
@@ -56,6 +56,9 @@ class CobbDouglas(HomotheticPreferences):
 
     def _unit_cost(self, prices: Vector) -> Any:
         """c(p) = prod_i (p_i / p0_i)^(a_i); c(p0) = 1."""
+        if np.array_equal(prices, self.reference_prices):
+            # exp(0) = 1, bit for bit, without a pass over the items of every household.
+            return np.ones(self.batch_shape) if self.batch_shape else 1.0
         log_rel = np.log(prices) - self._log_p_ref
         if self.batch_shape:
             return np.exp(np.sum(self.shares * log_rel, axis=-1))
@@ -66,6 +69,14 @@ class CobbDouglas(HomotheticPreferences):
     def _budget_shares(self, prices: Vector) -> Vector:
         """w(p) = a at every price: the budget shares are constant."""
         return self.shares.copy()
+
+    def _marshallian(self, prices: Vector, income: Any) -> Any:
+        """x_i(p, m) = a_i m / p_i: the shares are the exponents, with no copy to remember."""
+        return _per_item(income) * self.shares / prices
+
+    def _hicksian(self, prices: Vector, utility: Any) -> Any:
+        """h_i(p, u) = a_i e(p, u) / p_i."""
+        return _per_item(utility * self._evaluated(prices, False)[0]) * self.shares / prices
 
     def direct_utility(self, quantities: Vector) -> float:
         used = self.shares > 0.0

@@ -235,11 +235,14 @@ class StoneGeary(Preferences):
     def _price_aggregates(self, prices: Vector) -> tuple[Any, Any]:
         log_rel = np.log(prices) - self._log_p_ref
         if self.batch_shape:  # per-household parameters: sums along the item axis
-            return (np.sum(self.subsistence * prices, axis=-1),
-                    np.exp(np.sum(self.marginal_shares * log_rel, axis=-1)))
-        if prices.ndim > 1:
-            return prices @ self.subsistence, np.exp(log_rel @ self.marginal_shares)
-        return float(prices @ self.subsistence), float(np.exp(self.marginal_shares @ log_rel))
+            floor = np.sum(self.subsistence * prices, axis=-1)
+            if np.array_equal(prices, self.reference_prices):
+                # B(p0) = exp(0) = 1, bit for bit, without a pass over every household's items.
+                return floor, np.ones(self.batch_shape)
+            return floor, np.exp(np.sum(self.marginal_shares * log_rel, axis=-1))
+        if prices.ndim == 1:
+            return float(prices @ self.subsistence), float(np.exp(self.marginal_shares @ log_rel))
+        return prices @ self.subsistence, np.exp(log_rel @ self.marginal_shares)
 
     def price_index(self, prices: Vector) -> Any:
         """B(p) = prod_i (p_i / p0_i)^beta_i, the price of supernumerary utility; B(p0) = 1."""
