@@ -32,6 +32,7 @@ import numpy as np
 from _timing import median_seconds  # benchmarks/, on the path when run as a script
 
 from dualcost.core.households import HouseholdJob, chunks_of, evaluate_chunk, run_households
+from dualcost.engines.dask import cluster_evaluator
 
 HOUSEHOLDS, ITEMS, SIGMA = 10_000, 200, 0.7
 FORMULAS = ["laspeyres", "paasche", "fisher", "tornqvist"]
@@ -112,7 +113,8 @@ def on_cluster(s: dict[str, Any], job: HouseholdJob, local: Any) -> list[str]:
 
             def remote(j: HouseholdJob = the_job, w: Any = w, m: Any = m,
                        k: int = per_task) -> Any:
-                return run_households(j, w, expenditure=m, scheduler=client, chunks_per_task=k)
+                return run_households(j, w, expenditure=m, engine="cluster",
+                                      evaluate=cluster_evaluator(client, chunks_per_task=k))
 
             t_there = median_seconds(remote, repeat)
             got = remote()

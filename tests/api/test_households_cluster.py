@@ -17,7 +17,7 @@ from fastapi.testclient import TestClient
 
 from dualcost.api.app import create_app
 from dualcost.config import Settings
-from dualcost.core import cluster
+from dualcost.engines import dask as dask_engine
 from tests.api.test_households import create_job, household_csv, upload
 from tests.conftest import EXAMPLES, load_example
 
@@ -76,7 +76,7 @@ def test_csv_job_streams_the_same_bytes_from_the_cluster(with_cluster: TestClien
 
 def test_unreachable_scheduler_is_a_503(monkeypatch: pytest.MonkeyPatch) -> None:
     """A scheduler that does not answer gives 503 Service Unavailable (RFC 9110, 15.6.4)."""
-    monkeypatch.setattr(cluster, "CONNECT_TIMEOUT", 0.5)
+    monkeypatch.setattr(dask_engine, "CONNECT_TIMEOUT", 0.5)
     # Port 9 (discard) on the loopback interface: nothing listens there.
     app = create_app(Settings(examples_dir=EXAMPLES, dask_scheduler="tcp://127.0.0.1:9"))
     client = TestClient(app)

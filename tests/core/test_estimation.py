@@ -4,6 +4,8 @@ the errors for bad data."""
 
 from __future__ import annotations
 
+from typing import Any
+
 import numpy as np
 import pytest
 from numpy.testing import assert_allclose
@@ -12,9 +14,15 @@ from scipy import stats
 from dualcost.core.errors import InvalidInput, NumericalFailure
 from dualcost.core.estimation import Panel, fit
 from dualcost.core.estimation.almost_ideal import AlmostIdealShares
-from dualcost.core.estimation.ces import CESShares, NestedCESShares, parse_tree
+from dualcost.core.estimation.ces import CESShares, GroupTree, NestedCESShares
+from dualcost.core.estimation.estimator import FITTED_SYSTEMS, fitted_system
 from dualcost.core.estimation.les import LinearExpenditureShares
-from dualcost.core.estimation.system import ShareSystem, central_jacobian, fit_system
+from dualcost.core.estimation.system import (
+    FitOptions,
+    ShareSystem,
+    central_jacobian,
+    fit_system,
+)
 from dualcost.core.preferences.aids import AIDS, QUAIDS
 
 TREE = {"name": "all", "children": [{"name": "food", "children": [0, 1]},
@@ -38,7 +46,7 @@ def _simulate(system: ShareSystem, theta: np.ndarray, seed: int, t_obs: int,
 
 CASES = {
     "ces": (CESShares(3), np.array([0.7, 0.3, -0.2]), {}),
-    "nested_ces": (NestedCESShares(parse_tree(TREE, 4)),
+    "nested_ces": (NestedCESShares(GroupTree.parse(TREE, 4)),
                    np.array([0.4, 1.6, 0.8, 0.2, 0.1, -0.3]), {"tree": TREE}),
     "stone_geary": (LinearExpenditureShares(3), np.array([0.5, 0.4, 0.25, 0.3, 0.5]), {}),
     "aids": (AlmostIdealShares(3), np.array([0.3, 0.2, -0.05, 0.02, 0.05, -0.02, 0.04]), {}),
@@ -341,8 +349,45 @@ def test_options_that_do_not_apply_and_bad_trees_are_refused() -> None:
         assert info.value.parameter == "tree" and words in info.value.rule
 
 
+# Where each option applies, as the service documents it (docs of /v1/fits); the words of the
+# refusal have not changed since the options arrived.
+OPTION_CASES = [
+    ("estimator", "linear_approximate", ("aids", "quaids"), "the aids and quaids families"),
+    ("restrictions", "none", ("aids", "quaids"), "the aids and quaids families"),
+    ("price_terms", False, ("aids", "quaids"), "the aids and quaids families"),
+    ("alpha0", 0.5, ("aids", "quaids"), "the aids and quaids families"),
+    ("quadratic", True, ("aids", "quaids"), "the aids family"),
+    ("tree", {"children": [0, 1, 2]}, ("nested_ces",), "the nested_ces family"),
+]
+
+
+@pytest.mark.parametrize(("option", "value", "takers", "where"), OPTION_CASES)
+def test_each_family_takes_its_own_options_and_refuses_the_others(option: str, value: Any,
+                                                                  takers: tuple[str, ...],
+                                                                  where: str) -> None:
+    """Every fitted family builds its share system from the options it takes and refuses any
+    other with one sentence naming where the option applies (common practice for input
+    checks); QUAIDS takes ``quadratic`` as a repetition of what it is."""
+    options = FitOptions(**{option: value})
+    for family, system_class in FITTED_SYSTEMS.items():
+        assert system_class.family == family
+        if family in takers:
+            if option == "estimator" and family == "quaids":
+                continue  # QUAIDS has one estimator; its own check refuses the other
+            assert fitted_system(family, 3, options).family == (
+                "quaids" if option == "quadratic" else family)
+        else:
+            with pytest.raises(InvalidInput) as info:
+                fitted_system(family, 3, options)
+            assert (info.value.parameter, info.value.rule) == (
+                option, f"applies only to {where}, not {family}")
+    with pytest.raises(InvalidInput, match="cannot fit family 'translog'; the fitted families "
+                       "are ces, nested_ces, stone_geary, aids, quaids"):
+        fitted_system("translog", 3, FitOptions())
+
+
 def test_nested_tree_groups_are_numbered_in_the_order_listed() -> None:
-    tree = parse_tree({"children": [{"name": "a", "children": [0, {"name": "b", "children":
+    tree = GroupTree.parse({"children": [{"name": "a", "children": [0, {"name": "b", "children":
                                                                     [1, 2]}]},
                                     {"name": "c", "children": [3, 4]}]}, 5)
     assert tree.names == ("all items", "a", "b", "c")

@@ -14,10 +14,9 @@ from numpy.testing import assert_allclose
 from scipy.optimize import minimize
 
 from dualcost.core.comparison import compare
-from dualcost.core.errors import InvalidInput
+from dualcost.core.errors import InvalidInput, InvalidRows
 from dualcost.core.households import (
     HouseholdJob,
-    InvalidRows,
     run_households,
     weighted_quantiles,
 )

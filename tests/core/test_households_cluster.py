@@ -1,4 +1,4 @@
-"""The Dask path (dualcost.core.cluster) against the in-process path: the same bits.
+"""The Dask engine (dualcost.engines.dask) against the in-process path: the same bits.
 
 A LocalCluster of two in-process workers (dask.distributed's own test set-up) runs the same job
 partitioned over households; every output column and every summary must be identical, not
@@ -17,6 +17,7 @@ import numpy as np
 import pytest
 
 from dualcost.core.households import HouseholdJob, HouseholdResults, run_households
+from dualcost.engines.dask import cluster_evaluator
 
 
 @pytest.fixture(scope="module")
@@ -64,7 +65,8 @@ def test_cluster_and_in_process_agree_exactly(client: Any, family: str,
     job = HouseholdJob.checked(family, params, p0, series, chunk_rows=64)
     here = run_households(job, w, expenditure=m, weights=a, ids=ids, on_bad_rows="skip")
     there = run_households(job, w, expenditure=m, weights=a, ids=ids, on_bad_rows="skip",
-                           scheduler=client, chunks_per_task=3)
+                           evaluate=cluster_evaluator(client, chunks_per_task=3),
+                           engine="cluster")
     assert here.engine == "local" and there.engine == "cluster"
     assert here.skipped.count == 1
     _assert_identical(here, there)
@@ -77,12 +79,13 @@ def test_cluster_by_address(client: Any) -> None:
     w = rng.dirichlet(np.ones(5), 50)
     job = HouseholdJob.checked("cobb_douglas", {}, p0, p0 * 1.1, chunk_rows=16)
     address = client.scheduler.address
-    _assert_identical(run_households(job, w), run_households(job, w, scheduler=address))
+    _assert_identical(run_households(job, w),
+                      run_households(job, w, evaluate=cluster_evaluator(address), engine="cluster"))
 
 
 def test_dask_is_imported_only_when_used() -> None:
     """The service runs without Dask: importing the household core loads no part of it."""
-    code = ("import sys, dualcost.core.households, dualcost.core.cluster, dualcost.api.app; "
+    code = ("import sys, dualcost.core.households, dualcost.engines.dask, dualcost.api.app; "
             "bad = [m for m in ('dask', 'distributed') if m in sys.modules]; print(bad); "
             "sys.exit(1 if bad else 0)")
     done = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True)

@@ -21,7 +21,7 @@ from hypothesis import strategies as st
 from numpy.testing import assert_allclose
 
 from dualcost.core._means import log_mean, log_power_mean, power_mean_shares
-from dualcost.core.indices import FORMULAS, IndexData
+from dualcost.core.indices import FORMULAS, IndexData, matched_sample
 
 deterministic = settings(derandomize=True, max_examples=100, deadline=None, database=None)
 
@@ -129,6 +129,44 @@ def test_marshall_edgeworth_depends_on_relative_quantity_scale() -> None:
                   np.array([0.5, 1.0]))
     assert_allclose(value("marshall_edgeworth", d), 1.5, rtol=RTOL)
     assert_allclose(value("marshall_edgeworth", replace(d, q0=2.0 * d.q0)), 6.5 / 4.5, rtol=RTOL)
+
+
+# -- items that come and go ----------------------------------------------------------------------
+
+
+@deterministic
+@given(index_data(), st.lists(st.booleans(), min_size=7, max_size=7))
+def test_matched_sample_is_the_formula_over_the_matched_items_alone(
+    d: IndexData, keep: list[bool]
+) -> None:
+    """Over a matched sample each formula equals the same formula over the matched items alone,
+    the earlier shares rescaled to sum to one over them (the matched-sample rule; CPI Manual
+    2004, ch. 20 for the unweighted formulas, ch. 15 for the basket ones)."""
+    both = np.array(keep[: d.p0.size])
+    both[0] = True  # at least one matched item
+    over = matched_sample(d.p0, d.p1, d.q0, d.q1, both, weight_quantities=d.weight_quantities,
+                          weight_shares=d.weight_shares, sigma=d.sigma)
+    assert d.weight_shares is not None and d.weight_quantities is not None
+    wb = d.weight_shares[both] / d.weight_shares[both].sum()
+    alone = IndexData(d.p0[both], d.p1[both], d.q0[both], d.q1[both],
+                      weight_quantities=d.weight_quantities[both], weight_shares=wb, sigma=d.sigma)
+    for name in FORMULAS:
+        assert_allclose(value(name, over), value(name, alone), rtol=1e-13, atol=0.0,
+                        err_msg=name)
+
+
+def test_sato_vartia_over_a_matched_sample_gives_a_zero_share_no_weight() -> None:
+    """Where an item's share is zero in one period its logarithmic-mean weight L(w, 0) = 0 (the
+    limit, Carlson 1972), so only the other items' relatives count, with weights
+    L(w1_i, w0_i) = (w1_i - w0_i) / (ln w1_i - ln w0_i) normalised to sum to one (Sato 1976;
+    Vartia 1976), worked out here by hand."""
+    p0, p1 = np.array([1.0, 2.0, 4.0]), np.array([1.5, 2.2, 3.0])
+    q0, q1 = np.array([2.0, 1.0, 0.0]), np.array([1.0, 3.0, 2.0])
+    over = matched_sample(p0, p1, q0, q1, np.ones(3, dtype=bool))
+    w0, w1 = p0 * q0 / (p0 @ q0), p1 * q1 / (p1 @ q1)
+    lm = (w1[:2] - w0[:2]) / (np.log(w1[:2]) - np.log(w0[:2]))
+    expected = np.exp(lm @ np.log(p1[:2] / p0[:2]) / lm.sum())
+    assert_allclose(value("sato_vartia", over), expected, rtol=1e-14)
 
 
 # -- time reversal ------------------------------------------------------------------------------

@@ -19,7 +19,13 @@ from dualcost.core.errors import InvalidInput
 from dualcost.core.preferences import FAMILIES, BaseBudget, calibrate
 from dualcost.core.preferences.base import slutsky_notices
 from dualcost.core.preferences.ces import CES
-from dualcost.core.preferences.nested_ces import NestedCES
+from dualcost.core.preferences.nested_ces import (
+    FIT_TREE,
+    MODEL_TREE,
+    ItemIdTree,
+    NestedCES,
+    parse_tree,
+)
 
 from .numeric_helpers import central_derivative, central_jacobian, moved_prices, seeded_budget
 
@@ -439,6 +445,128 @@ def test_unnamed_group_path_and_self_containing_group() -> None:
     loop: dict[str, Any] = {"sigma": 1.0, "children": [0, 1, 2, 3, 4, 5, 6]}
     loop["children"].append(loop)
     assert "more than once" in _bad(loop).rule
+
+
+# -- where each error points ---------------------------------------------------------------------
+
+IDS = {"a": 0, "b": 1, "c": 2, "d": 3}
+
+
+def _group(*children: Any, **keys: Any) -> dict[str, Any]:
+    return {"sigma": 0.5, **keys, "children": list(children)}
+
+
+def _fit_group(*children: Any, **keys: Any) -> dict[str, Any]:
+    return {**keys, "children": list(children)}
+
+
+def _follow(tree: Any, path: tuple[int | str, ...]) -> Any:
+    """The value at ``path`` in ``tree``, or ``_DROP`` when the last key is missing."""
+    node = tree
+    for k, step in enumerate(path):
+        if isinstance(node, dict) and step not in node and k == len(path) - 1:
+            return _DROP
+        node = node[step]
+    return node
+
+
+# (form, tree with items by id, path of the error, words of its message, what is at the path);
+# one per kind of mistake. Pointing at the offending place itself is common practice for
+# input checks (as JSON Pointer does, RFC 6901).
+TREE_PLACES = [
+    pytest.param("model", ["a", "b", "c", "d"], (), "must be a group", ["a", "b", "c", "d"],
+                 id="root not a group"),
+    pytest.param("model", _group(_group("a", "b"), 2.5, "c", "d"), ("children", 1),
+                 "neither an item id nor a group", 2.5, id="child not a group"),
+    pytest.param("model", _group(_group("a", "b", colour="red"), "c", "d"),
+                 ("children", 0, "colour"), "unknown key(s) 'colour'", "red", id="unknown key"),
+    pytest.param("model", _group("a", "b", _group("c", sigma=-1.0), _group("d")),
+                 ("children", 2, "sigma"), "'all items > group #3' has sigma -1",
+                 -1.0, id="bad sigma"),
+    pytest.param("model", _group("a", "b", {"children": ["c"]}, "d"),
+                 ("children", 2, "sigma"), "'all items > group #3' has no sigma", _DROP,
+                 id="missing sigma"),
+    pytest.param("model", _group("a", "b", _group(), "c", "d"), ("children", 2, "children"),
+                 "'all items > group #3' has no children", [], id="empty children"),
+    pytest.param("model", _group(_group("a", "q"), "b", "c", "d"), ("children", 0, "children", 1),
+                 "lists 'q', which is not one of the items", "q", id="unknown item id"),
+    pytest.param("model", _group(_group("a", "b"), "c", _group("d", "b")),
+                 ("children", 2, "children", 1), "item 1 appears twice", "b", id="item twice"),
+    pytest.param("model", _group(_group("a", "b"), "c"), (), "item 3 is not in the tree",
+                 _group(_group("a", "b"), "c"), id="item missing"),
+    pytest.param("model", _group(_group(_group(_group("a"), "b"), "c"), "d"),
+                 ("children", 0, "children", 0, "children", 0),
+                 "deeper than the limit of 3 levels", _group("a"), id="too deep"),
+    pytest.param("model", _group(_group("a", "b", name="food"), _group("c", "d", name=" food")),
+                 ("children", 1, "name"), "two groups are named 'food'", " food",
+                 id="duplicate group name"),
+    pytest.param("model", _group(_group("a", "b", name=""), "c", "d"), ("children", 0, "name"),
+                 "non-empty text", "", id="empty name"),
+    pytest.param("fit", _fit_group(_fit_group("a", "b", sigma=0.5), "c", "d"),
+                 ("children", 0, "sigma"), "leave it out", 0.5, id="fit: sigma not allowed"),
+    pytest.param("fit", _fit_group(_fit_group("a", "b"), _fit_group("c"), "d"),
+                 ("children", 1, "children"), "'group 2' needs at least two children", ["c"],
+                 id="fit: two children"),
+    # A group's items are placed when the group is read, before its subgroups are.
+    pytest.param("fit", _fit_group(_fit_group("a", "b"), "c", "d", "b"),
+                 ("children", 0, "children", 1), "item 1 is listed twice (in 'all items' and "
+                 "'group 1')", "b", id="fit: item twice"),
+    pytest.param("fit", _fit_group(_fit_group("a", "b", name="group 2"), _fit_group("c", "d")),
+                 ("children", 1), "two groups are named 'group 2'", _fit_group("c", "d"),
+                 id="fit: stand-in name taken"),
+]
+
+
+@pytest.mark.parametrize(("form", "tree", "path", "words", "there"), TREE_PLACES)
+def test_every_tree_error_points_at_the_offending_place(form: str, tree: Any, path: tuple,
+                                                        words: str, there: Any) -> None:
+    """Each error of the tree reader is InvalidInput('tree', ..., index=path), where ``path``
+    leads from the tree as written to the mistake (a missing key: where it belongs), and its
+    message keeps naming the group (common practice)."""
+    spec = ItemIdTree(tree, IDS, max_depth=3)
+    with pytest.raises(InvalidInput) as info:
+        parse_tree(spec, 4, form=MODEL_TREE if form == "model" else FIT_TREE)
+    assert info.value.parameter == "tree"
+    assert info.value.index == path
+    assert words in info.value.rule
+    assert _follow(tree, path) == there
+
+
+def test_children_that_are_not_a_list_are_refused_as_such() -> None:
+    """An array of children is not a list of items and groups: refused with the group's rule,
+    not with numpy's question about the truth of an array (common practice)."""
+    for form in (MODEL_TREE, FIT_TREE):
+        with pytest.raises(InvalidInput) as info:
+            parse_tree({"sigma": 0.5, "children": np.arange(3)} if form is MODEL_TREE
+                       else {"children": np.arange(3)}, 3, form=form)
+        assert info.value.index == ("children",)
+
+
+def test_tree_errors_read_as_places_in_the_tree() -> None:
+    """The error's text names the place as a subscript of the tree (common practice)."""
+    with pytest.raises(InvalidInput) as info:
+        parse_tree({"sigma": 0.5, "children": [0, {"sigma": -2.0, "children": [1]}]}, 2)
+    assert str(info.value).startswith("tree['children'][1]['sigma']: group 'all items > group #2'")
+    with pytest.raises(InvalidInput) as info:
+        parse_tree({"sigma": 0.5, "children": [0]}, 2)
+    assert str(info.value).startswith("tree: item 1 is not in the tree")
+
+
+def test_a_model_reports_its_groups_in_the_order_it_always_has() -> None:
+    """The reader numbers groups in listed order; a model reports them root first, then each
+    group's subgroups together, groups reached from the last listed (the order of the service's
+    answers, kept; invented example)."""
+    tree = {"sigma": 0.5, "children": [
+        {"name": "A", "sigma": 1.0, "children": [0, {"name": "C", "sigma": 2.0, "children": [1]}]},
+        {"name": "B", "sigma": 1.5, "children": [{"name": "D", "sigma": 0.0, "children": [2]}, 3]},
+    ]}
+    assert parse_tree(tree, 4).labels == ("all items", "A", "C", "B", "D")
+    model = NestedCES.calibrate(budget(3, 4), tree=tree)
+    groups = model.groups()
+    assert [g["name"] for g in groups] == ["all items", "A", "B", "D", "C"]
+    assert [g["sigma"] for g in groups] == [0.5, 1.0, 1.5, 0.0, 2.0]
+    assert [g["items"] for g in groups] == [[], [0], [3], [2], [1]]
+    assert groups[4]["path"] == "all items > A > C"
 
 
 # -- registry and reporting ---------------------------------------------------------------------

@@ -38,7 +38,15 @@ import numpy.typing as npt
 
 from . import _checks
 from .errors import InvalidInput, NumericalFailure
-from .indices import FORMULAS, IndexData, Target, check_formula_names, check_positive_shares
+from .indices import (
+    REGISTRY,
+    IndexData,
+    Need,
+    Target,
+    check_formula_names,
+    check_positive_shares,
+    formulas_for,
+)
 from .konus import PriceChange, StandardAt, konus_at_income, naming, price_change
 from .preferences.base import BaseBudget, Notice, Preferences, Vector
 
@@ -362,31 +370,27 @@ def _formula_results(
     notices: list[Notice],
 ) -> dict[str, FormulaResult]:
     explicit = requested is not None
-    names = check_formula_names(list(requested)) if requested is not None else tuple(FORMULAS)
-    available = {
-        "sigma": data.sigma is not None,
-        "weight_quantities": data.weight_quantities is not None,
-        "weight_shares": data.weight_shares is not None,
-    }
-    why = {
-        "sigma": "an elasticity of substitution (lloyd_moulton_sigma; the model has no single one)",
-        "weight_quantities": "a weight-reference basket (quantities, or shares with prices)",
-        "weight_shares": "weight-reference shares (shares, or a basket with prices)",
-    }
+    names = (check_formula_names(list(requested)) if requested is not None
+             else formulas_for("comparison"))
+    # The inputs a comparison may lack; both periods' quantities are always there (q1 observed
+    # or the model's demands).
+    inputs: dict[Need, object] = {"sigma": data.sigma, "weight_quantities": data.weight_quantities,
+                                  "weight_shares": data.weight_shares}
+    unmet = {need for need, value in inputs.items() if value is None}
     # The model's demands can turn negative where a flexible form is not regular; the formulas
     # that weight by current quantities are then undefined (a regularity notice says why).
     negative = np.flatnonzero(data.q1 < 0.0)
     out: dict[str, FormulaResult] = {}
     for i, name in enumerate(names):
-        formula = FORMULAS[name]
-        missing = [need for need in formula.needs if not available[need]]
-        if missing:
-            text = f"The {formula.title} index needs {why[missing[0]]}"
+        formula = REGISTRY[name]
+        missing = formula.missing(unmet, "comparison")
+        if missing is not None:
+            text = f"The {formula.title} index needs {missing}"
             if explicit:
                 raise InvalidInput("formulas", text + ", which was not given.", i)
             notices.append(Notice("formula_not_computed", text + "; it was left out."))
             continue
-        if negative.size and formula.target != "base":
+        if negative.size and formula.uses_current_quantities:
             text = (f"The {formula.title} index weights by current quantities, and the model's "
                     f"current demand for item {int(negative[0])} is negative")
             if explicit:

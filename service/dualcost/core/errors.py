@@ -4,9 +4,12 @@
 
     DualcostError                 every error the core raises on purpose
      ├── InvalidInput             an argument breaks a stated rule (sign, shape, adding-up, domain)
-     └── NumericalFailure         valid inputs, but the evaluation left the finite floating-point range
-          │                       or an iterative step did not converge
-          └── DeadlineExceeded    an iterative solve ran past the compute deadline it was given
+     │    └── InvalidRows         household rows break a rule; each is named (a RowProblem)
+     ├── NumericalFailure         valid inputs, but the evaluation left the finite floating-point range
+     │    │                       or an iterative step did not converge
+     │    └── DeadlineExceeded    an iterative solve ran past the compute deadline it was given
+     └── EngineUnavailable        an engine of dualcost.engines cannot run: its library is not
+                                  installed or its cluster cannot be reached
 
 The core never knows an HTTP status; ``dualcost.api.problems`` is the one place that maps these
 classes to problem responses.
@@ -14,6 +17,7 @@ classes to problem responses.
 
 from __future__ import annotations
 
+from collections.abc import Sequence
 from dataclasses import dataclass
 
 
@@ -32,23 +36,62 @@ class InvalidInput(DualcostError, ValueError):
     rule:
         One plain sentence saying what the rule is and how the input breaks it.
     index:
-        The position of the offending element in a vector argument, if there is one.
+        Where in the argument the offending element is, if it is one element: its position in a
+        vector (``3``), its row and column in a matrix (``(2, 0)``), or, in a nested argument
+        such as a tree of item groups, the path of keys and list positions that leads to it from
+        the argument as the caller wrote it (``("children", 1, "sigma")``; ``()`` is the
+        argument as a whole).
     """
 
     parameter: str
     rule: str
-    index: int | tuple[int, ...] | None = None
+    index: int | tuple[int | str, ...] | None = None
 
     def __post_init__(self) -> None:
         super().__init__(str(self))
 
     def __str__(self) -> str:
-        where = self.parameter if self.index is None else f"{self.parameter}[{self.index}]"
-        return f"{where}: {self.rule}"
+        return f"{self._where()}: {self.rule}"
+
+    def _where(self) -> str:
+        """``p``, ``p[3]``, ``p[(2, 0)]``, or ``tree['children'][1]['sigma']`` for a path."""
+        index = self.index
+        if index is None or index == ():
+            return self.parameter
+        if isinstance(index, tuple) and any(isinstance(step, str) for step in index):
+            return self.parameter + "".join(f"[{step!r}]" for step in index)
+        return f"{self.parameter}[{index}]"
 
     def renamed(self, parameter: str) -> InvalidInput:
         """The same error, told about the argument under the caller's name for it."""
         return type(self)(parameter=parameter, rule=self.rule, index=self.index)
+
+
+@dataclass(frozen=True)
+class RowProblem:
+    """Why one household row was refused.
+
+    ``row`` is the caller's label for the row (its position in a JSON list, its record number
+    in a CSV file); ``field`` is ``"shares"``, ``"expenditure"`` or ``"weight"``; ``item`` is
+    the position of the offending item for a share; ``code`` is a stable word for counting.
+    """
+
+    row: int
+    field: str
+    rule: str
+    code: str
+    item: int | None = None
+
+
+class InvalidRows(InvalidInput):
+    """Households that break a rule: each problem names the row, the field and the rule."""
+
+    def __init__(self, problems: Sequence[RowProblem], count: int) -> None:
+        first = problems[0]
+        super().__init__("households", f"{count} household row(s) break a rule; first: row "
+                         f"{first.row}: {first.rule}", first.row)
+        self.problems = tuple(problems)
+        self.count = count
 
 
 @dataclass(eq=False)
@@ -67,3 +110,8 @@ class NumericalFailure(DualcostError, ArithmeticError):
 
 class DeadlineExceeded(NumericalFailure):
     """An iterative solve ran past the compute deadline it was given."""
+
+
+class EngineUnavailable(DualcostError):
+    """An engine of :mod:`dualcost.engines` cannot run here: its library is not installed, or
+    the cluster it sends work to cannot be reached."""

@@ -31,7 +31,7 @@ comparison is assembled and checked as its own single comparison would be
 counted); the answer says so in a notice.
 
 Rows are processed in chunks of ``HouseholdJob.chunk_rows``: the chunking is part of the job, so
-that every engine (in process, or on a cluster: :mod:`dualcost.core.cluster`) evaluates exactly
+that every engine (in process, or on a cluster: :mod:`dualcost.engines.dask`) evaluates exactly
 the same arrays with the same code and gets the same bits.
 
 Distribution summaries (Prais 1959, "Whose cost of living?", Review of Economic Studies 26(2)):
@@ -43,7 +43,7 @@ aggregate basket, the index a consumer price index approximates.
 
 from __future__ import annotations
 
-from collections.abc import Iterable, Iterator, Mapping, Sequence
+from collections.abc import Callable, Iterable, Iterator, Mapping, Sequence
 from dataclasses import dataclass, field
 from typing import Any, Literal
 
@@ -54,25 +54,21 @@ from numpy.typing import NDArray
 from . import _checks
 from .comparison import comparison_of
 from .deadline import check as check_deadline
-from .errors import DualcostError, InvalidInput
-from .indices import FORMULAS, IndexData
+from .errors import DualcostError, InvalidInput, InvalidRows, RowProblem
+from .indices import FORMULAS, HOUSEHOLD_DEFAULT, IndexData, formulas_for
 from .konus import PriceChange, price_change
 from .preferences import FAMILIES, BaseBudget, Notice, Preferences
-from .preferences.rows import RowModels
+from .preferences.base import RowModels
 
 Vector = NDArray[np.float64]
 Matrix = NDArray[np.float64]
 OnBadRows = Literal["reject", "skip"]
 
-#: Formulas a household batch can compute: the weighted bilateral ones. The unweighted formulas
-#: are the same for every household, and Lowe and Young need a weight-reference period.
-HOUSEHOLD_FORMULAS: tuple[str, ...] = (
-    "laspeyres", "paasche", "fisher", "tornqvist", "walsh", "marshall_edgeworth", "sato_vartia",
-    "geometric_laspeyres", "lloyd_moulton",
-)
-DEFAULT_FORMULAS: tuple[str, ...] = (
-    "laspeyres", "paasche", "fisher", "tornqvist", "geometric_laspeyres",
-)
+#: Formulas a household batch can compute (the registry's "households" scope): the weighted
+#: bilateral ones. The unweighted formulas are the same for every household, and Lowe and Young
+#: need a weight-reference period.
+HOUSEHOLD_FORMULAS: tuple[str, ...] = formulas_for("households")
+DEFAULT_FORMULAS: tuple[str, ...] = HOUSEHOLD_DEFAULT
 DEFAULT_QUANTILES: tuple[float, ...] = (0.1, 0.25, 0.5, 0.75, 0.9)
 #: Numbers per work array of a chunk unless the job says otherwise: enough rows to amortise
 #: numpy's cost per call, few enough that a chunk's work arrays stay in cache (common practice).
@@ -82,33 +78,6 @@ LISTED_PROBLEMS = 100
 
 KONUS_COLUMNS = ("konus", "konus_current", "konus_midpoint")
 MONEY_COLUMNS = ("compensating_variation", "equivalent_variation")
-
-
-class InvalidRows(InvalidInput):
-    """Households that break a rule: each problem names the row, the field and the rule."""
-
-    def __init__(self, problems: Sequence[RowProblem], count: int) -> None:
-        first = problems[0]
-        super().__init__("households", f"{count} household row(s) break a rule; first: row "
-                         f"{first.row}: {first.rule}", first.row)
-        self.problems = tuple(problems)
-        self.count = count
-
-
-@dataclass(frozen=True)
-class RowProblem:
-    """Why one household row was refused.
-
-    ``row`` is the caller's label for the row (its position in a JSON list, its record number
-    in a CSV file); ``field`` is ``"shares"``, ``"expenditure"`` or ``"weight"``; ``item`` is
-    the position of the offending item for a share; ``code`` is a stable word for counting.
-    """
-
-    row: int
-    field: str
-    rule: str
-    code: str
-    item: int | None = None
 
 
 @dataclass(frozen=True)
@@ -896,6 +865,11 @@ class HouseholdResults:
     chunks: int
 
 
+#: Evaluates a job's chunks somewhere and yields their results in input order (see
+#: :func:`evaluate_locally`; :mod:`dualcost.engines` holds the others).
+Evaluator = Callable[[HouseholdJob, Iterable[HouseholdChunk]], Iterable[ChunkResult]]
+
+
 def evaluate_locally(job: HouseholdJob, chunks: Iterable[HouseholdChunk]) -> Iterator[ChunkResult]:
     """Evaluate the chunks one after another in this process."""
     for chunk in chunks:
@@ -952,20 +926,16 @@ def run_households(
     ids: Sequence[str | None] | None = None,
     on_bad_rows: OnBadRows = "reject",
     quantiles: Sequence[float] = DEFAULT_QUANTILES,
-    scheduler: Any = None,
-    chunks_per_task: int = 1,
+    evaluate: Evaluator = evaluate_locally,
+    engine: str = "local",
 ) -> HouseholdResults:
     """Evaluate a whole batch held in memory: ``shares`` is households by items.
 
-    With ``scheduler`` (an address like ``"tcp://10.0.0.5:8786"`` or a ``distributed.Client``)
-    the chunks run on a Dask cluster (:mod:`dualcost.core.cluster`); the result is the same,
-    bit for bit, as in process.
+    ``evaluate`` runs the chunks, in this process by default; another engine (a Dask cluster:
+    :func:`dualcost.engines.dask.cluster_evaluator`) gives the same result, bit for bit, and
+    ``engine`` names it in the result.
     """
     qs = check_quantiles(quantiles)
     chunks = chunks_of(job, shares, expenditure=expenditure, weights=weights, ids=ids)
-    if scheduler is None:
-        return collect(job, evaluate_locally(job, chunks), on_bad_rows=on_bad_rows, quantiles=qs)
-    from .cluster import evaluate_on_cluster
-
-    results = evaluate_on_cluster(job, chunks, scheduler, chunks_per_task=chunks_per_task)
-    return collect(job, results, on_bad_rows=on_bad_rows, quantiles=qs, engine="cluster")
+    return collect(job, evaluate(job, chunks), on_bad_rows=on_bad_rows, quantiles=qs,
+                   engine=engine)

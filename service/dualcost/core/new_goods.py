@@ -12,58 +12,23 @@ them (Sato 1976; Vartia 1976). ``lambda_t`` is the common items' share of period
 new item in period 1 lowers ``lambda_1`` and so the index, by the gain from the wider choice; an
 item gone from period 1 lowers ``lambda_0`` and raises it (Feenstra 1994, *American Economic
 Review* 84(1), Proposition 1). For CES preferences this equals the Konüs index exactly.
+
+The index is the ``feenstra`` entry of the formula registry (:mod:`dualcost.core.indices`, where
+:func:`~dualcost.core.indices.new_goods_index` computes it with its parts); :func:`feenstra` here
+takes the arrays directly.
 """
 
 from __future__ import annotations
 
-from dataclasses import dataclass
-
 import numpy as np
 from numpy.typing import NDArray
 
-from ._means import log_mean
-from .errors import InvalidInput
+from .indices import IndexData, NewGoodsIndex, check_new_goods_sigma, new_goods_index
+
+__all__ = ["NewGoodsIndex", "check_new_goods_sigma", "feenstra"]
 
 Array = NDArray[np.float64]
 Mask = NDArray[np.bool_]
-
-
-@dataclass(frozen=True)
-class NewGoodsIndex:
-    """Feenstra's index, its two parts, and which items were common, along leading axes."""
-
-    index: Array
-    sato_vartia_common: Array
-    common_share_base: Array  # lambda_0
-    common_share_current: Array  # lambda_1
-    common: Mask
-
-
-def check_new_goods_sigma(name: str, sigma: float) -> float:
-    """The adjustment needs an elasticity above 1 (items that are not essential)."""
-    value = float(sigma)
-    if not np.isfinite(value) or value <= 1.0:
-        raise InvalidInput(name, "the new-goods adjustment (Feenstra 1994) needs an elasticity "
-                           f"of substitution greater than 1, got {value:g}")
-    return value
-
-
-def sato_vartia_matched(p0: Array, p1: Array, q0: Array, q1: Array, used: Mask) -> Array:
-    """The Sato-Vartia index over the items where ``used`` is true, shares taken among them.
-
-    ``ln P = sum phi_i ln(p1_i/p0_i)`` with ``phi_i = L(w1_i, w0_i) / sum_j L(w1_j, w0_j)`` and
-    ``L`` the logarithmic mean (Sato 1976; Vartia 1976). An item with a zero share in one period
-    has ``L = 0`` (the limit of the logarithmic mean), so it has no weight.
-    """
-    v0 = np.where(used, p0 * q0, 0.0)
-    v1 = np.where(used, p1 * q1, 0.0)
-    w0 = v0 / np.sum(v0, axis=-1, keepdims=True)
-    w1 = v1 / np.sum(v1, axis=-1, keepdims=True)
-    both = (w0 > 0.0) & (w1 > 0.0)
-    lm = np.where(both, log_mean(np.where(both, w1, 1.0), np.where(both, w0, 1.0)), 0.0)
-    phi = lm / np.sum(lm, axis=-1, keepdims=True)
-    log_rel = np.log(np.where(used, p1, 1.0) / np.where(used, p0, 1.0))
-    return np.asarray(np.exp(np.sum(phi * log_rel, axis=-1)))
 
 
 def feenstra(
@@ -76,20 +41,5 @@ def feenstra(
     Prices and quantities of items not on sale are ignored. Arrays may carry leading axes.
     """
     s = check_new_goods_sigma("sigma", sigma)
-    bought0 = available0 & (np.where(available0, q0, 0.0) > 0.0)
-    bought1 = available1 & (np.where(available1, q1, 0.0) > 0.0)
-    common = bought0 & bought1
-    if not np.all(np.any(common, axis=-1)):
-        raise InvalidInput("quantities", "the new-goods adjustment needs at least one item bought "
-                           "in both periods of each comparison")
-    p0f = np.where(bought0, p0, 1.0)
-    p1f = np.where(bought1, p1, 1.0)
-    v0 = np.where(bought0, p0f * q0, 0.0)
-    v1 = np.where(bought1, p1f * q1, 0.0)
-    lam0 = np.sum(np.where(common, v0, 0.0), axis=-1) / np.sum(v0, axis=-1)
-    lam1 = np.sum(np.where(common, v1, 0.0), axis=-1) / np.sum(v1, axis=-1)
-    sv = sato_vartia_matched(p0f, p1f, np.where(common, q0, 0.0), np.where(common, q1, 0.0),
-                             common)
-    index = sv * np.exp((np.log(lam1) - np.log(lam0)) / (s - 1.0))
-    return NewGoodsIndex(index=np.asarray(index), sato_vartia_common=sv, common_share_base=lam0,
-                         common_share_current=lam1, common=common)
+    return new_goods_index(IndexData(p0, p1, q0, q1, available0=available0,
+                                     available1=available1, new_goods_sigma=s))

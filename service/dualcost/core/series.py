@@ -57,62 +57,29 @@ from numpy.typing import NDArray
 from .comparison import WeightReference
 from .deadline import check as check_deadline
 from .errors import DualcostError, InvalidInput, NumericalFailure
-from .indices import FORMULAS, IndexData, Target
+from .indices import (
+    GEKS_RULE,
+    REGISTRY,
+    IndexData,
+    IndexFormula,
+    Need,
+    Target,
+    check_new_goods_sigma,
+    formulas_for,
+    matched_sample,
+)
 from .konus import price_change
 from .multilateral import Splice, bilateral_log_matrix, geks, rolling_geks
-from .new_goods import check_new_goods_sigma, feenstra, sato_vartia_matched
 from .preferences import BaseBudget, Notice, Preferences, calibrate
-from .series_panel import PERIODS_PER_YEAR, Array, Mask, Panel
+from .series_panel import PERIODS_PER_YEAR, Array, Panel
 
-#: The series name of Feenstra's (1994) CES new-goods adjustment, beside the formula names.
-FEENSTRA = "feenstra"
+#: The series' names, titles, targets and rules come from the formula registry.
+SERIES_FORMULAS: tuple[str, ...] = formulas_for("series")
 #: The multilateral series, named like formulas so that ``formulas`` can ask for them.
-GEKS_SERIES: tuple[str, ...] = ("geks_fisher", "geks_tornqvist")
-SERIES_FORMULAS: tuple[str, ...] = (*FORMULAS, FEENSTRA, *GEKS_SERIES)
+GEKS_SERIES: tuple[str, ...] = tuple(n for n in SERIES_FORMULAS if REGISTRY[n].kind == "multilateral")
 TARGETS: tuple[Target, ...] = ("base", "current", "midpoint")
-
-#: Formulas that weight by quantities of the compared periods themselves.
-_NEEDS_PERIOD_QUANTITIES = frozenset(SERIES_FORMULAS) - {"carli", "jevons", "dutot", "lowe",
-                                                         "young"}
-_TITLES = {FEENSTRA: "Feenstra CES new-goods adjustment", "geks_fisher": "GEKS on Fisher links",
-           "geks_tornqvist": "GEKS on Törnqvist links"}
-
-_MATCHED = ("Each comparison uses the items priced in both of its periods (matched sample); an "
-            "item priced in only one is left out of that comparison")
-
-GEKS_RULE = ("Each bilateral link between two periods uses the items priced in both (matched "
-             "sample), so an item counts in every pair of periods where it is priced.")
-
 #: The rule for items that come and go, per series, in words (see the module docstring).
-RULES: dict[str, str] = {
-    "geks_fisher": GEKS_RULE,
-    "geks_tornqvist": GEKS_RULE,
-    "laspeyres": f"{_MATCHED}: the same as imputing its price relative by the Laspeyres index of "
-                 "the matched items.",
-    "paasche": f"{_MATCHED}: the same as imputing its price relative by the Paasche index of the "
-               "matched items.",
-    "fisher": f"{_MATCHED}: Laspeyres and Paasche are both taken over the matched items.",
-    "tornqvist": f"{_MATCHED}; expenditure shares are taken over the matched items.",
-    "walsh": f"{_MATCHED}: both baskets are taken over the matched items.",
-    "marshall_edgeworth": f"{_MATCHED}: both baskets are taken over the matched items.",
-    "sato_vartia": f"{_MATCHED}; expenditure shares are taken over the matched items, and an item "
-                   "with a zero share in one period has no weight (the logarithmic mean's limit).",
-    "geometric_laspeyres": f"{_MATCHED}: the same as imputing its price relative by the geometric "
-                           "Laspeyres index of the matched items.",
-    "lloyd_moulton": f"{_MATCHED}: the same as imputing its price relative by the Lloyd-Moulton "
-                     "index of the matched items.",
-    "lowe": f"{_MATCHED}: the weight-reference basket is priced over the matched items.",
-    "young": f"{_MATCHED}: the weight-reference shares are rescaled to sum to one over the "
-             "matched items.",
-    "carli": f"{_MATCHED}: the same as imputing its price relative by the mean relative of the "
-             "matched items.",
-    "jevons": f"{_MATCHED}: the same as imputing its price relative by the geometric mean of the "
-              "matched items' relatives.",
-    "dutot": f"{_MATCHED}: average prices are taken over the matched items.",
-    FEENSTRA: "Items bought in both periods are common and priced by the Sato-Vartia index; an "
-              "item bought in only one enters through the common items' share of that period's "
-              "spending (Feenstra 1994), so arrivals lower the index and departures raise it.",
-}
+RULES: dict[str, str] = {name: REGISTRY[name].rule for name in SERIES_FORMULAS}
 _V = TypeVar("_V")
 
 MODEL_RULE = ("The model is calibrated to the items priced in the base period; items first "
@@ -279,85 +246,29 @@ def calibrate_to_base(panel: Panel, base: int, family: str,
 # -- bilateral comparisons over matched items ------------------------------------------------------
 
 
-def _count(both: Mask) -> Array:
-    return np.sum(both, axis=-1).astype(np.float64)
-
-
-def _carli(p0: Array, p1: Array, both: Mask) -> Array:
-    """Mean of the matched items' relatives (Carli 1764; CPI Manual 2004, 20.32)."""
-    return np.asarray(np.sum(np.where(both, p1 / p0, 0.0), axis=-1) / _count(both))
-
-
-def _jevons(p0: Array, p1: Array, both: Mask) -> Array:
-    """Geometric mean of the matched items' relatives (Jevons 1863; CPI Manual 2004, 20.35)."""
-    return np.asarray(np.exp(np.sum(np.where(both, np.log(p1 / p0), 0.0), axis=-1) / _count(both)))
-
-
-def _dutot(p0: Array, p1: Array, both: Mask) -> Array:
-    """Ratio of the matched items' average prices (Dutot 1738; CPI Manual 2004, 20.30)."""
-    return np.asarray(np.sum(np.where(both, p1, 0.0), axis=-1) / np.sum(np.where(both, p0, 0.0),
-                                                                         axis=-1))
-
-
 @dataclass(frozen=True)
 class _Weights:
     quantities: Array | None
     shares: Array | None
 
 
-def _compare(
-    name: str,
-    p0: Array,
-    p1: Array,
-    q0: Array,
-    q1: Array,
-    both: Mask,
-    weights: _Weights,
-    sigma: float | None,
-    new_goods_sigma: float | None,
-    priced0: Mask,
-    priced1: Mask,
-) -> Array:
-    """``P(0, 1)`` along leading axes, over matched items; ``NaN`` where undefined.
-
-    Prices are filled (1 where not priced) and quantities are 0 where not priced.
-    """
-    with np.errstate(divide="ignore", invalid="ignore", over="ignore"):
-        if name == FEENSTRA:
-            assert new_goods_sigma is not None
-            return feenstra(p0, p1, q0, q1, priced0, priced1, new_goods_sigma).index
-        if name == "carli":
-            return _carli(p0, p1, both)
-        if name == "jevons":
-            return _jevons(p0, p1, both)
-        if name == "dutot":
-            return _dutot(p0, p1, both)
-        if name == "sato_vartia":
-            return sato_vartia_matched(p0, p1, q0, q1, both)
-        qb = wb = None
-        if weights.quantities is not None:
-            qb = np.where(both, weights.quantities, 0.0)
-        if weights.shares is not None:
-            wb = np.where(both, weights.shares, 0.0)
-            wb = wb / np.sum(wb, axis=-1, keepdims=True)
-        data = IndexData(p0=np.where(both, p0, 1.0), p1=np.where(both, p1, 1.0),
-                         q0=np.where(both, q0, 0.0), q1=np.where(both, q1, 0.0),
-                         weight_quantities=qb, weight_shares=wb, sigma=sigma)
-        return np.asarray(FORMULAS[name].compute(data), dtype=np.float64)
-
-
-def _check_defined(values: Array, name: str, pairs: Sequence[tuple[int, int]],
+def _check_defined(values: Array, title: str, pairs: Sequence[tuple[int, int]],
                    periods: Sequence[str]) -> None:
     bad = np.flatnonzero(~(np.isfinite(values) & (values > 0.0)))
     if bad.size:
         s, t = pairs[int(bad[0])]
-        raise InvalidInput("prices", f"the {_title(name)} index from period {periods[s]!r} to "
+        raise InvalidInput("prices", f"the {title} index from period {periods[s]!r} to "
                            f"{periods[t]!r} is undefined: the two periods have no item priced in "
                            "both with the quantities or weights this formula needs", (t,))
 
 
 class _Comparer:
-    """Bilateral comparisons between any pairs of periods of one panel, per formula."""
+    """Bilateral comparisons between any pairs of periods of one panel, per formula.
+
+    Each comparison is over the items priced in both of its periods (:func:`matched_sample`),
+    or, for a formula that needs ``availability`` (Feenstra's), over the items priced in each.
+    The data of a list of pairs is built once and shared by every formula that compares them.
+    """
 
     def __init__(self, panel: Panel, quantities: Array, weights: _Weights, sigma: float | None,
                  new_goods_sigma: float | None) -> None:
@@ -367,16 +278,36 @@ class _Comparer:
         self.weights = weights
         self.sigma = sigma
         self.new_goods_sigma = new_goods_sigma
+        self._data: dict[tuple[tuple[tuple[int, int], ...], bool], IndexData] = {}
 
     def __call__(self, name: str, pairs: Sequence[tuple[int, int]]) -> Array:
-        s = np.fromiter((a for a, _ in pairs), dtype=np.intp, count=len(pairs))
-        t = np.fromiter((b for _, b in pairs), dtype=np.intp, count=len(pairs))
-        pr = self.panel.priced
-        values = _compare(name, self.prices[s], self.prices[t], self.quantities[s],
-                          self.quantities[t], pr[s] & pr[t], self.weights, self.sigma,
-                          self.new_goods_sigma, pr[s], pr[t])
-        _check_defined(values, name, pairs, self.panel.periods)
+        """``P(s, t)`` for each pair, prices filled (1 where not priced), quantities 0 there."""
+        formula = REGISTRY[name]
+        # Undefined comparisons (no matched item) come out as NaN and are refused just below.
+        with np.errstate(divide="ignore", invalid="ignore", over="ignore"):
+            data = self._pairs(tuple(pairs), "availability" in formula.requires)
+            values = np.asarray(formula.compute(data), dtype=np.float64)
+        _check_defined(values, formula.title, pairs, self.panel.periods)
         return values
+
+    def _pairs(self, pairs: tuple[tuple[int, int], ...], available: bool) -> IndexData:
+        """The data of these pairs, built at the first formula and kept for the others, which
+        then share its arrays and its shares and relatives instead of gathering them again."""
+        key = (pairs, available)
+        if key not in self._data:
+            s = np.fromiter((a for a, _ in pairs), dtype=np.intp, count=len(pairs))
+            t = np.fromiter((b for _, b in pairs), dtype=np.intp, count=len(pairs))
+            pr = self.panel.priced
+            p0, p1, q0, q1 = self.prices[s], self.prices[t], self.quantities[s], self.quantities[t]
+            if available:
+                data = IndexData(p0, p1, q0, q1, available0=pr[s], available1=pr[t],
+                                 new_goods_sigma=self.new_goods_sigma)
+            else:
+                data = matched_sample(p0, p1, q0, q1, pr[s] & pr[t],
+                                      weight_quantities=self.weights.quantities,
+                                      weight_shares=self.weights.shares, sigma=self.sigma)
+            self._data[key] = data
+        return self._data[key]
 
 
 # -- Konüs series -------------------------------------------------------------------------------
@@ -525,45 +456,26 @@ def _weights(panel: Panel, quantities: Array, weight_reference: WeightReference 
     return _Weights(qb, wb), WeightShares(period, shares, updated)
 
 
-def _title(name: str) -> str:
-    return FORMULAS[name].title if name in FORMULAS else _TITLES[name]
-
-
-def _needs(name: str, available: dict[str, bool]) -> str | None:
-    if name == FEENSTRA and not available["new_goods_sigma"]:
-        return "an elasticity of substitution above 1 (new_goods_sigma, or a model with one)"
-    why = {
-        "sigma": "an elasticity of substitution (lloyd_moulton_sigma; the model has no single one)",
-        "weight_quantities": "a weight-reference basket (a weight-reference period, or quantities)",
-        "weight_shares": "weight-reference shares (a weight-reference period, or shares)",
-    }
-    for need in FORMULAS[name].needs if name in FORMULAS else ():
-        if not available[need]:
-            return why[need]
-    if name in _NEEDS_PERIOD_QUANTITIES and not available["quantities"]:
-        return ("quantities in every period (some periods have prices only; give a model to "
-                "fill them in with its demands)")
-    return None
-
-
-def _choose_formulas(requested: Sequence[str] | None, available: dict[str, bool],
+def _choose_formulas(requested: Sequence[str] | None, unmet: set[Need],
                      notices: list[Notice]) -> list[str]:
     explicit = requested is not None
-    names = list(requested) if requested is not None else list(SERIES_FORMULAS)
+    known = formulas_for("series")
+    names = list(requested) if requested is not None else list(known)
     seen: set[str] = set()
     chosen = []
     for i, name in enumerate(names):
-        if name not in SERIES_FORMULAS:
+        if name not in known:
             raise InvalidInput("formulas", f"unknown series formula {name!r}; known: "
-                               f"{', '.join(SERIES_FORMULAS)}", i)
+                               f"{', '.join(known)}", i)
         if name in seen:
             raise InvalidInput("formulas", f"formula {name!r} is named twice", i)
         seen.add(name)
-        missing = _needs(name, available)
+        formula = REGISTRY[name]
+        missing = formula.missing(unmet, "series")
         if missing is None:
             chosen.append(name)
             continue
-        text = f"The {_title(name)} series needs {missing}"
+        text = f"The {formula.title} series needs {missing}"
         if explicit:
             raise InvalidInput("formulas", text + ", which was not given.", i)
         notices.append(Notice("formula_not_computed", text + "; it was left out."))
@@ -658,65 +570,19 @@ def index_series(
     quantities = _fill_quantities(panel, model, items, base, notices)
     wts, weight_shares = _weights(panel, quantities, weight_reference, base)
 
-    lm_sigma = lloyd_moulton_sigma
-    if lm_sigma is None and model is not None:
-        lm_sigma = model.substitution_elasticity
-    elif lm_sigma is not None and (not np.isfinite(lm_sigma) or lm_sigma < 0.0):
-        raise InvalidInput("lloyd_moulton_sigma", "an elasticity of substitution must be a "
-                           f"finite number, zero or more, got {lm_sigma:g}")
-    ng_sigma = new_goods_sigma
-    if ng_sigma is not None:
-        ng_sigma = check_new_goods_sigma("new_goods_sigma", ng_sigma)
-    elif model is not None and (model.substitution_elasticity or 0.0) > 1.0:
-        ng_sigma = model.substitution_elasticity
-    available = {
-        "sigma": lm_sigma is not None,
-        "weight_quantities": wts.quantities is not None,
-        "weight_shares": wts.shares is not None,
-        "new_goods_sigma": ng_sigma is not None,
-        "quantities": bool(panel.has_quantities.all()) or model is not None,
-    }
-    names = _choose_formulas(formulas, available, notices)
+    lm_sigma, ng_sigma = _elasticities(model, lloyd_moulton_sigma, new_goods_sigma)
+    unmet = _unmet(panel, model, wts, lm_sigma, ng_sigma)
+    names = _choose_formulas(formulas, unmet, notices)
 
     compare = _Comparer(panel, quantities, wts, lm_sigma, ng_sigma)
-    fixed_pairs = [(base, t) for t in range(n_t)]
-    link_pairs = [(t - 1, t) for t in range(1, n_t)]
-    raw: dict[str, tuple[Array, Array, Array]] = {}
-    for name in (n for n in names if n not in GEKS_SERIES):
-        fixed = compare(name, fixed_pairs)
-        links = compare(name, link_pairs)
-        raw[name] = (fixed / fixed[base], _chain(links, base), links)
-
-    konus = None
-    if model is not None:
-        konus = konus_series(model, panel, base, quantities, items)
-        if model.homothetic:
-            notices.append(Notice("homothetic", f"The {model.family} model is homothetic: its "
-                                  "Konüs series is the same at every living standard, and its "
-                                  "chained and fixed-base series agree."))
-
-    geks_links = [n.removeprefix("geks_") for n in names if n in GEKS_SERIES]
-    multilateral = _multilateral(panel, quantities, base, geks_links, geks_window, geks_splice,
-                                 explicit=formulas is not None, notices=notices)
-
-    def published(values: Array) -> Array:
-        return np.asarray(scale * values / values[ref])
-
-    series = {
-        name: FormulaSeries(name, _title(name),
-                            FORMULAS[name].target if name in FORMULAS else "midpoint",
-                            published(fixed), published(chained), links, RULES[name])
-        for name, (fixed, chained, links) in raw.items()
-    }
-    geks_out = [Multilateral(g.name, g.link, published(g.full_span),
-                             None if g.rolling is None else published(g.rolling), g.window,
-                             g.splice) for g in multilateral]
-    konus_out = None
-    if konus is not None:
-        konus_out = KonusSeries(konus.family, konus.homothetic,
-                                {k: published(v) for k, v in konus.fixed_base.items()},
-                                {k: published(v) for k, v in konus.chained.items()},
-                                konus.incomes, konus.utilities, konus.items, konus.carried_from)
+    raw = _formula_series(compare, [n for n in names if REGISTRY[n].kind == "bilateral"], base,
+                          n_t)
+    konus = _konus(model, panel, base, quantities, items, notices)
+    multilateral = _multilateral(panel, quantities, base,
+                                 [REGISTRY[n] for n in names if REGISTRY[n].kind == "multilateral"],
+                                 geks_window, geks_splice, explicit=formulas is not None,
+                                 notices=notices)
+    series, geks_out, konus_out = _published(raw, multilateral, konus, scale, ref)
 
     the_span = _span(panel, span, notices)
     bias, annual = _bias(series, geks_out, konus_out, the_span, scale)
@@ -733,16 +599,96 @@ def index_series(
         new_goods_sigma=ng_sigma, notices=notices)
 
 
+def _elasticities(model: Preferences | None, lloyd_moulton_sigma: float | None,
+                  new_goods_sigma: float | None) -> tuple[float | None, float | None]:
+    """The Lloyd-Moulton and new-goods elasticities, checked, by default the model's own."""
+    lm_sigma = lloyd_moulton_sigma
+    if lm_sigma is None and model is not None:
+        lm_sigma = model.substitution_elasticity
+    elif lm_sigma is not None and (not np.isfinite(lm_sigma) or lm_sigma < 0.0):
+        raise InvalidInput("lloyd_moulton_sigma", "an elasticity of substitution must be a "
+                           f"finite number, zero or more, got {lm_sigma:g}")
+    ng_sigma = new_goods_sigma
+    if ng_sigma is not None:
+        ng_sigma = check_new_goods_sigma("new_goods_sigma", ng_sigma)
+    elif model is not None and (model.substitution_elasticity or 0.0) > 1.0:
+        ng_sigma = model.substitution_elasticity
+    return lm_sigma, ng_sigma
+
+
+def _unmet(panel: Panel, model: Preferences | None, weights: _Weights, lm_sigma: float | None,
+           ng_sigma: float | None) -> set[Need]:
+    """The formulas' needs this request cannot meet (see :data:`dualcost.core.indices.Need`)."""
+    given: dict[Need, bool] = {
+        "sigma": lm_sigma is not None,
+        "weight_quantities": weights.quantities is not None,
+        "weight_shares": weights.shares is not None,
+        "new_goods_sigma": ng_sigma is not None,
+        "period_quantities": bool(panel.has_quantities.all()) or model is not None,
+    }
+    return {need for need, ok in given.items() if not ok}
+
+
+def _formula_series(compare: _Comparer, names: Sequence[str], base: int,
+                    n_t: int) -> dict[str, tuple[Array, Array, Array]]:
+    """Per bilateral formula: fixed-base and chained series on base = 1, and the chain links."""
+    fixed_pairs = [(base, t) for t in range(n_t)]
+    link_pairs = [(t - 1, t) for t in range(1, n_t)]
+    raw: dict[str, tuple[Array, Array, Array]] = {}
+    for name in names:
+        fixed = compare(name, fixed_pairs)
+        links = compare(name, link_pairs)
+        raw[name] = (fixed / fixed[base], _chain(links, base), links)
+    return raw
+
+
+def _konus(model: Preferences | None, panel: Panel, base: int, quantities: Array,
+           items: Sequence[int], notices: list[Notice]) -> KonusSeries | None:
+    if model is None:
+        return None
+    konus = konus_series(model, panel, base, quantities, items)
+    if model.homothetic:
+        notices.append(Notice("homothetic", f"The {model.family} model is homothetic: its "
+                              "Konüs series is the same at every living standard, and its "
+                              "chained and fixed-base series agree."))
+    return konus
+
+
+def _published(raw: dict[str, tuple[Array, Array, Array]], multilateral: list[Multilateral],
+               konus: KonusSeries | None, scale: float,
+               ref: int) -> tuple[dict[str, FormulaSeries], list[Multilateral], KonusSeries | None]:
+    """Every series on the index reference period ``ref``, worth ``scale`` there."""
+
+    def published(values: Array) -> Array:
+        return np.asarray(scale * values / values[ref])
+
+    series = {
+        name: FormulaSeries(name, REGISTRY[name].title, REGISTRY[name].target, published(fixed),
+                            published(chained), links, REGISTRY[name].rule)
+        for name, (fixed, chained, links) in raw.items()
+    }
+    geks_out = [Multilateral(g.name, g.link, published(g.full_span),
+                             None if g.rolling is None else published(g.rolling), g.window,
+                             g.splice, g.rule) for g in multilateral]
+    konus_out = None
+    if konus is not None:
+        konus_out = KonusSeries(konus.family, konus.homothetic,
+                                {k: published(v) for k, v in konus.fixed_base.items()},
+                                {k: published(v) for k, v in konus.chained.items()},
+                                konus.incomes, konus.utilities, konus.items, konus.carried_from)
+    return series, geks_out, konus_out
+
+
 def _check_position(name: str, position: int, n_t: int) -> None:
     if not 0 <= position < n_t:
         raise InvalidInput(name, f"position {position} is outside the panel's {n_t} periods")
 
 
-def _multilateral(panel: Panel, quantities: Array, base: int, links: Sequence[str],
+def _multilateral(panel: Panel, quantities: Array, base: int, formulas: Sequence[IndexFormula],
                   window: int | None, splice: Splice, *, explicit: bool,
                   notices: list[Notice]) -> list[Multilateral]:
     n_t = panel.n_periods
-    if not links:
+    if not formulas:
         return []
     if window is None and panel.frequency is not None:
         # A year and one period, as Ivancic, Diewert and Fox (2011) used 13 months; a shorter
@@ -763,9 +709,11 @@ def _multilateral(panel: Panel, quantities: Array, base: int, links: Sequence[st
         notices.append(Notice("rolling_geks_whole_span", f"The GEKS window of {window} periods "
                               "covers the whole panel: the rolling series is the full-span one."))
     out = []
-    for link in links:
+    for formula in formulas:
+        link = formula.link
+        assert link is not None  # every multilateral entry names its link
         try:
-            g = bilateral_log_matrix(panel.prices, quantities, panel.priced, link,  # type: ignore[arg-type]
+            g = bilateral_log_matrix(panel.prices, quantities, panel.priced, link,
                                      panel.periods)
         except InvalidInput as exc:
             if explicit:
@@ -778,7 +726,7 @@ def _multilateral(panel: Panel, quantities: Array, base: int, links: Sequence[st
         if window is not None:
             r = rolling_geks(g, window, splice)
             rolling = r / r[base]
-        out.append(Multilateral(f"geks_{link}", link, full, rolling, window, splice))
+        out.append(Multilateral(formula.name, link, full, rolling, window, splice, formula.rule))
     return out
 
 
@@ -818,10 +766,10 @@ def _bias(series: dict[str, FormulaSeries], multilateral: list[Multilateral],
         entries.append((f.name, "fixed_base", f.target, f.fixed_base, konus.fixed_base[f.target]))
         entries.append((f.name, "chained", f.target, f.chained, konus.chained[f.target]))
     for g in multilateral:
-        entries.append((g.name, "full_span", "midpoint", g.full_span, konus.fixed_base["midpoint"]))
+        target = REGISTRY[g.name].target
+        entries.append((g.name, "full_span", target, g.full_span, konus.fixed_base[target]))
         if g.rolling is not None:
-            entries.append((g.name, "rolling", "midpoint", g.rolling,
-                            konus.fixed_base["midpoint"]))
+            entries.append((g.name, "rolling", target, g.rolling, konus.fixed_base[target]))
     for name, kind, target, values, k in entries:
         bias.append(Bias(name, kind, target, 100.0 * (values - k) / scale,
                          100.0 * (values / k - 1.0)))

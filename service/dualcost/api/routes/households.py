@@ -34,14 +34,13 @@ from starlette.concurrency import run_in_threadpool
 from starlette.exceptions import HTTPException
 
 from ...config import Settings
-from ...core.errors import InvalidInput
+from ...core.errors import EngineUnavailable, InvalidInput, InvalidRows
 from ...core.households import (
     Accumulator,
     ChunkResult,
     HouseholdChunk,
     HouseholdJob,
     HouseholdResults,
-    InvalidRows,
     chunks_of,
     collect,
     evaluate_locally,
@@ -113,7 +112,7 @@ def _evaluate(job: HouseholdJob, chunks: Iterator[HouseholdChunk], scheduler: An
               settings: Settings) -> Iterator[ChunkResult]:
     if scheduler is None:
         return evaluate_locally(job, chunks)
-    from ...core.cluster import evaluate_on_cluster
+    from ...engines.dask import evaluate_on_cluster
 
     return evaluate_on_cluster(job, chunks, scheduler,
                                chunks_per_task=max(1, settings.dask_rows_per_task // job.chunk_rows),
@@ -125,18 +124,16 @@ def _cluster_failure(exc: Exception) -> HTTPException:
 
 
 def _is_cluster_failure(exc: Exception) -> bool:
-    from ...core.cluster import ClusterUnavailable
-
-    return isinstance(exc, ClusterUnavailable)
+    return isinstance(exc, EngineUnavailable)
 
 
 def _connect(address: str) -> Any:
     """A Dask client for the job's stream; an unreachable scheduler is a 503."""
-    from ...core.cluster import ClusterUnavailable, connect
+    from ...engines.dask import connect
 
     try:
         return connect(address)[0]
-    except ClusterUnavailable as exc:
+    except EngineUnavailable as exc:
         raise _cluster_failure(exc) from exc
 
 

@@ -42,7 +42,7 @@ from __future__ import annotations
 
 from collections.abc import Sequence
 from dataclasses import dataclass
-from typing import Any
+from typing import Any, ClassVar
 
 import numpy as np
 from scipy import stats
@@ -51,6 +51,7 @@ from ..errors import InvalidInput
 from .panel import Panel
 from .system import (
     Array3,
+    FitOptions,
     Label,
     Matrix,
     ShareSystem,
@@ -62,6 +63,11 @@ from .system import (
 
 RESTRICTIONS = ("none", "homogeneity", "symmetry")
 ESTIMATORS = ("nonlinear", "linear_approximate")
+#: Each estimator's method, in words.
+METHODS = {
+    "nonlinear": "iterated nonlinear least squares on the AIDS (or QUAIDS) share equations",
+    "linear_approximate": "least squares on the linear approximate AIDS with Stone's price index",
+}
 
 
 @dataclass(frozen=True)
@@ -78,6 +84,25 @@ class RestrictionTest:
 class AlmostIdealShares(ShareSystem):
     """AIDS or QUAIDS shares; ``theta`` holds ``alpha_i``, ``beta_i`` (and ``lambda_i``) of the
     first n - 1 items, then the free ``gamma_ij`` in row order."""
+
+    family = "aids"
+    takes = frozenset({"estimator", "restrictions", "price_terms", "alpha0", "quadratic"})
+    estimator: str
+    restrictions: str
+    #: Whether the family always has the quadratic expenditure term (QUAIDS).
+    always_quadratic: ClassVar[bool] = False
+
+    @classmethod
+    def from_options(cls, n_items: int, options: FitOptions) -> AlmostIdealShares:
+        """Defaults: restrictions 'symmetry', the nonlinear estimator, price terms, alpha0 = 0."""
+        options.refuse_all_but(cls.family, cls.takes)
+        return cls(
+            n_items, restrictions=options.restrictions or "symmetry",
+            quadratic=options.quadratic or cls.always_quadratic,
+            price_terms=True if options.price_terms is None else options.price_terms,
+            estimator=options.estimator or "nonlinear",
+            alpha0=0.0 if options.alpha0 is None else options.alpha0,
+            item_names=options.item_names)
 
     def __init__(self, n_items: int, *, restrictions: str = "symmetry", quadratic: bool = False,
                  price_terms: bool = True, estimator: str = "nonlinear", alpha0: float = 0.0,
@@ -100,6 +125,7 @@ class AlmostIdealShares(ShareSystem):
         self.quadratic = quadratic
         self.price_terms = price_terms
         self.estimator = estimator
+        self.method = METHODS[estimator]
         self.linear = estimator == "linear_approximate"
         self.alpha0 = float(alpha0)
         self.item_names = list(item_names) if item_names is not None else [
@@ -243,6 +269,15 @@ class AlmostIdealShares(ShareSystem):
         return w, eta, marshallian
 
     # -- identification --------------------------------------------------------------------------
+    def comparison_obstacle(self, theta: Vector) -> str | None:
+        """Without homogeneity and symmetry no cost function gives these shares (Deaton and
+        Muellbauer 1980, eqs. 9-11); with the price terms left out every gamma is 0 and both
+        hold."""
+        if self.restrictions != "symmetry" and self.price_terms:
+            return (f"the {self.family} family in a comparison needs homogeneity and symmetry "
+                    "(a cost function exists only then): fit with restrictions 'symmetry'")
+        return None
+
     def check_identified(self, panel: Panel) -> None:
         names = self.item_names
         m = self.n_items - 1
@@ -272,6 +307,14 @@ class AlmostIdealShares(ShareSystem):
             "prices", f"collinear prices: {', '.join(found)} are linearly dependent over the "
             "sample, so their effects on the shares cannot be told apart; the fit needs prices "
             f"that move independently{hint}")
+
+
+class QuadraticAlmostIdealShares(AlmostIdealShares):
+    """QUAIDS: AIDS with the quadratic expenditure term always in (Banks, Blundell and Lewbel
+    1997); asking for the term again is allowed."""
+
+    family = "quaids"
+    always_quadratic = True
 
 
 def restriction_tests(unrestricted: AlmostIdealShares, fit: SystemFit,

@@ -34,17 +34,16 @@ the Marshallian elasticity is that minus ``delta_ij``, and every expenditure ela
 
 from __future__ import annotations
 
-from collections.abc import Mapping, Sequence
 from dataclasses import dataclass
-from numbers import Integral
 from typing import Any
 
 import numpy as np
 
 from .._means import log_power_mean
 from ..errors import InvalidInput
+from ..preferences.nested_ces import FIT_TREE, parse_tree
 from .panel import Panel
-from .system import Array3, Label, Matrix, ShareSystem, Vector
+from .system import Array3, FitOptions, Label, Matrix, ShareSystem, Vector
 
 
 def softmax_rows(logits: Matrix) -> Matrix:
@@ -66,6 +65,12 @@ class CESShares(ShareSystem):
     """Flat CES: ``theta = (sigma, ln delta_1, ..., ln delta_{n-1})``."""
 
     family = "ces"
+    method = "nonlinear least squares on the CES share equations"
+
+    @classmethod
+    def from_options(cls, n_items: int, options: FitOptions) -> CESShares:
+        options.refuse_all_but(cls.family, cls.takes)
+        return cls(n_items)
 
     def __init__(self, n_items: int) -> None:
         self.n_items = n_items
@@ -121,6 +126,14 @@ class CESShares(ShareSystem):
         marshallian = r * (np.eye(n) - w[None, :]) - np.eye(n)
         return w, np.ones(n), marshallian
 
+    def comparison_obstacle(self, theta: Vector) -> str | None:
+        """A sigma below zero: no CES cost function has it (Arrow et al. 1961 need sigma >= 0)."""
+        sigma = self.spec(theta)["sigma"]
+        if sigma < 0.0:
+            return (f"the estimated elasticity of substitution is {sigma:.6g}, below zero: no CES "
+                    "cost function has it, so there is no Konüs index to compute")
+        return None
+
     def check_identified(self, panel: Panel) -> None:
         if float(np.max(_relative_price_spread(panel.log_prices, panel.weights))) <= 1e-12:
             raise InvalidInput(
@@ -144,6 +157,16 @@ class GroupTree:
     parents: tuple[int, ...]
     children: tuple[tuple[int, ...], ...]
 
+    @classmethod
+    def parse(cls, spec: Any, n_items: int) -> GroupTree:
+        """Check a grouping ``{"name", "children": [item | group, ...]}`` with no sigma (it is
+        what the fit estimates) and two children or more per group, items as positions or, in an
+        :class:`~dualcost.core.preferences.nested_ces.ItemIdTree`, by id. The tree reader is
+        the nested CES family's (:func:`~dualcost.core.preferences.nested_ces.parse_tree`), so
+        errors point into the tree the same way; groups are numbered in the order listed."""
+        tree = parse_tree(spec, n_items, form=FIT_TREE)
+        return cls(n_items, tree.labels, tree.parents, tree.children)
+
     @property
     def n_groups(self) -> int:
         return len(self.names)
@@ -159,90 +182,18 @@ class GroupTree:
         return member
 
 
-def parse_tree(spec: Any, n_items: int) -> GroupTree:
-    """Check a grouping ``{"name", "children": [item position | group, ...]}`` (no sigma: it is
-    what the fit estimates). Walks with an explicit stack, so depth costs no recursion."""
-    if not isinstance(spec, Mapping):
-        raise InvalidInput("tree", "must be a group: an object with 'children' (and an optional "
-                           "'name')")
-    names: list[str] = []
-    parents: list[int] = []
-    children: list[list[int]] = []
-    owner: dict[int, str] = {}
-    stack: list[tuple[Mapping[str, Any], int, str]] = [(spec, -1, "")]
-    order: list[tuple[int, int]] = []  # (parent group, child group) links to fill in
-    while stack:
-        node, parent, where = stack.pop()
-        g = len(names)
-        unknown = sorted(str(k) for k in node if k not in ("name", "children"))
-        if unknown:
-            extra = " (sigma is what the fit estimates; leave it out)" if "sigma" in unknown else ""
-            raise InvalidInput("tree", f"group {where or 'at the root'} has unknown key(s) "
-                               f"{', '.join(map(repr, unknown))}; a group takes 'name' and "
-                               f"'children'{extra}")
-        name = node.get("name")
-        if name is None:
-            name = "all items" if parent < 0 else f"group {g}"
-        if not isinstance(name, str) or not name.strip():
-            raise InvalidInput("tree", f"a group name must be non-empty text, got {name!r}")
-        name = name.strip()
-        if name in names:
-            raise InvalidInput("tree", f"two groups are named {name!r}; group names must be unique")
-        names.append(name)
-        parents.append(parent)
-        children.append([])
-        if parent >= 0:
-            order.append((parent, g))
-        kids = node.get("children")
-        if isinstance(kids, (str, bytes)) or not isinstance(kids, Sequence) or len(kids) < 2:
-            raise InvalidInput("tree", f"group {name!r} needs at least two children (items or "
-                               "groups): with fewer there is no substitution to estimate")
-        subgroups: list[Mapping[str, Any]] = []
-        for child in kids:
-            if isinstance(child, Integral) and not isinstance(child, bool):
-                i = int(child)
-                if not 0 <= i < n_items:
-                    raise InvalidInput("tree", f"group {name!r} lists item {i}, but item "
-                                       f"positions run from 0 to {n_items - 1}")
-                if i in owner:
-                    raise InvalidInput("tree", f"item {i} is listed twice (in {owner[i]!r} and "
-                                       f"{name!r}); every item belongs to one group")
-                owner[i] = name
-                children[g].append(i)
-            elif isinstance(child, Mapping):
-                children[g].append(-1)  # placeholder for the subgroup's id, linked below
-                subgroups.append(child)
-            else:
-                raise InvalidInput("tree", f"group {name!r} has a child {child!r} that is "
-                                   "neither an item nor a group")
-        # Pushed in reverse so that they are popped, and numbered, in the order listed.
-        stack.extend((child, g, repr(name)) for child in reversed(subgroups))
-    missing = [i for i in range(n_items) if i not in owner]
-    if missing:
-        raise InvalidInput("tree", f"item {missing[0]} is in no group; every item must appear "
-                           "once in the tree")
-    _link_placeholders(children, order, n_items)
-    return GroupTree(n_items, tuple(names), tuple(parents), tuple(tuple(c) for c in children))
-
-
-def _link_placeholders(children: list[list[int]], links: list[tuple[int, int]], n: int) -> None:
-    """Replace each subgroup placeholder by the subgroup's node id; a parent's subgroups were
-    created in the order they are listed."""
-    created: dict[int, list[int]] = {}
-    for parent, g in links:
-        created.setdefault(parent, []).append(g)
-    for parent, kids in enumerate(children):
-        it = iter(created.get(parent, []))
-        for j, c in enumerate(kids):
-            if c < 0:
-                kids[j] = n + next(it)
-
-
 class NestedCESShares(ShareSystem):
     """Nested CES: ``theta`` holds each group's sigma, then each group's ``ln delta`` of all its
     children but the last."""
 
     family = "nested_ces"
+    takes = frozenset({"tree"})
+    method = "nonlinear least squares on the nested CES share equations, all groups jointly"
+
+    @classmethod
+    def from_options(cls, n_items: int, options: FitOptions) -> NestedCESShares:
+        options.refuse_all_but(cls.family, cls.takes)
+        return cls(GroupTree.parse(options.tree, n_items))
 
     def __init__(self, tree: GroupTree) -> None:
         self.tree = tree
@@ -334,6 +285,14 @@ class NestedCESShares(ShareSystem):
                 d[i] += r * (member[node] * w / node_w[node] - member[n + g] * w / node_w[n + g])
                 node = n + g
         return w, np.ones(n), d - np.eye(n)
+
+    def comparison_obstacle(self, theta: Vector) -> str | None:
+        """The first group whose sigma is below zero: no nested CES cost function has it."""
+        for label, value in zip(self.full_labels, self.full(theta), strict=True):
+            if label.symbol == "sigma" and value < 0.0:
+                return (f"the estimated sigma of group {label.group!r} is {float(value):.6g}, "
+                        "below zero: no nested CES cost function has it")
+        return None
 
     def check_identified(self, panel: Panel) -> None:
         n = self.n_items

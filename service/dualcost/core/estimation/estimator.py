@@ -25,7 +25,7 @@ is zero or more and income exceeds the subsistence cost (Deaton and Muellbauer 1
 from __future__ import annotations
 
 from collections.abc import Sequence
-from dataclasses import dataclass, field, replace
+from dataclasses import dataclass, field
 from typing import Any
 
 import numpy as np
@@ -36,23 +36,29 @@ from ..elasticities import ElasticityTable, elasticity_table
 from ..errors import DualcostError, InvalidInput
 from ..preferences.aids import AIDS, QUAIDS
 from ..preferences.base import Notice, slutsky_notices
-from .almost_ideal import AlmostIdealShares, RestrictionTest, restriction_tests
-from .ces import CESShares, NestedCESShares, parse_tree
+from .almost_ideal import (
+    AlmostIdealShares,
+    QuadraticAlmostIdealShares,
+    RestrictionTest,
+    restriction_tests,
+)
+from .ces import CESShares, NestedCESShares
 from .les import LinearExpenditureShares
 from .panel import Panel
-from .system import Label, Matrix, ShareSystem, SystemFit, Vector, fit_system
+from .system import FitOptions, Label, Matrix, ShareSystem, SystemFit, Vector, fit_system
 
-FITTED_FAMILIES = ("ces", "nested_ces", "stone_geary", "aids", "quaids")
+#: The share system of each family that can be fitted, in the order they are listed to users.
+FITTED_SYSTEMS: dict[str, type[ShareSystem]] = {
+    "ces": CESShares,
+    "nested_ces": NestedCESShares,
+    "stone_geary": LinearExpenditureShares,
+    "aids": AlmostIdealShares,
+    "quaids": QuadraticAlmostIdealShares,
+}
+FITTED_FAMILIES = tuple(FITTED_SYSTEMS)
 #: At most this many observations are named one by one in a regularity report.
 LISTED = 50
 
-METHODS = {
-    "ces": "nonlinear least squares on the CES share equations",
-    "nested_ces": "nonlinear least squares on the nested CES share equations, all groups jointly",
-    "stone_geary": "nonlinear least squares on the linear expenditure system's share equations",
-    "nonlinear": "iterated nonlinear least squares on the AIDS (or QUAIDS) share equations",
-    "linear_approximate": "least squares on the linear approximate AIDS with Stone's price index",
-}
 COVARIANCE = ("HC1 heteroskedasticity-robust covariance (MacKinnon and White 1985), clustered by "
               "observation across the share equations (Liang and Zeger 1986)")
 SYSTEM = ("the last item's equation is dropped (adding-up) and the others are fitted jointly, the "
@@ -119,52 +125,15 @@ class FitResult:
 
     def comparison_obstacle(self) -> str | None:
         """Why the fitted model cannot calibrate its family for a comparison, or ``None``."""
-        spec = self.spec
-        if self.family in ("aids", "quaids"):
-            if self.restrictions != "symmetry" and self.system.price_terms:  # type: ignore[attr-defined]
-                return (f"the {self.family} family in a comparison needs homogeneity and symmetry "
-                        "(a cost function exists only then): fit with restrictions 'symmetry'")
-            return None
-        if self.family == "ces" and spec["sigma"] < 0.0:
-            return (f"the estimated elasticity of substitution is {spec['sigma']:.6g}, below zero: "
-                    "no CES cost function has it, so there is no Konüs index to compute")
-        if self.family == "nested_ces":
-            low = [g for g in self.parameters if g.label.symbol == "sigma" and g.estimate < 0.0]
-            if low:
-                return (f"the estimated sigma of group {low[0].label.group!r} is "
-                        f"{low[0].estimate:.6g}, below zero: no nested CES cost function has it")
-        return None
+        return self.system.comparison_obstacle(self.theta)
 
 
-def _system(family: str, n: int, *, estimator: str | None, restrictions: str | None,
-            quadratic: bool, price_terms: bool | None, alpha0: float | None, tree: Any,
-            item_names: Sequence[str] | None) -> ShareSystem:
+def fitted_system(family: str, n_items: int, options: FitOptions) -> ShareSystem:
+    """The share system of ``family`` for ``n_items`` items, built from the options it takes."""
     if family not in FITTED_FAMILIES:
         raise InvalidInput("family", f"cannot fit family {family!r}; the fitted families are "
                            f"{', '.join(FITTED_FAMILIES)}")
-    almost_ideal = family in ("aids", "quaids")
-    for name, value in (("estimator", estimator), ("restrictions", restrictions),
-                        ("price_terms", price_terms), ("alpha0", alpha0)):
-        if value is not None and not almost_ideal:
-            raise InvalidInput(name, f"applies only to the aids and quaids families, not {family}")
-    if quadratic and family != "aids" and family != "quaids":
-        raise InvalidInput("quadratic", f"applies only to the aids family, not {family}")
-    if tree is not None and family != "nested_ces":
-        raise InvalidInput("tree", f"applies only to the nested_ces family, not {family}")
-    if family == "ces":
-        return CESShares(n)
-    if family == "nested_ces":
-        if tree is None:
-            raise InvalidInput("tree", "is required: give the grouping of the items (groups with "
-                               "'name' and 'children')")
-        return NestedCESShares(parse_tree(tree, n))
-    if family == "stone_geary":
-        return LinearExpenditureShares(n)
-    return AlmostIdealShares(
-        n, restrictions=restrictions or "symmetry", quadratic=quadratic or family == "quaids",
-        price_terms=True if price_terms is None else price_terms,
-        estimator=estimator or "nonlinear", alpha0=0.0 if alpha0 is None else alpha0,
-        item_names=item_names)
+    return FITTED_SYSTEMS[family].from_options(n_items, options)
 
 
 def fit(
@@ -183,65 +152,29 @@ def fit(
     item_names: Sequence[str] | None = None,
     max_jacobian: int | None = None,
 ) -> FitResult:
-    """Fit ``family`` to ``panel``.
+    """Fit ``family`` (one of :data:`FITTED_FAMILIES`) to ``panel`` (:class:`Panel`).
 
-    Parameters
-    ----------
-    panel:
-        The budget data (:class:`Panel`).
-    family:
-        One of :data:`FITTED_FAMILIES`.
-    estimator, restrictions, quadratic, price_terms, alpha0:
-        AIDS and QUAIDS only: ``"nonlinear"`` (default) or ``"linear_approximate"``;
-        ``"none"``, ``"homogeneity"`` or ``"symmetry"`` (default); the quadratic expenditure
-        term (QUAIDS); ``False`` to fix every ``gamma_ij`` at 0 (Engel curves); ``alpha0``
-        (default 0).
-    tree:
-        Nested CES only: the grouping, ``{"name", "children": [item position | group]}``.
-    confidence_level:
-        Of every interval, strictly between 0 and 1.
-    point:
-        ``(prices, total expenditure)`` where elasticities are evaluated; default the sample's
-        weighted geometric means.
-    max_iterations:
-        Of the iterated least squares; exceeding it raises :class:`NumericalFailure`.
-    item_names:
-        Used in messages about collinear prices.
-    max_jacobian:
-        Refuse a fit whose Jacobian (observations x equations x parameters) has more entries.
+    ``estimator``, ``restrictions``, ``quadratic``, ``price_terms``, ``alpha0`` and ``tree`` are
+    the family's options (see :class:`FitOptions`); a family refuses those it does not take.
+    ``confidence_level`` is of every interval, strictly between 0 and 1; ``point`` is
+    ``(prices, total expenditure)`` where elasticities are evaluated (default the sample's
+    weighted geometric means); exceeding ``max_iterations`` of the iterated least squares raises
+    :class:`NumericalFailure`; ``item_names`` are used in messages about collinear prices;
+    a fit whose Jacobian (observations x equations x parameters) has more entries than
+    ``max_jacobian`` is refused.
     """
     level = float(confidence_level)
     if not 0.0 < level < 1.0:
         raise InvalidInput("confidence_level", f"must be strictly between 0 and 1, got {level:g}")
     if int(max_iterations) < 1:
         raise InvalidInput("max_iterations", "must be at least 1")
-    n = panel.n_items
-    system = _system(family, n, estimator=estimator, restrictions=restrictions,
-                     quadratic=quadratic, price_terms=price_terms, alpha0=alpha0, tree=tree,
-                     item_names=item_names)
-    size = panel.n_obs * (n - 1) * system.n_parameters
-    if max_jacobian is not None and size > max_jacobian:
-        raise InvalidInput("observations", f"the fit is too large: {panel.n_obs} observations x "
-                           f"{n - 1} equations x {system.n_parameters} parameters = {size} "
-                           f"Jacobian entries, above the limit of {max_jacobian}; use fewer "
-                           "observations or items (or group the items)")
+    system = fitted_system(family, panel.n_items, FitOptions(
+        estimator=estimator, restrictions=restrictions, price_terms=price_terms, alpha0=alpha0,
+        quadratic=quadratic, tree=tree, item_names=item_names))
+    _check_jacobian_size(panel, system, max_jacobian)
     at = _point(panel, point)
     result = fit_system(system, panel, max_iterations=int(max_iterations))
-    tests: tuple[RestrictionTest, ...] = ()
-    notices = list(panel.notices)
-    if isinstance(system, AlmostIdealShares):
-        tests = _tests(system, panel, result, int(max_iterations))
-        if system.linear:
-            notices.append(Notice(
-                "linear_approximation", "The linear approximate AIDS replaces ln a(p) by Stone's "
-                "price index; its estimates are read as the parameters of the exact AIDS with "
-                f"alpha0 = {system.alpha0:g} for the elasticities, the regularity checks and the "
-                "model specification, which is an approximation."))
-        if not system.price_terms:
-            notices.append(Notice(
-                "engel_curves_only", "price_terms is false: every gamma_ij is fixed at 0, so the "
-                "fit describes how shares change with total expenditure only (Engel curves), and "
-                "the price elasticities follow from that assumption, not from the data."))
+    tests, notices = _tests_and_notices(system, panel, result, int(max_iterations))
     parameters = _parameter_table(system, result, level)
     table = elasticity_table(system, result.theta, result.covariance, *at)
     if not np.all(np.isfinite(table.expenditure)):
@@ -250,35 +183,47 @@ def fit(
                               "and left empty."))
     regularity = _regularity(system, result, panel)
     notices.extend(_regularity_notices(regularity))
-    fitted = FitResult(
-        family=system.family,
-        estimator=getattr(system, "estimator", None),
-        restrictions=getattr(system, "restrictions", None) if system.family in ("aids", "quaids")
-        else None,
-        method=f"{METHODS[getattr(system, 'estimator', family)]}; {SYSTEM}",
-        covariance_type=COVARIANCE,
-        system=system,
-        theta=result.theta,
-        covariance=result.covariance,
-        parameters=parameters,
-        spec=system.spec(result.theta),
-        fit=result,
-        tests=tests,
-        elasticities=table,
-        regularity=regularity,
-        confidence_level=level,
-        notices=tuple(notices),
-    )
-    obstacle = fitted.comparison_obstacle()
+    obstacle = system.comparison_obstacle(result.theta)
     if obstacle is not None:
         notices.append(Notice("not_comparable", f"The fitted model cannot be used in a "
                               f"comparison: {obstacle}."))
-        fitted = _replace_notices(fitted, notices)
-    return fitted
+    return FitResult(
+        family=system.family, estimator=system.estimator, restrictions=system.restrictions,
+        method=f"{system.method}; {SYSTEM}", covariance_type=COVARIANCE, system=system,
+        theta=result.theta, covariance=result.covariance, parameters=parameters,
+        spec=system.spec(result.theta), fit=result, tests=tests, elasticities=table,
+        regularity=regularity, confidence_level=level, notices=tuple(notices))
 
 
-def _replace_notices(result: FitResult, notices: list[Notice]) -> FitResult:
-    return replace(result, notices=tuple(notices))
+def _check_jacobian_size(panel: Panel, system: ShareSystem, max_jacobian: int | None) -> None:
+    n = panel.n_items
+    size = panel.n_obs * (n - 1) * system.n_parameters
+    if max_jacobian is not None and size > max_jacobian:
+        raise InvalidInput("observations", f"the fit is too large: {panel.n_obs} observations x "
+                           f"{n - 1} equations x {system.n_parameters} parameters = {size} "
+                           f"Jacobian entries, above the limit of {max_jacobian}; use fewer "
+                           "observations or items (or group the items)")
+
+
+def _tests_and_notices(system: ShareSystem, panel: Panel, result: SystemFit, max_iterations: int
+                       ) -> tuple[tuple[RestrictionTest, ...], list[Notice]]:
+    """The restriction tests (AIDS and QUAIDS) and the notices of the data and the estimator."""
+    notices = list(panel.notices)
+    if not isinstance(system, AlmostIdealShares):
+        return (), notices
+    tests = _tests(system, panel, result, max_iterations)
+    if system.linear:
+        notices.append(Notice(
+            "linear_approximation", "The linear approximate AIDS replaces ln a(p) by Stone's "
+            "price index; its estimates are read as the parameters of the exact AIDS with "
+            f"alpha0 = {system.alpha0:g} for the elasticities, the regularity checks and the "
+            "model specification, which is an approximation."))
+    if not system.price_terms:
+        notices.append(Notice(
+            "engel_curves_only", "price_terms is false: every gamma_ij is fixed at 0, so the "
+            "fit describes how shares change with total expenditure only (Engel curves), and "
+            "the price elasticities follow from that assumption, not from the data."))
+    return tests, notices
 
 
 def _point(panel: Panel, point: tuple[npt.ArrayLike, float] | None) -> tuple[Vector, float]:

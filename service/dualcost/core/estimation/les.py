@@ -25,13 +25,19 @@ import numpy as np
 from ..errors import InvalidInput
 from .ces import _relative_price_spread
 from .panel import Panel
-from .system import Array3, Label, Matrix, ShareSystem, Vector
+from .system import Array3, FitOptions, Label, Matrix, ShareSystem, Vector
 
 
 class LinearExpenditureShares(ShareSystem):
     """``theta = (gamma_1, ..., gamma_n, beta_1, ..., beta_{n-1})``."""
 
     family = "stone_geary"
+    method = "nonlinear least squares on the linear expenditure system's share equations"
+
+    @classmethod
+    def from_options(cls, n_items: int, options: FitOptions) -> LinearExpenditureShares:
+        options.refuse_all_but(cls.family, cls.takes)
+        return cls(n_items)
 
     def __init__(self, n_items: int) -> None:
         n = n_items

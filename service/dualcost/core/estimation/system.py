@@ -33,9 +33,9 @@ the residual degrees of freedom of one equation in that case.
 from __future__ import annotations
 
 import abc
-from collections.abc import Sequence
-from dataclasses import dataclass
-from typing import Any
+from collections.abc import Collection, Sequence
+from dataclasses import dataclass, fields
+from typing import Any, ClassVar, TypeVar
 
 import numpy as np
 from numpy.typing import NDArray
@@ -72,27 +72,102 @@ class Label:
         return f"{self.symbol}[{','.join(inside)}]" if inside else self.symbol
 
 
+#: Where each option of a fit applies, for the message that refuses it elsewhere; in the order
+#: the options are checked.
+_APPLIES_TO = {
+    "estimator": "the aids and quaids families",
+    "restrictions": "the aids and quaids families",
+    "price_terms": "the aids and quaids families",
+    "alpha0": "the aids and quaids families",
+    "quadratic": "the aids family",
+    "tree": "the nested_ces family",
+}
+
+
+@dataclass(frozen=True)
+class FitOptions:
+    """The options of a fit that shape its share system, as the caller gave them (``None`` or
+    ``False``: not given); each family takes some and refuses the others.
+
+    Parameters
+    ----------
+    estimator, restrictions, quadratic, price_terms, alpha0:
+        AIDS and QUAIDS only: ``"nonlinear"`` (default) or ``"linear_approximate"``;
+        ``"none"``, ``"homogeneity"`` or ``"symmetry"`` (default); the quadratic expenditure
+        term (QUAIDS); ``False`` to fix every ``gamma_ij`` at 0 (Engel curves); ``alpha0``
+        (default 0).
+    tree:
+        Nested CES only: the grouping, ``{"name", "children": [item position | group]}``, or
+        an :class:`~dualcost.core.preferences.nested_ces.ItemIdTree` naming items by id.
+    item_names:
+        Used in messages about collinear prices.
+    """
+
+    estimator: str | None = None
+    restrictions: str | None = None
+    price_terms: bool | None = None
+    alpha0: float | None = None
+    quadratic: bool = False
+    tree: Any = None
+    item_names: Sequence[str] | None = None
+
+    def refuse_all_but(self, family: str, taken: Collection[str]) -> None:
+        """Raise :class:`InvalidInput` for the first option given that ``family`` does not take."""
+        defaults = {f.name: f.default for f in fields(self)}
+        for name, applies_to in _APPLIES_TO.items():
+            value = getattr(self, name)
+            # A flag is given when it is set; any other option when it is not None.
+            given = bool(value) if isinstance(defaults[name], bool) else value is not None
+            if given and name not in taken:
+                raise InvalidInput(name, f"applies only to {applies_to}, not {family}")
+
+
+_System = TypeVar("_System", bound="ShareSystem")
+
+
 class ShareSystem(abc.ABC):
     """Budget shares as a function of free parameters ``theta``, prices and total expenditure.
 
     ``full_map`` turns the free parameters into the model's structural parameters (every item's,
     including those fixed by adding-up, homogeneity, symmetry or a normalisation):
     ``phi = A theta + c``, labelled by ``full_labels``.
+
+    A family's system says itself which options of a fit it takes (:meth:`from_options`), how it
+    is estimated (:attr:`method`) and why a fitted model could not be compared
+    (:meth:`comparison_obstacle`).
     """
 
     #: The preference family (in :data:`dualcost.core.preferences.FAMILIES`) the fit describes.
     family: str
     #: True when the shares are linear in ``theta`` given the data (solved in closed form).
     linear: bool = False
+    #: The options of :class:`FitOptions` the family takes.
+    takes: ClassVar[frozenset[str]] = frozenset()
+    #: How the parameters are estimated, in words.
+    method: str
+    #: The estimator chosen and the restrictions imposed, where the family offers a choice.
+    estimator: str | None = None
+    restrictions: str | None = None
 
     n_items: int
     labels: tuple[Label, ...]
     full_labels: tuple[Label, ...]
     full_map: tuple[Matrix, Vector]
 
+    @classmethod
+    @abc.abstractmethod
+    def from_options(cls: type[_System], n_items: int, options: FitOptions) -> _System:
+        """The system for ``n_items`` items, built from the options it takes; any other option
+        given is refused (:meth:`FitOptions.refuse_all_but`)."""
+
     @property
     def n_parameters(self) -> int:
         return len(self.labels)
+
+    def comparison_obstacle(self, theta: Vector) -> str | None:
+        """Why the model fitted at ``theta`` cannot calibrate its family for a comparison (no
+        cost function has those parameters), or ``None``."""
+        return None
 
     @abc.abstractmethod
     def shares(self, theta: Vector, log_prices: Matrix, log_expenditure: Vector) -> Matrix:

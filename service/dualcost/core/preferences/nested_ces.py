@@ -63,10 +63,14 @@ IndexArray = NDArray[np.intp]
 
 #: The root group's name when the tree does not give one.
 ROOT_NAME = "all items"
-_GROUP_KEYS = frozenset(("name", "sigma", "children"))
 # Beyond this shifted exponent an exp could overflow; the shift moves to the largest term.
 _SHIFT_LIMIT = 30.0
 _TINY = float(np.finfo(np.float64).tiny)
+
+#: A place in the tree as the request writes it: the keys and list positions that lead there from
+#: the tree object, ``("children", 1, "children", 0)`` for the first child of the second child,
+#: ``("children", 2, "sigma")`` for that group's sigma; ``()`` is the tree itself.
+TreePath = tuple[int | str, ...]
 
 
 # -- the tree as given: parsing and validation ------------------------------------------------
@@ -86,54 +90,86 @@ class _Tree:
     children: tuple[tuple[int, ...], ...]
 
 
-def _path(labels: Sequence[str | None], parents: Sequence[int], group: int) -> str:
-    """``'all items > food > fresh'``: the group's name preceded by its ancestors'."""
-    parts = []
-    while group >= 0:
-        parts.append(str(labels[group]))
-        group = parents[group]
-    return " > ".join(reversed(parts))
+@dataclass(frozen=True)
+class TreeForm:
+    """What a group of the tree holds in one use of it, and how the tree's rules are worded there.
+
+    A model gives every group its elasticity of substitution; a fit leaves the sigmas out (they
+    are what it estimates) and needs two children per group, or there is no substitution to
+    estimate. ``default_label(g, position)`` names an unnamed group from its number in listed
+    order and its 1-based position among its parent's children; ``unique_defaults`` says whether
+    those stand-in names count in the check that names are unique. ``wording`` holds one
+    :meth:`str.format` template per rule.
+    """
+
+    keys: frozenset[str]
+    with_sigma: bool
+    min_children: int
+    default_label: Callable[[int, int], str]
+    unique_defaults: bool
+    wording: Mapping[str, str]
 
 
-def _tree_error(rule: str) -> InvalidInput:
-    return InvalidInput("tree", rule)
+_MODEL_WORDING: dict[str, str] = {
+    "required": "is required: give the grouping of items as a group with sigma and children",
+    "not_a_group": "must be a group: an object with 'sigma' and 'children' (and an optional "
+                   "'name')",
+    "bad_name": "{where} has name {name!r}; a group name must be non-empty text",
+    "group_twice": "group '{path}' appears more than once in the tree (or inside itself); every "
+                   "group must appear once",
+    "unknown_keys": "group '{path}' has unknown key(s) {keys}; a group takes 'name', 'sigma' and "
+                    "'children'",
+    "same_name": "two groups are named '{label}' ('{other}' and '{path}'); group names must be "
+                 "unique",
+    "no_sigma": "group '{path}' has no sigma; give its elasticity of substitution (0 or more)",
+    "sigma_not_number": "group '{path}' has sigma {raw!r}, which is not a number",
+    "sigma_not_finite": "group '{path}' has sigma {sigma}; it must be a finite number",
+    "sigma_negative": "group '{path}' has sigma {sigma:g}; an elasticity of substitution must be "
+                      "zero or more",
+    "few_children": "group '{path}' has no children; every group needs at least one item "
+                    "position or subgroup in 'children'",
+    "unknown_id": "group '{path}' lists {child!r}, which is not one of the items",
+    "out_of_range": "group '{path}' lists item {i}, but item positions run from 0 to {last} "
+                    "(there are {n} items)",
+    "too_deep": "child {k} of group '{path}' makes the tree deeper than the limit of {max_depth} "
+                "levels",
+    "bad_child": "child {k} of group '{path}' is {child!r}, which is neither {item} nor a group "
+                 "(an object with sigma and children)",
+    "item_twice": "item {i} appears twice, in '{first}' {second}; every item must appear exactly "
+                  "once",
+    "missing": "{noun} {shown} {verb} not in the tree; every item position from 0 to {last} must "
+               "appear exactly once",
+}
 
+#: The tree of a nested CES model: ``{"name", "sigma", "children"}`` per group.
+MODEL_TREE = TreeForm(
+    keys=frozenset(("name", "sigma", "children")), with_sigma=True, min_children=1,
+    default_label=lambda g, position: f"group #{position}", unique_defaults=False,
+    wording=_MODEL_WORDING,
+)
 
-def _check_group_sigma(spell_where: Callable[[], str], node: Mapping[str, Any]) -> float:
-    """The group's sigma, checked; ``spell_where`` gives its path for a message."""
-    raw = node.get("sigma")
-    if type(raw) is float and 0.0 <= raw < math.inf:
-        return raw
-    where = spell_where()
-    if raw is None:
-        raise _tree_error(
-            f"group '{where}' has no sigma; give its elasticity of substitution (0 or more)"
-        )
-    if isinstance(raw, bool) or not isinstance(raw, Real):
-        raise _tree_error(f"group '{where}' has sigma {raw!r}, which is not a number")
-    sigma = float(raw)
-    if not math.isfinite(sigma):
-        raise _tree_error(f"group '{where}' has sigma {sigma}; it must be a finite number")
-    if sigma < 0.0:
-        raise _tree_error(
-            f"group '{where}' has sigma {sigma:g}; an elasticity of substitution must be zero "
-            "or more"
-        )
-    return sigma
-
-
-def _group_label(node: Mapping[str, Any], parents: Sequence[int], labels: Sequence[str | None],
-                 g: int, position: int) -> str:
-    """The group's own name, or a stand-in saying where it sits when it has none."""
-    name = node.get("name")
-    if name is None:
-        return ROOT_NAME if parents[g] < 0 else f"group #{position}"
-    if not isinstance(name, str) or not name.strip():
-        where = "the root group" if parents[g] < 0 else (
-            f"child {position} of '{_path(labels, parents, parents[g])}'"
-        )
-        raise _tree_error(f"{where} has name {name!r}; a group name must be non-empty text")
-    return name.strip()
+#: The grouping of a nested CES fit: ``{"name", "children"}`` per group, two children or more.
+#: Its rules keep the words the fit's answers have always used.
+FIT_TREE = TreeForm(
+    keys=frozenset(("name", "children")), with_sigma=False, min_children=2,
+    default_label=lambda g, position: f"group {g}", unique_defaults=True,
+    wording=_MODEL_WORDING | {
+        "required": "is required: give the grouping of the items (groups with 'name' and "
+                    "'children')",
+        "not_a_group": "must be a group: an object with 'children' (and an optional 'name')",
+        "bad_name": "a group name must be non-empty text, got {name!r}",
+        "unknown_keys": "group {parent} has unknown key(s) {keys}; a group takes 'name' and "
+                        "'children'{extra}",
+        "same_name": "two groups are named {label!r}; group names must be unique",
+        "few_children": "group {label!r} needs at least two children (items or groups): with "
+                        "fewer there is no substitution to estimate",
+        "out_of_range": "group {label!r} lists item {i}, but item positions run from 0 to {last}",
+        "bad_child": "group {label!r} has a child {child!r} that is neither an item nor a group",
+        "item_twice": "item {i} is listed twice (in {owner!r} and {label!r}); every item belongs "
+                      "to one group",
+        "missing": "item {first_missing} is in no group; every item must appear once in the tree",
+    },
+)
 
 
 @dataclass(frozen=True)
@@ -146,125 +182,240 @@ class ItemIdTree:
     max_depth: int | None = None
 
 
-def _parse_tree(spec: Any, n_items: int, item_ids: Mapping[str, int] | None = None,
-                max_depth: int | None = None) -> _Tree:
-    """Check the nested ``{"name", "sigma", "children"}`` spec and flatten it (no recursion).
+def parse_tree(tree: Any, n_items: int, *, form: TreeForm = MODEL_TREE) -> _Tree:
+    """Check a nested tree of item groups and flatten it; the one reader of trees in the core.
 
-    Items are positions ``0..n-1``, or, when ``item_ids`` is given, ids found in it (and only
-    those). A group's path (``'all items > food'``) is spelled out only for an error message:
+    ``tree`` is a group ``{"name", "sigma", "children"}`` (the keys ``form`` takes) whose
+    children are item positions ``0..n-1`` and further groups, or an :class:`ItemIdTree` whose
+    children name items by id and which may limit the depth. Groups are numbered in the order
+    they are listed (depth first), the root 0. Every error is ``InvalidInput("tree", rule,
+    index=path)`` with ``path`` the :data:`TreePath` of the offending place, and its message
+    names the group by its path of names (``'all items > food'``).
+    """
+    if isinstance(tree, ItemIdTree):
+        return _Walk(form, n_items, tree.positions, tree.max_depth).read(tree.spec)
+    return _Walk(form, n_items, None, None).read(tree)
+
+
+def _path(labels: Sequence[str | None], parents: Sequence[int], group: int) -> str:
+    """``'all items > food > fresh'``: the group's name preceded by its ancestors'."""
+    parts = []
+    while group >= 0:
+        parts.append(str(labels[group]))
+        group = parents[group]
+    return " > ".join(reversed(parts))
+
+
+def _is_list(kids: Any) -> bool:
+    """Whether ``children`` is a list of children (type() first: the abstract checks are slow)."""
+    return type(kids) is list or (
+        not isinstance(kids, (str, bytes)) and isinstance(kids, Sequence))
+
+
+def _is_position(child: Any) -> bool:
+    """A whole number that is not a bool (numpy's integers too)."""
+    return type(child) is int or (isinstance(child, Integral) and not isinstance(child, bool))
+
+
+class _Walk:
+    """One pass over a tree in listed order, with an explicit stack so depth costs no recursion.
+
+    A group's path of names (``'all items > food'``) is spelled out only for an error message:
     building it for every group would cost more than the rest of the walk.
     """
-    if spec is None:
-        raise _tree_error(
-            "is required: give the grouping of items as a group with sigma and children"
+
+    def __init__(self, form: TreeForm, n_items: int, item_ids: Mapping[str, int] | None,
+                 max_depth: int | None) -> None:
+        self.form, self.n_items, self.item_ids, self.max_depth = form, n_items, item_ids, max_depth
+        self.labels: list[str] = []
+        self.parents: list[int] = []
+        self.depths: list[int] = []
+        self.places: list[TreePath] = []
+        self.sigmas: list[float] = []
+        self.children: list[list[int]] = []
+        self.owner = [-1] * n_items
+        self.named: dict[str, int] = {}
+        self.seen: set[int] = set()
+
+    def fail(self, rule: str, place: TreePath, g: int | None = None, **facts: Any) -> InvalidInput:
+        """The error of ``rule`` at ``place``, worded by the form; ``g`` is the group being read."""
+        if g is not None:
+            parent = self.parents[g]
+            facts.setdefault("path", _path(self.labels, self.parents, g))
+            facts.setdefault("label", self.labels[g])
+            facts.setdefault("parent", "at the root" if parent < 0 else repr(self.labels[parent]))
+        return InvalidInput("tree", self.form.wording[rule].format(**facts), place)
+
+    def read(self, spec: Any) -> _Tree:
+        """The checked tree: every group read in listed order, then every item accounted for."""
+        if spec is None:
+            raise self.fail("required", ())
+        if not isinstance(spec, Mapping):
+            raise self.fail("not_a_group", ())
+        # (spec of the group, its parent, its position among the parent's children, its place)
+        stack: list[tuple[Mapping[str, Any], int, int, TreePath]] = [(spec, -1, 0, ())]
+        while stack:
+            node, parent, k, place = stack.pop()
+            g = self._open(node, parent, k, place)
+            # Pushed in reverse, so that they are read, and numbered, in the order listed.
+            stack.extend(reversed(self._read_children(node, g)))
+        self._check_every_item_placed()
+        return _Tree(
+            n_items=self.n_items,
+            labels=tuple(self.labels),
+            parents=tuple(self.parents),
+            sigmas=tuple(self.sigmas),
+            children=tuple(tuple(c) for c in self.children),
         )
-    if not isinstance(spec, Mapping):
-        raise _tree_error(
-            "must be a group: an object with 'sigma' and 'children' (and an optional 'name')"
-        )
-    labels: list[str | None] = [None]
-    depths: list[int] = [1]
-    parents: list[int] = [-1]
-    sigmas: list[float] = [math.nan]
-    children: list[list[int]] = [[]]
-    owner = [-1] * n_items
-    named: dict[str, int] = {}
-    visited: set[int] = set()
-    # (spec, group id, 1-based position among its parent's children)
-    stack: list[tuple[Mapping[str, Any], int, int]] = [(spec, 0, 0)]
-    while stack:
-        node, g, position = stack.pop()
-        label = _group_label(node, parents, labels, g, position)
-        labels[g] = label
-        if id(node) in visited:
-            raise _tree_error(
-                f"group '{_path(labels, parents, g)}' appears more than once in the tree (or "
-                "inside itself); every group must appear once"
-            )
-        visited.add(id(node))
-        if not node.keys() <= _GROUP_KEYS:
-            unknown = sorted(str(k) for k in node if k not in _GROUP_KEYS)
-            raise _tree_error(
-                f"group '{_path(labels, parents, g)}' has unknown key(s) "
-                f"{', '.join(map(repr, unknown))}; a group takes 'name', 'sigma' and 'children'"
-            )
-        if g == 0 or node.get("name") is not None:
-            if label in named:
-                other = _path(labels, parents, named[label])
-                raise _tree_error(
-                    f"two groups are named '{label}' ('{other}' and "
-                    f"'{_path(labels, parents, g)}'); group names must be unique"
-                )
-            named[label] = g
-        sigmas[g] = _check_group_sigma(lambda: _path(labels, parents, g), node)  # noqa: B023
+
+    def _open(self, node: Mapping[str, Any], parent: int, k: int, place: TreePath) -> int:
+        """Number the group, link it to its parent and check its own keys (not its children)."""
+        g = len(self.labels)
+        if parent >= 0:
+            self.children[parent][k] = self.n_items + g
+        self.parents.append(parent)
+        self.depths.append(1 if parent < 0 else self.depths[parent] + 1)
+        self.places.append(place)
+        self.children.append([])
+        self.labels.append(self._label(node, g, k + 1))
+        if id(node) in self.seen:
+            raise self.fail("group_twice", place, g)
+        self.seen.add(id(node))
+        if not node.keys() <= self.form.keys:
+            unknown = sorted((key for key in node if key not in self.form.keys), key=str)
+            first = unknown[0] if isinstance(unknown[0], (int, str)) else str(unknown[0])
+            extra = (" (sigma is what the fit estimates; leave it out)"
+                     if "sigma" in unknown and not self.form.with_sigma else "")
+            raise self.fail("unknown_keys", place + (first,), g,
+                            keys=", ".join(repr(str(key)) for key in unknown), extra=extra)
+        self._check_unique(node, g)
+        self.sigmas.append(self._sigma(node, g) if self.form.with_sigma else math.nan)
+        return g
+
+    def _label(self, node: Mapping[str, Any], g: int, position: int) -> str:
+        """The group's own name, or a stand-in saying where it sits when it has none."""
+        name = node.get("name")
+        parent = self.parents[g]
+        if name is None:
+            return ROOT_NAME if parent < 0 else self.form.default_label(g, position)
+        if not isinstance(name, str) or not name.strip():
+            where = "the root group" if parent < 0 else (
+                f"child {position} of '{_path(self.labels, self.parents, parent)}'")
+            raise self.fail("bad_name", self.places[g] + ("name",), where=where, name=name)
+        return name.strip()
+
+    def _check_unique(self, node: Mapping[str, Any], g: int) -> None:
+        """Group names are unique; so is the root's stand-in (and a fit's stand-ins)."""
+        label = self.labels[g]
+        given = node.get("name") is not None
+        if not (given or g == 0 or self.form.unique_defaults):
+            return
+        if label in self.named:
+            place = self.places[g] + ("name",) if given else self.places[g]
+            raise self.fail("same_name", place, g,
+                            other=_path(self.labels, self.parents, self.named[label]))
+        self.named[label] = g
+
+    def _sigma(self, node: Mapping[str, Any], g: int) -> float:
+        """The group's elasticity of substitution: a finite number, zero or more."""
+        raw = node.get("sigma")
+        if type(raw) is float and 0.0 <= raw < math.inf:
+            return raw
+        place = self.places[g] + ("sigma",)
+        if raw is None:
+            raise self.fail("no_sigma", place, g)
+        if isinstance(raw, bool) or not isinstance(raw, Real):
+            raise self.fail("sigma_not_number", place, g, raw=raw)
+        sigma = float(raw)
+        if not math.isfinite(sigma):
+            raise self.fail("sigma_not_finite", place, g, sigma=sigma)
+        if sigma < 0.0:
+            raise self.fail("sigma_negative", place, g, sigma=sigma)
+        return sigma
+
+    def _read_children(self, node: Mapping[str, Any], g: int
+                       ) -> list[tuple[Mapping[str, Any], int, int, TreePath]]:
+        """Place the group's items; its subgroups, to be read next, in the order listed."""
         kids = node.get("children")
-        # type() first: the abstract-class checks are slow.
-        if not kids or (type(kids) is not list and (
-                isinstance(kids, (str, bytes)) or not isinstance(kids, Sequence))):
-            raise _tree_error(
-                f"group '{_path(labels, parents, g)}' has no children; every group needs at "
-                "least one item position or subgroup in 'children'"
-            )
-        mine = children[g]
-        for k, child in enumerate(kids, start=1):
-            # type() first: the abstract-class checks are slow, and trees have thousands of items.
-            if type(child) is str and item_ids is not None:
-                i = item_ids.get(child, -1)
+        place = self.places[g]
+        if not _is_list(kids) or len(kids) < self.form.min_children:
+            raise self.fail("few_children", place + ("children",), g)
+        ids, n, owner = self.item_ids, self.n_items, self.owner
+        mine = self.children[g]
+        subgroups: list[tuple[Mapping[str, Any], int, int, TreePath]] = []
+        for k, child in enumerate(kids):
+            if type(child) is str and ids is not None:
+                i = ids.get(child, -1)
                 if i < 0:
-                    raise _tree_error(f"group '{_path(labels, parents, g)}' lists {child!r}, "
-                                      "which is not one of the items")
-            elif item_ids is None and (
-                    type(child) is int or (isinstance(child, Integral) and not isinstance(child, bool))):
+                    raise self.fail("unknown_id", place + ("children", k), g, child=child)
+            elif ids is None and (type(child) is int or _is_position(child)):
                 i = int(child)
-                if not 0 <= i < n_items:
-                    raise _tree_error(
-                        f"group '{_path(labels, parents, g)}' lists item {i}, but item positions "
-                        f"run from 0 to {n_items - 1} (there are {n_items} items)"
-                    )
+                if not 0 <= i < n:
+                    raise self.fail("out_of_range", place + ("children", k), g, i=i, last=n - 1,
+                                    n=n)
             elif type(child) is dict or isinstance(child, Mapping):
-                cid = len(labels)
-                depth = depths[g] + 1
-                if max_depth is not None and depth > max_depth:
-                    raise _tree_error(f"child {k} of group '{_path(labels, parents, g)}' makes "
-                                      f"the tree deeper than the limit of {max_depth} levels")
-                labels.append(None)
-                depths.append(depth)
-                parents.append(g)
-                sigmas.append(math.nan)
-                children.append([])
-                mine.append(n_items + cid)
-                stack.append((child, cid, k))
+                if self.max_depth is not None and self.depths[g] + 1 > self.max_depth:
+                    raise self.fail("too_deep", place + ("children", k), g, k=k + 1,
+                                    max_depth=self.max_depth)
+                mine.append(-1)  # the subgroup's node id, set when it is read
+                subgroups.append((child, g, k, place + ("children", k)))
                 continue
             else:
-                item = "an item id" if item_ids is not None else "an item position (a whole number)"
-                raise _tree_error(
-                    f"child {k} of group '{_path(labels, parents, g)}' is {child!r}, which is "
-                    f"neither {item} nor a group (an object with sigma and children)"
-                )
+                item = "an item id" if ids is not None else "an item position (a whole number)"
+                raise self.fail("bad_child", place + ("children", k), g, k=k + 1, child=child,
+                                item=item)
             if owner[i] >= 0:
-                first = _path(labels, parents, owner[i])
-                second = "again" if owner[i] == g else f"and in '{_path(labels, parents, g)}'"
-                raise _tree_error(
-                    f"item {i} appears twice, in '{first}' {second}; every item must "
-                    "appear exactly once"
-                )
+                raise self._item_twice(i, g, place + ("children", k))
             owner[i] = g
             mine.append(i)
-    if -1 in owner:
-        missing = [i for i in range(n_items) if owner[i] < 0]
+        return subgroups
+
+    def _item_twice(self, i: int, g: int, place: TreePath) -> InvalidInput:
+        first = self.owner[i]
+        second = "again" if first == g else f"and in '{_path(self.labels, self.parents, g)}'"
+        return self.fail("item_twice", place, g, i=i, first=_path(self.labels, self.parents, first),
+                        second=second, owner=self.labels[first])
+
+    def _check_every_item_placed(self) -> None:
+        n = self.n_items
+        if -1 not in self.owner:
+            return
+        missing = [i for i in range(n) if self.owner[i] < 0]
         shown = ", ".join(str(i) for i in missing[:10]) + (", ..." if len(missing) > 10 else "")
-        noun = "item" if len(missing) == 1 else "items"
-        verb = "is" if len(missing) == 1 else "are"
-        raise _tree_error(
-            f"{noun} {shown} {verb} not in the tree; every item position from 0 to "
-            f"{n_items - 1} must appear exactly once"
-        )
+        one = len(missing) == 1
+        raise self.fail("missing", (), noun="item" if one else "items", shown=shown,
+                        verb="is" if one else "are", last=n - 1, first_missing=missing[0])
+
+
+def _in_reported_order(tree: _Tree) -> _Tree:
+    """The tree with its groups renumbered in the order a model reports them: the root, then
+    each group's subgroups numbered together when the group is reached, groups being reached
+    from the last listed (the order of the service's answers since its first version)."""
+    n = tree.n_items
+    subgroups: list[list[int]] = [[] for _ in tree.parents]
+    for g, parent in enumerate(tree.parents[1:], start=1):
+        subgroups[parent].append(g)  # in listed order: siblings are numbered in that order
+    order, stack = [0], [0]
+    while stack:
+        g = stack.pop()
+        order.extend(subgroups[g])
+        stack.extend(subgroups[g])
+    if order == list(range(len(order))):
+        return tree
+    new = [0] * len(order)
+    for k, g in enumerate(order):
+        new[g] = k
     return _Tree(
-        n_items=n_items,
-        labels=tuple(str(x) for x in labels),
-        parents=tuple(parents),
-        sigmas=tuple(sigmas),
-        children=tuple(tuple(c) for c in children),
+        n_items=n,
+        labels=tuple(tree.labels[g] for g in order),
+        parents=tuple(-1 if tree.parents[g] < 0 else new[tree.parents[g]] for g in order),
+        sigmas=tuple(tree.sigmas[g] for g in order),
+        children=tuple(
+            # Only the children lists with subgroups in them change.
+            tuple(c if c < n else n + new[c - n] for c in tree.children[g]) if subgroups[g]
+            else tree.children[g]
+            for g in order
+        ),
     )
 
 
@@ -421,11 +572,7 @@ class NestedCES(HomotheticPreferences):
     def calibrate(cls, base: BaseBudget, *, tree: Any = None, **_: Any) -> NestedCES:
         """Within-group weights come from the base shares; the caller gives the tree (items as
         positions, or by id in an :class:`ItemIdTree`)."""
-        if isinstance(tree, ItemIdTree):
-            parsed = _parse_tree(tree.spec, base.n_items, tree.positions, tree.max_depth)
-        else:
-            parsed = _parse_tree(tree, base.n_items)
-        return cls(base.shares, base.prices, parsed)
+        return cls(base.shares, base.prices, _in_reported_order(parse_tree(tree, base.n_items)))
 
     # -- evaluation --------------------------------------------------------------------------
     def _log_relatives(self, prices: Vector) -> tuple[Vector, list[Vector]]:

@@ -20,18 +20,20 @@ from __future__ import annotations
 
 from collections import deque
 from collections.abc import Iterable, Iterator
+from functools import partial
 from itertools import islice
 from typing import Any
 
-from .errors import DualcostError
-from .households import ChunkResult, HouseholdChunk, HouseholdJob, evaluate_chunk
+from ..core.errors import EngineUnavailable
+from ..core.households import ChunkResult, Evaluator, HouseholdChunk, HouseholdJob, evaluate_chunk
 
 #: Seconds to wait for the scheduler before giving up.
 CONNECT_TIMEOUT = 10.0
 
 
-class ClusterUnavailable(DualcostError):
-    """Dask is not installed here, or the scheduler cannot be reached."""
+#: The error's name before the engines had a package of their own: Dask is not installed here,
+#: or the scheduler cannot be reached.
+ClusterUnavailable = EngineUnavailable
 
 
 def connect(scheduler: Any) -> tuple[Any, bool]:
@@ -39,14 +41,14 @@ def connect(scheduler: Any) -> tuple[Any, bool]:
     try:
         from distributed import Client
     except ImportError as exc:  # pragma: no cover - the test extra installs it
-        raise ClusterUnavailable("dask.distributed is not installed; install it with pip "
+        raise EngineUnavailable("dask.distributed is not installed; install it with pip "
                                  "install 'dualcost[cluster]'") from exc
     if isinstance(scheduler, Client):
         return scheduler, False
     try:
         client = Client(scheduler, set_as_default=False, timeout=CONNECT_TIMEOUT)
     except (OSError, TimeoutError) as exc:
-        raise ClusterUnavailable(f"the Dask scheduler at {scheduler!r} cannot be reached: "
+        raise EngineUnavailable(f"the Dask scheduler at {scheduler!r} cannot be reached: "
                                  f"{exc}") from exc
     return client, True
 
@@ -86,3 +88,12 @@ def evaluate_on_cluster(
             future.cancel()
         if own:
             client.close()
+
+
+def cluster_evaluator(scheduler: Any, *, chunks_per_task: int = 1,
+                      max_in_flight: int = 8) -> Evaluator:
+    """An evaluator for :func:`dualcost.core.households.run_households` (with
+    ``engine="cluster"``) that runs the chunks on the cluster at ``scheduler``, an address like
+    ``"tcp://10.0.0.5:8786"`` or a ``distributed.Client``."""
+    return partial(evaluate_on_cluster, scheduler=scheduler, chunks_per_task=chunks_per_task,
+                   max_in_flight=max_in_flight)
