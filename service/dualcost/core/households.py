@@ -467,8 +467,9 @@ def _all_at_once(job: HouseholdJob, model: Preferences, rows: NDArray[np.int64],
                       konus_midpoint=change.midpoint.konus,
                       compensating_variation=change.compensating_variation,
                       equivalent_variation=change.equivalent_variation)
+        where = slice(None) if live.size == m.size else live
         for name, v in values.items():
-            out[name][t, live] = v
+            out[name][t, where] = v
     return out, alive
 
 

@@ -529,8 +529,12 @@ class HomotheticPreferences(Preferences):
         households need only the cost at base prices. A family with ``one_pass`` gets both
         whenever one is asked for."""
         key = prices.tobytes() if prices.ndim == 1 else (prices.shape, prices.tobytes())
-        cache: dict[Any, list[Any]] = self.__dict__.setdefault("_evaluations", {})
+        cache: dict[Any, list[Any]] | None = self.__dict__.get("_evaluations")
+        if cache is None:
+            cache = self.__dict__["_evaluations"] = {}
         entry = cache.get(key)
+        if entry is not None and entry[0] is not None and (entry[1] is not None or not shares):
+            return entry
         if entry is None:
             if len(cache) >= _REMEMBERED:
                 cache.clear()
