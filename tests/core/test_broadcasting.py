@@ -77,11 +77,18 @@ def _batch_parameters(family: str, base: BaseBudget, rng: np.random.Generator) -
         "quadratic": {"sigma": 0.4},
         "aids": aids_parameters(rng, base),
         "quaids": aids_parameters(rng, base, quadratic=True),
+        # Cobb-Douglas demands x_i = s_i m / p_i as a constant-elasticity system, and as a
+        # utility formula (Cobb and Douglas 1928); both are evaluated numerically.
+        "demand_system": {"form": "log_linear", "intercepts": np.log(base.shares),
+                          "price_elasticities": -np.eye(base.n_items),
+                          "income_elasticities": np.ones(base.n_items)},
+        "utility_formula": {"utility_formula": " + ".join(
+            f"{w:.3f}*log(x{i + 1})" for i, w in enumerate(base.shares))},
     }[family]
 
 
 BATCH_FAMILIES = ["cobb_douglas", "ces", "nested_ces", "stone_geary", "translog", "quadratic",
-                  "aids", "quaids"]
+                  "aids", "quaids", "demand_system", "utility_formula"]
 
 
 def _households(rng: np.random.Generator, p0: np.ndarray) -> BaseBudget:

@@ -30,7 +30,7 @@ import math
 from collections.abc import Iterator
 from contextlib import contextmanager
 from dataclasses import dataclass, fields, replace
-from typing import Any
+from typing import Any, TypeVar
 
 import numpy as np
 
@@ -49,6 +49,18 @@ def naming(**names: str) -> Iterator[None]:
         raise
 
 
+_R = TypeVar("_R")
+
+
+def _record(cls: type[_R], **values: Any) -> _R:
+    """A frozen record built without its ``__init__``, which sets each field through
+    ``object.__setattr__``: the single comparison builds three per call on its hot path. Every
+    field must be given."""
+    record = object.__new__(cls)
+    record.__dict__.update(values)
+    return record
+
+
 def _root(x: Any) -> Any:
     return math.sqrt(x) if isinstance(x, float) else np.sqrt(x)
 
@@ -65,7 +77,8 @@ class StandardAt:
 def konus_at_income(model: Preferences, p0: Any, p1: Any, income: Any) -> StandardAt:
     """``u = v(p0, m)`` and ``K(u) = e(p1, u) / e(p0, u)`` (Konüs 1924)."""
     u = model.indirect_utility(p0, income)
-    return StandardAt(income, u, model.expenditure(p1, u) / model.expenditure(p0, u))
+    return _record(StandardAt, income=income, utility=u,
+                   konus=model.expenditure(p1, u) / model.expenditure(p0, u))
 
 
 @dataclass(frozen=True)
@@ -157,10 +170,11 @@ def price_change(model: Preferences, p0: Any, p1: Any, m0: Any, m1: Any, *,
         mid = konus_at_income(model, p0, p1, _root(e00 * e01))
     parts = None
     if decomposition:
-        parts = Decomposition(base_demands=x0, base_compensated=h00, base_at_cost=x00,
-                              current_compensated=h11, current_at_cost=x11,
-                              compensated_demands=h10, compensated_at_cost=x10)
-    return PriceChange(
+        parts = _record(Decomposition, base_demands=x0, base_compensated=h00,
+                        base_at_cost=x00, current_compensated=h11, current_at_cost=x11,
+                        compensated_demands=h10, compensated_at_cost=x10)
+    return _record(
+        PriceChange,
         base_prices=p0, current_prices=p1, base_income=m0, current_income=m1,
         base_utility=u0, current_utility=u1, base_cost=e00, current_cost=e11,
         compensated_income=e10, equivalent_income=e01, midpoint=mid,
