@@ -29,7 +29,7 @@ from __future__ import annotations
 import math
 from collections.abc import Iterator
 from contextlib import contextmanager
-from dataclasses import dataclass, fields, replace
+from dataclasses import dataclass
 from typing import Any, TypeVar
 
 import numpy as np
@@ -118,13 +118,14 @@ class PriceChange:
 
     def row(self, h: int) -> PriceChange:
         """Household ``h`` (along the last leading axis) as one comparison: numbers as floats."""
-        picked = {f.name: _pick(getattr(self, f.name), h, f.name in _ITEM_FIELDS)
-                  for f in fields(self) if f.name not in ("midpoint", "decomposition")}
-        mid = StandardAt(*(_pick(getattr(self.midpoint, f.name), h, False)
-                           for f in fields(StandardAt)))
-        parts = None if self.decomposition is None else Decomposition(
-            *(_pick(getattr(self.decomposition, f.name), h, True) for f in fields(Decomposition)))
-        return replace(self, **picked, midpoint=mid, decomposition=parts)
+        picked = {name: _pick(value, h, name in _ITEM_FIELDS) for name, value in vars(self).items()
+                  if name not in ("midpoint", "decomposition")}
+        mid = _record(StandardAt, **{name: _pick(value, h, False)
+                                     for name, value in vars(self.midpoint).items()})
+        parts = None if self.decomposition is None else _record(
+            Decomposition, **{name: _pick(value, h, True)
+                              for name, value in vars(self.decomposition).items()})
+        return _record(PriceChange, **picked, midpoint=mid, decomposition=parts)
 
 
 _ITEM_FIELDS = frozenset({"base_prices", "current_prices", "current_demands"})

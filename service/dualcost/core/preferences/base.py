@@ -653,15 +653,21 @@ class RowModels(Preferences):
     def _by_row(self, method: str, items: bool, prices: Vector, *numbers: Any) -> Any:
         """Call each row's public ``method`` on its slice of the (broadcast) arguments."""
         values = [np.asarray(v, dtype=np.float64) for v in numbers]
-        shape = np.broadcast_shapes(prices.shape[:-1], *(v.shape for v in values),
-                                    self.batch_shape)
+        shape = _leading_shape(prices.shape[:-1], *(v.shape for v in values), self.batch_shape)
         p = np.broadcast_to(prices, (*shape, prices.shape[-1]))
-        vs = [np.broadcast_to(v, shape) for v in values]
         out = np.empty((*shape, self.n_items) if items else shape)
+        if len(shape) == 1:
+            # One number per household, the households' case: Python floats, so that each
+            # row's model takes its own hot path.
+            per_row = [np.broadcast_to(v, shape).tolist() for v in values]
+            for h in range(shape[0]):
+                check_deadline("evaluating the model one household after another")
+                out[h] = getattr(self.model(h), method)(p[h], *(v[h] for v in per_row))
+            return out
+        vs = [np.broadcast_to(v, shape) for v in values]
         for h in range(self.batch_shape[0]):
             check_deadline("evaluating the model one household after another")
-            row = [v[..., h] for v in vs]
-            args = [float(v) if v.ndim == 0 else v for v in row]
+            args = [v[..., h] for v in vs]
             if items:
                 out[..., h, :] = getattr(self.model(h), method)(p[..., h, :], *args)
             else:
