@@ -30,8 +30,7 @@ Definitions used throughout (utility ``u``, expenditure function ``e``, indirect
 from __future__ import annotations
 
 import math
-from collections.abc import Iterator, Mapping, Sequence
-from contextlib import contextmanager
+from collections.abc import Mapping, Sequence
 from dataclasses import dataclass, field
 from typing import Any
 
@@ -49,6 +48,7 @@ from .indices import (
     check_positive_shares,
     formulas_for,
 )
+from .konus import PriceChange, StandardAt, konus_at_income, naming, price_change
 from .preferences import calibrate
 from .preferences.base import BaseBudget, Notice, Preferences, Vector
 
@@ -177,17 +177,6 @@ class Comparison:
     notices: list[Notice] = field(default_factory=list)
 
 
-@contextmanager
-def _naming(**names: str) -> Iterator[None]:
-    """Re-label a family's errors about ``prices``/``income``/``utility`` with the caller's names."""
-    try:
-        yield
-    except InvalidInput as exc:
-        if exc.parameter in names:
-            raise exc.renamed(names[exc.parameter]) from exc
-        raise
-
-
 def _relative_gap(a: Vector, b: Vector) -> float:
     scale = max(float(np.abs(b).max()), 1e-300)
     return float(np.abs(a - b).max()) / scale
@@ -234,11 +223,33 @@ def compare(
         raise InvalidInput("model", f"the model has {model.n_items} items but the base budget {n}")
     p0, m0 = base.prices, base.expenditure
     p1 = _checks.positive("p1", current_prices, size=n)
-    notices: list[Notice] = list(base.notices) + list(model.calibration_notices)
+    q1_obs, m1 = _current_side(p1, m0, current_income, current_quantities)
+    m_ref = None
+    if reference_income is not None:
+        m_ref = _checks.scalar("reference_income", reference_income, minimum=0.0)
+    for name, prices, income in (("m0", p0, m0), ("m1", p1, m1), ("reference_income", p0, m_ref)):
+        if income is None:
+            continue
+        floor = model.income_floor(prices)
+        if income <= floor:
+            raise InvalidInput(name, f"income {income:.10g} does not exceed the model's "
+                               f"subsistence cost {floor:.10g} at those prices")
+    change = price_change(model, p0, p1, m0, m1, decomposition=True)
+    reference = None
+    if m_ref is not None:
+        with naming(prices="p1", income="reference_income", utility="reference_income"):
+            reference = konus_at_income(model, p0, p1, m_ref)
+    return comparison_of(model, base, change, observed_quantities=q1_obs, reference=reference,
+                         weight_reference=weight_reference,
+                         lloyd_moulton_sigma=lloyd_moulton_sigma, formulas=formulas)
 
+
+def _current_side(p1: Vector, m0: float, current_income: float | None,
+                  current_quantities: npt.ArrayLike | None) -> tuple[Vector | None, float]:
+    """Observed current quantities (or None) and the current income ``m1``."""
     q1_obs = None
     if current_quantities is not None:
-        q1_obs = _checks.nonnegative("q1", current_quantities, size=n)
+        q1_obs = _checks.nonnegative("q1", current_quantities, size=p1.size)
         if not np.any(q1_obs > 0):
             raise InvalidInput("q1", "at least one current quantity must be greater than zero")
     if current_income is not None:
@@ -249,68 +260,38 @@ def compare(
                 raise InvalidInput("m1", f"current income {m1:.10g} differs from the value of "
                                    f"the current basket p1 . q1 = {value:.10g}; give one of "
                                    "them, or make them agree")
-    elif q1_obs is not None:
-        m1 = float(p1 @ q1_obs)
-    else:
-        m1 = m0
-    m_ref = None
-    if reference_income is not None:
-        m_ref = _checks.scalar("reference_income", reference_income, minimum=0.0)
+        return q1_obs, m1
+    if q1_obs is not None:
+        return q1_obs, float(p1 @ q1_obs)
+    return None, m0
 
-    for name, prices, income in (("m0", p0, m0), ("m1", p1, m1), ("reference_income", p0, m_ref)):
-        if income is None:
-            continue
-        floor = model.income_floor(prices)
-        if income <= floor:
-            raise InvalidInput(name, f"income {income:.10g} does not exceed the model's "
-                               f"subsistence cost {floor:.10g} at those prices")
 
-    with _naming(prices="p0", income="m0", utility="m0"):
-        u0 = model.indirect_utility(p0, m0)
-        x0 = model.marshallian(p0, m0)
-        e00 = model.expenditure(p0, u0)
-        h00 = model.hicksian(p0, u0)
-    with _naming(prices="p1", income="m1", utility="m1"):
-        u1 = model.indirect_utility(p1, m1)
-        x1 = model.marshallian(p1, m1)
-        e11 = model.expenditure(p1, u1)
-        h11 = model.hicksian(p1, u1)
-        x11 = model.marshallian(p1, e11)
-    with _naming(prices="p1", income="m0", utility="m0"):
-        e10 = model.expenditure(p1, u0)
-        h10 = model.hicksian(p1, u0)
-        x10 = model.marshallian(p1, e10)
-    with _naming(prices="p0", income="m1", utility="m1"):
-        e01 = model.expenditure(p0, u1)
-        x00 = model.marshallian(p0, e00)
-    m_mid = float(np.sqrt(e00 * e01))
-    with _naming(prices="p1", income="m1", utility="m1"):
-        u_mid = model.indirect_utility(p0, m_mid)
-        k_mid = model.expenditure(p1, u_mid) / model.expenditure(p0, u_mid)
-    u_ref = k_ref = None
-    if m_ref is not None:
-        with _naming(prices="p1", income="reference_income", utility="reference_income"):
-            u_ref = model.indirect_utility(p0, m_ref)
-            k_ref = model.expenditure(p1, u_ref) / model.expenditure(p0, u_ref)
-
-    konus = KonusIndices(
-        base=e10 / e00,
-        current=e11 / e01,
-        midpoint=k_mid,
-        reference=k_ref,
-        homothetic=model.homothetic,
-    )
-    if model.homothetic:
-        notices.append(Notice("homothetic", f"The {model.family} model is homothetic: the Konüs "
-                              "index is the same at every living standard."))
-
+def comparison_of(
+    model: Preferences,
+    base: BaseBudget,
+    change: PriceChange,
+    *,
+    observed_quantities: Vector | None = None,
+    reference: StandardAt | None = None,
+    weight_reference: WeightReference | None = None,
+    lloyd_moulton_sigma: float | None = None,
+    formulas: Sequence[str] | None = None,
+) -> Comparison:
+    """The single comparison assembled from the kernel's evaluation of one change
+    (:func:`dualcost.core.konus.price_change` with ``decomposition=True``): the formula indices
+    and their bias, the Hicks decomposition, the diagnostics and every notice, each checked as
+    :func:`compare` checks it. The households that a family evaluates one by one go through
+    here too, so that each is checked as its own comparison would be."""
+    notices: list[Notice] = list(base.notices) + list(model.calibration_notices)
+    mid = change.midpoint
+    konus = _konus_indices(model, change, reference, notices)
+    p0, m0, p1, m1 = base.prices, base.expenditure, change.current_prices, change.current_income
     q0 = base.quantities
-    q1 = q1_obs if q1_obs is not None else x1
-    if q1_obs is None:
+    q1 = observed_quantities if observed_quantities is not None else change.current_demands
+    if observed_quantities is None:
         notices.append(Notice("current_quantities_from_model", "No current quantities were "
                               "given: the formula indices use the model's demands at current "
                               "prices and income."))
-
     lm_sigma = lloyd_moulton_sigma
     if lm_sigma is None:
         lm_sigma = model.substitution_elasticity
@@ -321,50 +302,67 @@ def compare(
     data = IndexData(p0=p0, p1=p1, q0=q0, q1=q1, weight_quantities=weights.quantities,
                      weight_shares=weights.shares, sigma=lm_sigma)
     results = _formula_results(data, konus, formulas, notices)
-
+    demands, diagnostics = _demands_and_diagnostics(change, q0, q1, observed_quantities)
+    notices.extend(_diagnostic_notices(model, diagnostics, konus, results, p0, m0, p1, m1))
     gap_contrib = None
     if "laspeyres" in results:
-        gap_contrib = p1 * q0 / float(p0 @ q0) - p1 * h10 / e00
-
-    demands = Demands(
-        base=x0,
-        current=x1,
-        compensated=h10,
-        substitution_effect=h10 - x0,
-        income_effect=x1 - h10,
-        formula_base_quantities=q0,
-        formula_current_quantities=q1,
-        current_quantities_observed=q1_obs is not None,
-    )
-    diagnostics = Diagnostics(
-        duality_residual=max(_relative_gap(h00, x00), _relative_gap(h10, x10),
-                             _relative_gap(h11, x11)),
-        expenditure_residual=max(abs(e00 - m0) / m0, abs(e11 - m1) / m1),
-        base_bundle_gap=_relative_gap(x0, q0),
-    )
-    notices.extend(_diagnostic_notices(model, diagnostics, konus, results, p0, m0, p1, m1))
-
+        gap_contrib = p1 * q0 / float(p0 @ q0) - p1 * demands.compensated / change.base_cost
     comparison = Comparison(
-        family=model.family,
-        base_prices=p0,
-        current_prices=p1,
-        konus=konus,
+        family=model.family, base_prices=p0, current_prices=p1, konus=konus,
         standards=LivingStandards(
-            base=u0, current=u1, midpoint=u_mid, reference=u_ref, base_income=m0,
-            current_income=m1, midpoint_income=m_mid, reference_income=m_ref,
+            base=change.base_utility, current=change.current_utility, midpoint=mid.utility,
+            reference=None if reference is None else reference.utility, base_income=m0,
+            current_income=m1, midpoint_income=mid.income,
+            reference_income=None if reference is None else reference.income,
         ),
-        formulas=results,
-        compensating_variation=e10 - m1,
-        equivalent_variation=m0 - e01,
-        compensated_income=e10,
-        demands=demands,
-        laspeyres_gap_contributions=gap_contrib,
-        diagnostics=diagnostics,
-        lloyd_moulton_sigma=lm_sigma,
-        notices=notices,
+        formulas=results, compensating_variation=change.compensating_variation,
+        equivalent_variation=change.equivalent_variation,
+        compensated_income=change.compensated_income, demands=demands,
+        laspeyres_gap_contributions=gap_contrib, diagnostics=diagnostics,
+        lloyd_moulton_sigma=lm_sigma, notices=notices,
     )
     _check_finite(comparison)
     return comparison
+
+
+def _konus_indices(model: Preferences, change: PriceChange, reference: StandardAt | None,
+                   notices: list[Notice]) -> KonusIndices:
+    konus = KonusIndices(
+        base=change.konus_base,
+        current=change.konus_current,
+        midpoint=change.midpoint.konus,
+        reference=None if reference is None else reference.konus,
+        homothetic=model.homothetic,
+    )
+    if model.homothetic:
+        notices.append(Notice("homothetic", f"The {model.family} model is homothetic: the Konüs "
+                              "index is the same at every living standard."))
+    return konus
+
+
+def _demands_and_diagnostics(change: PriceChange, q0: Vector, q1: Vector,
+                             observed: Vector | None) -> tuple[Demands, Diagnostics]:
+    """The Hicks decomposition of the quantity change, and how well the model's own functions
+    agree: ``h(p, u)`` against ``x(p, e(p, u))`` and ``e(p, v(p, m))`` against ``m``."""
+    d = change.decomposition
+    if d is None:
+        raise ValueError("the comparison needs the kernel's decomposition")
+    x0, x1, h10 = d.base_demands, change.current_demands, d.compensated_demands
+    m0, m1 = change.base_income, change.current_income
+    demands = Demands(
+        base=x0, current=x1, compensated=h10, substitution_effect=h10 - x0,
+        income_effect=x1 - h10, formula_base_quantities=q0, formula_current_quantities=q1,
+        current_quantities_observed=observed is not None,
+    )
+    diagnostics = Diagnostics(
+        duality_residual=max(_relative_gap(d.base_compensated, d.base_at_cost),
+                             _relative_gap(h10, d.compensated_at_cost),
+                             _relative_gap(d.current_compensated, d.current_at_cost)),
+        expenditure_residual=max(abs(change.base_cost - m0) / m0,
+                                 abs(change.current_cost - m1) / m1),
+        base_bundle_gap=_relative_gap(x0, q0),
+    )
+    return demands, diagnostics
 
 
 def _formula_results(

@@ -15,16 +15,20 @@ equivalent variation and each formula's substitution bias, with the definitions 
   ``EV = m - e(p0, u1)``, losses positive (Hicks 1942);
 - the bias of a formula in index points, ``100 (P - K)``, against the Konüs index it targets.
 
-Vectorised families (no Python loop per household): Cobb-Douglas, CES and Stone-Geary, by the
-closed forms below, along the last (item) axis with a leading household axis; the formula indices
-are those of :mod:`dualcost.core.indices` on the same arrays. Stone-Geary takes either one
-subsistence bundle for all households (each household's marginal shares then follow from its own
-budget, and a household whose budget does not cover the bundle is refused by row), or expenditure
-elasticities and a Frisch parameter common to all (rescaled per household so that Engel
-aggregation holds; the answer counts them). Every other family (nested CES, translog,
-homogeneous quadratic, AIDS, QUAIDS, and any family added later) is calibrated and compared one
-household at a time with :func:`dualcost.core.comparison.compare`, a Python loop; the answer
-says so in a notice.
+The household path calls the family and never a copy of its maths. The family is calibrated to
+all the households of a chunk at once (:meth:`~dualcost.core.preferences.Preferences.calibrate_many`:
+one model with a household axis; a household it cannot be calibrated to is refused by row with
+the family's reason), households whose income does not exceed the model's income floor at some
+period's prices are refused, and each period's Konüs indices, CV, EV and current quantities come
+from the Konüs kernel (:func:`dualcost.core.konus.price_change`), which the single comparison
+calls too, over the household axis. A family that broadcasts (Cobb-Douglas, CES, Stone-Geary)
+is evaluated without a Python loop per household, and the formula indices of
+:mod:`dualcost.core.indices` run along the item axis of the same arrays. For any other family
+(nested CES, translog, homogeneous quadratic, AIDS, QUAIDS, and any family added later that does
+not broadcast) the kernel evaluates each household's own model in turn, and each household's
+comparison is assembled and checked as its own single comparison would be
+(:func:`dualcost.core.comparison.comparison_of`: its formula indices, failures and notices,
+counted); the answer says so in a notice.
 
 Rows are processed in chunks of ``HouseholdJob.chunk_rows``: the chunking is part of the job, so
 that every engine (in process, or on a cluster: :mod:`dualcost.engines.dask`) evaluates exactly
@@ -48,12 +52,13 @@ import numpy.typing as npt
 from numpy.typing import NDArray
 
 from . import _checks
-from ._means import log_power_mean, power_mean_shares
-from .comparison import compare
+from .comparison import comparison_of
 from .deadline import check as check_deadline
 from .errors import DualcostError, InvalidInput, InvalidRows, RowProblem
 from .indices import FORMULAS, HOUSEHOLD_DEFAULT, IndexData, formulas_for
-from .preferences import FAMILIES, BaseBudget, Notice, calibrate
+from .konus import PriceChange, price_change
+from .preferences import FAMILIES, BaseBudget, Notice, Preferences
+from .preferences.base import RowModels
 
 Vector = NDArray[np.float64]
 Matrix = NDArray[np.float64]
@@ -64,8 +69,6 @@ OnBadRows = Literal["reject", "skip"]
 #: need a weight-reference period.
 HOUSEHOLD_FORMULAS: tuple[str, ...] = formulas_for("households")
 DEFAULT_FORMULAS: tuple[str, ...] = HOUSEHOLD_DEFAULT
-#: Families evaluated in closed form over the household axis.
-VECTORISED_FAMILIES: tuple[str, ...] = ("cobb_douglas", "ces", "stone_geary")
 DEFAULT_QUANTILES: tuple[float, ...] = (0.1, 0.25, 0.5, 0.75, 0.9)
 #: Numbers per work array of a chunk unless the job says otherwise: enough rows to amortise
 #: numpy's cost per call, few enough that a chunk's work arrays stay in cache (common practice).
@@ -125,7 +128,7 @@ class HouseholdJob:
                 accepted = ", ".join(sorted(allowed)) or "none"
                 raise InvalidInput(name, f"is not a parameter of the {family} family (it takes: "
                                    f"{accepted})")
-        params, notices = _checked_parameters(family, params, p0)
+        probe = _probe(family, params, p0)
         names = _checked_formulas(formulas)
         lm_sigma = lloyd_moulton_sigma
         if lm_sigma is not None:
@@ -133,10 +136,8 @@ class HouseholdJob:
             if lm_sigma < 0.0:
                 raise InvalidInput("lloyd_moulton_sigma", "an elasticity of substitution must be "
                                    f"zero or more, got {lm_sigma:g}")
-        elif family == "ces":
-            lm_sigma = float(params["sigma"])
-        elif family == "cobb_douglas":
-            lm_sigma = 1.0
+        elif probe is not None:
+            lm_sigma = probe.substitution_elasticity
         if "lloyd_moulton" in names and lm_sigma is None:
             raise InvalidInput("formulas", "the Lloyd-Moulton index needs an elasticity of "
                                "substitution (lloyd_moulton_sigma; the model has no single one)",
@@ -145,7 +146,8 @@ class HouseholdJob:
             chunk_rows = default_chunk_rows(p0.size)
         if int(chunk_rows) < 1:
             raise InvalidInput("chunk_rows", f"must be 1 or more, got {chunk_rows}")
-        if family not in VECTORISED_FAMILIES:
+        notices: tuple[Notice, ...] = ()
+        if not FAMILIES[family].broadcasts:
             notices += (Notice("evaluated_one_by_one", f"The {family} family has no closed form "
                                "over households here: each household was calibrated and "
                                "compared in turn (slower than the vectorised families)."),)
@@ -212,7 +214,9 @@ class ChunkResult:
     values: dict[str, Matrix]  # column -> (periods, households)
     problems: tuple[RowProblem, ...]
     normalised: int = 0
-    rescaled: int = 0
+    #: What calibration did to some households, from the family: code -> (households, the
+    #: sentence that completes "For n household(s) ...").
+    remarks: dict[str, tuple[int, str]] = field(default_factory=dict)
     #: Households evaluated one by one: how many drew each notice of the single comparison
     #: (code -> count and the first message), e.g. a regularity warning of a flexible form.
     notice_counts: dict[str, tuple[int, str]] = field(default_factory=dict)
@@ -263,61 +267,26 @@ def _checked_formulas(formulas: Sequence[str] | None) -> tuple[str, ...]:
     return tuple(seen)
 
 
-def _checked_parameters(
-    family: str, params: dict[str, Any], p0: Vector
-) -> tuple[dict[str, Any], tuple[Notice, ...]]:
-    """The vectorised families' parameters, checked here; the others by a probe calibration."""
+def _probe(family: str, params: Mapping[str, Any], p0: Vector) -> Preferences | None:
+    """Errors in the parameters themselves (a sigma below zero, a matrix that is not symmetric,
+    a tree that misses an item), found by calibrating the family to a probe household with
+    equal shares; errors about the probe's own budget are left for the households. The probe's
+    model, if it could be calibrated, for what the family has in common over households."""
     n = p0.size
-    if family == "ces":
-        sigma = params.get("sigma")
-        if sigma is None:
-            raise InvalidInput("sigma", "is required: give the elasticity of substitution (0 or "
-                               "more)")
-        value = _checks.scalar("sigma", sigma)
-        if value < 0.0:
-            raise InvalidInput("sigma", f"an elasticity of substitution must be zero or more, "
-                               f"got {value:g}")
-        return {"sigma": value}, ()
-    if family == "cobb_douglas":
-        return {}, ()
-    if family == "stone_geary":
-        return _stone_geary_parameters(params, n)
-    # A probe budget with equal shares finds errors in the parameters themselves (a matrix that
-    # is not symmetric, a tree that misses an item); errors about the probe's own budget are
-    # left for the households.
-    probe = BaseBudget.from_shares(p0, np.full(n, 1.0 / n), 1.0)
+    probe = BaseBudget.from_rows(p0, np.full((1, n), 1.0 / n), np.ones(1))
     own = set(params) | {spec.name for spec in FAMILIES[family].parameter_specs} | {"family"}
     try:
-        calibrate(family, probe, params)
+        done = FAMILIES[family].calibrate_many(probe, **params)
     except InvalidInput as exc:
         if exc.parameter in own:
             raise
+        return None
     except DualcostError:
-        pass
-    return params, ()
-
-
-def _stone_geary_parameters(params: dict[str, Any], n: int) -> tuple[dict[str, Any], tuple[Notice, ...]]:
-    gamma = params.get("subsistence_quantities")
-    eta = params.get("expenditure_elasticities")
-    frisch = params.get("frisch")
-    if gamma is not None:
-        for name, value in (("expenditure_elasticities", eta), ("frisch", frisch)):
-            if value is not None:
-                raise InvalidInput(name, "give subsistence_quantities, or expenditure "
-                                   "elasticities with frisch, not both")
-        return {"subsistence_quantities": _checks.vector("subsistence_quantities", gamma,
-                                                         size=n)}, ()
-    out: dict[str, Any] = {}
-    out["expenditure_elasticities"] = (
-        np.ones(n) if eta is None else _checks.nonnegative("expenditure_elasticities", eta, size=n)
-    )
-    phi = -2.0 if frisch is None else _checks.scalar("frisch", frisch)
-    if phi >= 0.0:
-        raise InvalidInput("frisch", "the Frisch money flexibility -m / (m - p . gamma) must be "
-                           f"negative, got {phi:g}")
-    out["frisch"] = phi
-    return out, ()
+        return None
+    for refusal in done.refused:
+        if isinstance(refusal.error, InvalidInput) and refusal.error.parameter in own:
+            raise refusal.error
+    return None if done.refused else done.model
 
 
 # -- row checks -------------------------------------------------------------------------------
@@ -366,132 +335,66 @@ def _scalar_problems(rows: NDArray[np.int64], values: Vector, name: str, code: s
         bad[h] = True
 
 
-# -- the vectorised families ------------------------------------------------------------------
+# -- calibration: the family over the households ------------------------------------------------
 
 
-@dataclass
-class _Period:
-    """One period's evaluation for a block of households (all arrays over households)."""
-
-    konus: Vector
-    konus_current: Vector
-    konus_midpoint: Vector
-    cv: Vector  # e(p1, u0) - m
-    ev: Vector  # m - e(p0, u1)
-    q1: Matrix
-
-
-def _cobb_douglas(w0: Matrix, m: Vector, log_r: Vector, p1: Vector) -> _Period:
-    """ln K = sum_i w0_i ln(p1_i / p0_i), shares constant, q1 = m w0 / p1 (Cobb and Douglas 1928;
-    CPI Manual 17.61-17.64: the geometric Laspeyres index is exact)."""
-    k = np.exp(np.sum(w0 * log_r, axis=-1))
-    return _homothetic(k, m, w0, p1)
-
-
-def _ces(w0: Matrix, m: Vector, log_r: Vector, p1: Vector, sigma: float) -> _Period:
-    """ln K = ln M_(1-sigma)(p1/p0; w0), the power mean of the relatives with base-share weights;
-    current shares ``w1_i = w0_i r_i^(1-sigma) / sum_j w0_j r_j^(1-sigma)`` (Arrow, Chenery,
-    Minhas and Solow 1961; Lloyd 1975; Moulton 1996)."""
-    t = 1.0 - sigma
-    k = np.exp(log_power_mean(log_r, w0, t))
-    w1 = power_mean_shares(log_r, w0, t)
-    return _homothetic(k, m, w1, p1)
-
-
-def _homothetic(k: Vector, m: Vector, w1: Matrix, p1: Vector) -> _Period:
-    """With e(p, u) = u c(p) every Konüs index is c(p1) = K; CV = m (K - 1), EV = m (1 - 1/K)."""
-    return _Period(konus=k, konus_current=k, konus_midpoint=k, cv=m * k - m, ev=m - m / k,
-                   q1=(m[:, None] * w1) / p1)
+def _calibrated(job: HouseholdJob, rows: NDArray[np.int64], w0: Matrix, m: Vector,
+                problems: list[RowProblem], bad: NDArray[np.bool_]
+                ) -> tuple[Preferences | None, Matrix, dict[str, tuple[int, str]]]:
+    """The family calibrated to every household not yet refused, as one model with a household
+    axis (:meth:`Preferences.calibrate_many`), with those households' base quantities. The
+    households the family refuses, and those whose income does not exceed the model's income
+    floor at some period's prices, are refused by row (and marked in ``bad``)."""
+    good = np.flatnonzero(~bad)
+    if not good.size:
+        return None, np.empty((0, job.n_items)), {}
+    everyone = good.size == rows.size
+    budget = BaseBudget.from_rows(job.base_prices, w0 if everyone else w0[good],
+                                  m if everyone else m[good])
+    done = FAMILIES[job.family].calibrate_many(budget, **job.parameters)
+    for refusal in done.refused:
+        problems.append(_refusal(job, int(rows[good[refusal.row]]), refusal.error, refusal.code))
+    kept = done.kept
+    model = done.model.take(kept) if done.refused else done.model
+    below = _below_floor(job, model, rows[good[kept]], m[good[kept]], problems)
+    if below.any():
+        model = model.take(np.flatnonzero(~below))
+        kept = kept[~below]
+    bad[good] = True
+    bad[good[kept]] = False
+    q0 = budget.quantities if kept.size == good.size else budget.quantities[kept]
+    return model, q0, dict(done.remarks)
 
 
-@dataclass
-class _StoneGeary:
-    """Per-household Stone-Geary parameters: subsistence ``gamma`` and marginal shares ``beta``.
-
-    ``e(p, u) = p . gamma + u B(p)``, ``B(p) = prod_i (p_i / p0_i)^beta_i``, utility measured as
-    supernumerary income at base prices (Stone 1954; Geary 1950; see
-    :mod:`dualcost.core.preferences.stone_geary`).
-    """
-
-    gamma: Matrix  # (H, N) or (N,)
-    beta: Matrix  # (H, N)
-    floor0: Vector  # p0 . gamma
-
-    def period(self, m: Vector, log_r: Vector, p1: Vector) -> _Period:
-        b = np.exp(np.sum(self.beta * log_r, axis=-1))
-        floor1 = np.sum(self.gamma * p1, axis=-1)
-        u0 = m - self.floor0
-        e00 = self.floor0 + u0
-        e10 = floor1 + u0 * b
-        u1 = (m - floor1) / b
-        e01 = self.floor0 + u1
-        m_mid = np.sqrt(e00 * e01)
-        u_mid = m_mid - self.floor0
-        q1 = self.gamma + self.beta * ((m - floor1)[:, None] / p1)
-        return _Period(konus=e10 / e00, konus_current=m / e01,
-                       konus_midpoint=(floor1 + u_mid * b) / (self.floor0 + u_mid),
-                       cv=e10 - m, ev=m - e01, q1=q1)
+def _refusal(job: HouseholdJob, row: int, error: DualcostError, code: str) -> RowProblem:
+    """A household the model refuses: by the family's own rule (its code and words), or because
+    its model could not be calibrated or evaluated (``model_failed``)."""
+    field_name = "expenditure" if getattr(error, "parameter", "") in ("m0", "m1") else "shares"
+    if code == "model_failed" or not isinstance(error, InvalidInput):
+        return RowProblem(row, field_name, f"the {job.family} model cannot be evaluated for this "
+                          f"household: {error}", "model_failed")
+    item = error.index if isinstance(error.index, int) else None
+    return RowProblem(row, field_name, error.rule, code, item)
 
 
-def _stone_geary(job: HouseholdJob, rows: NDArray[np.int64], w0: Matrix, m: Vector,
-                 problems: list[RowProblem], bad: NDArray[np.bool_]) -> tuple[_StoneGeary, int]:
-    """Calibrate every household at once; rows below subsistence are refused by name.
-
-    Subsistence route: ``beta_h = p0 (q0_h - gamma) / (m_h - p0 . gamma)``, defined when every
-    base quantity is at least its subsistence quantity and income exceeds ``p0 . gamma``.
-    Elasticity route: ``beta_h = eta w0_h / (w0_h . eta)`` (the common elasticities divided by
-    the household's share-weighted mean, so that Engel aggregation holds for each household) and
-    ``gamma_h = m_h (w0_h + beta_h / phi) / p0`` (Frisch 1959).
-    """
-    p0 = job.base_prices
-    params = job.parameters
-    rescaled = 0
-    if "subsistence_quantities" in params:
-        gamma = np.asarray(params["subsistence_quantities"])
-        floor0 = np.full(m.shape, float(p0 @ gamma))
-        q0 = w0 * (m[:, None] / p0)
-        above = q0 - gamma
-        short = above < 0.0
-        for h in np.flatnonzero(short.any(axis=-1) & ~bad):
-            i = int(np.argmax(short[h]))
-            problems.append(RowProblem(int(rows[h]), "shares", f"the household is below "
-                                       f"subsistence: its base quantity {q0[h, i]:.6g} (share "
-                                       f"times income over price) is less than the subsistence "
-                                       f"quantity {gamma[i]:.6g}", "below_subsistence", i))
-            bad[h] = True
-        supernumerary = np.sum(above * p0, axis=-1)
-        for h in np.flatnonzero((supernumerary <= 0.0) & ~bad):
-            problems.append(RowProblem(int(rows[h]), "expenditure", f"the household is below "
-                                       f"subsistence: its income {m[h]:.10g} does not exceed the "
-                                       f"subsistence cost p0 . gamma = {floor0[h]:.10g}",
-                                       "below_subsistence"))
-            bad[h] = True
-        safe = np.where(bad, 1.0, supernumerary)
-        beta = above * p0 / safe[:, None]
-    else:
-        eta = np.asarray(params["expenditure_elasticities"])
-        phi = float(params["frisch"])
-        mean = np.sum(w0 * eta, axis=-1)
-        for h in np.flatnonzero((mean <= 0.0) & ~bad):
-            problems.append(RowProblem(int(rows[h]), "shares", "the expenditure elasticities "
-                                       "are zero on every item this household buys, so its "
-                                       "marginal budget shares cannot sum to 1", "below_subsistence"))
-            bad[h] = True
-        safe = np.where(bad, 1.0, mean)
-        rescaled = int(np.count_nonzero((np.abs(safe - 1.0) > 1e-12) & ~bad))
-        beta = eta * w0 / safe[:, None]
-        gamma = (m[:, None] * (w0 + beta / phi)) / p0
-        floor0 = np.sum(gamma * p0, axis=-1)
+def _below_floor(job: HouseholdJob, model: Preferences, rows: NDArray[np.int64], m: Vector,
+                 problems: list[RowProblem]) -> NDArray[np.bool_]:
+    """Households whose income does not exceed the model's income floor (a subsistence cost)
+    at the current prices of some period; they are refused by row."""
+    below = np.zeros(m.size, dtype=bool)
     for t in range(job.n_periods):
-        floor1 = np.sum(gamma * job.current_prices[t], axis=-1)
-        for h in np.flatnonzero((m <= floor1) & ~bad):
+        floor = np.broadcast_to(model.income_floor(job.current_prices[t]), m.shape)
+        for h in np.flatnonzero((m <= floor) & ~below):
             problems.append(RowProblem(int(rows[h]), "expenditure", f"the household falls below "
                                        f"subsistence at the current prices of period {t}: its "
-                                       f"income {m[h]:.10g} does not exceed the subsistence cost "
-                                       f"p1 . gamma = {float(np.broadcast_to(floor1, m.shape)[h]):.10g}",
-                                       "below_subsistence"))
-            bad[h] = True
-    return _StoneGeary(gamma=gamma, beta=beta, floor0=floor0), rescaled
+                                       f"income {m[h]:.10g} does not exceed "
+                                       f"{model.describe_income_floor('p1')} = "
+                                       f"{float(floor[h]):.10g}", "below_subsistence"))
+            below[h] = True
+    return below
+
+
+# -- evaluation: the kernel over the households ---------------------------------------------------
 
 
 def _formula_values(job: HouseholdJob, p1: Vector, q0: Matrix, q1: Matrix) -> dict[str, Vector]:
@@ -507,87 +410,168 @@ def _formula_values(job: HouseholdJob, p1: Vector, q0: Matrix, q1: Matrix) -> di
     return out
 
 
-def _evaluate_vectorised(job: HouseholdJob, rows: NDArray[np.int64], w0: Matrix, m: Vector,
-                         problems: list[RowProblem], bad: NDArray[np.bool_]
-                         ) -> tuple[dict[str, Matrix], int]:
-    sg: _StoneGeary | None = None
-    rescaled = 0
-    if job.family == "stone_geary":
-        sg, rescaled = _stone_geary(job, rows, w0, m, problems, bad)
-    keep = ~bad
-    if not keep.all():
-        w0, m = w0[keep], m[keep]
-        if sg is not None:
-            gamma = sg.gamma if sg.gamma.ndim == 1 else sg.gamma[keep]
-            sg = _StoneGeary(gamma=gamma, beta=sg.beta[keep], floor0=sg.floor0[keep])
-    if not keep.any():
-        names = (*job.formulas, *KONUS_COLUMNS, *MONEY_COLUMNS)
-        return {name: np.empty((job.n_periods, 0)) for name in names}, rescaled
+def _columns(job: HouseholdJob, households: int) -> dict[str, Matrix]:
+    """Every column a household gets before the derived ones, over periods by households."""
+    names = (*job.formulas, *KONUS_COLUMNS, *MONEY_COLUMNS)
+    return {name: np.full((job.n_periods, households), np.nan) for name in names}
+
+
+def _kernel(job: HouseholdJob, model: Preferences, p1: Vector, m: Vector,
+            rows: NDArray[np.int64], problems: list[RowProblem], *, decomposition: bool
+            ) -> tuple[PriceChange | None, NDArray[np.bool_]]:
+    """The Konüs kernel over the model's households at prices ``p1`` (each at its own unchanged
+    income), and which households it evaluated. When it raises, each household is evaluated
+    alone to find the ones that fail; they are refused with the reason and the others are
+    evaluated together again."""
     p0 = job.base_prices
-    q0 = w0 * (m[:, None] / p0)
-    columns: dict[str, list[Vector]] = {}
-    log_p0 = np.log(p0)
+    try:
+        return (price_change(model, p0, p1, m, m, decomposition=decomposition),
+                np.ones(m.size, dtype=bool))
+    except DualcostError:
+        check_deadline("evaluating households")  # a deadline that passed is no household's fault
+    ok = np.ones(m.size, dtype=bool)
+    for h in range(m.size):
+        one = slice(h, h + 1)
+        try:
+            price_change(model.take([h]), p0, p1, m[one], m[one], decomposition=decomposition)
+        except DualcostError as exc:
+            check_deadline("evaluating households one by one")
+            problems.append(_refusal(job, int(rows[h]), exc, "model_failed"))
+            ok[h] = False
+    live = np.flatnonzero(ok)
+    if not live.size:
+        return None, ok
+    return (price_change(model.take(live), p0, p1, m[live], m[live],
+                         decomposition=decomposition), ok)
+
+
+def _all_at_once(job: HouseholdJob, model: Preferences, rows: NDArray[np.int64], q0: Matrix,
+                 m: Vector, problems: list[RowProblem]) -> tuple[dict[str, Matrix], NDArray[np.bool_]]:
+    """A family that broadcasts: the kernel over all the households at once, period by period,
+    and the formula indices along the item axis of the same arrays."""
+    out = _columns(job, m.size)
+    alive = np.ones(m.size, dtype=bool)
     for t in range(job.n_periods):
         p1 = job.current_prices[t]
-        log_r = np.log(p1) - log_p0
-        if sg is not None:
-            period = sg.period(m, log_r, p1)
-        elif job.family == "ces":
-            period = _ces(w0, m, log_r, p1, float(job.parameters["sigma"]))
-        else:
-            period = _cobb_douglas(w0, m, log_r, p1)
-        values = _formula_values(job, p1, q0, period.q1)
-        values.update(konus=period.konus, konus_current=period.konus_current,
-                      konus_midpoint=period.konus_midpoint,
-                      compensating_variation=period.cv, equivalent_variation=period.ev)
+        live = np.flatnonzero(alive)
+        everyone = live.size == m.size
+        change, ok = _kernel(job, model if everyone else model.take(live), p1, m[live],
+                             rows[live], problems, decomposition=False)
+        alive[live[~ok]] = False
+        if change is None:
+            continue
+        live = live[ok]
+        values = _formula_values(job, p1, q0 if live.size == m.size else q0[live],
+                                 change.current_demands)
+        values.update(konus=change.konus_base, konus_current=change.konus_current,
+                      konus_midpoint=change.midpoint.konus,
+                      compensating_variation=change.compensating_variation,
+                      equivalent_variation=change.equivalent_variation)
+        where = slice(None) if live.size == m.size else live
         for name, v in values.items():
-            columns.setdefault(name, []).append(v)
-    return {name: np.stack(v) for name, v in columns.items()}, rescaled
-
-
-# -- one household at a time ------------------------------------------------------------------
+            out[name][t, where] = v
+    return out, alive
 
 
 #: Notices of a single comparison that the batch states once for all households.
 _JOB_LEVEL_NOTICES = frozenset({"homothetic", "current_quantities_from_model"})
 
 
-def _evaluate_one_by_one(job: HouseholdJob, rows: NDArray[np.int64], w0: Matrix, m: Vector,
-                         problems: list[RowProblem], bad: NDArray[np.bool_],
-                         counts: dict[str, tuple[int, str]]) -> dict[str, Matrix]:
-    """Calibrate and compare each household with the single-comparison engine."""
-    names = (*job.formulas, *KONUS_COLUMNS, *MONEY_COLUMNS)
-    out = {name: np.full((job.n_periods, w0.shape[0]), np.nan) for name in names}
-    for h in np.flatnonzero(~bad):
-        check_deadline("calibrating and comparing households one by one")
-        try:
-            base = BaseBudget.from_shares(job.base_prices, w0[h], float(m[h]))
-            model = calibrate(job.family, base, job.parameters)
-            for t in range(job.n_periods):
-                r = compare(model, base, job.current_prices[t], current_income=float(m[h]),
-                            lloyd_moulton_sigma=job.lloyd_moulton_sigma, formulas=job.formulas)
-                for name in job.formulas:
-                    out[name][t, h] = r.formulas[name].value
-                out["konus"][t, h] = r.konus.base
-                out["konus_current"][t, h] = r.konus.current
-                out["konus_midpoint"][t, h] = r.konus.midpoint
-                out["compensating_variation"][t, h] = r.compensating_variation
-                out["equivalent_variation"][t, h] = r.equivalent_variation
-                for code in {n.code for n in r.notices} - _JOB_LEVEL_NOTICES:
-                    message = next(n.message for n in r.notices if n.code == code)
-                    seen, first = counts.get(code, (0, message))
-                    counts[code] = (seen + 1, first)
-        except DualcostError as exc:
-            field_name = "expenditure" if getattr(exc, "parameter", "") in ("m0", "m1") else "shares"
-            problems.append(RowProblem(int(rows[h]), field_name, f"the {job.family} model "
-                                       f"cannot be evaluated for this household: {exc}",
-                                       "model_failed"))
-            bad[h] = True
-    keep = ~bad
-    return {name: v[:, keep] for name, v in out.items()}
+def _one_by_one(job: HouseholdJob, model: RowModels, rows: NDArray[np.int64], m: Vector,
+                problems: list[RowProblem], counts: dict[str, tuple[int, str]]
+                ) -> tuple[dict[str, Matrix], NDArray[np.bool_]]:
+    """A family that does not broadcast: the kernel over the households through the
+    row-by-row fallback, then each household's comparison assembled and checked as its own
+    single comparison would be (:func:`dualcost.core.comparison.comparison_of`): the formula
+    indices, the checks and the notices, counted over households and periods."""
+    out = _columns(job, m.size)
+    alive = np.ones(m.size, dtype=bool)
+    drawn: list[list[list[Notice]]] = [[] for _ in range(m.size)]
+    for t in range(job.n_periods):
+        live = np.flatnonzero(alive)
+        change, ok = _kernel(job, model.take(live), job.current_prices[t], m[live], rows[live],
+                             problems, decomposition=True)
+        alive[live[~ok]] = False
+        if change is None:
+            continue
+        for j, h in enumerate(live[ok]):
+            check_deadline("calibrating and comparing households one by one")
+            try:
+                r = comparison_of(model.model(h), model.budget(h), change.row(j),
+                                  lloyd_moulton_sigma=job.lloyd_moulton_sigma,
+                                  formulas=job.formulas)
+            except DualcostError as exc:
+                problems.append(_refusal(job, int(rows[h]), exc, "model_failed"))
+                alive[h] = False
+                continue
+            for name in job.formulas:
+                out[name][t, h] = r.formulas[name].value
+            out["konus"][t, h], out["konus_current"][t, h] = r.konus.base, r.konus.current
+            out["konus_midpoint"][t, h] = r.konus.midpoint
+            out["compensating_variation"][t, h] = r.compensating_variation
+            out["equivalent_variation"][t, h] = r.equivalent_variation
+            drawn[h].append(r.notices)
+    for household in drawn:  # counted household by household, then period by period
+        for notices in household:
+            for code in {n.code for n in notices} - _JOB_LEVEL_NOTICES:
+                message = next(n.message for n in notices if n.code == code)
+                seen, first = counts.get(code, (0, message))
+                counts[code] = (seen + 1, first)
+    return out, alive
 
 
 # -- a chunk ----------------------------------------------------------------------------------
+
+
+def _row_checks(job: HouseholdJob, chunk: HouseholdChunk, rows: NDArray[np.int64], w0: Matrix,
+                problems: list[RowProblem], bad: NDArray[np.bool_]
+                ) -> tuple[Matrix, Vector, Vector, int]:
+    """Shares, incomes, weights and the Sato-Vartia index's positive shares, row by row: the
+    (possibly normalised) shares, the incomes (1 where none are given), the weights and how
+    many rows were normalised."""
+    h = rows.size
+    w0, normalised = _share_problems(rows, w0, job.normalise_shares, problems, bad)
+    if chunk.expenditure is not None:
+        m = np.asarray(chunk.expenditure, dtype=np.float64)
+        _scalar_problems(rows, m, "expenditure", "bad_income", problems, bad)
+    elif job.needs_income:
+        raise InvalidInput("expenditure", f"the {job.family} family is not homothetic: give "
+                           "each household's income (total expenditure)")
+    else:
+        # Homothetic: the indices do not depend on income; money amounts are per unit.
+        m = np.ones(h)
+    weights = np.ones(h) if chunk.weights is None else np.asarray(chunk.weights, np.float64)
+    _scalar_problems(rows, weights, "weight", "bad_weight", problems, bad)
+    if "sato_vartia" in job.formulas:
+        zero = w0 <= 0.0
+        for r in np.flatnonzero(zero.any(axis=-1) & ~bad):
+            i = int(np.argmax(zero[r]))
+            problems.append(RowProblem(int(rows[r]), "shares", "the Sato-Vartia index takes "
+                                       "logarithms of expenditure shares, so every share must "
+                                       "be greater than zero; leave the formula out to keep "
+                                       "this household", "zero_share", i))
+            bad[r] = True
+    return w0, m, weights, normalised
+
+
+def _evaluated(job: HouseholdJob, rows: NDArray[np.int64], w0: Matrix, m: Vector,
+               problems: list[RowProblem], bad: NDArray[np.bool_],
+               counts: dict[str, tuple[int, str]]) -> tuple[dict[str, Matrix], dict[str, tuple[int, str]]]:
+    """The model's columns for the households not refused (marked in ``bad`` otherwise), and
+    the family's remarks on their calibration."""
+    model, q0, remarks = _calibrated(job, rows, w0, m, problems, bad)
+    keep = np.flatnonzero(~bad)
+    if model is None or not keep.size:
+        return _columns(job, 0), remarks
+    if FAMILIES[job.family].broadcasts:
+        values, alive = _all_at_once(job, model, rows[keep], q0, m[keep], problems)
+    else:
+        assert isinstance(model, RowModels)  # what calibrate_many gives such a family
+        values, alive = _one_by_one(job, model, rows[keep], m[keep], problems, counts)
+    if not alive.all():
+        bad[keep[~alive]] = True
+        values = {name: v[:, alive] for name, v in values.items()}
+    return values, remarks
 
 
 def evaluate_chunk(job: HouseholdJob, chunk: HouseholdChunk) -> ChunkResult:
@@ -604,36 +588,10 @@ def evaluate_chunk(job: HouseholdJob, chunk: HouseholdChunk) -> ChunkResult:
     known = {p.row for p in problems}
     if known:
         bad |= np.isin(rows, np.fromiter(known, dtype=np.int64))
+    counts: dict[str, tuple[int, str]] = {}
     with np.errstate(all="ignore"):
-        w0, normalised = _share_problems(rows, w0, job.normalise_shares, problems, bad)
-        with_income = chunk.expenditure is not None
-        if with_income:
-            m = np.asarray(chunk.expenditure, dtype=np.float64)
-            _scalar_problems(rows, m, "expenditure", "bad_income", problems, bad)
-        elif job.needs_income:
-            raise InvalidInput("expenditure", f"the {job.family} family is not homothetic: give "
-                               "each household's income (total expenditure)")
-        else:
-            # Homothetic: the indices do not depend on income; money amounts are per unit.
-            m = np.ones(h)
-        weights = np.ones(h) if chunk.weights is None else np.asarray(chunk.weights, np.float64)
-        _scalar_problems(rows, weights, "weight", "bad_weight", problems, bad)
-        if "sato_vartia" in job.formulas:
-            zero = w0 <= 0.0
-            for r in np.flatnonzero(zero.any(axis=-1) & ~bad):
-                i = int(np.argmax(zero[r]))
-                problems.append(RowProblem(int(rows[r]), "shares", "the Sato-Vartia index takes "
-                                           "logarithms of expenditure shares, so every share must "
-                                           "be greater than zero; leave the formula out to keep "
-                                           "this household", "zero_share", i))
-                bad[r] = True
-        rescaled = 0
-        counts: dict[str, tuple[int, str]] = {}
-        if job.family in VECTORISED_FAMILIES:
-            safe_m = np.where(bad, 1.0, m)
-            values, rescaled = _evaluate_vectorised(job, rows, w0, safe_m, problems, bad)
-        else:
-            values = _evaluate_one_by_one(job, rows, w0, m, problems, bad, counts)
+        w0, m, weights, normalised = _row_checks(job, chunk, rows, w0, problems, bad)
+        values, remarks = _evaluated(job, rows, w0, m, problems, bad, counts)
         keep = ~bad
         kept_m = m[keep]
         values["cv_percent"] = 100.0 * values["compensating_variation"] / kept_m
@@ -658,6 +616,7 @@ def evaluate_chunk(job: HouseholdJob, chunk: HouseholdChunk) -> ChunkResult:
         keep[keep_idx] = True
         kept_rows = rows[keep]
         kept_m = m[keep]
+    with_income = chunk.expenditure is not None
     if not with_income:
         for name in MONEY_COLUMNS:
             values.pop(name)
@@ -667,7 +626,7 @@ def evaluate_chunk(job: HouseholdJob, chunk: HouseholdChunk) -> ChunkResult:
         expenditure=kept_m if with_income else None,
         values={name: values[name] for name in job.output_columns(with_income)},
         problems=tuple(sorted(problems, key=lambda p: p.row)), normalised=normalised,
-        rescaled=rescaled, notice_counts=counts,
+        remarks=remarks, notice_counts=counts,
     )
 
 
@@ -803,7 +762,7 @@ class Accumulator:
         self.households = 0
         self.chunks = 0
         self.normalised = 0
-        self.rescaled = 0
+        self.remarks: dict[str, tuple[int, str]] = {}
         self.with_income: bool | None = None
         self.notice_counts: dict[str, tuple[int, str]] = {}
 
@@ -811,7 +770,8 @@ class Accumulator:
         self.chunks += 1
         self.households += result.size
         self.normalised += result.normalised
-        self.rescaled += result.rescaled
+        for code, (count, text) in result.remarks.items():
+            self.remarks[code] = (self.remarks.get(code, (0, text))[0] + count, text)
         for code, (count, message) in result.notice_counts.items():
             seen, first = self.notice_counts.get(code, (0, message))
             self.notice_counts[code] = (seen + count, first)
@@ -874,10 +834,8 @@ class Accumulator:
             out.append(Notice("shares_normalised", f"The shares of {self.normalised} "
                               "household(s) did not sum to 1; as asked, each was divided by its "
                               "sum."))
-        if self.rescaled:
-            out.append(Notice("elasticities_rescaled", f"For {self.rescaled} household(s) the "
-                              "expenditure elasticities' share-weighted mean was not 1; their "
-                              "marginal budget shares were divided by it (Engel aggregation)."))
+        for code, (count, text) in self.remarks.items():
+            out.append(Notice(code, f"For {count} household(s) {text}"))
         for code, (count, message) in self.notice_counts.items():
             out.append(Notice(code, f"{count} household-period(s) drew this notice; the first: "
                               f"{message}"))

@@ -48,15 +48,15 @@ from __future__ import annotations
 
 from collections.abc import Callable, Mapping, Sequence
 from dataclasses import dataclass, field
-from typing import Any
+from typing import Any, TypeVar
 
 import numpy as np
 import numpy.typing as npt
+from numpy.typing import NDArray
 
-from ._means import log_power_mean
 from .comparison import WeightReference
 from .deadline import check as check_deadline
-from .errors import InvalidInput, NumericalFailure
+from .errors import DualcostError, InvalidInput, NumericalFailure
 from .indices import (
     GEKS_RULE,
     REGISTRY,
@@ -68,6 +68,7 @@ from .indices import (
     formulas_for,
     matched_sample,
 )
+from .konus import price_change
 from .multilateral import Splice, bilateral_log_matrix, geks, rolling_geks
 from .preferences import BaseBudget, Notice, Preferences, calibrate
 from .series_panel import PERIODS_PER_YEAR, Array, Panel
@@ -79,6 +80,8 @@ GEKS_SERIES: tuple[str, ...] = tuple(n for n in SERIES_FORMULAS if REGISTRY[n].k
 TARGETS: tuple[Target, ...] = ("base", "current", "midpoint")
 #: The rule for items that come and go, per series, in words (see the module docstring).
 RULES: dict[str, str] = {name: REGISTRY[name].rule for name in SERIES_FORMULAS}
+_V = TypeVar("_V")
+
 MODEL_RULE = ("The model is calibrated to the items priced in the base period; items first "
               "priced later are outside it. A model item not priced in a period is valued at its "
               "nearest observed price (the last earlier one, else the first later one), as "
@@ -325,46 +328,30 @@ def _carry_prices(panel: Panel, items: Sequence[int]) -> tuple[Array, Array]:
     return filled, np.where(priced, -1, source)
 
 
-def _vector_log_unit_costs(model: Preferences, prices: Array) -> Array | None:
-    """``ln c(p_t)`` for all periods at once, for the families whose unit cost is a power mean.
-
-    Returns ``None`` for other families (they are evaluated one period at a time) or when the
-    family no longer exposes what this needs; the caller checks the result against the family's
-    own expenditure function.
-    """
-    shares = getattr(model, "shares", None)
-    ref = getattr(model, "reference_prices", None)
-    if shares is None or ref is None or model.family not in ("ces", "cobb_douglas"):
-        return None
-    log_rel = np.log(prices) - np.log(np.asarray(ref))
-    if model.family == "cobb_douglas":
-        return np.asarray(log_rel @ np.asarray(shares))
-    sigma = getattr(model, "sigma", None)
-    if sigma is None:
-        return None
-    return np.asarray(log_power_mean(log_rel, np.asarray(shares), 1.0 - float(sigma)))
-
-
-def _homothetic_costs(model: Preferences, prices: Array, u: float) -> Array:
-    """``e(p_t, u)`` for every period, vectorised where the family allows."""
-    fast = _vector_log_unit_costs(model, prices)
-    if fast is not None:
-        values = u * np.exp(fast)
-        check = [0, prices.shape[0] - 1]
-        own = np.array([model.expenditure(prices[t], u) for t in check])
-        if np.allclose(values[check], own, rtol=1e-10, atol=0.0):
-            return np.asarray(values)
-    return np.array([model.expenditure(prices[t], u) for t in range(prices.shape[0])])
-
-
-def _at_period(panel: Panel, t: int, fn: Callable[[], float]) -> float:
+def _at_period(panel: Panel, t: int, fn: Callable[[], _V]) -> _V:
+    """``fn()``, with an error of the model's named by period ``t``."""
     check_deadline(f"evaluating the model at period {panel.periods[t]!r}")
     try:
-        value = fn()
+        return fn()
     except InvalidInput as exc:
         raise InvalidInput("prices", f"the model cannot be evaluated at period "
                            f"{panel.periods[t]!r}: {exc.rule}", (t,)) from exc
-    return float(value)
+
+
+def _over_periods(panel: Panel, periods: npt.ArrayLike,
+                  evaluate: Callable[[NDArray[np.intp]], Array]) -> Array:
+    """``evaluate(periods)``: the model over all the periods in one broadcast call. On an
+    error, the periods are evaluated one at a time to find the first that fails, so that the
+    error names it as evaluating period by period always did."""
+    at = np.asarray(periods, dtype=np.intp)
+    check_deadline(f"evaluating the model over {at.size} period(s)")
+    try:
+        return evaluate(at)
+    except DualcostError as exc:
+        failure = exc
+    for t in at:
+        _at_period(panel, int(t), lambda t=t: evaluate(np.array([t])))  # type: ignore[misc]
+    raise failure
 
 
 def _chain(links: Array, base: int) -> Array:
@@ -374,7 +361,12 @@ def _chain(links: Array, base: int) -> Array:
 
 def konus_series(model: Preferences, panel: Panel, base: int, quantities: Array,
                  items: Sequence[int]) -> KonusSeries:
-    """The model's Konüs series, fixed base and chained (module docstring), on base = 1."""
+    """The model's Konüs series, fixed base and chained (module docstring), on base = 1.
+
+    The model is evaluated over the period axis (prices ``(T, N)``), one call per quantity: the
+    fixed-base series are the Konüs kernel (:func:`dualcost.core.konus.price_change`) from the
+    base period to every period, the chained ones the kernel over the links ``t-1 -> t``.
+    """
     if model.n_items != len(items):
         raise InvalidInput("model", f"the model has {model.n_items} items but the base period "
                            f"prices {len(items)}")
@@ -383,52 +375,38 @@ def konus_series(model: Preferences, panel: Panel, base: int, quantities: Array,
     spent = np.sum(np.where(panel.priced[:, idx], np.nan_to_num(panel.prices[:, idx]), 0.0)
                    * quantities[:, idx], axis=1)
     m = np.where(panel.has_quantities, spent, spent[base])
-    for t in range(panel.n_periods):
-        floor = model.income_floor(pm[t])
-        if m[t] <= floor:
-            raise InvalidInput("quantities", f"spending on the model's items in period "
-                               f"{panel.periods[t]!r} ({m[t]:.10g}) does not exceed the model's "
-                               f"subsistence cost {floor:.10g} at that period's prices", (t,))
+    floors = np.broadcast_to(model.income_floor(pm), m.shape)
+    short = np.flatnonzero(m <= floors)
+    if short.size:
+        t = int(short[0])
+        raise InvalidInput("quantities", f"spending on the model's items in period "
+                           f"{panel.periods[t]!r} ({m[t]:.10g}) does not exceed the model's "
+                           f"subsistence cost {floors[t]:.10g} at that period's prices", (t,))
     e, v = model.expenditure, model.indirect_utility
     n_t = panel.n_periods
-    u_b = _at_period(panel, base, lambda: v(pm[base], m[base]))
+    every = np.arange(n_t)
+    u_b = float(_over_periods(panel, [base], lambda t: v(pm[t], m[t]))[0])
     if model.homothetic:
-        costs = _homothetic_costs(model, pm, u_b)
+        costs = _over_periods(panel, every, lambda t: e(pm[t], u_b))
         fixed = costs / costs[base]
         chained = _chain(costs[1:] / costs[:-1], base)
         utilities = m / (costs / u_b)
         return KonusSeries(model.family, True, {k: fixed for k in TARGETS},
                            {k: chained for k in TARGETS}, m, utilities, tuple(items), carried)
-    u = np.array([_at_period(panel, t, lambda t=t: v(pm[t], m[t])) for t in range(n_t)])
-    fixed_b, fixed_c, fixed_m = np.empty(n_t), np.empty(n_t), np.empty(n_t)
-    e_bb = _at_period(panel, base, lambda: e(pm[base], u_b))
-    for t in range(n_t):
-        e_bt = _at_period(panel, t, lambda t=t: e(pm[base], u[t]))
-        fixed_b[t] = _at_period(panel, t, lambda t=t: e(pm[t], u_b)) / e_bb
-        fixed_c[t] = _at_period(panel, t, lambda t=t: e(pm[t], u[t])) / e_bt
-        fixed_m[t] = _midpoint(panel, t, model, pm[base], pm[t], e_bb, e_bt)
-    links = np.empty((3, n_t - 1))
-    for t in range(1, n_t):
-        e_ss = _at_period(panel, t, lambda t=t: e(pm[t - 1], u[t - 1]))
-        e_st = _at_period(panel, t, lambda t=t: e(pm[t - 1], u[t]))
-        links[0, t - 1] = _at_period(panel, t, lambda t=t: e(pm[t], u[t - 1])) / e_ss
-        links[1, t - 1] = _at_period(panel, t, lambda t=t: e(pm[t], u[t])) / e_st
-        links[2, t - 1] = _midpoint(panel, t, model, pm[t - 1], pm[t], e_ss, e_st)
-    result = KonusSeries(model.family, False, {"base": fixed_b, "current": fixed_c,
-                                               "midpoint": fixed_m},
+    u = _over_periods(panel, every, lambda t: v(pm[t], m[t]))
+    _over_periods(panel, [base], lambda t: e(pm[t], u[t]))
+
+    def konus(s: NDArray[np.intp], t: NDArray[np.intp]) -> Array:
+        change = price_change(model, pm[s], pm[t], m[s], m[t], demands=False)
+        return np.stack([change.konus_base, change.konus_current, change.midpoint.konus])
+
+    fixed3 = _over_periods(panel, every, lambda t: konus(np.full_like(t, base), t))
+    links = _over_periods(panel, every[1:], lambda t: konus(t - 1, t))
+    result = KonusSeries(model.family, False, dict(zip(TARGETS, fixed3, strict=True)),
                          {k: _chain(links[j], base) for j, k in enumerate(TARGETS)}, m, u,
                          tuple(items), carried)
     _check_finite_konus(result)
     return result
-
-
-def _midpoint(panel: Panel, t: int, model: Preferences, p_from: Array, p_to: Array,
-              e_own: float, e_other: float) -> float:
-    """Konüs index at the standard whose cost at ``p_from`` is the geometric mean of the two."""
-    m_star = float(np.sqrt(e_own * e_other))
-    u_star = _at_period(panel, t, lambda: model.indirect_utility(p_from, m_star))
-    return _at_period(panel, t, lambda: model.expenditure(p_to, u_star)) / _at_period(
-        panel, t, lambda: model.expenditure(p_from, u_star))
 
 
 def _check_finite_konus(k: KonusSeries) -> None:
@@ -514,13 +492,8 @@ def _fill_quantities(panel: Panel, model: Preferences | None, items: Sequence[in
     pm, _ = _carry_prices(panel, items)
     idx = np.asarray(items)
     m_b = float(np.nansum(panel.prices[base, idx] * panel.quantities[base, idx]))
-    for t in (int(x) for x in missing):
-        try:
-            demand = model.marshallian(pm[t], m_b)
-        except InvalidInput as exc:
-            raise InvalidInput("prices", f"the model cannot be evaluated at period "
-                               f"{panel.periods[t]!r}: {exc.rule}", (t,)) from exc
-        q[t, idx] = np.where(panel.priced[t, idx], demand, 0.0)
+    demands = _over_periods(panel, missing, lambda t: model.marshallian(pm[t], m_b))
+    q[missing[:, None], idx] = np.where(panel.priced[missing[:, None], idx], demands, 0.0)
     shown = ", ".join(repr(panel.periods[t]) for t in missing[:10])
     notices.append(Notice("quantities_from_model", f"Periods {shown}{' ...' if missing.size > 10 else ''} "
                           "have prices only: their quantities are the model's demands at that "

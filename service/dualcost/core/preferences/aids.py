@@ -64,6 +64,9 @@ from .base import (
 _LOG_LIMIT = 709.0
 
 _F = TypeVar("_F", bound=Callable[..., Any])
+#: The private methods of the dual quartet, named in errors as the public method called.
+_QUARTET = {f"_{name}": name for name in ("expenditure", "indirect_utility", "marshallian",
+                                          "hicksian")}
 
 
 def _finite_result(func: _F) -> _F:
@@ -79,7 +82,8 @@ def _finite_result(func: _F) -> _F:
             out = func(*args, **kwargs)
         if not np.all(np.isfinite(out)):
             raise NumericalFailure(
-                func.__name__, "the value left the floating-point range at these inputs"
+                _QUARTET.get(func.__name__, func.__name__),
+                "the value left the floating-point range at these inputs",
             )
         return out
 
@@ -197,13 +201,13 @@ class _LogQuadraticCost(Preferences):
 
     # -- the dual quartet ----------------------------------------------------------------------
     @_finite_result
-    def expenditure(self, prices: Vector, utility: float) -> float:
+    def _expenditure(self, prices: Vector, utility: float) -> float:
         """ln e(p, u) = ln a(p) + u b(p) / (1 - lambda(p) u)."""
         lnp, y, _ = self._from_utility(prices, utility)
         return self._expenditure_from(lnp, y)
 
     @_finite_result
-    def indirect_utility(self, prices: Vector, income: float) -> float:
+    def _indirect_utility(self, prices: Vector, income: float) -> float:
         """v(p, m) = y / (b(p) + lambda(p) y) with y = ln m - ln a(p)."""
         lnp, y, b = self._from_income(prices, income)
         return _finite(y / (b + self._lambda(lnp) * y), "utility")
@@ -215,12 +219,12 @@ class _LogQuadraticCost(Preferences):
         return self._shares(lnp, y, b)
 
     @_finite_result
-    def marshallian(self, prices: Vector, income: float) -> Vector:
+    def _marshallian(self, prices: Vector, income: float) -> Vector:
         """x_i(p, m) = w_i(p, m) m / p_i."""
         return self.budget_shares(prices, income) * income / prices
 
     @_finite_result
-    def hicksian(self, prices: Vector, utility: float) -> Vector:
+    def _hicksian(self, prices: Vector, utility: float) -> Vector:
         """h_i(p, u) = w_i e(p, u) / p_i, the shares taken at y = ln(e(p, u) / a(p))."""
         lnp, y, b = self._from_utility(prices, utility)
         e = self._expenditure_from(lnp, y)

@@ -23,11 +23,12 @@ from collections.abc import Mapping
 from typing import Any
 
 import numpy as np
+from numpy.typing import NDArray
 
 from .. import _checks
 from .._means import log_power_mean, log_quantity_mean, power_mean_shares
 from ..errors import InvalidInput
-from .base import BaseBudget, HomotheticPreferences, ParameterSpec, Vector
+from .base import BaseBudget, BatchCalibration, HomotheticPreferences, ParameterSpec, Vector
 
 
 def check_sigma(name: str, sigma: Any) -> float:
@@ -43,7 +44,11 @@ def check_sigma(name: str, sigma: Any) -> float:
 
 
 class CES(HomotheticPreferences):
-    """CES preferences in calibrated share form."""
+    """CES preferences in calibrated share form.
+
+    ``shares`` may carry a leading household axis, ``(H, N)``: one model for H households with
+    a common sigma (:meth:`calibrate_many`).
+    """
 
     family = "ces"
     title = "CES: one constant elasticity of substitution between all items"
@@ -58,12 +63,14 @@ class CES(HomotheticPreferences):
             required=True,
         ),
     )
+    broadcasts = True
 
     def __init__(self, shares: Vector, reference_prices: Vector, sigma: float) -> None:
         self.shares = np.asarray(shares, dtype=np.float64)
         self.reference_prices = np.asarray(reference_prices, dtype=np.float64)
         self.sigma = float(sigma)
-        self.n_items = int(self.shares.size)
+        self.n_items = int(self.shares.shape[-1])
+        self.batch_shape = tuple(self.shares.shape[:-1])
         self._log_p_ref = np.log(self.reference_prices)
 
     @classmethod
@@ -71,15 +78,28 @@ class CES(HomotheticPreferences):
         """Weights are the base shares; the caller must give ``sigma`` (no default)."""
         return cls(base.shares, base.prices, check_sigma("sigma", sigma))
 
+    @classmethod
+    def _calibrate_many(cls, base: BaseBudget, *, sigma: float | None = None,
+                        **_: Any) -> BatchCalibration:
+        """Each household's weights are its own base shares; sigma is common."""
+        return BatchCalibration(cls(base.shares, base.prices, check_sigma("sigma", sigma)))
+
+    def _take(self, rows: NDArray[np.intp]) -> CES:
+        return CES(self.shares[rows], self.reference_prices, self.sigma)
+
     def _log_relatives(self, prices: Vector) -> Vector:
         return np.log(prices) - self._log_p_ref
 
-    def unit_cost(self, prices: Vector) -> float:
+    def _unit_cost(self, prices: Vector) -> Any:
         """c(p), the power mean of order 1 - sigma of p / p0 with base-share weights."""
-        return float(np.exp(log_power_mean(self._log_relatives(prices), self.shares, 1.0 - self.sigma)))
+        if np.array_equal(prices, self.reference_prices):
+            return _cost_at_reference(self.shares)
+        return np.exp(log_power_mean(self._log_relatives(prices), self.shares, 1.0 - self.sigma))
 
-    def budget_shares(self, prices: Vector) -> Vector:
+    def _budget_shares(self, prices: Vector) -> Vector:
         """w_i(p) = d ln c / d ln p_i."""
+        if np.array_equal(prices, self.reference_prices):
+            return _shares_at_reference(self.shares, 1.0 - self.sigma)
         return power_mean_shares(self._log_relatives(prices), self.shares, 1.0 - self.sigma)
 
     def direct_utility(self, quantities: Vector) -> float:
@@ -102,3 +122,16 @@ class CES(HomotheticPreferences):
 
     def parameters(self) -> Mapping[str, Any]:
         return {"sigma": self.sigma, "weights": self.shares.tolist()}
+
+
+# At the calibration point every log relative is 0: the power mean is exp(0) = 1 and each term
+# of the shares is its weight (see dualcost.core._means). These give the general formulas'
+# values there bit for bit, without their exponentials: worth it for thousands of households.
+def _cost_at_reference(weights: Vector) -> Any:
+    return np.ones(weights.shape[:-1]) if weights.ndim > 1 else 1.0
+
+
+def _shares_at_reference(weights: Vector, t: float) -> Vector:
+    if t == 0.0:
+        return weights.copy()
+    return weights / np.sum(weights, axis=-1, keepdims=True)

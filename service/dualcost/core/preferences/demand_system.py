@@ -367,7 +367,7 @@ class DemandSystem(Preferences):
         self.deadline.restart()
 
     # -- the dual quartet -----------------------------------------------------------------
-    def marshallian(self, prices: Vector, income: float) -> Vector:
+    def _marshallian(self, prices: Vector, income: float) -> Vector:
         x = self.system.demand(prices, income)
         low = np.flatnonzero(x * prices < -1e-12 * income)
         if low.size:
@@ -376,19 +376,19 @@ class DemandSystem(Preferences):
                                f"({x[i]:.4g}) at these prices and income", i)
         return x
 
-    def expenditure(self, prices: Vector, utility: float) -> float:
+    def _expenditure(self, prices: Vector, utility: float) -> float:
         _positive_standard(utility)
         if np.array_equal(prices, self.base_prices):
             return float(utility)
         return self._solve(prices, utility, backward=False)
 
-    def indirect_utility(self, prices: Vector, income: float) -> float:
+    def _indirect_utility(self, prices: Vector, income: float) -> float:
         if np.array_equal(prices, self.base_prices):
             return float(income)
         return self._solve(prices, income, backward=True)
 
-    def hicksian(self, prices: Vector, utility: float) -> Vector:
-        return self.marshallian(prices, self.expenditure(prices, utility))
+    def _hicksian(self, prices: Vector, utility: float) -> Vector:
+        return self._marshallian(prices, self._expenditure(prices, utility))
 
     def slutsky_matrix(self, prices: Vector, income: float) -> Matrix:
         """``dx/dp + (dx/dm) x'`` from the demands' own derivatives (symbolic for formulas,

@@ -157,23 +157,23 @@ class UtilityFormula(Preferences):
         return 0.5 * (h + h.T)
 
     # -- the dual quartet ---------------------------------------------------------------------
-    def marshallian(self, prices: Vector, income: float) -> Vector:
+    def _marshallian(self, prices: Vector, income: float) -> Vector:
         key = ("x", prices.tobytes(), float(income))
         if key not in self._cache:
             self._store(key, self._maximise(prices, income))
         return self._cache[key].copy()
 
-    def indirect_utility(self, prices: Vector, income: float) -> float:
-        return self.direct_utility(self.marshallian(prices, income))
+    def _indirect_utility(self, prices: Vector, income: float) -> float:
+        return self.direct_utility(self._marshallian(prices, income))
 
-    def hicksian(self, prices: Vector, utility: float) -> Vector:
+    def _hicksian(self, prices: Vector, utility: float) -> Vector:
         key = ("h", prices.tobytes(), float(utility))
         if key not in self._cache:
             self._store(key, self._minimise(prices, utility))
         return self._cache[key].copy()
 
-    def expenditure(self, prices: Vector, utility: float) -> float:
-        return float(prices @ self.hicksian(prices, utility))
+    def _expenditure(self, prices: Vector, utility: float) -> float:
+        return float(prices @ self._hicksian(prices, utility))
 
     def _store(self, key: tuple[Any, ...], value: Vector) -> None:
         if len(self._cache) >= _CACHE_SIZE:

@@ -555,6 +555,8 @@ class NestedCES(HomotheticPreferences):
         ),
     )
 
+    one_pass = True
+
     def __init__(self, shares: Vector, reference_prices: Vector, tree: _Tree) -> None:
         self.shares = np.asarray(shares, dtype=np.float64)
         self.reference_prices = np.asarray(reference_prices, dtype=np.float64)
@@ -583,7 +585,7 @@ class NestedCES(HomotheticPreferences):
             within.append(w)
         return log_rel, within
 
-    def cost_and_shares(self, prices: Vector) -> tuple[float, Vector]:
+    def _cost_and_shares(self, prices: Vector) -> tuple[float, Vector]:
         if np.array_equal(prices, self.reference_prices):
             # The calibration point: c(p0) = 1 and w(p0) = w0, exactly (the tree's products
             # of within-group weights give w0 only to rounding), and without a pass.
@@ -595,14 +597,14 @@ class NestedCES(HomotheticPreferences):
             node_w[level.child] = node_w[level.parent] * w
         return float(np.exp(log_rel[self._root])), node_w[: self.n_items]
 
-    def unit_cost(self, prices: Vector) -> float:
+    def _unit_cost(self, prices: Vector) -> float:
         """c(p) = P_root(p), the nested power mean of the price relatives; c(p0) = 1."""
         log_rel, _ = self._log_relatives(prices)
         return float(np.exp(log_rel[self._root]))
 
-    def budget_shares(self, prices: Vector) -> Vector:
+    def _budget_shares(self, prices: Vector) -> Vector:
         """w_i(p) = d ln c / d ln p_i: the product of current within-group shares on i's path."""
-        return self.cost_and_shares(prices)[1]
+        return self._cost_and_shares(prices)[1]
 
     def group_cost_relatives(self, prices: Vector) -> Vector:
         """Each group's cost relative P_g(p), in the order of :meth:`groups`."""

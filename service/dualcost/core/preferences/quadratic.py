@@ -143,21 +143,21 @@ class HomogeneousQuadratic(HomotheticPreferences):
             )
         return level, bp
 
-    def unit_cost(self, prices: Vector) -> float:
+    def _unit_cost(self, prices: Vector) -> float:
         """c(p) = (p' B p)^(1/2); c(p0) = 1."""
         return math.sqrt(self._quadratic_form(prices)[0])
 
-    def budget_shares(self, prices: Vector) -> Vector:
+    def _budget_shares(self, prices: Vector) -> Vector:
         """w_i(p) = p_i (B p)_i / (p' B p)."""
         level, bp = self._quadratic_form(prices)
         return prices * bp / level
 
     # -- the dual quartet: e and v from the base class, x and h from one p' B p ----------------
-    def marshallian(self, prices: Vector, income: float) -> Vector:
+    def _marshallian(self, prices: Vector, income: float) -> Vector:
         level, bp = self._quadratic_form(prices)
         return income * bp / level
 
-    def hicksian(self, prices: Vector, utility: float) -> Vector:
+    def _hicksian(self, prices: Vector, utility: float) -> Vector:
         level, bp = self._quadratic_form(prices)
         return utility * bp / math.sqrt(level)
 

@@ -151,15 +151,15 @@ class Translog(HomotheticPreferences):
         r = self._log_relatives(prices)
         return float(self.shares @ r + 0.5 * r @ self.gamma @ r)
 
-    def unit_cost(self, prices: Vector) -> float:
+    def _unit_cost(self, prices: Vector) -> float:
         """c(p), with c(p0) = 1."""
         return _exp(self.log_unit_cost(prices), "unit cost")
 
-    def budget_shares(self, prices: Vector) -> Vector:
+    def _budget_shares(self, prices: Vector) -> Vector:
         """w(p) = d ln c / d ln p = w0 + Gamma r."""
         return self.shares + self.gamma @ self._log_relatives(prices)
 
-    def indirect_utility(self, prices: Vector, income: float) -> float:
+    def _indirect_utility(self, prices: Vector, income: float) -> float:
         """m exp(-ln c(p)): where c(p) overflows, 1 / c would quietly give zero; this raises."""
         return float(income) * _exp(-self.log_unit_cost(prices), "indirect utility")
 
