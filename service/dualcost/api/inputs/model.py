@@ -44,19 +44,34 @@ def _place(locator: Locator, name: str, shape: Shape) -> None:
 
 def core_parameters(spec: ModelSpec, axis: ItemAxis, locator: Locator, *, max_tree_depth: int,
                     deadline_seconds: float | None = None) -> dict[str, Any]:
-    """The family's parameters in core form (the family itself checks them on calibration)."""
+    """The family's parameters in core form, each read by the shape the family declares for it
+    (:class:`~dualcost.core.preferences.base.ParameterSpec`); the family itself checks them on
+    calibration, and names a parameter it does not take."""
     cls = family_of(spec, locator)
-    shapes: dict[str, str] | None = getattr(cls, "parameter_shapes", None)
-    convert = _by_declared_shape(shapes) if shapes is not None else _by_value
-    out = {name: convert(name, value, axis, locator, max_tree_depth)
+    shapes = {p.name: p.shape for p in cls.parameter_specs}
+    out = {name: _read(name, shapes.get(name), value, axis, locator, max_tree_depth)
            for name, value in spec.parameters().items()}
-    if shapes is not None and "item_names" in shapes.values():
-        out["item_names"] = list(axis.ids)
-    if shapes is not None and "deadline" in shapes.values():
-        # None: no deadline of the family's own (direct use from Python); the service always
-        # passes its setting.
-        out["deadline_seconds"] = deadline_seconds
+    # What the service sets itself: the items' names, and its compute deadline (None: no
+    # deadline of the family's own, for direct use from Python).
+    given = {"item_names": list(axis.ids), "deadline_seconds": deadline_seconds}
+    out |= {name: given[name] for name, shape in shapes.items() if shape == "service"}
     return out
+
+
+def _read(name: str, shape: str | None, value: Any, axis: ItemAxis, locator: Locator,
+          max_tree_depth: int) -> Any:
+    _place(locator, name, _SHAPES_AT.get(shape or "", "scalar"))
+    if shape is None or value is None:
+        return value  # the core names a parameter its family does not take
+    if shape == "tree":
+        # The core reads the item ids and the depth itself; its errors carry their path.
+        return ItemIdTree(value, axis.position, max_tree_depth)
+    return _READERS[shape](name, value, axis, locator)
+
+
+#: How an error inside a parameter of each shape is located.
+_SHAPES_AT: dict[str, Shape] = {"vector": "items", "formulas": "items", "matrix": "matrix",
+                                "tree": "path"}
 
 
 def calibrated(spec: ModelSpec, budget: BaseBudget, axis: ItemAxis, locator: Locator, *,
@@ -68,45 +83,6 @@ def calibrated(spec: ModelSpec, budget: BaseBudget, axis: ItemAxis, locator: Loc
         locator.add("model", Place("/model"))
     with locator.translating():
         return calibrate(spec.family, budget, parameters)
-
-
-Converter = Callable[[str, Any, ItemAxis, Locator, int], Any]
-
-
-def _by_value(name: str, value: Any, axis: ItemAxis, locator: Locator, max_tree_depth: int) -> Any:
-    """A parameter of a family with a closed form, converted by what was given: a number (null
-    stays None), a vector, a matrix, or a nested CES tree."""
-    if name == "tree":
-        # The core reads the item ids and the depth itself; its errors carry their path.
-        _place(locator, name, "path")
-        return ItemIdTree(value, axis.position, max_tree_depth)
-    if is_number(value) or value is None:
-        _place(locator, name, "scalar")
-        return value
-    if isinstance(value, list) and value and all(isinstance(r, list) for r in value):
-        _place(locator, name, "matrix")
-        return axis.matrix(locator, name, value)
-    entries = value.values() if isinstance(value, dict) else value
-    if isinstance(value, (list, dict)) and all(map(is_number, entries)):
-        _place(locator, name, "items")
-        return axis.vector(locator, name, value)
-    _place(locator, name, "scalar")
-    raise locator.problem(name, "must be a number, a vector (object keyed by item id, or list "
-                          "in item order), a matrix, or a tree")
-
-
-def _by_declared_shape(shapes: dict[str, str]) -> Converter:
-    def convert(name: str, value: Any, axis: ItemAxis, locator: Locator, depth: int) -> Any:
-        shape = shapes.get(name)
-        _place(locator, name, "items" if shape in ("vector", "formulas") else
-               "matrix" if shape == "matrix" else "scalar")
-        if shape is None or value is None:
-            return value  # the core names the unknown parameter
-        reader = _SHAPED.get(shape)
-        assert reader is not None, f"unknown parameter shape {shape!r}"
-        return reader(name, value, axis, locator)
-
-    return convert
 
 
 def _service_set(name: str, value: Any, axis: ItemAxis, locator: Locator) -> Any:
@@ -177,9 +153,8 @@ def _path(name: str, value: Any, axis: ItemAxis, locator: Locator) -> Any:
     return points
 
 
-_SHAPED: dict[str, Callable[[str, Any, ItemAxis, Locator], Any]] = {
-    "item_names": _service_set,
-    "deadline": _service_set,
+_READERS: dict[str, Callable[[str, Any, ItemAxis, Locator], Any]] = {
+    "service": _service_set,
     "python": _python_only,
     "number": _number,
     "text": _text,

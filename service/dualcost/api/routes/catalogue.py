@@ -18,7 +18,7 @@ def list_families() -> list[FamilyOut]:
     """The preference families, their behavioural parameters with defaults, and sources."""
     return [
         FamilyOut(family=name, title=cls.title, source=cls.source, homothetic=cls.homothetic,
-                  parameters=[ParameterOut(name=s.name, meaning=s.meaning, required=s.required,
+                  parameters=[ParameterOut(name=s.name, meaning=s.meaning, required=s.required, shape=s.shape,
                                            default=s.default) for s in cls.parameter_specs])
         for name, cls in FAMILIES.items()
     ]

@@ -14,6 +14,10 @@ class ParameterOut(StrictModel):
     meaning: str
     required: bool
     default: Any = None
+    shape: str = Field("number", description="How it is given: number, vector (keyed by item id "
+                       "or in item order), matrix (rows in item order), tree, text, item, "
+                       "formulas (one per item), path (price vectors), service (set by the "
+                       "service), python (from Python only).")
 
 
 class FamilyOut(StrictModel):

@@ -35,7 +35,7 @@ from __future__ import annotations
 import abc
 from collections.abc import Callable, Mapping, Sequence
 from dataclasses import dataclass, field
-from typing import Any, ClassVar, TypeVar
+from typing import Any, ClassVar, Literal, TypeVar
 
 import numpy as np
 import numpy.typing as npt
@@ -66,18 +66,27 @@ class Notice:
     message: str
 
 
+#: The form a parameter takes, which tells a caller (the web layer) how to read it: a number;
+#: a vector or a matrix over the items; a nested CES tree; text; an item; one formula per item;
+#: a list of price vectors; set by the service (the items' names, the compute deadline); or
+#: given from Python only (a callable).
+ParameterShape = Literal["number", "vector", "matrix", "tree", "text", "item", "formulas",
+                         "path", "service", "python"]
+
+
 @dataclass(frozen=True)
 class ParameterSpec:
-    """One behavioural parameter a family takes: its name, meaning and default.
+    """One behavioural parameter a family takes: its name, meaning, default and shape.
 
     ``default`` is ``None`` for a parameter without a default; ``required`` says whether the
-    caller must give it.
+    caller must give it; ``shape`` is its form (:data:`ParameterShape`).
     """
 
     name: str
     meaning: str
     required: bool = False
     default: Any = None
+    shape: ParameterShape = "number"
 
 
 @dataclass(frozen=True)

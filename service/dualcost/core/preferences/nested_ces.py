@@ -552,6 +552,7 @@ class NestedCES(HomotheticPreferences):
             "of substitution between its children (0 or more), \"children\": item positions "
             "0..n-1 and subgroups}; every item appears exactly once.",
             required=True,
+            shape="tree",
         ),
     )
 
