@@ -125,7 +125,7 @@ def run_remotely(body: dict[str, Any], url: str, api_key: str | None) -> dict[st
     headers = {"x-api-key": api_key} if api_key else None
     try:
         with Client(url, headers=headers) as client:
-            return client.request("POST", "/v1/audits", json=body)  # type: ignore[no-any-return]
+            return client.request("POST", "/v1/audits", json=body)
     except ProblemError as exc:
         details = "; ".join(f"{e.get('pointer')}: {e.get('detail')}" for e in exc.errors)
         raise CheckInputError(f"{exc} {details}".strip()) from None

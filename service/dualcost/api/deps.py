@@ -15,7 +15,7 @@ from ..config import Settings
 
 
 def settings_of(request: Request) -> Settings:
-    return request.app.state.settings  # type: ignore[no-any-return]
+    return request.app.state.settings
 
 
 async def get_settings(request: Request) -> Settings:

@@ -427,6 +427,9 @@ def _weights(panel: Panel, quantities: Array, weight_reference: WeightReference 
         return _Weights(None, None), None
     prices = panel.filled_prices()
     period: int | None = None
+    qb: Array | None
+    pb: Array | None
+    wb: Array | None
     if isinstance(weight_reference, (int, np.integer)):
         period = int(weight_reference)
         if period > base:
@@ -441,7 +444,8 @@ def _weights(panel: Panel, quantities: Array, weight_reference: WeightReference 
         pb = prices[period]
         wb = pb * qb / float(pb @ qb)
     else:
-        qb, wb, pb = weight_reference.quantities, weight_reference.shares, weight_reference.prices
+        qb, pb = weight_reference.quantities, weight_reference.prices
+        wb = weight_reference.shares
         if qb is not None and wb is None and pb is not None:
             wb = pb * qb / float(pb @ qb)
     shares = wb if wb is not None else np.full(panel.n_items, np.nan)

@@ -253,4 +253,4 @@ def model_from_query(query: dict[str, Any], loc: Locator) -> FitModelIn:
             values["tree"] = json.loads(values["tree"])
         except json.JSONDecodeError as exc:
             raise RequestProblem.at("#/query/tree", f"is not valid JSON: {exc}") from None
-    return validated(FitModelIn, values, loc)  # type: ignore[no-any-return]
+    return validated(FitModelIn, values, loc)

@@ -46,7 +46,7 @@ FormatParam = Annotated[Literal["json", "csv"] | None, Query(
 
 
 def _store(request: Request) -> jobs.JobStore:
-    return request.app.state.jobs  # type: ignore[no-any-return]
+    return request.app.state.jobs
 
 
 @router.post("/household-indices", operation_id="householdIndices",

@@ -69,7 +69,7 @@ def describe_problem(slug: str) -> HTMLResponse:
 def demo_request() -> dict[str, Any]:
     """The demo scenario's comparison request (shipped with the package)."""
     text = resources.files("dualcost.demo").joinpath("wrenmouth.json").read_text("utf-8")
-    return json.loads(text)  # type: ignore[no-any-return]
+    return json.loads(text)
 
 
 @router.get("/v1/demo", operation_id="demo", response_model=DemoOut, tags=["demo"])

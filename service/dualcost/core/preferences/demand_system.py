@@ -427,7 +427,7 @@ class DemandSystem(Preferences):
                                   "(give a numeraire item to close the budget)."))
         at_base = np.array_equal(prices, self.base_prices)
         if at_base:
-            points = [(None, prices, income)]
+            points: list[tuple[float | None, Vector, float]] = [(None, prices, income)]
         else:
             total = len(self.waypoints) + 1
             taus = [c * total for c in _CHECKPOINTS]

@@ -336,7 +336,7 @@ class _Walk:
     def _read_children(self, node: Mapping[str, Any], g: int
                        ) -> list[tuple[Mapping[str, Any], int, int, TreePath]]:
         """Place the group's items; its subgroups, to be read next, in the order listed."""
-        kids = node.get("children")
+        kids: Any = node.get("children")
         place = self.places[g]
         if not _is_list(kids) or len(kids) < self.form.min_children:
             raise self.fail("few_children", place + ("children",), g)
