@@ -27,9 +27,10 @@ from typing import Any, TextIO
 
 from .api.inputs.csv import read_table
 from .core.audit import decimals_of
+from .core.errors import DualcostError
 
 
-class CheckInputError(Exception):
+class CheckInputError(DualcostError):
     """An input file cannot be read; the message says which and why."""
 
 

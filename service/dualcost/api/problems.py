@@ -4,6 +4,23 @@ Every error answer is ``application/problem+json`` with ``type``, ``title``, ``s
 ``detail`` and, for bad input, an ``errors`` list of ``{"pointer", "detail"}`` where ``pointer`` is
 a JSON Pointer (RFC 6901) into the request body (or ``#/query/<name>`` for a query parameter).
 Problem types are relative URIs served by the app at ``/problems/<slug>``.
+
+The web layer's exceptions join the core's tree (:mod:`dualcost.core.errors`)::
+
+    DualcostError
+     ├── InvalidInput, NumericalFailure, EngineUnavailable   the core's (see core.errors)
+     ├── RequestProblem       bad input the web layer found, or a core error located in the
+     │                        request (422, or the slug it carries: 400, 413)
+     └── ServiceProblem       the service's state refuses the request
+          ├── JobNotFound     404
+          ├── JobConflict     409
+          └── ServiceBusy     503
+
+    BodyTooLarge (a BaseException: it must pass the framework's ``except Exception`` around
+    body reading to reach the size-limit middleware, which answers 413)
+
+Every status the service answers for an error is in this module: in ``PROBLEM_TYPES`` and in
+the classes above.
 """
 
 from __future__ import annotations
