@@ -62,17 +62,17 @@ class Client:
         return response.json()
 
     def health(self) -> dict[str, Any]:
-        return self._call("GET", "/health")  # type: ignore[no-any-return]
+        return self._call("GET", "/health")
 
     def compare(self, request: Mapping[str, Any]) -> dict[str, Any]:
         """POST /v1/comparisons: the Konüs index beside the formula indices."""
-        return self._call("POST", "/v1/comparisons", json=request)  # type: ignore[no-any-return]
+        return self._call("POST", "/v1/comparisons", json=request)
 
     def families(self) -> list[dict[str, Any]]:
-        return self._call("GET", "/v1/preference-families")  # type: ignore[no-any-return]
+        return self._call("GET", "/v1/preference-families")
 
     def formulas(self) -> list[dict[str, Any]]:
-        return self._call("GET", "/v1/index-formulas")  # type: ignore[no-any-return]
+        return self._call("GET", "/v1/index-formulas")
 
     def request(self, method: str, path: str, **kwargs: Any) -> Any:
         """Any other operation, by method and path; problems raise :class:`ProblemError`."""

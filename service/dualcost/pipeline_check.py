@@ -25,11 +25,12 @@ import xml.etree.ElementTree as ET
 from pathlib import Path
 from typing import Any, TextIO
 
-from .api.tabular import read_table
+from .api.inputs.csv import read_table
 from .core.audit import decimals_of
+from .core.errors import DualcostError
 
 
-class CheckInputError(Exception):
+class CheckInputError(DualcostError):
     """An input file cannot be read; the message says which and why."""
 
 
@@ -65,10 +66,10 @@ def panel_from_file(path: Path) -> dict[str, Any]:
     """The panel as the JSON body of POST /v1/index-series."""
     text = path.read_text(encoding="utf-8")
     if path.suffix.lower() == ".json":
-        body = json.loads(text)
-        if not isinstance(body, dict):
+        given = json.loads(text)
+        if not isinstance(given, dict):
             raise CheckInputError(f"{path}: expected a JSON object with periods, items and prices")
-        return body
+        return given
     from .api.problems import RequestProblem
 
     try:
@@ -109,19 +110,12 @@ def audit_request(published: list[dict[str, Any]], panel: dict[str, Any], *,
 
 
 def run_locally(body: dict[str, Any]) -> dict[str, Any]:
-    from pydantic import ValidationError
-
-    from .api.problems import RequestProblem, _pointer, _pydantic_message
-    from .api.schemas.audit import AuditRequest, run_audit
+    from .api.operations.audit import audit_json
+    from .api.problems import RequestProblem
     from .config import Settings
 
     try:
-        request = AuditRequest.model_validate(body)
-        return run_audit(request, Settings()).model_dump()
-    except ValidationError as exc:
-        raise CheckInputError("; ".join(
-            f"{_pointer(('body', *e['loc']), body, e['type'])}: {_pydantic_message(e)}"
-            for e in exc.errors())) from None
+        return audit_json(body, Settings())
     except RequestProblem as exc:
         raise CheckInputError("; ".join(f"{e.pointer}: {e.detail}" for e in exc.errors)) from None
 
@@ -132,7 +126,7 @@ def run_remotely(body: dict[str, Any], url: str, api_key: str | None) -> dict[st
     headers = {"x-api-key": api_key} if api_key else None
     try:
         with Client(url, headers=headers) as client:
-            return client.request("POST", "/v1/audits", json=body)  # type: ignore[no-any-return]
+            return client.request("POST", "/v1/audits", json=body)
     except ProblemError as exc:
         details = "; ".join(f"{e.get('pointer')}: {e.get('detail')}" for e in exc.errors)
         raise CheckInputError(f"{exc} {details}".strip()) from None

@@ -243,7 +243,7 @@ def test_tree_with_an_item_position_instead_of_an_id(client) -> None:
     """A request's tree names items by id; a number there is refused, not read as a position."""
     tree = {"sigma": 0.5, "children": [{"sigma": 1.0, "children": ["a", "b"]}, 2]}
     assert_problem(post(client, small_request(family="nested_ces", tree=tree)),
-                   "/model/tree/children/1", "item id or a group")
+                   "/model/tree/children/1", "neither an item id nor a group")
 
 
 def _resolves(body: Any, pointer: str, missing: bool) -> bool:

@@ -155,6 +155,6 @@ def test_negative_model_demand_leaves_out_current_weighted_formulas(client) -> N
 ])
 def test_all_finite_finds_any_nan_or_infinity(value, finite) -> None:
     """The guard before a model's parameters are written (never NaN or infinity in a 200)."""
-    from dualcost.api.schemas.comparison import all_finite
+    from dualcost.api.render import all_finite
 
     assert all_finite(value) is finite

@@ -254,7 +254,7 @@ def test_options_that_do_not_fit_the_family(client: Any) -> None:
                    "sea_kelp")
     body = load_example("fitModel.wrenmouth_monthly_nested_ces.json")
     body["model"]["tree"]["sigma"] = 0.5
-    assert_problem(client.post("/v1/fits", json=body), "/model/tree", "leave it out")
+    assert_problem(client.post("/v1/fits", json=body), "/model/tree/sigma", "leave it out")
 
 
 def test_fitted_comparison_needs_a_model_with_a_cost_function(client: Any) -> None:

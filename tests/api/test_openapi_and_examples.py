@@ -50,6 +50,25 @@ def test_every_example_gets_a_sound_answer(client, name) -> None:
     assert not [n for n in body["notices"] if n["code"].startswith("slutsky")]
 
 
+def _response_models() -> dict[str, type]:
+    from dualcost.api.routes import ROUTERS
+
+    return {route.operation_id: route.response_model for router in ROUTERS
+            for route in router.routes
+            if getattr(route, "operation_id", None) and getattr(route, "response_model", None)}
+
+
+@pytest.mark.parametrize("name", EXAMPLE_FILES)
+def test_every_answer_has_its_documented_shape(client, name) -> None:
+    """Answers are written from plain values for speed; each must still validate against the
+    response model the OpenAPI document shows for its operation."""
+    operation_id = name.split(".")[0]
+    method, path = _operation(client, operation_id)
+    r = client.request(method.upper(), path, json=load_example(name))
+    assert r.status_code == 200, r.text
+    _response_models()[operation_id].model_validate(r.json())
+
+
 def test_openapi_is_3_1_with_the_caution(client) -> None:
     doc = client.get("/openapi.json").json()
     assert doc["openapi"].startswith("3.1")

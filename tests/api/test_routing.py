@@ -94,13 +94,12 @@ def test_the_rendered_answer_reads_back_to_the_same_numbers(client, model) -> No
     (json.dumps writes Python's shortest round-trip repr, the reference here)."""
     import json
 
-    from dualcost.api.schemas.comparison import ComparisonRequest, comparison_document
+    from dualcost.api.operations import compare
+    from dualcost.api.schemas.comparison import ComparisonRequest
 
     req = small_request(**model)
-    settings = Settings()
-    result = ComparisonRequest.model_validate(req).run(
-        max_items=settings.max_items, max_tree_depth=settings.max_tree_depth)
-    expected = json.loads(json.dumps(comparison_document(*result)))
+    outcome = compare.run(ComparisonRequest.model_validate(req), Settings())
+    expected = json.loads(json.dumps(compare.document(outcome)))
     r = client.post("/v1/comparisons", json=req)
     assert r.status_code == 200
     assert json.loads(r.content) == expected
@@ -108,14 +107,12 @@ def test_the_rendered_answer_reads_back_to_the_same_numbers(client, model) -> No
 
 def _examples_by_model():
     """Each example body with the body model of its operation (the routers' JsonRoutes)."""
-    import importlib
-
+    from dualcost.api.routes import ROUTERS
     from dualcost.api.routing import _body_model
     from tests.conftest import EXAMPLES
 
     models = {}
-    for module in ("comparisons", "series", "audit", "estimation", "households"):
-        router = importlib.import_module(f"dualcost.api.routes.{module}").router(Settings())
+    for router in ROUTERS:
         for route in router.routes:
             if isinstance(route, JsonRoute) and _body_model(route) is not None:
                 models[route.operation_id] = _body_model(route)

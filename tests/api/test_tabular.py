@@ -8,8 +8,9 @@ import io
 
 import pytest
 
+from dualcost.api.inputs.csv import parse_number, read_table
 from dualcost.api.problems import RequestProblem
-from dualcost.api.tabular import csv_text, parse_number, read_table
+from dualcost.api.render import csv_text
 
 
 def test_reads_numbers_with_a_decimal_point_only() -> None:

@@ -3,8 +3,9 @@
 References: the closed forms of the same utility functions as the engine's families (Cobb and
 Douglas 1928; Arrow, Chenery, Minhas and Solow 1961 for CES; Stone 1954 and Geary 1950 for the
 linear expenditure system, with its Slutsky matrix from Deaton and Muellbauer 1980, 3.1); perfect
-substitutes, e(p, u) = u min_i p_i / a_i (Mas-Colell, Whinston and Green 1995, example 3.E.1
-exercises; common practice). Random draws are seeded (``np.random.default_rng(seed)``).
+substitutes, e(p, u) = u min_i p_i / a_i (the expenditure minimisation problem of Mas-Colell,
+Whinston and Green 1995, section 3.E; common practice). Random draws are seeded
+(``np.random.default_rng(seed)``).
 """
 
 from __future__ import annotations

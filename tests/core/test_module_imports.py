@@ -58,7 +58,7 @@ def test_the_source_walk_sees_the_known_imports() -> None:
     """The walk itself: a few imports known to be there are found (relative, absolute, nested)."""
     assert "dualcost.core.errors" in GRAPH["dualcost.core.households"]
     assert "dualcost.core._checks" in GRAPH["dualcost.core.preferences.nested_ces"]
-    assert "dualcost.engines.dask" in GRAPH["dualcost.api.routes.households"]  # inside functions
+    assert "dualcost.engines.dask" in GRAPH["dualcost.api.operations.households"]  # in functions
     assert "dualcost.core.households" in GRAPH["dualcost.engines.dask"]
 
 

@@ -489,16 +489,16 @@ TREE_PLACES = [
     pytest.param("model", _group("a", "b", _group(), "c", "d"), ("children", 2, "children"),
                  "'all items > group #3' has no children", [], id="empty children"),
     pytest.param("model", _group(_group("a", "q"), "b", "c", "d"), ("children", 0, "children", 1),
-                 "lists 'q', which is not one of the items", "q", id="unknown item id"),
+                 "lists 'q', which is not an item id listed in items", "q", id="unknown item id"),
     pytest.param("model", _group(_group("a", "b"), "c", _group("d", "b")),
-                 ("children", 2, "children", 1), "item 1 appears twice", "b", id="item twice"),
+                 ("children", 0, "children", 1), "item 1 appears twice", "b", id="item twice"),
     pytest.param("model", _group(_group("a", "b"), "c"), (), "item 3 is not in the tree",
                  _group(_group("a", "b"), "c"), id="item missing"),
     pytest.param("model", _group(_group(_group(_group("a"), "b"), "c"), "d"),
                  ("children", 0, "children", 0, "children", 0),
                  "deeper than the limit of 3 levels", _group("a"), id="too deep"),
     pytest.param("model", _group(_group("a", "b", name="food"), _group("c", "d", name=" food")),
-                 ("children", 1, "name"), "two groups are named 'food'", " food",
+                 ("children", 0, "name"), "two groups are named 'food'", "food",
                  id="duplicate group name"),
     pytest.param("model", _group(_group("a", "b", name=""), "c", "d"), ("children", 0, "name"),
                  "non-empty text", "", id="empty name"),
@@ -553,14 +553,17 @@ def test_tree_errors_read_as_places_in_the_tree() -> None:
 
 
 def test_a_model_reports_its_groups_in_the_order_it_always_has() -> None:
-    """The reader numbers groups in listed order; a model reports them root first, then each
-    group's subgroups together, groups reached from the last listed (the order of the service's
-    answers, kept; invented example)."""
+    """A model's tree numbers its groups root first, then each group's subgroups together, groups
+    reached from the last listed (the order of the service's answers, kept); a fit's grouping
+    numbers them in listed order (invented example)."""
     tree = {"sigma": 0.5, "children": [
         {"name": "A", "sigma": 1.0, "children": [0, {"name": "C", "sigma": 2.0, "children": [1]}]},
         {"name": "B", "sigma": 1.5, "children": [{"name": "D", "sigma": 0.0, "children": [2]}, 3]},
     ]}
-    assert parse_tree(tree, 4).labels == ("all items", "A", "C", "B", "D")
+    assert parse_tree(tree, 4).labels == ("all items", "A", "B", "D", "C")
+    grouping = {"children": [{"name": "A", "children": [0, {"name": "C", "children": [1, 4]}]},
+                             {"name": "B", "children": [{"name": "D", "children": [2, 5]}, 3]}]}
+    assert parse_tree(grouping, 6, form=FIT_TREE).labels == ("all items", "A", "C", "B", "D")
     model = NestedCES.calibrate(budget(3, 4), tree=tree)
     groups = model.groups()
     assert [g["name"] for g in groups] == ["all items", "A", "B", "D", "C"]
@@ -614,7 +617,7 @@ def test_a_tree_naming_items_by_id_equals_the_tree_of_positions() -> None:
 
 
 @pytest.mark.parametrize("tree,words", [
-    ({"sigma": 0.5, "children": ["a", "z", "c"]}, "'z', which is not one of the items"),
+    ({"sigma": 0.5, "children": ["a", "z", "c"]}, "'z', which is not an item id listed in items"),
     ({"sigma": 0.5, "children": ["a", "b", 2]}, "2, which is neither an item id nor a group"),
     ({"sigma": 0.5, "children": ["a", "b", "a"]}, "item 0 appears twice"),
     ({"sigma": 0.5, "children": [{"sigma": 1, "children": [{"sigma": 1, "children": ["a"]}]},

@@ -16,7 +16,6 @@ from __future__ import annotations
 
 import hashlib
 import hmac
-import json
 import math
 import threading
 import time
@@ -24,7 +23,7 @@ from collections.abc import Sequence
 
 from starlette.types import ASGIApp, Receive, Scope, Send
 
-from .problems import problem_body
+from .problems import send_problem
 
 #: Paths that stay open without a key: health probes, metrics, the page and the API description.
 OPEN_PREFIXES = ("/health", "/live", "/ready", "/metrics", "/problems/", "/static/", "/docs",
@@ -78,8 +77,9 @@ class AccessControlMiddleware:
         if not given and auth[:7].lower() == b"bearer ":
             given = auth[7:].strip()
         if self.keys and not (given and self._match(given)):
-            await _refuse(send, path, "unauthorized", 401,
-                          "A valid API key is needed in the X-API-Key header.")
+            await send_problem(send, "unauthorized", "A valid API key is needed in the X-API-Key "
+                               "header.", instance=path,
+                               headers=[(b"www-authenticate", b'ApiKey header="X-API-Key"')])
             return
         label = key_label(given.decode("latin-1")) if given else "anonymous"
         scope.setdefault("state", {})["client_label"] = label
@@ -88,23 +88,11 @@ class AccessControlMiddleware:
                 bucket = self.buckets.setdefault(label, _Bucket(self.rate))
                 wait = bucket.take()
             if wait > 0:
-                await _refuse(send, path, "too-many-requests", 429,
-                              f"This key's limit is {self.rate} requests a minute.",
-                              retry_after=math.ceil(wait))
+                await send_problem(send, "too-many-requests", f"This key's limit is {self.rate} "
+                                   "requests a minute.", instance=path,
+                                   headers=[(b"retry-after", str(math.ceil(wait)).encode())])
                 return
         await self.app(scope, receive, send)
-
-
-async def _refuse(send: Send, path: str, slug: str, status: int, detail: str, *,
-                  retry_after: int | None = None) -> None:
-    data = json.dumps(problem_body(slug, detail, instance=path)).encode()
-    headers = [(b"content-type", b"application/problem+json"), (b"content-length", str(len(data)).encode())]
-    if status == 401:
-        headers.append((b"www-authenticate", b'ApiKey header="X-API-Key"'))
-    if retry_after is not None:
-        headers.append((b"retry-after", str(retry_after).encode()))
-    await send({"type": "http.response.start", "status": status, "headers": headers})
-    await send({"type": "http.response.body", "body": data})
 
 
 def load_keys(inline: Sequence[str], file: str | None) -> list[str]:

@@ -19,16 +19,8 @@ from .access import AccessControlMiddleware, load_keys
 from .limits import BodySizeLimitMiddleware
 from .observability import RequestContextMiddleware
 from .openapi import problem_openapi
-from .routes import (
-    audit,
-    catalogue,
-    comparisons,
-    estimation,
-    households,
-    series,
-    service,
-    spreadsheet,
-)
+from .operations import jobs
+from .routes import ROUTERS
 
 WEB_DIR = Path(__file__).resolve().parents[1] / "web"
 
@@ -80,6 +72,7 @@ def create_app(settings: Settings | None = None) -> FastAPI:
         ],
     )
     app.state.settings = settings
+    app.state.jobs = jobs.JobStore(settings.max_household_jobs)
     keys = load_keys(settings.api_keys, str(settings.api_keys_file) if settings.api_keys_file else None)
     app.state.access_control = bool(keys)
     if keys or settings.rate_limit_per_minute:
@@ -92,14 +85,8 @@ def create_app(settings: Settings | None = None) -> FastAPI:
     problems.install(app)
     # Outermost: every request gets its id, log line and metrics, refusals included.
     app.add_middleware(RequestContextMiddleware)
-    app.include_router(comparisons.router(settings))
-    app.include_router(series.router(settings))
-    app.include_router(audit.router(settings))
-    app.include_router(catalogue.router)
-    app.include_router(service.router)
-    app.include_router(spreadsheet.router)
-    app.include_router(households.router(settings))
-    app.include_router(estimation.router(settings))
+    for router in ROUTERS:
+        app.include_router(router)
 
     app.openapi = lambda: problem_openapi(app)  # type: ignore[method-assign]
     app.mount("/static", StaticFiles(directory=WEB_DIR), name="static")

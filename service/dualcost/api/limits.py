@@ -6,11 +6,9 @@ arrives and cut off at the limit.
 
 from __future__ import annotations
 
-import json
-
 from starlette.types import ASGIApp, Message, Receive, Scope, Send
 
-from .problems import BodyTooLarge, problem_body
+from .problems import BodyTooLarge, send_problem
 
 
 class BodySizeLimitMiddleware:
@@ -51,11 +49,6 @@ class BodySizeLimitMiddleware:
                 await self._refuse(scope, send)
 
     async def _refuse(self, scope: Scope, send: Send) -> None:
-        body = problem_body("payload-too-large", f"The request body is larger than the limit of "
-                            f"{self.limit} bytes (setting DUALCOST_MAX_BODY_BYTES).",
-                            instance=scope.get("path"))
-        data = json.dumps(body).encode()
-        await send({"type": "http.response.start", "status": 413,
-                    "headers": [(b"content-type", b"application/problem+json"),
-                                (b"content-length", str(len(data)).encode())]})
-        await send({"type": "http.response.body", "body": data})
+        await send_problem(send, "payload-too-large", f"The request body is larger than the "
+                           f"limit of {self.limit} bytes (setting DUALCOST_MAX_BODY_BYTES).",
+                           instance=scope.get("path"))

@@ -14,6 +14,7 @@ from fastapi import FastAPI
 from fastapi.openapi.utils import get_openapi
 from pydantic import BaseModel, Field
 
+from .examples import add_examples
 from .problems import PROBLEM_MEDIA_TYPE
 
 
@@ -54,6 +55,7 @@ def problem_openapi(app: FastAPI) -> dict[str, Any]:
         return app.openapi_schema
     doc = get_openapi(title=app.title, version=app.version, description=app.description,
                       routes=app.routes, tags=app.openapi_tags)
+    add_examples(doc, app.state.settings.examples_dir)
     schemas = doc.setdefault("components", {}).setdefault("schemas", {})
     problem_schema = ProblemOut.model_json_schema(ref_template="#/components/schemas/{model}")
     schemas.update(problem_schema.pop("$defs", {}))

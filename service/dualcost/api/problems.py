@@ -4,20 +4,46 @@ Every error answer is ``application/problem+json`` with ``type``, ``title``, ``s
 ``detail`` and, for bad input, an ``errors`` list of ``{"pointer", "detail"}`` where ``pointer`` is
 a JSON Pointer (RFC 6901) into the request body (or ``#/query/<name>`` for a query parameter).
 Problem types are relative URIs served by the app at ``/problems/<slug>``.
+
+The web layer's exceptions join the core's tree (:mod:`dualcost.core.errors`)::
+
+    DualcostError
+     ├── InvalidInput, NumericalFailure, EngineUnavailable   the core's (see core.errors)
+     ├── RequestProblem       bad input the web layer found, or a core error located in the
+     │                        request (422, or the slug it carries: 400, 413)
+     └── ServiceProblem       the service's state refuses the request
+          ├── JobNotFound     404
+          ├── JobConflict     409
+          └── ServiceBusy     503
+
+    BodyTooLarge (a BaseException: it must pass the framework's ``except Exception`` around
+    body reading to reach the size-limit middleware, which answers 413)
+
+Every status the service answers for an error is in this module: in ``PROBLEM_TYPES`` and in
+the classes above.
 """
 
 from __future__ import annotations
 
+import json
 import logging
+from collections.abc import Iterable, Mapping, Sequence
 from dataclasses import dataclass
 from typing import Any
 
 from fastapi import FastAPI, Request
 from fastapi.exceptions import RequestValidationError
-from fastapi.responses import JSONResponse, PlainTextResponse
+from fastapi.responses import JSONResponse, PlainTextResponse, Response
 from starlette.exceptions import HTTPException as StarletteHTTPException
+from starlette.types import Send
 
-from ..core.errors import DeadlineExceeded, InvalidInput, NumericalFailure
+from ..core.errors import (
+    DeadlineExceeded,
+    DualcostError,
+    EngineUnavailable,
+    InvalidInput,
+    NumericalFailure,
+)
 
 PROBLEM_MEDIA_TYPE = "application/problem+json"
 log = logging.getLogger("dualcost.api")
@@ -81,13 +107,42 @@ class FieldError:
     detail: str
 
 
-class RequestProblem(Exception):
+class RequestProblem(DualcostError):
     """Raised by the API layer for bad input it finds itself, or translated from the core."""
 
     def __init__(self, errors: list[FieldError], *, slug: str = "invalid-input") -> None:
         self.errors = errors
         self.slug = slug
         super().__init__("; ".join(f"{e.pointer}: {e.detail}" for e in errors))
+
+    @classmethod
+    def at(cls, pointer: str, detail: str, *, slug: str = "invalid-input") -> RequestProblem:
+        """A problem with one field error."""
+        return cls([FieldError(pointer, detail)], slug=slug)
+
+
+class ServiceProblem(DualcostError):
+    """A refusal about the service's state rather than a field of the request: no such job, a
+    job in the wrong state, no room for another, a cluster that cannot be reached."""
+
+    slug = "http-error"
+    status = 400
+
+    def __init__(self, detail: str) -> None:
+        self.detail = detail
+        super().__init__(detail)
+
+
+class JobNotFound(ServiceProblem):
+    slug, status = "not-found", 404
+
+
+class JobConflict(ServiceProblem):
+    slug, status = "http-error", 409
+
+
+class ServiceBusy(ServiceProblem):
+    slug, status = "http-error", 503
 
 
 def problem_body(slug: str, detail: str, *, status: int | None = None,
@@ -106,6 +161,18 @@ def problem_body(slug: str, detail: str, *, status: int | None = None,
     return body
 
 
+async def send_problem(send: Send, slug: str, detail: str, *, instance: str | None = None,
+                       headers: Sequence[tuple[bytes, bytes]] = ()) -> None:
+    """Answer a problem straight through ASGI (for middleware that refuses a request before
+    it reaches the app); the status is the problem type's."""
+    body = problem_body(slug, detail, instance=instance)
+    data = json.dumps(body).encode()
+    await send({"type": "http.response.start", "status": body["status"],
+                "headers": [(b"content-type", PROBLEM_MEDIA_TYPE.encode()),
+                            (b"content-length", str(len(data)).encode()), *headers]})
+    await send({"type": "http.response.body", "body": data})
+
+
 def problem_response(slug: str, detail: str, *, status: int | None = None,
                      errors: list[FieldError] | None = None,
                      instance: str | None = None) -> JSONResponse:
@@ -116,7 +183,7 @@ def problem_response(slug: str, detail: str, *, status: int | None = None,
 _NO_BODY = object()
 
 
-def _pointer(loc: tuple[Any, ...], body: Any = _NO_BODY, kind: str = "") -> str:
+def pointer_of(loc: tuple[Any, ...], body: Any = _NO_BODY, kind: str = "") -> str:
     """Pydantic's error location as a JSON Pointer; query parameters as ``#/query/<name>``.
 
     Pydantic puts the name of the union member that was tried into the location
@@ -152,7 +219,8 @@ def _pointer(loc: tuple[Any, ...], body: Any = _NO_BODY, kind: str = "") -> str:
     return prefix + "".join("/" + str(p).replace("~", "~0").replace("/", "~1") for p in kept)
 
 
-def _pydantic_message(err: dict[str, Any]) -> str:
+def rule_of(err: Mapping[str, Any]) -> str:
+    """One validation error's rule in plain words."""
     kind = err.get("type", "")
     if kind == "finite_number":
         return "must be a finite number (not NaN or infinity)"
@@ -163,20 +231,28 @@ def _pydantic_message(err: dict[str, Any]) -> str:
     return str(err.get("msg", "is not valid"))
 
 
-async def _on_validation_error(request: Request, exc: RequestValidationError) -> JSONResponse:
+async def _on_validation_error(request: Request, exc: RequestValidationError) -> Response:
     raw = exc.errors()
     if any(e.get("type") == "json_invalid" for e in raw):
         ctx = next(e for e in raw if e.get("type") == "json_invalid").get("ctx", {})
         return problem_response("malformed-request",
                                 f"The body is not valid JSON: {ctx.get('error', 'parse error')}.",
                                 instance=request.url.path)
-    errors = [FieldError(_pointer(tuple(e.get("loc", ())), exc.body, e.get("type", "")),
-                         _pydantic_message(e)) for e in raw]
+    errors = field_errors(raw, exc.body)
     if request.query_params.get("on_error") == "text":
         # The spreadsheet forms' documented switch: a 200 whose text says what is wrong.
         return PlainTextResponse(error_text(errors))
     return problem_response("invalid-input", _summary(errors), errors=errors,
                             instance=request.url.path)
+
+
+def field_errors(raw: Iterable[Mapping[str, Any]], body: Any = _NO_BODY, *,
+                 prefix: tuple[str, ...] = ()) -> list[FieldError]:
+    """Pydantic's validation errors (``ValidationError.errors()``) as field errors pointing into
+    ``body``; ``prefix`` is put before each location (``("body",)`` for a model validated on its
+    own, as FastAPI reports the body's errors)."""
+    return [FieldError(pointer_of(prefix + tuple(e.get("loc", ())), body, e.get("type", "")),
+                       rule_of(e)) for e in raw]
 
 
 def error_text(errors: list[FieldError]) -> str:
@@ -193,6 +269,15 @@ async def _on_invalid_input(request: Request, exc: InvalidInput) -> JSONResponse
     # Reached only when a route did not translate a core error to a pointer itself.
     errors = [FieldError("", str(exc))]
     return problem_response("invalid-input", str(exc), errors=errors, instance=request.url.path)
+
+
+async def _on_service_problem(request: Request, exc: ServiceProblem) -> JSONResponse:
+    return problem_response(exc.slug, exc.detail, status=exc.status, instance=request.url.path)
+
+
+async def _on_engine_unavailable(request: Request, exc: EngineUnavailable) -> JSONResponse:
+    return problem_response("http-error", f"The Dask cluster cannot be used: {exc}", status=503,
+                            instance=request.url.path)
 
 
 async def _on_numerical_failure(request: Request, exc: NumericalFailure) -> JSONResponse:
@@ -225,5 +310,7 @@ def install(app: FastAPI) -> None:
     app.add_exception_handler(RequestProblem, _on_request_problem)  # type: ignore[arg-type]
     app.add_exception_handler(InvalidInput, _on_invalid_input)  # type: ignore[arg-type]
     app.add_exception_handler(NumericalFailure, _on_numerical_failure)  # type: ignore[arg-type]
+    app.add_exception_handler(ServiceProblem, _on_service_problem)  # type: ignore[arg-type]
+    app.add_exception_handler(EngineUnavailable, _on_engine_unavailable)  # type: ignore[arg-type]
     app.add_exception_handler(StarletteHTTPException, _on_http_error)  # type: ignore[arg-type]
     app.add_exception_handler(Exception, _on_unexpected)

@@ -10,11 +10,13 @@ from __future__ import annotations
 
 from collections.abc import Mapping, Sequence
 from dataclasses import dataclass
+from typing import Any
 
 import numpy as np
 from numpy.typing import NDArray
 
 from .errors import InvalidInput
+from .series import series_by_label
 
 Array = NDArray[np.float64]
 
@@ -100,3 +102,15 @@ def decimals_of(text: str) -> int:
     mantissa, _, exponent = t.partition("e")
     places = len(mantissa.split(".", 1)[1]) if "." in mantissa else 0
     return max(places - int(exponent or 0), 0)
+
+
+def audit_series(published: Sequence[PublishedValue], *, tolerance: float | None = None,
+                 **series: Any) -> Audit:
+    """Recompute the series the published values belong to from their panel, and compare them
+    one by one: :func:`dualcost.core.series.series_by_label` with ``series`` as its arguments,
+    only the formulas published, then :func:`audit`."""
+    needed = list(dict.fromkeys(p.formula for p in published))
+    result = series_by_label(**(series | {"formulas": needed})).result
+    recomputed = {(name, kind): getattr(s, kind) for name, s in result.formulas.items()
+                  for kind in SERIES_KINDS}
+    return audit(published, recomputed, result.periods, tolerance=tolerance)

@@ -30,8 +30,9 @@ Definitions used throughout (utility ``u``, expenditure function ``e``, indirect
 from __future__ import annotations
 
 import math
-from collections.abc import Sequence
+from collections.abc import Mapping, Sequence
 from dataclasses import dataclass, field
+from typing import Any
 
 import numpy as np
 import numpy.typing as npt
@@ -48,6 +49,7 @@ from .indices import (
     formulas_for,
 )
 from .konus import PriceChange, StandardAt, konus_at_income, naming, price_change
+from .preferences import calibrate
 from .preferences.base import BaseBudget, Notice, Preferences, Vector
 
 #: Duality residuals above this (relative) are reported as a notice.
@@ -462,3 +464,50 @@ def _check_finite(c: Comparison) -> None:
         raise NumericalFailure("comparison", "the model could not be evaluated in floating "
                                "point at these prices and incomes (a result overflowed or is "
                                "undefined); check the inputs' magnitudes")
+
+
+def compare_budgets(
+    family: str,
+    parameters: Mapping[str, Any],
+    base_prices: npt.ArrayLike,
+    current_prices: npt.ArrayLike,
+    *,
+    base_quantities: npt.ArrayLike | None = None,
+    base_shares: npt.ArrayLike | None = None,
+    base_expenditure: float | None = None,
+    normalise_shares: bool = False,
+    current_quantities: npt.ArrayLike | None = None,
+    current_income: float | None = None,
+    reference_income: float | None = None,
+    weight_reference: Mapping[str, npt.ArrayLike] | None = None,
+    lloyd_moulton_sigma: float | None = None,
+    formulas: Sequence[str] | None = None,
+) -> tuple[Comparison, Preferences]:
+    """The whole comparison from plain arrays, in one call: the base budget (``p0`` with
+    quantities ``q0``, or shares ``w0`` and expenditure ``m0``), the family calibrated to it
+    (:func:`dualcost.core.preferences.calibrate`), and :func:`compare`.
+
+    ``weight_reference`` holds any of ``prices``, ``quantities`` and ``shares`` of an earlier
+    weight-reference period (:class:`WeightReference`). Errors name the arguments as
+    :func:`compare` and the family do (``p0``, ``q0``, ``w0``, ``m0``, ``pb``, ``qb``, ``wb``,
+    ``sigma``, ...).
+    """
+    if base_quantities is not None:
+        budget = BaseBudget.from_quantities(base_prices, base_quantities,
+                                            expenditure=base_expenditure)
+    else:
+        if base_shares is None or base_expenditure is None:
+            raise InvalidInput("w0", "give the base quantities, or the base shares with the "
+                               "base expenditure")
+        budget = BaseBudget.from_shares(base_prices, base_shares, base_expenditure,
+                                        normalise=normalise_shares)
+    model = calibrate(family, budget, parameters)
+    weights = None
+    if weight_reference:
+        size = budget.n_items
+        weights = WeightReference.checked(size, **dict(weight_reference))
+    result = compare(model, budget, current_prices, current_income=current_income,
+                     current_quantities=current_quantities, reference_income=reference_income,
+                     weight_reference=weights, lloyd_moulton_sigma=lloyd_moulton_sigma,
+                     formulas=formulas)
+    return result, model

@@ -427,6 +427,9 @@ def _weights(panel: Panel, quantities: Array, weight_reference: WeightReference 
         return _Weights(None, None), None
     prices = panel.filled_prices()
     period: int | None = None
+    qb: Array | None
+    pb: Array | None
+    wb: Array | None
     if isinstance(weight_reference, (int, np.integer)):
         period = int(weight_reference)
         if period > base:
@@ -441,7 +444,8 @@ def _weights(panel: Panel, quantities: Array, weight_reference: WeightReference 
         pb = prices[period]
         wb = pb * qb / float(pb @ qb)
     else:
-        qb, wb, pb = weight_reference.quantities, weight_reference.shares, weight_reference.prices
+        qb, pb = weight_reference.quantities, weight_reference.prices
+        wb = weight_reference.shares
         if qb is not None and wb is None and pb is not None:
             wb = pb * qb / float(pb @ qb)
     shares = wb if wb is not None else np.full(panel.n_items, np.nan)
@@ -860,3 +864,70 @@ def describe_treatment(entry: ItemTreatment, periods: Sequence[str], base: int) 
         parts.append("outside the model (not priced in the base period)")
     text = "; ".join(parts)
     return text[:1].upper() + text[1:] + "."
+
+
+@dataclass(frozen=True)
+class LabelledSeries:
+    """What :func:`series_by_label` returns: the series, the checked panel and the model."""
+
+    result: IndexSeries
+    panel: Panel
+    model: Preferences | None
+
+
+def series_by_label(
+    prices: npt.ArrayLike,
+    *,
+    quantities: npt.ArrayLike | None = None,
+    expenditures: npt.ArrayLike | None = None,
+    periods: Sequence[str],
+    items: Sequence[str],
+    frequency: str | None = None,
+    base_period: str | None = None,
+    reference_period: str | None = None,
+    span: tuple[str | None, str | None] | None = None,
+    loop: Sequence[str] | None = None,
+    weight_reference_period: str | None = None,
+    weight_reference: Mapping[str, npt.ArrayLike] | None = None,
+    model: Callable[[BaseBudget, tuple[int, ...]], Preferences] | None = None,
+    **options: Any,
+) -> LabelledSeries:
+    """The whole series from plain arrays and period labels, in one call.
+
+    The panel is checked (:meth:`Panel.checked`); periods are named by their labels (the base,
+    reference, span and loop periods, the weight-reference period) and found in it; ``model``,
+    when given, is called with the base period's budget and the positions of the items priced
+    in it, and returns the family calibrated to them; ``weight_reference`` holds any of
+    ``prices``, ``quantities`` and ``shares`` of an earlier period (:class:`WeightReference`).
+    The other ``options`` go to :func:`index_series`. Errors name the arguments as
+    :func:`index_series` does, the period arguments by their names (``base_period``, ``span``,
+    ``loop`` with the position in the loop, ``weight_reference``).
+    """
+    panel = Panel.checked(prices, quantities=quantities, expenditures=expenditures,
+                          periods=periods, items=items, frequency=frequency)
+    base = panel.period_index("base_period", base_period, 0)
+    reference = panel.period_index("reference_period", reference_period, base)
+    positions = None
+    if span is not None:
+        positions = (panel.period_index("span", span[0], 0),
+                     panel.period_index("span", span[1], panel.n_periods - 1))
+    loop_at = None if loop is None else [_loop_position(panel, label, j)
+                                         for j, label in enumerate(loop)]
+    weights: WeightReference | int | None = None
+    if weight_reference_period is not None:
+        weights = panel.period_index("weight_reference", weight_reference_period, 0)
+    elif weight_reference:
+        weights = WeightReference.checked(panel.n_items, **dict(weight_reference))
+    calibrated = None
+    if model is not None:
+        budget, items_priced = base_budget(panel, base)
+        calibrated = model(budget, items_priced)
+    result = index_series(panel, base=base, reference=reference, model=calibrated,
+                          weight_reference=weights, span=positions, loop=loop_at, **options)
+    return LabelledSeries(result, panel, calibrated)
+
+
+def _loop_position(panel: Panel, label: str, j: int) -> int:
+    if str(label) not in panel.periods:
+        raise InvalidInput("loop", f"period {str(label)!r} is not in the panel", j)
+    return panel.periods.index(str(label))

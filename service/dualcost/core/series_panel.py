@@ -181,7 +181,7 @@ class Panel:
                                "leave it out of the items", int(never[0]))
         q = _quantities(p, priced, quantities, expenditures)
         known = ~np.isnan(q)
-        has_q = known.any(axis=1)
+        has_q: Mask = np.asarray(known.any(axis=1))
         partial = np.argwhere(priced & ~known & has_q[:, None])
         if partial.size:
             t, i = (int(x) for x in partial[0])

@@ -46,7 +46,8 @@ def connect(scheduler: Any) -> tuple[Any, bool]:
     if isinstance(scheduler, Client):
         return scheduler, False
     try:
-        client = Client(scheduler, set_as_default=False, timeout=CONNECT_TIMEOUT)
+        client = Client(scheduler, set_as_default=False,  # type: ignore[no-untyped-call]
+                        timeout=CONNECT_TIMEOUT)
     except (OSError, TimeoutError) as exc:
         raise EngineUnavailable(f"the Dask scheduler at {scheduler!r} cannot be reached: "
                                  f"{exc}") from exc

@@ -2,40 +2,12 @@
 
 from __future__ import annotations
 
-from typing import Any, Literal
-
 from fastapi import APIRouter
-from pydantic import Field
 
-from ...core.indices import FORMULAS
+from ...core.indices import REGISTRY
 from ...core.preferences import FAMILIES
 from ..routing import JsonRoute
-from ..schemas.common import StrictModel
-
-
-class ParameterOut(StrictModel):
-    name: str
-    meaning: str
-    required: bool
-    default: Any = None
-
-
-class FamilyOut(StrictModel):
-    family: str
-    title: str
-    source: str
-    homothetic: bool
-    parameters: list[ParameterOut]
-
-
-class FormulaInfoOut(StrictModel):
-    formula: str
-    title: str
-    source: str
-    compared_with: Literal["base", "current", "midpoint"]
-    needs: list[str] = Field(description="Optional inputs the formula cannot do without.")
-    superlative: bool
-
+from ..schemas.catalogue import FamilyOut, FormulaInfoOut, ParameterOut
 
 router = APIRouter(route_class=JsonRoute, prefix="/v1", tags=["catalogue"])
 
@@ -46,7 +18,7 @@ def list_families() -> list[FamilyOut]:
     """The preference families, their behavioural parameters with defaults, and sources."""
     return [
         FamilyOut(family=name, title=cls.title, source=cls.source, homothetic=cls.homothetic,
-                  parameters=[ParameterOut(name=s.name, meaning=s.meaning, required=s.required,
+                  parameters=[ParameterOut(name=s.name, meaning=s.meaning, required=s.required, shape=s.shape,
                                            default=s.default) for s in cls.parameter_specs])
         for name, cls in FAMILIES.items()
     ]
@@ -55,9 +27,13 @@ def list_families() -> list[FamilyOut]:
 @router.get("/index-formulas", operation_id="listIndexFormulas",
             response_model=list[FormulaInfoOut])
 def list_formulas() -> list[FormulaInfoOut]:
-    """The formula indices, which Konüs index each is compared with, and sources."""
+    """The formula indices, which Konüs index each is compared with, which operations compute
+    each one, and sources (one registry serves every operation)."""
     return [
         FormulaInfoOut(formula=f.name, title=f.title, source=f.source, compared_with=f.target,
-                       needs=list(f.needs), superlative=f.superlative)
-        for f in FORMULAS.values()
+                       needs=list(f.needs), superlative=f.superlative, symmetric=f.symmetric,
+                       weighted=f.weighted,
+                       operations=[s for s in ("comparison", "series", "households")
+                                   if s in f.scopes])
+        for f in REGISTRY.values()
     ]

@@ -1,40 +1,31 @@
 """POST /v1/index-series (JSON) and POST /v1/index-series/csv (CSV upload): index series over a
 panel of periods, answered as JSON or, on request, as a CSV table with one row per period."""
 
-# No ``from __future__ import annotations`` here: the request body's annotation carries the
-# examples loaded when the router is built, and FastAPI must see it as an object, not a string.
+from __future__ import annotations
 
 from typing import Annotated, Any, Literal
 
-from fastapi import APIRouter, Body, Depends, Query, Request
+from fastapi import APIRouter, Depends, Query, Request
 from fastapi.responses import Response
 
-from ...config import Settings
-from ..examples import load_examples
-from ..observability import computing
-from ..problems import PROBLEM_MEDIA_TYPE
+from ..deps import settings_of
+from ..inputs.csv import CSV_REQUEST_BODY, csv_body
+from ..inputs.panels import panel_from_csv, panel_from_json
+from ..inputs.query import validated
+from ..operations import series
+from ..render import CSV_ANSWER, csv_response, json_response, negotiate
 from ..routing import JsonRoute, inline_when_small
-from ..schemas.series import (
-    SeriesRequest,
-    SeriesResponse,
-    SeriesRun,
-    csv_table,
-    options_from_query,
-    panel_from_csv,
-    panel_from_json,
-    run_series,
-)
-from ..tabular import CSV_MEDIA_TYPE, CSV_REQUEST_BODY, csv_body, csv_response, wants_csv
+from ..schemas.series import SeriesOptions, SeriesRequest, SeriesResponse
+
+router = APIRouter(route_class=JsonRoute, prefix="/v1", tags=["series"])
 
 RESPONSES: dict[int | str, dict[str, Any]] = {
     200: {"description": "The series as JSON, or as a CSV table with one row per period when "
-                         "asked (Accept: text/csv, or format=csv).",
-          "content": {CSV_MEDIA_TYPE: {"schema": {"type": "string"}}}},
-    422: {"description": "The request breaks a rule (RFC 9457 problem details).",
-          "content": {PROBLEM_MEDIA_TYPE: {}}},
-    400: {"description": "The body is not valid JSON (RFC 9457 problem details).",
-          "content": {PROBLEM_MEDIA_TYPE: {}}},
+                         "asked (Accept: text/csv, or format=csv).", **CSV_ANSWER},
 }
+FormatParam = Annotated[Literal["json", "csv"] | None, Query(
+    description="Answer format; default by the Accept header (JSON unless text/csv is "
+                "preferred).")]
 
 DESCRIPTION = """\
 For every formula, the **fixed-base** series (direct comparisons with the base period) and the
@@ -61,90 +52,63 @@ series adds the CES new-goods adjustment (Feenstra 1994) with elasticity `new_go
 base; `weights` gives the shares and their price-updated form (the form in which Young equals
 Lowe).
 """
+CSV_DESCRIPTION = (
+    "The body is `text/csv` with columns `period`, `item`, `price` and, where known, "
+    "`quantity` and/or `expenditure` (and an optional item `label`); one row per period "
+    "and item, rows grouped by period in time order; an item not priced in a period has "
+    "no row. Options are query parameters; `model` is a JSON object "
+    '(`{"family": "ces", "sigma": 0.7}`), `formulas` and `loop` are comma-separated. '
+    "Errors name the row and column (`#cell=row,column`, RFC 7111).\n\n")
 
 
-def router(settings: Settings) -> APIRouter:
-    r = APIRouter(route_class=JsonRoute, prefix="/v1", tags=["series"])
-    examples = load_examples(settings.examples_dir, "indexSeries")
-
-    def answer(run: SeriesRun, request: Request, fmt: str | None) -> Any:
-        if wants_csv(request, fmt):
-            header, rows = csv_table(run)
-            return csv_response(header, rows, filename="index-series.csv")
-        return SeriesResponse.from_run(run)
-
-    @r.post(
-        "/index-series",
-        operation_id="indexSeries",
-        summary="Index series over a panel: fixed-base, chained, Konüs, bias, drift, GEKS",
-        description=DESCRIPTION,
-        response_model=SeriesResponse,
-        responses=RESPONSES,
-    )
-    @inline_when_small
-    def index_series(
-        body: Annotated[SeriesRequest, Body(openapi_examples=examples)],  # type: ignore[arg-type]
-        request: Request,
-        format: Annotated[Literal["json", "csv"] | None, Query(
-            description="Answer format; default by the Accept header (JSON unless text/csv is "
-                        "preferred).")] = None,
-    ) -> Any:
-        data = panel_from_json(body, max_periods=settings.max_periods, max_items=settings.max_items,
-                               max_cells=settings.max_panel_cells)
-        with computing("indexSeries", settings):
-            run = run_series(data, body, max_tree_depth=settings.max_tree_depth,
-                             compute_deadline_seconds=settings.compute_deadline_seconds)
-        return answer(run, request, format)
-
-    @r.post(
-        "/index-series/csv",
-        operation_id="indexSeriesFromCsv",
-        summary="Index series from a CSV panel in long form (one row per period and item)",
-        description=(
-            "The body is `text/csv` with columns `period`, `item`, `price` and, where known, "
-            "`quantity` and/or `expenditure` (and an optional item `label`); one row per period "
-            "and item, rows grouped by period in time order; an item not priced in a period has "
-            "no row. Options are query parameters; `model` is a JSON object "
-            '(`{"family": "ces", "sigma": 0.7}`), `formulas` and `loop` are comma-separated. '
-            "Errors name the row and column (`#cell=row,column`, RFC 7111).\n\n" + DESCRIPTION),
-        response_model=SeriesResponse,
-        responses=RESPONSES,
-        openapi_extra=CSV_REQUEST_BODY,
-    )
-    @inline_when_small
-    def index_series_from_csv(
-        text: Annotated[str, Depends(csv_body)],
-        request: Request,
-        base_period: Annotated[str | None, Query(description="Base (price-reference) period.")] = None,
-        reference_period: Annotated[str | None, Query(description="Index reference period.")] = None,
-        reference_value: Annotated[int | None, Query(description="1 or 100 (default 100).")] = None,
-        frequency: Annotated[Literal["monthly", "quarterly", "annual"] | None, Query()] = None,
-        formulas: Annotated[str | None, Query(description="Comma-separated formula names.")] = None,
-        model: Annotated[str | None, Query(description="The preference model as a JSON object.")] = None,
-        lloyd_moulton_sigma: Annotated[float | None, Query(allow_inf_nan=False)] = None,
-        new_goods_sigma: Annotated[float | None, Query(allow_inf_nan=False)] = None,
-        weight_reference_period: Annotated[str | None, Query()] = None,
-        geks_window: Annotated[int | None, Query(ge=2)] = None,
-        geks_splice: Annotated[Literal["movement", "window", "half", "mean"] | None, Query()] = None,
-        span_start: Annotated[str | None, Query()] = None,
-        span_end: Annotated[str | None, Query()] = None,
-        loop: Annotated[str | None, Query(description="Comma-separated period labels.")] = None,
-        format: Annotated[Literal["json", "csv"] | None, Query()] = None,
-    ) -> Any:
-        options = options_from_query(dict(
-            base_period=base_period, reference_period=reference_period,
-            reference_value=reference_value, frequency=frequency, formulas=formulas, model=model,
-            lloyd_moulton_sigma=lloyd_moulton_sigma, new_goods_sigma=new_goods_sigma,
-            weight_reference_period=weight_reference_period, geks_window=geks_window,
-            geks_splice=geks_splice, span_start=span_start, span_end=span_end, loop=loop))
-        data = panel_from_csv(text, max_periods=settings.max_periods, max_items=settings.max_items,
-                              max_cells=settings.max_panel_cells)
-        with computing("indexSeriesFromCsv", settings):
-            run = run_series(data, options, max_tree_depth=settings.max_tree_depth,
-                             compute_deadline_seconds=settings.compute_deadline_seconds)
-        return answer(run, request, format)
-
-    return r
+def _answer(outcome: series.Outcome, request: Request, fmt: str | None) -> Response:
+    if negotiate(request, fmt) == "csv":
+        header, rows = series.table(outcome)
+        return csv_response(header, rows, filename="index-series.csv")
+    return json_response(series.document(outcome))
 
 
-__all__ = ["Response", "router"]
+@router.post("/index-series", operation_id="indexSeries",
+             summary="Index series over a panel: fixed-base, chained, Konüs, bias, drift, GEKS",
+             description=DESCRIPTION, response_model=SeriesResponse, responses=RESPONSES)
+@inline_when_small
+def index_series(body: SeriesRequest, request: Request, format: FormatParam = None) -> Response:
+    settings = settings_of(request)
+    loc = series.locator()
+    panel = panel_from_json(body.periods, body.items, {"prices": body.prices,
+                            "quantities": body.quantities, "expenditures": body.expenditures},
+                            series.limits(settings), loc)
+    return _answer(series.run(body, panel, settings, loc), request, format)
+
+
+@router.post("/index-series/csv", operation_id="indexSeriesFromCsv",
+             summary="Index series from a CSV panel in long form (one row per period and item)",
+             description=CSV_DESCRIPTION + DESCRIPTION, response_model=SeriesResponse,
+             responses=RESPONSES, openapi_extra=CSV_REQUEST_BODY)
+@inline_when_small
+def index_series_from_csv(
+    text: Annotated[str, Depends(csv_body)],
+    request: Request,
+    base_period: Annotated[str | None, Query(description="Base (price-reference) period.")] = None,
+    reference_period: Annotated[str | None, Query(description="Index reference period.")] = None,
+    reference_value: Annotated[int | None, Query(description="1 or 100 (default 100).")] = None,
+    frequency: Annotated[Literal["monthly", "quarterly", "annual"] | None, Query()] = None,
+    formulas: Annotated[str | None, Query(description="Comma-separated formula names.")] = None,
+    model: Annotated[str | None, Query(description="The preference model as a JSON object.")] = None,
+    lloyd_moulton_sigma: Annotated[float | None, Query(allow_inf_nan=False)] = None,
+    new_goods_sigma: Annotated[float | None, Query(allow_inf_nan=False)] = None,
+    weight_reference_period: Annotated[str | None, Query()] = None,
+    geks_window: Annotated[int | None, Query(ge=2)] = None,
+    geks_splice: Annotated[Literal["movement", "window", "half", "mean"] | None, Query()] = None,
+    span_start: Annotated[str | None, Query()] = None,
+    span_end: Annotated[str | None, Query()] = None,
+    loop: Annotated[str | None, Query(description="Comma-separated period labels.")] = None,
+    format: FormatParam = None,
+) -> Response:
+    query = dict(locals())
+    settings = settings_of(request)
+    loc = series.locator("csv")
+    options = validated(SeriesOptions, series.options_body(query), loc)
+    panel = panel_from_csv(text, series.limits(settings), loc)
+    return _answer(series.run(options, panel, settings, loc, "indexSeriesFromCsv"), request,
+                   format)

@@ -13,17 +13,13 @@ from fastapi.responses import HTMLResponse, JSONResponse, PlainTextResponse, Res
 from ... import __version__
 from ..deps import SettingsDep
 from ..observability import metrics_text
+from ..operations import compare
 from ..problems import PROBLEM_TYPES, FieldError, RequestProblem
 from ..routing import JsonRoute
-from ..schemas.common import StrictModel
 from ..schemas.comparison import ComparisonRequest, ComparisonResponse
+from ..schemas.service import DemoOut, HealthOut
 
 router = APIRouter(route_class=JsonRoute)
-
-
-class HealthOut(StrictModel):
-    status: str
-    version: str
 
 
 # The probes and the metrics are coroutines: they answer on the event loop even when every
@@ -73,13 +69,7 @@ def describe_problem(slug: str) -> HTMLResponse:
 def demo_request() -> dict[str, Any]:
     """The demo scenario's comparison request (shipped with the package)."""
     text = resources.files("dualcost.demo").joinpath("wrenmouth.json").read_text("utf-8")
-    return json.loads(text)  # type: ignore[no-any-return]
-
-
-class DemoOut(StrictModel):
-    scenario: str
-    request: dict[str, Any]
-    result: ComparisonResponse
+    return json.loads(text)
 
 
 @router.get("/v1/demo", operation_id="demo", response_model=DemoOut, tags=["demo"])
@@ -87,13 +77,10 @@ def demo(settings: SettingsDep) -> DemoOut:
     """The demo scenario (an invented town's statistics office): its request and its answer.
     Send the request to POST /v1/comparisons and change it to explore."""
     body = demo_request()
-    req = ComparisonRequest.model_validate(body)
-    result, model, axis = req.run(max_items=settings.max_items,
-                                  max_tree_depth=settings.max_tree_depth,
-                                  compute_deadline_seconds=settings.compute_deadline_seconds)
+    outcome = compare.run(ComparisonRequest.model_validate(body), settings)
     return DemoOut(
         scenario="Wrenmouth, an invented river town: its statistics office compares the "
                  "household basket of 2025 with this year's prices under a nested CES model.",
         request=body,
-        result=ComparisonResponse.from_result(result, model, axis),
+        result=ComparisonResponse.model_validate(compare.document(outcome)),
     )

@@ -1,32 +1,16 @@
-"""Request and response of the comparison operation (POST /v1/comparisons)."""
+"""Request and answer of the comparison (POST /v1/comparisons): plain models, no logic."""
 
 from __future__ import annotations
 
-import math
 from typing import Any, Literal
 
 from pydantic import Field, model_validator
 
-from ...core.comparison import Comparison, WeightReference, compare
-from ...core.indices import FORMULAS
-from ...core.preferences import BaseBudget, Preferences
-from ..problems import FieldError, RequestProblem
-from .common import FiniteFloat, ItemAxis, ItemIn, MatrixIn, Pointers, StrictModel, VectorIn
-from .model import ModelSpec, model_to_core
+from ...core.indices import formulas_for
+from .common import CAUTION, SIGN_CONVENTION, FiniteFloat, ItemIn, NoticeOut, StrictModel, VectorIn
+from .model import ModelSpec
 
-CAUTION = (
-    "Model-based cost-of-living figures are estimates: they depend on the preference model and "
-    "parameters chosen. For wage, pension or benefit indexation, defer to official statistics "
-    "and to the applicable law or agreement."
-)
-SIGN_CONVENTION = (
-    "Compensating and equivalent variation are stated as losses: positive when the change of "
-    "prices and income leaves the household worse off. compensating_variation = e(p1,u0) - m1, "
-    "money needed at current prices to keep the base living standard; equivalent_variation = "
-    "m0 - e(p0,u1), the loss valued at base prices."
-)
-
-FormulaName = Literal[tuple(FORMULAS)]  # type: ignore[valid-type]
+FormulaName = Literal[formulas_for("comparison")]  # type: ignore[valid-type]
 
 
 class BaseIn(StrictModel):
@@ -83,66 +67,6 @@ class ComparisonRequest(StrictModel):
         None, description="Formulas to compute (default: every formula that the data allow).")
     normalise_shares: bool = Field(
         False, description="Divide base shares by their sum when it is not 1; the answer says so.")
-
-    def run(self, *, max_items: int, max_tree_depth: int, compute_deadline_seconds: float | None = None,
-            ) -> tuple[Comparison, Preferences, ItemAxis]:
-        """Translate to core calls; core errors come back pointing at the request field."""
-        axis = ItemAxis.from_request(self.items)
-        if len(axis) > max_items:
-            raise RequestProblem([FieldError("/items", f"has {len(axis)} items; the limit is "
-                                             f"{max_items}")])
-        ptr = Pointers(axis)
-        b, c = self.base, self.current
-        ptr.note("p0", "/base/prices", b.prices)
-        p0 = axis.vector(b.prices, "/base/prices")
-        ptr.note("m0", "/base/expenditure", per_item=False)
-        with ptr.translating():
-            if b.quantities is not None:
-                ptr.note("q0", "/base/quantities", b.quantities)
-                budget = BaseBudget.from_quantities(
-                    p0, axis.vector(b.quantities, "/base/quantities"), expenditure=b.expenditure)
-            else:
-                assert b.shares is not None and b.expenditure is not None
-                ptr.note("w0", "/base/shares", b.shares)
-                ptr.note("q0", "/base/shares", b.shares)
-                budget = BaseBudget.from_shares(p0, axis.vector(b.shares, "/base/shares"),
-                                                b.expenditure, normalise=self.normalise_shares)
-        model = model_to_core(self.model, budget, axis, ptr, max_tree_depth=max_tree_depth,
-                              compute_deadline_seconds=compute_deadline_seconds)
-
-        ptr.note("p1", "/current/prices", c.prices)
-        p1 = axis.vector(c.prices, "/current/prices")
-        q1 = None
-        if c.quantities is not None:
-            ptr.note("q1", "/current/quantities", c.quantities)
-            q1 = axis.vector(c.quantities, "/current/quantities")
-        ptr.note("m1", "/current/expenditure" if c.expenditure is not None else "/current",
-                 per_item=False)
-        ptr.note("reference_income", "/reference_income", per_item=False)
-        ptr.note("lloyd_moulton_sigma", "/lloyd_moulton_sigma", per_item=False)
-        ptr.note("formulas", "/formulas", per_item=False)
-        weights = None
-        with ptr.translating():
-            if self.weight_reference is not None:
-                wr = self.weight_reference
-                vec = {}
-                for key, core, value in (("prices", "pb", wr.prices),
-                                         ("quantities", "qb", wr.quantities),
-                                         ("shares", "wb", wr.shares)):
-                    if value is not None:
-                        ptr.note(core, f"/weight_reference/{key}", value)
-                        vec[key] = axis.vector(value, f"/weight_reference/{key}")
-                weights = WeightReference.checked(len(axis), **vec)
-            result = compare(
-                model, budget, p1,
-                current_income=c.expenditure,
-                current_quantities=q1,
-                reference_income=self.reference_income,
-                weight_reference=weights,
-                lloyd_moulton_sigma=self.lloyd_moulton_sigma,
-                formulas=self.formulas,
-            )
-        return result, model, axis
 
 
 # -- response ---------------------------------------------------------------------------------
@@ -206,11 +130,6 @@ class DiagnosticsOut(StrictModel):
     base_bundle_gap: float
 
 
-class NoticeOut(StrictModel):
-    code: str
-    message: str
-
-
 class ComparisonResponse(StrictModel):
     family: str
     items: list[str]
@@ -226,101 +145,5 @@ class ComparisonResponse(StrictModel):
     notices: list[NoticeOut]
     caution: str
 
-    @classmethod
-    def from_result(cls, r: Comparison, model: Preferences, axis: ItemAxis) -> ComparisonResponse:
-        return cls.model_validate(comparison_document(r, model, axis))
 
-
-def comparison_document(r: Comparison, model: Preferences, axis: ItemAxis) -> dict[str, Any]:
-    """The answer as plain JSON-ready values, in the shape of :class:`ComparisonResponse`.
-
-    The comparison route renders this directly (validating 300 item records would cost more than
-    the computation); tests check that every answer validates against the response model.
-    """
-    lasp = r.formulas.get("laspeyres")
-    st = r.standards
-    return {
-        "family": r.family,
-        "items": axis.ids,
-        "konus": {"base": r.konus.base, "current": r.konus.current, "midpoint": r.konus.midpoint,
-                  "reference": r.konus.reference, "homothetic": r.konus.homothetic},
-        "living_standards": {
-            "base_income": st.base_income, "current_income": st.current_income,
-            "midpoint_income": st.midpoint_income, "reference_income": st.reference_income,
-            "utility_base": st.base, "utility_current": st.current,
-            "utility_reference": st.reference,
-        },
-        "formulas": [{"formula": f.name, "title": FORMULAS[f.name].title, "value": f.value,
-                      "compared_with": f.target, "konus": f.konus, "bias_points": f.bias_points,
-                      "bias_percent": f.bias_percent} for f in r.formulas.values()],
-        "laspeyres_gap_points": None if lasp is None else 100.0 * (lasp.value - r.konus.base),
-        "compensation": {
-            "compensating_variation": r.compensating_variation,
-            "equivalent_variation": r.equivalent_variation,
-            "compensated_income": r.compensated_income, "sign_convention": SIGN_CONVENTION,
-        },
-        "by_item": _items(r, axis),
-        "lloyd_moulton_sigma": r.lloyd_moulton_sigma,
-        "model_parameters": dict(model.parameters()),
-        "diagnostics": {"duality_residual": r.diagnostics.duality_residual,
-                        "expenditure_residual": r.diagnostics.expenditure_residual,
-                        "base_bundle_gap": r.diagnostics.base_bundle_gap},
-        "notices": [{"code": n.code, "message": n.message} for n in r.notices],
-        "caution": CAUTION,
-    }
-
-
-def all_finite(value: Any) -> bool:
-    """True when every number in a nested structure of dicts and lists is finite."""
-    isfinite = math.isfinite
-    stack = [value]
-    while stack:
-        v = stack.pop()
-        kind = type(v)
-        if kind is dict:
-            # The common case, a record of text and numbers, without a trip through the stack.
-            for x in v.values():
-                kx = type(x)
-                if kx is float:
-                    if not isfinite(x):
-                        return False
-                elif not (kx is str or kx is int or kx is bool or x is None):
-                    stack.append(x)
-        elif isinstance(v, (list, tuple)):
-            try:
-                # A list of numbers (the common case: a parameter vector) in one pass.
-                if not all(map(isfinite, v)):
-                    return False
-            except (TypeError, OverflowError):  # not all numbers, or an int beyond floats
-                stack.extend(v)
-        elif isinstance(v, float):
-            if not isfinite(v):
-                return False
-        elif isinstance(v, dict):
-            stack.extend(v.values())
-    return True
-
-
-def _items(r: Comparison, axis: ItemAxis) -> list[dict[str, Any]]:
-    """One record per item, built from the core's arrays as plain dicts (the response model
-    validates them in one pass, which for thousands of items is far cheaper than building one
-    model object per item). Written out as a dict display: about twice as fast as zipping
-    names with rows, for baskets of hundreds of items."""
-    d = r.demands
-    gap = r.laspeyres_gap_contributions
-    gaps = [None] * len(axis.ids) if gap is None else (100.0 * gap).tolist()
-    return [
-        {"item": item, "label": label, "base_price": p0, "current_price": p1,
-         "price_relative": rel, "base_quantity": q0, "current_quantity": q1,
-         "compensated_quantity": h1, "substitution_effect": sub, "income_effect": inc,
-         "laspeyres_gap_points": g}
-        for item, label, p0, p1, rel, q0, q1, h1, sub, inc, g in zip(
-            axis.ids, axis.labels, r.base_prices.tolist(), r.current_prices.tolist(),
-            (r.current_prices / r.base_prices).tolist(), d.base.tolist(), d.current.tolist(),
-            d.compensated.tolist(), d.substitution_effect.tolist(), d.income_effect.tolist(),
-            gaps, strict=True)
-    ]
-
-
-__all__ = ["CAUTION", "ComparisonRequest", "ComparisonResponse", "MatrixIn", "all_finite",
-           "comparison_document"]
+__all__ = ["CAUTION", "SIGN_CONVENTION", "ComparisonRequest", "ComparisonResponse", "FormulaName"]

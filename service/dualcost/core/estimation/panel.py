@@ -162,3 +162,31 @@ class Panel:
             raise InvalidInput("items", "this item has a zero share in every observation, so "
                                "its demand cannot be estimated; leave it out", int(empty[0]))
         return cls(prices=p, shares=w, expenditure=m, weights=omega, notices=notices)
+
+    @classmethod
+    def from_spending(
+        cls,
+        prices: npt.ArrayLike,
+        spending: npt.ArrayLike,
+        weights: npt.ArrayLike | None = None,
+    ) -> Panel:
+        """The data from money spent on each item (``shares`` in errors, as the spending
+        stands in for them): shares are spending over its total, the total is the expenditure.
+        """
+        p = _matrix("prices", prices)
+        spend = _matrix("shares", spending, p.shape)
+        bad = np.argwhere(spend < 0.0)
+        if bad.size:
+            t, i = (int(v) for v in bad[0])
+            raise InvalidInput("shares", f"spending must not be negative, got {spend[t, i]!r}",
+                               (t, i))
+        if not np.all(p > 0.0):
+            t, i = (int(v) for v in np.argwhere(p <= 0.0)[0])
+            raise InvalidInput("prices", f"must be greater than zero, got {p[t, i]!r}", (t, i))
+        total = spend.sum(axis=1)
+        empty = np.flatnonzero(total <= 0.0)
+        if empty.size:
+            raise InvalidInput("shares", "the spending on every item of this observation is "
+                               "zero: there is no budget to share", (int(empty[0]),))
+        return cls.checked(p, spend / total[:, None], total, weights)
+

@@ -311,7 +311,7 @@ def _cholesky(weighting: Matrix) -> Matrix:
             "observations", "the residual covariance of the share equations is singular: some "
             "items' shares are fitted exactly or move in lockstep; more observations or fewer "
             "items are needed") from None
-    return np.linalg.inv(factor)  # type: ignore[no-any-return]
+    return np.linalg.inv(factor)
 
 
 def _whiten(inv_chol: Matrix, values: NDArray[np.float64]) -> NDArray[np.float64]:
@@ -321,8 +321,8 @@ def _whiten(inv_chol: Matrix, values: NDArray[np.float64]) -> NDArray[np.float64
     a triangular solve per call costs far more than the product for these sizes.
     """
     if values.ndim == 2:
-        return values @ inv_chol.T  # type: ignore[no-any-return]
-    return np.matmul(inv_chol, values)  # type: ignore[no-any-return]
+        return values @ inv_chol.T
+    return np.matmul(inv_chol, values)
 
 
 def _linear_step(design: tuple[Array3, Matrix], target: Matrix, chol: Matrix,
@@ -434,4 +434,4 @@ def collinear_columns(columns: Matrix, names: Sequence[str], weights: Vector) ->
     if s[-1] > 1e-9 * s[0]:
         return None
     v = np.abs(vt[-1])
-    return [names[j] for j in np.flatnonzero(v > 0.05 * v.max())]
+    return [names[int(j)] for j in np.flatnonzero(v > 0.05 * v.max())]

@@ -65,7 +65,7 @@ class ComparisonIntervals:
 def _square_root(cov: npt.NDArray[np.float64]) -> npt.NDArray[np.float64]:
     """``S`` with ``S S' = V``, from the eigen-decomposition (V may be only semidefinite)."""
     values, vectors = np.linalg.eigh(0.5 * (cov + cov.T))
-    return vectors * np.sqrt(np.clip(values, 0.0, None))  # type: ignore[no-any-return]
+    return vectors * np.sqrt(np.clip(values, 0.0, None))
 
 
 def _record(c: Comparison) -> dict[str, float]:

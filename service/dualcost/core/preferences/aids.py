@@ -95,11 +95,13 @@ _COMMON_SPECS = (
         "Symmetric n by n matrix of price coefficients gamma_ij, each row and column summing "
         "to 0.",
         required=True,
+        shape="matrix",
     ),
     ParameterSpec(
         "beta",
         "Income (expenditure) coefficients beta_i, one per item, summing to 0.",
         required=True,
+        shape="vector",
     ),
 )
 _LEVEL_SPECS = (
@@ -107,6 +109,7 @@ _LEVEL_SPECS = (
         "alpha",
         "Share intercepts alpha_i summing to 1; when omitted they are calibrated so the model "
         "reproduces the base shares exactly.",
+        shape="vector",
     ),
     ParameterSpec("alpha0", "Constant alpha0 of ln a(p).", default=0.0),
     ParameterSpec("beta0", "Scale beta0 of b(p), greater than 0.", default=1.0),
@@ -392,6 +395,7 @@ class QUAIDS(_LogQuadraticCost):
                 "Coefficients lambda_i of the squared log real income, one per item, summing "
                 "to 0.",
                 required=True,
+                shape="vector",
             ),
         )
         + _LEVEL_SPECS

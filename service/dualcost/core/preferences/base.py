@@ -35,7 +35,7 @@ from __future__ import annotations
 import abc
 from collections.abc import Callable, Mapping, Sequence
 from dataclasses import dataclass, field
-from typing import Any, ClassVar, TypeVar
+from typing import Any, ClassVar, Literal, TypeVar
 
 import numpy as np
 import numpy.typing as npt
@@ -66,18 +66,27 @@ class Notice:
     message: str
 
 
+#: The form a parameter takes, which tells a caller (the web layer) how to read it: a number;
+#: a vector or a matrix over the items; a nested CES tree; text; an item; one formula per item;
+#: a list of price vectors; set by the service (the items' names, the compute deadline); or
+#: given from Python only (a callable).
+ParameterShape = Literal["number", "vector", "matrix", "tree", "text", "item", "formulas",
+                         "path", "service", "python"]
+
+
 @dataclass(frozen=True)
 class ParameterSpec:
-    """One behavioural parameter a family takes: its name, meaning and default.
+    """One behavioural parameter a family takes: its name, meaning, default and shape.
 
     ``default`` is ``None`` for a parameter without a default; ``required`` says whether the
-    caller must give it.
+    caller must give it; ``shape`` is its form (:data:`ParameterShape`).
     """
 
     name: str
     meaning: str
     required: bool = False
     default: Any = None
+    shape: ParameterShape = "number"
 
 
 @dataclass(frozen=True)
@@ -278,36 +287,44 @@ class Preferences(abc.ABC):
     # -- the dual quartet, public: they broadcast ---------------------------------------------
     def expenditure(self, prices: npt.ArrayLike, utility: npt.ArrayLike) -> Values:
         """e(p, u): the least expenditure reaching living standard ``utility`` at ``prices``."""
-        if type(utility) is float and type(prices) is np.ndarray and prices.ndim == 1 \
+        p: Any = prices  # exact types checked: the hot path takes nothing else
+        number: Any = utility
+        if type(number) is float and type(p) is np.ndarray and p.ndim == 1 \
                 and not self.batch_shape:  # one price vector, one float: the hot path
-            return float(self._expenditure(prices, utility))
+            return float(self._expenditure(p, utility))
         return self._broadcast("_expenditure", False, prices, utility)
 
     def indirect_utility(self, prices: npt.ArrayLike, income: npt.ArrayLike) -> Values:
         """v(p, m): the living standard that ``income`` buys at ``prices``."""
-        if type(income) is float and type(prices) is np.ndarray and prices.ndim == 1 \
+        p: Any = prices  # exact types checked: the hot path takes nothing else
+        number: Any = income
+        if type(number) is float and type(p) is np.ndarray and p.ndim == 1 \
                 and not self.batch_shape:  # one price vector, one float: the hot path
-            return float(self._indirect_utility(prices, income))
+            return float(self._indirect_utility(p, income))
         return self._broadcast("_indirect_utility", False, prices, income)
 
     def marshallian(self, prices: npt.ArrayLike, income: npt.ArrayLike) -> Values:
         """x(p, m): the demanded quantities at ``prices`` and ``income``, shape ``(..., N)``."""
-        if type(income) is float and type(prices) is np.ndarray and prices.ndim == 1 \
+        p: Any = prices  # exact types checked: the hot path takes nothing else
+        number: Any = income
+        if type(number) is float and type(p) is np.ndarray and p.ndim == 1 \
                 and not self.batch_shape:
-            return self._marshallian(prices, income)
+            return self._marshallian(p, income)
         return self._broadcast("_marshallian", True, prices, income)
 
     def hicksian(self, prices: npt.ArrayLike, utility: npt.ArrayLike) -> Values:
         """h(p, u) = grad_p e(p, u), the least-cost bundle, shape ``(..., N)``."""
-        if type(utility) is float and type(prices) is np.ndarray and prices.ndim == 1 \
+        p: Any = prices  # exact types checked: the hot path takes nothing else
+        number: Any = utility
+        if type(number) is float and type(p) is np.ndarray and p.ndim == 1 \
                 and not self.batch_shape:
-            return self._hicksian(prices, utility)
+            return self._hicksian(p, utility)
         return self._broadcast("_hicksian", True, prices, utility)
 
     def income_floor(self, prices: npt.ArrayLike) -> Values:
         """The least income at which the family is defined at ``prices`` (0 for most)."""
         if type(prices) is np.ndarray and prices.ndim == 1 and not self.batch_shape:
-            return float(self._income_floor(prices))  # type: ignore[arg-type]
+            return float(self._income_floor(prices))
         return self._broadcast("_income_floor", False, prices)
 
     # -- the private methods a family implements ------------------------------------------------
@@ -387,7 +404,7 @@ class Preferences(abc.ABC):
             if len(cache) >= _REMEMBERED:
                 cache.clear()
             cache[key] = found
-        return found  # type: ignore[no-any-return]
+        return found
 
     # -- calibration ---------------------------------------------------------------------------
     @classmethod

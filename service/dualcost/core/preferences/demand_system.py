@@ -36,7 +36,7 @@ the demands at ``(p0, m0)`` are from the observed base bundle is the comparison'
 from __future__ import annotations
 
 from collections.abc import Callable, Mapping, Sequence
-from typing import Any, ClassVar
+from typing import Any
 
 import numpy as np
 
@@ -231,46 +231,33 @@ class DemandSystem(Preferences):
     homothetic = False
     parameter_specs = (
         ParameterSpec("form", "How the demands are given: linear, log_linear, semi_log or formula "
-                      "(function from Python).", required=True),
-        ParameterSpec("intercepts", "linear, semi_log, log_linear: the constants a_i, one per item."),
+                      "(function from Python).", required=True, shape="text"),
+        ParameterSpec("intercepts", "linear, semi_log, log_linear: the constants a_i, one per "
+                      "item.", shape="vector"),
         ParameterSpec("price_coefficients", "linear, semi_log: the matrix b_ij of the prices (row i: "
-                      "item i's demand)."),
+                      "item i's demand).", shape="matrix"),
         ParameterSpec("income_coefficients", "linear, semi_log: the income coefficients c_i.",
-                      default=0.0),
-        ParameterSpec("price_elasticities", "log_linear: the matrix of price elasticities eps_ij."),
+                      default=0.0, shape="vector"),
+        ParameterSpec("price_elasticities", "log_linear: the matrix of price elasticities "
+                      "eps_ij.", shape="matrix"),
         ParameterSpec("income_elasticities", "log_linear: the income elasticities eta_i.",
-                      default=0.0),
+                      default=0.0, shape="vector"),
         ParameterSpec("demand_formulas", "formula: one formula per item, keyed by item id, using "
-                      "item ids as prices and income."),
+                      "item ids as prices and income.", shape="formulas"),
         ParameterSpec("numeraire", "An item whose demand is the rest of the budget and whose price "
                       "is the unit of the other prices and income in the equations (its own "
-                      "coefficients must be 0, it has no formula)."),
+                      "coefficients must be 0, it has no formula).", shape="item"),
         ParameterSpec("path", "Price vectors the price path passes through on its way from base "
-                      "prices (default: a straight path)."),
+                      "prices (default: a straight path).", shape="path"),
         ParameterSpec("tolerance", "Relative tolerance of the integration.",
                       default=DEFAULT_TOLERANCE),
         ParameterSpec("deadline_seconds", "Seconds allowed for the model's numerical work, counted "
-                      "from calibration (the service sets it).", default=10.0),
+                      "from calibration (the service sets it).", default=10.0, shape="service"),
         ParameterSpec("item_names", "The item ids that formulas use, in item order (the service "
-                      "sets them from items)."),
-        ParameterSpec("demand_function", "function: a Python callable x(p, m) (from Python only)."),
+                      "sets them from items).", shape="service"),
+        ParameterSpec("demand_function", "function: a Python callable x(p, m) (from Python "
+                      "only).", shape="python"),
     )
-    #: The shape of each parameter, for the web layer's conversion of a request.
-    parameter_shapes: ClassVar[dict[str, str]] = {
-        "form": "text",
-        "intercepts": "vector",
-        "price_coefficients": "matrix",
-        "income_coefficients": "vector",
-        "price_elasticities": "matrix",
-        "income_elasticities": "vector",
-        "demand_formulas": "formulas",
-        "numeraire": "item",
-        "path": "path",
-        "tolerance": "number",
-        "deadline_seconds": "deadline",
-        "item_names": "item_names",
-        "demand_function": "python",
-    }
 
     def __init__(self, system: _System, base: BaseBudget, *, form: str, waypoints: Sequence[Vector],
                  tolerance: float, deadline: Deadline, numeraire_name: str | None) -> None:
@@ -440,7 +427,7 @@ class DemandSystem(Preferences):
                                   "(give a numeraire item to close the budget)."))
         at_base = np.array_equal(prices, self.base_prices)
         if at_base:
-            points = [(None, prices, income)]
+            points: list[tuple[float | None, Vector, float]] = [(None, prices, income)]
         else:
             total = len(self.waypoints) + 1
             taus = [c * total for c in _CHECKPOINTS]

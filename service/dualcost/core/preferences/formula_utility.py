@@ -31,7 +31,7 @@ Calibration sets nothing: the base budget is the reference point (and a starting
 from __future__ import annotations
 
 from collections.abc import Mapping
-from typing import Any, ClassVar
+from typing import Any
 
 import numpy as np
 from scipy.optimize import brentq, minimize
@@ -61,19 +61,13 @@ class UtilityFormula(Preferences):
     homothetic = False
     parameter_specs = (
         ParameterSpec("utility_formula", "The direct utility u(x) as a formula, with item ids "
-                      "standing for quantities.", required=True),
+                      "standing for quantities.", required=True, shape="text"),
         ParameterSpec("starts", "Starting bundles for each optimisation (at least 2).", default=3),
         ParameterSpec("deadline_seconds", "Seconds allowed for the model's numerical work, counted "
-                      "from calibration (the service sets it).", default=10.0),
+                      "from calibration (the service sets it).", default=10.0, shape="service"),
         ParameterSpec("item_names", "The item ids the formula uses, in item order (the service "
-                      "sets them from items)."),
+                      "sets them from items).", shape="service"),
     )
-    parameter_shapes: ClassVar[dict[str, str]] = {
-        "utility_formula": "text",
-        "starts": "number",
-        "deadline_seconds": "deadline",
-        "item_names": "item_names",
-    }
 
     def __init__(self, utility: Expression, names: list[str], base: BaseBudget, *, starts: int,
                  deadline: Deadline) -> None:

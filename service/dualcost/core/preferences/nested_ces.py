@@ -49,7 +49,7 @@ from dataclasses import dataclass
 from functools import cached_property
 from itertools import accumulate, chain
 from numbers import Integral, Real
-from typing import Any
+from typing import Any, Literal
 
 import numpy as np
 from numpy.typing import NDArray
@@ -96,10 +96,13 @@ class TreeForm:
 
     A model gives every group its elasticity of substitution; a fit leaves the sigmas out (they
     are what it estimates) and needs two children per group, or there is no substitution to
-    estimate. ``default_label(g, position)`` names an unnamed group from its number in listed
-    order and its 1-based position among its parent's children; ``unique_defaults`` says whether
-    those stand-in names count in the check that names are unique. ``wording`` holds one
-    :meth:`str.format` template per rule.
+    estimate. ``default_label(g, position)`` names an unnamed group from its number and its
+    1-based position among its parent's children; ``unique_defaults`` says whether those
+    stand-in names count in the check that names are unique. ``wording`` holds one
+    :meth:`str.format` template per rule. ``numbering`` says how groups are numbered: ``listed``,
+    depth first in the order they are listed (a fit's parameters follow it), or ``reached``: the
+    root, then a group's subgroups together when the group is read, the groups being read from
+    the last listed (the order of a model's answers since the service's first version).
     """
 
     keys: frozenset[str]
@@ -108,6 +111,7 @@ class TreeForm:
     default_label: Callable[[int, int], str]
     unique_defaults: bool
     wording: Mapping[str, str]
+    numbering: Literal["listed", "reached"] = "listed"
 
 
 _MODEL_WORDING: dict[str, str] = {
@@ -128,7 +132,7 @@ _MODEL_WORDING: dict[str, str] = {
                       "zero or more",
     "few_children": "group '{path}' has no children; every group needs at least one item "
                     "position or subgroup in 'children'",
-    "unknown_id": "group '{path}' lists {child!r}, which is not one of the items",
+    "unknown_id": "group '{path}' lists {child!r}, which is not an item id listed in items",
     "out_of_range": "group '{path}' lists item {i}, but item positions run from 0 to {last} "
                     "(there are {n} items)",
     "too_deep": "child {k} of group '{path}' makes the tree deeper than the limit of {max_depth} "
@@ -145,7 +149,7 @@ _MODEL_WORDING: dict[str, str] = {
 MODEL_TREE = TreeForm(
     keys=frozenset(("name", "sigma", "children")), with_sigma=True, min_children=1,
     default_label=lambda g, position: f"group #{position}", unique_defaults=False,
-    wording=_MODEL_WORDING,
+    wording=_MODEL_WORDING, numbering="reached",
 )
 
 #: The grouping of a nested CES fit: ``{"name", "children"}`` per group, two children or more.
@@ -247,18 +251,24 @@ class _Walk:
         return InvalidInput("tree", self.form.wording[rule].format(**facts), place)
 
     def read(self, spec: Any) -> _Tree:
-        """The checked tree: every group read in listed order, then every item accounted for."""
+        """The checked tree: every group read, then every item accounted for."""
         if spec is None:
             raise self.fail("required", ())
         if not isinstance(spec, Mapping):
             raise self.fail("not_a_group", ())
-        # (spec of the group, its parent, its position among the parent's children, its place)
-        stack: list[tuple[Mapping[str, Any], int, int, TreePath]] = [(spec, -1, 0, ())]
+        reached = self.form.numbering == "reached"
+        # (spec of the group, its number or its parent's, its position among the parent's
+        # children, its place)
+        stack: list[tuple[Mapping[str, Any], int, int, TreePath]] = [
+            (spec, self._allocate(-1, ()) if reached else -1, 0, ())]
         while stack:
-            node, parent, k, place = stack.pop()
-            g = self._open(node, parent, k, place)
-            # Pushed in reverse, so that they are read, and numbered, in the order listed.
-            stack.extend(reversed(self._read_children(node, g)))
+            node, number, k, place = stack.pop()
+            g = number if reached else self._allocate(number, place, k)
+            self._open(node, g, k, place)
+            subgroups = self._read_children(node, g)
+            # Listed numbering pushes them in reverse, so that they are read, and numbered, in
+            # the order listed; numbered when reached, they are read from the last listed.
+            stack.extend(subgroups if reached else reversed(subgroups))
         self._check_every_item_placed()
         return _Tree(
             n_items=self.n_items,
@@ -268,16 +278,23 @@ class _Walk:
             children=tuple(tuple(c) for c in self.children),
         )
 
-    def _open(self, node: Mapping[str, Any], parent: int, k: int, place: TreePath) -> int:
-        """Number the group, link it to its parent and check its own keys (not its children)."""
+    def _allocate(self, parent: int, place: TreePath, k: int = -1) -> int:
+        """Number a group and link it to its parent (``k``: its place among the parent's
+        children, when a placeholder holds it there)."""
         g = len(self.labels)
-        if parent >= 0:
+        if parent >= 0 and k >= 0:
             self.children[parent][k] = self.n_items + g
         self.parents.append(parent)
         self.depths.append(1 if parent < 0 else self.depths[parent] + 1)
         self.places.append(place)
         self.children.append([])
-        self.labels.append(self._label(node, g, k + 1))
+        self.labels.append("")
+        self.sigmas.append(math.nan)
+        return g
+
+    def _open(self, node: Mapping[str, Any], g: int, k: int, place: TreePath) -> None:
+        """Check the group's own keys, name and sigma (not its children)."""
+        self.labels[g] = self._label(node, g, k + 1)
         if id(node) in self.seen:
             raise self.fail("group_twice", place, g)
         self.seen.add(id(node))
@@ -289,8 +306,8 @@ class _Walk:
             raise self.fail("unknown_keys", place + (first,), g,
                             keys=", ".join(repr(str(key)) for key in unknown), extra=extra)
         self._check_unique(node, g)
-        self.sigmas.append(self._sigma(node, g) if self.form.with_sigma else math.nan)
-        return g
+        if self.form.with_sigma:
+            self.sigmas[g] = self._sigma(node, g)
 
     def _label(self, node: Mapping[str, Any], g: int, position: int) -> str:
         """The group's own name, or a stand-in saying where it sits when it has none."""
@@ -336,11 +353,12 @@ class _Walk:
     def _read_children(self, node: Mapping[str, Any], g: int
                        ) -> list[tuple[Mapping[str, Any], int, int, TreePath]]:
         """Place the group's items; its subgroups, to be read next, in the order listed."""
-        kids = node.get("children")
+        kids: Any = node.get("children")
         place = self.places[g]
         if not _is_list(kids) or len(kids) < self.form.min_children:
             raise self.fail("few_children", place + ("children",), g)
         ids, n, owner = self.item_ids, self.n_items, self.owner
+        reached = self.form.numbering == "reached"
         mine = self.children[g]
         subgroups: list[tuple[Mapping[str, Any], int, int, TreePath]] = []
         for k, child in enumerate(kids):
@@ -357,8 +375,14 @@ class _Walk:
                 if self.max_depth is not None and self.depths[g] + 1 > self.max_depth:
                     raise self.fail("too_deep", place + ("children", k), g, k=k + 1,
                                     max_depth=self.max_depth)
-                mine.append(-1)  # the subgroup's node id, set when it is read
-                subgroups.append((child, g, k, place + ("children", k)))
+                where = place + ("children", k)
+                if reached:  # numbered now, together with its siblings
+                    sub = self._allocate(g, where)
+                    mine.append(n + sub)
+                    subgroups.append((child, sub, k, where))
+                else:  # numbered when read; a placeholder holds its place meanwhile
+                    mine.append(-1)
+                    subgroups.append((child, g, k, where))
                 continue
             else:
                 item = "an item id" if ids is not None else "an item position (a whole number)"
@@ -385,38 +409,6 @@ class _Walk:
         one = len(missing) == 1
         raise self.fail("missing", (), noun="item" if one else "items", shown=shown,
                         verb="is" if one else "are", last=n - 1, first_missing=missing[0])
-
-
-def _in_reported_order(tree: _Tree) -> _Tree:
-    """The tree with its groups renumbered in the order a model reports them: the root, then
-    each group's subgroups numbered together when the group is reached, groups being reached
-    from the last listed (the order of the service's answers since its first version)."""
-    n = tree.n_items
-    subgroups: list[list[int]] = [[] for _ in tree.parents]
-    for g, parent in enumerate(tree.parents[1:], start=1):
-        subgroups[parent].append(g)  # in listed order: siblings are numbered in that order
-    order, stack = [0], [0]
-    while stack:
-        g = stack.pop()
-        order.extend(subgroups[g])
-        stack.extend(subgroups[g])
-    if order == list(range(len(order))):
-        return tree
-    new = [0] * len(order)
-    for k, g in enumerate(order):
-        new[g] = k
-    return _Tree(
-        n_items=n,
-        labels=tuple(tree.labels[g] for g in order),
-        parents=tuple(-1 if tree.parents[g] < 0 else new[tree.parents[g]] for g in order),
-        sigmas=tuple(tree.sigmas[g] for g in order),
-        children=tuple(
-            # Only the children lists with subgroups in them change.
-            tuple(c if c < n else n + new[c - n] for c in tree.children[g]) if subgroups[g]
-            else tree.children[g]
-            for g in order
-        ),
-    )
 
 
 # -- the tree compiled for evaluation ------------------------------------------------------------
@@ -552,6 +544,7 @@ class NestedCES(HomotheticPreferences):
             "of substitution between its children (0 or more), \"children\": item positions "
             "0..n-1 and subgroups}; every item appears exactly once.",
             required=True,
+            shape="tree",
         ),
     )
 
@@ -572,7 +565,7 @@ class NestedCES(HomotheticPreferences):
     def calibrate(cls, base: BaseBudget, *, tree: Any = None, **_: Any) -> NestedCES:
         """Within-group weights come from the base shares; the caller gives the tree (items as
         positions, or by id in an :class:`ItemIdTree`)."""
-        return cls(base.shares, base.prices, _in_reported_order(parse_tree(tree, base.n_items)))
+        return cls(base.shares, base.prices, parse_tree(tree, base.n_items))
 
     # -- evaluation --------------------------------------------------------------------------
     def _log_relatives(self, prices: Vector) -> tuple[Vector, list[Vector]]:

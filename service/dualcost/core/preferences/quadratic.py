@@ -88,6 +88,7 @@ class HomogeneousQuadratic(HomotheticPreferences):
             "cost_matrix",
             "Symmetric n by n matrix B of the unit cost (p' B p)^(1/2); scaled so that the cost "
             "at base prices is 1. Give sigma or cost_matrix.",
+            shape="matrix",
         ),
     )
 

@@ -121,11 +121,13 @@ class StoneGeary(Preferences):
             "subsistence_quantities",
             "Subsistence quantity gamma_i of each item, at most the base quantity. If given, the "
             "marginal budget shares follow from it; do not give elasticities or frisch then.",
+            shape="vector",
         ),
         ParameterSpec(
             "expenditure_elasticities",
             "Expenditure (income) elasticity of each item at the base, 0 or more, with base "
             "share-weighted mean 1 (Engel aggregation). Default: 1 for every item.",
+            shape="vector",
         ),
         ParameterSpec(
             "frisch",

@@ -102,6 +102,7 @@ class Translog(HomotheticPreferences):
             "gamma",
             "The n by n matrix Gamma of second-order log-price terms: symmetric, rows summing "
             "to zero. Give sigma or gamma.",
+            shape="matrix",
         ),
     )
 

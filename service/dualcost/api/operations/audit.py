@@ -1,0 +1,69 @@
+"""Published index numbers against a recomputation from their panel: POST /v1/audits and the
+``dualcost check`` command (in process) both run it."""
+
+from __future__ import annotations
+
+from collections.abc import Mapping
+from typing import Any
+
+from pydantic import ValidationError
+
+from ...config import Settings
+from ...core.audit import Audit, PublishedValue, audit_series
+from ..inputs.locator import Locator, Place
+from ..inputs.panels import panel_from_json
+from ..observability import computing
+from ..problems import RequestProblem, field_errors
+from ..schemas.audit import AuditRequest
+from ..schemas.common import CAUTION
+from . import series
+
+PLACES: dict[str, Place] = series.PLACES | {
+    "tolerance": Place("/tolerance"),
+    "published": Place("/published", shape="list"),
+}
+TOLERANCE_RULE = ("A published value passes when |published - recomputed| <= tolerance; without a "
+                  "tolerance, half a unit in the last decimal place it was published with "
+                  "(plus 1e-9).")
+
+
+def run(request: AuditRequest, settings: Settings) -> Audit:
+    """Recompute the series the published values belong to, then compare them one by one."""
+    loc = Locator(PLACES)
+    if request.tolerance is None:  # each value's tolerance comes from its decimals
+        loc.add("tolerance", PLACES["published"])
+    panel = panel_from_json(request.periods, request.items, {
+        "prices": request.prices, "quantities": request.quantities,
+        "expenditures": request.expenditures}, series.limits(settings), loc)
+    values = [PublishedValue(p.formula, p.series, str(p.period), p.value, p.decimals)
+              for p in request.published]
+    arguments = series.core_arguments(request, panel, settings, loc)
+    with computing("auditPublishedSeries", settings), loc.translating():
+        return audit_series(values, tolerance=request.tolerance, **arguments)
+
+
+def document(result: Audit) -> dict[str, Any]:
+    """The answer as plain values, in the shape of ``AuditResponse``."""
+    def finite(x: float) -> float | None:
+        return x if x == x and abs(x) != float("inf") else None
+
+    return {
+        "passed": result.passed, "checked": len(result.rows), "failed": len(result.failures),
+        "rows": [{"formula": r.formula, "series": r.series, "period": r.period,
+                  "published": r.published, "recomputed": finite(r.recomputed),
+                  "difference": finite(r.difference), "tolerance": r.tolerance,
+                  "passed": r.passed} for r in result.rows],
+        "tolerance_rule": TOLERANCE_RULE, "caution": CAUTION,
+    }
+
+
+def audit_json(body: Mapping[str, Any], settings: Settings) -> dict[str, Any]:
+    """The whole audit for a body held in memory, as the service answers it: the body is
+    validated as POST /v1/audits validates it, and every broken rule is raised as a
+    :class:`~dualcost.api.problems.RequestProblem` whose errors point into ``body``. This is the
+    door for ``dualcost check`` in process."""
+    try:
+        request = AuditRequest.model_validate(body)
+    except ValidationError as exc:
+        raise RequestProblem(field_errors(exc.errors(), body, prefix=("body",))) from None
+    return document(run(request, settings))

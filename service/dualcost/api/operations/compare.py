@@ -1,0 +1,247 @@
+"""The comparison of two price situations: POST /v1/comparisons, the spreadsheet forms and the
+demo all run it.
+
+The request is translated once (items, vectors in item order, the model's parameters), the core
+computes the whole comparison in one call (:func:`dualcost.core.comparison.compare_budgets`)
+under one error translation, and the answer is written from the core's result in one step.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass, replace
+from typing import Any, Protocol
+
+from ...config import Settings
+from ...core.comparison import Comparison, compare_budgets
+from ...core.errors import NumericalFailure
+from ...core.indices import REGISTRY, formulas_for
+from ...core.preferences import Preferences
+from ..inputs.items import ItemAxis
+from ..inputs.locator import Form, Locator, Place
+from ..inputs.model import core_parameters
+from ..observability import computing
+from ..render import all_finite
+from ..schemas.comparison import (
+    CAUTION,
+    SIGN_CONVENTION,
+    ComparisonRequest,
+    CurrentIn,
+    WeightReferenceIn,
+)
+
+#: Where each core argument of a comparison is, in the JSON body and in the spreadsheet forms'
+#: query strings.
+PLACES: dict[str, Place] = {
+    "items": Place("/items", "items", "list"),
+    "p0": Place("/base/prices", "p0", "items", names_item=True),
+    "q0": Place("/base/quantities", "q0", "items", names_item=True),
+    "w0": Place("/base/shares", "w0", "items", names_item=True),
+    "m0": Place("/base/expenditure", "m0"),
+    "p1": Place("/current/prices", "p1", "items", names_item=True),
+    "q1": Place("/current/quantities", "q1", "items", names_item=True),
+    "m1": Place("/current/expenditure", "m1"),
+    "reference_income": Place("/reference_income", "reference_income"),
+    "pb": Place("/weight_reference/prices", None, "items", names_item=True),
+    "qb": Place("/weight_reference/quantities", None, "items", names_item=True),
+    "wb": Place("/weight_reference/shares", None, "items", names_item=True),
+    "lloyd_moulton_sigma": Place("/lloyd_moulton_sigma", "lloyd_moulton_sigma"),
+    "formulas": Place("/formulas", "formulas", "list"),
+    "normalise_shares": Place("/normalise_shares", "normalise_shares"),
+    "family": Place("/model/family", "family"),
+    "model": Place("/model", "family"),
+    # The parameters the spreadsheet forms carry as query parameters of their own.
+    "sigma": Place("/model/sigma", "sigma"),
+    "frisch": Place("/model/frisch", "frisch"),
+    "subsistence_quantities": Place("/model/subsistence_quantities", "subsistence"),
+    "expenditure_elasticities": Place("/model/expenditure_elasticities", "elasticities"),
+}
+
+
+@dataclass(frozen=True)
+class Outcome:
+    """A comparison's result with what its answer needs from the request."""
+
+    result: Comparison
+    model: Preferences
+    axis: ItemAxis
+
+
+def locator(form: Form = "json") -> Locator:
+    return Locator(PLACES, form)
+
+
+def run(request: ComparisonRequest, settings: Settings, loc: Locator | None = None) -> Outcome:
+    """Translate the request, compare under its model, and point any error at the request."""
+    loc = loc or locator()
+    axis = ItemAxis.from_request(request.items, loc, limit=settings.max_items)
+    arguments = _base(request, axis, loc)
+    parameters = core_parameters(request.model, axis, loc, max_tree_depth=settings.max_tree_depth,
+                                 deadline_seconds=settings.compute_deadline_seconds)
+    arguments |= current_arguments(request, axis, loc)
+    with computing("compare", settings), loc.translating():
+        result, model = compare_budgets(request.model.family, parameters, **arguments)
+    return Outcome(result, model, axis)
+
+
+def _base(request: ComparisonRequest, axis: ItemAxis, loc: Locator) -> dict[str, Any]:
+    """The base budget's vectors in item order, under the core's argument names."""
+    b = request.base
+    out: dict[str, Any] = {"base_prices": axis.vector(loc, "p0", b.prices),
+                           "base_expenditure": b.expenditure,
+                           "normalise_shares": request.normalise_shares}
+    if b.quantities is not None:
+        out["base_quantities"] = axis.vector(loc, "q0", b.quantities)
+    else:  # the core derives the quantities from the shares
+        loc.add("q0", PLACES["w0"])
+        out["base_shares"] = axis.vector(loc, "w0", b.shares)  # type: ignore[arg-type]
+        loc.given("q0", b.shares)
+    return out
+
+
+#: The parts of a weight-reference period, by core argument.
+_WEIGHTS = {"pb": "prices", "qb": "quantities", "wb": "shares"}
+
+
+class ComparedPeriod(Protocol):
+    """The parts of a request that describe the current period and the options (a comparison,
+    or the comparison part of a fitted comparison)."""
+
+    current: CurrentIn
+    reference_income: float | None
+    weight_reference: WeightReferenceIn | None
+    lloyd_moulton_sigma: float | None
+    formulas: list[str] | None
+
+
+def current_arguments(request: ComparedPeriod, axis: ItemAxis, loc: Locator) -> dict[str, Any]:
+    """The current period's vectors and the options, under the core's argument names."""
+    c = request.current
+    if c.expenditure is None:  # a current income the core derives is about the current period
+        loc.add("m1", replace(loc.places["m1"], json=loc.places["p1"].json.rsplit("/", 1)[0]))
+    out: dict[str, Any] = {
+        "current_prices": axis.vector(loc, "p1", c.prices),
+        "current_income": c.expenditure, "reference_income": request.reference_income,
+        "lloyd_moulton_sigma": request.lloyd_moulton_sigma, "formulas": request.formulas,
+    }
+    if c.quantities is not None:
+        out["current_quantities"] = axis.vector(loc, "q1", c.quantities)
+    else:  # the model's demands stand in for them: the core's complaints name the argument
+        loc.places.pop("q1")
+    wr = request.weight_reference
+    given = {name: getattr(wr, part) for name, part in _WEIGHTS.items()} if wr else {}
+    for name in _WEIGHTS:
+        if given.get(name) is None:
+            loc.places.pop(name)
+    if wr is not None:
+        out["weight_reference"] = {_WEIGHTS[name]: axis.vector(loc, name, value)
+                                   for name, value in given.items() if value is not None}
+    return out
+
+
+# -- the answer -------------------------------------------------------------------------------
+
+
+def document(outcome: Outcome) -> dict[str, Any]:
+    """The answer as plain JSON-ready values, in the shape of ``ComparisonResponse``.
+
+    Written in one step from the core's arrays: validating one response object per item would
+    cost more than the computation for large baskets (the tests validate answers against the
+    response model). Every number the core computed it checked finite; the calibrated
+    parameters are checked here.
+    """
+    r, axis = outcome.result, outcome.axis
+    parameters = dict(outcome.model.parameters())
+    if not all_finite(parameters):
+        raise NumericalFailure("model parameters", "a calibrated parameter is not a finite "
+                               "number; the inputs are beyond what the model can evaluate")
+    lasp = r.formulas.get("laspeyres")
+    st = r.standards
+    return {
+        "family": r.family,
+        "items": axis.ids,
+        "konus": {"base": r.konus.base, "current": r.konus.current, "midpoint": r.konus.midpoint,
+                  "reference": r.konus.reference, "homothetic": r.konus.homothetic},
+        "living_standards": {
+            "base_income": st.base_income, "current_income": st.current_income,
+            "midpoint_income": st.midpoint_income, "reference_income": st.reference_income,
+            "utility_base": st.base, "utility_current": st.current,
+            "utility_reference": st.reference,
+        },
+        "formulas": [{"formula": f.name, "title": REGISTRY[f.name].title, "value": f.value,
+                      "compared_with": f.target, "konus": f.konus, "bias_points": f.bias_points,
+                      "bias_percent": f.bias_percent} for f in r.formulas.values()],
+        "laspeyres_gap_points": None if lasp is None else 100.0 * (lasp.value - r.konus.base),
+        "compensation": {
+            "compensating_variation": r.compensating_variation,
+            "equivalent_variation": r.equivalent_variation,
+            "compensated_income": r.compensated_income, "sign_convention": SIGN_CONVENTION,
+        },
+        "by_item": _items(r, axis),
+        "lloyd_moulton_sigma": r.lloyd_moulton_sigma,
+        "model_parameters": parameters,
+        "diagnostics": {"duality_residual": r.diagnostics.duality_residual,
+                        "expenditure_residual": r.diagnostics.expenditure_residual,
+                        "base_bundle_gap": r.diagnostics.base_bundle_gap},
+        "notices": [{"code": n.code, "message": n.message} for n in r.notices],
+        "caution": CAUTION,
+    }
+
+
+def _items(r: Comparison, axis: ItemAxis) -> list[dict[str, Any]]:
+    """One record per item, written out as a dict display: about twice as fast as zipping
+    names with rows, for baskets of hundreds of items."""
+    d = r.demands
+    gap = r.laspeyres_gap_contributions
+    gaps = [None] * len(axis.ids) if gap is None else (100.0 * gap).tolist()
+    return [
+        {"item": item, "label": label, "base_price": p0, "current_price": p1,
+         "price_relative": rel, "base_quantity": q0, "current_quantity": q1,
+         "compensated_quantity": h1, "substitution_effect": sub, "income_effect": inc,
+         "laspeyres_gap_points": g}
+        for item, label, p0, p1, rel, q0, q1, h1, sub, inc, g in zip(
+            axis.ids, axis.labels, r.base_prices.tolist(), r.current_prices.tolist(),
+            (r.current_prices / r.base_prices).tolist(), d.base.tolist(), d.current.tolist(),
+            d.compensated.tolist(), d.substitution_effect.tolist(), d.income_effect.tolist(),
+            gaps, strict=True)
+    ]
+
+
+def measures(outcome: Outcome) -> list[tuple[str, float, str, float | None, float | None]]:
+    """The headline figures one per row: (measure, value, compared_with, bias in points, bias
+    in percent), as the spreadsheet forms give them."""
+    r = outcome.result
+    rows: list[tuple[str, float, str, float | None, float | None]] = [
+        ("konus_base", r.konus.base, "", None, None),
+        ("konus_current", r.konus.current, "", None, None),
+        ("konus_midpoint", r.konus.midpoint, "", None, None),
+    ]
+    if r.konus.reference is not None:
+        rows.append(("konus_reference", r.konus.reference, "", None, None))
+    rows += [(f.name, f.value, f.target, f.bias_points, f.bias_percent)
+             for f in r.formulas.values()]
+    rows += [("compensating_variation", r.compensating_variation, "", None, None),
+             ("equivalent_variation", r.equivalent_variation, "", None, None),
+             ("compensated_income", r.compensated_income, "", None, None)]
+    return rows
+
+
+def measure(outcome: Outcome, name: str) -> float | None:
+    """One headline figure by name (``laspeyres_bias_points`` too), or None if not computed."""
+    for row in measures(outcome):
+        if row[0] == name:
+            return row[1]
+    lasp = outcome.result.formulas.get("laspeyres")
+    if name == "laspeyres_bias_points" and lasp is not None:
+        return 100.0 * (lasp.value - outcome.result.konus.base)
+    return None
+
+
+#: The figures a spreadsheet can ask for one at a time: the formulas its forms can compute
+#: (none needs a weight-reference period, which the forms cannot carry).
+MEASURES: tuple[str, ...] = (
+    "konus_base", "konus_current", "konus_midpoint", "konus_reference",
+    *(name for name in formulas_for("comparison")
+      if not {"weight_quantities", "weight_shares"} & set(REGISTRY[name].needs)),
+    "laspeyres_bias_points", "compensating_variation", "equivalent_variation",
+    "compensated_income",
+)

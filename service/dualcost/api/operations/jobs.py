@@ -1,0 +1,274 @@
+"""Household jobs, for large CSV files: create a job with the JSON of a household batch less its
+households, upload the households as CSV and read the results back as CSV while they are
+computed; the job reports its progress and, at the end, the summaries and the rows skipped.
+
+Jobs live in the memory of the process that created them (:class:`JobStore`, one per app): with
+several worker processes a client must reach the same process for all of a job's requests. The
+upload is spooled to a temporary file (in memory up to 8 MiB, then on disk) and read back chunk
+by chunk, so the households are never held twice.
+"""
+
+from __future__ import annotations
+
+import codecs
+import csv
+import io
+import tempfile
+import threading
+import uuid
+from collections import OrderedDict
+from collections.abc import Iterator
+from datetime import datetime, timezone
+from typing import Any
+
+from fastapi import Request
+
+from ...config import Settings
+from ...core.households import Accumulator, HouseholdJob
+from ..inputs.csv import check_media_type
+from ..inputs.households import CsvLayout, csv_chunks, csv_layout, job_of, labels_of
+from ..inputs.items import ItemAxis
+from ..inputs.locator import Locator
+from ..problems import JobConflict, JobNotFound, RequestProblem, ServiceBusy
+from ..render import csv_line
+from ..schemas.common import CAUTION
+from ..schemas.households import HouseholdJobSpec
+from . import households
+
+SPOOL_MEMORY_BYTES = 8 * 1024 * 1024
+
+
+class JobState:
+    """One job's spec, progress and outcome; read by GET while a stream writes to it."""
+
+    def __init__(self, spec: HouseholdJobSpec, job: HouseholdJob, axis: ItemAxis,
+                 quantiles: tuple[float, ...]) -> None:
+        self.id = uuid.uuid4().hex
+        self.created = datetime.now(timezone.utc).isoformat(timespec="seconds")
+        self.spec, self.job, self.axis, self.quantiles = spec, job, axis, quantiles
+        self.labels = labels_of(spec)
+        self.bad_rows = spec.bad_rows or "skip"
+        self.status = "waiting_for_households"
+        self.engine: str | None = None
+        self.rows_read = 0
+        self.rows_total: int | None = None
+        self.acc = Accumulator(job)
+        self.layout: CsvLayout | None = None
+        self.locator = Locator(households.PLACES, "csv", items=axis.ids)
+        self.summary: list[dict[str, Any]] | None = None
+        self.error: str | None = None
+        self.lock = threading.Lock()
+
+    def claim(self) -> None:
+        with self.lock:
+            if self.status != "waiting_for_households":
+                raise JobConflict(f"household job {self.id} has already received its households "
+                                  f"(status {self.status}); create a new job")
+            self.status = "running"
+
+    def release(self) -> None:
+        """The upload was refused before any work: the job waits for a corrected one."""
+        with self.lock:
+            self.status = "waiting_for_households"
+            self.rows_read = 0
+            self.rows_total = None
+            self.engine = None
+            self.acc = Accumulator(self.job)
+
+    def count(self, n: int) -> None:
+        self.rows_read += n
+
+    def finish(self) -> None:
+        summary = households.summary_json(self.acc.summary(self.quantiles), self.labels)
+        with self.lock:
+            self.summary = summary
+            self.status = "done"
+            # The per-household columns served the summaries; the job keeps only counts now.
+            self.acc.parts = []
+
+    def fail(self, status: str, message: str) -> None:
+        with self.lock:
+            if self.status == "running":
+                self.status = status
+                self.error = message
+
+    def snapshot(self) -> dict[str, Any]:
+        """The job as GET answers it."""
+        with self.lock:
+            acc, total, done = self.acc, self.rows_total, self.status == "done"
+            fraction = 1.0 if done else (min(1.0, self.rows_read / total) if total else None)
+            return {
+                "id": self.id, "status": self.status, "created": self.created,
+                "family": self.job.family, "periods": self.labels, "engine": self.engine,
+                "bad_rows": self.bad_rows,
+                "progress": {"rows_read": self.rows_read, "rows_total": total,
+                             "households_done": acc.households, "rows_skipped": acc.skipped.count,
+                             "chunks_done": acc.chunks, "fraction": fraction},
+                "skipped": households.skipped_json(acc.skipped, self.locator),
+                "summary": self.summary,
+                "unused_columns": [] if self.layout is None else self.layout.unused,
+                "error": self.error,
+                "notices": households.notices_json(acc.notices() if done else self.job.notices),
+                "links": {"self": f"/v1/household-jobs/{self.id}",
+                          "households": f"/v1/household-jobs/{self.id}/households"},
+                "caution": CAUTION,
+            }
+
+
+class JobStore:
+    """The jobs of this process, oldest first; when full, the oldest job not running goes."""
+
+    def __init__(self, limit: int) -> None:
+        self.limit = limit
+        self.jobs: OrderedDict[str, JobState] = OrderedDict()
+        self.lock = threading.Lock()
+
+    def add(self, state: JobState) -> None:
+        with self.lock:
+            while len(self.jobs) >= self.limit:
+                idle = next((k for k, j in self.jobs.items() if j.status != "running"), None)
+                if idle is None:
+                    raise ServiceBusy(f"{self.limit} household jobs are running; try again when "
+                                      "one has finished")
+                del self.jobs[idle]
+            self.jobs[state.id] = state
+
+    def get(self, job_id: str) -> JobState:
+        state = self.jobs.get(job_id)
+        if state is None:
+            raise JobNotFound(f"no household job {job_id!r} in this process (jobs live in the "
+                              "memory of the worker that created them)")
+        return state
+
+    def remove(self, job_id: str) -> None:
+        with self.lock:
+            state = self.get(job_id)
+            if state.status == "running":
+                raise JobConflict("the job is running; delete it when it has finished")
+            del self.jobs[job_id]
+
+
+def create(spec: HouseholdJobSpec, settings: Settings, store: JobStore) -> JobState:
+    """A job waiting for its households; the same checks as a batch's, before any upload."""
+    loc = Locator(households.PLACES)
+    job, axis, quantiles = job_of(spec, loc, max_items=settings.max_items,
+                                  max_tree_depth=settings.max_tree_depth,
+                                  chunk_rows=settings.household_chunk_rows)
+    if spec.engine == "cluster":
+        households.scheduler_for("cluster", None, settings, loc)
+    state = JobState(spec, job, axis, quantiles)
+    store.add(state)
+    return state
+
+
+# -- the upload -------------------------------------------------------------------------------
+
+
+async def spool(request: Request) -> tuple[Any, int]:
+    """The request body in a temporary file, checked to be UTF-8; and its number of lines."""
+    check_media_type(request)
+    file = tempfile.SpooledTemporaryFile(max_size=SPOOL_MEMORY_BYTES)
+    decoder = codecs.getincrementaldecoder("utf-8")()
+    lines, size, last = 0, 0, b"\n"
+    try:
+        async for piece in request.stream():
+            if not piece:
+                continue
+            try:
+                decoder.decode(piece)
+            except UnicodeDecodeError as exc:
+                raise RequestProblem.at("", f"the CSV body is not UTF-8 text (byte "
+                                        f"{size + exc.start})") from None
+            file.write(piece)
+            size += len(piece)
+            lines += piece.count(b"\n")
+            last = piece[-1:]
+        decoder.decode(b"", final=True)
+    except UnicodeDecodeError:
+        file.close()
+        raise RequestProblem.at("", "the CSV body ends inside a UTF-8 character") from None
+    except BaseException:
+        file.close()
+        raise
+    if last != b"\n":
+        lines += 1
+    file.seek(0)
+    return file, lines
+
+
+def open_upload(state: JobState, file: Any, lines: int, settings: Settings
+                ) -> tuple[io.TextIOWrapper, Iterator[list[str]], str | None]:
+    """The upload's text, its record reader (past the header) and the scheduler's address;
+    a header without an item's column is refused at once."""
+    text = io.TextIOWrapper(file, encoding="utf-8-sig", newline="")
+    reader = csv.reader(text)
+    try:
+        header = next(reader)
+    except StopIteration:
+        raise RequestProblem.at("#row=1", "the CSV is empty: it needs a header row") from None
+    state.layout = csv_layout(header, state.axis, state.locator,
+                              needs_income=state.job.needs_income)
+    state.rows_total = max(0, lines - 1)
+    address = households.scheduler_for(state.spec.engine, state.rows_total, settings,
+                                       state.locator)
+    state.engine = "local" if address is None else "cluster"
+    return text, reader, address
+
+
+def stream(state: JobState, reader: Iterator[list[str]], text: io.TextIOWrapper | None,
+           scheduler: Any, settings: Settings, *, reject: bool = False) -> Iterator[str]:
+    """The CSV answer of a job, chunk by chunk; progress goes to the job as it is made.
+
+    ``scheduler`` is None (this process) or a connected Dask client, closed at the end.
+    """
+    job = state.job
+    assert state.layout is not None
+    with_income = state.layout.expenditure_column is not None
+    try:
+        yield csv_line(households.csv_header(job, with_income))
+        chunks = csv_chunks(reader, state.layout, job.chunk_rows, state.count)
+        for result in households.evaluate(job, chunks, scheduler, settings):
+            state.acc.add(result)
+            if result.size:
+                yield households.csv_rows(result, job, state.labels, with_income)
+        if reject and state.acc.skipped.count:
+            state.fail("failed", f"{state.acc.skipped.count} row(s) break a rule and bad_rows "
+                       "is reject: no result was given")
+        else:
+            state.finish()
+    except GeneratorExit:
+        state.fail("cancelled", "the client stopped reading the answer")
+        raise
+    except Exception as exc:
+        state.fail("failed", f"{type(exc).__name__}: {exc}")
+        raise
+    finally:
+        state.fail("cancelled", "the answer was not read to the end")
+        if text is not None:
+            text.close()
+        if scheduler is not None:
+            scheduler.close()
+
+
+def run_to_file(state: JobState, reader: Iterator[list[str]], scheduler: Any,
+                settings: Settings) -> Any:
+    """All or nothing (bad_rows=reject): the whole answer into a temporary file first; a bad
+    row refuses the upload, each named by its cell."""
+    out = tempfile.SpooledTemporaryFile(max_size=SPOOL_MEMORY_BYTES, mode="w+", encoding="utf-8",
+                                        newline="")
+    for piece in stream(state, reader, None, scheduler, settings, reject=True):
+        out.write(piece)
+    if state.acc.skipped.count:
+        out.close()
+        raise RequestProblem([state.locator.row_error(p) for p in state.acc.skipped.listed[:20]])
+    out.seek(0)
+    return out
+
+
+def file_pieces(out: Any) -> Iterator[str]:
+    try:
+        while piece := out.read(1 << 16):
+            yield piece
+    finally:
+        out.close()
+

@@ -1,0 +1,324 @@
+"""Index series over a panel: POST /v1/index-series (JSON), its CSV upload, the spreadsheet's
+series form and the audit all run it.
+
+The panel arrives as JSON rows or as CSV records (:mod:`dualcost.api.inputs.panels`); the core
+computes the whole series in one call (:func:`dualcost.core.series.series_by_label`), calling
+back for the model once it knows the base period's items; the answer is JSON or a CSV table with
+one row per period.
+"""
+
+from __future__ import annotations
+
+from collections.abc import Mapping, Sequence
+from dataclasses import dataclass
+from typing import Any
+
+import numpy as np
+
+from ...config import Settings
+from ...core.preferences import BaseBudget, Preferences
+from ...core.series import MODEL_RULE, IndexSeries, LabelledSeries, describe_treatment, series_by_label
+from ..inputs.items import ItemAxis
+from ..inputs.locator import Form, Locator, Place
+from ..inputs.model import calibrated
+from ..inputs.panels import Limits, PanelArrays
+from ..inputs.query import json_parameter, names
+from ..observability import computing
+from ..schemas.common import CAUTION
+from ..schemas.series import SeriesOptions
+
+#: Where each core argument of a series is: in the JSON body, in the query string (the CSV
+#: upload's options and the spreadsheet form) and in the CSV upload's columns.
+PLACES: dict[str, Place] = {
+    "prices": Place("/prices", "prices", "panel", column="price"),
+    "quantities": Place("/quantities", "quantities", "panel", column="quantity"),
+    "expenditures": Place("/expenditures", "expenditures", "panel", column="expenditure"),
+    "periods": Place("/periods", "periods", "list", column="period"),
+    "items": Place("/items", "items", "list", column="item"),
+    "base_period": Place("/base_period", "base_period"),
+    "reference_period": Place("/reference_period", "reference_period"),
+    "reference_value": Place("/reference_value", "reference_value"),
+    "frequency": Place("/frequency", "frequency"),
+    "formulas": Place("/formulas", "formulas", "list"),
+    "lloyd_moulton_sigma": Place("/lloyd_moulton_sigma", "lloyd_moulton_sigma"),
+    "new_goods_sigma": Place("/new_goods_sigma", "new_goods_sigma"),
+    "weight_reference": Place("/weight_reference", "weight_reference_period"),
+    "weight_reference_period": Place("/weight_reference/period", "weight_reference_period"),
+    "pb": Place("/weight_reference/prices", "weight_reference_period", "items"),
+    "qb": Place("/weight_reference/quantities", "weight_reference_period", "items"),
+    "wb": Place("/weight_reference/shares", "weight_reference_period", "items"),
+    "geks": Place("/geks", "geks_window"),
+    "geks_window": Place("/geks/window", "geks_window"),
+    "window": Place("/geks/window", "geks_window"),
+    "splice": Place("/geks/splice", "geks_splice"),
+    "span": Place("/span", "span_start"),
+    "span_start": Place("/span/start", "span_start"),
+    "span_end": Place("/span/end", "span_end"),
+    "loop": Place("/loop", "loop", "list"),
+    "model": Place("/model", "model", json_text=True),
+}
+
+ANNUAL_DEFINITION = (
+    "For a series P and its Konüs series K over the span from a to c of Y years: average annual "
+    "rates 100((P_c/P_a)^(1/Y) - 1) and 100((K_c/K_a)^(1/Y) - 1); the bias is their difference "
+    "in percentage points per year."
+)
+DRIFT_DEFINITION = (
+    "chain_drift_percent = 100 (chained_t / fixed_base_t - 1), both from the base period; "
+    "loop_product multiplies the formula's bilateral indices around the loop, closing back to its "
+    "first period (Fisher's circular test: 1 for a transitive index)."
+)
+WEIGHTS_RULE = (
+    "Lowe prices the weight-reference basket q_w: sum p_t q_w / sum p_b q_w. Young averages price "
+    "relatives with the weight-reference shares s_w. Price-updated shares "
+    "s_w (p_b / p_w) / sum_j s_w,j (p_b,j / p_w,j) turn Young into Lowe (CPI Manual 2004, ch. 15)."
+)
+
+
+@dataclass(frozen=True)
+class Outcome:
+    result: IndexSeries
+    axis: ItemAxis
+    model: Preferences | None
+    frequency: str | None
+
+
+def locator(form: Form = "json") -> Locator:
+    return Locator(PLACES, form)
+
+
+def limits(settings: Settings) -> Limits:
+    return Limits(settings.max_periods, settings.max_items, settings.max_panel_cells)
+
+
+def run(options: SeriesOptions, panel: PanelArrays, settings: Settings, loc: Locator,
+        operation: str = "indexSeries") -> Outcome:
+    """Check the panel, calibrate the model to the base period and compute the series."""
+    arguments = core_arguments(options, panel, settings, loc)
+    with computing(operation, settings), loc.translating():
+        labelled = series_by_label(**arguments)
+    return _outcome(labelled, panel.axis)
+
+
+def core_arguments(options: SeriesOptions, panel: PanelArrays, settings: Settings,
+                   loc: Locator) -> dict[str, Any]:
+    """The arguments of :func:`dualcost.core.series.series_by_label` for this request; the model
+    is calibrated when the core calls back with the base period's budget."""
+    axis = panel.axis
+
+    def model(budget: BaseBudget, items: tuple[int, ...]) -> Preferences:
+        assert options.model is not None
+        return calibrated(options.model, budget, axis.subset(items), loc.with_items(
+            [axis.ids[i] for i in items]), max_tree_depth=settings.max_tree_depth,
+            deadline_seconds=settings.compute_deadline_seconds)
+
+    return dict(
+        prices=panel.prices, quantities=panel.quantities, expenditures=panel.expenditures,
+        periods=panel.periods, items=axis.ids, frequency=options.frequency,
+        **_periods(options), weight_reference=_weights(options, axis, loc),
+        model=None if options.model is None else model,
+        reference_value=float(options.reference_value), formulas=options.formulas,
+        lloyd_moulton_sigma=options.lloyd_moulton_sigma, new_goods_sigma=options.new_goods_sigma,
+        geks_window=options.geks.window, geks_splice=options.geks.splice)
+
+
+def _outcome(labelled: LabelledSeries, axis: ItemAxis) -> Outcome:
+    frequency = labelled.result.span.frequency or labelled.panel.frequency
+    return Outcome(labelled.result, axis, labelled.model, frequency)
+
+
+def _periods(options: SeriesOptions) -> dict[str, Any]:
+    """The periods the options name, by label (the core finds them in the panel)."""
+    def label(value: Any) -> str | None:
+        return None if value is None else str(value)
+
+    wr = options.weight_reference
+    return {
+        "base_period": label(options.base_period),
+        "reference_period": label(options.reference_period),
+        "span": None if options.span is None else (label(options.span.start),
+                                                   label(options.span.end)),
+        "loop": None if options.loop is None else [str(x) for x in options.loop],
+        "weight_reference_period": None if wr is None else label(wr.period),
+    }
+
+
+def _weights(options: SeriesOptions, axis: ItemAxis, loc: Locator) -> dict[str, Any] | None:
+    """A weight-reference basket given as vectors, in item order."""
+    wr = options.weight_reference
+    if wr is None or wr.period is not None:
+        return None
+    given = {"prices": ("pb", wr.prices), "quantities": ("qb", wr.quantities),
+             "shares": ("wb", wr.shares)}
+    return {key: axis.vector(loc, name, value) for key, (name, value) in given.items()
+            if value is not None}
+
+
+# -- the answer -------------------------------------------------------------------------------
+
+
+def document(outcome: Outcome) -> dict[str, Any]:
+    """The answer as plain JSON-ready values, in the shape of ``SeriesResponse``."""
+    r = outcome.result
+    labels = list(r.periods)
+    drift = r.chain_drift
+    return {
+        "periods": labels, "items": outcome.axis.ids, "frequency": outcome.frequency,
+        "base_period": labels[r.base], "reference_period": labels[r.reference],
+        "reference_value": r.reference_value,
+        "formulas": [{
+            "formula": f.name, "title": f.title, "compared_with": f.target,
+            "fixed_base": f.fixed_base.tolist(), "chained": f.chained.tolist(),
+            "links": f.links.tolist(), "chain_drift_percent": drift.drift_percent[f.name].tolist(),
+            "loop_product": drift.loop_product[f.name],
+            "circularity_failure_percent": 100.0 * (drift.loop_product[f.name] - 1.0),
+            "rule_for_items_that_come_and_go": f.rule} for f in r.formulas.values()],
+        "konus": _konus(outcome),
+        "multilateral": [{
+            "method": g.name, "bilateral": g.link, "full_span": g.full_span.tolist(),
+            "rolling": None if g.rolling is None else g.rolling.tolist(), "window": g.window,
+            "splice": g.splice, "loop_product": drift.loop_product[g.name],
+            "rule_for_items_that_come_and_go": g.rule} for g in r.multilateral],
+        "bias": [{"series": b.series, "kind": b.kind, "compared_with": b.compared_with,
+                  "points": b.points.tolist(), "percent": b.percent.tolist()} for b in r.bias],
+        "annual_bias": _annual(r, labels),
+        "chain_drift": {"loop": [labels[t] for t in drift.loop],
+                        "periods_with_base_prices": [labels[t] for t in
+                                                     drift.periods_with_base_prices],
+                        "definition": DRIFT_DEFINITION},
+        "item_treatment": [{
+            "period": labels[e.period], "item": outcome.axis.ids[e.item], "priced": e.priced,
+            "fixed_base": e.fixed_base, "chained": e.chained, "model": e.model,
+            "carried_from": None if e.carried_from is None else labels[e.carried_from],
+            "detail": describe_treatment(e, labels, r.base)} for e in r.item_treatment],
+        "weights": _weights_out(r, labels, outcome.axis.ids),
+        "lloyd_moulton_sigma": r.lloyd_moulton_sigma, "new_goods_sigma": r.new_goods_sigma,
+        "notices": [{"code": n.code, "message": n.message} for n in r.notices],
+        "caution": CAUTION,
+    }
+
+
+def _konus(outcome: Outcome) -> dict[str, Any] | None:
+    k = outcome.result.konus
+    if k is None:
+        return None
+    return {
+        "family": k.family, "homothetic": k.homothetic,
+        "fixed_base": {t: v.tolist() for t, v in k.fixed_base.items()},
+        "chained": {t: v.tolist() for t, v in k.chained.items()},
+        "incomes": k.incomes.tolist(), "utilities": k.utilities.tolist(),
+        "items": [outcome.axis.ids[i] for i in k.items],
+        "model_parameters": dict(outcome.model.parameters()) if outcome.model is not None else {},
+        "rule_for_items_that_come_and_go": MODEL_RULE,
+    }
+
+
+def _annual(r: IndexSeries, labels: list[str]) -> dict[str, Any] | None:
+    if r.span.years is None:
+        return None
+    return {
+        "span": {"start": labels[r.span.start], "end": labels[r.span.end], "years": r.span.years,
+                 "frequency": r.span.frequency, "periods_per_year": r.span.periods_per_year},
+        "definition": ANNUAL_DEFINITION,
+        "by_series": [{"series": a.series, "kind": a.kind, "compared_with": a.compared_with,
+                       "annual_rate_percent": a.rate_percent,
+                       "konus_annual_rate_percent": a.konus_rate_percent,
+                       "bias_pp_per_year": a.bias_pp} for a in r.annual_bias],
+    }
+
+
+def _weights_out(r: IndexSeries, labels: list[str], ids: list[str]) -> dict[str, Any] | None:
+    w = r.weights
+    if w is None:
+        return None
+    return {"period": None if w.period is None else labels[w.period],
+            "items": [{"item": ids[i], "share": _num(w.shares[i]),
+                       "price_updated_share": None if w.price_updated is None
+                       else _num(w.price_updated[i])} for i in range(len(ids))],
+            "rule": WEIGHTS_RULE}
+
+
+def _num(x: float) -> float | None:
+    return None if not np.isfinite(x) else float(x)
+
+
+def table(outcome: Outcome) -> tuple[list[str], list[list[Any]]]:
+    """The per-period table: one row per period, one column per series."""
+    r = outcome.result
+    columns = _konus_columns(r) + _formula_columns(r) + _treatment_columns(r, outcome.axis.ids)
+    header = ["period"] + [name for name, _ in columns]
+    rows = [[r.periods[t]] + [values[t] for _, values in columns]
+            for t in range(len(r.periods))]
+    return header, rows
+
+
+Column = tuple[str, Sequence[Any]]
+
+
+def _konus_columns(r: IndexSeries) -> list[Column]:
+    if r.konus is None:
+        return []
+    return [(f"konus_{kind}_{target}", values.tolist())
+            for kind, block in (("fixed_base", r.konus.fixed_base), ("chained", r.konus.chained))
+            for target, values in block.items()]
+
+
+def _formula_columns(r: IndexSeries) -> list[Column]:
+    bias = {(b.series, b.kind): b for b in r.bias}
+    columns: list[Column] = []
+    for f in r.formulas.values():
+        columns += [(f"{f.name}_fixed_base", f.fixed_base.tolist()),
+                    (f"{f.name}_chained", f.chained.tolist()),
+                    (f"{f.name}_link", [None, *f.links.tolist()]),
+                    (f"{f.name}_chain_drift_percent", r.chain_drift.drift_percent[f.name].tolist())]
+        columns += [(f"{f.name}_bias_{kind}_percent", bias[(f.name, kind)].percent.tolist())
+                    for kind in ("fixed_base", "chained") if (f.name, kind) in bias]
+    for g in r.multilateral:
+        columns.append((g.name, g.full_span.tolist()))
+        if (g.name, "full_span") in bias:
+            columns.append((f"{g.name}_bias_percent", bias[(g.name, "full_span")].percent.tolist()))
+        if g.rolling is not None:
+            columns.append((f"{g.name}_rolling", g.rolling.tolist()))
+            if (g.name, "rolling") in bias:
+                columns.append((f"{g.name}_rolling_bias_percent",
+                                bias[(g.name, "rolling")].percent.tolist()))
+    return columns
+
+
+def _treatment_columns(r: IndexSeries, ids: list[str]) -> list[Column]:
+    n_t = len(r.periods)
+    not_priced: list[list[str]] = [[] for _ in range(n_t)]
+    out_fixed: list[list[str]] = [[] for _ in range(n_t)]
+    out_link: list[list[str]] = [[] for _ in range(n_t)]
+    for e in r.item_treatment:
+        if not e.priced:
+            not_priced[e.period].append(ids[e.item])
+        if e.fixed_base == "left_out":
+            out_fixed[e.period].append(ids[e.item])
+        if e.chained == "left_out":
+            out_link[e.period].append(ids[e.item])
+    return [("items_not_priced", [";".join(x) for x in not_priced]),
+            ("items_left_out_fixed_base", [";".join(x) for x in out_fixed]),
+            ("items_left_out_of_link", [";".join(x) for x in out_link])]
+
+
+# -- the request from a query string ------------------------------------------------------------
+
+
+def options_body(query: Mapping[str, Any]) -> dict[str, Any]:
+    """The options of the CSV upload, from its query parameters, as a JSON body would give them."""
+    body: dict[str, Any] = {key: query[key] for key in (
+        "base_period", "reference_period", "reference_value", "frequency",
+        "lloyd_moulton_sigma", "new_goods_sigma") if query.get(key) is not None}
+    for key in ("formulas", "loop"):
+        if query.get(key):
+            body[key] = names(query[key])
+    if query.get("weight_reference_period") is not None:
+        body["weight_reference"] = {"period": query["weight_reference_period"]}
+    body["geks"] = {key: query[f"geks_{key}"] for key in ("window", "splice")
+                    if query.get(f"geks_{key}") is not None}
+    if query.get("span_start") is not None or query.get("span_end") is not None:
+        body["span"] = {"start": query.get("span_start"), "end": query.get("span_end")}
+    if query.get("model"):
+        body["model"] = json_parameter("model", query["model"], '{"family": "ces", "sigma": 0.7}')
+    return body

@@ -1,0 +1,118 @@
+"""POST /v1/fits (JSON), POST /v1/fits/csv (CSV upload) and POST /v1/fitted-comparisons: estimate
+preferences from budget data, and the true index from the estimate, with its uncertainty."""
+
+from __future__ import annotations
+
+from typing import Annotated, Any, Literal
+
+from fastapi import APIRouter, Depends, Query, Request
+from fastapi.responses import Response
+
+from ..deps import settings_of
+from ..inputs import observations
+from ..inputs.csv import CSV_REQUEST_BODY, csv_body
+from ..operations import fits, fitted
+from ..render import CSV_ANSWER, csv_response, json_response, negotiate
+from ..routing import JsonRoute
+from ..schemas.estimation import FitAndCompareRequest, FitAndCompareResponse, FitRequest, FitResponse
+
+router = APIRouter(route_class=JsonRoute, prefix="/v1", tags=["estimation"])
+
+RESPONSES: dict[int | str, dict[str, Any]] = {
+    200: {"description": "The fit; as CSV (the parameter table) when asked (Accept: text/csv, "
+                         "or format=csv).", **CSV_ANSWER},
+    422: {"description": "The request breaks a rule, or the fit does not converge (RFC 9457 "
+                         "problem details)."},
+}
+FormatParam = Annotated[Literal["json", "csv"] | None, Query(
+    description="Answer format; default by the Accept header (JSON unless text/csv is "
+                "preferred). CSV gives the parameter table.")]
+
+DESCRIPTION = """\
+Fits a preference family to budget data of T observations (households, periods, or households in
+periods) by least squares on its share equations. The last item's equation is dropped (adding-up)
+and the others are fitted jointly, iterating the weighting by their residual covariance to
+convergence (Zellner 1962; Barten 1969), so the estimate does not depend on which item is last.
+
+- `ces`, `nested_ces`: nonlinear least squares on the share equations themselves (not the
+  log-ratio form; zero shares are allowed); a nested CES gets one sigma per group, all jointly.
+- `stone_geary`: the linear expenditure system (Stone 1954), nonlinear least squares.
+- `aids`: `nonlinear` (iterated nonlinear least squares, scipy's least_squares) or
+  `linear_approximate` (Stone's price index); `quaids` (or `quadratic: true`) adds the squared
+  log-income term (Banks, Blundell and Lewbel 1997). Restrictions `none`, `homogeneity` or
+  `symmetry` (default) are imposed on request, and homogeneity and symmetry are always tested
+  (Wald statistics from the unrestricted fit, chi-squared p-values).
+
+Standard errors: HC1 heteroskedasticity-robust, clustered by observation across the equations
+(one equation: plain HC1); t intervals with T - K/m degrees of freedom. Elasticities (expenditure,
+Marshallian, Hicksian) at the sample's geometric means or a given point, with delta-method
+standard errors. Regularity: where over the sample the fitted model has shares outside [0, 1] or a
+Slutsky matrix that is not negative semidefinite. `model` in the answer is the fitted model as POST
+/v1/comparisons takes it.
+"""
+
+
+def _answer(outcome: fits.Outcome, request: Request, fmt: str | None) -> Response:
+    if negotiate(request, fmt) == "csv":
+        return csv_response(fits.PARAMETER_COLUMNS, fits.parameter_rows(outcome),
+                            filename="fit-parameters.csv")
+    return json_response(fits.document(outcome))
+
+
+@router.post("/fits", operation_id="fitModel", response_model=FitResponse, responses=RESPONSES,
+             summary="Fit a preference model to budget data: estimates, robust errors, tests, "
+                     "elasticities, regularity", description=DESCRIPTION)
+def fit_model(body: FitRequest, request: Request, format: FormatParam = None) -> Response:
+    loc = fits.locator()
+    data = observations.from_json(body, loc)
+    outcome = fits.run(data, body.model, fits.options_of(body, data.axis, loc),
+                       settings_of(request), loc)
+    return _answer(outcome, request, format)
+
+
+@router.post("/fits/csv", operation_id="fitModelCsv", response_model=FitResponse,
+             responses=RESPONSES, openapi_extra=CSV_REQUEST_BODY,
+             summary="Fit a preference model to budget data uploaded as CSV in long form",
+             description=observations.CSV_DESCRIPTION + " Options are query parameters (`tree` "
+             "as JSON text); elasticities are at the sample's geometric means.\n\n" + DESCRIPTION)
+def fit_model_csv(
+    text: Annotated[str, Depends(csv_body)],
+    request: Request,
+    family: Annotated[Literal["ces", "nested_ces", "stone_geary", "aids", "quaids"], Query()],
+    estimator: Annotated[Literal["nonlinear", "linear_approximate"] | None, Query()] = None,
+    restrictions: Annotated[Literal["none", "homogeneity", "symmetry"] | None, Query()] = None,
+    quadratic: Annotated[bool, Query()] = False,
+    price_terms: Annotated[bool | None, Query()] = None,
+    alpha0: Annotated[float | None, Query(allow_inf_nan=False)] = None,
+    tree: Annotated[str | None, Query(description="nested_ces: the grouping as JSON.")] = None,
+    confidence_level: Annotated[float, Query(gt=0.0, lt=1.0)] = 0.95,
+    normalise_shares: Annotated[bool, Query()] = False,
+    max_iterations: Annotated[int, Query(ge=1, le=1000)] = 200,
+    residuals: Annotated[bool, Query()] = True,
+    format: FormatParam = None,
+) -> Response:
+    settings = settings_of(request)
+    loc = fits.locator("csv")
+    spec = fits.model_from_query(dict(family=family, estimator=estimator,
+                                      restrictions=restrictions, quadratic=quadratic,
+                                      price_terms=price_terms, alpha0=alpha0, tree=tree), loc)
+    data = observations.from_csv(text, loc, max_rows=settings.max_fit_cells)
+    options = fits.Options(confidence_level, max_iterations, normalise_shares, residuals)
+    outcome = fits.run(data, spec, options, settings, loc, "fitModelCsv")
+    return _answer(outcome, request, format)
+
+
+@router.post("/fitted-comparisons", operation_id="fitAndCompare",
+             response_model=FitAndCompareResponse,
+             summary="Fit a preference model to budget data, then compare two price situations "
+                     "under it, with intervals from the parameter uncertainty",
+             description=(
+                 "One call: the fit of POST /v1/fits, the comparison of POST /v1/comparisons "
+                 "under the fitted model, and percentile intervals for the Konüs indices, each "
+                 "formula's substitution bias and the compensating and equivalent variation, by "
+                 "a parametric bootstrap (Krinsky and Robb 1986): parameters drawn from the "
+                 "estimate's normal distribution with its robust covariance, seeded "
+                 "(`uncertainty.seed`). Without a base bundle the base bundle is the fitted "
+                 "model's demand at the base prices and expenditure.\n\n" + DESCRIPTION))
+def fit_and_compare(body: FitAndCompareRequest, request: Request) -> Response:
+    return json_response(fitted.document(fitted.run(body, settings_of(request))))

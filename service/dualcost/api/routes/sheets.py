@@ -1,0 +1,186 @@
+"""GET forms for spreadsheets' web-fetch functions: one number as text, or a CSV table.
+
+``/v1/sheet/value`` answers ``text/plain`` holding one number (``measure=konus_base`` by
+default); ``/v1/sheet/comparison`` answers ``text/csv`` (a header row, then one row per
+measure); ``/v1/sheet/series`` the series table of a short panel. A spreadsheet shows any
+non-2xx answer as a bare error marker and loses its body: with ``on_error=text`` a bad request is
+answered with status 200 and a text body starting with ``ERROR:`` that names the parameter and
+the rule; without it, the usual 422 problem. Every form answers HEAD and OPTIONS as well, since a
+spreadsheet may send those first.
+"""
+
+from __future__ import annotations
+
+from collections.abc import Callable
+from typing import Annotated, Any, Literal
+
+from fastapi import APIRouter, Depends, Query, Request
+from fastapi.responses import PlainTextResponse, Response
+
+from ..deps import settings_of
+from ..inputs.locator import Place
+from ..inputs.panels import panel_from_json
+from ..inputs.query import validated
+from ..operations import compare, series, sheets
+from ..problems import RequestProblem, error_text, problem_response
+from ..render import CSV_CONTENT_TYPE, csv_text, fixed_point
+from ..routing import JsonRoute, inline_when_small
+from ..schemas.comparison import ComparisonRequest
+from ..schemas.series import SeriesRequest
+
+router = APIRouter(route_class=JsonRoute, prefix="/v1/sheet", tags=["spreadsheets"])
+
+Measure = Literal[compare.MEASURES]  # type: ignore[valid-type]
+OnError = Annotated[Literal["problem", "text"], Query(
+    description="text: answer a bad request with 200 and an 'ERROR: ...' line, for "
+                "spreadsheets that hide error bodies.")]
+Digits = Annotated[int | None, Query(ge=0, le=15, description="Write numbers with this many "
+                                     "decimals, fixed-point (default: shortest exact form).")]
+Vector = Annotated[str | None, Query(description="Numbers in the order of items, separated by "
+                                     "commas (or all by semicolons), '.' as decimal point.")]
+
+
+def comparison_query(
+    items: Annotated[str | None, Query(description="Item ids, comma-separated: the order of every "
+                                                   "vector.")] = None,
+    p0: Vector = None, p1: Vector = None, q0: Vector = None, w0: Vector = None,
+    m0: Annotated[float | None, Query(description="Base total expenditure (with w0).")] = None,
+    q1: Vector = None,
+    m1: Annotated[float | None, Query(description="Current income (default m0).")] = None,
+    family: Annotated[str, Query(description="Preference family (no nested trees or matrices "
+                                             "here; use POST /v1/comparisons).")] = "ces",
+    sigma: float | None = None, frisch: float | None = None,
+    subsistence: Vector = None, elasticities: Vector = None,
+    reference_income: float | None = None,
+    normalise_shares: bool = False,
+    digits: Digits = None,
+    on_error: OnError = "problem",
+) -> dict[str, Any]:
+    return dict(locals())
+
+
+ComparisonQuery = Annotated[dict[str, Any], Depends(comparison_query)]
+
+
+def _answer(on_error: str, media: str, make: Callable[[], str]) -> Response:
+    """``make()``'s text, or the problem it raised as the form's ``on_error`` asks."""
+    try:
+        text = make()
+    except RequestProblem as exc:
+        if on_error == "text":
+            return PlainTextResponse(error_text(exc.errors))
+        return problem_response(exc.slug, "; ".join(f"{e.pointer}: {e.detail}"
+                                                    for e in exc.errors), errors=exc.errors)
+    return Response(text, media_type=media)
+
+
+def _comparison(params: dict[str, Any], request: Request) -> compare.Outcome:
+    loc = compare.locator("query")
+    body = validated(ComparisonRequest, sheets.comparison_body(params), loc)
+    return compare.run(body, settings_of(request), loc)
+
+
+@router.head("/comparison", include_in_schema=False)
+@router.get("/comparison", operation_id="sheetComparison", response_class=Response,
+            responses={200: {"content": {"text/csv": {}, "text/plain": {}},
+                             "description": "CSV: measure,value,compared_with,bias_points,"
+                             "bias_percent; with on_error=text a bad request is answered as "
+                             "text/plain 'ERROR: ...'"}})
+@inline_when_small
+def sheet_comparison(params: ComparisonQuery, request: Request) -> Response:
+    """The comparison as CSV: one row per measure (Konüs indices, formulas with their bias,
+    compensation), for a spreadsheet's CSV-import function."""
+    header = ["measure", "value", "compared_with", "bias_points", "bias_percent"]
+    digits = params["digits"]
+
+    def table() -> str:
+        rows = compare.measures(_comparison(params, request))
+        return csv_text(header, [[name, fixed_point(v, digits) if digits is not None else v,
+                                  target, _cell(points, digits), _cell(percent, digits)]
+                                 for name, v, target, points, percent in rows])
+
+    return _answer(params["on_error"], CSV_CONTENT_TYPE, table)
+
+
+def _cell(value: float | None, digits: int | None) -> Any:
+    if value is None:
+        return ""
+    return value if digits is None else fixed_point(value, digits)
+
+
+@router.head("/value", include_in_schema=False)
+@router.get("/value", operation_id="sheetValue", response_class=PlainTextResponse,
+            responses={200: {"content": {"text/plain": {}}, "description": "One number."}})
+@inline_when_small
+def sheet_value(params: ComparisonQuery, request: Request,
+                measure: Measure = "konus_base") -> Response:
+    """One number as text/plain, for a spreadsheet's web-fetch function."""
+
+    def one() -> str:
+        value = compare.measure(_comparison(params, request), measure)
+        if value is None:
+            raise RequestProblem.at("#/query/measure", f"{measure!r} was not computed for this "
+                                    "request (for konus_reference give reference_income)")
+        return fixed_point(value, params["digits"])
+
+    return _answer(params["on_error"], "text/plain; charset=utf-8", one)
+
+
+@router.head("/series", include_in_schema=False)
+@router.get("/series", operation_id="sheetSeries", response_class=Response,
+            responses={200: {"content": {"text/csv": {}, "text/plain": {}},
+                             "description": "CSV: one row per period, one column per series (as "
+                             "POST /v1/index-series answers in CSV); with on_error=text a bad "
+                             "request is answered as text/plain 'ERROR: ...'"}})
+@inline_when_small
+def sheet_series(
+    request: Request,
+    items: Annotated[str, Query(description="Item ids, comma-separated: the order of every row.")],
+    periods: Annotated[str, Query(description="Period labels, comma-separated, in time order.")],
+    prices: Annotated[list[str], Query(description="Repeated once per period, in period order: "
+                                                   "that period's prices in item order.")],
+    quantities: Annotated[list[str] | None, Query(description="Repeated once per period, like "
+                                                               "prices (optional).")] = None,
+    base_period: str | None = None,
+    reference_period: str | None = None,
+    reference_value: Annotated[int | None, Query(description="1 or 100 (default 100).")] = None,
+    formulas: Annotated[str | None, Query(description="Comma-separated formula names.")] = None,
+    family: Annotated[str | None, Query(description="A model for the Konüs series (ces, "
+                                                    "cobb_douglas, translog, quadratic).")] = None,
+    sigma: float | None = None,
+    digits: Digits = None,
+    on_error: OnError = "problem",
+) -> Response:
+    """The index series of a short panel for a spreadsheet's CSV import: each period's prices
+    (and quantities) as one repeated query parameter, e.g.
+    `?items=rye_loaf,ferry_pass&periods=2025-01,2025-02&prices=2.40,38&prices=2.45,38`."""
+    query = dict(locals())
+
+    def table() -> str:
+        loc = series.locator("query")
+        for name, place in SERIES_MODEL_PLACES.items():
+            loc.add(name, place)
+        body = validated(SeriesRequest, sheets.series_body(query, prices, quantities), loc)
+        settings = settings_of(request)
+        panel = panel_from_json(body.periods, body.items, {"prices": body.prices,
+                                "quantities": body.quantities, "expenditures": None},
+                                series.limits(settings), loc)
+        header, rows = series.table(series.run(body, panel, settings, loc, "sheetSeries"))
+        if digits is not None:
+            rows = [[fixed_point(v, digits) if isinstance(v, float) else v for v in row]
+                    for row in rows]
+        return csv_text(header, rows)
+
+    return _answer(on_error, CSV_CONTENT_TYPE, table)
+
+
+#: The series form carries the model as ``family`` and ``sigma``.
+SERIES_MODEL_PLACES = {"model": Place("/model", "family"), "family": Place("/model/family", "family"),
+                       "sigma": Place("/model/sigma", "sigma")}
+
+
+@router.options("/comparison", include_in_schema=False)
+@router.options("/value", include_in_schema=False)
+@router.options("/series", include_in_schema=False)
+def sheet_options() -> Response:
+    return Response(status_code=204, headers={"allow": "GET, HEAD, OPTIONS"})

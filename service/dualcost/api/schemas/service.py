@@ -1,0 +1,19 @@
+"""Answers of the service's own operations: the probes and the demo."""
+
+from __future__ import annotations
+
+from typing import Any
+
+from .common import StrictModel
+from .comparison import ComparisonResponse
+
+
+class HealthOut(StrictModel):
+    status: str
+    version: str
+
+
+class DemoOut(StrictModel):
+    scenario: str
+    request: dict[str, Any]
+    result: ComparisonResponse
