@@ -1,4 +1,5 @@
-"""The ``dualcost`` command: ``dualcost serve`` starts the service."""
+"""The ``dualcost`` command: ``dualcost serve`` starts the service, ``dualcost check`` audits
+published index numbers (see :mod:`dualcost.pipeline_check`)."""
 
 from __future__ import annotations
 
@@ -27,8 +28,12 @@ def _parser() -> argparse.ArgumentParser:
     check = sub.add_parser(
         "check", help="recompute published index numbers from their panel; exit 1 if one differs",
         description="Recompute a pipeline's published index numbers from the prices and "
-                    "quantities they were computed from, print a table, optionally write JUnit "
-                    "XML, and exit 0 (all agree), 1 (a value differs) or 2 (inputs unreadable).")
+                    "quantities they were computed from, print a table (with a hint when the "
+                    "options seem not to match the published values', such as a base period "
+                    "later than the panel's first), optionally write JUnit XML, and exit 0 (all "
+                    "agree), 1 (a value differs) or 2 (the check cannot run: an input cannot be "
+                    "read, or the service named by --url cannot be reached or refuses the "
+                    "request).")
     check.add_argument("published", help="published values: CSV (formula,period,value[,series]) "
                        "or JSON")
     check.add_argument("panel", help="the panel: long-form CSV (period,item,price[,quantity]"

@@ -3,44 +3,267 @@
 ::
 
     from dualcost.client import Client
-    with Client("http://127.0.0.1:8000") as dc:
+    with Client("http://127.0.0.1:8000", api_key="...") as dc:
         answer = dc.compare({"items": [...], "base": {...}, "current": {...}, "model": {...}})
         print(answer["konus"]["base"])
 
-Problem responses (RFC 9457) raise :class:`ProblemError`, which carries the problem's fields.
+Every method returns the answer decoded by its content type:
+
+- JSON (``application/json``): plain Python values (dict, list, str, int, float, bool, None);
+- CSV (``text/csv``, asked for with ``format="csv"``, and the household jobs' results): a
+  :class:`Table`, the header and the rows, with numbers parsed (see :func:`parse_cell`) and the
+  text as sent in ``Table.text``;
+- other text (``text/plain``, ``text/html``...): ``str``; any other type: ``bytes``;
+- 204 No Content, or any answer with an empty body: ``None``.
+
+``api_key`` is sent in the ``X-API-Key`` header of every request. Options of an operation are
+keyword-only arguments; options sent as query parameters take Python values (a list is sent
+comma-separated, a mapping as JSON text, ``True``/``False`` as ``true``/``false``).
+
+The client's exceptions hang under the package's one base class::
+
+    DualcostError                  (dualcost.core.errors)
+     └── ClientError               the client did not get a usable answer
+          ├── ServiceUnreachable   no answer at all: connection refused, unknown host, timed out,
+          │                        connection cut (also a ConnectionError)
+          ├── ProblemError         the service refused the request: an RFC 9457 problem, or any
+          │                        other 4xx or 5xx answer (e.g. from a proxy)
+          └── UnreadableAnswer     a 2xx answer whose body does not parse as its type says
 """
 
 from __future__ import annotations
 
-from collections.abc import Mapping
-from typing import Any
+import csv
+import io
+import json
+import os
+import re
+from collections.abc import Mapping, Sequence
+from dataclasses import dataclass, field
+from pathlib import Path
+from typing import IO, Any, Literal, TypeAlias, overload
 
 import httpx
 
+from .core.errors import DualcostError
 
-class ProblemError(Exception):
-    """The service answered with a problem (RFC 9457); ``problem`` holds its JSON fields."""
+__all__ = ["Cell", "Client", "ClientError", "CsvBody", "ProblemError", "ServiceUnreachable",
+           "Table", "UnreadableAnswer", "parse_cell"]
 
-    def __init__(self, status: int, problem: Mapping[str, Any]) -> None:
+#: One CSV cell of an answer: a number, a truth value, None for an empty cell, else text.
+Cell: TypeAlias = str | int | float | bool | None
+#: A CSV upload: its text, its bytes, a path to the file, or a binary file open for reading.
+CsvBody: TypeAlias = str | bytes | os.PathLike[str] | IO[bytes]
+Format = Literal["json", "csv"]
+
+
+# -- exceptions -------------------------------------------------------------------------------
+
+
+class ClientError(DualcostError):
+    """The client did not get a usable answer from the service."""
+
+
+class ServiceUnreachable(ClientError, ConnectionError):
+    """No answer from the service: ``url`` is where it was looked for, ``reason`` why it failed."""
+
+    def __init__(self, url: str, reason: str) -> None:
+        self.url = url
+        self.reason = reason
+        super().__init__(f"cannot reach the dualcost service at {url}: {reason}")
+
+
+class ProblemError(ClientError):
+    """The service refused the request; ``problem`` holds the answer's fields.
+
+    For an RFC 9457 problem those are ``type``, ``title``, ``status``, ``detail`` and, for bad
+    input, ``errors``: a list of ``{"pointer", "detail"}``. Any other error answer (a proxy's
+    page, say) becomes a problem whose ``title`` is the HTTP reason and ``detail`` the body.
+    ``request_id`` is the answer's ``X-Request-ID``, for the service's logs.
+    """
+
+    def __init__(self, status: int, problem: Mapping[str, Any], *,
+                 request_id: str | None = None) -> None:
         self.status = status
         self.problem = dict(problem)
-        self.errors: list[dict[str, str]] = list(self.problem.get("errors", []))
-        super().__init__(f"{status} {self.problem.get('title', '')}: {self.problem.get('detail', '')}")
+        self.errors: list[dict[str, str]] = list(self.problem.get("errors") or [])
+        self.request_id = request_id
+        detail = self.detail
+        if len(detail) > 300:  # the message only; ``detail`` keeps the whole text
+            detail = detail[:300] + "..."
+        super().__init__(f"{status} {self.title}: {detail}".rstrip(": "))
+
+    @property
+    def type(self) -> str:
+        return str(self.problem.get("type", "about:blank"))
+
+    @property
+    def title(self) -> str:
+        return str(self.problem.get("title", ""))
+
+    @property
+    def detail(self) -> str:
+        return str(self.problem.get("detail", ""))
+
+
+class UnreadableAnswer(ClientError):
+    """A successful answer whose body does not parse as its content type says."""
+
+
+# -- CSV answers ------------------------------------------------------------------------------
+
+# A number as the service writes one (Python's shortest round-trip form). Leading zeros are not
+# numbers here, so that an id such as "007" stays text.
+_NUMBER = re.compile(r"-?(?:0|[1-9][0-9]*)(\.[0-9]+)?([eE][+-]?[0-9]+)?")
+
+
+def parse_cell(text: str) -> Cell:
+    """A CSV cell as a value: ``""`` is None, ``true``/``false`` a bool, a number written as the
+    service writes numbers an int (no fraction or exponent) or a float; anything else is text."""
+    if text == "":
+        return None
+    if text in ("true", "false"):
+        return text == "true"
+    match = _NUMBER.fullmatch(text)
+    if match is None:
+        return text
+    return float(text) if match.group(1) or match.group(2) else int(text)
+
+
+@dataclass(frozen=True)
+class Table:
+    """A CSV answer: ``header`` (column names), ``rows`` (cells parsed by :func:`parse_cell`)
+    and ``text``, the CSV as the service sent it."""
+
+    header: tuple[str, ...]
+    rows: tuple[tuple[Cell, ...], ...]
+    text: str = field(repr=False, default="")
+
+    @classmethod
+    def from_csv(cls, text: str) -> Table:
+        """The table of a CSV text; a row whose length is not the header's raises ValueError."""
+        records = list(csv.reader(io.StringIO(text)))
+        if not records:
+            return cls((), (), text)
+        header = tuple(records[0])
+        for n, record in enumerate(records[1:], start=2):
+            if len(record) != len(header):
+                raise ValueError(f"record {n} has {len(record)} cells, the header {len(header)}")
+        return cls(header, tuple(tuple(parse_cell(c) for c in r) for r in records[1:]), text)
+
+    def __len__(self) -> int:
+        return len(self.rows)
+
+    def column(self, name: str) -> list[Cell]:
+        """The cells of one column, top to bottom; KeyError names the columns there are."""
+        if name not in self.header:
+            raise KeyError(f"no column {name!r}; the columns are {', '.join(self.header)}")
+        k = self.header.index(name)
+        return [row[k] for row in self.rows]
+
+    def records(self) -> list[dict[str, Cell]]:
+        """One dict per row, keyed by the header."""
+        return [dict(zip(self.header, row, strict=True)) for row in self.rows]
+
+
+# -- decoding answers -------------------------------------------------------------------------
+
+
+def _media_type(response: httpx.Response) -> str:
+    header: str = response.headers.get("content-type", "")
+    return header.split(";", 1)[0].strip().lower()
+
+
+def _problem_of(response: httpx.Response) -> ProblemError:
+    try:
+        problem = response.json()
+    except ValueError:
+        problem = None
+    if not isinstance(problem, dict):
+        problem = {"title": response.reason_phrase, "status": response.status_code,
+                   "detail": response.text.strip()}
+    return ProblemError(response.status_code, problem,
+                        request_id=response.headers.get("x-request-id"))
+
+
+def _decode(response: httpx.Response) -> Any:
+    """The answer's body by its content type (see the module's docstring); an error status
+    raises :class:`ProblemError`."""
+    if response.status_code >= 400:
+        raise _problem_of(response)
+    if response.status_code == 204 or not response.content:
+        return None
+    media = _media_type(response)
+    try:
+        if media == "application/json" or media.endswith("+json"):
+            return response.json()
+        if media == "text/csv":
+            return Table.from_csv(response.text)
+    except (ValueError, csv.Error) as exc:
+        raise UnreadableAnswer(f"the {media} answer of {response.request.method} "
+                               f"{response.request.url} cannot be read: {exc}") from None
+    return response.text if media.startswith("text/") else response.content
+
+
+def _query(options: Mapping[str, Any]) -> dict[str, str]:
+    """Query parameters from Python values; None leaves an option out."""
+    out = {}
+    for name, value in options.items():
+        if value is None:
+            continue
+        if isinstance(value, bool):
+            out[name] = "true" if value else "false"
+        elif isinstance(value, Mapping):
+            out[name] = json.dumps(value)
+        elif isinstance(value, (list, tuple)):
+            out[name] = ",".join(str(v) for v in value)
+        else:
+            out[name] = str(value)
+    return out
+
+
+def _csv_bytes(body: CsvBody) -> bytes:
+    if isinstance(body, str):
+        return body.encode("utf-8")
+    if isinstance(body, bytes):
+        return body
+    if isinstance(body, os.PathLike):
+        return Path(body).read_bytes()
+    return body.read()
+
+
+def _reason(exc: httpx.TransportError, timeout: float) -> str:
+    if isinstance(exc, httpx.TimeoutException):
+        return f"no answer within {timeout:g} s ({type(exc).__name__})"
+    text = str(exc).strip()
+    return text or type(exc).__name__
+
+
+# -- the client -------------------------------------------------------------------------------
 
 
 class Client:
-    """Calls the dualcost HTTP API; every method returns the answer's JSON as plain Python."""
+    """Calls the dualcost HTTP API; answers are decoded as the module's docstring says."""
 
     def __init__(
         self,
         base_url: str = "http://127.0.0.1:8000",
         *,
+        api_key: str | None = None,
         timeout: float = 60.0,
         headers: Mapping[str, str] | None = None,
         transport: httpx.BaseTransport | None = None,
     ) -> None:
-        self._http = httpx.Client(base_url=base_url.rstrip("/"), timeout=timeout,
-                                  headers=dict(headers or {}), transport=transport)
+        url = httpx.URL(base_url.rstrip("/"))
+        if url.scheme not in ("http", "https") or not url.host:
+            raise ValueError(f"base_url must be an http:// or https:// address, got {base_url!r}")
+        sent = dict(headers or {})
+        if api_key is not None:
+            sent["X-API-Key"] = api_key
+        self.base_url = str(url)
+        self.timeout = timeout
+        self._http = httpx.Client(base_url=url, timeout=timeout, headers=sent,
+                                  transport=transport)
 
     def __enter__(self) -> Client:
         return self
@@ -51,29 +274,142 @@ class Client:
     def close(self) -> None:
         self._http.close()
 
-    def _call(self, method: str, path: str, **kwargs: Any) -> Any:
-        response = self._http.request(method, path, **kwargs)
-        if response.status_code >= 400:
-            try:
-                problem = response.json()
-            except ValueError:
-                problem = {"title": response.reason_phrase, "detail": response.text}
-            raise ProblemError(response.status_code, problem)
-        return response.json()
+    def request(self, method: str, path: str, **kwargs: Any) -> Any:
+        """Any operation, by method and path (``kwargs`` as httpx takes them), decoded by
+        :func:`_decode`; an unreachable service raises :class:`ServiceUnreachable`."""
+        try:
+            response = self._http.request(method, path, **kwargs)
+        except httpx.TransportError as exc:
+            raise ServiceUnreachable(self.base_url, _reason(exc, self.timeout)) from exc
+        return _decode(response)
+
+    def _post_json(self, path: str, body: Mapping[str, Any], fmt: Format = "json") -> Any:
+        params = {"format": "csv"} if fmt == "csv" else None
+        return self.request("POST", path, json=body, params=params)
+
+    def _post_csv(self, path: str, body: CsvBody, options: Mapping[str, Any]) -> Any:
+        return self.request("POST", path, content=_csv_bytes(body), params=_query(options),
+                            headers={"content-type": "text/csv"})
+
+    # -- the service and the catalogue ---------------------------------------------------------
 
     def health(self) -> dict[str, Any]:
-        return self._call("GET", "/health")
+        """GET /health: status and version."""
+        return self.request("GET", "/health")
+
+    def families(self) -> list[dict[str, Any]]:
+        """GET /v1/preference-families: families, parameters with defaults, sources."""
+        return self.request("GET", "/v1/preference-families")
+
+    def formulas(self) -> list[dict[str, Any]]:
+        """GET /v1/index-formulas: the index formulas, what each needs, sources."""
+        return self.request("GET", "/v1/index-formulas")
+
+    # -- comparisons and series ----------------------------------------------------------------
 
     def compare(self, request: Mapping[str, Any]) -> dict[str, Any]:
         """POST /v1/comparisons: the Konüs index beside the formula indices."""
-        return self._call("POST", "/v1/comparisons", json=request)
+        return self._post_json("/v1/comparisons", request)
 
-    def families(self) -> list[dict[str, Any]]:
-        return self._call("GET", "/v1/preference-families")
+    @overload
+    def index_series(self, request: Mapping[str, Any], *,
+                     format: Literal["json"] = ...) -> dict[str, Any]: ...
+    @overload
+    def index_series(self, request: Mapping[str, Any], *, format: Literal["csv"]) -> Table: ...
 
-    def formulas(self) -> list[dict[str, Any]]:
-        return self._call("GET", "/v1/index-formulas")
+    def index_series(self, request: Mapping[str, Any], *,
+                     format: Format = "json") -> dict[str, Any] | Table:
+        """POST /v1/index-series: the series over a panel; ``format="csv"``: one row a period."""
+        return self._post_json("/v1/index-series", request, format)
 
-    def request(self, method: str, path: str, **kwargs: Any) -> Any:
-        """Any other operation, by method and path; problems raise :class:`ProblemError`."""
-        return self._call(method, path, **kwargs)
+    @overload
+    def index_series_csv(self, panel: CsvBody, *, format: Literal["json"] = ...,
+                         base_period: str | None = ..., reference_period: str | None = ...,
+                         reference_value: int | None = ..., formulas: Sequence[str] | None = ...,
+                         model: Mapping[str, Any] | None = ..., **options: Any) -> dict[str, Any]:
+        ...
+    @overload
+    def index_series_csv(self, panel: CsvBody, *, format: Literal["csv"],
+                         base_period: str | None = ..., reference_period: str | None = ...,
+                         reference_value: int | None = ..., formulas: Sequence[str] | None = ...,
+                         model: Mapping[str, Any] | None = ..., **options: Any) -> Table: ...
+
+    def index_series_csv(self, panel: CsvBody, *, format: Format = "json",
+                         base_period: str | None = None, reference_period: str | None = None,
+                         reference_value: int | None = None, formulas: Sequence[str] | None = None,
+                         model: Mapping[str, Any] | None = None,
+                         **options: Any) -> dict[str, Any] | Table:
+        """POST /v1/index-series/csv: the panel in long form (``period,item,price,quantity``);
+        the other options of the operation (``frequency``, ``geks_window``...) as keywords."""
+        query = dict(options, base_period=base_period, reference_period=reference_period,
+                     reference_value=reference_value, formulas=formulas, model=model,
+                     format=format)
+        return self._post_csv("/v1/index-series/csv", panel, query)
+
+    def audit(self, request: Mapping[str, Any]) -> dict[str, Any]:
+        """POST /v1/audits: published values against a recomputation from their panel."""
+        return self._post_json("/v1/audits", request)
+
+    # -- households ----------------------------------------------------------------------------
+
+    @overload
+    def household_indices(self, request: Mapping[str, Any], *,
+                          format: Literal["json"] = ...) -> dict[str, Any]: ...
+    @overload
+    def household_indices(self, request: Mapping[str, Any], *,
+                          format: Literal["csv"]) -> Table: ...
+
+    def household_indices(self, request: Mapping[str, Any], *,
+                          format: Format = "json") -> dict[str, Any] | Table:
+        """POST /v1/household-indices: indices for many households, with summaries."""
+        return self._post_json("/v1/household-indices", request,
+                               format)
+
+    def create_household_job(self, spec: Mapping[str, Any]) -> dict[str, Any]:
+        """POST /v1/household-jobs: a job for a large CSV of households (the job, with its id)."""
+        return self._post_json("/v1/household-jobs", spec)
+
+    def upload_households(self, job_id: str, households: CsvBody) -> Table:
+        """POST /v1/household-jobs/{id}/households: one CSV row a household; the results, one
+        row per household and period (the job's summaries: :meth:`household_job`)."""
+        return self._post_csv(f"/v1/household-jobs/{job_id}/households",
+                              households, {})
+
+    def household_job(self, job_id: str) -> dict[str, Any]:
+        """GET /v1/household-jobs/{id}: progress; at the end the summaries and skipped rows."""
+        return self.request("GET", f"/v1/household-jobs/{job_id}")
+
+    def delete_household_job(self, job_id: str) -> None:
+        """DELETE /v1/household-jobs/{id}: forget a job that is not running."""
+        self.request("DELETE", f"/v1/household-jobs/{job_id}")
+
+    # -- fits ----------------------------------------------------------------------------------
+
+    @overload
+    def fit(self, request: Mapping[str, Any], *,
+            format: Literal["json"] = ...) -> dict[str, Any]: ...
+    @overload
+    def fit(self, request: Mapping[str, Any], *, format: Literal["csv"]) -> Table: ...
+
+    def fit(self, request: Mapping[str, Any], *,
+            format: Format = "json") -> dict[str, Any] | Table:
+        """POST /v1/fits: a preference model fitted to budget data; CSV: the parameter table."""
+        return self._post_json("/v1/fits", request, format)
+
+    @overload
+    def fit_csv(self, data: CsvBody, *, family: str, format: Literal["json"] = ...,
+                **options: Any) -> dict[str, Any]: ...
+    @overload
+    def fit_csv(self, data: CsvBody, *, family: str, format: Literal["csv"],
+                **options: Any) -> Table: ...
+
+    def fit_csv(self, data: CsvBody, *, family: str, format: Format = "json",
+                **options: Any) -> dict[str, Any] | Table:
+        """POST /v1/fits/csv: budget data in long form; the operation's options as keywords
+        (``restrictions="symmetry"``, ``tree={...}``...)."""
+        query = dict(options, family=family, format=format)
+        return self._post_csv("/v1/fits/csv", data, query)
+
+    def fit_and_compare(self, request: Mapping[str, Any]) -> dict[str, Any]:
+        """POST /v1/fitted-comparisons: fit, compare under the fit, with intervals."""
+        return self._post_json("/v1/fitted-comparisons", request)

@@ -13,7 +13,16 @@ Inputs are files:
 
 The check runs in process, or against a running service with ``--url`` (``POST /v1/audits``).
 It prints a table, writes JUnit XML with ``--junit`` (one test case per published value) and
-exits 0 when every value agrees, 1 when one does not, 2 when the inputs cannot be read.
+exits
+
+- 0 when every published value agrees with its recomputation,
+- 1 when one differs,
+- 2 when the check cannot run: an input cannot be read or breaks a rule, the service named by
+  ``--url`` cannot be reached, refuses the request (an API key missing, say) or answers
+  something that is not an audit. The reason is one line on standard error.
+
+When values differ, :func:`diagnose` looks for the commonest cause, options that do not match
+the ones the values were published with, and prints a hint (see its docstring).
 """
 
 from __future__ import annotations
@@ -22,6 +31,8 @@ import json
 import math
 import sys
 import xml.etree.ElementTree as ET
+from collections.abc import Callable, Mapping, Sequence
+from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Any, TextIO
 
@@ -29,34 +40,49 @@ from .api.inputs.csv import read_table
 from .core.audit import decimals_of
 from .core.errors import DualcostError
 
+Answer = dict[str, Any]
+Runner = Callable[[dict[str, Any]], Answer]
 
-class CheckInputError(DualcostError):
-    """An input file cannot be read; the message says which and why."""
+EXIT_AGREE, EXIT_DIFFERS, EXIT_CANNOT_CHECK = 0, 1, 2
+
+
+class CheckError(DualcostError):
+    """The check cannot run: an input cannot be read, or the service cannot be reached or
+    refuses the request. The message says which and why, in one line."""
+
+
+# -- reading the inputs -----------------------------------------------------------------------
+
+
+def _table(path: Path, text: str, **columns: Any) -> list[dict[str, Any]]:
+    from .api.problems import RequestProblem
+
+    try:
+        return read_table(text, **columns)
+    except RequestProblem as exc:
+        raise CheckError(f"{path}: " + "; ".join(f"{e.pointer} {e.detail}"
+                                                 for e in exc.errors)) from None
 
 
 def published_from_file(path: Path) -> list[dict[str, Any]]:
     text = path.read_text(encoding="utf-8")
     if path.suffix.lower() == ".json":
         data = json.loads(text)
-        values = data["published"] if isinstance(data, dict) else data
+        values = data.get("published") if isinstance(data, dict) else data
         if not isinstance(values, list):
-            raise CheckInputError(f"{path}: expected a list of published values")
+            raise CheckError(f"{path}: expected a list of published values, or an object with "
+                             "that list under \"published\"")
         return values
-    from .api.problems import RequestProblem
-
-    try:
-        rows = read_table(text, required=["formula", "period", "value"], numeric=[])
-    except RequestProblem as exc:
-        raise CheckInputError(f"{path}: " + "; ".join(f"{e.pointer} {e.detail}" for e in exc.errors)) from exc
+    rows = _table(path, text, required=["formula", "period", "value"], numeric=[])
     out = []
     for k, row in enumerate(rows, start=2):
         raw = row["value"]
         try:
             value = float(raw)
         except ValueError:
-            raise CheckInputError(f"{path}#cell={k}: {raw!r} is not a number") from None
+            raise CheckError(f"{path}#cell={k}: {raw!r} is not a number") from None
         if not math.isfinite(value):
-            raise CheckInputError(f"{path}#row={k}: the value must be a finite number")
+            raise CheckError(f"{path}#row={k}: the value must be a finite number")
         out.append({"formula": row["formula"], "series": row.get("series") or "fixed_base",
                     "period": row["period"], "value": value, "decimals": decimals_of(raw)})
     return out
@@ -68,15 +94,10 @@ def panel_from_file(path: Path) -> dict[str, Any]:
     if path.suffix.lower() == ".json":
         given = json.loads(text)
         if not isinstance(given, dict):
-            raise CheckInputError(f"{path}: expected a JSON object with periods, items and prices")
+            raise CheckError(f"{path}: expected a JSON object with periods, items and prices")
         return given
-    from .api.problems import RequestProblem
-
-    try:
-        rows = read_table(text, required=["period", "item", "price"], numeric=["price"],
-                          optional_numeric=["quantity", "expenditure"])
-    except RequestProblem as exc:
-        raise CheckInputError(f"{path}: " + "; ".join(f"{e.pointer} {e.detail}" for e in exc.errors)) from exc
+    rows = _table(path, text, required=["period", "item", "price"], numeric=["price"],
+                  optional_numeric=["quantity", "expenditure"])
     periods: list[str] = []
     items: list[str] = []
     cells: dict[str, dict[str, dict[str, float | None]]] = {"prices": {}, "quantities": {},
@@ -109,7 +130,24 @@ def audit_request(published: list[dict[str, Any]], panel: dict[str, Any], *,
     return body
 
 
-def run_locally(body: dict[str, Any]) -> dict[str, Any]:
+def request_from_args(args: Any) -> dict[str, Any]:
+    """The body of POST /v1/audits from the command's arguments; unreadable files, bad JSON
+    and text that is not UTF-8 raise :class:`CheckError`."""
+    try:
+        published = published_from_file(Path(args.published))
+        panel = panel_from_file(Path(args.panel))
+        options = {"base_period": args.base_period, "reference_period": args.reference_period,
+                   "reference_value": args.reference_value,
+                   "model": json.loads(args.model) if args.model else None}
+    except (OSError, ValueError) as exc:  # ValueError: JSON and UTF-8 decoding errors too
+        raise CheckError(str(exc)) from None
+    return audit_request(published, panel, options=options, tolerance=args.tolerance)
+
+
+# -- running the audit ------------------------------------------------------------------------
+
+
+def run_locally(body: dict[str, Any]) -> Answer:
     from .api.operations.audit import audit_json
     from .api.problems import RequestProblem
     from .config import Settings
@@ -117,22 +155,153 @@ def run_locally(body: dict[str, Any]) -> dict[str, Any]:
     try:
         return audit_json(body, Settings())
     except RequestProblem as exc:
-        raise CheckInputError("; ".join(f"{e.pointer}: {e.detail}" for e in exc.errors)) from None
+        raise CheckError("; ".join(f"{e.pointer}: {e.detail}" for e in exc.errors)) from None
+    except DualcostError as exc:
+        raise CheckError(str(exc)) from None
 
 
-def run_remotely(body: dict[str, Any], url: str, api_key: str | None) -> dict[str, Any]:
-    from .client import Client, ProblemError
+def run_remotely(body: dict[str, Any], url: str, api_key: str | None) -> Answer:
+    """POST /v1/audits on the service at ``url``; every way of not getting an audit back
+    raises :class:`CheckError`."""
+    from .client import Client, ClientError, ProblemError
 
-    headers = {"x-api-key": api_key} if api_key else None
     try:
-        with Client(url, headers=headers) as client:
-            return client.request("POST", "/v1/audits", json=body)
+        with Client(url, api_key=api_key) as client:
+            answer = client.audit(body)
     except ProblemError as exc:
         details = "; ".join(f"{e.get('pointer')}: {e.get('detail')}" for e in exc.errors)
-        raise CheckInputError(f"{exc} {details}".strip()) from None
+        raise CheckError(f"the service at {url} refused the request: {exc} {details}".strip()
+                         ) from None
+    except (ClientError, ValueError) as exc:  # ValueError: --url is not an http(s) address
+        raise CheckError(str(exc)) from None
+    if not (isinstance(answer, dict) and isinstance(answer.get("rows"), list)
+            and "passed" in answer):
+        raise CheckError(f"the service at {url} did not answer with an audit (is it a dualcost "
+                         "service?)")
+    return answer
 
 
-def print_table(answer: dict[str, Any], out: TextIO) -> None:
+def runner(args: Any) -> Runner:
+    if args.url:
+        return lambda body: run_remotely(body, args.url, args.api_key)
+    return run_locally
+
+
+# -- the hint ---------------------------------------------------------------------------------
+
+#: The values an index series takes in its reference period (common practice: 100, or 1).
+REFERENCE_VALUES = (1.0, 100.0)
+FLAGS = {"base_period": "--base-period", "reference_period": "--reference-period",
+         "reference_value": "--reference-value"}
+
+
+@dataclass(frozen=True)
+class Hint:
+    """Why values probably differ (``text``) and the options that would mend it, if known."""
+
+    text: str
+    options: dict[str, Any] = field(default_factory=dict)
+
+    def flags(self) -> str:
+        return " ".join(f"{FLAGS[k]} {v}" for k, v in self.options.items())
+
+
+def _near(value: float | None, target: float, tolerance: float) -> bool:
+    return value is not None and abs(value - target) <= tolerance
+
+
+def _reference_value_of(rows: Sequence[Mapping[str, Any]], key: str) -> float | None:
+    """The reference value (1 or 100) that every row's ``key`` equals, within the row's
+    tolerance (published) or to rounding error (recomputed), if there is one."""
+    for target in REFERENCE_VALUES:
+        if all(_near(r[key], target, r["tolerance"] if key == "published" else 1e-9 * target)
+               for r in rows):
+            return target
+    return None
+
+
+def _reference_period_used(body: Mapping[str, Any]) -> tuple[str, str]:
+    """The period the recomputed series equal their reference value in, and how it was chosen."""
+    if body.get("reference_period") is not None:
+        return str(body["reference_period"]), "the reference period given"
+    if body.get("base_period") is not None:
+        return str(body["base_period"]), "the base period given"
+    periods = body.get("periods") or [""]
+    return str(periods[0]), "the panel's first period, as base period"
+
+
+def _by_period(rows: Sequence[Mapping[str, Any]]) -> dict[str, list[Mapping[str, Any]]]:
+    grouped: dict[str, list[Mapping[str, Any]]] = {}
+    for r in rows:
+        grouped.setdefault(str(r["period"]), []).append(r)
+    return grouped
+
+
+def diagnose(answer: Mapping[str, Any], body: Mapping[str, Any]) -> Hint | None:
+    """Why the published values probably differ, when the answer shows it.
+
+    An index series equals its reference value (100, or 1) in its reference period, which is
+    its base period unless another is named (common practice). So when every published value
+    of a period P equals 100 (or 1) within its tolerance while a recomputed one there does not:
+
+    - if P is not the period the recomputation was referenced to (the base period given, or the
+      panel's first period), the values were probably computed on base period P: the panel
+      starts before their base period, or the base period given is another one. The hint names
+      P and ``--base-period P`` (with ``--reference-period P`` when one was given);
+    - if P is that period and the recomputed values there equal the other reference value, the
+      hint names ``--reference-value``.
+
+    Failing that, when every value differs and no base period was given, the hint says that the
+    recomputation took the panel's first period as its base and names ``--base-period``.
+    """
+    rows = answer["rows"]
+    used, why = _reference_period_used(body)
+    for period, here in _by_period(rows).items():
+        published = _reference_value_of(here, "published")
+        failing = [r for r in here if not r["passed"]]
+        if published is None or not failing:
+            continue
+        if period != used:
+            options: dict[str, Any] = {"base_period": period}
+            if body.get("reference_period") is not None:
+                options["reference_period"] = period
+            return Hint(f"the published values equal {published:g} in {period}, where the "
+                        f"recomputed ones do not: they were probably computed on base period "
+                        f"{period}, while the recomputation took {used} ({why}).", options)
+        recomputed = _reference_value_of(failing, "recomputed")
+        if recomputed is not None and recomputed != published:
+            return Hint(f"the published values equal {published:g} in {period}, where the "
+                        f"recomputed ones equal {recomputed:g}.",
+                        {"reference_value": int(published)})
+    if rows and not any(r["passed"] for r in rows) and _no_base_given(body):
+        return Hint(f"every published value differs. The recomputation took the panel's first "
+                    f"period, {used}, as its base period: if the published values were computed "
+                    f"on another base period, name it with --base-period.")
+    return None
+
+
+def _no_base_given(body: Mapping[str, Any]) -> bool:
+    return body.get("base_period") is None and body.get("reference_period") is None
+
+
+def hint_text(hint: Hint, body: dict[str, Any], run: Runner) -> str:
+    """The hint, with the options it suggests tried once: whether all values then agree."""
+    if not hint.options:
+        return hint.text
+    try:
+        again = run(body | hint.options)
+    except CheckError as exc:
+        outcome = f"trying it failed: {exc}"
+    else:
+        outcome = (f"with it, all {again['checked']} values agree" if again["passed"] else
+                   f"with it, {again['failed']} of {again['checked']} values still differ")
+    return f"{hint.text} Run again with {hint.flags()} ({outcome})."
+
+
+# -- reporting --------------------------------------------------------------------------------
+
+
+def print_table(answer: Answer, out: TextIO) -> None:
     header = f"{'formula':<20} {'series':<10} {'period':<10} {'published':>14} {'recomputed':>14} " \
              f"{'difference':>12} {'tolerance':>10}  result"
     print(header, file=out)
@@ -147,8 +316,9 @@ def print_table(answer: dict[str, Any], out: TextIO) -> None:
     print(f"\n{answer['checked']} published values checked: {verdict}.", file=out)
 
 
-def write_junit(answer: dict[str, Any], path: Path) -> None:
-    """JUnit XML: one test suite, one test case per published value."""
+def write_junit(answer: Answer, path: Path, hint: str | None = None) -> None:
+    """JUnit XML: one test suite, one test case per published value; the hint, if any, as the
+    suite's standard output."""
     suite = ET.Element("testsuite", name="dualcost check", tests=str(answer["checked"]),
                        failures=str(answer["failed"]), errors="0", skipped="0")
     for r in answer["rows"]:
@@ -159,24 +329,34 @@ def write_junit(answer: dict[str, Any], path: Path) -> None:
                 f"published {r['published']} but recomputed {r['recomputed']} "
                 f"(difference {r['difference']}, tolerance {r['tolerance']})"))
             failure.text = json.dumps(r)
+    if hint:
+        ET.SubElement(suite, "system-out").text = f"hint: {hint}"
     root = ET.Element("testsuites", tests=str(answer["checked"]), failures=str(answer["failed"]))
     root.append(suite)
     ET.ElementTree(root).write(path, encoding="utf-8", xml_declaration=True)
 
 
-def check(args: Any, out: TextIO = sys.stdout, err: TextIO = sys.stderr) -> int:
+def check(args: Any, out: TextIO | None = None, err: TextIO | None = None) -> int:
+    """The command: read, audit, explain, report; the exit code as the module says. Output goes
+    to ``out`` and ``err``, by default the standard streams of the moment of the call."""
+    out = sys.stdout if out is None else out
+    err = sys.stderr if err is None else err
+    run = runner(args)
     try:
-        published = published_from_file(Path(args.published))
-        panel = panel_from_file(Path(args.panel))
-        options = {"base_period": args.base_period, "reference_period": args.reference_period,
-                   "reference_value": args.reference_value,
-                   "model": json.loads(args.model) if args.model else None}
-        body = audit_request(published, panel, options=options, tolerance=args.tolerance)
-        answer = run_remotely(body, args.url, args.api_key) if args.url else run_locally(body)
-    except (OSError, ValueError, CheckInputError) as exc:
+        body = request_from_args(args)
+        answer = run(body)
+        found = None if answer["passed"] else diagnose(answer, body)
+        hint = None if found is None else hint_text(found, body, run)
+    except CheckError as exc:
         print(f"dualcost check: {exc}", file=err)
-        return 2
+        return EXIT_CANNOT_CHECK
     print_table(answer, out)
+    if hint:
+        print(f"hint: {hint}", file=out)
     if args.junit:
-        write_junit(answer, Path(args.junit))
-    return 0 if answer["passed"] else 1
+        try:
+            write_junit(answer, Path(args.junit), hint)
+        except OSError as exc:
+            print(f"dualcost check: cannot write the JUnit report: {exc}", file=err)
+            return EXIT_CANNOT_CHECK
+    return EXIT_AGREE if answer["passed"] else EXIT_DIFFERS

@@ -1,12 +1,240 @@
-"""The Python client against the service on a loopback socket."""
+"""The Python client: against the service on a loopback socket, and against httpx's
+MockTransport for the answers a healthy service does not give (proxies' pages, broken bodies,
+connections that fail)."""
 
 from __future__ import annotations
 
+import inspect
+import json
+from collections.abc import Callable
+from pathlib import Path
+from typing import Any
+
+import httpx
 import pytest
 from numpy.testing import assert_allclose
 
-from dualcost.client import Client, ProblemError
+import dualcost.client
+from dualcost import DualcostError
+from dualcost.client import (
+    Client,
+    ClientError,
+    ProblemError,
+    ServiceUnreachable,
+    Table,
+    UnreadableAnswer,
+    parse_cell,
+)
 from tests.api.test_comparisons import small_request
+from tests.cli.conftest import API_KEY
+from tests.conftest import ROOT, free_port, load_example
+
+PANEL = ROOT / "docs" / "examples" / "wrenmouth_panel.csv"
+
+
+def mock(handler: Callable[[httpx.Request], httpx.Response], **kwargs: Any) -> Client:
+    return Client("http://dualcost.test", transport=httpx.MockTransport(handler), **kwargs)
+
+
+def answering(response: httpx.Response) -> tuple[Client, list[httpx.Request]]:
+    """A client whose every request gets ``response``, and the list of requests it sent."""
+    sent: list[httpx.Request] = []
+
+    def handler(request: httpx.Request) -> httpx.Response:
+        sent.append(request)
+        return response
+
+    return mock(handler), sent
+
+
+# -- the public surface -----------------------------------------------------------------------
+
+
+def test_the_public_names_are_frozen() -> None:
+    assert sorted(dualcost.client.__all__) == [
+        "Cell", "Client", "ClientError", "CsvBody", "ProblemError", "ServiceUnreachable", "Table",
+        "UnreadableAnswer", "parse_cell"]
+
+
+def test_options_are_keyword_only() -> None:
+    """After the request (and a job id or a CSV body), every parameter is keyword-only."""
+    leading = {"self", "request", "spec", "job_id", "households", "panel", "data", "method",
+               "path", "base_url"}
+    for name, method in inspect.getmembers(Client, inspect.isfunction):
+        if name.startswith("_") and name != "__init__":
+            continue
+        for p in inspect.signature(method).parameters.values():
+            if p.name not in leading:
+                assert p.kind in (p.KEYWORD_ONLY, p.VAR_KEYWORD), (name, p.name)
+
+
+def test_every_client_exception_is_a_dualcost_error() -> None:
+    for cls in (ServiceUnreachable, ProblemError, UnreadableAnswer):
+        assert issubclass(cls, ClientError) and issubclass(cls, DualcostError)
+    assert issubclass(ServiceUnreachable, ConnectionError)
+
+
+# -- answers by content type (MockTransport) --------------------------------------------------
+
+
+@pytest.mark.parametrize("response", [
+    httpx.Response(204),
+    httpx.Response(200, content=b""),
+    httpx.Response(202, headers={"content-type": "application/json"}, content=b""),
+])
+def test_no_content_and_empty_answers_are_none(response) -> None:
+    client, _ = answering(response)
+    assert client.request("DELETE", "/v1/household-jobs/x") is None
+
+
+def test_a_csv_answer_is_a_table_with_numbers_parsed() -> None:
+    text = ("period,laspeyres_fixed_base,household,skipped,note\r\n"
+            "2025-01,100.0,007,false,\r\n2025-02,101.25,12,true,\"a, b\"\r\n"
+            "2025-03,1e-05,-3,false,n/a\r\n")
+    client, _ = answering(httpx.Response(200, text=text,
+                                         headers={"content-type": "text/csv; charset=utf-8"}))
+    table = client.index_series({"periods": []}, format="csv")
+    assert isinstance(table, Table) and table.text == text and len(table) == 3
+    assert table.header == ("period", "laspeyres_fixed_base", "household", "skipped", "note")
+    assert table.rows[0] == ("2025-01", 100.0, "007", False, None)
+    assert table.column("laspeyres_fixed_base") == [100.0, 101.25, 1e-05]
+    assert [type(v) for v in table.column("household")] == [str, int, int]
+    assert table.records()[1]["note"] == "a, b"
+    with pytest.raises(KeyError, match="the columns are period"):
+        table.column("paasche")
+
+
+@pytest.mark.parametrize("text,value", [
+    ("", None), ("true", True), ("false", False), ("0", 0), ("-12", -12), ("0.5", 0.5),
+    ("1e+20", 1e20), ("-2.5E-3", -0.0025), ("007", "007"), ("2025-01", "2025-01"),
+    ("1,5", "1,5"), ("nan", "nan"), (" 1", " 1"),
+])
+def test_cells_are_parsed_as_the_service_writes_them(text, value) -> None:
+    parsed = parse_cell(text)
+    assert parsed == value and type(parsed) is type(value)
+
+
+def test_csv_is_asked_for_with_the_format_parameter_and_uploads_say_text_csv() -> None:
+    client, sent = answering(httpx.Response(200, json={}))
+    client.index_series({"periods": [1]}, format="csv")
+    client.index_series_csv(b"period,item,price\n", base_period="2025-01",
+                            formulas=["laspeyres", "fisher"], model={"family": "ces", "sigma": 2},
+                            geks_window=13, reference_value=None)
+    client.fit_csv("period,item,price\n", family="ces", normalise_shares=True)
+    assert sent[0].url.params["format"] == "csv"
+    query = sent[1].url.params
+    assert query["base_period"] == "2025-01" and query["formulas"] == "laspeyres,fisher"
+    assert json.loads(query["model"]) == {"family": "ces", "sigma": 2}
+    assert query["geks_window"] == "13" and "reference_value" not in query
+    assert query["format"] == "json" and sent[1].headers["content-type"] == "text/csv"
+    assert sent[1].content == b"period,item,price\n"
+    assert sent[2].url.params["normalise_shares"] == "true"
+    assert sent[2].url.params["family"] == "ces"
+
+
+def test_plain_text_is_text_and_other_types_are_bytes() -> None:
+    client, _ = answering(httpx.Response(200, text="1.1882",
+                                         headers={"content-type": "text/plain"}))
+    assert client.request("GET", "/v1/sheet/value") == "1.1882"
+    client, _ = answering(httpx.Response(200, content=b"PAR1",
+                                         headers={"content-type": "application/octet-stream"}))
+    assert client.request("GET", "/x") == b"PAR1"
+
+
+def test_a_broken_json_answer_is_unreadable() -> None:
+    client, _ = answering(httpx.Response(200, content=b'{"konus": ',
+                                         headers={"content-type": "application/json"}))
+    with pytest.raises(UnreadableAnswer, match="application/json answer of POST"):
+        client.compare({})
+
+
+def test_a_ragged_csv_answer_is_unreadable_not_cut() -> None:
+    client, _ = answering(httpx.Response(200, text="period,value\r\n2025-01,100.0,extra\r\n",
+                                         headers={"content-type": "text/csv"}))
+    with pytest.raises(UnreadableAnswer, match="record 2 has 3 cells, the header 2"):
+        client.fit({}, format="csv")
+
+
+# -- the API key ------------------------------------------------------------------------------
+
+
+def test_the_api_key_is_sent_as_x_api_key() -> None:
+    sent: list[httpx.Request] = []
+    with mock(lambda r: sent.append(r) or httpx.Response(200, json={}), api_key="k1") as dc:
+        dc.health()
+    assert sent[0].headers["x-api-key"] == "k1"
+    with mock(lambda r: sent.append(r) or httpx.Response(200, json={})) as dc:
+        dc.health()
+    assert "x-api-key" not in sent[1].headers
+
+
+def test_the_api_key_opens_a_service_that_requires_one(keyed_url) -> None:
+    with Client(keyed_url) as dc, pytest.raises(ProblemError) as info:
+        dc.formulas()
+    assert info.value.status == 401 and info.value.type.endswith("unauthorized")
+    with Client(keyed_url, api_key=API_KEY) as dc:
+        assert "fisher" in {f["formula"] for f in dc.formulas()}
+
+
+# -- problems and failures --------------------------------------------------------------------
+
+
+def test_a_problem_raises_with_its_fields() -> None:
+    problem = {"type": "/problems/invalid-input", "title": "The request breaks a rule",
+               "status": 422, "detail": "1 field breaks a rule",
+               "errors": [{"pointer": "/model/sigma", "detail": "must be zero or more"}]}
+    client, _ = answering(httpx.Response(422, json=problem, headers={
+        "content-type": "application/problem+json", "x-request-id": "r-17"}))
+    with pytest.raises(ProblemError) as info:
+        client.compare({})
+    e = info.value
+    assert (e.status, e.type, e.title, e.detail) == (422, "/problems/invalid-input",
+                                                     "The request breaks a rule",
+                                                     "1 field breaks a rule")
+    assert e.errors == problem["errors"] and e.problem == problem and e.request_id == "r-17"
+    assert str(e) == "422 The request breaks a rule: 1 field breaks a rule"
+
+
+def test_an_error_page_that_is_not_a_problem_still_raises_a_problem() -> None:
+    page = "<html><body>" + "upstream timed out " * 40 + "</body></html>"
+    client, _ = answering(httpx.Response(502, text=page, headers={"content-type": "text/html"}))
+    with pytest.raises(ProblemError) as info:
+        client.audit({})
+    e = info.value
+    assert e.status == 502 and e.title == "Bad Gateway" and e.detail == page and e.errors == []
+    assert str(e).endswith("...") and len(str(e)) < 330  # the message is short, the detail whole
+
+
+@pytest.mark.parametrize("failure,reason", [
+    (httpx.ConnectError("[Errno 111] Connection refused"), "Connection refused"),
+    (httpx.ReadTimeout("timed out"), "no answer within 60 s (ReadTimeout)"),
+    (httpx.RemoteProtocolError("Server disconnected without sending a response."),
+     "Server disconnected"),
+])
+def test_transport_failures_raise_service_unreachable(failure, reason) -> None:
+    def handler(request: httpx.Request) -> httpx.Response:
+        raise failure
+
+    with mock(handler) as dc, pytest.raises(ServiceUnreachable) as info:
+        dc.health()
+    assert info.value.url == "http://dualcost.test" and reason in str(info.value)
+    assert isinstance(info.value.__cause__, httpx.TransportError)
+
+
+def test_a_port_with_nothing_listening_is_unreachable() -> None:
+    url = f"http://127.0.0.1:{free_port()}"
+    with Client(url) as dc, pytest.raises(ServiceUnreachable,
+                                         match=f"cannot reach the dualcost service at {url}"):
+        dc.health()
+
+
+@pytest.mark.parametrize("url", ["localhost:8000", "ftp://127.0.0.1", "http://"])
+def test_an_address_that_is_not_http_is_refused_at_once(url) -> None:
+    with pytest.raises(ValueError, match="http:// or https://"):
+        Client(url)
+
+
+# -- the operations, live ---------------------------------------------------------------------
 
 
 def test_client_compares_and_lists(live_url) -> None:
@@ -26,3 +254,75 @@ def test_client_raises_the_problem_with_its_pointer(live_url) -> None:
         dc.compare(bad)
     assert info.value.status == 422
     assert info.value.errors[0]["pointer"] == "/current/prices/0"
+    assert info.value.request_id
+
+
+def test_index_series_as_json_and_as_a_table_agree(live_url) -> None:
+    body = load_example("indexSeries.wrenmouth_monthly_ces.json")
+    with Client(live_url) as dc:
+        answer = dc.index_series(body)
+        table = dc.index_series(body, format="csv")
+        uploaded = dc.index_series_csv(PANEL, base_period="2025-01", format="csv")
+        with PANEL.open("rb") as fh:
+            from_file = dc.index_series_csv(fh, base_period="2025-01")
+    laspeyres = next(f for f in answer["formulas"] if f["formula"] == "laspeyres")
+    assert table.column("period") == answer["periods"]
+    assert_allclose(table.column("laspeyres_fixed_base"), laspeyres["fixed_base"], rtol=1e-15)
+    assert uploaded.column("laspeyres_fixed_base") == table.column("laspeyres_fixed_base")
+    assert from_file["base_period"] == "2025-01" and from_file["periods"] == answer["periods"]
+
+
+def test_households_in_one_batch_and_as_a_job(live_url) -> None:
+    body = load_example("householdIndices.wrenmouth_deciles_ces.json")
+    spec = {k: v for k, v in body.items() if k != "households"}
+    items = [i["id"] for i in body["items"]]
+    lines = [",".join(["household", *items, "expenditure", "weight"])]
+    lines += [",".join([h["id"], *(str(h["shares"][i]) for i in items), str(h["expenditure"]),
+                        str(h["weight"])]) for h in body["households"]]
+    with Client(live_url) as dc:
+        batch = dc.household_indices(body)
+        rows = dc.household_indices(body, format="csv")
+        job = dc.create_household_job(spec)
+        streamed = dc.upload_households(job["id"], "\n".join(lines) + "\n")
+        done = dc.household_job(job["id"])
+        assert dc.delete_household_job(job["id"]) is None
+        with pytest.raises(ProblemError) as gone:
+            dc.household_job(job["id"])
+    assert len(rows) == len(batch["households"]) and done["status"] == "done"
+    assert len(streamed) == len(body["households"]) and gone.value.status == 404
+
+
+def test_fits_fitted_comparisons_and_audits(live_url) -> None:
+    with Client(live_url) as dc:
+        fit = dc.fit(load_example("fitModel.wrenmouth_quarterly_aids.json"))
+        parameters = dc.fit(load_example("fitModel.wrenmouth_quarterly_aids.json"), format="csv")
+        fitted = dc.fit_and_compare(load_example("fitAndCompare.wrenmouth_quarterly_aids.json"))
+        audit = dc.audit(load_example("auditPublishedSeries.wrenmouth_monthly_bulletin.json"))
+    assert fit["fit"]["converged"]
+    assert len(parameters) == len(fit["parameters"])
+    assert fitted["comparison"]["konus"]["base"] > 1
+    assert audit["passed"] and audit["checked"] == 9
+
+
+def test_a_fit_from_csv(live_url) -> None:
+    """The fit example's budget data in long form, one CSV row per quarter and item."""
+    body = load_example("fitModel.wrenmouth_quarterly_aids.json")
+    items = [i["id"] for i in body["items"]]
+    lines = ["observation,item,price,expenditure"]
+    lines += [f"{label},{i},{body['prices'][t][i]},{body['expenditures'][t][i]}"
+              for t, label in enumerate(body["observations"]) for i in items]
+    with Client(live_url) as dc:
+        fit = dc.fit_csv("\n".join(lines) + "\n", family="aids", restrictions="symmetry")
+        table = dc.fit_csv("\n".join(lines) + "\n", family="aids", format="csv")
+    assert fit["fit"]["converged"] and fit["family"] == "aids"
+    assert "estimate" in table.header
+
+
+def test_a_path_is_read_and_text_is_not_taken_for_a_path(tmp_path: Path) -> None:
+    client, sent = answering(httpx.Response(200, json={}))
+    file = tmp_path / "panel.csv"
+    file.write_text("period,item,price\n1,a,2\n", encoding="utf-8")
+    client.index_series_csv(file)
+    client.index_series_csv(str(file))
+    assert sent[0].content == b"period,item,price\n1,a,2\n"
+    assert sent[1].content == str(file).encode()
