@@ -9,6 +9,8 @@ import io
 import re
 
 import numpy as np
+from hypothesis import given, settings
+from hypothesis import strategies as st
 from numpy.testing import assert_allclose
 
 # The Wrenmouth example of the README: three items, CES with sigma 0.6.
@@ -274,3 +276,44 @@ def test_comma_errors_and_non_numbers_still_answer_text(client) -> None:
     assert r.status_code == 200 and r.text.startswith("ERROR: sigma: 'abc' is not a finite number")
     r = client.get(comma.replace("sigma=0,6", "sigma=abc"))
     assert r.status_code == 422 and r.json()["errors"][0]["pointer"] == "#/query/sigma"
+
+
+# -- no number that the other convention reads as thousands ----------------------------------
+
+
+def read_with_grouping(text: str, group: str) -> float | None:
+    """How a sheet whose locale uses ``group`` as thousands separator reads a number that
+    contains it: digits, then groups of exactly three digits after each separator, perhaps an
+    exponent; anything else is not a number. Observed in LibreOffice Calc 7.4 (de-DE reads
+    '0.498' as 498 and '1435.380' as 1435380, refuses '143.5380' and '1.1882'); the
+    LibreOffice test in tests/e2e checks the service's answers in such a sheet."""
+    match = re.fullmatch(rf"(-?\d+(?:{re.escape(group)}\d{{3}})+)([eE][-+]?\d+)?", text)
+    return None if match is None else float(match.group(1).replace(group, "") + (match.group(2) or ""))
+
+
+def test_three_decimals_are_written_with_one_more_zero(client) -> None:
+    """0.498 would read as 498 where '.' groups thousands: the answer is 0.4980, the same number
+    in its own convention and no number at all in the other one."""
+    r = client.get(VALUE + "&measure=laspeyres_bias_points&digits=3")
+    assert r.text == "0.4980"
+    assert read_with_grouping(r.text, ".") is None
+    comma = client.get(_comma_query(VALUE) + "&measure=laspeyres_bias_points&digits=3")
+    assert comma.text == "0,4980" and read_with_grouping(comma.text, ",") is None
+    table = client.get(URL + "&digits=3").text
+    assert "compensated_income,143.5380," in table
+
+
+@settings(max_examples=400, deadline=None)
+@given(value=st.floats(allow_nan=False, allow_infinity=False, min_value=-1e12, max_value=1e12)
+       | st.sampled_from([0.498, 1.125, 143.538, 1.125e-05, 1435.38, -0.125, 12.0]),
+       digits=st.none() | st.integers(0, 8))
+def test_no_number_reads_as_another_in_the_other_convention(value: float, digits: int | None) -> None:
+    from dualcost.api.render import SheetNumbers, fixed_point
+
+    expected = float(fixed_point(value, digits))
+    for decimal, own_mark, other_group in (("point", ".", "."), ("comma", ",", ",")):
+        text = SheetNumbers(decimal, digits).number(value)  # type: ignore[arg-type]
+        assert "." not in text if decimal == "comma" else "," not in text
+        assert float(text.replace(own_mark, ".")) == expected
+        misread = read_with_grouping(text, other_group)
+        assert misread is None or misread == expected, (text, misread)

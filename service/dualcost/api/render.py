@@ -9,7 +9,9 @@
 - Plain text: one value, for a spreadsheet cell.
 - Spreadsheet answers (:class:`SheetNumbers`): numbers with the decimal mark the caller asked
   for, a point or a comma; a comma-decimal CSV table separates its fields by semicolons, and the
-  answer says both in its headers (``Dualcost-Decimal``, ``Dualcost-Separator``).
+  answer says both in its headers (``Dualcost-Decimal``, ``Dualcost-Separator``). A number is
+  never written as a decimal mark followed by exactly three digits, which a sheet of the other
+  convention would read as thousands (0.498 as 498): one more 0 is written (0.4980).
 
 :func:`negotiate` decides the format from a ``format`` query parameter when given, else from the
 ``Accept`` header: CSV when the caller prefers ``text/csv`` to JSON, JSON otherwise.
@@ -20,6 +22,7 @@ from __future__ import annotations
 import csv
 import io
 import math
+import re
 from collections.abc import Iterable, Iterator, Sequence
 from dataclasses import dataclass
 from typing import Any, Literal, TypeVar
@@ -201,6 +204,13 @@ class SheetNumbers:
 
     A comma-decimal CSV table separates its fields by ';', so that no number needs quoting and
     a sheet in a comma-decimal locale splits the table where it should.
+
+    Where '.' separates thousands (most comma-decimal locales) '0.498' reads as 498, and where
+    ',' does, '0,498' reads as 498: a sheet that misjudges the convention would take a wrong
+    number without a word. So a number whose text would end in a decimal mark and exactly
+    three digits (before any exponent) is written with one more 0, '0.4980': the same number
+    in its own convention, and in the other one a text that is no number at all (an error in
+    the cell, never a wrong figure).
     """
 
     decimal: DecimalMark = "point"
@@ -211,7 +221,7 @@ class SheetNumbers:
         return ";" if self.decimal == "comma" else ","
 
     def number(self, value: float) -> str:
-        text = fixed_point(value, self.digits)
+        text = _unmistakable(fixed_point(value, self.digits))
         return text.replace(".", ",") if self.decimal == "comma" else text
 
     def cell(self, value: Any) -> str:
@@ -236,3 +246,14 @@ class SheetNumbers:
         if table:
             out[SEPARATOR_HEADER] = "semicolon" if self.separator == ";" else "comma"
         return out
+
+
+#: A number's text that another convention reads as a whole number with a thousands separator:
+#: digits, a decimal mark, exactly three digits, perhaps an exponent ('0.498', '1.125e-05').
+_LOOKS_GROUPED = re.compile(r"(-?\d+\.\d{3})([eE][-+]?\d+)?")
+
+
+def _unmistakable(text: str) -> str:
+    """``text`` with a 0 after its three decimals when it :data:`_LOOKS_GROUPED`."""
+    match = _LOOKS_GROUPED.fullmatch(text)
+    return text if match is None else match.group(1) + "0" + (match.group(2) or "")
