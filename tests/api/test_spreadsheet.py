@@ -184,7 +184,7 @@ def test_comma_csv_separates_its_fields_by_semicolons(client) -> None:
     assert by_comma[0] == by_point[0]
     for row_p, row_c in zip(by_point[1:], by_comma[1:], strict=True):
         assert len(row_c) == len(row_p) and row_c[0] == row_p[0] and row_c[2] == row_p[2]
-        for cell_p, cell_c in zip(row_p[1:], row_c[1:]):
+        for cell_p, cell_c in zip(row_p[1:], row_c[1:], strict=True):
             if cell_p in ("", "base", "current", "midpoint"):
                 assert cell_c == cell_p
             else:
@@ -201,7 +201,7 @@ def test_comma_series_is_the_same_table_with_commas_and_semicolons(client) -> No
     by_point = list(csv.reader(io.StringIO(point.text)))
     by_comma = list(csv.reader(io.StringIO(comma.text), delimiter=";"))
     assert [len(r) for r in by_comma] == [len(r) for r in by_point]
-    for row_p, row_c in zip(by_point[1:], by_comma[1:]):
+    for row_p, row_c in zip(by_point[1:], by_comma[1:], strict=True):
         assert row_c == [cell.replace(".", ",") for cell in row_p]
 
 
@@ -317,3 +317,20 @@ def test_no_number_reads_as_another_in_the_other_convention(value: float, digits
         assert float(text.replace(own_mark, ".")) == expected
         misread = read_with_grouping(text, other_group)
         assert misread is None or misread == expected, (text, misread)
+
+
+def test_the_readme_urls_give_the_same_number_in_both_conventions(client) -> None:
+    """The README's Wrenmouth URLs, one per convention, as a sheet sends them."""
+    from tests.conftest import ROOT
+
+    readme = (ROOT / "README.md").read_text(encoding="utf-8")
+    urls = re.findall(r"^http://127\.0\.0\.1:8000(/v1/sheet/value\?\S+)$", readme, re.M)
+    point = [u for u in urls if "decimal=comma" not in u]
+    comma = [u for u in urls if "decimal=comma" in u]
+    assert len(point) == len(comma) == 1
+    by_point, by_comma = client.get(point[0]), client.get(comma[0])
+    assert by_comma.headers["dualcost-decimal"] == "comma"
+    assert comma_sheet_number(by_comma.text) == spreadsheet_number(by_point.text)
+    w0 = P0 * Q0 / (P0 @ Q0)
+    konus = (w0 @ (P1 / P0) ** 0.4) ** (1 / 0.4)  # Lloyd (1975); Moulton (1996): CES Konüs index
+    assert_allclose(spreadsheet_number(by_point.text), konus, rtol=1e-12)

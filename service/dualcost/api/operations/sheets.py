@@ -3,9 +3,10 @@ panel, answered as one number (text) or as a CSV table.
 
 A spreadsheet can only send a GET with a URL and read the body back as text, so vectors travel
 as short comma-separated lists in the order given by ``items``; with ``decimal=comma`` numbers
-have decimal commas and are separated by semicolons (see :mod:`..inputs.query`). The query is turned into the JSON body of the same
-operation, validated by the same models, and run by the same operation with a locator in its
-query-string form: every error names the query parameter (``#/query/p0/2``).
+have decimal commas and are separated by semicolons (see ``inputs/query.py``). The query is
+turned into the JSON body of the same operation, validated by the same models, and run by the
+same operation with a locator in its query-string form: every error names the query parameter
+(``#/query/p0/2``).
 """
 
 from __future__ import annotations
