@@ -48,7 +48,9 @@ def curl_commands() -> list[str]:
 
 
 def service_urls() -> list[str]:
-    return [b for b in blocks("text") if b.startswith(HOST)]
+    """Every URL of the service the README's text blocks give, one per line."""
+    return [line for b in blocks("text") if b.startswith(HOST)
+            for line in b.splitlines() if line.startswith(HOST)]
 
 
 def stated(pattern: str) -> tuple[str, ...]:
@@ -204,16 +206,19 @@ def test_the_shipped_bulletin_is_the_audit_examples_with_its_base_month() -> Non
 
 def test_the_spreadsheet_urls_answer_their_figures(live_url) -> None:
     urls = service_urls()
-    assert len(urls) == 2
-    answers = {}
+    assert len(urls) == 3
+    answers: dict[str, list[str]] = {}
     for url in urls:
         r = httpx.get(url.replace(HOST, live_url), timeout=30)
         assert r.status_code == 200 and not r.text.startswith("ERROR:"), r.text
-        answers[url.split("?", 1)[0].rsplit("/", 1)[1]] = r.text
-    konus, = stated(r"it answers the tour's Konüs index, (\S+) to four decimals")
-    assert as_written(float(answers["value"]), konus) == konus
+        answers.setdefault(url.split("?", 1)[0].rsplit("/", 1)[1], []).append(r.text)
+    konus, = stated(r"both answer the tour's Konüs index, (\S+) to four decimals")
+    point, comma = answers["value"]
+    assert as_written(float(point), konus) == konus
+    assert as_written(float(comma.replace(",", ".")), konus) == konus
     last_row, = stated(r"Its last row reads `([^`]+?),\.\.\.`")
-    assert answers["series"].splitlines()[-1].startswith(last_row + ",")
+    series, = answers["series"]
+    assert series.splitlines()[-1].startswith(last_row + ",")
 
 
 # -- the Python client snippet ------------------------------------------------------------------

@@ -9,6 +9,8 @@ import io
 import re
 
 import numpy as np
+from hypothesis import given, settings
+from hypothesis import strategies as st
 from numpy.testing import assert_allclose
 
 # The Wrenmouth example of the README: three items, CES with sigma 0.6.
@@ -140,3 +142,195 @@ def test_series_form_reports_a_bad_cell_as_text_when_asked(client) -> None:
     missing = client.get(_series_url().replace("&prices=1.0,1.0,1.0,1.0,1.0,1.0", "", 1))
     assert missing.status_code == 422
     assert missing.json()["errors"][0]["pointer"] == "#/query/prices"
+
+
+# -- decimal=comma: sheets whose locale writes decimal commas ---------------------------------
+
+COMMA_NUMBER = re.compile(r"^-?\d+(,\d+)?([eE][-+]?\d+)?$")
+
+
+def comma_sheet_number(cell: str) -> float:
+    """How a comma-decimal spreadsheet reads a number: digits, one ',', no grouping."""
+    assert COMMA_NUMBER.match(cell), cell
+    return float(cell.replace(",", "."))
+
+
+def test_value_form_writes_decimal_commas_when_asked(client) -> None:
+    for measure in ("konus_base", "laspeyres", "compensating_variation"):
+        point = client.get(VALUE + f"&measure={measure}")
+        comma = client.get(_comma_query(VALUE) + f"&measure={measure}")
+        assert comma.status_code == 200
+        assert comma.text == point.text.replace(".", ",")
+        assert comma_sheet_number(comma.text) == spreadsheet_number(point.text)
+        assert comma.headers["dualcost-decimal"] == "comma"
+        assert point.headers["dualcost-decimal"] == "point"
+    w0 = P0 * Q0 / (P0 @ Q0)
+    konus = (w0 @ (P1 / P0) ** 0.4) ** (1 / 0.4)  # Lloyd (1975); Moulton (1996): CES Konüs index
+    fixed = client.get(_comma_query(VALUE) + "&digits=6").text
+    assert re.match(r"^\d+,\d{6}$", fixed), fixed
+    assert abs(comma_sheet_number(fixed) - konus) <= 5e-7
+
+
+def test_comma_csv_separates_its_fields_by_semicolons(client) -> None:
+    point = client.get(URL)
+    comma = client.get(_comma_query(URL))
+    assert comma.headers["content-type"].startswith("text/csv")
+    assert (comma.headers["dualcost-decimal"], comma.headers["dualcost-separator"]) == (
+        "comma", "semicolon")
+    assert (point.headers["dualcost-decimal"], point.headers["dualcost-separator"]) == (
+        "point", "comma")
+    by_point = list(csv.reader(io.StringIO(point.text)))
+    by_comma = list(csv.reader(io.StringIO(comma.text), delimiter=";"))
+    assert by_comma[0] == by_point[0]
+    for row_p, row_c in zip(by_point[1:], by_comma[1:], strict=True):
+        assert len(row_c) == len(row_p) and row_c[0] == row_p[0] and row_c[2] == row_p[2]
+        for cell_p, cell_c in zip(row_p[1:], row_c[1:], strict=True):
+            if cell_p in ("", "base", "current", "midpoint"):
+                assert cell_c == cell_p
+            else:
+                assert comma_sheet_number(cell_c) == spreadsheet_number(cell_p)
+    fixed = list(csv.reader(io.StringIO(client.get(_comma_query(URL) + "&digits=4").text),
+                            delimiter=";"))
+    assert all(re.match(r"^-?\d+,\d{4}$", row[1]) for row in fixed[1:]), fixed
+
+
+def test_comma_series_is_the_same_table_with_commas_and_semicolons(client) -> None:
+    point = client.get(_series_url() + "&digits=5")
+    comma = client.get(_comma_series_url() + "&digits=5")
+    assert comma.headers["dualcost-separator"] == "semicolon"
+    by_point = list(csv.reader(io.StringIO(point.text)))
+    by_comma = list(csv.reader(io.StringIO(comma.text), delimiter=";"))
+    assert [len(r) for r in by_comma] == [len(r) for r in by_point]
+    for row_p, row_c in zip(by_point[1:], by_comma[1:], strict=True):
+        assert row_c == [cell.replace(".", ",") for cell in row_p]
+
+
+def _comma_query(url: str) -> str:
+    """The README example as a comma-decimal sheet sends it: decimal commas, ';' between values."""
+    return (url.replace("p0=2.40,9,38", "p0=2,40;9;38").replace("p1=2.52,12.15,41", "p1=2,52;12,15;41")
+            .replace("q0=12,6,1", "q0=12;6;1").replace("sigma=0.6", "sigma=0,6") + "&decimal=comma")
+
+
+def test_comma_decimal_query_is_read_as_declared(client) -> None:
+    assert client.get(_comma_query(VALUE)).text == client.get(VALUE).text.replace(".", ",")
+    point = ("/v1/sheet/value?items=food,fuel,other&p0=1,1,1&p1=1.06,1.25,1.02"
+             "&w0=0.3,0.15,0.55&m0=1500.5&family=stone_geary&frisch=-2.5&reference_income=1000.25"
+             "&measure=konus_reference")
+    comma = ("/v1/sheet/value?items=food;fuel;other&p0=1;1;1&p1=1,06;1,25;1,02"
+             "&w0=0,3;0,15;0,55&m0=1500,5&family=stone_geary&frisch=-2,5&reference_income=1000,25"
+             "&measure=konus_reference&decimal=comma")
+    assert client.get(comma).text == client.get(point).text.replace(".", ",")
+    r = client.get(_comma_series_url())
+    assert r.status_code == 200, r.text
+    point = list(csv.reader(io.StringIO(client.get(_series_url()).text)))
+    assert list(csv.reader(io.StringIO(r.text), delimiter=";")) == [
+        [cell.replace(".", ",") for cell in row] for row in point]
+
+
+def _comma_series_url() -> str:
+    """The six-commodity panel as a comma-decimal sheet sends it."""
+    url = re.sub(r"(\d)\.(\d)", r"\1,\2", _series_url().replace(",", ";"))
+    assert "." not in url.split("?", 1)[1]
+    return url + "&decimal=comma"
+
+
+def test_ambiguous_numbers_are_refused_where_they_are(client) -> None:
+    """A '.' under decimal=comma, or values joined by ',' so that no one can tell them from
+    decimals, are refused with the place named, never guessed."""
+    comma = _comma_query(VALUE)
+    cases = {
+        comma.replace("p0=2,40;9;38", "p0=2,40;9;1.234"): "#/query/p0/2",
+        comma.replace("p0=2,40;9;38", "p0=2,40,9,38"): "#/query/p0/0",
+        comma.replace("q0=12;6;1", "q0=12;6;1.000"): "#/query/q0/2",
+        comma.replace("sigma=0,6", "sigma=0.6"): "#/query/sigma",
+        comma.replace("p1=2,52;12,15;41", "p1=2,52;12,15;4 100"): "#/query/p1/2",
+    }
+    for url, pointer in cases.items():
+        r = client.get(url)
+        assert r.status_code == 422, (url, r.text)
+        assert r.headers["content-type"].startswith("application/problem+json")
+        assert [e["pointer"] for e in r.json()["errors"]] == [pointer]
+        text = client.get(url + "&on_error=text")
+        assert text.status_code == 200 and text.headers["dualcost-decimal"] == "comma"
+        assert text.text.startswith("ERROR: " + pointer.removeprefix("#/query/") + ": "), text.text
+    detail = client.get(comma.replace("p0=2,40;9;38", "p0=2,40;9;1.234")).json()["errors"][0]
+    assert "'1.234' could be read more than one way" in detail["detail"]
+
+
+def test_point_query_with_decimal_commas_says_how_to_declare_them(client) -> None:
+    r = client.get(VALUE.replace("p0=2.40,9,38", "p0=2,40;9;38") + "&on_error=text")
+    assert r.status_code == 200 and r.headers["dualcost-decimal"] == "point"
+    assert r.text.startswith("ERROR: p0/0: '2,40' is not a finite number")
+    assert "add decimal=comma" in r.text
+    bad = client.get(VALUE + "&decimal=dot")
+    assert bad.status_code == 422 and bad.json()["errors"][0]["pointer"] == "#/query/decimal"
+    text = client.get(VALUE + "&decimal=dot&on_error=text")
+    assert text.status_code == 200 and text.text.startswith("ERROR: decimal:")
+
+
+def test_comma_errors_and_non_numbers_still_answer_text(client) -> None:
+    comma = _comma_query(VALUE)
+    r = client.get(comma.replace("p1=2,52;12,15;41", "p1=2,52;-12,15;41") + "&on_error=text")
+    assert r.status_code == 200 and r.text.startswith("ERROR: p1/1: must be greater than zero")
+    r = client.get(comma.replace("sigma=0,6", "sigma=abc") + "&on_error=text")
+    assert r.status_code == 200 and r.text.startswith("ERROR: sigma: 'abc' is not a finite number")
+    r = client.get(comma.replace("sigma=0,6", "sigma=abc"))
+    assert r.status_code == 422 and r.json()["errors"][0]["pointer"] == "#/query/sigma"
+
+
+# -- no number that the other convention reads as thousands ----------------------------------
+
+
+def read_with_grouping(text: str, group: str) -> float | None:
+    """How a sheet whose locale uses ``group`` as thousands separator reads a number that
+    contains it: digits, then groups of exactly three digits after each separator, perhaps an
+    exponent; anything else is not a number. Observed in LibreOffice Calc 7.4 (de-DE reads
+    '0.498' as 498 and '1435.380' as 1435380, refuses '143.5380' and '1.1882'); the
+    LibreOffice test in tests/e2e checks the service's answers in such a sheet."""
+    match = re.fullmatch(rf"(-?\d+(?:{re.escape(group)}\d{{3}})+)([eE][-+]?\d+)?", text)
+    return None if match is None else float(match.group(1).replace(group, "") + (match.group(2) or ""))
+
+
+def test_three_decimals_are_written_with_one_more_zero(client) -> None:
+    """0.498 would read as 498 where '.' groups thousands: the answer is 0.4980, the same number
+    in its own convention and no number at all in the other one."""
+    r = client.get(VALUE + "&measure=laspeyres_bias_points&digits=3")
+    assert r.text == "0.4980"
+    assert read_with_grouping(r.text, ".") is None
+    comma = client.get(_comma_query(VALUE) + "&measure=laspeyres_bias_points&digits=3")
+    assert comma.text == "0,4980" and read_with_grouping(comma.text, ",") is None
+    table = client.get(URL + "&digits=3").text
+    assert "compensated_income,143.5380," in table
+
+
+@settings(max_examples=400, deadline=None)
+@given(value=st.floats(allow_nan=False, allow_infinity=False, min_value=-1e12, max_value=1e12)
+       | st.sampled_from([0.498, 1.125, 143.538, 1.125e-05, 1435.38, -0.125, 12.0]),
+       digits=st.none() | st.integers(0, 8))
+def test_no_number_reads_as_another_in_the_other_convention(value: float, digits: int | None) -> None:
+    from dualcost.api.render import SheetNumbers, fixed_point
+
+    expected = float(fixed_point(value, digits))
+    for decimal, own_mark, other_group in (("point", ".", "."), ("comma", ",", ",")):
+        text = SheetNumbers(decimal, digits).number(value)  # type: ignore[arg-type]
+        assert "." not in text if decimal == "comma" else "," not in text
+        assert float(text.replace(own_mark, ".")) == expected
+        misread = read_with_grouping(text, other_group)
+        assert misread is None or misread == expected, (text, misread)
+
+
+def test_the_readme_urls_give_the_same_number_in_both_conventions(client) -> None:
+    """The README's Wrenmouth URLs, one per convention, as a sheet sends them."""
+    from tests.conftest import ROOT
+
+    readme = (ROOT / "README.md").read_text(encoding="utf-8")
+    urls = re.findall(r"^http://127\.0\.0\.1:8000(/v1/sheet/value\?\S+)$", readme, re.M)
+    point = [u for u in urls if "decimal=comma" not in u]
+    comma = [u for u in urls if "decimal=comma" in u]
+    assert len(point) == len(comma) == 1
+    by_point, by_comma = client.get(point[0]), client.get(comma[0])
+    assert by_comma.headers["dualcost-decimal"] == "comma"
+    assert comma_sheet_number(by_comma.text) == spreadsheet_number(by_point.text)
+    w0 = P0 * Q0 / (P0 @ Q0)
+    konus = (w0 @ (P1 / P0) ** 0.4) ** (1 / 0.4)  # Lloyd (1975); Moulton (1996): CES Konüs index
+    assert_allclose(spreadsheet_number(by_point.text), konus, rtol=1e-12)

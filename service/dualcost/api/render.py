@@ -7,6 +7,11 @@
 - CSV: ``text/csv; charset=utf-8``, a header row, numbers in Python's shortest round-trip form
   with '.' as the decimal point, empty cells for missing values, lines ending CRLF (RFC 4180).
 - Plain text: one value, for a spreadsheet cell.
+- Spreadsheet answers (:class:`SheetNumbers`): numbers with the decimal mark the caller asked
+  for, a point or a comma; a comma-decimal CSV table separates its fields by semicolons, and the
+  answer says both in its headers (``Dualcost-Decimal``, ``Dualcost-Separator``). A number is
+  never written as a decimal mark followed by exactly three digits, which a sheet of the other
+  convention would read as thousands (0.498 as 498): one more 0 is written (0.4980).
 
 :func:`negotiate` decides the format from a ``format`` query parameter when given, else from the
 ``Accept`` header: CSV when the caller prefers ``text/csv`` to JSON, JSON otherwise.
@@ -17,7 +22,9 @@ from __future__ import annotations
 import csv
 import io
 import math
+import re
 from collections.abc import Iterable, Iterator, Sequence
+from dataclasses import dataclass
 from typing import Any, Literal, TypeVar
 
 import orjson
@@ -25,6 +32,7 @@ from fastapi import Request
 from fastapi.responses import PlainTextResponse, Response, StreamingResponse
 
 from ..core.errors import NumericalFailure
+from .schemas.common import DecimalMark
 
 T = TypeVar("T")
 JSON_MEDIA_TYPE = "application/json"
@@ -179,3 +187,73 @@ def fixed_point(value: float, digits: int | None) -> str:
 
 
 CSV_ANSWER: dict[str, Any] = {"content": {CSV_MEDIA_TYPE: {"schema": {"type": "string"}}}}
+
+
+# -- spreadsheet answers ----------------------------------------------------------------------
+
+#: Headers of a spreadsheet answer: the decimal mark of its numbers and, for a CSV table, the
+#: field separator (the body stays a plain table: nothing in it says so).
+DECIMAL_HEADER = "Dualcost-Decimal"
+SEPARATOR_HEADER = "Dualcost-Separator"
+
+
+@dataclass(frozen=True)
+class SheetNumbers:
+    """How a spreadsheet answer writes its numbers: shortest round-trip form, or fixed-point
+    with ``digits`` decimals, with a '.' or a ',' as decimal mark and never any grouping.
+
+    A comma-decimal CSV table separates its fields by ';', so that no number needs quoting and
+    a sheet in a comma-decimal locale splits the table where it should.
+
+    Where '.' separates thousands (most comma-decimal locales) '0.498' reads as 498, and where
+    ',' does, '0,498' reads as 498: a sheet that misjudges the convention would take a wrong
+    number without a word. So a number whose text would end in a decimal mark and exactly
+    three digits (before any exponent) is written with one more 0, '0.4980': the same number
+    in its own convention, and in the other one a text that is no number at all (an error in
+    the cell, never a wrong figure).
+    """
+
+    decimal: DecimalMark = "point"
+    digits: int | None = None
+
+    @property
+    def separator(self) -> str:
+        return ";" if self.decimal == "comma" else ","
+
+    def number(self, value: float) -> str:
+        text = _unmistakable(fixed_point(value, self.digits))
+        return text.replace(".", ",") if self.decimal == "comma" else text
+
+    def cell(self, value: Any) -> str:
+        """A CSV cell: numbers as :meth:`number` writes them, empty for None or a non-finite
+        number, anything else as :func:`format_cell` writes it."""
+        if isinstance(value, float):
+            return self.number(value) if math.isfinite(value) else ""
+        return format_cell(value)
+
+    def table(self, header: Sequence[str], rows: Iterable[Sequence[Any]]) -> str:
+        """A CSV table (RFC 4180, CRLF line ends) with this decimal mark and its separator."""
+        buffer = io.StringIO()
+        writer = csv.writer(buffer, delimiter=self.separator, lineterminator="\r\n")
+        writer.writerow(header)
+        for row in rows:
+            writer.writerow([self.cell(v) for v in row])
+        return buffer.getvalue()
+
+    def headers(self, *, table: bool) -> dict[str, str]:
+        """What the answer's headers say about its numbers (and a table's separator)."""
+        out: dict[str, str] = {DECIMAL_HEADER: self.decimal}
+        if table:
+            out[SEPARATOR_HEADER] = "semicolon" if self.separator == ";" else "comma"
+        return out
+
+
+#: A number's text that another convention reads as a whole number with a thousands separator:
+#: digits, a decimal mark, exactly three digits, perhaps an exponent ('0.498', '1.125e-05').
+_LOOKS_GROUPED = re.compile(r"(-?\d+\.\d{3})([eE][-+]?\d+)?")
+
+
+def _unmistakable(text: str) -> str:
+    """``text`` with a 0 after its three decimals when it :data:`_LOOKS_GROUPED`."""
+    match = _LOOKS_GROUPED.fullmatch(text)
+    return text if match is None else match.group(1) + "0" + (match.group(2) or "")

@@ -1,10 +1,14 @@
 """Request bodies built from query strings: the spreadsheet forms and the options of a CSV
 upload carry what a JSON body would, as query parameters.
 
-Vectors travel as short comma-separated lists in the order given by ``items`` (or separated by
-semicolons, for sheets whose locale writes decimal commas); a value that is not a number is named
-by its position (``#/query/p0/2``). The body built from them is validated by the operation's own
-model, and its errors are named by query parameter through the operation's locator.
+Vectors travel as short lists in the order given by ``items``. By default numbers use '.' as
+decimal mark and the values are separated by commas (or all by semicolons); a caller whose
+sheet writes decimal commas declares ``decimal=comma``, and then writes numbers with ',' as
+decimal mark, values separated by ';'. No grouping either way, and a number that could be read
+two ways (a '.' under ``decimal=comma``, more than one ',') is refused, not guessed. A value that
+is not a number is named by its position (``#/query/p0/2``). The body built from them is
+validated by the operation's own model, and its errors are named by query parameter through the
+operation's locator.
 """
 
 from __future__ import annotations
@@ -16,33 +20,59 @@ from typing import Any
 from pydantic import BaseModel, ValidationError
 
 from ..problems import FieldError, RequestProblem, field_errors
+from ..schemas.common import DecimalMark
 from .csv import parse_number
 from .locator import Locator
 
 
-def vector(name: str, text: str | None) -> list[float] | None:
-    """Numbers separated by commas (or all by semicolons), '.' as decimal point."""
+def vector(name: str, text: str | None, decimal: DecimalMark = "point") -> list[float] | None:
+    """Numbers in item order: with '.' as decimal mark separated by commas (or all by
+    semicolons); with ``decimal="comma"``, ',' as decimal mark and separated by semicolons."""
     if text is None:
         return None
-    # Semicolons may separate the values instead of commas: a sheet in a comma-decimal locale
-    # joins cells with ';' and turns its decimal commas into points before sending.
-    separator = ";" if ";" in text else ","
+    # With decimal points, semicolons may separate the values instead of commas: a sheet in a
+    # comma-decimal locale may join its cells with ';' after turning its commas into points.
+    separator = ";" if decimal == "comma" or ";" in text else ","
     values = []
     for i, cell in enumerate(text.split(separator)):
-        value = parse_number(cell)
-        if value is None:
-            raise RequestProblem([FieldError(f"#/query/{name}/{i}", f"{cell.strip()!r} is not a "
-                                             "finite number (use '.' as decimal point, no "
-                                             "grouping)")])
-        values.append(value)
+        values.append(_number(f"#/query/{name}/{i}", cell, decimal))
     return values
 
 
-def names(text: str | None) -> list[str]:
-    return [s.strip() for s in (text or "").split(",") if s.strip()]
+def number(name: str, text: str | None, decimal: DecimalMark = "point") -> float | None:
+    """One number given as a query parameter of its own (``sigma``, ``m0``), written with the
+    declared decimal mark."""
+    return None if text is None else _number(f"#/query/{name}", text, decimal)
 
 
-def rows(name: str, values: list[str] | None, n_periods: int) -> list[list[float]] | None:
+def _number(pointer: str, cell: str, decimal: DecimalMark) -> float:
+    cell = cell.strip()
+    if decimal == "comma":
+        if "." in cell or cell.count(",") > 1:
+            raise RequestProblem([FieldError(pointer, f"{cell!r} could be read more than one way: "
+                                             "with decimal=comma, write one ',' as decimal mark, "
+                                             "no '.' and no grouping, and separate values by ';'")])
+        value = parse_number(cell.replace(",", "."))
+    else:
+        value = parse_number(cell)
+    if value is None:
+        hint = ("use '.' as decimal point, no grouping" if decimal == "point"
+                else "use ',' as decimal mark, no grouping")
+        if decimal == "point" and "," in cell:
+            hint += "; for decimal commas add decimal=comma and separate values by ';'"
+        raise RequestProblem([FieldError(pointer, f"{cell!r} is not a finite number ({hint})")])
+    return value
+
+
+def names(text: str | None, decimal: DecimalMark = "point") -> list[str]:
+    """Names separated by commas; with ``decimal="comma"`` by semicolons where there are any,
+    as a comma-decimal sheet joins its cells."""
+    separator = ";" if decimal == "comma" and ";" in (text or "") else ","
+    return [s.strip() for s in (text or "").split(separator) if s.strip()]
+
+
+def rows(name: str, values: list[str] | None, n_periods: int, decimal: DecimalMark = "point",
+         ) -> list[list[float]] | None:
     """One repeated query parameter per period, each a vector in item order."""
     if not values:
         return None
@@ -53,7 +83,7 @@ def rows(name: str, values: list[str] | None, n_periods: int) -> list[list[float
     out = []
     for t, text in enumerate(values):
         try:
-            row = vector(name, text)
+            row = vector(name, text, decimal)
         except RequestProblem as exc:
             raise RequestProblem([FieldError(e.pointer.replace(f"#/query/{name}/",
                                                                f"#/query/{name}/{t}/"), e.detail)

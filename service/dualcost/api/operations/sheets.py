@@ -2,10 +2,11 @@
 panel, answered as one number (text) or as a CSV table.
 
 A spreadsheet can only send a GET with a URL and read the body back as text, so vectors travel
-as short comma-separated lists in the order given by ``items`` (or separated by semicolons, for
-sheets whose locale writes decimal commas). The query is turned into the JSON body of the same
-operation, validated by the same models, and run by the same operation with a locator in its
-query-string form: every error names the query parameter (``#/query/p0/2``).
+as short comma-separated lists in the order given by ``items``; with ``decimal=comma`` numbers
+have decimal commas and are separated by semicolons (see ``inputs/query.py``). The query is
+turned into the JSON body of the same operation, validated by the same models, and run by the
+same operation with a locator in its query-string form: every error names the query parameter
+(``#/query/p0/2``).
 """
 
 from __future__ import annotations
@@ -13,54 +14,59 @@ from __future__ import annotations
 from collections.abc import Mapping
 from typing import Any
 
-from ..inputs.query import names, rows, vector
+from ..inputs.query import names, number, rows, vector
 
 
 def comparison_body(params: Mapping[str, Any]) -> dict[str, Any]:
     """The JSON body of a comparison, from the spreadsheet form's query parameters."""
-    base: dict[str, Any] = {"prices": vector("p0", params["p0"])}
-    for key, name in (("quantities", "q0"), ("shares", "w0")):
-        if params[name] is not None:
-            base[key] = vector(name, params[name])
-    if params["m0"] is not None:
-        base["expenditure"] = params["m0"]
-    current: dict[str, Any] = {"prices": vector("p1", params["p1"])}
-    if params["q1"] is not None:
-        current["quantities"] = vector("q1", params["q1"])
-    if params["m1"] is not None:
-        current["expenditure"] = params["m1"]
+    decimal = params["decimal"]
+
+    def given(*pairs: tuple[str, str]) -> dict[str, Any]:
+        """``{key: value}`` for each ``(key, parameter)`` given, numbers read as declared."""
+        out = {}
+        for key, name in pairs:
+            if params[name] is not None:
+                read = vector if key in VECTORS else number
+                out[key] = read(name, params[name], decimal)
+        return out
+
+    base = {"prices": vector("p0", params["p0"], decimal)}
+    base |= given(("quantities", "q0"), ("shares", "w0"), ("expenditure", "m0"))
+    current = {"prices": vector("p1", params["p1"], decimal)}
+    current |= given(("quantities", "q1"), ("expenditure", "m1"))
     model: dict[str, Any] = {"family": params["family"]}
-    for key in ("sigma", "frisch"):
-        if params[key] is not None:
-            model[key] = params[key]
-    for key, name in (("subsistence_quantities", "subsistence"),
-                      ("expenditure_elasticities", "elasticities")):
-        if params[name] is not None:
-            model[key] = vector(name, params[name])
-    body: dict[str, Any] = {"items": names(params["items"]), "base": base, "current": current,
-                            "model": model, "normalise_shares": params["normalise_shares"]}
-    if params["reference_income"] is not None:
-        body["reference_income"] = params["reference_income"]
-    return body
+    model |= given(("sigma", "sigma"), ("frisch", "frisch"),
+                   ("subsistence_quantities", "subsistence"),
+                   ("expenditure_elasticities", "elasticities"))
+    body: dict[str, Any] = {"items": names(params["items"], decimal), "base": base,
+                            "current": current, "model": model,
+                            "normalise_shares": params["normalise_shares"]}
+    return body | given(("reference_income", "reference_income"))
+
+
+#: The body keys that hold a vector (the others given as query parameters are single numbers).
+VECTORS = frozenset({"prices", "quantities", "shares", "subsistence_quantities",
+                     "expenditure_elasticities"})
 
 
 def series_body(query: Mapping[str, Any], prices: list[str], quantities: list[str] | None,
                 ) -> dict[str, Any]:
     """The JSON body of an index series, from the spreadsheet form's query parameters: each
     period's prices (and quantities) as one repeated parameter, in period order."""
-    items, periods = names(query.get("items")), names(query.get("periods"))
+    decimal = query["decimal"]
+    items, periods = names(query.get("items"), decimal), names(query.get("periods"), decimal)
     body: dict[str, Any] = {"items": items, "periods": periods,
-                            "prices": rows("prices", prices, len(periods)) or []}
-    given = rows("quantities", quantities, len(periods))
+                            "prices": rows("prices", prices, len(periods), decimal) or []}
+    given = rows("quantities", quantities, len(periods), decimal)
     if given is not None:
         body["quantities"] = given
     for key in ("base_period", "reference_period", "reference_value"):
         if query.get(key):
             body[key] = query[key]
     if query.get("formulas"):
-        body["formulas"] = names(query["formulas"])
+        body["formulas"] = names(query["formulas"], decimal)
     if query.get("family"):
         body["model"] = {"family": query["family"]}
         if query.get("sigma") is not None:
-            body["model"]["sigma"] = query["sigma"]
+            body["model"]["sigma"] = number("sigma", query["sigma"], decimal)
     return body

@@ -7,6 +7,11 @@ non-2xx answer as a bare error marker and loses its body: with ``on_error=text``
 answered with status 200 and a text body starting with ``ERROR:`` that names the parameter and
 the rule; without it, the usual 422 problem. Every form answers HEAD and OPTIONS as well, since a
 spreadsheet may send those first.
+
+``decimal=comma`` serves sheets whose locale writes decimal commas: the query's numbers are read
+with ',' as decimal mark (values separated by ';'), the answer's numbers are written with ','
+and a CSV table separates its fields by ';'. Every answer says which in its headers
+(``Dualcost-Decimal: point|comma``; a CSV table also ``Dualcost-Separator: comma|semicolon``).
 """
 
 from __future__ import annotations
@@ -23,8 +28,9 @@ from ..inputs.panels import panel_from_json
 from ..inputs.query import validated
 from ..operations import compare, series, sheets
 from ..problems import RequestProblem, error_text, problem_response
-from ..render import CSV_CONTENT_TYPE, csv_text, fixed_point
+from ..render import CSV_CONTENT_TYPE, SheetNumbers
 from ..routing import JsonRoute, inline_when_small
+from ..schemas.common import DecimalMark
 from ..schemas.comparison import ComparisonRequest
 from ..schemas.series import SeriesRequest
 
@@ -36,24 +42,38 @@ OnError = Annotated[Literal["problem", "text"], Query(
                 "spreadsheets that hide error bodies.")]
 Digits = Annotated[int | None, Query(ge=0, le=15, description="Write numbers with this many "
                                      "decimals, fixed-point (default: shortest exact form).")]
+Decimal = Annotated[DecimalMark, Query(
+    description="The decimal mark of the numbers in the query and in the answer. comma: read "
+                "'2,40' as 2.4 (vectors then separated by ';'), write decimal commas, and "
+                "separate a CSV answer's fields by ';'.")]
 Vector = Annotated[str | None, Query(description="Numbers in the order of items, separated by "
-                                     "commas (or all by semicolons), '.' as decimal point.")]
+                                     "commas (or all by semicolons), '.' as decimal point; "
+                                     "with decimal=comma, ',' as decimal mark and separated by "
+                                     "semicolons.")]
+
+
+def _number(description: str) -> Any:
+    return Query(description=f"{description} A number, written with the decimal mark that "
+                             "`decimal` declares.")
 
 
 def comparison_query(
     items: Annotated[str | None, Query(description="Item ids, comma-separated: the order of every "
                                                    "vector.")] = None,
     p0: Vector = None, p1: Vector = None, q0: Vector = None, w0: Vector = None,
-    m0: Annotated[float | None, Query(description="Base total expenditure (with w0).")] = None,
+    m0: Annotated[str | None, _number("Base total expenditure (with w0).")] = None,
     q1: Vector = None,
-    m1: Annotated[float | None, Query(description="Current income (default m0).")] = None,
+    m1: Annotated[str | None, _number("Current income (default m0).")] = None,
     family: Annotated[str, Query(description="Preference family (no nested trees or matrices "
                                              "here; use POST /v1/comparisons).")] = "ces",
-    sigma: float | None = None, frisch: float | None = None,
+    sigma: Annotated[str | None, _number("Elasticity of substitution.")] = None,
+    frisch: Annotated[str | None, _number("Frisch parameter (stone_geary).")] = None,
     subsistence: Vector = None, elasticities: Vector = None,
-    reference_income: float | None = None,
+    reference_income: Annotated[str | None, _number("Income of the reference living "
+                                                    "standard.")] = None,
     normalise_shares: bool = False,
     digits: Digits = None,
+    decimal: Decimal = "point",
     on_error: OnError = "problem",
 ) -> dict[str, Any]:
     return dict(locals())
@@ -62,16 +82,18 @@ def comparison_query(
 ComparisonQuery = Annotated[dict[str, Any], Depends(comparison_query)]
 
 
-def _answer(on_error: str, media: str, make: Callable[[], str]) -> Response:
-    """``make()``'s text, or the problem it raised as the form's ``on_error`` asks."""
+def _answer(on_error: str, media: str, make: Callable[[], str], numbers: SheetNumbers) -> Response:
+    """``make()``'s text, or the problem it raised as the form's ``on_error`` asks; the headers
+    say how the numbers are written."""
+    headers = numbers.headers(table=media == CSV_CONTENT_TYPE)
     try:
         text = make()
     except RequestProblem as exc:
         if on_error == "text":
-            return PlainTextResponse(error_text(exc.errors))
+            return PlainTextResponse(error_text(exc.errors), headers=headers)
         return problem_response(exc.slug, "; ".join(f"{e.pointer}: {e.detail}"
                                                     for e in exc.errors), errors=exc.errors)
-    return Response(text, media_type=media)
+    return Response(text, media_type=media, headers=headers)
 
 
 def _comparison(params: dict[str, Any], request: Request) -> compare.Outcome:
@@ -91,21 +113,13 @@ def sheet_comparison(params: ComparisonQuery, request: Request) -> Response:
     """The comparison as CSV: one row per measure (Konüs indices, formulas with their bias,
     compensation), for a spreadsheet's CSV-import function."""
     header = ["measure", "value", "compared_with", "bias_points", "bias_percent"]
-    digits = params["digits"]
+    numbers = SheetNumbers(params["decimal"], params["digits"])
 
     def table() -> str:
         rows = compare.measures(_comparison(params, request))
-        return csv_text(header, [[name, fixed_point(v, digits) if digits is not None else v,
-                                  target, _cell(points, digits), _cell(percent, digits)]
-                                 for name, v, target, points, percent in rows])
+        return numbers.table(header, rows)
 
-    return _answer(params["on_error"], CSV_CONTENT_TYPE, table)
-
-
-def _cell(value: float | None, digits: int | None) -> Any:
-    if value is None:
-        return ""
-    return value if digits is None else fixed_point(value, digits)
+    return _answer(params["on_error"], CSV_CONTENT_TYPE, table, numbers)
 
 
 @router.head("/value", include_in_schema=False)
@@ -121,9 +135,10 @@ def sheet_value(params: ComparisonQuery, request: Request,
         if value is None:
             raise RequestProblem.at("#/query/measure", f"{measure!r} was not computed for this "
                                     "request (for konus_reference give reference_income)")
-        return fixed_point(value, params["digits"])
+        return numbers.number(value)
 
-    return _answer(params["on_error"], "text/plain; charset=utf-8", one)
+    numbers = SheetNumbers(params["decimal"], params["digits"])
+    return _answer(params["on_error"], "text/plain; charset=utf-8", one, numbers)
 
 
 @router.head("/series", include_in_schema=False)
@@ -147,8 +162,9 @@ def sheet_series(
     formulas: Annotated[str | None, Query(description="Comma-separated formula names.")] = None,
     family: Annotated[str | None, Query(description="A model for the Konüs series (ces, "
                                                     "cobb_douglas, translog, quadratic).")] = None,
-    sigma: float | None = None,
+    sigma: Annotated[str | None, _number("Elasticity of substitution.")] = None,
     digits: Digits = None,
+    decimal: Decimal = "point",
     on_error: OnError = "problem",
 ) -> Response:
     """The index series of a short panel for a spreadsheet's CSV import: each period's prices
@@ -166,12 +182,10 @@ def sheet_series(
                                 "quantities": body.quantities, "expenditures": None},
                                 series.limits(settings), loc)
         header, rows = series.table(series.run(body, panel, settings, loc, "sheetSeries"))
-        if digits is not None:
-            rows = [[fixed_point(v, digits) if isinstance(v, float) else v for v in row]
-                    for row in rows]
-        return csv_text(header, rows)
+        return numbers.table(header, rows)
 
-    return _answer(on_error, CSV_CONTENT_TYPE, table)
+    numbers = SheetNumbers(decimal, digits)
+    return _answer(on_error, CSV_CONTENT_TYPE, table, numbers)
 
 
 #: The series form carries the model as ``family`` and ``sigma``.

@@ -3,11 +3,13 @@ aligned with the item list, notices, and the texts every answer carries."""
 
 from __future__ import annotations
 
-from typing import Annotated
+from typing import Annotated, Literal
 
 from pydantic import BaseModel, ConfigDict, Field
 
 FiniteFloat = Annotated[float, Field(allow_inf_nan=False)]
+#: The decimal mark a spreadsheet form reads and writes numbers with (its ``decimal`` option).
+DecimalMark = Literal["point", "comma"]
 
 #: A vector: either an object keyed by item id, or a list aligned with ``items``. The two
 #: forms cannot be confused, so the union is tried left to right: pydantic's default "smart"
