@@ -169,6 +169,16 @@ def test_zero_quantity_where_a_formula_takes_logs(client) -> None:
     """Sato-Vartia takes logarithms of expenditure shares (Sato 1976; Vartia 1976)."""
     req = small_request()
     req["current"]["quantities"] = [8.0, 0.0, 2.5]
+    # Under the default formula set it is left out, and a notice names the item.
+    r = post(client, req)
+    assert r.status_code == 200, r.text
+    body = r.json()
+    assert "sato_vartia" not in {f["formula"] for f in body["formulas"]}
+    left_out = [n for n in body["notices"] if n["code"] == "formula_not_computed"
+                and "Sato-Vartia" in n["message"]]
+    assert [i["id"] for i in left_out[0]["items"]] == ["b"]
+    # Asked for by name, it is a refusal located at the zero quantity.
+    req["formulas"] = ["laspeyres", "sato_vartia"]
     assert_problem(post(client, req), "/current/quantities/1", "logarithms")
     req["formulas"] = ["laspeyres", "paasche", "fisher"]
     assert post(client, req).status_code == 200

@@ -86,3 +86,39 @@ def test_dashboard_shows_the_problem_for_bad_input(live_url, browser) -> None:
     browser.find_element(By.ID, "compute").click()
     error = WebDriverWait(browser, 10).until(ec.visibility_of_element_located((By.ID, "error")))
     assert "/current/prices/rye_loaf" in error.text and "greater than zero" in error.text
+
+
+def test_dashboard_blocks_figures_of_a_model_outside_its_regular_region(live_url, browser) -> None:
+    """Translog with sigma 3 far from its base point (shares .3/.3/.4, the transit price more
+    than quadrupled): the page shows a blocking warning naming the item, and "not a result" in
+    place of the Konüs index, the bias and the compensating variation; Laspeyres stays."""
+    from selenium.webdriver.support.ui import Select
+
+    browser.get(live_url + "/")
+    data = browser.find_element(By.ID, "data")
+    data.clear()
+    data.send_keys("item,label,base_price,current_price,base_share\n"
+                   "bread,Rye loaf,2.40,2.52,0.3\ntransit,Transit pass,9,40,0.3\n"
+                   "heating,Heating,38,41,0.4")
+    expenditure = browser.find_element(By.ID, "expenditure")
+    expenditure.clear()
+    expenditure.send_keys("100")
+    Select(browser.find_element(By.ID, "family")).select_by_value("translog")
+    sigma = browser.find_element(By.ID, "sigma")
+    sigma.clear()
+    sigma.send_keys("3")
+    browser.find_element(By.ID, "compute").click()
+    warning = WebDriverWait(browser, 10).until(
+        ec.visibility_of_element_located((By.ID, "validity")))
+    assert "not results" in warning.text and "Transit pass (transit)" in warning.text
+    for key in ("konus-base", "bias", "cv"):
+        assert browser.find_element(By.ID, key).text == "not a result"
+    # Laspeyres by hand from the shares: sum_i w0_i p1_i / p0_i.
+    lasp = 0.3 * 2.52 / 2.40 + 0.3 * 40 / 9 + 0.4 * 41 / 38
+    assert browser.find_element(By.ID, "laspeyres").text == f"{lasp:.4f}"
+    # Back to a regular model: the warning goes away.
+    Select(browser.find_element(By.ID, "family")).select_by_value("cobb_douglas")
+    browser.find_element(By.ID, "compute").click()
+    WebDriverWait(browser, 10).until(
+        ec.invisibility_of_element_located((By.ID, "validity")))
+    assert browser.find_element(By.ID, "konus-base").text != "not a result"

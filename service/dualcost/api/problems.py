@@ -81,6 +81,13 @@ PROBLEM_TYPES: dict[str, ProblemType] = {
                     "The request's computation took longer than the service's compute deadline "
                     "(DUALCOST_COMPUTE_DEADLINE_SECONDS) and was stopped. Reduce the problem's size "
                     "or ask the operator for a longer deadline."),
+        ProblemType("model-not-regular", 422, "The model is outside its regular region",
+                    "The figure asked for is one of the model's (a Konüs index, compensating or "
+                    "equivalent variation, compensated income, a substitution bias), and the "
+                    "model is not regular at these prices and incomes (a share outside [0, 1], a "
+                    "negative demand, a Slutsky matrix that is not negative semidefinite or not "
+                    "symmetric, ...): the figure is not a result. The detail names the reason and "
+                    "the items; the formula indices remain available."),
         ProblemType("not-found", 404, "Nothing here", "No resource at this address."),
         ProblemType("method-not-allowed", 405, "Method not allowed",
                     "This address does not answer that HTTP method."),

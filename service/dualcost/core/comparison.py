@@ -42,6 +42,7 @@ from .errors import InvalidInput, NumericalFailure
 from .indices import (
     REGISTRY,
     IndexData,
+    IndexFormula,
     Need,
     Target,
     check_formula_names,
@@ -51,6 +52,7 @@ from .indices import (
 from .konus import PriceChange, StandardAt, konus_at_income, naming, price_change
 from .preferences import calibrate
 from .preferences.base import BaseBudget, Notice, Preferences, Vector
+from .validity import Validity, assess, negative_demands
 
 #: Duality residuals above this (relative) are reported as a notice.
 DUALITY_TOLERANCE = 1e-8
@@ -175,6 +177,10 @@ class Comparison:
     diagnostics: Diagnostics
     lloyd_moulton_sigma: float | None
     notices: list[Notice] = field(default_factory=list)
+    #: Whether the model is regular at the prices and incomes used; when it is not, the Konüs
+    #: indices, CV, EV, compensated income, the biases and the Hicks decomposition are not
+    #: results (:mod:`dualcost.core.validity`).
+    validity: Validity = field(default_factory=Validity)
 
 
 def _relative_gap(a: Vector, b: Vector) -> float:
@@ -205,7 +211,8 @@ def compare(
     current_prices:
         ``p1``, one positive price per item.
     current_income:
-        ``m1``; defaults to ``p1 . q1`` when current quantities are given, else to ``m0``.
+        ``m1``; defaults to ``p1 . q1`` when current quantities are given, else to ``m0``
+        (each default stated in a notice).
     current_quantities:
         Observed ``q1``; when absent the formula indices use the model's ``x(p1, m1)``.
     reference_income:
@@ -223,7 +230,7 @@ def compare(
         raise InvalidInput("model", f"the model has {model.n_items} items but the base budget {n}")
     p0, m0 = base.prices, base.expenditure
     p1 = _checks.positive("p1", current_prices, size=n)
-    q1_obs, m1 = _current_side(p1, m0, current_income, current_quantities)
+    q1_obs, m1, income_notice = _current_side(p1, m0, current_income, current_quantities)
     m_ref = None
     if reference_income is not None:
         m_ref = _checks.scalar("reference_income", reference_income, minimum=0.0)
@@ -239,14 +246,19 @@ def compare(
     if m_ref is not None:
         with naming(prices="p1", income="reference_income", utility="reference_income"):
             reference = konus_at_income(model, p0, p1, m_ref)
-    return comparison_of(model, base, change, observed_quantities=q1_obs, reference=reference,
-                         weight_reference=weight_reference,
-                         lloyd_moulton_sigma=lloyd_moulton_sigma, formulas=formulas)
+    result = comparison_of(model, base, change, observed_quantities=q1_obs, reference=reference,
+                           weight_reference=weight_reference,
+                           lloyd_moulton_sigma=lloyd_moulton_sigma, formulas=formulas)
+    if income_notice is not None:
+        result.notices.insert(0, income_notice)
+    return result
 
 
 def _current_side(p1: Vector, m0: float, current_income: float | None,
-                  current_quantities: npt.ArrayLike | None) -> tuple[Vector | None, float]:
-    """Observed current quantities (or None) and the current income ``m1``."""
+                  current_quantities: npt.ArrayLike | None
+                  ) -> tuple[Vector | None, float, Notice | None]:
+    """Observed current quantities (or None), the current income ``m1``, and the notice that
+    states how ``m1`` was filled in when it was not given."""
     q1_obs = None
     if current_quantities is not None:
         q1_obs = _checks.nonnegative("q1", current_quantities, size=p1.size)
@@ -260,10 +272,17 @@ def _current_side(p1: Vector, m0: float, current_income: float | None,
                 raise InvalidInput("m1", f"current income {m1:.10g} differs from the value of "
                                    f"the current basket p1 . q1 = {value:.10g}; give one of "
                                    "them, or make them agree")
-        return q1_obs, m1
+        return q1_obs, m1, None
     if q1_obs is not None:
-        return q1_obs, float(p1 @ q1_obs)
-    return None, m0
+        m1 = float(p1 @ q1_obs)
+        return q1_obs, m1, Notice("current_income_from_quantities", "No current income was "
+                                  "given: it is the value of the current basket, p1 . q1 = "
+                                  f"{m1:.10g}.")
+    return None, m0, Notice("current_income_assumed", "No current income or quantities were "
+                            f"given: current income is taken equal to base income, {m0:.10g}. "
+                            "For a model that is not homothetic this choice moves K(u1), the "
+                            "compensating and equivalent variations; give current.expenditure "
+                            "to set it.")
 
 
 def comparison_of(
@@ -295,15 +314,25 @@ def comparison_of(
     lm_sigma = lloyd_moulton_sigma
     if lm_sigma is None:
         lm_sigma = model.substitution_elasticity
+        if lm_sigma is not None and _wanted("lloyd_moulton", formulas):
+            notices.append(Notice("lloyd_moulton_sigma_from_model", "No Lloyd-Moulton "
+                                  "elasticity was given: the model's own elasticity of "
+                                  f"substitution, {lm_sigma:.10g}, is used."))
     elif lm_sigma < 0 or not np.isfinite(lm_sigma):
         raise InvalidInput("lloyd_moulton_sigma", "an elasticity of substitution must be a "
                            f"finite number, zero or more, got {lm_sigma:g}")
     weights = weight_reference or WeightReference()
     data = IndexData(p0=p0, p1=p1, q0=q0, q1=q1, weight_quantities=weights.quantities,
                      weight_shares=weights.shares, sigma=lm_sigma)
-    results = _formula_results(data, konus, formulas, notices)
+    results = _formula_results(data, konus, formulas, notices,
+                               q1_observed=observed_quantities is not None)
     demands, diagnostics = _demands_and_diagnostics(change, q0, q1, observed_quantities)
     notices.extend(_diagnostic_notices(model, diagnostics, konus, results, p0, m0, p1, m1))
+    notices.extend(_vanishing_shares(p0, q0, m0))
+    notices.extend(negative_demands("At base prices", {"demand": demands.base}))
+    notices.extend(negative_demands("At current prices", {"demand": demands.current,
+                                                          "compensated demand":
+                                                          demands.compensated}))
     gap_contrib = None
     if "laspeyres" in results:
         gap_contrib = p1 * q0 / float(p0 @ q0) - p1 * demands.compensated / change.base_cost
@@ -319,10 +348,31 @@ def comparison_of(
         equivalent_variation=change.equivalent_variation,
         compensated_income=change.compensated_income, demands=demands,
         laspeyres_gap_contributions=gap_contrib, diagnostics=diagnostics,
-        lloyd_moulton_sigma=lm_sigma, notices=notices,
+        lloyd_moulton_sigma=lm_sigma, notices=notices, validity=assess(notices),
     )
     _check_finite(comparison)
     return comparison
+
+
+def _vanishing_shares(p0: Vector, q0: Vector, m0: float) -> list[Notice]:
+    """A notice naming the bought items whose base expenditure share is too small for floating
+    point (it rounds to zero, beside items worth 1e300 times more): the model gives them a zero
+    weight and a zero demand."""
+    with np.errstate(under="ignore"):
+        shares = p0 * q0 / m0
+    lost = np.flatnonzero((q0 > 0.0) & (shares == 0.0))
+    if not lost.size:
+        return []
+    return [Notice("share_below_float_range", f"The base expenditure share of "
+                   f"{_items_count(lost.size)} is smaller than the smallest floating-point "
+                   "number (its value against the budget's total spans more than 300 orders of "
+                   "magnitude): the model weights it by zero and its demand is zero. The "
+                   "indices are unaffected to within that share.", _positions_tuple(lost))]
+
+
+def _wanted(name: str, requested: Sequence[str] | None) -> bool:
+    """Whether the formula ``name`` is among those asked for (all, when none were named)."""
+    return requested is None or name in requested
 
 
 def _konus_indices(model: Preferences, change: PriceChange, reference: StandardAt | None,
@@ -370,6 +420,8 @@ def _formula_results(
     konus: KonusIndices,
     requested: Sequence[str] | None,
     notices: list[Notice],
+    *,
+    q1_observed: bool = True,
 ) -> dict[str, FormulaResult]:
     explicit = requested is not None
     names = (check_formula_names(list(requested)) if requested is not None
@@ -394,15 +446,40 @@ def _formula_results(
             continue
         if negative.size and formula.uses_current_quantities:
             text = (f"The {formula.title} index weights by current quantities, and the model's "
-                    f"current demand for item {int(negative[0])} is negative")
+                    f"current demand is negative for {_items_count(negative.size)}")
             if explicit:
                 raise InvalidInput("formulas", text + "; the model is not regular at these "
                                    "prices (give observed current quantities, or leave this "
-                                   "formula out).", i)
+                                   "formula out; the answer's validity block names the "
+                                   "items).", i)
+            notices.append(Notice("formula_not_computed", text + "; it was left out.",
+                                  _positions_tuple(negative)))
+            continue
+        zero = _zero_quantities(data, formula)
+        if zero is not None:
+            period, at = zero
+            whose = "model's current demand" if period == "current" and not q1_observed \
+                else f"{period} quantity"
+            text = (f"The {formula.title} index takes logarithms of expenditure shares, and the "
+                    f"{whose} is zero for {_items_count(at.size)}")
+            if not explicit:
+                notices.append(Notice("formula_not_computed", text + "; it was left out.",
+                                      _positions_tuple(at)))
+                continue
+            if whose.startswith("model"):  # nothing in the request to point at but the formula
+                raise InvalidInput("formulas", text + " (give observed current quantities, or "
+                                   "leave this formula out).", i)
+        check_positive_shares(data, formula)
+        with np.errstate(all="ignore"):
+            value = float(formula.compute(data))
+        if not math.isfinite(value):
+            text = (f"The {formula.title} index is beyond floating point at these prices and "
+                    "quantities (its sums overflow or underflow)")
+            if explicit:
+                raise InvalidInput("formulas", text + "; check the inputs' magnitudes, or leave "
+                                   "this formula out.", i)
             notices.append(Notice("formula_not_computed", text + "; it was left out."))
             continue
-        check_positive_shares(data, formula)
-        value = float(formula.compute(data))
         k = konus.at(formula.target)
         out[name] = FormulaResult(
             name=name,
@@ -413,6 +490,27 @@ def _formula_results(
             bias_percent=100.0 * (value / k - 1.0),
         )
     return out
+
+
+def _zero_quantities(data: IndexData, formula: IndexFormula
+                     ) -> tuple[str, npt.NDArray[np.intp]] | None:
+    """The period and items whose zero quantity keeps a formula that takes logarithms of
+    shares from being computed, or None."""
+    if not formula.logs_of_shares:
+        return None
+    for period, q in (("base", data.q0), ("current", data.q1)):
+        zero = np.flatnonzero(np.asarray(q).reshape(-1) <= 0.0)
+        if zero.size:
+            return period, zero
+    return None
+
+
+def _items_count(n: int) -> str:
+    return "1 item" if n == 1 else f"{n} items"
+
+
+def _positions_tuple(at: npt.NDArray[np.intp]) -> tuple[int, ...]:
+    return tuple(int(i) for i in at)
 
 
 def _diagnostic_notices(
@@ -428,7 +526,8 @@ def _diagnostic_notices(
     notices: list[Notice] = []
     for where, prices, income in (("base", p0, m0), ("current", p1, m1)):
         for notice in model.regularity(prices, income):
-            notices.append(Notice(notice.code, f"At {where} prices: {notice.message}"))
+            notices.append(Notice(notice.code, f"At {where} prices: {notice.message}",
+                                  notice.items))
     if diag.duality_residual > DUALITY_TOLERANCE or diag.expenditure_residual > DUALITY_TOLERANCE:
         notices.append(Notice("duality_residual", "The model's demands and expenditure "
                               "function disagree (relative residual "

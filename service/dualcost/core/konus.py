@@ -61,8 +61,18 @@ def _record(cls: type[_R], **values: Any) -> _R:
     return record
 
 
-def _root(x: Any) -> Any:
-    return math.sqrt(x) if isinstance(x, float) else np.sqrt(x)
+def _geometric_mean(a: Any, b: Any) -> Any:
+    """``(a b)^(1/2)`` for positive ``a``, ``b``; as ``a^(1/2) b^(1/2)`` where the product
+    would leave the floating-point range (incomes near 1e300 or 1e-300)."""
+    if isinstance(a, float) and isinstance(b, float):
+        product = a * b
+        if 0.0 < product < math.inf:
+            return math.sqrt(product)
+        return math.sqrt(a) * math.sqrt(b)
+    with np.errstate(over="ignore", under="ignore"):
+        product = np.multiply(a, b)
+        safe = (product > 0.0) & np.isfinite(product)
+    return np.where(safe, np.sqrt(np.where(safe, product, 1.0)), np.sqrt(a) * np.sqrt(b))
 
 
 @dataclass(frozen=True)
@@ -168,7 +178,7 @@ def price_change(model: Preferences, p0: Any, p1: Any, m0: Any, m1: Any, *,
         e01 = e(p0, u1)
         x00 = x(p0, e00) if decomposition else None
     with naming(prices="p1", income="m1", utility="m1"):
-        mid = konus_at_income(model, p0, p1, _root(e00 * e01))
+        mid = konus_at_income(model, p0, p1, _geometric_mean(e00, e01))
     parts = None
     if decomposition:
         parts = _record(Decomposition, base_demands=x0, base_compensated=h00,

@@ -115,25 +115,65 @@ function fillTable(id, rows) {
   }));
 }
 
+const WITHHELD = "not a result";
+
+// The model's own figures, or a plain "not a result" where the model is outside its regular
+// region (the answer then gives null for them and says why in answer.validity).
+function modelFigure(node, value, digits, regular) {
+  node.textContent = regular ? fmt(value, digits) : WITHHELD;
+  node.classList.toggle("withheld", !regular);
+}
+
+function showValidity(validity) {
+  const box = $("validity");
+  if (validity.regular) {
+    box.hidden = true;
+    box.replaceChildren();
+    return;
+  }
+  const title = document.createElement("strong");
+  title.textContent = "The model is outside its regular region at these prices: its Konüs "
+    + "index, compensation and biases are not results. Do not use them.";
+  const reasons = document.createElement("ul");
+  reasons.append(...validity.reasons.map((r) => {
+    const li = document.createElement("li");
+    li.textContent = r.message;
+    return li;
+  }));
+  const usable = document.createElement("p");
+  usable.textContent = validity.usable;
+  box.replaceChildren(title, reasons, usable);
+  box.hidden = false;
+}
+
 function render(answer) {
   const formulas = Object.fromEntries(answer.formulas.map((f) => [f.formula, f]));
-  $("konus-base").textContent = fmt(answer.konus.base);
+  const regular = answer.validity.regular;
+  showValidity(answer.validity);
+  modelFigure($("konus-base"), answer.konus.base, 4, regular);
   $("laspeyres").textContent = formulas.laspeyres ? fmt(formulas.laspeyres.value) : "";
-  $("bias").textContent = fmt(answer.laspeyres_gap_points, 3);
-  $("cv").textContent = fmt(answer.compensation.compensating_variation, 2);
-  $("homothetic").textContent = answer.konus.homothetic
-    ? "The model is homothetic: the Konüs index is the same at every living standard."
-    : `Konüs index at the current living standard: ${fmt(answer.konus.current)}.`;
+  modelFigure($("bias"), answer.laspeyres_gap_points, 3, regular);
+  modelFigure($("cv"), answer.compensation.compensating_variation, 2, regular);
+  $("homothetic").textContent = !regular ? ""
+    : answer.konus.homothetic
+      ? "The model is homothetic: the Konüs index is the same at every living standard."
+      : `Konüs index at the current living standard: ${fmt(answer.konus.current)}.`;
   barChart($("formula-chart"), answer.formulas.map((f) => ({ label: f.title, value: f.value })),
-    { origin: 1, reference: answer.konus.base });
+    { origin: 1, reference: regular ? answer.konus.base : null });
+  const model = (x, d) => (regular ? fmt(x, d) : WITHHELD);
   fillTable("formula-table", answer.formulas.map((f) =>
-    [f.title, fmt(f.value), f.compared_with, fmt(f.konus), fmt(f.bias_points, 3), fmt(f.bias_percent, 3)]));
-  const items = answer.by_item.slice().sort((a, b) => b.laspeyres_gap_points - a.laspeyres_gap_points);
-  barChart($("item-chart"), items.map((i) => ({ label: i.label || i.item, value: i.laspeyres_gap_points })),
-    { digits: 3 });
+    [f.title, fmt(f.value), f.compared_with, model(f.konus, 4), model(f.bias_points, 3),
+      model(f.bias_percent, 3)]));
+  const items = answer.by_item.slice();
+  if (regular) items.sort((a, b) => b.laspeyres_gap_points - a.laspeyres_gap_points);
+  $("item-chart").hidden = !regular;
+  if (regular) {
+    barChart($("item-chart"), items.map((i) => ({ label: i.label || i.item, value: i.laspeyres_gap_points })),
+      { digits: 3 });
+  }
   fillTable("item-table", items.map((i) => [i.label || i.item, fmt(i.price_relative),
-    fmt(i.base_quantity, 3), fmt(i.compensated_quantity, 3), fmt(i.substitution_effect, 3),
-    fmt(i.income_effect, 3), fmt(i.laspeyres_gap_points, 3)]));
+    fmt(i.base_quantity, 3), model(i.compensated_quantity, 3), model(i.substitution_effect, 3),
+    model(i.income_effect, 3), model(i.laspeyres_gap_points, 3)]));
   $("notices").replaceChildren(...answer.notices.map((n) => {
     const li = document.createElement("li");
     li.textContent = n.message;

@@ -28,6 +28,7 @@ from ..schemas.comparison import (
     CurrentIn,
     WeightReferenceIn,
 )
+from .answers import notices_json, validity_json
 
 #: Where each core argument of a comparison is, in the JSON body and in the spreadsheet forms'
 #: query strings.
@@ -156,11 +157,20 @@ def document(outcome: Outcome) -> dict[str, Any]:
                                "number; the inputs are beyond what the model can evaluate")
     lasp = r.formulas.get("laspeyres")
     st = r.standards
+    regular = r.validity.regular
+    konus = {"base": r.konus.base, "current": r.konus.current, "midpoint": r.konus.midpoint,
+             "reference": r.konus.reference, "homothetic": r.konus.homothetic}
+    compensation = {"compensating_variation": r.compensating_variation,
+                    "equivalent_variation": r.equivalent_variation,
+                    "compensated_income": r.compensated_income}
+    gap = None if lasp is None else 100.0 * (lasp.value - r.konus.base)
+    figures = None if regular else {"konus": konus, "compensation": compensation,
+                                    "laspeyres_gap_points": gap}
     return {
         "family": r.family,
         "items": axis.ids,
-        "konus": {"base": r.konus.base, "current": r.konus.current, "midpoint": r.konus.midpoint,
-                  "reference": r.konus.reference, "homothetic": r.konus.homothetic},
+        "validity": validity_json(r.validity, axis.ids, axis.labels, figures),
+        "konus": konus if regular else _withheld(konus, keep=("homothetic",)),
         "living_standards": {
             "base_income": st.base_income, "current_income": st.current_income,
             "midpoint_income": st.midpoint_income, "reference_income": st.reference_income,
@@ -168,23 +178,28 @@ def document(outcome: Outcome) -> dict[str, Any]:
             "utility_reference": st.reference,
         },
         "formulas": [{"formula": f.name, "title": REGISTRY[f.name].title, "value": f.value,
-                      "compared_with": f.target, "konus": f.konus, "bias_points": f.bias_points,
-                      "bias_percent": f.bias_percent} for f in r.formulas.values()],
-        "laspeyres_gap_points": None if lasp is None else 100.0 * (lasp.value - r.konus.base),
-        "compensation": {
-            "compensating_variation": r.compensating_variation,
-            "equivalent_variation": r.equivalent_variation,
-            "compensated_income": r.compensated_income, "sign_convention": SIGN_CONVENTION,
-        },
+                      "compared_with": f.target, "konus": f.konus if regular else None,
+                      "bias_points": f.bias_points if regular else None,
+                      "bias_percent": f.bias_percent if regular else None}
+                     for f in r.formulas.values()],
+        "laspeyres_gap_points": gap if regular else None,
+        "compensation": (compensation if regular else _withheld(compensation))
+        | {"sign_convention": SIGN_CONVENTION},
         "by_item": _items(r, axis),
         "lloyd_moulton_sigma": r.lloyd_moulton_sigma,
         "model_parameters": parameters,
         "diagnostics": {"duality_residual": r.diagnostics.duality_residual,
                         "expenditure_residual": r.diagnostics.expenditure_residual,
                         "base_bundle_gap": r.diagnostics.base_bundle_gap},
-        "notices": [{"code": n.code, "message": n.message} for n in r.notices],
+        "notices": notices_json(r.notices, axis.ids, axis.labels),
         "caution": CAUTION,
     }
+
+
+def _withheld(figures: dict[str, Any], keep: tuple[str, ...] = ()) -> dict[str, Any]:
+    """``figures`` with every value but those in ``keep`` replaced by None: what an answer
+    shows where the model is outside its regular region."""
+    return {k: (v if k in keep else None) for k, v in figures.items()}
 
 
 def _items(r: Comparison, axis: ItemAxis) -> list[dict[str, Any]]:
@@ -192,7 +207,13 @@ def _items(r: Comparison, axis: ItemAxis) -> list[dict[str, Any]]:
     names with rows, for baskets of hundreds of items."""
     d = r.demands
     gap = r.laspeyres_gap_contributions
-    gaps = [None] * len(axis.ids) if gap is None else (100.0 * gap).tolist()
+    none = [None] * len(axis.ids)
+    gaps = none if gap is None or not r.validity.regular else (100.0 * gap).tolist()
+    # Outside the regular region the model's current and compensated demands and the Hicks
+    # split are not results (a negative "quantity" among them, as a rule).
+    model = [d.current, d.compensated, d.substitution_effect, d.income_effect]
+    current, compensated, substitution, income = (
+        [v.tolist() for v in model] if r.validity.regular else [none] * 4)
     return [
         {"item": item, "label": label, "base_price": p0, "current_price": p1,
          "price_relative": rel, "base_quantity": q0, "current_quantity": q1,
@@ -200,33 +221,53 @@ def _items(r: Comparison, axis: ItemAxis) -> list[dict[str, Any]]:
          "laspeyres_gap_points": g}
         for item, label, p0, p1, rel, q0, q1, h1, sub, inc, g in zip(
             axis.ids, axis.labels, r.base_prices.tolist(), r.current_prices.tolist(),
-            (r.current_prices / r.base_prices).tolist(), d.base.tolist(), d.current.tolist(),
-            d.compensated.tolist(), d.substitution_effect.tolist(), d.income_effect.tolist(),
-            gaps, strict=True)
+            (r.current_prices / r.base_prices).tolist(), d.base.tolist(), current,
+            compensated, substitution, income, gaps, strict=True)
     ]
 
 
-def measures(outcome: Outcome) -> list[tuple[str, float, str, float | None, float | None]]:
+Row = tuple[str, float | None, str, float | None, float | None]
+
+
+def measures(outcome: Outcome) -> list[Row]:
     """The headline figures one per row: (measure, value, compared_with, bias in points, bias
-    in percent), as the spreadsheet forms give them."""
+    in percent), as the spreadsheet forms give them. Outside the model's regular region the
+    model's figures and the biases are None (empty cells); the row ``model_regular`` says
+    which (1 regular, 0 not)."""
     r = outcome.result
-    rows: list[tuple[str, float, str, float | None, float | None]] = [
-        ("konus_base", r.konus.base, "", None, None),
-        ("konus_current", r.konus.current, "", None, None),
-        ("konus_midpoint", r.konus.midpoint, "", None, None),
+    ok = r.validity.regular
+
+    def model(value: float | None) -> float | None:
+        return value if ok else None
+
+    rows: list[Row] = [
+        ("model_regular", 1.0 if ok else 0.0, "", None, None),
+        ("konus_base", model(r.konus.base), "", None, None),
+        ("konus_current", model(r.konus.current), "", None, None),
+        ("konus_midpoint", model(r.konus.midpoint), "", None, None),
     ]
     if r.konus.reference is not None:
-        rows.append(("konus_reference", r.konus.reference, "", None, None))
-    rows += [(f.name, f.value, f.target, f.bias_points, f.bias_percent)
+        rows.append(("konus_reference", model(r.konus.reference), "", None, None))
+    rows += [(f.name, f.value, f.target, model(f.bias_points), model(f.bias_percent))
              for f in r.formulas.values()]
-    rows += [("compensating_variation", r.compensating_variation, "", None, None),
-             ("equivalent_variation", r.equivalent_variation, "", None, None),
-             ("compensated_income", r.compensated_income, "", None, None)]
+    rows += [("compensating_variation", model(r.compensating_variation), "", None, None),
+             ("equivalent_variation", model(r.equivalent_variation), "", None, None),
+             ("compensated_income", model(r.compensated_income), "", None, None)]
     return rows
 
 
+#: The measures that are the model's figures (withheld outside its regular region).
+MODEL_MEASURES = frozenset({"konus_base", "konus_current", "konus_midpoint", "konus_reference",
+                            "laspeyres_bias_points", "compensating_variation",
+                            "equivalent_variation", "compensated_income"})
+
+
 def measure(outcome: Outcome, name: str) -> float | None:
-    """One headline figure by name (``laspeyres_bias_points`` too), or None if not computed."""
+    """One headline figure by name (``laspeyres_bias_points`` too), or None if not computed.
+    A model figure outside the model's regular region is None too: see
+    ``outcome.result.validity``."""
+    if name in MODEL_MEASURES and not outcome.result.validity.regular:
+        return None
     for row in measures(outcome):
         if row[0] == name:
             return row[1]

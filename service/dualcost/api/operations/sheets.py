@@ -41,6 +41,8 @@ def comparison_body(params: Mapping[str, Any]) -> dict[str, Any]:
     body: dict[str, Any] = {"items": names(params["items"], decimal), "base": base,
                             "current": current, "model": model,
                             "normalise_shares": params["normalise_shares"]}
+    if params.get("formulas"):
+        body["formulas"] = names(params["formulas"], decimal)
     return body | given(("reference_income", "reference_income"))
 
 

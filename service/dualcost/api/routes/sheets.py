@@ -27,6 +27,7 @@ from ..inputs.locator import Place
 from ..inputs.panels import panel_from_json
 from ..inputs.query import validated
 from ..operations import compare, series, sheets
+from ..operations.answers import notices_json
 from ..problems import RequestProblem, error_text, problem_response
 from ..render import CSV_CONTENT_TYPE, SheetNumbers
 from ..routing import JsonRoute, inline_when_small
@@ -72,6 +73,9 @@ def comparison_query(
     reference_income: Annotated[str | None, _number("Income of the reference living "
                                                     "standard.")] = None,
     normalise_shares: bool = False,
+    formulas: Annotated[str | None, Query(description="Formula names, comma-separated "
+                                                      "(default: every formula the data "
+                                                      "allow).")] = None,
     digits: Digits = None,
     decimal: Decimal = "point",
     on_error: OnError = "problem",
@@ -106,7 +110,9 @@ def _comparison(params: dict[str, Any], request: Request) -> compare.Outcome:
 @router.get("/comparison", operation_id="sheetComparison", response_class=Response,
             responses={200: {"content": {"text/csv": {}, "text/plain": {}},
                              "description": "CSV: measure,value,compared_with,bias_points,"
-                             "bias_percent; with on_error=text a bad request is answered as "
+                             "bias_percent; the first row, model_regular, is 1 when the model is "
+                             "regular at these prices and 0 when not (the model's figures and "
+                             "the biases are then empty); with on_error=text a bad request is answered as "
                              "text/plain 'ERROR: ...'"}})
 @inline_when_small
 def sheet_comparison(params: ComparisonQuery, request: Request) -> Response:
@@ -131,7 +137,16 @@ def sheet_value(params: ComparisonQuery, request: Request,
     """One number as text/plain, for a spreadsheet's web-fetch function."""
 
     def one() -> str:
-        value = compare.measure(_comparison(params, request), measure)
+        outcome = _comparison(params, request)
+        validity = outcome.result.validity
+        if measure in compare.MODEL_MEASURES and not validity.regular:
+            reasons = notices_json(validity.reasons, outcome.axis.ids, outcome.axis.labels)
+            raise RequestProblem.at("#/query/measure", f"{measure} is not a result: the "
+                                    f"{outcome.result.family} model is outside its regular "
+                                    "region here; " + " ".join(r["message"] for r in reasons)
+                                    + " The formula indices remain available.",
+                                    slug="model-not-regular")
+        value = compare.measure(outcome, measure)
         if value is None:
             raise RequestProblem.at("#/query/measure", f"{measure!r} was not computed for this "
                                     "request (for konus_reference give reference_income)")

@@ -3,7 +3,7 @@ aligned with the item list, notices, and the texts every answer carries."""
 
 from __future__ import annotations
 
-from typing import Annotated, Literal
+from typing import Annotated, Any, Literal
 
 from pydantic import BaseModel, ConfigDict, Field
 
@@ -34,11 +34,41 @@ class StrictModel(BaseModel):
     model_config = ConfigDict(extra="forbid", allow_inf_nan=False)
 
 
-class NoticeOut(StrictModel):
-    """A remark that goes with an answer: a warning, or a statement of what was done."""
+class ItemRefOut(StrictModel):
+    """An item named by its id and label."""
 
-    code: str
-    message: str
+    id: str
+    label: str | None
+
+
+class NoticeOut(StrictModel):
+    """A remark that goes with an answer: a warning, or a statement of what was done (every
+    default the service fills in and every formula it leaves out has one)."""
+
+    code: str = Field(description="A stable word for machines, e.g. formula_not_computed, "
+                                  "current_income_assumed, shares_outside_unit_interval.")
+    message: str = Field(description="One plain sentence; it names the items concerned too.")
+    items: list[ItemRefOut] = Field(default_factory=list,
+                                    description="The items the notice is about, by id and label.")
+
+
+class ValidityOut(StrictModel):
+    """Whether the model stands behind its figures at the prices and incomes used."""
+
+    state: Literal["regular", "outside_regular_region"] = Field(
+        description="outside_regular_region: a share outside [0, 1], a negative demand, a "
+                    "Slutsky matrix that is not negative semidefinite or not symmetric, demands "
+                    "that do not add up or cannot be integrated, or a Konüs index above "
+                    "Laspeyres. The model's figures are then null in the answer.")
+    regular: bool
+    reasons: list[NoticeOut] = Field(description="Each condition that fails, with its items.")
+    items: list[ItemRefOut] = Field(description="Every item a reason names.")
+    usable: str = Field(description="Which figures stay usable whatever the model does.")
+    withheld: str | None = Field(description="Which figures are withheld, when not regular.")
+    figures_not_results: dict[str, Any] | None = Field(
+        description="Outside the regular region only: the model's figures as computed, for "
+                    "diagnosing the model. They are not cost-of-living results; do not publish "
+                    "or index by them.")
 
 
 CAUTION = (

@@ -7,7 +7,16 @@ from typing import Any, Literal
 from pydantic import Field, model_validator
 
 from ...core.indices import formulas_for
-from .common import CAUTION, SIGN_CONVENTION, FiniteFloat, ItemIn, NoticeOut, StrictModel, VectorIn
+from .common import (
+    CAUTION,
+    SIGN_CONVENTION,
+    FiniteFloat,
+    ItemIn,
+    NoticeOut,
+    StrictModel,
+    ValidityOut,
+    VectorIn,
+)
 from .model import ModelSpec
 
 FormulaName = Literal[formulas_for("comparison")]  # type: ignore[valid-type]
@@ -73,9 +82,12 @@ class ComparisonRequest(StrictModel):
 
 
 class KonusOut(StrictModel):
-    base: float = Field(description="Konüs index at the base living standard, e(p1,u0)/e(p0,u0).")
-    current: float = Field(description="At the current living standard, e(p1,u1)/e(p0,u1).")
-    midpoint: float = Field(description="At the midpoint living standard (see docs).")
+    base: float | None = Field(description="Konüs index at the base living standard, "
+                                           "e(p1,u0)/e(p0,u0); null when the model is outside "
+                                           "its regular region (see validity).")
+    current: float | None = Field(description="At the current living standard, "
+                                              "e(p1,u1)/e(p0,u1).")
+    midpoint: float | None = Field(description="At the midpoint living standard (see docs).")
     reference: float | None = Field(description="At the living standard of reference_income.")
     homothetic: bool = Field(description="True when all of these coincide by construction.")
 
@@ -96,15 +108,18 @@ class FormulaOut(StrictModel):
     value: float = Field(description="The index as a ratio (1 = no change).")
     compared_with: Literal["base", "current", "midpoint"] = Field(
         description="Which Konüs index the bias is measured against.")
-    konus: float
-    bias_points: float = Field(description="100 (value - konus): index points on base 100.")
-    bias_percent: float = Field(description="100 (value / konus - 1).")
+    konus: float | None = Field(description="The Konüs index compared with; null outside the "
+                                            "model's regular region.")
+    bias_points: float | None = Field(description="100 (value - konus): index points on base "
+                                                  "100.")
+    bias_percent: float | None = Field(description="100 (value / konus - 1).")
 
 
 class CompensationOut(StrictModel):
-    compensating_variation: float
-    equivalent_variation: float
-    compensated_income: float = Field(description="e(p1,u0): income keeping u0 at current prices.")
+    compensating_variation: float | None
+    equivalent_variation: float | None
+    compensated_income: float | None = Field(description="e(p1,u0): income keeping u0 at "
+                                                         "current prices.")
     sign_convention: str
 
 
@@ -115,10 +130,13 @@ class ItemOut(StrictModel):
     current_price: float
     price_relative: float
     base_quantity: float = Field(description="x(p0,m0), the model's base demand.")
-    current_quantity: float = Field(description="x(p1,m1), the model's current demand.")
-    compensated_quantity: float = Field(description="h(p1,u0), Hicksian demand at base utility.")
-    substitution_effect: float = Field(description="h(p1,u0) - x(p0,m0).")
-    income_effect: float = Field(description="x(p1,m1) - h(p1,u0).")
+    current_quantity: float | None = Field(description="x(p1,m1), the model's current demand "
+                                                       "(null, like the three that follow, "
+                                                       "outside the regular region).")
+    compensated_quantity: float | None = Field(description="h(p1,u0), Hicksian demand at base "
+                                                           "utility.")
+    substitution_effect: float | None = Field(description="h(p1,u0) - x(p0,m0).")
+    income_effect: float | None = Field(description="x(p1,m1) - h(p1,u0).")
     laspeyres_gap_points: float | None = Field(
         description="This item's part of Laspeyres minus Konüs(u0), in index points; the parts "
                     "add up to the whole gap.")
@@ -133,6 +151,7 @@ class DiagnosticsOut(StrictModel):
 class ComparisonResponse(StrictModel):
     family: str
     items: list[str]
+    validity: ValidityOut
     konus: KonusOut
     living_standards: LivingStandardsOut
     formulas: list[FormulaOut]

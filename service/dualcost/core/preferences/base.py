@@ -64,6 +64,9 @@ class Notice:
 
     code: str
     message: str
+    #: The items the remark is about (0-based positions in the item list), for the caller to
+    #: name by id and label; empty when it concerns no item in particular.
+    items: tuple[int, ...] = ()
 
 
 #: The form a parameter takes, which tells a caller (the web layer) how to read it: a number;
@@ -713,7 +716,7 @@ class RowModels(Preferences):
 
 
 def share_notices(shares: Vector, model: str) -> list[Notice]:
-    """One notice when budget shares lie outside [0, 1], naming the first such item.
+    """One notice when budget shares lie outside [0, 1], naming every such item in ``items``.
 
     A share below zero is a negative demand, and with shares adding up to one a share above one
     goes with one below zero: the model is not monotone there. Flexible forms are regular only
@@ -724,17 +727,13 @@ def share_notices(shares: Vector, model: str) -> list[Notice]:
     bad = np.flatnonzero((shares < 0.0) | (shares > 1.0))
     if not bad.size:
         return []
-    i = int(bad[0])
+    count = "1 item" if bad.size == 1 else f"{bad.size} items"
     message = (
-        f"The {model} budget share of item {i} is {shares[i]:.6g}, outside [0, 1]: the model is "
-        "not regular at these prices."
+        f"The {model} budget share of {count} lies outside [0, 1] (lowest "
+        f"{float(shares[bad].min()):.6g}, highest {float(shares[bad].max()):.6g}): the model "
+        "is not regular at these prices."
     )
-    if bad.size == 2:
-        message += f" The share of item {int(bad[1])} is outside [0, 1] too."
-    elif bad.size > 2:
-        rest = ", ".join(str(int(j)) for j in bad[1:])
-        message += f" The shares of items {rest} are outside [0, 1] too."
-    return [Notice("shares_outside_unit_interval", message)]
+    return [Notice("shares_outside_unit_interval", message, tuple(int(i) for i in bad))]
 
 
 def drop_rounding(difference: Matrix, magnitude: Matrix) -> Matrix:
