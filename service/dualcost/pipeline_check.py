@@ -314,6 +314,22 @@ def print_table(answer: Answer, out: TextIO) -> None:
               file=out)
     verdict = "all agree" if answer["passed"] else f"{answer['failed']} differ"
     print(f"\n{answer['checked']} published values checked: {verdict}.", file=out)
+    warning = model_warning(answer)
+    if warning:
+        print(warning, file=out)
+
+
+def model_warning(answer: Answer) -> str | None:
+    """A line saying the model is outside its regular region, and where, or None."""
+    validity = answer.get("model_validity")
+    if not validity or validity.get("state") == "regular":
+        return None
+    periods = validity.get("periods_outside_regular_region", [])
+    shown = ", ".join(p["period"] for p in periods[:10]) + (" ..." if len(periods) > 10 else "")
+    reasons = sorted({r["code"] for p in periods for r in p["reasons"]})
+    return (f"warning: the {validity['family']} model is outside its regular region in "
+            f"{len(periods)} period(s) ({shown}; {', '.join(reasons)}): its demands there are "
+            "not reliable weights, and neither is any value recomputed with them.")
 
 
 def write_junit(answer: Answer, path: Path, hint: str | None = None) -> None:
@@ -329,8 +345,12 @@ def write_junit(answer: Answer, path: Path, hint: str | None = None) -> None:
                 f"published {r['published']} but recomputed {r['recomputed']} "
                 f"(difference {r['difference']}, tolerance {r['tolerance']})"))
             failure.text = json.dumps(r)
-    if hint:
-        ET.SubElement(suite, "system-out").text = f"hint: {hint}"
+    lines = [f"hint: {hint}"] if hint else []
+    warning = model_warning(answer)
+    if warning:
+        lines.append(warning)
+    if lines:
+        ET.SubElement(suite, "system-out").text = "\n".join(lines)
     root = ET.Element("testsuites", tests=str(answer["checked"]), failures=str(answer["failed"]))
     root.append(suite)
     ET.ElementTree(root).write(path, encoding="utf-8", xml_declaration=True)

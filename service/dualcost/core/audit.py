@@ -17,6 +17,7 @@ from numpy.typing import NDArray
 
 from .errors import InvalidInput
 from .series import series_by_label
+from .validity import Validity
 
 Array = NDArray[np.float64]
 
@@ -48,6 +49,10 @@ class AuditRow:
 @dataclass(frozen=True)
 class Audit:
     rows: list[AuditRow]
+    #: With a model (which fills in the quantities of prices-only periods): the periods where
+    #: it is outside its regular region, with why. Its demands there are not reliable weights.
+    model_outside_regular_region: tuple[tuple[str, Validity], ...] = ()
+    model_family: str | None = None
 
     @property
     def passed(self) -> bool:
@@ -113,4 +118,9 @@ def audit_series(published: Sequence[PublishedValue], *, tolerance: float | None
     result = series_by_label(**(series | {"formulas": needed})).result
     recomputed = {(name, kind): getattr(s, kind) for name, s in result.formulas.items()
                   for kind in SERIES_KINDS}
-    return audit(published, recomputed, result.periods, tolerance=tolerance)
+    checked = audit(published, recomputed, result.periods, tolerance=tolerance)
+    if result.konus is None:
+        return checked
+    outside = tuple((result.periods[t], v) for t, v in enumerate(result.konus.validity)
+                    if not v.regular)
+    return Audit(checked.rows, outside, result.konus.family)

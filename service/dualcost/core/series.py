@@ -72,6 +72,7 @@ from .konus import price_change
 from .multilateral import Splice, bilateral_log_matrix, geks, rolling_geks
 from .preferences import BaseBudget, Notice, Preferences, calibrate
 from .series_panel import PERIODS_PER_YEAR, Array, Panel
+from .validity import REGULAR, Validity, assess
 
 #: The series' names, titles, targets and rules come from the formula registry.
 SERIES_FORMULAS: tuple[str, ...] = formulas_for("series")
@@ -115,6 +116,10 @@ class KonusSeries:
     items: tuple[int, ...]  # panel positions of the model's items
     carried_from: Array  # (T, n_model): period whose price was used, -1 where priced
     rule: str = MODEL_RULE
+    #: Per period, whether the model is regular at that period's prices and spending (items
+    #: named by panel position). Where a period is not, the published series carry NaN: its
+    #: fixed-base values, and the chained values from it on (:func:`withhold_irregular`).
+    validity: tuple[Validity, ...] = ()
 
 
 @dataclass(frozen=True)
@@ -392,7 +397,8 @@ def konus_series(model: Preferences, panel: Panel, base: int, quantities: Array,
         chained = _chain(costs[1:] / costs[:-1], base)
         utilities = m / (costs / u_b)
         return KonusSeries(model.family, True, {k: fixed for k in TARGETS},
-                           {k: chained for k in TARGETS}, m, utilities, tuple(items), carried)
+                           {k: chained for k in TARGETS}, m, utilities, tuple(items), carried,
+                           validity=period_validity(model, pm, m, items))
     u = _over_periods(panel, every, lambda t: v(pm[t], m[t]))
     _over_periods(panel, [base], lambda t: e(pm[t], u[t]))
 
@@ -404,9 +410,49 @@ def konus_series(model: Preferences, panel: Panel, base: int, quantities: Array,
     links = _over_periods(panel, every[1:], lambda t: konus(t - 1, t))
     result = KonusSeries(model.family, False, dict(zip(TARGETS, fixed3, strict=True)),
                          {k: _chain(links[j], base) for j, k in enumerate(TARGETS)}, m, u,
-                         tuple(items), carried)
+                         tuple(items), carried,
+                         validity=period_validity(model, pm, m, items))
     _check_finite_konus(result)
     return result
+
+
+def period_validity(model: Preferences, prices: Array, incomes: Array,
+                    items: Sequence[int]) -> tuple[Validity, ...]:
+    """The model's validity at each period's prices and income (its ``regularity`` checks;
+    families regular by construction answer at once), with items as panel positions."""
+    out = []
+    for t in range(prices.shape[0]):
+        found = model.regularity(prices[t], float(incomes[t]))
+        if not found:
+            out.append(REGULAR)
+            continue
+        out.append(assess(Notice(n.code, n.message, tuple(items[i] for i in n.items))
+                          for n in found))
+    return tuple(out)
+
+
+def withhold_irregular(konus: KonusSeries, base: int) -> KonusSeries:
+    """The series with NaN where the model is outside its regular region: a fixed-base value
+    needs the model regular at the base and at its own period, a chained value at every period
+    from the base to its own (the links between them)."""
+    ok = np.array([v.regular for v in konus.validity], dtype=bool)
+    if ok.all():
+        return konus
+    n_t = ok.size
+    every = np.arange(n_t)
+    fixed_ok = ok & ok[base]
+    lo, hi = np.minimum(every, base), np.maximum(every, base)
+    bad_before = np.concatenate(([0], np.cumsum(~ok)))
+    chained_ok = (bad_before[hi + 1] - bad_before[lo]) == 0
+
+    def masked(values: Array, keep: NDArray[np.bool_]) -> Array:
+        return np.where(keep, values, np.nan)
+
+    return KonusSeries(konus.family, konus.homothetic,
+                       {k: masked(v, fixed_ok) for k, v in konus.fixed_base.items()},
+                       {k: masked(v, chained_ok) for k, v in konus.chained.items()},
+                       konus.incomes, konus.utilities, konus.items, konus.carried_from,
+                       konus.rule, konus.validity)
 
 
 def _check_finite_konus(k: KonusSeries) -> None:
@@ -577,6 +623,20 @@ def index_series(
     lm_sigma, ng_sigma = _elasticities(model, lloyd_moulton_sigma, new_goods_sigma)
     unmet = _unmet(panel, model, wts, lm_sigma, ng_sigma)
     names = _choose_formulas(formulas, unmet, notices)
+    if lloyd_moulton_sigma is None and lm_sigma is not None and "lloyd_moulton" in names:
+        notices.append(Notice("lloyd_moulton_sigma_from_model", "No Lloyd-Moulton elasticity "
+                              "was given: the model's own elasticity of substitution, "
+                              f"{lm_sigma:.10g}, is used."))
+    if new_goods_sigma is None and ng_sigma is not None and "feenstra" in names:
+        notices.append(Notice("new_goods_sigma_from_model", "No new-goods elasticity was given: "
+                              f"the model's own elasticity of substitution, {ng_sigma:.10g}, "
+                              "is used."))
+    if formulas is not None:
+        skipped = [n for n in formulas_for("series") if n not in names]
+        if skipped:
+            notices.append(Notice("formulas_as_asked", "Only the formulas named in formulas "
+                                  "were computed; left out of the default set: "
+                                  f"{', '.join(skipped)}."))
 
     compare = _Comparer(panel, quantities, wts, lm_sigma, ng_sigma)
     raw = _formula_series(compare, [n for n in names if REGISTRY[n].kind == "bilateral"], base,
@@ -651,6 +711,15 @@ def _konus(model: Preferences | None, panel: Panel, base: int, quantities: Array
     if model is None:
         return None
     konus = konus_series(model, panel, base, quantities, items)
+    outside = [panel.periods[t] for t, v in enumerate(konus.validity) if not v.regular]
+    if outside:
+        shown = ", ".join(repr(p) for p in outside[:10]) + (" ..." if len(outside) > 10 else "")
+        notices.append(Notice("konus_outside_regular_region", f"The {model.family} model is "
+                              f"outside its regular region in {len(outside)} period(s) "
+                              f"({shown}): its Konüs values there (and the chained ones across "
+                              "them) and their bias are not results and are left empty; the "
+                              "formula series are unaffected."))
+        konus = withhold_irregular(konus, base)
     if model.homothetic:
         notices.append(Notice("homothetic", f"The {model.family} model is homothetic: its "
                               "Konüs series is the same at every living standard, and its "
@@ -679,7 +748,8 @@ def _published(raw: dict[str, tuple[Array, Array, Array]], multilateral: list[Mu
         konus_out = KonusSeries(konus.family, konus.homothetic,
                                 {k: published(v) for k, v in konus.fixed_base.items()},
                                 {k: published(v) for k, v in konus.chained.items()},
-                                konus.incomes, konus.utilities, konus.items, konus.carried_from)
+                                konus.incomes, konus.utilities, konus.items, konus.carried_from,
+                                konus.rule, konus.validity)
     return series, geks_out, konus_out
 
 
@@ -924,7 +994,24 @@ def series_by_label(
         calibrated = model(budget, items_priced)
     result = index_series(panel, base=base, reference=reference, model=calibrated,
                           weight_reference=weights, span=positions, loop=loop_at, **options)
+    result.notices[:0] = _period_defaults(panel, base_period, reference_period, frequency)
     return LabelledSeries(result, panel, calibrated)
+
+
+def _period_defaults(panel: Panel, base_period: str | None, reference_period: str | None,
+                     frequency: str | None) -> list[Notice]:
+    """Notices for each period setting the service filled in."""
+    out = []
+    if base_period is None:
+        out.append(Notice("base_period_assumed", "No base period was given: the first period, "
+                          f"{panel.periods[0]!r}, is the base (price-reference) period."))
+    if reference_period is None:
+        out.append(Notice("reference_period_assumed", "No index reference period was given: "
+                          "the series are published on the base period."))
+    if frequency is None and panel.frequency is not None:
+        out.append(Notice("frequency_from_labels", "No frequency was given: the period labels "
+                          f"read as {panel.frequency} periods."))
+    return out
 
 
 def _loop_position(panel: Panel, label: str, j: int) -> int:

@@ -17,6 +17,7 @@ from ..problems import RequestProblem, field_errors
 from ..schemas.audit import AuditRequest
 from ..schemas.common import CAUTION
 from . import series
+from .answers import notices_json
 
 PLACES: dict[str, Place] = series.PLACES | {
     "tolerance": Place("/tolerance"),
@@ -42,8 +43,14 @@ def run(request: AuditRequest, settings: Settings) -> Audit:
         return audit_series(values, tolerance=request.tolerance, **arguments)
 
 
-def document(result: Audit) -> dict[str, Any]:
-    """The answer as plain values, in the shape of ``AuditResponse``."""
+def document(result: Audit, request: AuditRequest | None = None) -> dict[str, Any]:
+    """The answer as plain values, in the shape of ``AuditResponse``; the request's items name
+    the items of the model's reasons."""
+    ids: list[str] = []
+    labels: list[str | None] = []
+    for it in (request.items if request is not None else []):
+        ids.append(it if isinstance(it, str) else it.id)
+        labels.append(None if isinstance(it, str) else it.label)
     def finite(x: float) -> float | None:
         return x if x == x and abs(x) != float("inf") else None
 
@@ -53,6 +60,14 @@ def document(result: Audit) -> dict[str, Any]:
                   "published": r.published, "recomputed": finite(r.recomputed),
                   "difference": finite(r.difference), "tolerance": r.tolerance,
                   "passed": r.passed} for r in result.rows],
+        "model_validity": None if result.model_family is None else {
+            "family": result.model_family,
+            "state": "outside_regular_region" if result.model_outside_regular_region
+            else "regular",
+            "periods_outside_regular_region": [
+                {"period": period, "reasons": notices_json(v.reasons, ids, labels)}
+                for period, v in result.model_outside_regular_region],
+        },
         "tolerance_rule": TOLERANCE_RULE, "caution": CAUTION,
     }
 
@@ -66,4 +81,4 @@ def audit_json(body: Mapping[str, Any], settings: Settings) -> dict[str, Any]:
         request = AuditRequest.model_validate(body)
     except ValidationError as exc:
         raise RequestProblem(field_errors(exc.errors(), body, prefix=("body",))) from None
-    return document(run(request, settings))
+    return document(run(request, settings), request)

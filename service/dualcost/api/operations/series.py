@@ -26,6 +26,7 @@ from ..inputs.query import json_parameter, names
 from ..observability import computing
 from ..schemas.common import CAUTION
 from ..schemas.series import SeriesOptions
+from .answers import notices_json
 
 #: Where each core argument of a series is: in the JSON body, in the query string (the CSV
 #: upload's options and the spreadsheet form) and in the CSV upload's columns.
@@ -180,7 +181,7 @@ def document(outcome: Outcome) -> dict[str, Any]:
             "splice": g.splice, "loop_product": drift.loop_product[g.name],
             "rule_for_items_that_come_and_go": g.rule} for g in r.multilateral],
         "bias": [{"series": b.series, "kind": b.kind, "compared_with": b.compared_with,
-                  "points": b.points.tolist(), "percent": b.percent.tolist()} for b in r.bias],
+                  "points": _values(b.points), "percent": _values(b.percent)} for b in r.bias],
         "annual_bias": _annual(r, labels),
         "chain_drift": {"loop": [labels[t] for t in drift.loop],
                         "periods_with_base_prices": [labels[t] for t in
@@ -193,7 +194,11 @@ def document(outcome: Outcome) -> dict[str, Any]:
             "detail": describe_treatment(e, labels, r.base)} for e in r.item_treatment],
         "weights": _weights_out(r, labels, outcome.axis.ids),
         "lloyd_moulton_sigma": r.lloyd_moulton_sigma, "new_goods_sigma": r.new_goods_sigma,
-        "notices": [{"code": n.code, "message": n.message} for n in r.notices],
+        "notices": notices_json(r.notices, outcome.axis.ids, outcome.axis.labels),
+        "scale": {"levels": f"index levels on the reference period = {r.reference_value:g}",
+                  "links": "period-to-period links as ratios (1 = no change)",
+                  "bias_points": "index points on reference 100, whatever reference_value is",
+                  "percent": "percent"},
         "caution": CAUTION,
     }
 
@@ -204,13 +209,34 @@ def _konus(outcome: Outcome) -> dict[str, Any] | None:
         return None
     return {
         "family": k.family, "homothetic": k.homothetic,
-        "fixed_base": {t: v.tolist() for t, v in k.fixed_base.items()},
-        "chained": {t: v.tolist() for t, v in k.chained.items()},
+        "fixed_base": {t: _values(v) for t, v in k.fixed_base.items()},
+        "chained": {t: _values(v) for t, v in k.chained.items()},
+        "validity": _validity(outcome),
         "incomes": k.incomes.tolist(), "utilities": k.utilities.tolist(),
         "items": [outcome.axis.ids[i] for i in k.items],
         "model_parameters": dict(outcome.model.parameters()) if outcome.model is not None else {},
         "rule_for_items_that_come_and_go": MODEL_RULE,
     }
+
+
+def _values(values: np.ndarray) -> list[float | None]:
+    """A series as JSON: None where it has no value (NaN: the model's value withheld outside its
+    regular region)."""
+    return [x if np.isfinite(x) else None for x in values.tolist()]
+
+
+def _validity(outcome: Outcome) -> dict[str, Any]:
+    """Whether the model is regular in every period, and the periods where it is not, each with
+    its reasons naming the items by id and label."""
+    k, labels, axis = outcome.result.konus, outcome.result.periods, outcome.axis
+    assert k is not None
+    outside = [{"period": labels[t], "reasons": notices_json(v.reasons, axis.ids, axis.labels)}
+               for t, v in enumerate(k.validity) if not v.regular]
+    return {"state": "outside_regular_region" if outside else "regular",
+            "periods_outside_regular_region": outside,
+            "rule": "Where the model is not regular in a period, its fixed-base Konüs values "
+                    "there, its chained values across that period, and their bias are null: "
+                    "not results. The formula series are unaffected."}
 
 
 def _annual(r: IndexSeries, labels: list[str]) -> dict[str, Any] | None:
@@ -222,8 +248,8 @@ def _annual(r: IndexSeries, labels: list[str]) -> dict[str, Any] | None:
         "definition": ANNUAL_DEFINITION,
         "by_series": [{"series": a.series, "kind": a.kind, "compared_with": a.compared_with,
                        "annual_rate_percent": a.rate_percent,
-                       "konus_annual_rate_percent": a.konus_rate_percent,
-                       "bias_pp_per_year": a.bias_pp} for a in r.annual_bias],
+                       "konus_annual_rate_percent": _num(a.konus_rate_percent),
+                       "bias_pp_per_year": _num(a.bias_pp)} for a in r.annual_bias],
     }
 
 

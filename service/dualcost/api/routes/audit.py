@@ -23,4 +23,4 @@ def audit_published(body: AuditRequest, request: Request) -> Response:
     each a formula, a series (fixed_base or chained), a period and a value. Every value is
     recomputed and passes when within its tolerance; `passed` is true when all do. The same
     check runs from the command line as `dualcost check`."""
-    return json_response(audit.document(audit.run(body, settings_of(request))))
+    return json_response(audit.document(audit.run(body, settings_of(request)), body))

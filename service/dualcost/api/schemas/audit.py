@@ -7,7 +7,7 @@ from typing import Literal
 from pydantic import Field
 
 from .common import FiniteFloat, StrictModel
-from .series import PeriodLabel, SeriesFormula, SeriesRequest
+from .series import PeriodLabel, PeriodValidityOut, SeriesFormula, SeriesRequest
 
 
 class PublishedIn(StrictModel):
@@ -38,10 +38,20 @@ class AuditRowOut(StrictModel):
     passed: bool
 
 
+class ModelValidityOut(StrictModel):
+    family: str
+    state: Literal["regular", "outside_regular_region"]
+    periods_outside_regular_region: list[PeriodValidityOut]
+
+
 class AuditResponse(StrictModel):
     passed: bool
     checked: int
     failed: int
     rows: list[AuditRowOut]
+    model_validity: ModelValidityOut | None = Field(
+        description="With a model: whether it is regular in every period. Outside its regular "
+                    "region its demands (the quantities of prices-only periods) are not "
+                    "reliable weights, so values recomputed with them are not either.")
     tolerance_rule: str
     caution: str

@@ -116,13 +116,27 @@ class FormulaSeriesOut(StrictModel):
     rule_for_items_that_come_and_go: str
 
 
+class PeriodValidityOut(StrictModel):
+    period: str
+    reasons: list[NoticeOut]
+
+
+class KonusValidityOut(StrictModel):
+    state: Literal["regular", "outside_regular_region"]
+    periods_outside_regular_region: list[PeriodValidityOut]
+    rule: str
+
+
 class KonusSeriesOut(StrictModel):
     family: str
     homothetic: bool
-    fixed_base: dict[str, list[float]] = Field(
-        description="base: e(p_t,u_b)/e(p_b,u_b); current: e(p_t,u_t)/e(p_b,u_t); midpoint.")
-    chained: dict[str, list[float]] = Field(
-        description="Links t-1 -> t at u_{t-1} (base), at u_t (current) or at their midpoint.")
+    fixed_base: dict[str, list[float | None]] = Field(
+        description="base: e(p_t,u_b)/e(p_b,u_b); current: e(p_t,u_t)/e(p_b,u_t); midpoint. "
+                    "null where the model is outside its regular region (see validity).")
+    chained: dict[str, list[float | None]] = Field(
+        description="Links t-1 -> t at u_{t-1} (base), at u_t (current) or at their midpoint; "
+                    "null from a period where the model is not regular on.")
+    validity: KonusValidityOut
     incomes: list[float] = Field(description="Spending on the model's items per period.")
     utilities: list[float] = Field(description="u_t = v(p_t, m_t), the model's own scale.")
     items: list[str] = Field(description="The model's items: those priced in the base period.")
@@ -145,8 +159,9 @@ class BiasOut(StrictModel):
     series: str
     kind: Literal["fixed_base", "chained", "full_span", "rolling"]
     compared_with: Literal["base", "current", "midpoint"]
-    points: list[float] = Field(description="100 (P_t - K_t), on reference 100.")
-    percent: list[float] = Field(description="100 (P_t / K_t - 1).")
+    points: list[float | None] = Field(description="100 (P_t - K_t), on reference 100; null "
+                                                   "where K_t is withheld.")
+    percent: list[float | None] = Field(description="100 (P_t / K_t - 1).")
 
 
 class AnnualBiasOut(StrictModel):
@@ -154,8 +169,8 @@ class AnnualBiasOut(StrictModel):
     kind: Literal["fixed_base", "chained", "full_span", "rolling"]
     compared_with: Literal["base", "current", "midpoint"]
     annual_rate_percent: float
-    konus_annual_rate_percent: float
-    bias_pp_per_year: float = Field(description="Difference of the average annual rates, in "
+    konus_annual_rate_percent: float | None
+    bias_pp_per_year: float | None = Field(description="Difference of the average annual rates, in "
                                     "percentage points.")
 
 
@@ -223,6 +238,7 @@ class SeriesResponse(StrictModel):
     lloyd_moulton_sigma: float | None
     new_goods_sigma: float | None
     notices: list[NoticeOut]
+    scale: dict[str, str] = Field(description="How each kind of figure is scaled.")
     caution: str
 
 
