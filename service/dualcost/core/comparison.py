@@ -358,8 +358,7 @@ def _vanishing_shares(p0: Vector, q0: Vector, m0: float) -> list[Notice]:
     """A notice naming the bought items whose base expenditure share is too small for floating
     point (it rounds to zero, beside items worth 1e300 times more): the model gives them a zero
     weight and a zero demand."""
-    with np.errstate(under="ignore"):
-        shares = p0 * q0 / m0
+    shares = p0 * q0 / m0  # underflow is silent by numpy's default
     lost = np.flatnonzero((q0 > 0.0) & (shares == 0.0))
     if not lost.size:
         return []
@@ -415,7 +414,16 @@ def _demands_and_diagnostics(change: PriceChange, q0: Vector, q1: Vector,
     return demands, diagnostics
 
 
-def _formula_results(
+def _formula_results(data: IndexData, konus: KonusIndices, requested: Sequence[str] | None,
+                     notices: list[Notice], *, q1_observed: bool = True
+                     ) -> dict[str, FormulaResult]:
+    """Each formula's value and bias; floating-point warnings are off (a value beyond floating
+    point is caught as not finite and left out, or refused, by name)."""
+    with np.errstate(all="ignore"):
+        return _each_formula(data, konus, requested, notices, q1_observed=q1_observed)
+
+
+def _each_formula(
     data: IndexData,
     konus: KonusIndices,
     requested: Sequence[str] | None,
@@ -470,8 +478,7 @@ def _formula_results(
                 raise InvalidInput("formulas", text + " (give observed current quantities, or "
                                    "leave this formula out).", i)
         check_positive_shares(data, formula)
-        with np.errstate(all="ignore"):
-            value = float(formula.compute(data))
+        value = float(formula.compute(data))
         if not math.isfinite(value):
             text = (f"The {formula.title} index is beyond floating point at these prices and "
                     "quantities (its sums overflow or underflow)")

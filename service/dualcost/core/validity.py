@@ -90,6 +90,8 @@ def negative_demands(where: str, demands: Mapping[str, Vector], *,
     """
     out = []
     for name, x in demands.items():
+        if x.min() >= 0.0:  # the common case, in one reduction
+            continue
         floor = -tolerance * max(float(np.max(np.abs(x))), 1e-300)
         bad = np.flatnonzero(x < floor)
         if bad.size:
