@@ -6,7 +6,7 @@ from typing import Literal
 
 from pydantic import Field
 
-from .common import FiniteFloat, StrictModel
+from .common import FiniteFloat, ProvenanceOut, StrictModel
 from .series import PeriodLabel, SeriesFormula, SeriesRequest
 
 
@@ -45,3 +45,4 @@ class AuditResponse(StrictModel):
     rows: list[AuditRowOut]
     tolerance_rule: str
     caution: str
+    provenance: ProvenanceOut

@@ -7,7 +7,16 @@ from typing import Any, Literal
 from pydantic import Field, model_validator
 
 from ...core.indices import formulas_for
-from .common import CAUTION, SIGN_CONVENTION, FiniteFloat, ItemIn, NoticeOut, StrictModel, VectorIn
+from .common import (
+    CAUTION,
+    SIGN_CONVENTION,
+    FiniteFloat,
+    ItemIn,
+    NoticeOut,
+    ProvenanceOut,
+    StrictModel,
+    VectorIn,
+)
 from .model import ModelSpec
 
 FormulaName = Literal[formulas_for("comparison")]  # type: ignore[valid-type]
@@ -130,7 +139,9 @@ class DiagnosticsOut(StrictModel):
     base_bundle_gap: float
 
 
-class ComparisonResponse(StrictModel):
+class ComparisonOut(StrictModel):
+    """A comparison's figures (inside a fitted comparison's answer, too)."""
+
     family: str
     items: list[str]
     konus: KonusOut
@@ -146,4 +157,12 @@ class ComparisonResponse(StrictModel):
     caution: str
 
 
-__all__ = ["CAUTION", "SIGN_CONVENTION", "ComparisonRequest", "ComparisonResponse", "FormulaName"]
+
+class ComparisonResponse(ComparisonOut):
+    """The answer of POST /v1/comparisons: the comparison, and where it came from."""
+
+    provenance: ProvenanceOut
+
+
+__all__ = ["CAUTION", "SIGN_CONVENTION", "ComparisonOut", "ComparisonRequest",
+           "ComparisonResponse", "FormulaName"]
