@@ -456,3 +456,16 @@ def test_accept_parsing() -> None:
                            "*/json, text/plain;q=abc, application/json;q=1;ext=1")
     assert [(r.type, r.subtype, r.q) for r in ranges] == [
         ("text", "csv", 0.3), ("*", "*", 0.1), ("application", "json", 1.0)]
+
+
+def test_a_dashboard_elsewhere_may_read_the_provenance_headers() -> None:
+    """CORS (Fetch standard): headers outside the safelist reach a page of another origin only
+    when Access-Control-Expose-Headers names them."""
+    from dualcost.api.app import create_app
+    from dualcost.config import Settings
+
+    origin = "https://dashboards.wrenmouth.example"
+    client = TestClient(create_app(Settings(examples_dir=EXAMPLES, cors_origins=(origin,))))
+    r = client.post("/v1/comparisons", json=BASKET, headers={"origin": origin})
+    exposed = {h.strip().lower() for h in r.headers["access-control-expose-headers"].split(",")}
+    assert {"dualcost-version", "dualcost-input-digest", "dualcost-caution"} <= exposed

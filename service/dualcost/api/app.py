@@ -40,6 +40,13 @@ index points (base 100) and in percent.
 """
 
 
+#: The headers of an answer that a page from another origin may read (CORS): where the answer
+#: came from, how its numbers are written, and the rows a household batch left out.
+EXPOSED_HEADERS = ["Dualcost-Version", "Dualcost-Input-Digest", "Dualcost-Caution",
+                   "Dualcost-Decimal", "Dualcost-Separator", "Dualcost-Skipped-Rows", "Location",
+                   "Content-Location", "Link"]
+
+
 @asynccontextmanager
 async def _lifespan(app: FastAPI) -> AsyncIterator[None]:
     """Warm up the numerical core once, then declare the process ready."""
@@ -81,7 +88,8 @@ def create_app(settings: Settings | None = None) -> FastAPI:
     app.add_middleware(BodySizeLimitMiddleware, max_body_bytes=settings.max_body_bytes)
     if settings.cors_origins:
         app.add_middleware(CORSMiddleware, allow_origins=list(settings.cors_origins),
-                           allow_methods=["GET", "HEAD", "POST", "OPTIONS"], allow_headers=["*"])
+                           allow_methods=["GET", "HEAD", "POST", "OPTIONS"], allow_headers=["*"],
+                           expose_headers=EXPOSED_HEADERS)
     problems.install(app)
     # Outermost: every request gets its id, log line and metrics, refusals included.
     app.add_middleware(RequestContextMiddleware)
