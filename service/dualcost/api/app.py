@@ -37,6 +37,13 @@ statistics and to the applicable law or agreement.
 Errors are RFC 9457 problem details (`application/problem+json`) whose `errors` list points at
 each offending field with a JSON Pointer. Indices are ratios (1 = no change); biases are given in
 index points (base 100) and in percent.
+
+Every answer states its provenance: the service version and `sha256:` digest of the canonical
+input (the request body in the JSON Canonicalization Scheme, RFC 8785), in a JSON answer's
+`provenance` member and in the `Dualcost-Version` and `Dualcost-Input-Digest` headers; CSV and
+text answers carry the caution in `Dualcost-Caution`. Every operation under /v1 honours the
+`Accept` header (a `format` query parameter, where there is one, decides over it) and answers
+406 when the header admits none of its media types.
 """
 
 
