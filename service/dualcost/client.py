@@ -16,6 +16,15 @@ Every method returns the answer decoded by its content type:
 - other text (``text/plain``, ``text/html``...): ``str``; any other type: ``bytes``;
 - 204 No Content, or any answer with an empty body: ``None``.
 
+Every answer of an operation says where it came from: a JSON answer in its ``provenance``
+member, a CSV answer in its headers, which the :class:`Table` keeps as ``Table.provenance``
+(a :class:`Provenance`: the service's version, the digest of the canonical input, and the
+indexation caution). :func:`provenance_of` reads either; :func:`input_digest` recomputes a
+JSON body's digest here, to compare with the service's::
+
+    answer = dc.compare(body)
+    assert provenance_of(answer).input_digest == input_digest(body)
+
 ``api_key`` is sent in the ``X-API-Key`` header of every request. Options of an operation are
 keyword-only arguments; options sent as query parameters take Python values (a list is sent
 comma-separated, a mapping as JSON text, ``True``/``False`` as ``true``/``false``).
@@ -45,10 +54,12 @@ from typing import IO, Any, Literal, TypeAlias, overload
 
 import httpx
 
+from .canonical import digest_of
 from .core.errors import DualcostError
 
-__all__ = ["Cell", "Client", "ClientError", "CsvBody", "ProblemError", "ServiceUnreachable",
-           "Table", "UnreadableAnswer", "parse_cell"]
+__all__ = ["Cell", "Client", "ClientError", "CsvBody", "ProblemError", "Provenance",
+           "ServiceUnreachable", "Table", "UnreadableAnswer", "input_digest", "parse_cell",
+           "provenance_of"]
 
 #: One CSV cell of an answer: a number, a truth value, None for an empty cell, else text.
 Cell: TypeAlias = str | int | float | bool | None
@@ -110,6 +121,49 @@ class UnreadableAnswer(ClientError):
     """A successful answer whose body does not parse as its content type says."""
 
 
+# -- provenance -------------------------------------------------------------------------------
+
+
+@dataclass(frozen=True)
+class Provenance:
+    """Where an answer came from: the ``version`` of the service that computed it and
+    ``input_digest``, ``sha256:`` and the SHA-256 of its canonical input (see
+    :func:`input_digest`); for a CSV or text answer also the indexation ``caution`` of its
+    ``Dualcost-Caution`` header (or of the trailer rows)."""
+
+    version: str
+    input_digest: str
+    caution: str | None = None
+    service: str = "dualcost"
+
+    @classmethod
+    def from_headers(cls, headers: Mapping[str, str]) -> Provenance | None:
+        version, digest = headers.get("dualcost-version"), headers.get("dualcost-input-digest")
+        if version is None or digest is None:
+            return None
+        return cls(version, digest, headers.get("dualcost-caution"))
+
+
+def provenance_of(answer: Any) -> Provenance | None:
+    """The provenance of a decoded answer: a JSON answer's ``provenance`` member, a
+    :class:`Table`'s ``provenance``; None when the answer carries none."""
+    if isinstance(answer, Table):
+        return answer.provenance
+    given = answer.get("provenance") if isinstance(answer, Mapping) else None
+    if isinstance(given, Mapping) and "version" in given and "input_digest" in given:
+        return Provenance(str(given["version"]), str(given["input_digest"]),
+                          service=str(given.get("service", "dualcost")))
+    return None
+
+
+def input_digest(body: Any) -> str:
+    """The digest the service states for a JSON ``body`` (``sha256:`` and the SHA-256 of the
+    body in the JSON Canonicalization Scheme, RFC 8785), computed here. It equals the
+    service's for a body the service accepts whose values have the types its schema gives them
+    (numbers as numbers, not as text)."""
+    return digest_of(body)
+
+
 # -- CSV answers ------------------------------------------------------------------------------
 
 # A number as the service writes one (Python's shortest round-trip form). Leading zeros are not
@@ -130,26 +184,38 @@ def parse_cell(text: str) -> Cell:
     return float(text) if match.group(1) or match.group(2) else int(text)
 
 
+#: The first cells of the rows that close a CSV table asked for with ``provenance="trailer"``.
+_TRAILER = ("#dualcost-version", "#dualcost-input-digest", "#dualcost-caution")
+
+
 @dataclass(frozen=True)
 class Table:
-    """A CSV answer: ``header`` (column names), ``rows`` (cells parsed by :func:`parse_cell`)
-    and ``text``, the CSV as the service sent it."""
+    """A CSV answer: ``header`` (column names), ``rows`` (cells parsed by :func:`parse_cell`),
+    ``text``, the CSV as the service sent it, and ``provenance``, from the answer's headers
+    (or from its trailer rows, which are then not among ``rows``)."""
 
     header: tuple[str, ...]
     rows: tuple[tuple[Cell, ...], ...]
     text: str = field(repr=False, default="")
+    provenance: Provenance | None = None
 
     @classmethod
-    def from_csv(cls, text: str) -> Table:
+    def from_csv(cls, text: str, provenance: Provenance | None = None) -> Table:
         """The table of a CSV text; a row whose length is not the header's raises ValueError."""
         records = list(csv.reader(io.StringIO(text)))
         if not records:
-            return cls((), (), text)
+            return cls((), (), text, provenance)
         header = tuple(records[0])
         for n, record in enumerate(records[1:], start=2):
             if len(record) != len(header):
                 raise ValueError(f"record {n} has {len(record)} cells, the header {len(header)}")
-        return cls(header, tuple(tuple(parse_cell(c) for c in r) for r in records[1:]), text)
+        body = records[1:]
+        if len(body) >= 3 and tuple(r[0] for r in body[-3:]) == _TRAILER:
+            version, digest, caution = (r[1] for r in body[-3:])
+            provenance = provenance or Provenance(version, digest, caution)
+            body = body[:-3]
+        return cls(header, tuple(tuple(parse_cell(c) for c in r) for r in body), text,
+                   provenance)
 
     def __len__(self) -> int:
         return len(self.rows)
@@ -198,7 +264,7 @@ def _decode(response: httpx.Response) -> Any:
         if media == "application/json" or media.endswith("+json"):
             return response.json()
         if media == "text/csv":
-            return Table.from_csv(response.text)
+            return Table.from_csv(response.text, Provenance.from_headers(response.headers))
     except (ValueError, csv.Error) as exc:
         raise UnreadableAnswer(f"the {media} answer of {response.request.method} "
                                f"{response.request.url} cannot be read: {exc}") from None

@@ -12,8 +12,10 @@ Inputs are files:
   ``POST /v1/index-series`` body (which may carry the options too).
 
 The check runs in process, or against a running service with ``--url`` (``POST /v1/audits``).
-It prints a table, writes JUnit XML with ``--junit`` (one test case per published value) and
-exits
+It prints a table and the provenance of the recomputation (the version of dualcost that made it
+and the digest of the audit request it made it from, as the answer states them), writes JUnit
+XML with ``--junit`` (one test case per published value; the provenance as the suite's
+properties) and exits
 
 - 0 when every published value agrees with its recomputation,
 - 1 when one differs,
@@ -314,6 +316,7 @@ def print_table(answer: Answer, out: TextIO) -> None:
               file=out)
     verdict = "all agree" if answer["passed"] else f"{answer['failed']} differ"
     print(f"\n{answer['checked']} published values checked: {verdict}.", file=out)
+    print(provenance_line(answer), file=out)
     warning = model_warning(answer)
     if warning:
         print(warning, file=out)
@@ -332,11 +335,33 @@ def model_warning(answer: Answer) -> str | None:
             "not reliable weights, and neither is any value recomputed with them.")
 
 
+def provenance_of(answer: Answer) -> dict[str, str] | None:
+    """The answer's ``provenance`` (version and input digest), if it states one."""
+    given = answer.get("provenance")
+    if isinstance(given, dict) and "version" in given and "input_digest" in given:
+        return {"version": str(given["version"]), "input_digest": str(given["input_digest"])}
+    return None
+
+
+def provenance_line(answer: Answer) -> str:
+    """Which version recomputed the values, from which input (the audit request's digest)."""
+    given = provenance_of(answer)
+    if given is None:
+        return "Recomputed by a dualcost service that does not state its version or input digest."
+    return (f"Recomputed by dualcost {given['version']} from input {given['input_digest']} "
+            f"(the audit request in RFC 8785 canonical form).")
+
+
 def write_junit(answer: Answer, path: Path, hint: str | None = None) -> None:
     """JUnit XML: one test suite, one test case per published value; the hint, if any, as the
     suite's standard output."""
     suite = ET.Element("testsuite", name="dualcost check", tests=str(answer["checked"]),
                        failures=str(answer["failed"]), errors="0", skipped="0")
+    given = provenance_of(answer)
+    if given is not None:
+        properties = ET.SubElement(suite, "properties")
+        for name in ("version", "input_digest"):
+            ET.SubElement(properties, "property", name=f"dualcost.{name}", value=given[name])
     for r in answer["rows"]:
         case = ET.SubElement(suite, "testcase", classname=f"dualcost.{r['series']}.{r['formula']}",
                              name=f"{r['formula']} {r['series']} {r['period']}")

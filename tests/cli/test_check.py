@@ -9,6 +9,7 @@ Bank (2004), Consumer Price Index Manual, ch. 19, Tables 19.1-19.3 (recalled fro
 
 from __future__ import annotations
 
+import importlib.metadata
 import json
 import subprocess
 import sys
@@ -98,6 +99,29 @@ def test_against_a_running_service(tmp_path, live_url, wrong, code) -> None:
     published, panel = write_inputs(tmp_path, wrong=wrong)
     done = run_check(str(published), str(panel), "--reference-value", "1", "--url", live_url)
     assert done.returncode == code, done.stdout + done.stderr
+    assert f"Recomputed by dualcost {importlib.metadata.version('dualcost')} from input sha256:" \
+        in done.stdout
+
+
+def test_the_report_states_the_version_and_the_input_digest(tmp_path, capsys) -> None:
+    """In process and through a service alike: the version that recomputed the values and the
+    digest of the audit request (recomputed here from the request the check builds), after
+    the verdict, and as properties of the JUnit suite."""
+    from dualcost.client import input_digest
+    from dualcost.pipeline_check import audit_request, panel_from_file, published_from_file
+
+    published, panel = write_inputs(tmp_path)
+    body = audit_request(published_from_file(published), panel_from_file(panel),
+                         options={"reference_value": 1}, tolerance=None)
+    version, digest = importlib.metadata.version("dualcost"), input_digest(body)
+    report = tmp_path / "report.xml"
+    code, out, _ = check_in_process(capsys, str(published), str(panel), "--reference-value", "1",
+                                    "--junit", str(report))
+    assert code == 0
+    assert out.splitlines()[-1] == (f"Recomputed by dualcost {version} from input {digest} (the "
+                                    "audit request in RFC 8785 canonical form).")
+    properties = {p.get("name"): p.get("value") for p in ET.parse(report).getroot().iter("property")}
+    assert properties == {"dualcost.version": version, "dualcost.input_digest": digest}
 
 
 def test_the_audit_operation_over_http(client) -> None:

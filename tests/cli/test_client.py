@@ -20,10 +20,13 @@ from dualcost.client import (
     Client,
     ClientError,
     ProblemError,
+    Provenance,
     ServiceUnreachable,
     Table,
     UnreadableAnswer,
+    input_digest,
     parse_cell,
+    provenance_of,
 )
 from tests.api.test_comparisons import small_request
 from tests.cli.conftest import API_KEY
@@ -52,8 +55,9 @@ def answering(response: httpx.Response) -> tuple[Client, list[httpx.Request]]:
 
 def test_the_public_names_are_frozen() -> None:
     assert sorted(dualcost.client.__all__) == [
-        "Cell", "Client", "ClientError", "CsvBody", "ProblemError", "ServiceUnreachable", "Table",
-        "UnreadableAnswer", "parse_cell"]
+        "Cell", "Client", "ClientError", "CsvBody", "ProblemError", "Provenance",
+        "ServiceUnreachable", "Table", "UnreadableAnswer", "input_digest", "parse_cell",
+        "provenance_of"]
 
 
 def test_options_are_keyword_only() -> None:
@@ -102,6 +106,25 @@ def test_a_csv_answer_is_a_table_with_numbers_parsed() -> None:
     assert table.records()[1]["note"] == "a, b"
     with pytest.raises(KeyError, match="the columns are period"):
         table.column("paasche")
+
+
+def test_a_csv_answer_keeps_its_provenance() -> None:
+    """From the answer's headers; or from the trailer rows, which are not data rows."""
+    headers = {"content-type": "text/csv", "dualcost-version": "9.9", "dualcost-caution": "Care.",
+               "dualcost-input-digest": "sha256:" + "0" * 64}
+    client, _ = answering(httpx.Response(200, text="a,b\r\n1,2\r\n", headers=headers))
+    table = client.fit({}, format="csv")
+    assert table.provenance == Provenance("9.9", "sha256:" + "0" * 64, "Care.")
+    assert provenance_of(table) == table.provenance
+    trailed = Table.from_csv("a,b\r\n1,2\r\n#dualcost-version,9.9\r\n"
+                             "#dualcost-input-digest,sha256:ab\r\n#dualcost-caution,Care.\r\n")
+    assert trailed.rows == ((1, 2),) and trailed.provenance == Provenance("9.9", "sha256:ab",
+                                                                          "Care.")
+    assert Table.from_csv("a\r\n1\r\n").provenance is None
+    assert provenance_of({"provenance": {"service": "dualcost", "version": "9.9",
+                                         "input_digest": "sha256:ab"}}) == \
+        Provenance("9.9", "sha256:ab")
+    assert provenance_of({"konus": {}}) is None and provenance_of("1.5") is None
 
 
 @pytest.mark.parametrize("text,value", [
@@ -241,6 +264,9 @@ def test_client_compares_and_lists(live_url) -> None:
     with Client(live_url) as dc:
         assert dc.health()["status"] == "ok"
         answer = dc.compare(small_request())
+        # The service's digest of the body is the one computed here (RFC 8785, SHA-256).
+        origin = provenance_of(answer)
+        assert origin is not None and origin.input_digest == input_digest(small_request())
         lasp = next(f for f in answer["formulas"] if f["formula"] == "laspeyres")
         assert_allclose(lasp["value"], (1.3 * 10 + 2 * 5 + 3.6 * 2) / (10 + 10 + 8), rtol=1e-12)
         assert "ces" in {f["family"] for f in dc.families()}
@@ -270,6 +296,13 @@ def test_index_series_as_json_and_as_a_table_agree(live_url) -> None:
     assert_allclose(table.column("laspeyres_fixed_base"), laspeyres["fixed_base"], rtol=1e-15)
     assert uploaded.column("laspeyres_fixed_base") == table.column("laspeyres_fixed_base")
     assert from_file["base_period"] == "2025-01" and from_file["periods"] == answer["periods"]
+    # The JSON answer and the table of one request state one input; an upload its own.
+    assert table.provenance is not None and table.provenance.caution
+    assert table.provenance == Provenance(answer["provenance"]["version"],
+                                          answer["provenance"]["input_digest"],
+                                          table.provenance.caution)
+    assert uploaded.provenance is not None
+    assert uploaded.provenance.input_digest == from_file["provenance"]["input_digest"]
 
 
 def test_households_in_one_batch_and_as_a_job(live_url) -> None:

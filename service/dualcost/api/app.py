@@ -37,7 +37,21 @@ statistics and to the applicable law or agreement.
 Errors are RFC 9457 problem details (`application/problem+json`) whose `errors` list points at
 each offending field with a JSON Pointer. Indices are ratios (1 = no change); biases are given in
 index points (base 100) and in percent.
+
+Every answer states its provenance: the service version and `sha256:` digest of the canonical
+input (the request body in the JSON Canonicalization Scheme, RFC 8785), in a JSON answer's
+`provenance` member and in the `Dualcost-Version` and `Dualcost-Input-Digest` headers; CSV and
+text answers carry the caution in `Dualcost-Caution`. Every operation under /v1 honours the
+`Accept` header (a `format` query parameter, where there is one, decides over it) and answers
+406 when the header admits none of its media types.
 """
+
+
+#: The headers of an answer that a page from another origin may read (CORS): where the answer
+#: came from, how its numbers are written, and the rows a household batch left out.
+EXPOSED_HEADERS = ["Dualcost-Version", "Dualcost-Input-Digest", "Dualcost-Caution",
+                   "Dualcost-Decimal", "Dualcost-Separator", "Dualcost-Skipped-Rows", "Location",
+                   "Content-Location", "Link"]
 
 
 @asynccontextmanager
@@ -81,7 +95,8 @@ def create_app(settings: Settings | None = None) -> FastAPI:
     app.add_middleware(BodySizeLimitMiddleware, max_body_bytes=settings.max_body_bytes)
     if settings.cors_origins:
         app.add_middleware(CORSMiddleware, allow_origins=list(settings.cors_origins),
-                           allow_methods=["GET", "HEAD", "POST", "OPTIONS"], allow_headers=["*"])
+                           allow_methods=["GET", "HEAD", "POST", "OPTIONS"], allow_headers=["*"],
+                           expose_headers=EXPOSED_HEADERS)
     problems.install(app)
     # Outermost: every request gets its id, log line and metrics, refusals included.
     app.add_middleware(RequestContextMiddleware)

@@ -33,6 +33,8 @@ class ProblemOut(BaseModel):
     detail: str
     instance: str | None = None
     errors: list[FieldErrorOut] | None = None
+    acceptable: list[str] | None = Field(
+        None, description="406 only: the media types the operation answers.")
 
 
 #: Error answers every operation can give (the request size limit, malformed input, a bug).
@@ -47,6 +49,9 @@ _PROTECTED = {
     "429": "This API key's rate limit is used up (when configured); see Retry-After.",
 }
 _COMPUTING = {"503": "The computation ran past the service's compute deadline."}
+#: Every operation under /v1 that answers with a body honours the Accept header.
+_NEGOTIATED = {"406": "The Accept header admits none of the media types this operation "
+                      "answers (listed in `acceptable`)."}
 
 
 def problem_openapi(app: FastAPI) -> dict[str, Any]:
@@ -66,7 +71,8 @@ def problem_openapi(app: FastAPI) -> dict[str, Any]:
             responses = op.setdefault("responses", {})
             extra = dict(_ALWAYS)
             if path.startswith("/v1/"):
-                extra |= _PROTECTED | (_COMPUTING if method in ("get", "post") else {})
+                extra |= _PROTECTED | (_COMPUTING | _NEGOTIATED if method in ("get", "post")
+                                       else {})
             for code, text in extra.items():
                 responses.setdefault(code, {"description": text})
             for code, response in responses.items():

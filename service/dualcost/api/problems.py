@@ -14,6 +14,7 @@ The web layer's exceptions join the core's tree (:mod:`dualcost.core.errors`)::
      └── ServiceProblem       the service's state refuses the request
           ├── JobNotFound     404
           ├── JobConflict     409
+          ├── NotAcceptable   406: no answer format of the operation suits the Accept header
           └── ServiceBusy     503
 
     BodyTooLarge (a BaseException: it must pass the framework's ``except Exception`` around
@@ -89,6 +90,11 @@ PROBLEM_TYPES: dict[str, ProblemType] = {
                     "symmetric, ...): the figure is not a result. The detail names the reason and "
                     "the items; the formula indices remain available."),
         ProblemType("not-found", 404, "Nothing here", "No resource at this address."),
+        ProblemType("not-acceptable", 406, "No acceptable answer format",
+                    "The Accept header admits none of the media types this operation answers "
+                    "(listed in `acceptable`). Ask for one of them, or for */*; where the "
+                    "operation has a `format` query parameter, it decides over Accept. Problem "
+                    "answers are always application/problem+json."),
         ProblemType("method-not-allowed", 405, "Method not allowed",
                     "This address does not answer that HTTP method."),
         ProblemType("http-error", 400, "The request was refused", "An HTTP-level refusal."),
@@ -134,6 +140,8 @@ class ServiceProblem(DualcostError):
 
     slug = "http-error"
     status = 400
+    #: Extension members of the problem (RFC 9457, 3.2), if any.
+    extensions: dict[str, Any] | None = None
 
     def __init__(self, detail: str) -> None:
         self.detail = detail
@@ -152,8 +160,21 @@ class ServiceBusy(ServiceProblem):
     slug, status = "http-error", 503
 
 
+class NotAcceptable(ServiceProblem):
+    """The Accept header admits none of the operation's media types (RFC 9110, 15.5.7);
+    ``acceptable`` lists them, in the problem's ``acceptable`` member too."""
+
+    slug, status = "not-acceptable", 406
+
+    def __init__(self, detail: str, acceptable: Sequence[str]) -> None:
+        super().__init__(detail)
+        self.acceptable = list(acceptable)
+        self.extensions = {"acceptable": self.acceptable}
+
+
 def problem_body(slug: str, detail: str, *, status: int | None = None,
-                 errors: list[FieldError] | None = None, instance: str | None = None) -> dict[str, Any]:
+                 errors: list[FieldError] | None = None, instance: str | None = None,
+                 extensions: Mapping[str, Any] | None = None) -> dict[str, Any]:
     kind = PROBLEM_TYPES[slug]
     body: dict[str, Any] = {
         "type": f"/problems/{slug}",
@@ -165,6 +186,8 @@ def problem_body(slug: str, detail: str, *, status: int | None = None,
         body["instance"] = instance
     if errors:
         body["errors"] = [{"pointer": e.pointer, "detail": e.detail} for e in errors]
+    if extensions:
+        body.update(extensions)
     return body
 
 
@@ -182,8 +205,10 @@ async def send_problem(send: Send, slug: str, detail: str, *, instance: str | No
 
 def problem_response(slug: str, detail: str, *, status: int | None = None,
                      errors: list[FieldError] | None = None,
-                     instance: str | None = None) -> JSONResponse:
-    body = problem_body(slug, detail, status=status, errors=errors, instance=instance)
+                     instance: str | None = None,
+                     extensions: Mapping[str, Any] | None = None) -> JSONResponse:
+    body = problem_body(slug, detail, status=status, errors=errors, instance=instance,
+                        extensions=extensions)
     return JSONResponse(body, status_code=body["status"], media_type=PROBLEM_MEDIA_TYPE)
 
 
@@ -279,7 +304,8 @@ async def _on_invalid_input(request: Request, exc: InvalidInput) -> JSONResponse
 
 
 async def _on_service_problem(request: Request, exc: ServiceProblem) -> JSONResponse:
-    return problem_response(exc.slug, exc.detail, status=exc.status, instance=request.url.path)
+    return problem_response(exc.slug, exc.detail, status=exc.status, instance=request.url.path,
+                            extensions=exc.extensions)
 
 
 async def _on_engine_unavailable(request: Request, exc: EngineUnavailable) -> JSONResponse:

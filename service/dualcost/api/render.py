@@ -7,14 +7,23 @@
 - CSV: ``text/csv; charset=utf-8``, a header row, numbers in Python's shortest round-trip form
   with '.' as the decimal point, empty cells for missing values, lines ending CRLF (RFC 4180).
 - Plain text: one value, for a spreadsheet cell.
+- Provenance (:mod:`dualcost.api.provenance`): a JSON answer ends with a ``provenance`` member
+  (service, version, input digest); every answer, JSON or not, carries ``Dualcost-Version`` and
+  ``Dualcost-Input-Digest`` headers, and every CSV or text answer the indexation caution in
+  ``Dualcost-Caution``. A CSV table's body stays a plain table unless the caller asks for
+  ``provenance=trailer``: then three rows close it (:func:`trailer_rows`). A leading comment
+  line would break spreadsheet imports, and trailing rows are data to a reader that does not
+  expect them, so they come only on request.
 - Spreadsheet answers (:class:`SheetNumbers`): numbers with the decimal mark the caller asked
   for, a point or a comma; a comma-decimal CSV table separates its fields by semicolons, and the
   answer says both in its headers (``Dualcost-Decimal``, ``Dualcost-Separator``). A number is
   never written as a decimal mark followed by exactly three digits, which a sheet of the other
   convention would read as thousands (0.498 as 498): one more 0 is written (0.4980).
 
-:func:`negotiate` decides the format from a ``format`` query parameter when given, else from the
-``Accept`` header: CSV when the caller prefers ``text/csv`` to JSON, JSON otherwise.
+:func:`negotiate` is the one content negotiation: every operation names the formats it offers,
+the default first; a ``format`` query parameter decides where the operation has one, else the
+``Accept`` header (RFC 9110, 12.5.1), and an Accept header that admits none of the offers is
+answered 406 (a problem naming the media types offered).
 """
 
 from __future__ import annotations
@@ -25,59 +34,131 @@ import math
 import re
 from collections.abc import Iterable, Iterator, Sequence
 from dataclasses import dataclass
-from typing import Any, Literal, TypeVar
+from typing import Annotated, Any, Literal, TypeVar
 
 import orjson
-from fastapi import Request
+from fastapi import Query, Request
 from fastapi.responses import PlainTextResponse, Response, StreamingResponse
 
 from ..core.errors import NumericalFailure
-from .schemas.common import DecimalMark
+from .problems import NotAcceptable, RequestProblem
+from .provenance import CAUTION_HEADER, Provenance, header_text
+from .schemas.common import CAUTION, DecimalMark
 
 T = TypeVar("T")
 JSON_MEDIA_TYPE = "application/json"
 CSV_MEDIA_TYPE = "text/csv"
+TEXT_MEDIA_TYPE = "text/plain"
 CSV_CONTENT_TYPE = "text/csv; charset=utf-8"
-Format = Literal["json", "csv"]
+TEXT_CONTENT_TYPE = "text/plain; charset=utf-8"
+Format = Literal["json", "csv", "text"]
 
 
 # -- content negotiation ----------------------------------------------------------------------
 
-
-def negotiate(request: Request, format_param: str | None) -> Format:
-    """``csv`` when ``format=csv`` is asked, or when the Accept header prefers text/csv to JSON."""
-    if format_param is not None:
-        return "csv" if format_param == "csv" else "json"
-    accept = request.headers.get("accept", "")
-    best_csv = _quality(accept, CSV_MEDIA_TYPE)
-    best_json = max(_quality(accept, JSON_MEDIA_TYPE), _quality(accept, "*/*") * 0.999)
-    return "csv" if best_csv > 0 and best_csv >= best_json else "json"
+#: The media type of each answer format.
+MEDIA_TYPES: dict[str, str] = {"json": JSON_MEDIA_TYPE, "csv": CSV_MEDIA_TYPE, "text": TEXT_MEDIA_TYPE}
 
 
-def _quality(accept: str, media: str) -> float:
-    best = 0.0
-    for part in accept.split(","):
-        fields = [f.strip() for f in part.split(";")]
-        if not fields or fields[0].lower() != media:
+@dataclass(frozen=True)
+class MediaRange:
+    """One element of an Accept header: ``type/subtype`` (either may be ``*``) and its weight."""
+
+    type: str
+    subtype: str
+    q: float
+
+    def specificity(self, media: str) -> int:
+        """How closely this range names ``media``: 2 exactly, 1 by ``type/*``, 0 by ``*/*``;
+        -1 when it does not match."""
+        kind, _, sub = media.partition("/")
+        if self.type == "*":
+            return 0
+        if self.type != kind:
+            return -1
+        if self.subtype == "*":
+            return 1
+        return 2 if self.subtype == sub else -1
+
+
+def accept_ranges(header: str) -> list[MediaRange]:
+    """The media ranges of an Accept header (RFC 9110, 12.5.1), lower-cased. Parameters other
+    than the weight are not told apart (``text/csv;header=present`` counts as ``text/csv``);
+    an element that is not a media range, or whose weight is not a number from 0 to 1, is
+    left out."""
+    out = []
+    for element in header.split(","):
+        fields = [f.strip() for f in element.split(";")]
+        kind, slash, sub = fields[0].lower().partition("/")
+        if not (slash and kind and sub) or (kind == "*" and sub != "*"):
             continue
         q = 1.0
         for f in fields[1:]:
-            if f.startswith("q="):
+            name, _, value = f.partition("=")
+            if name.strip().lower() == "q":
                 try:
-                    q = float(f[2:])
+                    q = float(value.strip())
                 except ValueError:
-                    q = 0.0
-        best = max(best, q)
-    return best
+                    q = -1.0
+                break  # what follows the weight is an accept-extension
+        if 0.0 <= q <= 1.0:
+            out.append(MediaRange(kind, sub, q))
+    return out
+
+
+def negotiate(request: Request, offers: Sequence[Format], format_param: str | None = None
+              ) -> Format:
+    """The format of an operation's answer: the one ``format`` names where the operation has
+    that query parameter and it is given, else the best of ``offers`` under the Accept header.
+
+    - No Accept header (or one without a single media range): the first offer, the default.
+    - Each offer gets the weight of the most specific range that names it (``text/csv`` before
+      ``text/*`` before ``*/*``; RFC 9110, 12.5.1), 0 if none does; the highest weight wins,
+      then the more specific range (``text/csv, */*`` gets CSV), then the order of ``offers``.
+    - ``application/problem+json`` is the media type of error answers, which are sent whatever
+      the Accept header says: it admits no answer format. ``application/json,
+      application/problem+json`` gets JSON; ``application/problem+json`` alone, nothing.
+    - When every offer has weight 0: :class:`~dualcost.api.problems.NotAcceptable` (406),
+      naming the media types the operation answers.
+    """
+    if format_param is not None:
+        if format_param in offers:
+            return format_param  # type: ignore[return-value]
+        raise RequestProblem.at("#/query/format", f"must be one of {', '.join(offers)} for this "
+                                f"operation, got {format_param!r}")
+    header = ",".join(request.headers.getlist("accept"))
+    ranges = accept_ranges(header)
+    if not ranges:
+        return offers[0]
+    best: tuple[float, int, int] = (0.0, -1, 0)
+    chosen: Format | None = None
+    for order, offer in enumerate(offers):
+        media = MEDIA_TYPES[offer]
+        specific, q = -1, 0.0
+        for r in ranges:
+            s = r.specificity(media)
+            if s >= 0 and (s > specific or (s == specific and r.q > q)):
+                specific, q = s, r.q
+        if q > 0 and (q, specific, -order) > best:
+            best, chosen = (q, specific, -order), offer
+    if chosen is None:
+        acceptable = [MEDIA_TYPES[o] for o in offers]
+        raise NotAcceptable(f"This operation answers {' or '.join(acceptable)}; the Accept "
+                            f"header ({header.strip()[:200]}) admits none of them.", acceptable)
+    return chosen
 
 
 # -- JSON -------------------------------------------------------------------------------------
 
 
-def json_response(document: Any, *, status_code: int = 200,
+def json_response(document: Any, *, provenance: Provenance | None = None, status_code: int = 200,
                   headers: dict[str, str] | None = None) -> Response:
     """A JSON answer from plain values (dicts, lists, str, int, float, bool, None; numpy's
-    scalars and arrays too)."""
+    scalars and arrays too). With ``provenance``, the document (an object) gets it as its
+    last member, ``provenance``, and the answer its headers."""
+    if provenance is not None:
+        document = {**document, "provenance": provenance.json()}
+        headers = {**(headers or {}), **provenance.headers()}
     return Response(orjson.dumps(document, option=orjson.OPT_SERIALIZE_NUMPY),
                     status_code=status_code,
                     media_type=JSON_MEDIA_TYPE, headers=headers)
@@ -163,22 +244,78 @@ def csv_text(header: Sequence[str], rows: Iterable[Sequence[Any]]) -> str:
 
 
 def csv_response(header: Sequence[str], rows: Iterable[Sequence[Any]], *,
+                 provenance: Provenance, trailer: bool = False,
                  filename: str | None = None) -> Response:
-    headers = {"content-disposition": f'inline; filename="{filename}"'} if filename else None
-    return Response(csv_text(header, rows), media_type=CSV_CONTENT_TYPE, headers=headers)
+    """A CSV table with the provenance and caution headers (:func:`provenance_headers`); with
+    ``trailer``, the :func:`trailer_rows` after the table as well."""
+    headers = provenance_headers(provenance)
+    if filename:
+        headers["content-disposition"] = f'inline; filename="{filename}"'
+    text = csv_text(header, rows)
+    if trailer:
+        text += csv_lines(trailer_rows(provenance, len(header)))
+    return Response(text, media_type=CSV_CONTENT_TYPE, headers=headers)
 
 
-def csv_stream(pieces: Iterator[str], *, headers: dict[str, str] | None = None
-               ) -> StreamingResponse:
-    """A CSV answer written piece by piece as it is computed."""
-    return StreamingResponse(pieces, media_type=CSV_CONTENT_TYPE, headers=headers)
+def csv_stream(pieces: Iterator[str], *, provenance: Provenance, trailer: bool = False,
+               headers: dict[str, str] | None = None) -> StreamingResponse:
+    """A CSV answer written piece by piece as it is computed (the first piece starts with the
+    header row), with the provenance and caution headers; with ``trailer``, the
+    :func:`trailer_rows` after the last piece."""
+    if trailer:
+        pieces = _trailed(pieces, provenance)
+    return StreamingResponse(pieces, media_type=CSV_CONTENT_TYPE,
+                             headers={**(headers or {}), **provenance_headers(provenance)})
+
+
+def _trailed(pieces: Iterator[str], provenance: Provenance, delimiter: str = ",") -> Iterator[str]:
+    width = None
+    for piece in pieces:
+        if width is None:
+            width = len(next(csv.reader(io.StringIO(piece), delimiter=delimiter), []))
+        yield piece
+    yield csv_lines(trailer_rows(provenance, width or 2))
+
+
+# -- provenance and caution outside JSON ------------------------------------------------------
+
+#: What a caller sets ``provenance`` to: ``headers`` (the default) or ``trailer``.
+ProvenancePlace = Literal["headers", "trailer"]
+#: The ``provenance`` query parameter of every operation that can answer CSV.
+ProvenanceQuery = Annotated[ProvenancePlace, Query(
+    description="Where a CSV answer states its provenance: headers (default: Dualcost-Version, "
+                "Dualcost-Input-Digest and Dualcost-Caution), or trailer: in those headers and "
+                "in three rows after the table ('#dualcost-version', "
+                "'#dualcost-input-digest', '#dualcost-caution' and the value, padded to the "
+                "table's width). A JSON answer always has its `provenance` member.")]
+#: The first cells of the trailer's rows.
+TRAILER_KEYS = ("#dualcost-version", "#dualcost-input-digest", "#dualcost-caution")
+
+
+def provenance_headers(provenance: Provenance) -> dict[str, str]:
+    """The headers of every answer that is not JSON: ``Dualcost-Version``,
+    ``Dualcost-Input-Digest`` and ``Dualcost-Caution``, the indexation caution in printable
+    ASCII (:func:`~dualcost.api.provenance.header_text`)."""
+    return {**provenance.headers(), CAUTION_HEADER: header_text(CAUTION)}
+
+
+def trailer_rows(provenance: Provenance, width: int) -> list[list[str]]:
+    """Three rows that close a CSV table when a caller asks (``provenance=trailer``): the
+    version, the input digest and the caution, each as a key starting with '#' and its value,
+    padded with empty cells to the table's ``width`` so that the table stays rectangular (and
+    readers that skip '#' lines, as pandas' ``comment="#"`` does, skip them)."""
+    values = (provenance.version, provenance.input_digest, CAUTION)
+    pad = [""] * max(0, width - 2)
+    return [[key, value, *pad] for key, value in zip(TRAILER_KEYS, values, strict=True)]
 
 
 # -- plain text -------------------------------------------------------------------------------
 
 
-def text_response(text: str) -> Response:
-    return PlainTextResponse(text)
+def text_response(text: str, *, provenance: Provenance,
+                  headers: dict[str, str] | None = None) -> Response:
+    """One value as ``text/plain``, with the provenance and caution headers."""
+    return PlainTextResponse(text, headers={**(headers or {}), **provenance_headers(provenance)})
 
 
 def fixed_point(value: float, digits: int | None) -> str:
@@ -187,6 +324,15 @@ def fixed_point(value: float, digits: int | None) -> str:
 
 
 CSV_ANSWER: dict[str, Any] = {"content": {CSV_MEDIA_TYPE: {"schema": {"type": "string"}}}}
+
+
+def format_query(offers: Sequence[Format]) -> Any:
+    """The ``format`` query parameter of an operation that offers ``offers`` (the first is the
+    default): it decides over the Accept header."""
+    names = ", ".join(offers)
+    return Query(description=f"Answer format: {names}. Decides over the Accept header; without "
+                             f"it the Accept header chooses ({offers[0]} by default), and an "
+                             "Accept header that admits none of them gets 406.")
 
 
 # -- spreadsheet answers ----------------------------------------------------------------------
@@ -231,13 +377,17 @@ class SheetNumbers:
             return self.number(value) if math.isfinite(value) else ""
         return format_cell(value)
 
-    def table(self, header: Sequence[str], rows: Iterable[Sequence[Any]]) -> str:
-        """A CSV table (RFC 4180, CRLF line ends) with this decimal mark and its separator."""
+    def table(self, header: Sequence[str], rows: Iterable[Sequence[Any]],
+              trailer: Provenance | None = None) -> str:
+        """A CSV table (RFC 4180, CRLF line ends) with this decimal mark and its separator;
+        with ``trailer``, closed by the :func:`trailer_rows` of that provenance."""
         buffer = io.StringIO()
         writer = csv.writer(buffer, delimiter=self.separator, lineterminator="\r\n")
         writer.writerow(header)
         for row in rows:
             writer.writerow([self.cell(v) for v in row])
+        if trailer is not None:
+            writer.writerows(trailer_rows(trailer, len(header)))
         return buffer.getvalue()
 
     def headers(self, *, table: bool) -> dict[str, str]:
@@ -246,6 +396,13 @@ class SheetNumbers:
         if table:
             out[SEPARATOR_HEADER] = "semicolon" if self.separator == ";" else "comma"
         return out
+
+    def response(self, text: str, media_type: str, provenance: Provenance) -> Response:
+        """A spreadsheet answer (``text``: a number or a :meth:`table`) with the headers that
+        say how its numbers are written, and the provenance and caution headers."""
+        headers = self.headers(table=media_type.startswith(CSV_MEDIA_TYPE))
+        return Response(text, media_type=media_type,
+                        headers=headers | provenance_headers(provenance))
 
 
 #: A number's text that another convention reads as a whole number with a thousands separator:

@@ -14,6 +14,7 @@ from ..inputs.locator import Locator, Place
 from ..inputs.panels import panel_from_json
 from ..observability import computing
 from ..problems import RequestProblem, field_errors
+from ..provenance import of_body
 from ..schemas.audit import AuditRequest
 from ..schemas.common import CAUTION
 from . import series
@@ -72,13 +73,26 @@ def document(result: Audit, request: AuditRequest | None = None) -> dict[str, An
     }
 
 
+#: The columns of an audit as a CSV table: one row per published value.
+TABLE_COLUMNS = ("formula", "series", "period", "published", "recomputed", "difference",
+                 "tolerance", "passed")
+
+
+def table(result: Audit) -> tuple[tuple[str, ...], list[list[Any]]]:
+    """The audit as one CSV table: the header, then one row per published value (recomputed
+    and difference empty where the value could not be recomputed)."""
+    rows = document(result)["rows"]
+    return TABLE_COLUMNS, [[r[c] for c in TABLE_COLUMNS] for r in rows]
+
+
 def audit_json(body: Mapping[str, Any], settings: Settings) -> dict[str, Any]:
     """The whole audit for a body held in memory, as the service answers it: the body is
-    validated as POST /v1/audits validates it, and every broken rule is raised as a
+    validated as POST /v1/audits validates it (the answer has its ``provenance`` too), and
+    every broken rule is raised as a
     :class:`~dualcost.api.problems.RequestProblem` whose errors point into ``body``. This is the
     door for ``dualcost check`` in process."""
     try:
         request = AuditRequest.model_validate(body)
     except ValidationError as exc:
         raise RequestProblem(field_errors(exc.errors(), body, prefix=("body",))) from None
-    return document(run(request, settings), request)
+    return document(run(request, settings), request) | {"provenance": of_body(request).json()}

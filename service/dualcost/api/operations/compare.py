@@ -286,3 +286,17 @@ MEASURES: tuple[str, ...] = (
     "laspeyres_bias_points", "compensating_variation", "equivalent_variation",
     "compensated_income",
 )
+
+
+# -- the CSV answer ---------------------------------------------------------------------------
+
+#: The columns of a comparison as a CSV table (POST /v1/comparisons with format=csv, and the
+#: spreadsheet form /v1/sheet/comparison): one row per measure of :func:`measures`.
+TABLE_COLUMNS = ("measure", "value", "compared_with", "bias_points", "bias_percent")
+
+
+def table(outcome: Outcome) -> tuple[tuple[str, ...], list[tuple[Any, ...]]]:
+    """The comparison as one CSV table: the header, then one row per measure (the Konüs
+    indices, each formula with the Konüs index it is compared with and its bias, then the
+    compensation), as :func:`measures` gives them."""
+    return TABLE_COLUMNS, list(measures(outcome))

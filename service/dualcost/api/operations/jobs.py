@@ -12,6 +12,7 @@ from __future__ import annotations
 
 import codecs
 import csv
+import hashlib
 import io
 import tempfile
 import threading
@@ -30,6 +31,7 @@ from ..inputs.households import CsvLayout, csv_chunks, csv_layout, job_of, label
 from ..inputs.items import ItemAxis
 from ..inputs.locator import Locator
 from ..problems import JobConflict, JobNotFound, RequestProblem, ServiceBusy
+from ..provenance import Provenance, of_job
 from ..render import csv_line
 from ..schemas.common import CAUTION
 from ..schemas.households import HouseholdJobSpec
@@ -57,6 +59,8 @@ class JobState:
         self.locator = Locator(households.PLACES, "csv", items=axis.ids)
         self.summary: list[dict[str, Any]] | None = None
         self.error: str | None = None
+        #: The job's input: its body, then its body and its households' CSV.
+        self.provenance: Provenance = of_job(spec, None)
         self.lock = threading.Lock()
 
     def claim(self) -> None:
@@ -74,6 +78,7 @@ class JobState:
             self.rows_total = None
             self.engine = None
             self.acc = Accumulator(self.job)
+            self.provenance = of_job(self.spec, None)
 
     def count(self, n: int) -> None:
         self.rows_read += n
@@ -93,7 +98,11 @@ class JobState:
                 self.error = message
 
     def snapshot(self) -> dict[str, Any]:
-        """The job as GET answers it."""
+        """The job as GET answers it (its provenance: :meth:`view`)."""
+        return self.view()[0]
+
+    def view(self) -> tuple[dict[str, Any], Provenance]:
+        """The job as GET answers it, and the provenance of that answer, read together."""
         with self.lock:
             acc, total, done = self.acc, self.rows_total, self.status == "done"
             fraction = 1.0 if done else (min(1.0, self.rows_read / total) if total else None)
@@ -112,7 +121,7 @@ class JobState:
                 "links": {"self": f"/v1/household-jobs/{self.id}",
                           "households": f"/v1/household-jobs/{self.id}/households"},
                 "caution": CAUTION,
-            }
+            }, self.provenance
 
 
 class JobStore:
@@ -164,12 +173,14 @@ def create(spec: HouseholdJobSpec, settings: Settings, store: JobStore) -> JobSt
 # -- the upload -------------------------------------------------------------------------------
 
 
-async def spool(request: Request) -> tuple[Any, int]:
-    """The request body in a temporary file, checked to be UTF-8; and its number of lines."""
+async def spool(request: Request) -> tuple[Any, int, str]:
+    """The request body in a temporary file, checked to be UTF-8; its number of lines, and the
+    SHA-256 (hex) of its bytes."""
     check_media_type(request)
     file = tempfile.SpooledTemporaryFile(max_size=SPOOL_MEMORY_BYTES)
     decoder = codecs.getincrementaldecoder("utf-8")()
     lines, size, last = 0, 0, b"\n"
+    digest = hashlib.sha256()
     try:
         async for piece in request.stream():
             if not piece:
@@ -180,6 +191,7 @@ async def spool(request: Request) -> tuple[Any, int]:
                 raise RequestProblem.at("", f"the CSV body is not UTF-8 text (byte "
                                         f"{size + exc.start})") from None
             file.write(piece)
+            digest.update(piece)
             size += len(piece)
             lines += piece.count(b"\n")
             last = piece[-1:]
@@ -193,13 +205,14 @@ async def spool(request: Request) -> tuple[Any, int]:
     if last != b"\n":
         lines += 1
     file.seek(0)
-    return file, lines
+    return file, lines, digest.hexdigest()
 
 
-def open_upload(state: JobState, file: Any, lines: int, settings: Settings
-                ) -> tuple[io.TextIOWrapper, Iterator[list[str]], str | None]:
+def open_upload(state: JobState, file: Any, lines: int, settings: Settings,
+                households_sha256: str) -> tuple[io.TextIOWrapper, Iterator[list[str]], str | None]:
     """The upload's text, its record reader (past the header) and the scheduler's address;
-    a header without an item's column is refused at once."""
+    a header without an item's column is refused at once. From here on the job's provenance
+    is of its body and these households together."""
     text = io.TextIOWrapper(file, encoding="utf-8-sig", newline="")
     reader = csv.reader(text)
     try:
@@ -212,6 +225,8 @@ def open_upload(state: JobState, file: Any, lines: int, settings: Settings
     address = households.scheduler_for(state.spec.engine, state.rows_total, settings,
                                        state.locator)
     state.engine = "local" if address is None else "cluster"
+    with state.lock:
+        state.provenance = of_job(state.spec, households_sha256)
     return text, reader, address
 
 

@@ -6,7 +6,8 @@ as short comma-separated lists in the order given by ``items``; with ``decimal=c
 have decimal commas and are separated by semicolons (see ``inputs/query.py``). The query is
 turned into the JSON body of the same operation, validated by the same models, and run by the
 same operation with a locator in its query-string form: every error names the query parameter
-(``#/query/p0/2``).
+(``#/query/p0/2``). That body, validated, is the answer's canonical input (see
+:mod:`dualcost.api.provenance`): a form and ``POST`` of the body it stands for share a digest.
 """
 
 from __future__ import annotations
@@ -39,8 +40,9 @@ def comparison_body(params: Mapping[str, Any]) -> dict[str, Any]:
                    ("subsistence_quantities", "subsistence"),
                    ("expenditure_elasticities", "elasticities"))
     body: dict[str, Any] = {"items": names(params["items"], decimal), "base": base,
-                            "current": current, "model": model,
-                            "normalise_shares": params["normalise_shares"]}
+                            "current": current, "model": model}
+    if params["normalise_shares"]:  # given only when asked: the body a caller would write
+        body["normalise_shares"] = True
     if params.get("formulas"):
         body["formulas"] = names(params["formulas"], decimal)
     return body | given(("reference_income", "reference_income"))

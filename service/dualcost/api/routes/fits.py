@@ -12,7 +12,16 @@ from ..deps import settings_of
 from ..inputs import observations
 from ..inputs.csv import CSV_REQUEST_BODY, csv_body
 from ..operations import fits, fitted
-from ..render import CSV_ANSWER, csv_response, json_response, negotiate
+from ..provenance import Provenance, UploadSha256, of_body, of_upload, query_of
+from ..render import (
+    CSV_ANSWER,
+    Format,
+    ProvenanceQuery,
+    csv_response,
+    format_query,
+    json_response,
+    negotiate,
+)
 from ..routing import JsonRoute
 from ..schemas.estimation import FitAndCompareRequest, FitAndCompareResponse, FitRequest, FitResponse
 
@@ -24,9 +33,8 @@ RESPONSES: dict[int | str, dict[str, Any]] = {
     422: {"description": "The request breaks a rule, or the fit does not converge (RFC 9457 "
                          "problem details)."},
 }
-FormatParam = Annotated[Literal["json", "csv"] | None, Query(
-    description="Answer format; default by the Accept header (JSON unless text/csv is "
-                "preferred). CSV gives the parameter table.")]
+OFFERS: tuple[Format, ...] = ("json", "csv")
+FormatParam = Annotated[Literal["json", "csv"] | None, format_query(OFFERS)]
 
 DESCRIPTION = """\
 Fits a preference family to budget data of T observations (households, periods, or households in
@@ -52,22 +60,25 @@ Slutsky matrix that is not negative semidefinite. `model` in the answer is the f
 """
 
 
-def _answer(outcome: fits.Outcome, request: Request, fmt: str | None) -> Response:
-    if negotiate(request, fmt) == "csv":
+def _answer(outcome: fits.Outcome, fmt: str, provenance: Provenance, place: str) -> Response:
+    if fmt == "csv":
         return csv_response(fits.PARAMETER_COLUMNS, fits.parameter_rows(outcome),
+                            provenance=provenance, trailer=place == "trailer",
                             filename="fit-parameters.csv")
-    return json_response(fits.document(outcome))
+    return json_response(fits.document(outcome), provenance=provenance)
 
 
 @router.post("/fits", operation_id="fitModel", response_model=FitResponse, responses=RESPONSES,
              summary="Fit a preference model to budget data: estimates, robust errors, tests, "
                      "elasticities, regularity", description=DESCRIPTION)
-def fit_model(body: FitRequest, request: Request, format: FormatParam = None) -> Response:
+def fit_model(body: FitRequest, request: Request, format: FormatParam = None,
+              provenance: ProvenanceQuery = "headers") -> Response:
+    fmt = negotiate(request, OFFERS, format)
     loc = fits.locator()
     data = observations.from_json(body, loc)
     outcome = fits.run(data, body.model, fits.options_of(body, data.axis, loc),
                        settings_of(request), loc)
-    return _answer(outcome, request, format)
+    return _answer(outcome, fmt, of_body(body), provenance)
 
 
 @router.post("/fits/csv", operation_id="fitModelCsv", response_model=FitResponse,
@@ -77,6 +88,7 @@ def fit_model(body: FitRequest, request: Request, format: FormatParam = None) ->
              "as JSON text); elasticities are at the sample's geometric means.\n\n" + DESCRIPTION)
 def fit_model_csv(
     text: Annotated[str, Depends(csv_body)],
+    csv_sha256: UploadSha256,
     request: Request,
     family: Annotated[Literal["ces", "nested_ces", "stone_geary", "aids", "quaids"], Query()],
     estimator: Annotated[Literal["nonlinear", "linear_approximate"] | None, Query()] = None,
@@ -90,7 +102,10 @@ def fit_model_csv(
     max_iterations: Annotated[int, Query(ge=1, le=1000)] = 200,
     residuals: Annotated[bool, Query()] = True,
     format: FormatParam = None,
+    provenance: ProvenanceQuery = "headers",
 ) -> Response:
+    names = set(locals())
+    fmt = negotiate(request, OFFERS, format)
     settings = settings_of(request)
     loc = fits.locator("csv")
     spec = fits.model_from_query(dict(family=family, estimator=estimator,
@@ -99,7 +114,8 @@ def fit_model_csv(
     data = observations.from_csv(text, loc, max_rows=settings.max_fit_cells)
     options = fits.Options(confidence_level, max_iterations, normalise_shares, residuals)
     outcome = fits.run(data, spec, options, settings, loc, "fitModelCsv")
-    return _answer(outcome, request, format)
+    origin = of_upload(csv_sha256, query_of(request.query_params.multi_items(), names))
+    return _answer(outcome, fmt, origin, provenance)
 
 
 @router.post("/fitted-comparisons", operation_id="fitAndCompare",
@@ -115,4 +131,6 @@ def fit_model_csv(
                  "(`uncertainty.seed`). Without a base bundle the base bundle is the fitted "
                  "model's demand at the base prices and expenditure.\n\n" + DESCRIPTION))
 def fit_and_compare(body: FitAndCompareRequest, request: Request) -> Response:
-    return json_response(fitted.document(fitted.run(body, settings_of(request))))
+    negotiate(request, ("json",))
+    return json_response(fitted.document(fitted.run(body, settings_of(request))),
+                         provenance=of_body(body))

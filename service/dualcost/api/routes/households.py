@@ -13,7 +13,7 @@ from __future__ import annotations
 
 from typing import Annotated, Any, Literal
 
-from fastapi import APIRouter, Query, Request
+from fastapi import APIRouter, Request
 from fastapi.responses import Response
 from starlette.concurrency import run_in_threadpool
 
@@ -21,7 +21,16 @@ from ..deps import settings_of
 from ..inputs.csv import CSV_REQUEST_BODY
 from ..operations import households, jobs
 from ..problems import PROBLEM_MEDIA_TYPE
-from ..render import CSV_ANSWER, csv_stream, json_response, negotiate
+from ..provenance import of_body
+from ..render import (
+    CSV_ANSWER,
+    Format,
+    ProvenanceQuery,
+    csv_stream,
+    format_query,
+    json_response,
+    negotiate,
+)
 from ..routing import JsonRoute
 from ..schemas.households import (
     HouseholdIndicesRequest,
@@ -40,9 +49,8 @@ PROBLEM_RESPONSES: dict[int | str, dict[str, Any]] = {
     503: {"description": "The Dask cluster asked for is not configured here or cannot be "
                          "reached."},
 }
-FormatParam = Annotated[Literal["json", "csv"] | None, Query(
-    description="Answer format: json, or csv (one row per household and period). Default: "
-                "from the Accept header, else json.")]
+OFFERS: tuple[Format, ...] = ("json", "csv")
+FormatParam = Annotated[Literal["json", "csv"] | None, format_query(OFFERS)]
 
 
 def _store(request: Request) -> jobs.JobStore:
@@ -55,7 +63,8 @@ def _store(request: Request) -> jobs.JobStore:
              response_model=HouseholdIndicesResponse,
              responses={**PROBLEM_RESPONSES, 200: CSV_ANSWER})
 def household_indices(body: HouseholdIndicesRequest, request: Request,
-                      format: FormatParam = None) -> Response:
+                      format: FormatParam = None,
+                      provenance: ProvenanceQuery = "headers") -> Response:
     """Apply one price change, or a series, to every household: each gets its own model,
     calibrated to its base shares (and income, for non-homothetic families), and the answer
     gives per household the formula indices, the Konüs index, compensating and equivalent
@@ -63,11 +72,13 @@ def household_indices(body: HouseholdIndicesRequest, request: Request,
     (Prais 1959), weighted quantiles and the share of households above each aggregate.
     Cobb-Douglas, CES and Stone-Geary are evaluated over all households at once. Bad rows
     fail the request naming each one, unless bad_rows is skip."""
+    fmt = negotiate(request, OFFERS, format)
     outcome = households.run(body, settings_of(request))
-    if negotiate(request, format) == "csv":
-        return csv_stream(households.csv_pieces(outcome), headers={
-            "Dualcost-Skipped-Rows": str(outcome.result.skipped.count)})
-    return json_response(households.document(outcome))
+    if fmt == "csv":
+        return csv_stream(households.csv_pieces(outcome), provenance=of_body(body),
+                          trailer=provenance == "trailer",
+                          headers={"Dualcost-Skipped-Rows": str(outcome.result.skipped.count)})
+    return json_response(households.document(outcome), provenance=of_body(body))
 
 
 @router.post("/household-jobs", operation_id="createHouseholdJob", status_code=201,
@@ -78,8 +89,10 @@ def create_household_job(body: HouseholdJobSpec, request: Request) -> Response:
     (status waiting_for_households); send its households as CSV to the households link.
     Bad rows are skipped and reported unless bad_rows is reject. Jobs live in this process's
     memory (see the service documentation)."""
+    negotiate(request, ("json",))
     state = jobs.create(body, settings_of(request), _store(request))
-    return json_response(state.snapshot(), status_code=201,
+    document, origin = state.view()
+    return json_response(document, provenance=origin, status_code=201,
                          headers={"Location": f"/v1/household-jobs/{state.id}"})
 
 
@@ -88,21 +101,24 @@ def create_household_job(body: HouseholdJobSpec, request: Request) -> Response:
              responses={**PROBLEM_RESPONSES, 200: CSV_ANSWER, 404: {"description": "No such job."},
                         409: {"description": "The job already has its households."}},
              openapi_extra=CSV_REQUEST_BODY)
-async def household_indices_from_csv(job_id: str, request: Request) -> Response:
+async def household_indices_from_csv(job_id: str, request: Request,
+                                     provenance: ProvenanceQuery = "headers") -> Response:
     """One CSV record per household: a column per item id holding the base share, and the
     optional columns household (an id), expenditure (income; required for non-homothetic
     families) and weight. The answer streams one CSV row per household and period as
     chunks are done; GET the job meanwhile for progress, and at the end for the
     distribution summaries and the rows skipped and why. A missing item column is refused
     at once (422, #row=1). With bad_rows reject, the answer comes only when every row has
-    passed, else a 422 naming each bad row by RFC 7111 fragment (#cell=row,column)."""
+    passed, else a 422 naming each bad row by RFC 7111 fragment (#cell=row,column). The
+    answer's Dualcost-Input-Digest is the job's: of its body and these households together."""
+    negotiate(request, ("csv",))
     settings = settings_of(request)
     state = _store(request).get(job_id)
     state.claim()
     text = None
     try:
-        file, lines = await jobs.spool(request)
-        text, reader, address = jobs.open_upload(state, file, lines, settings)
+        file, lines, households_sha256 = await jobs.spool(request)
+        text, reader, address = jobs.open_upload(state, file, lines, settings, households_sha256)
         # Connect before answering, so that an unreachable cluster is a 503, not a cut stream.
         scheduler = None if address is None else await run_in_threadpool(households.connect,
                                                                           address)
@@ -113,13 +129,16 @@ async def household_indices_from_csv(job_id: str, request: Request) -> Response:
         raise
     headers = {"Link": f'</v1/household-jobs/{state.id}>; rel="monitor"',
                "Content-Location": f"/v1/household-jobs/{state.id}"}
+    trailer = provenance == "trailer"
     if state.bad_rows == "skip":
-        return csv_stream(jobs.stream(state, reader, text, scheduler, settings), headers=headers)
+        return csv_stream(jobs.stream(state, reader, text, scheduler, settings),
+                          provenance=state.provenance, trailer=trailer, headers=headers)
     try:
         out = await run_in_threadpool(jobs.run_to_file, state, reader, scheduler, settings)
     finally:
         text.close()
-    return csv_stream(jobs.file_pieces(out), headers=headers)
+    return csv_stream(jobs.file_pieces(out), provenance=state.provenance, trailer=trailer,
+                      headers=headers)
 
 
 @router.get("/household-jobs/{job_id}", operation_id="getHouseholdJob",
@@ -131,7 +150,9 @@ def get_household_job(job_id: str, request: Request) -> Response:
     """Status (waiting_for_households, running, done, failed, cancelled), rows read and
     done, rows skipped by reason with the first 100 named by CSV record and column, and when
     done the democratic and plutocratic aggregates, quantiles and shares above them."""
-    return json_response(_store(request).get(job_id).snapshot())
+    negotiate(request, ("json",))
+    document, origin = _store(request).get(job_id).view()
+    return json_response(document, provenance=origin)
 
 
 @router.delete("/household-jobs/{job_id}", operation_id="deleteHouseholdJob", status_code=204,

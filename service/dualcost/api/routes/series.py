@@ -13,7 +13,16 @@ from ..inputs.csv import CSV_REQUEST_BODY, csv_body
 from ..inputs.panels import panel_from_csv, panel_from_json
 from ..inputs.query import validated
 from ..operations import series
-from ..render import CSV_ANSWER, csv_response, json_response, negotiate
+from ..provenance import Provenance, UploadSha256, of_body, of_upload, query_of
+from ..render import (
+    CSV_ANSWER,
+    Format,
+    ProvenanceQuery,
+    csv_response,
+    format_query,
+    json_response,
+    negotiate,
+)
 from ..routing import JsonRoute, inline_when_small
 from ..schemas.series import SeriesOptions, SeriesRequest, SeriesResponse
 
@@ -23,9 +32,8 @@ RESPONSES: dict[int | str, dict[str, Any]] = {
     200: {"description": "The series as JSON, or as a CSV table with one row per period when "
                          "asked (Accept: text/csv, or format=csv).", **CSV_ANSWER},
 }
-FormatParam = Annotated[Literal["json", "csv"] | None, Query(
-    description="Answer format; default by the Accept header (JSON unless text/csv is "
-                "preferred).")]
+OFFERS: tuple[Format, ...] = ("json", "csv")
+FormatParam = Annotated[Literal["json", "csv"] | None, format_query(OFFERS)]
 
 DESCRIPTION = """\
 For every formula, the **fixed-base** series (direct comparisons with the base period) and the
@@ -61,24 +69,27 @@ CSV_DESCRIPTION = (
     "Errors name the row and column (`#cell=row,column`, RFC 7111).\n\n")
 
 
-def _answer(outcome: series.Outcome, request: Request, fmt: str | None) -> Response:
-    if negotiate(request, fmt) == "csv":
+def _answer(outcome: series.Outcome, fmt: str, provenance: Provenance, place: str) -> Response:
+    if fmt == "csv":
         header, rows = series.table(outcome)
-        return csv_response(header, rows, filename="index-series.csv")
-    return json_response(series.document(outcome))
+        return csv_response(header, rows, provenance=provenance, trailer=place == "trailer",
+                            filename="index-series.csv")
+    return json_response(series.document(outcome), provenance=provenance)
 
 
 @router.post("/index-series", operation_id="indexSeries",
              summary="Index series over a panel: fixed-base, chained, Konüs, bias, drift, GEKS",
              description=DESCRIPTION, response_model=SeriesResponse, responses=RESPONSES)
 @inline_when_small
-def index_series(body: SeriesRequest, request: Request, format: FormatParam = None) -> Response:
+def index_series(body: SeriesRequest, request: Request, format: FormatParam = None,
+                 provenance: ProvenanceQuery = "headers") -> Response:
+    fmt = negotiate(request, OFFERS, format)
     settings = settings_of(request)
     loc = series.locator()
     panel = panel_from_json(body.periods, body.items, {"prices": body.prices,
                             "quantities": body.quantities, "expenditures": body.expenditures},
                             series.limits(settings), loc)
-    return _answer(series.run(body, panel, settings, loc), request, format)
+    return _answer(series.run(body, panel, settings, loc), fmt, of_body(body), provenance)
 
 
 @router.post("/index-series/csv", operation_id="indexSeriesFromCsv",
@@ -88,6 +99,7 @@ def index_series(body: SeriesRequest, request: Request, format: FormatParam = No
 @inline_when_small
 def index_series_from_csv(
     text: Annotated[str, Depends(csv_body)],
+    csv_sha256: UploadSha256,
     request: Request,
     base_period: Annotated[str | None, Query(description="Base (price-reference) period.")] = None,
     reference_period: Annotated[str | None, Query(description="Index reference period.")] = None,
@@ -104,11 +116,14 @@ def index_series_from_csv(
     span_end: Annotated[str | None, Query()] = None,
     loop: Annotated[str | None, Query(description="Comma-separated period labels.")] = None,
     format: FormatParam = None,
+    provenance: ProvenanceQuery = "headers",
 ) -> Response:
     query = dict(locals())
+    fmt = negotiate(request, OFFERS, format)
     settings = settings_of(request)
     loc = series.locator("csv")
     options = validated(SeriesOptions, series.options_body(query), loc)
     panel = panel_from_csv(text, series.limits(settings), loc)
-    return _answer(series.run(options, panel, settings, loc, "indexSeriesFromCsv"), request,
-                   format)
+    origin = of_upload(csv_sha256, query_of(request.query_params.multi_items(), query))
+    return _answer(series.run(options, panel, settings, loc, "indexSeriesFromCsv"), fmt, origin,
+                   provenance)

@@ -11,12 +11,14 @@ from fastapi import APIRouter, Request
 from fastapi.responses import HTMLResponse, JSONResponse, PlainTextResponse, Response
 
 from ... import __version__
-from ..deps import SettingsDep
+from ..deps import settings_of
 from ..observability import metrics_text
 from ..operations import compare
 from ..problems import PROBLEM_TYPES, FieldError, RequestProblem
+from ..provenance import of_body
+from ..render import json_response, negotiate
 from ..routing import JsonRoute
-from ..schemas.comparison import ComparisonRequest, ComparisonResponse
+from ..schemas.comparison import ComparisonRequest
 from ..schemas.service import DemoOut, HealthOut
 
 router = APIRouter(route_class=JsonRoute)
@@ -73,14 +75,18 @@ def demo_request() -> dict[str, Any]:
 
 
 @router.get("/v1/demo", operation_id="demo", response_model=DemoOut, tags=["demo"])
-def demo(settings: SettingsDep) -> DemoOut:
-    """The demo scenario (an invented town's statistics office): its request and its answer.
-    Send the request to POST /v1/comparisons and change it to explore."""
+def demo(request: Request) -> Response:
+    """The demo scenario (an invented town's statistics office): its request and its answer,
+    which is what POST /v1/comparisons answers to the request (provenance included). Send the
+    request to POST /v1/comparisons and change it to explore."""
+    negotiate(request, ("json",))
     body = demo_request()
-    outcome = compare.run(ComparisonRequest.model_validate(body), settings)
-    return DemoOut(
-        scenario="Wrenmouth, an invented river town: its statistics office compares the "
-                 "household basket of 2025 with this year's prices under a nested CES model.",
-        request=body,
-        result=ComparisonResponse.model_validate(compare.document(outcome)),
-    )
+    comparison = ComparisonRequest.model_validate(body)
+    outcome = compare.run(comparison, settings_of(request))
+    origin = of_body(comparison)
+    return json_response({
+        "scenario": "Wrenmouth, an invented river town: its statistics office compares the "
+                    "household basket of 2025 with this year's prices under a nested CES model.",
+        "request": body,
+        "result": {**compare.document(outcome), "provenance": origin.json()},
+    }, provenance=origin)

@@ -29,7 +29,14 @@ from ..inputs.query import validated
 from ..operations import compare, series, sheets
 from ..operations.answers import notices_json
 from ..problems import RequestProblem, error_text, problem_response
-from ..render import CSV_CONTENT_TYPE, SheetNumbers
+from ..provenance import Provenance, of_body
+from ..render import (
+    CSV_CONTENT_TYPE,
+    TEXT_CONTENT_TYPE,
+    ProvenanceQuery,
+    SheetNumbers,
+    negotiate,
+)
 from ..routing import JsonRoute, inline_when_small
 from ..schemas.common import DecimalMark
 from ..schemas.comparison import ComparisonRequest
@@ -86,24 +93,27 @@ def comparison_query(
 ComparisonQuery = Annotated[dict[str, Any], Depends(comparison_query)]
 
 
-def _answer(on_error: str, media: str, make: Callable[[], str], numbers: SheetNumbers) -> Response:
+def _answer(request: Request, on_error: str, media: str,
+            make: Callable[[], tuple[str, Provenance]], numbers: SheetNumbers) -> Response:
     """``make()``'s text, or the problem it raised as the form's ``on_error`` asks; the headers
-    say how the numbers are written."""
-    headers = numbers.headers(table=media == CSV_CONTENT_TYPE)
+    say how the numbers are written, and where the answer came from (the provenance of the
+    body the query was read into)."""
+    negotiate(request, ("csv",) if media == CSV_CONTENT_TYPE else ("text",))
     try:
-        text = make()
+        text, origin = make()
     except RequestProblem as exc:
         if on_error == "text":
-            return PlainTextResponse(error_text(exc.errors), headers=headers)
+            return PlainTextResponse(error_text(exc.errors),
+                                     headers=numbers.headers(table=media == CSV_CONTENT_TYPE))
         return problem_response(exc.slug, "; ".join(f"{e.pointer}: {e.detail}"
                                                     for e in exc.errors), errors=exc.errors)
-    return Response(text, media_type=media, headers=headers)
+    return numbers.response(text, media, origin)
 
 
-def _comparison(params: dict[str, Any], request: Request) -> compare.Outcome:
+def _comparison(params: dict[str, Any], request: Request) -> tuple[compare.Outcome, Provenance]:
     loc = compare.locator("query")
     body = validated(ComparisonRequest, sheets.comparison_body(params), loc)
-    return compare.run(body, settings_of(request), loc)
+    return compare.run(body, settings_of(request), loc), of_body(body)
 
 
 @router.head("/comparison", include_in_schema=False)
@@ -115,17 +125,19 @@ def _comparison(params: dict[str, Any], request: Request) -> compare.Outcome:
                              "the biases are then empty); with on_error=text a bad request is answered as "
                              "text/plain 'ERROR: ...'"}})
 @inline_when_small
-def sheet_comparison(params: ComparisonQuery, request: Request) -> Response:
+def sheet_comparison(params: ComparisonQuery, request: Request,
+                     provenance: ProvenanceQuery = "headers") -> Response:
     """The comparison as CSV: one row per measure (Konüs indices, formulas with their bias,
-    compensation), for a spreadsheet's CSV-import function."""
-    header = ["measure", "value", "compared_with", "bias_points", "bias_percent"]
+    compensation), for a spreadsheet's CSV-import function; the same table as POST
+    /v1/comparisons answers in CSV."""
     numbers = SheetNumbers(params["decimal"], params["digits"])
 
-    def table() -> str:
-        rows = compare.measures(_comparison(params, request))
-        return numbers.table(header, rows)
+    def table() -> tuple[str, Provenance]:
+        outcome, origin = _comparison(params, request)
+        header, rows = compare.table(outcome)
+        return numbers.table(header, rows, origin if provenance == "trailer" else None), origin
 
-    return _answer(params["on_error"], CSV_CONTENT_TYPE, table, numbers)
+    return _answer(request, params["on_error"], CSV_CONTENT_TYPE, table, numbers)
 
 
 @router.head("/value", include_in_schema=False)
@@ -136,8 +148,8 @@ def sheet_value(params: ComparisonQuery, request: Request,
                 measure: Measure = "konus_base") -> Response:
     """One number as text/plain, for a spreadsheet's web-fetch function."""
 
-    def one() -> str:
-        outcome = _comparison(params, request)
+    def one() -> tuple[str, Provenance]:
+        outcome, origin = _comparison(params, request)
         validity = outcome.result.validity
         if measure in compare.MODEL_MEASURES and not validity.regular:
             reasons = notices_json(validity.reasons, outcome.axis.ids, outcome.axis.labels)
@@ -150,10 +162,10 @@ def sheet_value(params: ComparisonQuery, request: Request,
         if value is None:
             raise RequestProblem.at("#/query/measure", f"{measure!r} was not computed for this "
                                     "request (for konus_reference give reference_income)")
-        return numbers.number(value)
+        return numbers.number(value), origin
 
     numbers = SheetNumbers(params["decimal"], params["digits"])
-    return _answer(params["on_error"], "text/plain; charset=utf-8", one, numbers)
+    return _answer(request, params["on_error"], TEXT_CONTENT_TYPE, one, numbers)
 
 
 @router.head("/series", include_in_schema=False)
@@ -181,13 +193,14 @@ def sheet_series(
     digits: Digits = None,
     decimal: Decimal = "point",
     on_error: OnError = "problem",
+    provenance: ProvenanceQuery = "headers",
 ) -> Response:
     """The index series of a short panel for a spreadsheet's CSV import: each period's prices
     (and quantities) as one repeated query parameter, e.g.
     `?items=rye_loaf,ferry_pass&periods=2025-01,2025-02&prices=2.40,38&prices=2.45,38`."""
     query = dict(locals())
 
-    def table() -> str:
+    def table() -> tuple[str, Provenance]:
         loc = series.locator("query")
         for name, place in SERIES_MODEL_PLACES.items():
             loc.add(name, place)
@@ -197,10 +210,11 @@ def sheet_series(
                                 "quantities": body.quantities, "expenditures": None},
                                 series.limits(settings), loc)
         header, rows = series.table(series.run(body, panel, settings, loc, "sheetSeries"))
-        return numbers.table(header, rows)
+        origin = of_body(body)
+        return numbers.table(header, rows, origin if provenance == "trailer" else None), origin
 
     numbers = SheetNumbers(decimal, digits)
-    return _answer(on_error, CSV_CONTENT_TYPE, table, numbers)
+    return _answer(request, on_error, CSV_CONTENT_TYPE, table, numbers)
 
 
 #: The series form carries the model as ``family`` and ``sigma``.

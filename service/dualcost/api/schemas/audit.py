@@ -6,7 +6,7 @@ from typing import Literal
 
 from pydantic import Field
 
-from .common import FiniteFloat, StrictModel
+from .common import FiniteFloat, ProvenanceOut, StrictModel
 from .series import PeriodLabel, PeriodValidityOut, SeriesFormula, SeriesRequest
 
 
@@ -55,3 +55,4 @@ class AuditResponse(StrictModel):
                     "reliable weights, so values recomputed with them are not either.")
     tolerance_rule: str
     caution: str
+    provenance: ProvenanceOut

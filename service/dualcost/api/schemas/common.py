@@ -34,6 +34,20 @@ class StrictModel(BaseModel):
     model_config = ConfigDict(extra="forbid", allow_inf_nan=False)
 
 
+class ProvenanceOut(StrictModel):
+    """Where an answer came from: the service, its version, and a digest of the canonical input
+    the answer was computed from (see the service documentation, "Provenance")."""
+
+    service: Literal["dualcost"]
+    version: str = Field(description="The version of the service that computed the answer.")
+    input_digest: str = Field(
+        pattern=r"^sha256:[0-9a-f]{64}$",
+        description="'sha256:' and the SHA-256, in lowercase hexadecimal, of the canonical "
+                    "input: for a JSON body, the body as given in the JSON Canonicalization "
+                    "Scheme (RFC 8785), so that member order, whitespace and the spelling of "
+                    "numbers do not change it. The same in the Dualcost-Input-Digest header.")
+
+
 class ItemRefOut(StrictModel):
     """An item named by its id and label."""
 

@@ -13,6 +13,7 @@ from .common import (
     FiniteFloat,
     ItemIn,
     NoticeOut,
+    ProvenanceOut,
     StrictModel,
     ValidityOut,
     VectorIn,
@@ -148,7 +149,9 @@ class DiagnosticsOut(StrictModel):
     base_bundle_gap: float
 
 
-class ComparisonResponse(StrictModel):
+class ComparisonOut(StrictModel):
+    """A comparison's figures (inside a fitted comparison's answer, too)."""
+
     family: str
     items: list[str]
     validity: ValidityOut
@@ -165,4 +168,12 @@ class ComparisonResponse(StrictModel):
     caution: str
 
 
-__all__ = ["CAUTION", "SIGN_CONVENTION", "ComparisonRequest", "ComparisonResponse", "FormulaName"]
+
+class ComparisonResponse(ComparisonOut):
+    """The answer of POST /v1/comparisons: the comparison, and where it came from."""
+
+    provenance: ProvenanceOut
+
+
+__all__ = ["CAUTION", "SIGN_CONVENTION", "ComparisonOut", "ComparisonRequest",
+           "ComparisonResponse", "FormulaName"]

@@ -14,8 +14,8 @@ from typing import Annotated, Any, Literal
 
 from pydantic import Field, model_validator
 
-from .common import FiniteFloat, ItemIn, NoticeOut, StrictModel, VectorIn
-from .comparison import ComparisonResponse, CurrentIn, FormulaName, WeightReferenceIn
+from .common import FiniteFloat, ItemIn, NoticeOut, ProvenanceOut, StrictModel, VectorIn
+from .comparison import ComparisonOut, CurrentIn, FormulaName, WeightReferenceIn
 
 FittedFamily = Literal["ces", "nested_ces", "stone_geary", "aids", "quaids"]
 Estimator = Literal["nonlinear", "linear_approximate"]
@@ -237,7 +237,9 @@ class FitStatsOut(StrictModel):
     residuals: list[ResidualOut] | None
 
 
-class FitResponse(StrictModel):
+class FitOut(StrictModel):
+    """A fit's figures (inside a fitted comparison's answer, too)."""
+
     family: str = Field(description="The fitted preference family (as POST /v1/comparisons "
                         "names it).")
     estimator: str | None
@@ -256,6 +258,12 @@ class FitResponse(StrictModel):
     regularity: RegularityOut
     notices: list[NoticeOut]
     caution: str
+
+
+class FitResponse(FitOut):
+    """The answer of POST /v1/fits and POST /v1/fits/csv: the fit, and where it came from."""
+
+    provenance: ProvenanceOut
 
 
 # -- fit and compare ----------------------------------------------------------------------
@@ -288,11 +296,12 @@ class IntervalsOut(StrictModel):
 
 
 class FitAndCompareResponse(StrictModel):
-    fit: FitResponse
-    comparison: ComparisonResponse
+    fit: FitOut
+    comparison: ComparisonOut
     intervals: IntervalsOut
     caution: str
+    provenance: ProvenanceOut
 
 
-__all__ = ["FitAndCompareRequest", "FitAndCompareResponse", "FitModelIn", "FitRequest",
+__all__ = ["FitAndCompareRequest", "FitAndCompareResponse", "FitModelIn", "FitOut", "FitRequest",
            "FitResponse"]

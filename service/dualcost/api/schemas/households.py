@@ -9,7 +9,7 @@ from pydantic import Field, model_validator
 
 from ...core.households import DEFAULT_QUANTILES
 from ...core.indices import formulas_for
-from .common import FiniteFloat, ItemIn, NoticeOut, StrictModel, VectorIn
+from .common import FiniteFloat, ItemIn, NoticeOut, ProvenanceOut, StrictModel, VectorIn
 from .model import ModelSpec
 
 HouseholdFormula = Literal[formulas_for("households")]  # type: ignore[valid-type]
@@ -157,6 +157,7 @@ class HouseholdIndicesResponse(StrictModel):
     sign_convention: str
     notices: list[NoticeOut]
     caution: str
+    provenance: ProvenanceOut
 
 
 class JobProgressOut(StrictModel):
@@ -185,3 +186,6 @@ class HouseholdJobOut(StrictModel):
     notices: list[NoticeOut]
     links: dict[str, str]
     caution: str
+    provenance: ProvenanceOut = Field(description="The digest is of the job's body until its "
+                                      "households arrive, then of the body and the households' "
+                                      "CSV together.")

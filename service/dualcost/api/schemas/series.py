@@ -8,7 +8,7 @@ from typing import Annotated, Any, Literal
 from pydantic import Field, model_validator
 
 from ...core.indices import formulas_for
-from .common import FiniteFloat, ItemIn, NoticeOut, StrictModel, VectorIn
+from .common import FiniteFloat, ItemIn, NoticeOut, ProvenanceOut, StrictModel, VectorIn
 from .model import ModelSpec
 
 SeriesFormula = Literal[formulas_for("series")]  # type: ignore[valid-type]
@@ -240,6 +240,7 @@ class SeriesResponse(StrictModel):
     notices: list[NoticeOut]
     scale: dict[str, str] = Field(description="How each kind of figure is scaled.")
     caution: str
+    provenance: ProvenanceOut
 
 
 __all__ = ["FREQUENCY_TEXT", "PeriodLabel", "SeriesFormula", "SeriesOptions", "SeriesRequest",

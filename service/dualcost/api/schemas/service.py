@@ -4,7 +4,9 @@ from __future__ import annotations
 
 from typing import Any
 
-from .common import StrictModel
+from pydantic import Field
+
+from .common import ProvenanceOut, StrictModel
 from .comparison import ComparisonResponse
 
 
@@ -16,4 +18,6 @@ class HealthOut(StrictModel):
 class DemoOut(StrictModel):
     scenario: str
     request: dict[str, Any]
-    result: ComparisonResponse
+    result: ComparisonResponse = Field(description="The answer POST /v1/comparisons gives to "
+                                       "`request`, provenance included.")
+    provenance: ProvenanceOut

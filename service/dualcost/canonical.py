@@ -1,0 +1,211 @@
+"""The JSON Canonicalization Scheme (RFC 8785) and the digests of the service's provenance.
+
+One JSON value has one canonical text: object members sorted by their names (compared as
+UTF-16 code units), no whitespace, strings escaped as ECMAScript's ``JSON.stringify`` escapes
+them, and every number as ECMAScript writes a double (``12`` for 12.0, ``0.1``, ``0.000001``,
+``1e-7``, ``1e+21``). Any RFC 8785 implementation gives the same bytes, so a digest of them can be
+recomputed in any language. This module needs no web framework: the service
+(:mod:`dualcost.api.provenance`) and the client (:func:`dualcost.client.input_digest`) both use
+it.
+"""
+
+from __future__ import annotations
+
+import hashlib
+import json
+import math
+from collections.abc import Callable, Mapping
+from typing import Any
+
+import orjson
+
+__all__ = ["canonical_json", "digest_of", "es_number"]
+
+
+def es_number(value: float) -> str:
+    """A finite double as ECMAScript's Number::toString writes it (RFC 8785, 3.2.2.3): the
+    shortest digits that read back to the same number, in plain notation from 1e-6 up to 1e21
+    and in exponent notation (``1e-7``, ``1.5e+300``) outside."""
+    text = repr(value)  # Python's repr is the shortest round-trip form too
+    if "e" not in text:  # plain notation, as ECMAScript's for 1e-4 <= |value| < 1e16
+        if text.endswith(".0"):
+            return "0" if value == 0 else text[:-2]  # -0 is written 0
+        return text
+    return _es_exponent(text)
+
+
+def _es_exponent(text: str) -> str:
+    """ECMAScript's form of a number that Python writes in exponent notation."""
+    negative = text.startswith("-")
+    mantissa, _, exp = text.lstrip("-").partition("e")
+    whole, _, fraction = mantissa.partition(".")
+    digits = (whole + fraction).rstrip("0")
+    k = len(digits)
+    n = len(whole) + int(exp)  # the value is 0.<digits> x 10^n (``whole`` is one digit, not 0)
+    if k <= n <= 21:
+        body = digits + "0" * (n - k)
+    elif 0 < n <= 21:
+        body = digits[:n] + "." + digits[n:]
+    elif -6 < n <= 0:
+        body = "0." + "0" * -n + digits
+    else:
+        e = n - 1
+        head = digits[0] if k == 1 else digits[0] + "." + digits[1:]
+        body = f"{head}e{'+' if e >= 0 else '-'}{abs(e)}"
+    return "-" + body if negative else body
+
+
+#: A string in quotes, escaped as JSON.stringify escapes it (RFC 8785, 3.2.2.2): \" \\ \b \f \n
+#: \r \t, other control characters as \u00xx in lowercase, everything else as it is (the
+#: standard library's encoder for ``ensure_ascii=False``).
+_string: Callable[[str], str] = json.encoder.encode_basestring
+
+
+def _big(value: int) -> str:
+    """An integer beyond 2**53 as the double nearest to it is written."""
+    try:
+        return es_number(float(value))
+    except OverflowError:
+        raise ValueError(f"an integer of {len(str(abs(value)))} digits is beyond the range of "
+                         "JSON numbers (doubles)") from None
+
+
+def _utf16(key: str) -> bytes:
+    return key.encode("utf-16-be", "surrogatepass")
+
+
+def _write(value: Any, out: list[str]) -> None:
+    """The canonical text of ``value``, piece by piece: the scheme written out, one value at a
+    time (:func:`canonical_json` takes a quicker road where it leads to the same text)."""
+    kind = type(value)
+    if kind is str:
+        out.append(_string(value))
+    elif kind is float:
+        if not math.isfinite(value):
+            raise ValueError("NaN and infinity have no JSON form")
+        out.append(es_number(value))
+    elif value is True:
+        out.append("true")
+    elif value is False:
+        out.append("false")
+    elif value is None:
+        out.append("null")
+    elif kind is int:  # as the double it stands for (RFC 8785 numbers are doubles)
+        out.append(str(value) if abs(value) < 2 ** 53 else _big(value))
+    elif isinstance(value, Mapping):
+        keys = list(value)
+        if not all(type(k) is str for k in keys):
+            raise ValueError("an object's member names must be text")
+        keys.sort(key=_utf16)
+        out.append("{")
+        for i, k in enumerate(keys):
+            out.append((_string(k) + ":") if i == 0 else ("," + _string(k) + ":"))
+            _write(value[k], out)
+        out.append("}")
+    elif isinstance(value, (list, tuple)):
+        out.append("[")
+        for i, v in enumerate(value):
+            if i:
+                out.append(",")
+            _write(v, out)
+        out.append("]")
+    elif isinstance(value, (int, float)):  # bool and its kin are handled above
+        _write(float(value) if isinstance(value, float) else int(value), out)
+    else:
+        raise ValueError(f"a {kind.__name__} has no JSON form")
+
+
+# -- the quicker road -------------------------------------------------------------------------
+#
+# orjson (as the answers are written) with sorted keys writes RFC 8785's text already for most
+# values, about thirty times as fast as the standard library: it escapes strings as
+# JSON.stringify does, and it writes a float as its shortest round-trip digits, in ECMAScript's
+# form for every float that is not whole and lies in [1e-4, 1e16) by magnitude (others get an
+# exponent or a '.0'). Its key order, by code points, is RFC 8785's order by UTF-16 code units
+# unless a key holds a character beyond U+FFFF. So :func:`_prepared` turns whole floats below
+# 2**53 into ints, hands orjson the text of a tiny or huge number ready-made (a Fragment) and
+# leaves the rest as they are; a value it cannot prepare so (a key beyond U+FFFF, a type of its
+# own) takes :func:`_write`. The tests check that both give the same text on random values
+# (tests/api/test_provenance_and_formats.py).
+
+
+class _Slow(Exception):
+    """The value needs :func:`_write`."""
+
+
+def _encode(value: Any) -> str:
+    """Compact, keys sorted by code points, floats as Python's repr writes them."""
+    return orjson.dumps(value, option=orjson.OPT_SORT_KEYS).decode("utf-8")
+_LOW, _HIGH, _EXACT = 1e-4, 1e16, 2.0 ** 53
+
+
+def _plain_floats(values: list[float]) -> bool:
+    """Every float is finite, not whole and in [1e-4, 1e16) by magnitude (checked in C)."""
+    if not math.isfinite(sum(values)):  # NaN or infinity (or a sum beyond floats: no matter)
+        return False
+    if not min(values) >= _LOW:  # not all positive (prices, quantities, shares usually are)
+        values = list(map(abs, values))
+    return (min(values) >= _LOW and max(values) < _HIGH
+            and not any(map(float.is_integer, values)))
+
+
+def _float(v: float) -> float | int | orjson.Fragment:
+    if v.is_integer() and -_EXACT < v < _EXACT:
+        return int(v)
+    if _LOW <= abs(v) < _HIGH:
+        return v
+    if not math.isfinite(v):
+        raise ValueError("NaN and infinity have no JSON form")
+    return orjson.Fragment(es_number(v))  # tiny, or huge: written here
+
+
+def _prepared(value: Any) -> Any:
+    kind = type(value)
+    if kind is str or kind is bool or value is None:
+        return value
+    if kind is float:
+        return _float(value)
+    if kind is int:
+        return value if -_EXACT < value < _EXACT else orjson.Fragment(_big(value))
+    if kind is dict:
+        for k in value:
+            if type(k) is not str or (not k.isascii() and max(k) > "\uffff"):
+                raise _Slow
+        if len(value) > _MANY:
+            values = list(value.values())
+            if set(map(type, values)) == _FLOAT:  # a vector keyed by item id
+                return value if _plain_floats(values) else {k: _float(v) for k, v in
+                                                            value.items()}
+        return {k: _prepared(v) for k, v in value.items()}
+    if kind is list or kind is tuple:
+        if len(value) > _MANY:
+            types = set(map(type, value))
+            if types == _FLOAT:  # a vector
+                return value if _plain_floats(value) else [_float(v) for v in value]
+            if types == _STR:  # a list of ids
+                return value
+        return [_prepared(v) for v in value]
+    raise _Slow
+
+
+#: Containers longer than this are first tried as a whole: all floats, all text.
+_MANY = 8
+_FLOAT, _STR = {float}, {str}
+
+
+def canonical_json(value: Any) -> bytes:
+    """``value`` (JSON-ready: dicts with text keys, lists, text, numbers, booleans, None) in
+    the JSON Canonicalization Scheme (RFC 8785), as UTF-8 bytes. ValueError for what JSON
+    cannot hold (NaN, infinity, a number beyond doubles, other types)."""
+    try:
+        text = _encode(_prepared(value))
+    except _Slow:
+        out: list[str] = []
+        _write(value, out)
+        text = "".join(out)
+    return text.encode("utf-8", "surrogatepass")
+
+
+def digest_of(value: Any) -> str:
+    """``sha256:`` and the SHA-256 of ``value``'s canonical form, in lowercase hexadecimal."""
+    return "sha256:" + hashlib.sha256(canonical_json(value)).hexdigest()
