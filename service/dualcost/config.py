@@ -39,6 +39,18 @@ class Settings(BaseSettings):
     rate_limit_per_minute: int | None = Field(
         None, ge=1, description="Requests a minute allowed per API key and worker process.")
     max_body_bytes: int = Field(10_000_000, ge=1_000, description="Largest request body (413 above).")
+    max_header_bytes: int = Field(
+        32_768, ge=1_024, description="Largest request head: request line and header fields, in "
+        "bytes (431 above; `dualcost serve` stops reading the head there).")
+    max_header_count: int = Field(100, ge=8, description="Most header fields in one request "
+                                  "(431 above).")
+    read_timeout_seconds: float = Field(
+        30.0, gt=0, le=3600, description="Seconds a request's head may take to arrive, and again "
+        "its body (408 beyond); a body gets one more second per read_min_bytes_per_second bytes "
+        "received.")
+    read_min_bytes_per_second: int = Field(
+        65_536, ge=1, description="Bytes of a request body that earn one more second of read "
+        "time (the slowest upload that is never cut off, beyond read_timeout_seconds).")
     log_json: bool = Field(True, description="Log one JSON object per line (false: plain text).")
     max_items: int = Field(20_000, ge=1, description="Most items one request may carry.")
     max_tree_depth: int = Field(64, ge=1, description="Deepest nested CES tree accepted.")

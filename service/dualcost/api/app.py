@@ -16,7 +16,7 @@ from .. import __version__
 from ..config import Settings
 from . import problems
 from .access import AccessControlMiddleware, load_keys
-from .limits import BodySizeLimitMiddleware
+from .limits import BodyLimitMiddleware, HeaderLimitMiddleware
 from .observability import RequestContextMiddleware
 from .openapi import problem_openapi
 from .operations import jobs
@@ -78,10 +78,14 @@ def create_app(settings: Settings | None = None) -> FastAPI:
     if keys or settings.rate_limit_per_minute:
         app.add_middleware(AccessControlMiddleware, keys=keys,
                            rate_limit_per_minute=settings.rate_limit_per_minute)
-    app.add_middleware(BodySizeLimitMiddleware, max_body_bytes=settings.max_body_bytes)
+    app.add_middleware(BodyLimitMiddleware, max_body_bytes=settings.max_body_bytes,
+                       read_timeout_seconds=settings.read_timeout_seconds,
+                       read_min_bytes_per_second=settings.read_min_bytes_per_second)
     if settings.cors_origins:
         app.add_middleware(CORSMiddleware, allow_origins=list(settings.cors_origins),
                            allow_methods=["GET", "HEAD", "POST", "OPTIONS"], allow_headers=["*"])
+    app.add_middleware(HeaderLimitMiddleware, max_header_bytes=settings.max_header_bytes,
+                       max_header_count=settings.max_header_count)
     problems.install(app)
     # Outermost: every request gets its id, log line and metrics, refusals included.
     app.add_middleware(RequestContextMiddleware)

@@ -35,10 +35,12 @@ class ProblemOut(BaseModel):
     errors: list[FieldErrorOut] | None = None
 
 
-#: Error answers every operation can give (the request size limit, malformed input, a bug).
+#: Error answers every operation can give (the request's limits, malformed input, a bug).
 _ALWAYS = {
     "400": "The body is not valid JSON.",
+    "408": "The request (its header fields or its body) did not arrive within the read time.",
     "413": "The request body is larger than the limit.",
+    "431": "The request's header fields are too large or too many.",
     "422": "The request breaks a rule; `errors` points at each field.",
     "500": "Internal error (a bug: please report it).",
 }

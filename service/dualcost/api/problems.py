@@ -16,8 +16,12 @@ The web layer's exceptions join the core's tree (:mod:`dualcost.core.errors`)::
           ├── JobConflict     409
           └── ServiceBusy     503
 
-    BodyTooLarge (a BaseException: it must pass the framework's ``except Exception`` around
-    body reading to reach the size-limit middleware, which answers 413)
+    BodyTooLarge, BodyTimedOut (BaseExceptions: they must pass the framework's ``except
+    Exception`` around body reading to reach the body-limit middleware, which answers 413 or 408)
+
+Refusals made before a request reaches the application (a request head too large, or too slow to
+arrive: 431, 408) are written by the server's protocol (:mod:`dualcost.api.transport`) with
+:func:`problem_message`.
 
 Every status the service answers for an error is in this module: in ``PROBLEM_TYPES`` and in
 the classes above.
@@ -29,6 +33,7 @@ import json
 import logging
 from collections.abc import Iterable, Mapping, Sequence
 from dataclasses import dataclass
+from http import HTTPStatus
 from typing import Any
 
 from fastapi import FastAPI, Request
@@ -71,6 +76,17 @@ PROBLEM_TYPES: dict[str, ProblemType] = {
                     "The body could not be parsed as JSON."),
         ProblemType("payload-too-large", 413, "The request body is too large",
                     "The body is larger than the service's limit (DUALCOST_MAX_BODY_BYTES)."),
+        ProblemType("request-header-fields-too-large", 431, "The request's header fields are "
+                    "too large",
+                    "The request line and header fields together are larger than the service's "
+                    "limit (DUALCOST_MAX_HEADER_BYTES), or there are more header fields than "
+                    "DUALCOST_MAX_HEADER_COUNT. The connection is closed after this answer."),
+        ProblemType("request-timeout", 408, "The request took too long to arrive",
+                    "The request's header fields, or its body, did not arrive within the "
+                    "service's read time (DUALCOST_READ_TIMEOUT_SECONDS, and for a body one more "
+                    "second per DUALCOST_READ_MIN_BYTES_PER_SECOND bytes received). Nothing was "
+                    "computed; the connection is closed after this answer: send the request "
+                    "again."),
         ProblemType("unauthorized", 401, "An API key is needed",
                     "This service requires an API key in the X-API-Key header (or as "
                     "'Authorization: Bearer <key>')."),
@@ -98,6 +114,12 @@ class BodyTooLarge(BaseException):
     Deliberately not an ``Exception``: the framework wraps body reading in ``except Exception``
     (turning anything into a 400), and this must reach the size-limit middleware, which answers
     413 (see :mod:`dualcost.api.limits`).
+    """
+
+
+class BodyTimedOut(BaseException):
+    """Raised while a request body is read, when it has not arrived within the read time; a
+    ``BaseException`` for the same reason as :class:`BodyTooLarge` (the middleware answers 408).
     """
 
 
@@ -171,6 +193,18 @@ async def send_problem(send: Send, slug: str, detail: str, *, instance: str | No
                 "headers": [(b"content-type", PROBLEM_MEDIA_TYPE.encode()),
                             (b"content-length", str(len(data)).encode()), *headers]})
     await send({"type": "http.response.body", "body": data})
+
+
+def problem_message(slug: str, detail: str) -> tuple[int, bytes]:
+    """A whole HTTP/1.1 answer carrying a problem, and its status, for the server's protocol
+    to write before any application sees the request; it closes the connection."""
+    body = problem_body(slug, detail)
+    data = json.dumps(body).encode()
+    status = int(body["status"])
+    head = (f"HTTP/1.1 {status} {HTTPStatus(status).phrase}\r\n"
+            f"content-type: {PROBLEM_MEDIA_TYPE}\r\ncontent-length: {len(data)}\r\n"
+            "connection: close\r\n\r\n")
+    return status, head.encode("latin-1") + data
 
 
 def problem_response(slug: str, detail: str, *, status: int | None = None,
