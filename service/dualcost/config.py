@@ -77,6 +77,9 @@ class Settings(BaseSettings):
     household_chunk_rows: int | None = Field(None, ge=1, description="Household rows evaluated "
                                              "together (default: about 128k numbers per chunk).")
     max_household_jobs: int = Field(32, ge=1, description="Household jobs kept in memory.")
+    max_household_jobs_per_key: int | None = Field(
+        None, ge=1, description="Household jobs one API key may hold (default: the job table "
+        "divided among the configured keys, at least 1; no limit with access control off).")
     dask_scheduler: str | None = Field(None, description="Dask scheduler address (e.g. "
                                        "tcp://10.0.0.5:8786) for large household jobs; unset: "
                                        "everything runs in process.")

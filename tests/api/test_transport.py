@@ -247,3 +247,44 @@ def test_an_upload_dropped_halfway_ends_quietly(service: str) -> None:
     r = httpx.post(service + job["links"]["households"], content=text,
                    headers={"content-type": "text/csv"})
     assert r.status_code == 200, r.text
+
+
+# -- job slots ----------------------------------------------------------------------------------
+
+
+def test_stalled_uploads_hold_no_job_slot(service: str) -> None:
+    """Every job of the table (32) with an upload stalled halfway: a new job is still created,
+    in place of the oldest one, and its households computed."""
+    stalled: list[socket.socket] = []
+    with httpx.Client() as client:
+        for _ in range(33):
+            job = create_job(service, client)
+            sock = connect(service)
+            sock.sendall(upload_head(job["links"]["households"], 100_000) + b"household,")
+            stalled.append(sock)
+        try:
+            time.sleep(0.3)  # every upload has reached the service and waits for the rest
+            fresh = create_job(service, client)
+            r = client.post(service + fresh["links"]["households"],
+                            content=household_csv(example()).encode(),
+                            headers={"content-type": "text/csv"})
+            assert r.status_code == 200, r.text
+            assert client.get(service + fresh["links"]["self"]).json()["status"] == "done"
+        finally:
+            for sock in stalled:
+                sock.close()
+
+
+def test_a_client_that_leaves_before_reading_the_answer_frees_the_jobs_slot(service: str) -> None:
+    """The households arrive whole, the client goes: the job ends (cancelled, or done if it
+    was quicker) at once, not whenever its abandoned stream is collected; until then it would
+    hold its slot as a running job, which no new job may replace."""
+    text = household_csv(example()).encode()
+    lines = text.split(b"\r\n")
+    text = b"\r\n".join([lines[0], *lines[1:-1] * 2000]) + b"\r\n"
+    job = create_job(service)
+    with connect(service) as sock:
+        sock.sendall(upload_head(job["links"]["households"], len(text)) + text)
+    wait_for(lambda: httpx.get(service + job["links"]["self"]).json()["status"] != "running"
+             and counted(service, "householdIndicesFromCsv", 200) > 0, 5.0)
+    assert httpx.get(service + job["links"]["self"]).json()["status"] in ("cancelled", "done")

@@ -5,7 +5,8 @@ configured (``DUALCOST_API_KEYS`` as a JSON list, or ``DUALCOST_API_KEYS_FILE``,
 line), every ``/v1/`` request must carry one in ``X-API-Key`` or ``Authorization: Bearer``. Keys
 are compared in constant time (``hmac.compare_digest`` against every configured key, so the time
 taken does not tell which key came close) and never logged: logs and metrics see only a label,
-the first 8 hex digits of the key's SHA-256.
+the first 8 hex digits of the key's SHA-256. A verified key's whole SHA-256 is its owner id
+(``scope["state"]["key_id"]``), which household jobs are kept under.
 
 Rate limits (``DUALCOST_RATE_LIMIT_PER_MINUTE``) are a token bucket per key and per worker
 process: with N workers behind one port a key can get up to N times the rate. Put a shared
@@ -30,8 +31,14 @@ OPEN_PREFIXES = ("/health", "/live", "/ready", "/metrics", "/problems/", "/stati
                  "/redoc", "/openapi.json")
 
 
+def key_id(key: str) -> str:
+    """A key's owner id: its whole SHA-256 (hex)."""
+    return hashlib.sha256(key.encode()).hexdigest()
+
+
 def key_label(key: str) -> str:
-    return hashlib.sha256(key.encode()).hexdigest()[:8]
+    """A key's label in logs: the first 8 hex digits of its SHA-256."""
+    return key_id(key)[:8]
 
 
 class _Bucket:
@@ -83,6 +90,8 @@ class AccessControlMiddleware:
             return
         label = key_label(given.decode("latin-1")) if given else "anonymous"
         scope.setdefault("state", {})["client_label"] = label
+        if self.keys:  # verified: the owner of the household jobs this request makes
+            scope["state"]["key_id"] = key_id(given.decode("latin-1"))
         if self.rate:
             with self.lock:
                 bucket = self.buckets.setdefault(label, _Bucket(self.rate))

@@ -72,9 +72,12 @@ def create_app(settings: Settings | None = None) -> FastAPI:
         ],
     )
     app.state.settings = settings
-    app.state.jobs = jobs.JobStore(settings.max_household_jobs)
     keys = load_keys(settings.api_keys, str(settings.api_keys_file) if settings.api_keys_file else None)
     app.state.access_control = bool(keys)
+    # With keys, each key's share of the job table; without, every job is everyone's.
+    per_key = (settings.max_household_jobs_per_key or max(1, settings.max_household_jobs // len(keys))
+               if keys else None)
+    app.state.jobs = jobs.JobStore(settings.max_household_jobs, per_key)
     if keys or settings.rate_limit_per_minute:
         app.add_middleware(AccessControlMiddleware, keys=keys,
                            rate_limit_per_minute=settings.rate_limit_per_minute)

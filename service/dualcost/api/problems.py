@@ -14,7 +14,7 @@ The web layer's exceptions join the core's tree (:mod:`dualcost.core.errors`)::
      └── ServiceProblem       the service's state refuses the request
           ├── JobNotFound     404
           ├── JobConflict     409
-          └── ServiceBusy     503
+          └── JobTableFull    503, with Retry-After
 
     BodyTooLarge, BodyTimedOut (BaseExceptions: they must pass the framework's ``except
     Exception`` around body reading to reach the body-limit middleware, which answers 413 or 408)
@@ -97,6 +97,13 @@ PROBLEM_TYPES: dict[str, ProblemType] = {
                     "The request's computation took longer than the service's compute deadline "
                     "(DUALCOST_COMPUTE_DEADLINE_SECONDS) and was stopped. Reduce the problem's size "
                     "or ask the operator for a longer deadline."),
+        ProblemType("job-table-full", 503, "No room for another household job",
+                    "The household-job table of this process is full of jobs that may not be "
+                    "removed (running jobs, and jobs of other API keys that have not finished), "
+                    "or this API key holds its share of the table "
+                    "(DUALCOST_MAX_HOUSEHOLD_JOBS_PER_KEY) and all of its jobs are running. Retry "
+                    "after the number of seconds in the Retry-After header, or delete a job of "
+                    "yours that you no longer need."),
         ProblemType("not-found", 404, "Nothing here", "No resource at this address."),
         ProblemType("method-not-allowed", 405, "Method not allowed",
                     "This address does not answer that HTTP method."),
@@ -149,6 +156,8 @@ class ServiceProblem(DualcostError):
 
     slug = "http-error"
     status = 400
+    #: Seconds to send in a Retry-After header (none when None).
+    retry_after: int | None = None
 
     def __init__(self, detail: str) -> None:
         self.detail = detail
@@ -163,8 +172,14 @@ class JobConflict(ServiceProblem):
     slug, status = "http-error", 409
 
 
-class ServiceBusy(ServiceProblem):
-    slug, status = "http-error", 503
+class JobTableFull(ServiceProblem):
+    """No room for another household job: 503 with Retry-After (RFC 9110, 15.6.4 and 10.2.3)."""
+
+    slug, status = "job-table-full", 503
+
+    def __init__(self, detail: str, retry_after: int) -> None:
+        super().__init__(detail)
+        self.retry_after = retry_after
 
 
 def problem_body(slug: str, detail: str, *, status: int | None = None,
@@ -306,7 +321,11 @@ async def _on_invalid_input(request: Request, exc: InvalidInput) -> JSONResponse
 
 
 async def _on_service_problem(request: Request, exc: ServiceProblem) -> JSONResponse:
-    return problem_response(exc.slug, exc.detail, status=exc.status, instance=request.url.path)
+    response = problem_response(exc.slug, exc.detail, status=exc.status,
+                                instance=request.url.path)
+    if exc.retry_after is not None:
+        response.headers["retry-after"] = str(exc.retry_after)
+    return response
 
 
 async def _on_engine_unavailable(request: Request, exc: EngineUnavailable) -> JSONResponse:

@@ -11,17 +11,22 @@
 
 from __future__ import annotations
 
+import inspect
+import itertools
+from collections.abc import Generator
 from typing import Annotated, Any, Literal
 
+import anyio
 from fastapi import APIRouter, Query, Request
-from fastapi.responses import Response
+from fastapi.responses import Response, StreamingResponse
 from starlette.concurrency import run_in_threadpool
+from starlette.types import Receive, Scope, Send
 
 from ..deps import settings_of
 from ..inputs.csv import CSV_REQUEST_BODY
 from ..operations import households, jobs
 from ..problems import PROBLEM_MEDIA_TYPE
-from ..render import CSV_ANSWER, csv_stream, json_response, negotiate
+from ..render import CSV_ANSWER, CSV_CONTENT_TYPE, csv_stream, json_response, negotiate
 from ..routing import JsonRoute
 from ..schemas.households import (
     HouseholdIndicesRequest,
@@ -40,6 +45,7 @@ PROBLEM_RESPONSES: dict[int | str, dict[str, Any]] = {
     503: {"description": "The Dask cluster asked for is not configured here or cannot be "
                          "reached."},
 }
+NO_JOB = {"description": "No such job in this process (or it belongs to another API key)."}
 FormatParam = Annotated[Literal["json", "csv"] | None, Query(
     description="Answer format: json, or csv (one row per household and period). Default: "
                 "from the Accept header, else json.")]
@@ -47,6 +53,36 @@ FormatParam = Annotated[Literal["json", "csv"] | None, Query(
 
 def _store(request: Request) -> jobs.JobStore:
     return request.app.state.jobs
+
+
+class _JobAnswer(StreamingResponse):
+    """A job's streamed CSV answer that ends the job's stream as soon as the answer ends.
+
+    When the client goes away, Starlette stops sending but leaves the stream (a generator
+    that computes in the compute threads) to be collected whenever that happens; until then
+    the job would count as running, holding its slot, and its upload's file would stay open.
+    Here the job is marked cancelled at once and the stream is closed (after the chunk it may
+    be computing), which runs its clean-up. The stream has yielded its first piece (the CSV
+    header) before: closing a generator that has not started would skip its clean-up.
+    """
+
+    def __init__(self, state: jobs.JobState, pieces: Generator[str, None, None],
+                 headers: dict[str, str]) -> None:
+        first = next(pieces)
+        super().__init__(itertools.chain([first], pieces), media_type=CSV_CONTENT_TYPE,
+                         headers=headers)
+        self.state, self.pieces = state, pieces
+
+    async def __call__(self, scope: Scope, receive: Receive, send: Send) -> None:
+        try:
+            await super().__call__(scope, receive, send)
+        finally:
+            with anyio.CancelScope(shield=True):
+                self.state.fail("cancelled", "the client stopped reading the answer")
+                while inspect.getgeneratorstate(self.pieces) == inspect.GEN_RUNNING:
+                    # a chunk is computing in a thread
+                    await anyio.sleep(0.01)
+                self.pieces.close()
 
 
 @router.post("/household-indices", operation_id="householdIndices",
@@ -72,20 +108,23 @@ def household_indices(body: HouseholdIndicesRequest, request: Request,
 
 @router.post("/household-jobs", operation_id="createHouseholdJob", status_code=201,
              summary="Create a household job; then upload its households as CSV",
-             response_model=HouseholdJobOut, responses=PROBLEM_RESPONSES)
+             response_model=HouseholdJobOut, responses={**PROBLEM_RESPONSES, 503: {
+                 "description": "The Dask cluster asked for cannot be used, or the job table "
+                                "has no room (job-table-full, with Retry-After)."}})
 def create_household_job(body: HouseholdJobSpec, request: Request) -> Response:
     """The same fields as householdIndices without the households. The answer is the job
     (status waiting_for_households); send its households as CSV to the households link.
     Bad rows are skipped and reported unless bad_rows is reject. Jobs live in this process's
-    memory (see the service documentation)."""
-    state = jobs.create(body, settings_of(request), _store(request))
+    memory (see the service documentation); with API keys, a job is seen only with the key
+    that created it."""
+    state = jobs.create(body, settings_of(request), _store(request), jobs.owner_of(request))
     return json_response(state.snapshot(), status_code=201,
                          headers={"Location": f"/v1/household-jobs/{state.id}"})
 
 
 @router.post("/household-jobs/{job_id}/households", operation_id="householdIndicesFromCsv",
              summary="Upload a job's households as CSV; the results stream back as CSV",
-             responses={**PROBLEM_RESPONSES, 200: CSV_ANSWER, 404: {"description": "No such job."},
+             responses={**PROBLEM_RESPONSES, 200: CSV_ANSWER, 404: NO_JOB,
                         409: {"description": "The job already has its households."}},
              openapi_extra=CSV_REQUEST_BODY)
 async def household_indices_from_csv(job_id: str, request: Request) -> Response:
@@ -97,11 +136,20 @@ async def household_indices_from_csv(job_id: str, request: Request) -> Response:
     at once (422, #row=1). With bad_rows reject, the answer comes only when every row has
     passed, else a 422 naming each bad row by RFC 7111 fragment (#cell=row,column)."""
     settings = settings_of(request)
-    state = _store(request).get(job_id)
-    state.claim()
+    store = _store(request)
+    state = store.get(job_id, jobs.owner_of(request))
+    state.expect_households()
+    # The job takes its slot only once its households have arrived: a stalled upload holds
+    # none (and is ended by the body's read time).
+    with state.receiving():
+        file, lines = await jobs.spool(request)
+    try:
+        store.claim(state)
+    except BaseException:
+        file.close()
+        raise
     text = None
     try:
-        file, lines = await jobs.spool(request)
         text, reader, address = jobs.open_upload(state, file, lines, settings)
         # Connect before answering, so that an unreachable cluster is a 503, not a cut stream.
         scheduler = None if address is None else await run_in_threadpool(households.connect,
@@ -109,12 +157,14 @@ async def household_indices_from_csv(job_id: str, request: Request) -> Response:
     except BaseException:
         if text is not None:
             text.close()
+        else:
+            file.close()
         state.release()
         raise
     headers = {"Link": f'</v1/household-jobs/{state.id}>; rel="monitor"',
                "Content-Location": f"/v1/household-jobs/{state.id}"}
     if state.bad_rows == "skip":
-        return csv_stream(jobs.stream(state, reader, text, scheduler, settings), headers=headers)
+        return _JobAnswer(state, jobs.stream(state, reader, text, scheduler, settings), headers)
     try:
         out = await run_in_threadpool(jobs.run_to_file, state, reader, scheduler, settings)
     finally:
@@ -125,19 +175,17 @@ async def household_indices_from_csv(job_id: str, request: Request) -> Response:
 @router.get("/household-jobs/{job_id}", operation_id="getHouseholdJob",
             summary="A household job's progress; at the end its summaries and skipped rows",
             response_model=HouseholdJobOut,
-            responses={404: {"description": "No such job in this process.",
-                             "content": {PROBLEM_MEDIA_TYPE: {}}}})
+            responses={404: {**NO_JOB, "content": {PROBLEM_MEDIA_TYPE: {}}}})
 def get_household_job(job_id: str, request: Request) -> Response:
     """Status (waiting_for_households, running, done, failed, cancelled), rows read and
     done, rows skipped by reason with the first 100 named by CSV record and column, and when
     done the democratic and plutocratic aggregates, quantiles and shares above them."""
-    return json_response(_store(request).get(job_id).snapshot())
+    return json_response(_store(request).get(job_id, jobs.owner_of(request)).snapshot())
 
 
 @router.delete("/household-jobs/{job_id}", operation_id="deleteHouseholdJob", status_code=204,
                summary="Forget a household job that is not running",
-               responses={404: {"description": "No such job in this process."},
-                          409: {"description": "The job is running."}})
+               responses={404: NO_JOB, 409: {"description": "The job is running."}})
 def delete_household_job(job_id: str, request: Request) -> Response:
-    _store(request).remove(job_id)
+    _store(request).remove(job_id, jobs.owner_of(request))
     return Response(status_code=204)
