@@ -37,7 +37,11 @@ class Settings(BaseSettings):
     api_keys_file: Path | None = Field(
         None, description="A secret file of API keys, one per line ('#' starts a comment).")
     rate_limit_per_minute: int | None = Field(
-        None, ge=1, description="Requests a minute allowed per API key and worker process.")
+        None, ge=1, description="Requests a minute allowed per verified API key, and per client "
+        "address for requests without one, in each worker process.")
+    rate_limit_max_clients: int = Field(
+        10_000, ge=1, description="Most clients (verified keys and addresses) whose request rate "
+        "one worker process tracks; beyond it the one unseen longest is forgotten.")
     max_body_bytes: int = Field(10_000_000, ge=1_000, description="Largest request body (413 above).")
     max_header_bytes: int = Field(
         32_768, ge=1_024, description="Largest request head: request line and header fields, in "

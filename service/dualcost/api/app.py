@@ -15,7 +15,7 @@ from fastapi.staticfiles import StaticFiles
 from .. import __version__
 from ..config import Settings
 from . import problems
-from .access import AccessControlMiddleware, load_keys
+from .access import AccessControlMiddleware, RateLimiter, load_keys
 from .limits import BodyLimitMiddleware, HeaderLimitMiddleware
 from .observability import RequestContextMiddleware
 from .openapi import problem_openapi
@@ -78,9 +78,11 @@ def create_app(settings: Settings | None = None) -> FastAPI:
     per_key = (settings.max_household_jobs_per_key or max(1, settings.max_household_jobs // len(keys))
                if keys else None)
     app.state.jobs = jobs.JobStore(settings.max_household_jobs, per_key)
-    if keys or settings.rate_limit_per_minute:
-        app.add_middleware(AccessControlMiddleware, keys=keys,
-                           rate_limit_per_minute=settings.rate_limit_per_minute)
+    app.state.rate_limiter = (RateLimiter(settings.rate_limit_per_minute,
+                                          settings.rate_limit_max_clients)
+                              if settings.rate_limit_per_minute else None)
+    if keys or app.state.rate_limiter is not None:
+        app.add_middleware(AccessControlMiddleware, keys=keys, limiter=app.state.rate_limiter)
     app.add_middleware(BodyLimitMiddleware, max_body_bytes=settings.max_body_bytes,
                        read_timeout_seconds=settings.read_timeout_seconds,
                        read_min_bytes_per_second=settings.read_min_bytes_per_second)

@@ -46,7 +46,8 @@ _ALWAYS = {
 }
 _PROTECTED = {
     "401": "An API key is needed (when the service is configured with keys).",
-    "429": "This API key's rate limit is used up (when configured); see Retry-After.",
+    "429": "The rate limit of this API key (or, without a valid key, of this client address) "
+           "is used up (when configured); see Retry-After.",
 }
 _COMPUTING = {"503": "The computation ran past the service's compute deadline."}
 

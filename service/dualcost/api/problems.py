@@ -91,8 +91,9 @@ PROBLEM_TYPES: dict[str, ProblemType] = {
                     "This service requires an API key in the X-API-Key header (or as "
                     "'Authorization: Bearer <key>')."),
         ProblemType("too-many-requests", 429, "Too many requests",
-                    "This API key has used up its request rate; retry after the number of "
-                    "seconds in the Retry-After header."),
+                    "This API key (or, for requests without a valid key, this client address) "
+                    "has used up its request rate; retry after the number of seconds in the "
+                    "Retry-After header."),
         ProblemType("deadline-exceeded", 503, "The computation ran past its deadline",
                     "The request's computation took longer than the service's compute deadline "
                     "(DUALCOST_COMPUTE_DEADLINE_SECONDS) and was stopped. Reduce the problem's size "
