@@ -7,6 +7,7 @@ import socket
 import threading
 import time
 from collections.abc import Iterator
+from contextlib import contextmanager
 from pathlib import Path
 from typing import Any
 
@@ -15,6 +16,7 @@ import uvicorn
 from fastapi.testclient import TestClient
 
 from dualcost.api.app import create_app
+from dualcost.api.transport import protocol_for
 from dualcost.config import Settings
 
 ROOT = Path(__file__).resolve().parents[1]
@@ -37,11 +39,12 @@ def free_port() -> int:
         return int(s.getsockname()[1])
 
 
-@pytest.fixture(scope="session")
-def live_url() -> Iterator[str]:
-    """The service on a free loopback port, in a thread, for clients that need a real socket."""
-    config = uvicorn.Config(create_app(Settings(examples_dir=EXAMPLES)), host="127.0.0.1",
-                            port=free_port(), log_level="warning")
+@contextmanager
+def running_service(settings: Settings) -> Iterator[str]:
+    """The service on a free loopback port, in a thread, served as ``dualcost serve`` serves it
+    (uvicorn with the bounded protocol of dualcost.api.transport); its URL."""
+    config = uvicorn.Config(create_app(settings), host="127.0.0.1", port=free_port(),
+                            log_level="warning", http=protocol_for(settings))
     server = uvicorn.Server(config)
     thread = threading.Thread(target=server.run, daemon=True)
     thread.start()
@@ -49,6 +52,15 @@ def live_url() -> Iterator[str]:
     while not server.started:
         assert time.monotonic() < deadline, "the service did not start"
         time.sleep(0.05)
-    yield f"http://127.0.0.1:{config.port}"
-    server.should_exit = True
-    thread.join(timeout=10)
+    try:
+        yield f"http://127.0.0.1:{config.port}"
+    finally:
+        server.should_exit = True
+        thread.join(timeout=10)
+
+
+@pytest.fixture(scope="session")
+def live_url() -> Iterator[str]:
+    """The service on a free loopback port, in a thread, for clients that need a real socket."""
+    with running_service(Settings(examples_dir=EXAMPLES)) as url:
+        yield url

@@ -27,6 +27,7 @@ import httpx
 import pytest
 
 from dualcost.client import Client
+from dualcost.config import Settings
 from tests.conftest import ROOT
 
 README = (ROOT / "README.md").read_text(encoding="utf-8")
@@ -265,6 +266,43 @@ def test_the_check_example_without_its_base_period_prints_the_readmes_hint(tmp_p
     assert done.stdout.rstrip("\n").splitlines()[-1] == hint
     suite = ET.parse(tmp_path / "report.xml").getroot().find("testsuite")
     assert suite is not None and suite.findtext("system-out") == hint
+
+
+# -- the settings -------------------------------------------------------------------------------
+
+
+def settings_table() -> dict[str, str]:
+    """The README's table of settings: each ``DUALCOST_`` variable's default as written (a row
+    may name several variables, with their defaults in the same order)."""
+    section = README.split("## Running it as a service", 1)[1].split("\n## ", 1)[0]
+    table = {}
+    for line in section.splitlines():
+        if line.startswith("| `DUALCOST_"):
+            names, defaults = (cell.strip() for cell in line.strip("|").split("|")[:2])
+            found = re.findall(r"`DUALCOST_(\w+)`", names)
+            values = defaults.split(", ")
+            assert len(found) == len(values), line
+            table.update(zip(found, values, strict=True))
+    return table
+
+
+def test_the_settings_table_gives_every_setting_with_its_default() -> None:
+    table = settings_table()
+    assert set(table) == {name.upper() for name in Settings.model_fields}
+    for name, field in Settings.model_fields.items():
+        written, default = table[name.upper()], field.default
+        if default is None:
+            assert written == "unset", name
+        elif isinstance(default, bool):
+            assert written == str(default).lower(), name
+        elif isinstance(default, tuple):
+            assert default == () and written == "`[]`", name
+        elif isinstance(default, (int, float)):
+            assert float(written) == default, name
+        elif isinstance(default, Path):
+            assert written == f"`{default.name}/`", name
+        else:
+            assert written == str(default), name
 
 
 # -- set-up ---------------------------------------------------------------------------------------

@@ -62,6 +62,7 @@ def serve(host: str, port: int, workers: int, log_level: str) -> int:
     settings = Settings()  # fail here, with pydantic's message, if the environment is invalid
     from .api.access import load_keys
     from .api.observability import logging_config
+    from .api.transport import BoundedHttpToolsProtocol
 
     keys = load_keys(settings.api_keys, str(settings.api_keys_file) if settings.api_keys_file else None)
     print(f"dualcost {__version__}: http://{host}:{port}/ (API docs /docs, demo /v1/demo), "
@@ -73,8 +74,10 @@ def serve(host: str, port: int, workers: int, log_level: str) -> int:
         print("access control: OFF (no API keys configured): anyone who can reach this address "
               "can use the service; set DUALCOST_API_KEYS or DUALCOST_API_KEYS_FILE to require keys",
               flush=True)
+    # The request head is bounded as it arrives (dualcost.api.transport), before uvicorn keeps it.
     uvicorn.run("dualcost.api.app:create_app", factory=True, host=host, port=port,
                 workers=workers, log_level=log_level, access_log=False,
+                http=BoundedHttpToolsProtocol,
                 log_config=logging_config(log_level, json_lines=settings.log_json))
     return 0
 

@@ -37,8 +37,24 @@ class Settings(BaseSettings):
     api_keys_file: Path | None = Field(
         None, description="A secret file of API keys, one per line ('#' starts a comment).")
     rate_limit_per_minute: int | None = Field(
-        None, ge=1, description="Requests a minute allowed per API key and worker process.")
+        None, ge=1, description="Requests a minute allowed per verified API key, and per client "
+        "address for requests without one, in each worker process.")
+    rate_limit_max_clients: int = Field(
+        10_000, ge=1, description="Most clients (verified keys and addresses) whose request rate "
+        "one worker process tracks; beyond it the one unseen longest is forgotten.")
     max_body_bytes: int = Field(10_000_000, ge=1_000, description="Largest request body (413 above).")
+    max_header_bytes: int = Field(
+        32_768, ge=1_024, description="Largest request head: request line and header fields, in "
+        "bytes (431 above; `dualcost serve` stops reading the head there).")
+    max_header_count: int = Field(100, ge=8, description="Most header fields in one request "
+                                  "(431 above).")
+    read_timeout_seconds: float = Field(
+        30.0, gt=0, le=3600, description="Seconds a request's head may take to arrive, and again "
+        "its body (408 beyond); a body gets one more second per read_min_bytes_per_second bytes "
+        "received.")
+    read_min_bytes_per_second: int = Field(
+        65_536, ge=1, description="Bytes of a request body that earn one more second of read "
+        "time (the slowest upload that is never cut off, beyond read_timeout_seconds).")
     log_json: bool = Field(True, description="Log one JSON object per line (false: plain text).")
     max_items: int = Field(20_000, ge=1, description="Most items one request may carry.")
     max_tree_depth: int = Field(64, ge=1, description="Deepest nested CES tree accepted.")
@@ -65,6 +81,9 @@ class Settings(BaseSettings):
     household_chunk_rows: int | None = Field(None, ge=1, description="Household rows evaluated "
                                              "together (default: about 128k numbers per chunk).")
     max_household_jobs: int = Field(32, ge=1, description="Household jobs kept in memory.")
+    max_household_jobs_per_key: int | None = Field(
+        None, ge=1, description="Household jobs one API key may hold (default: the job table "
+        "divided among the configured keys, at least 1; no limit with access control off).")
     dask_scheduler: str | None = Field(None, description="Dask scheduler address (e.g. "
                                        "tcp://10.0.0.5:8786) for large household jobs; unset: "
                                        "everything runs in process.")

@@ -98,3 +98,43 @@ def test_every_worker_writes_json_request_logs() -> None:
     logged = {e["request_id"] for e in entries if e.get("message") == "request"}
     assert {f"worker-log-{k}" for k in range(6)} <= logged, err[-2000:]
     assert all(e.get("status") == 200 for e in entries if e.get("request_id", "").startswith("worker-log"))
+
+
+def test_serve_bounds_the_request_head_in_every_worker() -> None:
+    """``dualcost serve`` runs the bounded protocol (dualcost.api.transport) in each worker
+    process, with the limits of the environment: a header of 1 MiB is refused 431 (RFC 6585)
+    by the server before the application sees it."""
+    import os
+
+    port = _free_port()
+    env = os.environ | {"DUALCOST_MAX_HEADER_BYTES": "4096"}
+    proc = subprocess.Popen(
+        [sys.executable, "-m", "dualcost.cli", "serve", "--port", str(port), "--workers", "2",
+         "--log-level", "warning"], stdout=subprocess.DEVNULL, stderr=subprocess.PIPE, text=True,
+        env=env)
+    try:
+        deadline = time.monotonic() + 60
+        while True:
+            try:
+                with urllib.request.urlopen(f"http://127.0.0.1:{port}/ready", timeout=1):
+                    break
+            except OSError:
+                assert proc.poll() is None, proc.stderr.read() if proc.stderr else ""
+                assert time.monotonic() < deadline, "service did not start in 60 s"
+                time.sleep(0.2)
+        for _ in range(4):  # connections may reach either worker
+            with socket.create_connection(("127.0.0.1", port), timeout=10) as sock:
+                try:
+                    sock.sendall(b"GET /live HTTP/1.1\r\nHost: d\r\nX-Big: " + b"a" * (1 << 20)
+                                 + b"\r\n\r\n")
+                except OSError:
+                    pass
+                answer = b""
+                while piece := sock.recv(65536):
+                    answer += piece
+            head, _, body = answer.partition(b"\r\n\r\n")
+            assert head.startswith(b"HTTP/1.1 431 "), answer[:300]
+            assert b"limit of 4096 bytes" in body
+    finally:
+        proc.terminate()
+        proc.communicate(timeout=20)

@@ -15,8 +15,8 @@ from fastapi.staticfiles import StaticFiles
 from .. import __version__
 from ..config import Settings
 from . import problems
-from .access import AccessControlMiddleware, load_keys
-from .limits import BodySizeLimitMiddleware
+from .access import AccessControlMiddleware, RateLimiter, load_keys
+from .limits import BodyLimitMiddleware, HeaderLimitMiddleware
 from .observability import RequestContextMiddleware
 from .openapi import problem_openapi
 from .operations import jobs
@@ -86,17 +86,26 @@ def create_app(settings: Settings | None = None) -> FastAPI:
         ],
     )
     app.state.settings = settings
-    app.state.jobs = jobs.JobStore(settings.max_household_jobs)
     keys = load_keys(settings.api_keys, str(settings.api_keys_file) if settings.api_keys_file else None)
     app.state.access_control = bool(keys)
-    if keys or settings.rate_limit_per_minute:
-        app.add_middleware(AccessControlMiddleware, keys=keys,
-                           rate_limit_per_minute=settings.rate_limit_per_minute)
-    app.add_middleware(BodySizeLimitMiddleware, max_body_bytes=settings.max_body_bytes)
+    # With keys, each key's share of the job table; without, every job is everyone's.
+    per_key = (settings.max_household_jobs_per_key or max(1, settings.max_household_jobs // len(keys))
+               if keys else None)
+    app.state.jobs = jobs.JobStore(settings.max_household_jobs, per_key)
+    app.state.rate_limiter = (RateLimiter(settings.rate_limit_per_minute,
+                                          settings.rate_limit_max_clients)
+                              if settings.rate_limit_per_minute else None)
+    if keys or app.state.rate_limiter is not None:
+        app.add_middleware(AccessControlMiddleware, keys=keys, limiter=app.state.rate_limiter)
+    app.add_middleware(BodyLimitMiddleware, max_body_bytes=settings.max_body_bytes,
+                       read_timeout_seconds=settings.read_timeout_seconds,
+                       read_min_bytes_per_second=settings.read_min_bytes_per_second)
     if settings.cors_origins:
         app.add_middleware(CORSMiddleware, allow_origins=list(settings.cors_origins),
                            allow_methods=["GET", "HEAD", "POST", "OPTIONS"], allow_headers=["*"],
                            expose_headers=EXPOSED_HEADERS)
+    app.add_middleware(HeaderLimitMiddleware, max_header_bytes=settings.max_header_bytes,
+                       max_header_count=settings.max_header_count)
     problems.install(app)
     # Outermost: every request gets its id, log line and metrics, refusals included.
     app.add_middleware(RequestContextMiddleware)

@@ -27,6 +27,7 @@ from contextlib import contextmanager
 from typing import Any
 
 from prometheus_client import CONTENT_TYPE_LATEST, CollectorRegistry, Counter, Histogram, generate_latest
+from starlette.requests import ClientDisconnect
 from starlette.types import ASGIApp, Message, Receive, Scope, Send
 
 from ..core.deadline import deadline
@@ -132,8 +133,19 @@ def _new_request_id() -> str:
     return f"{_ID_PREFIX}{next(_ID_COUNTER):016x}"
 
 
+#: The status counted and logged for a request whose client went away before its answer
+#: started (nginx's "client closed request"; not sent to anyone).
+CLIENT_CLOSED = 499
+
+
 class RequestContextMiddleware:
-    """Request id, one log line and the metrics for every HTTP request."""
+    """Request id, one log line and the metrics for every HTTP request.
+
+    A client that goes away before the answer has started (an upload dropped halfway) ends its
+    request quietly: Starlette's ``ClientDisconnect`` is not an error of the service, so it is
+    neither answered 500 nor logged with a traceback; the request is counted and logged with
+    the status 499 (:data:`CLIENT_CLOSED`), whatever the application then tried to answer.
+    """
 
     def __init__(self, app: ASGIApp) -> None:
         self.app = app
@@ -147,18 +159,31 @@ class RequestContextMiddleware:
         token = REQUEST_ID.set(request_id)
         start = time.perf_counter()
         status = 500
+        started = False
+        client_gone = False
+
+        async def watching_receive() -> Message:
+            nonlocal client_gone
+            message = await receive()
+            if message["type"] == "http.disconnect" and not started:
+                client_gone = True
+            return message
 
         async def send_with_id(message: Message) -> None:
-            nonlocal status
+            nonlocal status, started
             if message["type"] == "http.response.start":
-                status = message["status"]
+                status, started = message["status"], True
                 message.setdefault("headers", [])
                 message["headers"] = [*message["headers"], (b"x-request-id", request_id.encode())]
             await send(message)
 
         try:
-            await self.app(scope, receive, send_with_id)
+            await self.app(scope, watching_receive, send_with_id)
+        except ClientDisconnect:
+            client_gone = client_gone or not started
         finally:
+            if client_gone:
+                status = CLIENT_CLOSED
             elapsed = time.perf_counter() - start
             operation = _operation(scope)
             REQUESTS.labels(operation, str(status)).inc()

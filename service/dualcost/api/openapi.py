@@ -37,16 +37,19 @@ class ProblemOut(BaseModel):
         None, description="406 only: the media types the operation answers.")
 
 
-#: Error answers every operation can give (the request size limit, malformed input, a bug).
+#: Error answers every operation can give (the request's limits, malformed input, a bug).
 _ALWAYS = {
     "400": "The body is not valid JSON.",
+    "408": "The request (its header fields or its body) did not arrive within the read time.",
     "413": "The request body is larger than the limit.",
+    "431": "The request's header fields are too large or too many.",
     "422": "The request breaks a rule; `errors` points at each field.",
     "500": "Internal error (a bug: please report it).",
 }
 _PROTECTED = {
     "401": "An API key is needed (when the service is configured with keys).",
-    "429": "This API key's rate limit is used up (when configured); see Retry-After.",
+    "429": "The rate limit of this API key (or, without a valid key, of this client address) "
+           "is used up (when configured); see Retry-After.",
 }
 _COMPUTING = {"503": "The computation ran past the service's compute deadline."}
 #: Every operation under /v1 that answers with a body honours the Accept header.

@@ -15,10 +15,14 @@ The web layer's exceptions join the core's tree (:mod:`dualcost.core.errors`)::
           ├── JobNotFound     404
           ├── JobConflict     409
           ├── NotAcceptable   406: no answer format of the operation suits the Accept header
-          └── ServiceBusy     503
+          └── JobTableFull    503, with Retry-After
 
-    BodyTooLarge (a BaseException: it must pass the framework's ``except Exception`` around
-    body reading to reach the size-limit middleware, which answers 413)
+    BodyTooLarge, BodyTimedOut (BaseExceptions: they must pass the framework's ``except
+    Exception`` around body reading to reach the body-limit middleware, which answers 413 or 408)
+
+Refusals made before a request reaches the application (a request head too large, or too slow to
+arrive: 431, 408) are written by the server's protocol (:mod:`dualcost.api.transport`) with
+:func:`problem_message`.
 
 Every status the service answers for an error is in this module: in ``PROBLEM_TYPES`` and in
 the classes above.
@@ -30,6 +34,7 @@ import json
 import logging
 from collections.abc import Iterable, Mapping, Sequence
 from dataclasses import dataclass
+from http import HTTPStatus
 from typing import Any
 
 from fastapi import FastAPI, Request
@@ -72,12 +77,24 @@ PROBLEM_TYPES: dict[str, ProblemType] = {
                     "The body could not be parsed as JSON."),
         ProblemType("payload-too-large", 413, "The request body is too large",
                     "The body is larger than the service's limit (DUALCOST_MAX_BODY_BYTES)."),
+        ProblemType("request-header-fields-too-large", 431, "The request's header fields are "
+                    "too large",
+                    "The request line and header fields together are larger than the service's "
+                    "limit (DUALCOST_MAX_HEADER_BYTES), or there are more header fields than "
+                    "DUALCOST_MAX_HEADER_COUNT. The connection is closed after this answer."),
+        ProblemType("request-timeout", 408, "The request took too long to arrive",
+                    "The request's header fields, or its body, did not arrive within the "
+                    "service's read time (DUALCOST_READ_TIMEOUT_SECONDS, and for a body one more "
+                    "second per DUALCOST_READ_MIN_BYTES_PER_SECOND bytes received). Nothing was "
+                    "computed; the connection is closed after this answer: send the request "
+                    "again."),
         ProblemType("unauthorized", 401, "An API key is needed",
                     "This service requires an API key in the X-API-Key header (or as "
                     "'Authorization: Bearer <key>')."),
         ProblemType("too-many-requests", 429, "Too many requests",
-                    "This API key has used up its request rate; retry after the number of "
-                    "seconds in the Retry-After header."),
+                    "This API key (or, for requests without a valid key, this client address) "
+                    "has used up its request rate; retry after the number of seconds in the "
+                    "Retry-After header."),
         ProblemType("deadline-exceeded", 503, "The computation ran past its deadline",
                     "The request's computation took longer than the service's compute deadline "
                     "(DUALCOST_COMPUTE_DEADLINE_SECONDS) and was stopped. Reduce the problem's size "
@@ -89,6 +106,13 @@ PROBLEM_TYPES: dict[str, ProblemType] = {
                     "negative demand, a Slutsky matrix that is not negative semidefinite or not "
                     "symmetric, ...): the figure is not a result. The detail names the reason and "
                     "the items; the formula indices remain available."),
+        ProblemType("job-table-full", 503, "No room for another household job",
+                    "The household-job table of this process is full of jobs that may not be "
+                    "removed (running jobs, and jobs of other API keys that have not finished), "
+                    "or this API key holds its share of the table "
+                    "(DUALCOST_MAX_HOUSEHOLD_JOBS_PER_KEY) and all of its jobs are running. Retry "
+                    "after the number of seconds in the Retry-After header, or delete a job of "
+                    "yours that you no longer need."),
         ProblemType("not-found", 404, "Nothing here", "No resource at this address."),
         ProblemType("not-acceptable", 406, "No acceptable answer format",
                     "The Accept header admits none of the media types this operation answers "
@@ -111,6 +135,12 @@ class BodyTooLarge(BaseException):
     Deliberately not an ``Exception``: the framework wraps body reading in ``except Exception``
     (turning anything into a 400), and this must reach the size-limit middleware, which answers
     413 (see :mod:`dualcost.api.limits`).
+    """
+
+
+class BodyTimedOut(BaseException):
+    """Raised while a request body is read, when it has not arrived within the read time; a
+    ``BaseException`` for the same reason as :class:`BodyTooLarge` (the middleware answers 408).
     """
 
 
@@ -142,6 +172,8 @@ class ServiceProblem(DualcostError):
     status = 400
     #: Extension members of the problem (RFC 9457, 3.2), if any.
     extensions: dict[str, Any] | None = None
+    #: Seconds to send in a Retry-After header (none when None).
+    retry_after: int | None = None
 
     def __init__(self, detail: str) -> None:
         self.detail = detail
@@ -156,8 +188,14 @@ class JobConflict(ServiceProblem):
     slug, status = "http-error", 409
 
 
-class ServiceBusy(ServiceProblem):
-    slug, status = "http-error", 503
+class JobTableFull(ServiceProblem):
+    """No room for another household job: 503 with Retry-After (RFC 9110, 15.6.4 and 10.2.3)."""
+
+    slug, status = "job-table-full", 503
+
+    def __init__(self, detail: str, retry_after: int) -> None:
+        super().__init__(detail)
+        self.retry_after = retry_after
 
 
 class NotAcceptable(ServiceProblem):
@@ -201,6 +239,18 @@ async def send_problem(send: Send, slug: str, detail: str, *, instance: str | No
                 "headers": [(b"content-type", PROBLEM_MEDIA_TYPE.encode()),
                             (b"content-length", str(len(data)).encode()), *headers]})
     await send({"type": "http.response.body", "body": data})
+
+
+def problem_message(slug: str, detail: str) -> tuple[int, bytes]:
+    """A whole HTTP/1.1 answer carrying a problem, and its status, for the server's protocol
+    to write before any application sees the request; it closes the connection."""
+    body = problem_body(slug, detail)
+    data = json.dumps(body).encode()
+    status = int(body["status"])
+    head = (f"HTTP/1.1 {status} {HTTPStatus(status).phrase}\r\n"
+            f"content-type: {PROBLEM_MEDIA_TYPE}\r\ncontent-length: {len(data)}\r\n"
+            "connection: close\r\n\r\n")
+    return status, head.encode("latin-1") + data
 
 
 def problem_response(slug: str, detail: str, *, status: int | None = None,
@@ -304,8 +354,11 @@ async def _on_invalid_input(request: Request, exc: InvalidInput) -> JSONResponse
 
 
 async def _on_service_problem(request: Request, exc: ServiceProblem) -> JSONResponse:
-    return problem_response(exc.slug, exc.detail, status=exc.status, instance=request.url.path,
-                            extensions=exc.extensions)
+    response = problem_response(exc.slug, exc.detail, status=exc.status,
+                                instance=request.url.path, extensions=exc.extensions)
+    if exc.retry_after is not None:
+        response.headers["retry-after"] = str(exc.retry_after)
+    return response
 
 
 async def _on_engine_unavailable(request: Request, exc: EngineUnavailable) -> JSONResponse:

@@ -263,12 +263,13 @@ def csv_stream(pieces: Iterator[str], *, provenance: Provenance, trailer: bool =
     header row), with the provenance and caution headers; with ``trailer``, the
     :func:`trailer_rows` after the last piece."""
     if trailer:
-        pieces = _trailed(pieces, provenance)
+        pieces = trailed(pieces, provenance)
     return StreamingResponse(pieces, media_type=CSV_CONTENT_TYPE,
                              headers={**(headers or {}), **provenance_headers(provenance)})
 
 
-def _trailed(pieces: Iterator[str], provenance: Provenance, delimiter: str = ",") -> Iterator[str]:
+def trailed(pieces: Iterator[str], provenance: Provenance, delimiter: str = ",") -> Iterator[str]:
+    """``pieces`` of a CSV answer, then its :func:`trailer_rows`."""
     width = None
     for piece in pieces:
         if width is None:

@@ -6,6 +6,17 @@ Jobs live in the memory of the process that created them (:class:`JobStore`, one
 several worker processes a client must reach the same process for all of a job's requests. The
 upload is spooled to a temporary file (in memory up to 8 MiB, then on disk) and read back chunk
 by chunk, so the households are never held twice.
+
+**Slots.** A job takes a slot of the table, one that newer jobs may not take from it, only
+once its households have fully arrived and it runs: while an upload is on its way the job is
+still waiting (and a stalled upload is ended by the body's read time, 408). **Owners.** With
+access control on, a job belongs to the API key that created it (:func:`owner_of`): other keys
+are told there is no such job (404, which does not reveal that it exists). When the table is
+full, a new job takes the place of, in this order, the oldest finished job of its own key, its
+own oldest waiting job (one without an upload on its way first), the oldest finished job of any
+key; never a running job, never another key's waiting one. A key holding its share of the table
+(``max_household_jobs_per_key``) can only replace its own jobs. No room: 503 ``job-table-full``
+with Retry-After.
 """
 
 from __future__ import annotations
@@ -18,7 +29,8 @@ import tempfile
 import threading
 import uuid
 from collections import OrderedDict
-from collections.abc import Iterator
+from collections.abc import Generator, Iterator
+from contextlib import contextmanager
 from datetime import datetime, timezone
 from typing import Any
 
@@ -30,7 +42,7 @@ from ..inputs.csv import check_media_type
 from ..inputs.households import CsvLayout, csv_chunks, csv_layout, job_of, labels_of
 from ..inputs.items import ItemAxis
 from ..inputs.locator import Locator
-from ..problems import JobConflict, JobNotFound, RequestProblem, ServiceBusy
+from ..problems import JobConflict, JobNotFound, JobTableFull, RequestProblem
 from ..provenance import Provenance, of_job
 from ..render import csv_line
 from ..schemas.common import CAUTION
@@ -38,14 +50,28 @@ from ..schemas.households import HouseholdJobSpec
 from . import households
 
 SPOOL_MEMORY_BYTES = 8 * 1024 * 1024
+#: Seconds a client is asked to wait (Retry-After) when the job table has no room.
+TABLE_FULL_RETRY_SECONDS = 30
+FINISHED = ("done", "failed", "cancelled")
+
+
+def owner_of(request: Request) -> str | None:
+    """The owner id of a request's jobs: its verified API key's id with access control on,
+    else None (every job is everyone's)."""
+    if not request.app.state.access_control:
+        return None
+    owner = request.scope.get("state", {}).get("key_id")
+    return str(owner) if owner else None
 
 
 class JobState:
     """One job's spec, progress and outcome; read by GET while a stream writes to it."""
 
     def __init__(self, spec: HouseholdJobSpec, job: HouseholdJob, axis: ItemAxis,
-                 quantiles: tuple[float, ...]) -> None:
+                 quantiles: tuple[float, ...], owner: str | None = None) -> None:
         self.id = uuid.uuid4().hex
+        self.owner = owner
+        self.uploads = 0  # uploads on their way (the job waits meanwhile)
         self.created = datetime.now(timezone.utc).isoformat(timespec="seconds")
         self.spec, self.job, self.axis, self.quantiles = spec, job, axis, quantiles
         self.labels = labels_of(spec)
@@ -63,11 +89,30 @@ class JobState:
         self.provenance: Provenance = of_job(spec, None)
         self.lock = threading.Lock()
 
+    def expect_households(self) -> None:
+        """Refuse at once an upload to a job that has had its households (409)."""
+        with self.lock:
+            self._check_waiting()
+
+    def _check_waiting(self) -> None:
+        if self.status != "waiting_for_households":
+            raise JobConflict(f"household job {self.id} has already received its households "
+                              f"(status {self.status}); create a new job")
+
+    @contextmanager
+    def receiving(self) -> Iterator[None]:
+        """An upload on its way to this job (counted, for the choice of a job to replace)."""
+        with self.lock:
+            self.uploads += 1
+        try:
+            yield
+        finally:
+            with self.lock:
+                self.uploads -= 1
+
     def claim(self) -> None:
         with self.lock:
-            if self.status != "waiting_for_households":
-                raise JobConflict(f"household job {self.id} has already received its households "
-                                  f"(status {self.status}); create a new job")
+            self._check_waiting()
             self.status = "running"
 
     def release(self) -> None:
@@ -125,39 +170,79 @@ class JobState:
 
 
 class JobStore:
-    """The jobs of this process, oldest first; when full, the oldest job not running goes."""
+    """The jobs of this process, oldest first, at most ``limit`` of them and ``per_owner`` of
+    one owner's; which job a new one replaces is in the module's notes."""
 
-    def __init__(self, limit: int) -> None:
+    def __init__(self, limit: int, per_owner: int | None = None) -> None:
         self.limit = limit
+        self.per_owner = min(per_owner or limit, limit)
         self.jobs: OrderedDict[str, JobState] = OrderedDict()
         self.lock = threading.Lock()
 
     def add(self, state: JobState) -> None:
         with self.lock:
-            while len(self.jobs) >= self.limit:
-                idle = next((k for k, j in self.jobs.items() if j.status != "running"), None)
-                if idle is None:
-                    raise ServiceBusy(f"{self.limit} household jobs are running; try again when "
-                                      "one has finished")
-                del self.jobs[idle]
+            own = [j for j in self.jobs.values() if j.owner == state.owner]
+            if len(own) >= self.per_owner:
+                victim = self._replaceable(own)
+                if victim is None:
+                    raise JobTableFull(f"this key holds {len(own)} household jobs, its share of "
+                                       "the table, and all of them are running; try again when "
+                                       "one has finished", TABLE_FULL_RETRY_SECONDS)
+                del self.jobs[victim.id]
+            elif len(self.jobs) >= self.limit:
+                others = [j for j in self.jobs.values() if j.owner != state.owner]
+                victim = self._replaceable(own) or next(
+                    (j for j in others if j.status in FINISHED), None)
+                if victim is None:
+                    raise JobTableFull(f"the table of {self.limit} household jobs is full of jobs "
+                                       "that are running or belong to other keys; try again "
+                                       "later", TABLE_FULL_RETRY_SECONDS)
+                del self.jobs[victim.id]
             self.jobs[state.id] = state
 
-    def get(self, job_id: str) -> JobState:
+    @staticmethod
+    def _replaceable(own: list[JobState]) -> JobState | None:
+        """Of one owner's jobs (oldest first), the one a new job of theirs replaces: finished
+        first, then waiting without an upload on its way, then waiting; never a running one."""
+        def rank(job: JobState) -> int:
+            if job.status in FINISHED:
+                return 0
+            if job.status == "waiting_for_households":
+                return 2 if job.uploads else 1
+            return 3  # running
+
+        ranked = [(rank(j), i, j) for i, j in enumerate(own)]
+        best = min(ranked, default=None, key=lambda r: r[:2])
+        return best[2] if best is not None and best[0] < 3 else None
+
+    def get(self, job_id: str, owner: str | None = None) -> JobState:
+        """The job, if ``owner`` may see it; another owner's job is 'not found' as well."""
         state = self.jobs.get(job_id)
-        if state is None:
+        if state is None or state.owner != owner:
             raise JobNotFound(f"no household job {job_id!r} in this process (jobs live in the "
                               "memory of the worker that created them)")
         return state
 
-    def remove(self, job_id: str) -> None:
+    def claim(self, state: JobState) -> None:
+        """The upload has arrived: the job runs, unless it was replaced meanwhile (404) or
+        another upload got there first (409)."""
         with self.lock:
-            state = self.get(job_id)
+            if self.jobs.get(state.id) is not state:
+                raise JobNotFound(f"household job {state.id} was replaced by newer jobs (the "
+                                  "table was full) while its households were arriving; create "
+                                  "a new job")
+            state.claim()
+
+    def remove(self, job_id: str, owner: str | None = None) -> None:
+        with self.lock:
+            state = self.get(job_id, owner)
             if state.status == "running":
                 raise JobConflict("the job is running; delete it when it has finished")
             del self.jobs[job_id]
 
 
-def create(spec: HouseholdJobSpec, settings: Settings, store: JobStore) -> JobState:
+def create(spec: HouseholdJobSpec, settings: Settings, store: JobStore,
+           owner: str | None = None) -> JobState:
     """A job waiting for its households; the same checks as a batch's, before any upload."""
     loc = Locator(households.PLACES)
     job, axis, quantiles = job_of(spec, loc, max_items=settings.max_items,
@@ -165,7 +250,7 @@ def create(spec: HouseholdJobSpec, settings: Settings, store: JobStore) -> JobSt
                                   chunk_rows=settings.household_chunk_rows)
     if spec.engine == "cluster":
         households.scheduler_for("cluster", None, settings, loc)
-    state = JobState(spec, job, axis, quantiles)
+    state = JobState(spec, job, axis, quantiles, owner)
     store.add(state)
     return state
 
@@ -231,7 +316,8 @@ def open_upload(state: JobState, file: Any, lines: int, settings: Settings,
 
 
 def stream(state: JobState, reader: Iterator[list[str]], text: io.TextIOWrapper | None,
-           scheduler: Any, settings: Settings, *, reject: bool = False) -> Iterator[str]:
+           scheduler: Any, settings: Settings, *, reject: bool = False
+           ) -> Generator[str, None, None]:
     """The CSV answer of a job, chunk by chunk; progress goes to the job as it is made.
 
     ``scheduler`` is None (this process) or a connected Dask client, closed at the end.

@@ -11,25 +11,33 @@
 
 from __future__ import annotations
 
+import inspect
+import itertools
+from collections.abc import Generator, Iterator
 from typing import Annotated, Any, Literal
 
+import anyio
 from fastapi import APIRouter, Request
-from fastapi.responses import Response
+from fastapi.responses import Response, StreamingResponse
 from starlette.concurrency import run_in_threadpool
+from starlette.types import Receive, Scope, Send
 
 from ..deps import settings_of
 from ..inputs.csv import CSV_REQUEST_BODY
 from ..operations import households, jobs
 from ..problems import PROBLEM_MEDIA_TYPE
-from ..provenance import of_body
+from ..provenance import Provenance, of_body
 from ..render import (
     CSV_ANSWER,
+    CSV_CONTENT_TYPE,
     Format,
     ProvenanceQuery,
     csv_stream,
     format_query,
     json_response,
     negotiate,
+    provenance_headers,
+    trailed,
 )
 from ..routing import JsonRoute
 from ..schemas.households import (
@@ -51,10 +59,44 @@ PROBLEM_RESPONSES: dict[int | str, dict[str, Any]] = {
 }
 OFFERS: tuple[Format, ...] = ("json", "csv")
 FormatParam = Annotated[Literal["json", "csv"] | None, format_query(OFFERS)]
+NO_JOB = {"description": "No such job in this process (or it belongs to another API key)."}
 
 
 def _store(request: Request) -> jobs.JobStore:
     return request.app.state.jobs
+
+
+class _JobAnswer(StreamingResponse):
+    """A job's streamed CSV answer that ends the job's stream as soon as the answer ends.
+
+    When the client goes away, Starlette stops sending but leaves the stream (a generator
+    that computes in the compute threads) to be collected whenever that happens; until then
+    the job would count as running, holding its slot, and its upload's file would stay open.
+    Here the job is marked cancelled at once and the stream is closed (after the chunk it may
+    be computing), which runs its clean-up. The stream has yielded its first piece (the CSV
+    header) before: closing a generator that has not started would skip its clean-up.
+    """
+
+    def __init__(self, state: jobs.JobState, pieces: Generator[str, None, None],
+                 headers: dict[str, str], provenance: Provenance, trailer: bool) -> None:
+        first = next(pieces)
+        body: Iterator[str] = itertools.chain([first], pieces)
+        if trailer:
+            body = trailed(body, provenance)
+        super().__init__(body, media_type=CSV_CONTENT_TYPE,
+                         headers={**headers, **provenance_headers(provenance)})
+        self.state, self.pieces = state, pieces
+
+    async def __call__(self, scope: Scope, receive: Receive, send: Send) -> None:
+        try:
+            await super().__call__(scope, receive, send)
+        finally:
+            with anyio.CancelScope(shield=True):
+                self.state.fail("cancelled", "the client stopped reading the answer")
+                while inspect.getgeneratorstate(self.pieces) == inspect.GEN_RUNNING:
+                    # a chunk is computing in a thread
+                    await anyio.sleep(0.01)
+                self.pieces.close()
 
 
 @router.post("/household-indices", operation_id="householdIndices",
@@ -83,14 +125,17 @@ def household_indices(body: HouseholdIndicesRequest, request: Request,
 
 @router.post("/household-jobs", operation_id="createHouseholdJob", status_code=201,
              summary="Create a household job; then upload its households as CSV",
-             response_model=HouseholdJobOut, responses=PROBLEM_RESPONSES)
+             response_model=HouseholdJobOut, responses={**PROBLEM_RESPONSES, 503: {
+                 "description": "The Dask cluster asked for cannot be used, or the job table "
+                                "has no room (job-table-full, with Retry-After)."}})
 def create_household_job(body: HouseholdJobSpec, request: Request) -> Response:
     """The same fields as householdIndices without the households. The answer is the job
     (status waiting_for_households); send its households as CSV to the households link.
     Bad rows are skipped and reported unless bad_rows is reject. Jobs live in this process's
-    memory (see the service documentation)."""
+    memory (see the service documentation); with API keys, a job is seen only with the key
+    that created it."""
     negotiate(request, ("json",))
-    state = jobs.create(body, settings_of(request), _store(request))
+    state = jobs.create(body, settings_of(request), _store(request), jobs.owner_of(request))
     document, origin = state.view()
     return json_response(document, provenance=origin, status_code=201,
                          headers={"Location": f"/v1/household-jobs/{state.id}"})
@@ -98,7 +143,7 @@ def create_household_job(body: HouseholdJobSpec, request: Request) -> Response:
 
 @router.post("/household-jobs/{job_id}/households", operation_id="householdIndicesFromCsv",
              summary="Upload a job's households as CSV; the results stream back as CSV",
-             responses={**PROBLEM_RESPONSES, 200: CSV_ANSWER, 404: {"description": "No such job."},
+             responses={**PROBLEM_RESPONSES, 200: CSV_ANSWER, 404: NO_JOB,
                         409: {"description": "The job already has its households."}},
              openapi_extra=CSV_REQUEST_BODY)
 async def household_indices_from_csv(job_id: str, request: Request,
@@ -113,11 +158,20 @@ async def household_indices_from_csv(job_id: str, request: Request,
     answer's Dualcost-Input-Digest is the job's: of its body and these households together."""
     negotiate(request, ("csv",))
     settings = settings_of(request)
-    state = _store(request).get(job_id)
-    state.claim()
+    store = _store(request)
+    state = store.get(job_id, jobs.owner_of(request))
+    state.expect_households()
+    # The job takes its slot only once its households have arrived: a stalled upload holds
+    # none (and is ended by the body's read time).
+    with state.receiving():
+        file, lines, households_sha256 = await jobs.spool(request)
+    try:
+        store.claim(state)
+    except BaseException:
+        file.close()
+        raise
     text = None
     try:
-        file, lines, households_sha256 = await jobs.spool(request)
         text, reader, address = jobs.open_upload(state, file, lines, settings, households_sha256)
         # Connect before answering, so that an unreachable cluster is a 503, not a cut stream.
         scheduler = None if address is None else await run_in_threadpool(households.connect,
@@ -125,14 +179,16 @@ async def household_indices_from_csv(job_id: str, request: Request,
     except BaseException:
         if text is not None:
             text.close()
+        else:
+            file.close()
         state.release()
         raise
     headers = {"Link": f'</v1/household-jobs/{state.id}>; rel="monitor"',
                "Content-Location": f"/v1/household-jobs/{state.id}"}
     trailer = provenance == "trailer"
     if state.bad_rows == "skip":
-        return csv_stream(jobs.stream(state, reader, text, scheduler, settings),
-                          provenance=state.provenance, trailer=trailer, headers=headers)
+        return _JobAnswer(state, jobs.stream(state, reader, text, scheduler, settings), headers,
+                          state.provenance, trailer)
     try:
         out = await run_in_threadpool(jobs.run_to_file, state, reader, scheduler, settings)
     finally:
@@ -144,21 +200,19 @@ async def household_indices_from_csv(job_id: str, request: Request,
 @router.get("/household-jobs/{job_id}", operation_id="getHouseholdJob",
             summary="A household job's progress; at the end its summaries and skipped rows",
             response_model=HouseholdJobOut,
-            responses={404: {"description": "No such job in this process.",
-                             "content": {PROBLEM_MEDIA_TYPE: {}}}})
+            responses={404: {**NO_JOB, "content": {PROBLEM_MEDIA_TYPE: {}}}})
 def get_household_job(job_id: str, request: Request) -> Response:
     """Status (waiting_for_households, running, done, failed, cancelled), rows read and
     done, rows skipped by reason with the first 100 named by CSV record and column, and when
     done the democratic and plutocratic aggregates, quantiles and shares above them."""
     negotiate(request, ("json",))
-    document, origin = _store(request).get(job_id).view()
+    document, origin = _store(request).get(job_id, jobs.owner_of(request)).view()
     return json_response(document, provenance=origin)
 
 
 @router.delete("/household-jobs/{job_id}", operation_id="deleteHouseholdJob", status_code=204,
                summary="Forget a household job that is not running",
-               responses={404: {"description": "No such job in this process."},
-                          409: {"description": "The job is running."}})
+               responses={404: NO_JOB, 409: {"description": "The job is running."}})
 def delete_household_job(job_id: str, request: Request) -> Response:
-    _store(request).remove(job_id)
+    _store(request).remove(job_id, jobs.owner_of(request))
     return Response(status_code=204)
