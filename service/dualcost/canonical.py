@@ -150,8 +150,9 @@ def _plain_floats(values: list[float]) -> bool:
 
 
 def _float(v: float) -> float | int | orjson.Fragment:
-    if v.is_integer() and -_EXACT < v < _EXACT:
-        return int(v)
+    if v.is_integer():
+        # Whole: as an integer below 2**53, else ECMAScript's digits (orjson would add '.0').
+        return int(v) if -_EXACT < v < _EXACT else orjson.Fragment(es_number(v))
     if _LOW <= abs(v) < _HIGH:
         return v
     if not math.isfinite(v):

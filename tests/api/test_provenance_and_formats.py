@@ -523,3 +523,14 @@ def test_a_dashboard_elsewhere_may_read_the_provenance_headers() -> None:
     r = client.post("/v1/comparisons", json=BASKET, headers={"origin": origin})
     exposed = {h.strip().lower() for h in r.headers["access-control-expose-headers"].split(",")}
     assert {"dualcost-version", "dualcost-input-digest", "dualcost-caution"} <= exposed
+
+
+@pytest.mark.parametrize("value,text", [
+    (2.0 ** 53, "9007199254740992"), (-(2.0 ** 53), "-9007199254740992"),
+    (2.0 ** 53 + 2, "9007199254740994"), (1e16, "10000000000000000")])
+def test_whole_floats_from_two_to_the_53rd_are_written_without_a_fraction(value, text) -> None:
+    """RFC 8785, 3.2.2.3: numbers as ECMAScript's Number.prototype.toString writes them, which
+    writes a whole double below 1e21 without '.0' (found by the hypothesis test above: orjson
+    wrote 9007199254740992.0)."""
+    assert canonical_json(value) == text.encode()
+    assert canonical_json([value] * 10) == ("[" + ",".join([text] * 10) + "]").encode()
