@@ -163,9 +163,11 @@ def csv_text(header: Sequence[str], rows: Iterable[Sequence[Any]]) -> str:
 
 
 def csv_response(header: Sequence[str], rows: Iterable[Sequence[Any]], *,
-                 filename: str | None = None) -> Response:
-    headers = {"content-disposition": f'inline; filename="{filename}"'} if filename else None
-    return Response(csv_text(header, rows), media_type=CSV_CONTENT_TYPE, headers=headers)
+                 filename: str | None = None, headers: dict[str, str] | None = None) -> Response:
+    headers = dict(headers or {})
+    if filename:
+        headers["content-disposition"] = f'inline; filename="{filename}"'
+    return Response(csv_text(header, rows), media_type=CSV_CONTENT_TYPE, headers=headers or None)
 
 
 def csv_stream(pieces: Iterator[str], *, headers: dict[str, str] | None = None

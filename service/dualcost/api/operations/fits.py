@@ -22,6 +22,7 @@ from ...config import Settings
 from ...core.estimation import FitResult, Panel, fit
 from ...core.estimation.estimator import ParameterEstimate
 from ...core.preferences.nested_ces import ItemIdTree
+from ..inputs.csv import dialect_notices
 from ..inputs.items import ItemAxis
 from ..inputs.locator import Form, Locator, Place
 from ..inputs.observations import Observations
@@ -164,7 +165,8 @@ def document(outcome: Outcome) -> dict[str, Any]:
                    "imposed": t.imposed} for t in r.tests],
         "elasticities": _elasticities(outcome),
         "regularity": _regularity(r, labels),
-        "notices": [{"code": n.code, "message": n.message} for n in r.notices],
+        "notices": dialect_notices(outcome.data.dialect)
+        + [{"code": n.code, "message": n.message} for n in r.notices],
         "caution": CAUTION,
     }
 

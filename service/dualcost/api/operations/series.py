@@ -10,7 +10,7 @@ one row per period.
 from __future__ import annotations
 
 from collections.abc import Mapping, Sequence
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 from typing import Any
 
 import numpy as np
@@ -18,6 +18,7 @@ import numpy as np
 from ...config import Settings
 from ...core.preferences import BaseBudget, Preferences
 from ...core.series import MODEL_RULE, IndexSeries, LabelledSeries, describe_treatment, series_by_label
+from ..inputs.csv import Dialect, dialect_notices
 from ..inputs.items import ItemAxis
 from ..inputs.locator import Form, Locator, Place
 from ..inputs.model import calibrated
@@ -81,6 +82,8 @@ class Outcome:
     axis: ItemAxis
     model: Preferences | None
     frequency: str | None
+    #: How a CSV upload was read (None for JSON).
+    dialect: Dialect | None = None
 
 
 def locator(form: Form = "json") -> Locator:
@@ -97,7 +100,7 @@ def run(options: SeriesOptions, panel: PanelArrays, settings: Settings, loc: Loc
     arguments = core_arguments(options, panel, settings, loc)
     with computing(operation, settings), loc.translating():
         labelled = series_by_label(**arguments)
-    return _outcome(labelled, panel.axis)
+    return replace(_outcome(labelled, panel.axis), dialect=panel.dialect)
 
 
 def core_arguments(options: SeriesOptions, panel: PanelArrays, settings: Settings,
@@ -193,7 +196,8 @@ def document(outcome: Outcome) -> dict[str, Any]:
             "detail": describe_treatment(e, labels, r.base)} for e in r.item_treatment],
         "weights": _weights_out(r, labels, outcome.axis.ids),
         "lloyd_moulton_sigma": r.lloyd_moulton_sigma, "new_goods_sigma": r.new_goods_sigma,
-        "notices": [{"code": n.code, "message": n.message} for n in r.notices],
+        "notices": dialect_notices(outcome.dialect)
+        + [{"code": n.code, "message": n.message} for n in r.notices],
         "caution": CAUTION,
     }
 

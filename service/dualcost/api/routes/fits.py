@@ -10,7 +10,7 @@ from fastapi.responses import Response
 
 from ..deps import settings_of
 from ..inputs import observations
-from ..inputs.csv import CSV_REQUEST_BODY, csv_body
+from ..inputs.csv import CSV_REQUEST_BODY, DecimalParam, DeclaredDialect, SeparatorParam, csv_body
 from ..operations import fits, fitted
 from ..render import CSV_ANSWER, csv_response, json_response, negotiate
 from ..routing import JsonRoute
@@ -54,8 +54,10 @@ Slutsky matrix that is not negative semidefinite. `model` in the answer is the f
 
 def _answer(outcome: fits.Outcome, request: Request, fmt: str | None) -> Response:
     if negotiate(request, fmt) == "csv":
+        dialect = outcome.data.dialect
         return csv_response(fits.PARAMETER_COLUMNS, fits.parameter_rows(outcome),
-                            filename="fit-parameters.csv")
+                            filename="fit-parameters.csv",
+                            headers=None if dialect is None else dialect.headers())
     return json_response(fits.document(outcome))
 
 
@@ -89,6 +91,8 @@ def fit_model_csv(
     normalise_shares: Annotated[bool, Query()] = False,
     max_iterations: Annotated[int, Query(ge=1, le=1000)] = 200,
     residuals: Annotated[bool, Query()] = True,
+    separator: SeparatorParam = None,
+    decimal: DecimalParam = None,
     format: FormatParam = None,
 ) -> Response:
     settings = settings_of(request)
@@ -96,7 +100,8 @@ def fit_model_csv(
     spec = fits.model_from_query(dict(family=family, estimator=estimator,
                                       restrictions=restrictions, quadratic=quadratic,
                                       price_terms=price_terms, alpha0=alpha0, tree=tree), loc)
-    data = observations.from_csv(text, loc, max_rows=settings.max_fit_cells)
+    data = observations.from_csv(text, loc, max_rows=settings.max_fit_cells,
+                                 declared=DeclaredDialect(separator, decimal))
     options = fits.Options(confidence_level, max_iterations, normalise_shares, residuals)
     outcome = fits.run(data, spec, options, settings, loc, "fitModelCsv")
     return _answer(outcome, request, format)

@@ -18,7 +18,7 @@ from fastapi.responses import Response
 from starlette.concurrency import run_in_threadpool
 
 from ..deps import settings_of
-from ..inputs.csv import CSV_REQUEST_BODY
+from ..inputs.csv import CSV_REQUEST_BODY, DecimalParam, DeclaredDialect, SeparatorParam
 from ..operations import households, jobs
 from ..problems import PROBLEM_MEDIA_TYPE
 from ..render import CSV_ANSWER, csv_stream, json_response, negotiate
@@ -88,21 +88,29 @@ def create_household_job(body: HouseholdJobSpec, request: Request) -> Response:
              responses={**PROBLEM_RESPONSES, 200: CSV_ANSWER, 404: {"description": "No such job."},
                         409: {"description": "The job already has its households."}},
              openapi_extra=CSV_REQUEST_BODY)
-async def household_indices_from_csv(job_id: str, request: Request) -> Response:
+async def household_indices_from_csv(job_id: str, request: Request,
+                                     separator: SeparatorParam = None,
+                                     decimal: DecimalParam = None) -> Response:
     """One CSV record per household: a column per item id holding the base share, and the
     optional columns household (an id), expenditure (income; required for non-homothetic
     families) and weight. The answer streams one CSV row per household and period as
     chunks are done; GET the job meanwhile for progress, and at the end for the
     distribution summaries and the rows skipped and why. A missing item column is refused
     at once (422, #row=1). With bad_rows reject, the answer comes only when every row has
-    passed, else a 422 naming each bad row by RFC 7111 fragment (#cell=row,column)."""
+    passed, else a 422 naming each bad row by RFC 7111 fragment (#cell=row,column).
+    Fields may be quoted (RFC 4180); the separator (comma, semicolon or tab) and the decimal
+    mark are declared with separator and decimal, or detected from the header and the first
+    1000 rows: the answer's Dualcost-Input-Separator and Dualcost-Input-Decimal headers, and
+    the job's notices, say which."""
     settings = settings_of(request)
     state = _store(request).get(job_id)
     state.claim()
     text = None
     try:
         file, lines = await jobs.spool(request)
-        text, reader, address = jobs.open_upload(state, file, lines, settings)
+        # The header and, for a dialect to detect, the first records: off the event loop.
+        text, reader, address = await run_in_threadpool(
+            jobs.open_upload, state, file, lines, settings, DeclaredDialect(separator, decimal))
         # Connect before answering, so that an unreachable cluster is a 503, not a cut stream.
         scheduler = None if address is None else await run_in_threadpool(households.connect,
                                                                           address)
@@ -113,6 +121,8 @@ async def household_indices_from_csv(job_id: str, request: Request) -> Response:
         raise
     headers = {"Link": f'</v1/household-jobs/{state.id}>; rel="monitor"',
                "Content-Location": f"/v1/household-jobs/{state.id}"}
+    if state.layout is not None:
+        headers |= state.layout.dialect.headers()
     if state.bad_rows == "skip":
         return csv_stream(jobs.stream(state, reader, text, scheduler, settings), headers=headers)
     try:
