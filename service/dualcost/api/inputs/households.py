@@ -69,7 +69,8 @@ def job_of(spec: HouseholdJobSpec, loc: Locator, *, max_items: int, max_tree_dep
         job = HouseholdJob.checked(
             spec.model.family, parameters, p0, np.stack(rows), formulas=spec.formulas,
             lloyd_moulton_sigma=spec.lloyd_moulton_sigma,
-            normalise_shares=spec.normalise_shares, chunk_rows=chunk_rows)
+            normalise_shares=spec.normalise_shares, chunk_rows=chunk_rows,
+            share_unit=spec.share_unit)
         quantiles = check_quantiles(spec.quantiles)
     return job, axis, quantiles
 

@@ -57,6 +57,7 @@ PLACES: dict[str, Place] = {
     "span_end": Place("/span/end", "span_end"),
     "loop": Place("/loop", "loop", "list"),
     "model": Place("/model", "model", json_text=True),
+    "share_unit": Place("/share_unit", "share_unit"),
 }
 
 ANNUAL_DEFINITION = (
@@ -153,8 +154,11 @@ def _weights(options: SeriesOptions, axis: ItemAxis, loc: Locator) -> dict[str, 
         return None
     given = {"prices": ("pb", wr.prices), "quantities": ("qb", wr.quantities),
              "shares": ("wb", wr.shares)}
-    return {key: axis.vector(loc, name, value) for key, (name, value) in given.items()
-            if value is not None}
+    out: dict[str, Any] = {key: axis.vector(loc, name, value)
+                           for key, (name, value) in given.items() if value is not None}
+    if wr.shares is not None:
+        out["share_unit"] = options.share_unit
+    return out
 
 
 # -- the answer -------------------------------------------------------------------------------

@@ -40,7 +40,8 @@ def comparison_body(params: Mapping[str, Any]) -> dict[str, Any]:
                    ("expenditure_elasticities", "elasticities"))
     body: dict[str, Any] = {"items": names(params["items"], decimal), "base": base,
                             "current": current, "model": model,
-                            "normalise_shares": params["normalise_shares"]}
+                            "normalise_shares": params["normalise_shares"],
+                            "share_unit": params["share_unit"]}
     return body | given(("reference_income", "reference_income"))
 
 

@@ -14,6 +14,7 @@ from ..inputs.csv import CSV_REQUEST_BODY, DecimalParam, DeclaredDialect, Separa
 from ..operations import fits, fitted
 from ..render import CSV_ANSWER, csv_response, json_response, negotiate
 from ..routing import JsonRoute
+from ..schemas.common import SHARE_UNIT_TEXT, ShareUnit
 from ..schemas.estimation import FitAndCompareRequest, FitAndCompareResponse, FitRequest, FitResponse
 
 router = APIRouter(route_class=JsonRoute, prefix="/v1", tags=["estimation"])
@@ -89,6 +90,8 @@ def fit_model_csv(
     tree: Annotated[str | None, Query(description="nested_ces: the grouping as JSON.")] = None,
     confidence_level: Annotated[float, Query(gt=0.0, lt=1.0)] = 0.95,
     normalise_shares: Annotated[bool, Query()] = False,
+    share_unit: Annotated[ShareUnit, Query(description=SHARE_UNIT_TEXT + " It applies to the "
+                                           "share column.")] = "fraction",
     max_iterations: Annotated[int, Query(ge=1, le=1000)] = 200,
     residuals: Annotated[bool, Query()] = True,
     separator: SeparatorParam = None,
@@ -102,7 +105,8 @@ def fit_model_csv(
                                       price_terms=price_terms, alpha0=alpha0, tree=tree), loc)
     data = observations.from_csv(text, loc, max_rows=settings.max_fit_cells,
                                  declared=DeclaredDialect(separator, decimal))
-    options = fits.Options(confidence_level, max_iterations, normalise_shares, residuals)
+    options = fits.Options(confidence_level, max_iterations, normalise_shares, residuals,
+                           share_unit=share_unit)
     outcome = fits.run(data, spec, options, settings, loc, "fitModelCsv")
     return _answer(outcome, request, format)
 

@@ -30,7 +30,7 @@ from ..operations import compare, series, sheets
 from ..problems import RequestProblem, error_text, problem_response
 from ..render import CSV_CONTENT_TYPE, SheetNumbers
 from ..routing import JsonRoute, inline_when_small
-from ..schemas.common import DecimalMark
+from ..schemas.common import SHARE_UNIT_TEXT, DecimalMark, ShareUnit
 from ..schemas.comparison import ComparisonRequest
 from ..schemas.series import SeriesRequest
 
@@ -72,6 +72,8 @@ def comparison_query(
     reference_income: Annotated[str | None, _number("Income of the reference living "
                                                     "standard.")] = None,
     normalise_shares: bool = False,
+    share_unit: Annotated[ShareUnit, Query(description=SHARE_UNIT_TEXT + " It applies to "
+                                           "w0.")] = "fraction",
     digits: Digits = None,
     decimal: Decimal = "point",
     on_error: OnError = "problem",

@@ -7,7 +7,17 @@ from typing import Any, Literal
 from pydantic import Field, model_validator
 
 from ...core.indices import formulas_for
-from .common import CAUTION, SIGN_CONVENTION, FiniteFloat, ItemIn, NoticeOut, StrictModel, VectorIn
+from .common import (
+    CAUTION,
+    SHARE_UNIT_TEXT,
+    SIGN_CONVENTION,
+    FiniteFloat,
+    ItemIn,
+    NoticeOut,
+    ShareUnit,
+    StrictModel,
+    VectorIn,
+)
 from .model import ModelSpec
 
 FormulaName = Literal[formulas_for("comparison")]  # type: ignore[valid-type]
@@ -67,6 +77,9 @@ class ComparisonRequest(StrictModel):
         None, description="Formulas to compute (default: every formula that the data allow).")
     normalise_shares: bool = Field(
         False, description="Divide base shares by their sum when it is not 1; the answer says so.")
+    share_unit: ShareUnit = Field(
+        "fraction", description=SHARE_UNIT_TEXT + " It applies to base.shares and "
+        "weight_reference.shares.")
 
 
 # -- response ---------------------------------------------------------------------------------
