@@ -435,11 +435,12 @@ class Client:
         """POST /v1/household-jobs: a job for a large CSV of households (the job, with its id)."""
         return self._post_json("/v1/household-jobs", spec)
 
-    def upload_households(self, job_id: str, households: CsvBody) -> Table:
+    def upload_households(self, job_id: str, households: CsvBody, **options: Any) -> Table:
         """POST /v1/household-jobs/{id}/households: one CSV row a household; the results, one
-        row per household and period (the job's summaries: :meth:`household_job`)."""
+        row per household and period (the job's summaries: :meth:`household_job`). The
+        upload's ``separator`` and ``decimal`` as keywords, when not to be detected."""
         return self._post_csv(f"/v1/household-jobs/{job_id}/households",
-                              households, {})
+                              households, dict(options))
 
     def household_job(self, job_id: str) -> dict[str, Any]:
         """GET /v1/household-jobs/{id}: progress; at the end the summaries and skipped rows."""

@@ -60,7 +60,7 @@ def _table(path: Path, text: str, **columns: Any) -> list[dict[str, Any]]:
     from .api.problems import RequestProblem
 
     try:
-        return read_table(text, **columns)
+        return list(read_table(text, **columns).rows())
     except RequestProblem as exc:
         raise CheckError(f"{path}: " + "; ".join(f"{e.pointer} {e.detail}"
                                                  for e in exc.errors)) from None

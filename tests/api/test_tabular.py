@@ -14,9 +14,10 @@ from dualcost.api.render import csv_text
 
 
 def test_reads_numbers_with_a_decimal_point_only() -> None:
-    rows = read_table("period,item,price\n1,rye_loaf,2.40\n1,ferry_pass,38\n",
-                      required=["period", "item", "price"], numeric=["price"])
-    assert rows == [{"period": "1", "item": "rye_loaf", "price": 2.4},
+    table = read_table("period,item,price\n1,rye_loaf,2.40\n1,ferry_pass,38\n",
+                       required=["period", "item", "price"], numeric=["price"])
+    assert table.records == [2, 3]
+    assert list(table.rows()) == [{"period": "1", "item": "rye_loaf", "price": 2.4},
                     {"period": "1", "item": "ferry_pass", "price": 38.0}]
     assert parse_number("2,40") is None and parse_number("1_000") is None
     assert parse_number("nan") is None and parse_number("inf") is None

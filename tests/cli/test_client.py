@@ -325,6 +325,23 @@ def test_households_in_one_batch_and_as_a_job(live_url) -> None:
     assert len(streamed) == len(body["households"]) and gone.value.status == 404
 
 
+def test_a_household_upload_takes_its_dialect_as_keywords(live_url) -> None:
+    """separator and decimal go to the upload's query string."""
+    body = load_example("householdIndices.wrenmouth_deciles_ces.json")
+    spec = {k: v for k, v in body.items() if k != "households"}
+    items = [i["id"] for i in body["items"]]
+    lines = [";".join(["household", *items])]
+    lines += [";".join([h["id"], *(str(h["shares"][i]).replace(".", ",") for i in items)])
+              for h in body["households"]]
+    with Client(live_url) as dc:
+        job = dc.create_household_job(spec)
+        streamed = dc.upload_households(job["id"], "\n".join(lines) + "\n",
+                                        separator="semicolon", decimal="comma")
+        done = dc.household_job(job["id"])
+    assert len(streamed) == len(body["households"]) and done["status"] == "done"
+    assert not [n for n in done["notices"] if n["code"] == "csv_dialect_detected"]
+
+
 def test_fits_fitted_comparisons_and_audits(live_url) -> None:
     with Client(live_url) as dc:
         fit = dc.fit(load_example("fitModel.wrenmouth_quarterly_aids.json"))

@@ -14,7 +14,7 @@ from fastapi.staticfiles import StaticFiles
 
 from .. import __version__
 from ..config import Settings
-from . import problems
+from . import docs, problems
 from .access import AccessControlMiddleware, RateLimiter, load_keys
 from .limits import BodyLimitMiddleware, HeaderLimitMiddleware
 from .observability import RequestContextMiddleware
@@ -75,6 +75,9 @@ def create_app(settings: Settings | None = None) -> FastAPI:
     settings = settings or Settings()
     app = FastAPI(
         lifespan=_lifespan,
+        # The documentation pages are served with their assets from this process (docs.py).
+        docs_url=None,
+        redoc_url=None,
         title="dualcost",
         version=__version__,
         description=DESCRIPTION,
@@ -113,6 +116,7 @@ def create_app(settings: Settings | None = None) -> FastAPI:
         app.include_router(router)
 
     app.openapi = lambda: problem_openapi(app)  # type: ignore[method-assign]
+    docs.install(app)
     app.mount("/static", StaticFiles(directory=WEB_DIR), name="static")
 
     @app.get("/", include_in_schema=False)

@@ -245,10 +245,10 @@ def csv_text(header: Sequence[str], rows: Iterable[Sequence[Any]]) -> str:
 
 def csv_response(header: Sequence[str], rows: Iterable[Sequence[Any]], *,
                  provenance: Provenance, trailer: bool = False,
-                 filename: str | None = None) -> Response:
-    """A CSV table with the provenance and caution headers (:func:`provenance_headers`); with
-    ``trailer``, the :func:`trailer_rows` after the table as well."""
-    headers = provenance_headers(provenance)
+                 filename: str | None = None, headers: dict[str, str] | None = None) -> Response:
+    """A CSV table with the provenance and caution headers (:func:`provenance_headers`) and any
+    ``headers`` given; with ``trailer``, the :func:`trailer_rows` after the table as well."""
+    headers = {**(headers or {}), **provenance_headers(provenance)}
     if filename:
         headers["content-disposition"] = f'inline; filename="{filename}"'
     text = csv_text(header, rows)

@@ -16,6 +16,13 @@ Vector = NDArray[np.float64]
 
 #: Tolerance on "shares sum to one" and other adding-up rules (common practice: 1e-6).
 ADDING_UP_TOLERANCE = 1e-6
+#: The units a caller may give expenditure shares in (``share_unit``), by what a whole budget
+#: adds up to in each: fractions of 1, percent, per mille.
+SHARE_UNITS: dict[str, float] = {"fraction": 1.0, "percent": 100.0, "per_mille": 1000.0}
+_UNIT_WORDS = {"fraction": "fractions", "percent": "percentages", "per_mille": "per mille figures"}
+#: How near (relatively) a sum of shares must come to 1, 100 or 1000 for a refusal to suggest
+#: that unit.
+UNIT_HINT_BAND = 0.05
 
 
 def vector(name: str, values: npt.ArrayLike, *, size: int | None = None) -> Vector:
@@ -54,14 +61,53 @@ def nonnegative(name: str, values: npt.ArrayLike, *, size: int | None = None) ->
     return arr
 
 
-def shares(name: str, values: npt.ArrayLike, *, size: int | None = None) -> Vector:
-    """Expenditure shares: non-negative and summing to one within 1e-6."""
+def share_scale(unit: str) -> float:
+    """What a whole budget adds up to in ``unit`` (``fraction`` 1, ``percent`` 100,
+    ``per_mille`` 1000)."""
+    try:
+        return SHARE_UNITS[unit]
+    except KeyError:
+        raise InvalidInput("share_unit", f"must be one of {', '.join(SHARE_UNITS)}, got "
+                           f"{unit!r}") from None
+
+
+def unit_words(unit: str) -> str:
+    """The unit in words: "percent", "per mille", "fractions of 1"."""
+    return {"fraction": "fractions of 1", "percent": "percent", "per_mille": "per mille"}[unit]
+
+
+def unit_hint(total: float, unit: str = "fraction") -> str:
+    """For shares in ``unit`` that add up to ``total`` (as given) where the rule wants another
+    sum: the unit they seem to be in, if another one's whole budget is within 5% of ``total``
+    ("; if they are percentages (a whole budget 100), give share_unit=percent"); else ""."""
+    for name, scale in SHARE_UNITS.items():
+        if name != unit and abs(total / scale - 1.0) <= UNIT_HINT_BAND:
+            return (f"; if they are {_UNIT_WORDS[name]} (a whole budget {scale:g}), give "
+                    f"share_unit={name}")
+    return ""
+
+
+def sum_rule(unit: str = "fraction") -> str:
+    """The adding-up rule for shares given in ``unit``."""
+    if unit == "fraction":
+        return "expenditure shares must sum to 1 (within 1e-6)"
+    scale = share_scale(unit)
+    return (f"expenditure shares given in {unit_words(unit)} (share_unit={unit}) must sum to "
+            f"{scale:g} (within {ADDING_UP_TOLERANCE * scale:g})")
+
+
+def shares(name: str, values: npt.ArrayLike, *, size: int | None = None,
+           unit: str = "fraction") -> Vector:
+    """Expenditure shares: non-negative and summing to one within 1e-6; given in ``unit``
+    (:data:`SHARE_UNITS`), they are divided by its whole budget (100 for percent) first."""
+    scale = share_scale(unit)
     arr = nonnegative(name, values, size=size)
-    total = float(arr.sum())
-    if abs(total - 1.0) > ADDING_UP_TOLERANCE:
-        raise InvalidInput(
-            name, f"expenditure shares must sum to 1 (within 1e-6); they sum to {total:.10g}"
-        )
+    given = float(arr.sum())
+    if scale != 1.0:
+        arr = arr / scale
+    if abs(given / scale - 1.0) > ADDING_UP_TOLERANCE:
+        raise InvalidInput(name, f"{sum_rule(unit)}; they sum to {given:.10g}"
+                           f"{unit_hint(given, unit)}")
     return arr
 
 

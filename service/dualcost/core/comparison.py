@@ -51,7 +51,7 @@ from .indices import (
 )
 from .konus import PriceChange, StandardAt, konus_at_income, naming, price_change
 from .preferences import calibrate
-from .preferences.base import BaseBudget, Notice, Preferences, Vector
+from .preferences.base import BaseBudget, Notice, Preferences, Vector, converted_notices
 from .validity import Validity, assess, negative_demands
 
 #: Duality residuals above this (relative) are reported as a notice.
@@ -69,6 +69,8 @@ class WeightReference:
     quantities: Vector | None = None
     shares: Vector | None = None
     prices: Vector | None = None
+    #: What was done to the inputs (shares given in percent or per mille, converted).
+    notices: tuple[Notice, ...] = ()
 
     @classmethod
     def checked(
@@ -78,9 +80,15 @@ class WeightReference:
         quantities: npt.ArrayLike | None = None,
         shares: npt.ArrayLike | None = None,
         prices: npt.ArrayLike | None = None,
+        share_unit: str = "fraction",
     ) -> WeightReference:
+        """``share_unit``: the unit of ``shares`` (``fraction``, ``percent``, ``per_mille``);
+        shares in percent or per mille are divided by 100 or 1000, with a notice."""
         qb = None if quantities is None else _checks.nonnegative("qb", quantities, size=n_items)
-        wb = None if shares is None else _checks.shares("wb", shares, size=n_items)
+        wb = None if shares is None else _checks.shares("wb", shares, size=n_items,
+                                                        unit=share_unit)
+        notices = () if shares is None else converted_notices(
+            "The weight-reference shares", share_unit)
         pb = None if prices is None else _checks.positive("pb", prices, size=n_items)
         if qb is not None and not np.any(qb > 0):
             raise InvalidInput("qb", "at least one quantity of the weight-reference basket must "
@@ -95,7 +103,7 @@ class WeightReference:
             else:
                 raise InvalidInput("pb", "weight-reference prices need a basket or shares to go "
                                    "with them")
-        return cls(quantities=qb, shares=wb, prices=pb)
+        return cls(quantities=qb, shares=wb, prices=pb, notices=notices)
 
 
 @dataclass(frozen=True)
@@ -249,8 +257,8 @@ def compare(
     result = comparison_of(model, base, change, observed_quantities=q1_obs, reference=reference,
                            weight_reference=weight_reference,
                            lloyd_moulton_sigma=lloyd_moulton_sigma, formulas=formulas)
-    if income_notice is not None:
-        result.notices.insert(0, income_notice)
+    if income_notice is not None:  # after what was done to the base budget
+        result.notices.insert(len(base.notices), income_notice)
     return result
 
 
@@ -302,6 +310,8 @@ def comparison_of(
     :func:`compare` checks it. The households that a family evaluates one by one go through
     here too, so that each is checked as its own comparison would be."""
     notices: list[Notice] = list(base.notices) + list(model.calibration_notices)
+    if weight_reference is not None:
+        notices.extend(weight_reference.notices)
     mid = change.midpoint
     konus = _konus_indices(model, change, reference, notices)
     p0, m0, p1, m1 = base.prices, base.expenditure, change.current_prices, change.current_income
@@ -582,6 +592,7 @@ def compare_budgets(
     base_shares: npt.ArrayLike | None = None,
     base_expenditure: float | None = None,
     normalise_shares: bool = False,
+    share_unit: str = "fraction",
     current_quantities: npt.ArrayLike | None = None,
     current_income: float | None = None,
     reference_income: float | None = None,
@@ -593,8 +604,10 @@ def compare_budgets(
     quantities ``q0``, or shares ``w0`` and expenditure ``m0``), the family calibrated to it
     (:func:`dualcost.core.preferences.calibrate`), and :func:`compare`.
 
-    ``weight_reference`` holds any of ``prices``, ``quantities`` and ``shares`` of an earlier
-    weight-reference period (:class:`WeightReference`). Errors name the arguments as
+    ``share_unit`` is the unit of the base shares (``fraction``, ``percent``, ``per_mille``;
+    :meth:`BaseBudget.from_shares`). ``weight_reference`` holds any of ``prices``,
+    ``quantities`` and ``shares`` of an earlier weight-reference period, and the shares'
+    ``share_unit`` (:class:`WeightReference`). Errors name the arguments as
     :func:`compare` and the family do (``p0``, ``q0``, ``w0``, ``m0``, ``pb``, ``qb``, ``wb``,
     ``sigma``, ...).
     """
@@ -606,12 +619,14 @@ def compare_budgets(
             raise InvalidInput("w0", "give the base quantities, or the base shares with the "
                                "base expenditure")
         budget = BaseBudget.from_shares(base_prices, base_shares, base_expenditure,
-                                        normalise=normalise_shares)
+                                        normalise=normalise_shares, unit=share_unit)
     model = calibrate(family, budget, parameters)
     weights = None
     if weight_reference:
         size = budget.n_items
-        weights = WeightReference.checked(size, **dict(weight_reference))
+        given = dict(weight_reference)
+        weights = WeightReference.checked(size, share_unit=str(given.pop("share_unit", "fraction")),
+                                          **given)
     result = compare(model, budget, current_prices, current_income=current_income,
                      current_quantities=current_quantities, reference_income=reference_income,
                      weight_reference=weights, lloyd_moulton_sigma=lloyd_moulton_sigma,

@@ -58,7 +58,7 @@ from .errors import DualcostError, InvalidInput, InvalidRows, RowProblem
 from .indices import FORMULAS, HOUSEHOLD_DEFAULT, IndexData, formulas_for
 from .konus import PriceChange, price_change
 from .preferences import FAMILIES, BaseBudget, Notice, Preferences
-from .preferences.base import RowModels
+from .preferences.base import RowModels, converted_notices
 
 Vector = NDArray[np.float64]
 Matrix = NDArray[np.float64]
@@ -97,6 +97,8 @@ class HouseholdJob:
     normalise_shares: bool = False
     chunk_rows: int = 1024
     notices: tuple[Notice, ...] = ()
+    #: The unit the households' shares are given in (``fraction``, ``percent``, ``per_mille``).
+    share_unit: str = "fraction"
 
     @classmethod
     def checked(
@@ -110,12 +112,16 @@ class HouseholdJob:
         lloyd_moulton_sigma: float | None = None,
         normalise_shares: bool = False,
         chunk_rows: int | None = None,
+        share_unit: str = "fraction",
     ) -> HouseholdJob:
         """Check everything that does not depend on a household.
 
         ``current_prices`` is one price vector or a (periods, items) matrix, each row compared
-        with ``base_prices``; ``chunk_rows`` defaults to :func:`default_chunk_rows`.
+        with ``base_prices``; ``chunk_rows`` defaults to :func:`default_chunk_rows`. The
+        households' shares are given in ``share_unit`` (``fraction``, ``percent`` or
+        ``per_mille``: each row is divided by 1, 100 or 1000 before its checks, with a notice).
         """
+        converted = converted_notices("The households' shares", share_unit)
         p0 = _checks.positive("p0", base_prices)
         p1 = _current_prices(current_prices, p0.size)
         if family not in FAMILIES:
@@ -146,7 +152,7 @@ class HouseholdJob:
             chunk_rows = default_chunk_rows(p0.size)
         if int(chunk_rows) < 1:
             raise InvalidInput("chunk_rows", f"must be 1 or more, got {chunk_rows}")
-        notices: tuple[Notice, ...] = ()
+        notices: tuple[Notice, ...] = converted
         if not FAMILIES[family].broadcasts:
             notices += (Notice("evaluated_one_by_one", f"The {family} family has no closed form "
                                "over households here: each household was calibrated and "
@@ -154,7 +160,7 @@ class HouseholdJob:
         return cls(family=family, parameters=params, base_prices=p0, current_prices=p1,
                    formulas=names, lloyd_moulton_sigma=lm_sigma,
                    normalise_shares=bool(normalise_shares), chunk_rows=int(chunk_rows),
-                   notices=notices)
+                   notices=notices, share_unit=share_unit)
 
     @property
     def n_items(self) -> int:
@@ -293,14 +299,19 @@ def _probe(family: str, params: Mapping[str, Any], p0: Vector) -> Preferences | 
 
 
 def _share_problems(rows: NDArray[np.int64], w: Matrix, normalise: bool,
-                    problems: list[RowProblem], bad: NDArray[np.bool_]) -> tuple[Matrix, int]:
-    """Refuse negative or non-finite shares and sums away from 1; normalise if asked."""
+                    problems: list[RowProblem], bad: NDArray[np.bool_],
+                    unit: str = "fraction") -> tuple[Matrix, int]:
+    """Refuse negative or non-finite shares and sums away from 1; normalise if asked. Shares
+    given in ``unit`` are divided by its whole budget (100 for percent) first."""
+    scale = _checks.share_scale(unit)
+    if scale != 1.0:
+        w = w / scale
     finite = np.isfinite(w)
     negative = ~finite | (w < 0.0)
     for h in np.flatnonzero(negative.any(axis=-1) & ~bad):
         i = int(np.argmax(negative[h]))
         rule = ("must be a finite number" if not finite[h, i] else
-                f"a budget share must not be negative, got {w[h, i]:.6g}")
+                f"a budget share must not be negative, got {w[h, i] * scale:.6g}")
         problems.append(RowProblem(int(rows[h]), "shares", rule, "negative_share", i))
         bad[h] = True
     total = np.sum(np.where(negative, 0.0, w), axis=-1)
@@ -319,8 +330,10 @@ def _share_problems(rows: NDArray[np.int64], w: Matrix, normalise: bool,
             w[fix] /= total[fix, None]
         return w, normalised
     for h in np.flatnonzero(off & ~bad):
-        problems.append(RowProblem(int(rows[h]), "shares", "expenditure shares must sum to 1 "
-                                   f"(within 1e-6); they sum to {total[h]:.10g}", "shares_sum"))
+        given = float(total[h] * scale)
+        problems.append(RowProblem(int(rows[h]), "shares", f"{_checks.sum_rule(unit)}; they sum "
+                                   f"to {given:.10g}{_checks.unit_hint(given, unit)}",
+                                   "shares_sum"))
         bad[h] = True
     return w, 0
 
@@ -530,7 +543,8 @@ def _row_checks(job: HouseholdJob, chunk: HouseholdChunk, rows: NDArray[np.int64
     (possibly normalised) shares, the incomes (1 where none are given), the weights and how
     many rows were normalised."""
     h = rows.size
-    w0, normalised = _share_problems(rows, w0, job.normalise_shares, problems, bad)
+    w0, normalised = _share_problems(rows, w0, job.normalise_shares, problems, bad,
+                                     job.share_unit)
     if chunk.expenditure is not None:
         m = np.asarray(chunk.expenditure, dtype=np.float64)
         _scalar_problems(rows, m, "expenditure", "bad_income", problems, bad)

@@ -611,6 +611,8 @@ def index_series(
     if not np.isfinite(scale) or scale <= 0.0:
         raise InvalidInput("reference_value", f"must be greater than zero, got {scale:g}")
     notices: list[Notice] = []
+    if isinstance(weight_reference, WeightReference):
+        notices.extend(weight_reference.notices)
 
     items: tuple[int, ...] = ()
     if model is not None:
@@ -968,7 +970,8 @@ def series_by_label(
     reference, span and loop periods, the weight-reference period) and found in it; ``model``,
     when given, is called with the base period's budget and the positions of the items priced
     in it, and returns the family calibrated to them; ``weight_reference`` holds any of
-    ``prices``, ``quantities`` and ``shares`` of an earlier period (:class:`WeightReference`).
+    ``prices``, ``quantities`` and ``shares`` of an earlier period, and the shares'
+    ``share_unit`` (:class:`WeightReference`).
     The other ``options`` go to :func:`index_series`. Errors name the arguments as
     :func:`index_series` does, the period arguments by their names (``base_period``, ``span``,
     ``loop`` with the position in the loop, ``weight_reference``).
@@ -987,7 +990,10 @@ def series_by_label(
     if weight_reference_period is not None:
         weights = panel.period_index("weight_reference", weight_reference_period, 0)
     elif weight_reference:
-        weights = WeightReference.checked(panel.n_items, **dict(weight_reference))
+        given = dict(weight_reference)
+        weights = WeightReference.checked(panel.n_items,
+                                          share_unit=str(given.pop("share_unit", "fraction")),
+                                          **given)
     calibrated = None
     if model is not None:
         budget, items_priced = base_budget(panel, base)

@@ -1,9 +1,37 @@
-"""CSV uploads: the body as text, and a table of records with numbers checked cell by cell.
+"""CSV uploads: the body as text, its dialect (declared or detected), and a table of records with
+numbers checked cell by cell.
 
-A CSV upload has a header row, then one record per row; numbers are written with '.' as the
-decimal point and no grouping, and NaN or infinity are refused. A bad cell is reported with an
-RFC 7111 fragment identifier, ``#cell=<row>,<column>`` (rows counted from 1 with the header as
+**Reading.** Records are read by Python's ``csv`` module in strict mode, as RFC 4180 writes them:
+a field may be quoted (``"Rye loaf, sliced"``), a quote inside a quoted field is doubled
+(``"the ""large"" loaf"``), and a quoted field may span lines; a stray quote is refused, named
+by its record. A byte-order mark before the header is ignored.
+
+**Dialect.** The fields are separated by ``,`` ``;`` or a tab, and numbers are written with
+``.`` or ``,`` as the decimal mark. The caller declares either with the query parameters
+``separator=comma|semicolon|tab`` and ``decimal=point|comma``; what is not declared is detected,
+conservatively, and the answer says what was used in its ``notices`` (code
+``csv_dialect_detected``):
+
+- the separator is the one of the three that the header row holds outside quotes (the header has
+  names, no numbers); a header with more than one of them is refused, naming ``separator``;
+- with ``,`` between fields numbers have ``.`` as decimal mark (a decimal comma would have to be
+  quoted in every cell: declaring ``decimal=comma`` with ``separator=comma`` is refused, naming
+  both); with ``;`` or a tab the numeric cells of the first :data:`DETECTION_ROWS` records decide:
+  a ``,`` in a number is a decimal comma, a ``.`` a decimal point, unless the ``.`` could also
+  group thousands (``1.234``, ``12.500``), which says nothing. Both marks in use, or only
+  numbers that read two ways, is refused, naming ``decimal``. Whole numbers only: ``;``
+  separated files take ``,`` (the common export of spreadsheets in comma-decimal locales), tab
+  separated ones ``.``; a later number with the other mark is refused at its cell.
+
+**Numbers.** No grouping of thousands, under either mark: a number with a ``,`` under
+``decimal=point`` or a ``.`` under ``decimal=comma``, an ``_``, a space or an apostrophe inside
+is refused, never guessed; NaN and infinity are refused. A bad cell is reported with an RFC 7111
+fragment identifier, ``#cell=<row>,<column>`` (rows are records, counted from 1 with the header as
 row 1, columns from 1), with the column's name in the sentence; a missing column with ``#row=1``.
+
+The plain case (``,`` and ``.``) is read column by column: one check of a column's joined text
+for characters that cannot be in a number, then ``float`` over the column; only a column with a
+bad cell is read again cell by cell, to name the cells.
 """
 
 from __future__ import annotations
@@ -11,14 +39,29 @@ from __future__ import annotations
 import csv
 import io
 import math
-from collections.abc import Sequence
-from typing import Any
+import re
+from collections.abc import Iterable, Iterator, Sequence
+from dataclasses import dataclass, field
+from itertools import chain, islice
+from typing import Annotated, Any, Literal
 
-from fastapi import Request
+from fastapi import Query, Request
 
 from ..problems import FieldError, RequestProblem
+from ..schemas.common import DecimalMark
 
 CSV_MEDIA_TYPE = "text/csv"
+Separator = Literal["comma", "semicolon", "tab"]
+SEPARATORS: dict[Separator, str] = {"comma": ",", "semicolon": ";", "tab": "\t"}
+MARKS: dict[DecimalMark, str] = {"point": ".", "comma": ","}
+_SHOWN = {",": "','", ";": "';'", "\t": "a tab"}
+#: How many records after the header decide an undeclared decimal mark.
+DETECTION_ROWS = 1000
+#: Where the dialect is declared, in the upload's query string.
+SEPARATOR_PARAM, DECIMAL_PARAM = "#/query/separator", "#/query/decimal"
+#: A number whose '.' could group thousands as well as mark decimals: 1.234, 12.500, 1.234.567.
+_GROUPED = re.compile(r"[+-]?[1-9]\d{0,2}(?:\.\d{3})+")
+#: The plain case's rule (the sheet forms and the JSON-free callers use it too).
 NUMBER_RULE = "write numbers with '.' as decimal point and no grouping"
 
 
@@ -34,56 +77,291 @@ def parse_number(text: str) -> float | None:
     return value if math.isfinite(value) else None
 
 
-def record_numbers(text: str) -> tuple[list[str], list[int]]:
-    """The header, and the record number of each non-blank record after it (the header is
-    record 1), as :func:`read_table` counts them, for pointers at cells."""
-    reader = csv.reader(io.StringIO(text.lstrip("\ufeff")))
-    header = [h.strip() for h in next(reader, [])]
-    numbers = [n for n, record in enumerate(reader, start=2)
-               if record and any(cell.strip() for cell in record)]
-    return header, numbers
+def parse_number_comma(text: str) -> float | None:
+    """A finite number written with ',' as decimal mark (no '.'), or None if it is not one."""
+    cleaned = text.strip()
+    if not cleaned or "." in cleaned or "_" in cleaned or cleaned.count(",") > 1:
+        return None
+    return parse_number(cleaned.replace(",", "."))
 
 
-def _header(reader: Any, required: Sequence[str]) -> dict[str, int]:
+@dataclass(frozen=True)
+class DeclaredDialect:
+    """The ``separator`` and ``decimal`` query parameters of an upload (None: not declared)."""
+
+    separator: Separator | None = None
+    decimal: DecimalMark | None = None
+
+    def checked(self) -> DeclaredDialect:
+        if self.separator == "comma" and self.decimal == "comma":
+            raise RequestProblem([
+                FieldError(DECIMAL_PARAM, "a decimal comma cannot go with fields separated by "
+                           "commas: give separator=semicolon (or tab) with decimal=comma"),
+                FieldError(SEPARATOR_PARAM, "fields separated by commas need decimal=point")])
+        return self
+
+
+@dataclass(frozen=True)
+class Dialect:
+    """How an upload is read: its separator and decimal mark, and how each was decided."""
+
+    separator: Separator = "comma"
+    decimal: DecimalMark = "point"
+    #: Which of "separator" and "decimal" were detected, each with the reason.
+    detected: dict[str, str] = field(default_factory=dict)
+
+    @property
+    def delimiter(self) -> str:
+        return SEPARATORS[self.separator]
+
+    @property
+    def mark(self) -> str:
+        return MARKS[self.decimal]
+
+    @property
+    def number_rule(self) -> str:
+        if self.decimal == "point":
+            return NUMBER_RULE
+        return "write numbers with ',' as decimal mark, no '.' and no grouping"
+
+    def parse(self, text: str) -> float | None:
+        return parse_number(text) if self.decimal == "point" else parse_number_comma(text)
+
+    def bad_number(self, cell: str) -> str:
+        """Why a cell is not a number here, with the parameter to declare where that may help."""
+        hint = self.number_rule
+        if self.decimal == "point" and "," in cell and "." not in cell:
+            hint += ("; for decimal commas declare decimal=comma (with separator=semicolon or "
+                     "tab)")
+        elif self.decimal == "comma" and "." in cell and "," not in cell:
+            hint += "; for decimal points declare decimal=point"
+        return f"{cell.strip()!r} is not a finite number ({hint})"
+
+    def describe(self) -> str:
+        return (f"fields separated by {_SHOWN[self.delimiter]} and {self.mark!r} as the decimal "
+                "mark")
+
+    def notice(self) -> dict[str, str] | None:
+        """The notice saying what was detected (None when the caller declared both)."""
+        if not self.detected:
+            return None
+        reasons = "; ".join(f"{what}: {why}" for what, why in self.detected.items())
+        declared = [f"{p}={v}" for p, v in (("separator", self.separator),
+                                              ("decimal", self.decimal))
+                    if p not in self.detected]
+        given = f" ({', '.join(declared)} as declared)" if declared else ""
+        return {"code": "csv_dialect_detected",
+                "message": f"The CSV was read with {self.describe()}{given}; detected ("
+                           f"{reasons}). Declare separator and decimal as query parameters to "
+                           "read it otherwise."}
+
+    def headers(self) -> dict[str, str]:
+        """Response headers saying how the upload was read (for CSV answers, which have no
+        notices)."""
+        return {"Dualcost-Input-Separator": self.separator, "Dualcost-Input-Decimal": self.decimal}
+
+
+def dialect_notices(dialect: Dialect | None) -> list[dict[str, str]]:
+    """The notices of an answer about how its upload was read (none for JSON, or when the
+    caller declared the dialect)."""
+    notice = None if dialect is None else dialect.notice()
+    return [] if notice is None else [notice]
+
+
+def _unquoted(line: str) -> str:
+    """The header line without its quoted parts."""
+    return re.sub(r'"(?:[^"]|"")*"?', "", line)
+
+
+def separator_of(header_line: str, declared: DeclaredDialect) -> tuple[Separator, str | None]:
+    """The separator, and the reason when it was detected from the header line."""
+    if declared.separator is not None:
+        return declared.separator, None
+    found, reason = _detected_separator(header_line)
+    if found is None:  # one column: its separator does not show, nor matter to the header
+        found = "semicolon" if declared.decimal == "comma" else "comma"
+        return found, f"the header row is one column, read as {found}-separated"
+    if found == "comma" and declared.decimal == "comma":
+        raise RequestProblem([
+            FieldError(DECIMAL_PARAM, "a decimal comma cannot go with fields separated by "
+                       "commas, and the header row is separated by commas: give "
+                       "separator=semicolon (or tab) with decimal=comma, and the file so"),
+            FieldError(SEPARATOR_PARAM, f"not given, and detected as comma ({reason})")])
+    return found, reason
+
+
+def _detected_separator(header_line: str) -> tuple[Separator | None, str]:
+    bare = _unquoted(header_line.lstrip("\ufeff"))
+    found = [name for name, char in SEPARATORS.items() if char in bare]
+    if len(found) > 1:
+        shown = " and ".join(_SHOWN[SEPARATORS[n]] for n in found)
+        raise RequestProblem.at(SEPARATOR_PARAM, f"the header row holds {shown} outside quotes, "
+                                "so its separator cannot be told: declare separator=comma, "
+                                "semicolon or tab")
+    if not found:
+        return None, ""
+    return found[0], f"{_SHOWN[SEPARATORS[found[0]]]} is the only separator in the header row"
+
+
+def decimal_of(separator: Separator, declared: DeclaredDialect, records: Sequence[Sequence[str]],
+               columns: Sequence[int], first_record: int = 2) -> tuple[DecimalMark, str | None]:
+    """The decimal mark, and the reason when it was detected from the numeric cells (``columns``)
+    of ``records`` (the first ones after the header, numbered from ``first_record``)."""
+    if declared.decimal is not None:
+        return declared.decimal, None
+    if separator == "comma":
+        return "point", "fields separated by ',' leave '.' as the decimal mark"
+    comma = point = grouped = None
+    for k, record in enumerate(records):
+        for j in columns:
+            if j >= len(record):
+                continue
+            cell = record[j].strip()
+            if "," in cell:
+                comma = comma or (first_record + k, j + 1, cell)
+            elif "." in cell:
+                if _GROUPED.fullmatch(cell):
+                    grouped = grouped or (first_record + k, j + 1, cell)
+                else:
+                    point = point or (first_record + k, j + 1, cell)
+        if comma and point:
+            break
+    where = f"the numbers of the first {DETECTION_ROWS} rows"
+    if comma and point:
+        raise RequestProblem.at(DECIMAL_PARAM, f"the numbers use both ',' and '.' as decimal "
+                                f"mark ({comma[2]!r} at #cell={comma[0]},{comma[1]}, {point[2]!r} "
+                                f"at #cell={point[0]},{point[1]}): declare decimal=point or "
+                                "decimal=comma")
+    if comma:
+        return "comma", f"{where} have decimal commas"
+    if point:
+        return "point", f"{where} have decimal points"
+    if grouped:
+        raise RequestProblem.at(DECIMAL_PARAM, f"{grouped[2]!r} at #cell={grouped[0]},"
+                                f"{grouped[1]} could be a decimal number or a whole number with "
+                                "its thousands grouped, and no other number tells which: declare "
+                                "decimal=point or decimal=comma")
+    if separator == "semicolon":
+        return "comma", (f"{where} are whole numbers; ',' is taken as the decimal mark, as "
+                         "';'-separated spreadsheet exports write it")
+    return "point", f"{where} are whole numbers; '.' is taken as the decimal mark"
+
+
+def csv_problem(exc: csv.Error, record: int) -> RequestProblem:
+    return RequestProblem([FieldError(f"#row={record}", f"the CSV cannot be read: {exc} (a "
+                                      "field with the separator, a quote or a line break in it "
+                                      "must be quoted, and a quote inside doubled)")])
+
+
+def records_of(lines: Iterable[str], delimiter: str) -> Iterator[list[str]]:
+    """Records read strictly (RFC 4180 quoting); a malformed one is a problem at its record."""
+    reader = csv.reader(lines, delimiter=delimiter, strict=True)
+    record = 0
+    while True:
+        record += 1
+        try:
+            cells = next(reader)
+        except StopIteration:
+            return
+        except csv.Error as exc:
+            raise csv_problem(exc, record) from None
+        yield cells
+
+
+def _failing_record(text: str, delimiter: str) -> int:
+    """The record at which a text stops being readable CSV."""
+    reader = csv.reader(io.StringIO(text), delimiter=delimiter, strict=True)
+    record = 1
     try:
-        header = [h.strip() for h in next(reader)]
-    except StopIteration:
-        raise RequestProblem([FieldError("#row=1", "the CSV is empty: it needs a header row")]) from None
-    except csv.Error as exc:
-        raise RequestProblem([FieldError("#row=1", f"the CSV cannot be read: {exc}")]) from None
+        while next(reader, None) is not None:
+            record += 1
+    except csv.Error:
+        pass
+    return record
+
+
+def _first_line(text: str) -> str:
+    end = text.find("\n")
+    return text if end < 0 else text[:end]
+
+
+# -- a whole table in memory -------------------------------------------------------------------
+
+
+@dataclass
+class Table:
+    """The records of an upload by column: text columns stripped, numeric ones as floats
+    (``None`` where an optional one is empty); ``records`` holds each row's record number."""
+
+    header: list[str]
+    columns: dict[str, list[Any]]
+    records: list[int]
+    dialect: Dialect
+
+    def __len__(self) -> int:
+        return len(self.records)
+
+    def rows(self) -> Iterator[dict[str, Any]]:
+        names = list(self.columns)
+        for values in zip(*self.columns.values(), strict=True):
+            yield dict(zip(names, values, strict=True))
+
+
+def _header(cells: list[str] | None, required: Sequence[str], dialect_hint: str) -> list[str]:
+    if cells is None:
+        raise RequestProblem([FieldError("#row=1", "the CSV is empty: it needs a header row")])
+    header = [h.strip() for h in cells]
     missing = [c for c in required if c not in header]
     if missing:
         raise RequestProblem([FieldError("#row=1", f"the header has no column {c!r} (columns "
-                                         f"needed: {', '.join(required)})") for c in missing])
+                                         f"needed: {', '.join(required)}){dialect_hint}")
+                              for c in missing])
     seen: set[str] = set()
     for c in header:
         if c in seen:
             raise RequestProblem([FieldError("#row=1", f"column {c!r} appears twice in the header")])
         seen.add(c)
-    return {name: i for i, name in enumerate(header)}
+    return header
 
 
-def _record(cells: list[str], row_number: int, col: dict[str, int], required: Sequence[str],
-            numeric: Sequence[str], optional_numeric: Sequence[str],
-            errors: list[FieldError]) -> dict[str, Any]:
-    out: dict[str, Any] = {name: cells[i].strip() for name, i in col.items()}
-    for name in list(numeric) + list(optional_numeric):
-        if name not in col:
+def _one_column_hint(cells: list[str] | None, separator: Separator, reason: str | None) -> str:
+    """For a header read as one column with a declared separator: the separator it seems to
+    have."""
+    if cells is None or len(cells) != 1 or reason is not None:
+        return ""
+    others = [n for n, char in SEPARATORS.items() if n != separator and char in cells[0]]
+    if not others:
+        return ""
+    return (f"; the header was read as one column with separator={separator}, as declared, but "
+            f"holds {_SHOWN[SEPARATORS[others[0]]]}: is the separator {others[0]}?")
+
+
+def _numbers(cells: Sequence[str], name: str, column: int, records: Sequence[int],
+             dialect: Dialect, optional: bool, errors: list[FieldError]) -> list[Any]:
+    """A numeric column: one pass over its joined text and ``float`` over the column when every
+    cell is a number in the dialect; else cell by cell, naming each bad cell."""
+    joined = "\x1f".join(cells)
+    other = "," if dialect.decimal == "point" else "."
+    if "_" not in joined and other not in joined:
+        try:
+            if dialect.decimal == "comma":
+                values = list(map(float, joined.replace(",", ".").split("\x1f")))
+            else:
+                values = list(map(float, cells))
+            if all(map(math.isfinite, values)):
+                return values
+        except ValueError:
+            pass
+    out: list[Any] = []
+    for k, cell in enumerate(cells):
+        if optional and not cell.strip():
+            out.append(None)
             continue
-        cell = out[name]
-        if cell == "" and name in optional_numeric:
-            out[name] = None
-            continue
-        value = parse_number(cell)
-        if value is None:
-            errors.append(FieldError(f"#cell={row_number},{col[name] + 1}",
-                                     f"column {name!r}: {cell!r} is not a finite number "
-                                     f"({NUMBER_RULE})"))
-        out[name] = value
-    for name in required:
-        if name not in numeric and out[name] == "":
-            errors.append(FieldError(f"#cell={row_number},{col[name] + 1}",
-                                     f"column {name!r} is empty"))
+        value = dialect.parse(cell)
+        if value is None and len(errors) < 20:
+            what = f": {dialect.bad_number(cell)}" if cell.strip() else " is empty"
+            errors.append(FieldError(f"#cell={records[k]},{column + 1}", f"column {name!r}{what}"))
+        out.append(value)
     return out
 
 
@@ -94,33 +372,105 @@ def read_table(
     numeric: Sequence[str] = (),
     optional_numeric: Sequence[str] = (),
     max_rows: int | None = None,
-) -> list[dict[str, Any]]:
-    """Rows of a CSV text as dicts; numeric columns as floats (``None`` where an optional one is
-    empty). Errors name the row and column; all bad cells are reported, up to 20."""
-    reader = csv.reader(io.StringIO(text.lstrip("\ufeff")))
-    col = _header(reader, required)
-    rows: list[dict[str, Any]] = []
-    errors: list[FieldError] = []
+    declared: DeclaredDialect | None = None,
+) -> Table:
+    """The records of a CSV text by column, in the declared or detected dialect. Errors name
+    the row and column; all bad cells are reported, up to 20."""
+    declared = (declared or DeclaredDialect()).checked()
+    text = text.lstrip("\ufeff")
+    separator, separator_reason = separator_of(_first_line(text), declared)
+    delimiter = SEPARATORS[separator]
+    reader = csv.reader(io.StringIO(text), delimiter=delimiter, strict=True)
     try:
-        for row_number, cells in enumerate(reader, start=2):
-            if not cells or all(not cell.strip() for cell in cells):
-                continue
-            if len(cells) != len(col):
-                errors.append(FieldError(f"#row={row_number}", f"has {len(cells)} cells but the "
-                                         f"header has {len(col)} columns"))
-                continue
-            rows.append(_record(cells, row_number, col, required, numeric, optional_numeric,
-                                errors))
-            if max_rows is not None and len(rows) > max_rows:
-                raise RequestProblem([FieldError(f"#row={row_number}", f"the CSV has more than "
-                                                 f"{max_rows} rows, the limit")])
-            if len(errors) >= 20:
-                break
+        first = next(reader, None)
+        rows = list(reader)
     except csv.Error as exc:
-        errors.append(FieldError(f"#row={reader.line_num}", f"the CSV cannot be read: {exc}"))
+        raise csv_problem(exc, _failing_record(text, delimiter)) from None
+    header = _header(first, required, _one_column_hint(first, separator, separator_reason))
+    width = len(header)
+    # Records of the header's width that are not blank (record k + 2: the header is record 1).
+    kept_at = [k for k, cells in enumerate(rows)
+               if len(cells) == width and (cells[0].strip() or "".join(cells).strip())]
+    errors: list[FieldError] = []
+    if len(kept_at) == len(rows):
+        kept = rows
+    else:
+        kept = [rows[k] for k in kept_at]
+        errors = [FieldError(f"#row={k + 2}", f"has {len(cells)} cells but the header has "
+                             f"{width} columns") for k, cells in enumerate(rows)
+                  if len(cells) != width and "".join(cells).strip()][:20]
+    records = [k + 2 for k in kept_at]
+    if max_rows is not None and len(kept) > max_rows:
+        raise RequestProblem([FieldError(f"#row={records[max_rows]}", f"the CSV has more than "
+                                         f"{max_rows} rows, the limit")])
+    numeric_names = [c for c in list(numeric) + list(optional_numeric) if c in header]
+    position = {name: j for j, name in enumerate(header)}
+    decimal, decimal_reason = decimal_of(separator, declared, kept[:DETECTION_ROWS],
+                                         [position[c] for c in numeric_names])
+    dialect = Dialect(separator, decimal, {
+        k: v for k, v in (("separator", separator_reason), ("decimal", decimal_reason)) if v})
+    raw = list(zip(*kept, strict=True)) if kept else [() for _ in header]
+    columns: dict[str, list[Any]] = {}
+    for j, name in enumerate(header):
+        cells = raw[j]
+        if name in numeric_names:
+            columns[name] = _numbers(cells, name, j, records, dialect,
+                                     name in optional_numeric, errors)
+        else:
+            columns[name] = list(map(str.strip, cells))
+            if name in required:
+                empty = [k for k, v in enumerate(columns[name]) if not v]
+                errors += [FieldError(f"#cell={records[k]},{j + 1}", f"column {name!r} is empty")
+                           for k in empty[:20]]
     if errors:
-        raise RequestProblem(errors)
-    return rows
+        errors.sort(key=_order)
+        raise RequestProblem(errors[:20])
+    return Table(header, columns, records, dialect)
+
+
+def _order(error: FieldError) -> tuple[int, int]:
+    """Errors in the order of the file: by row, then by column."""
+    found = re.match(r"#(?:cell|row)=(\d+)(?:,(\d+))?", error.pointer)
+    return (int(found.group(1)), int(found.group(2) or 0)) if found else (0, 0)
+
+
+# -- a stream of records (household jobs) -------------------------------------------------------
+
+
+def stream_header(lines: Iterator[str], declared: DeclaredDialect
+                  ) -> tuple[list[str], Iterator[list[str]], Separator, str | None]:
+    """The header of a streamed upload, the records after it and the separator (with the reason
+    when detected)."""
+    declared = declared.checked()
+    first = next(lines, "")
+    separator, reason = separator_of(first, declared)
+    reader = records_of(chain([first.lstrip("\ufeff")], lines), SEPARATORS[separator])
+    header = next(reader, None)
+    if header is None:
+        raise RequestProblem.at("#row=1", "the CSV is empty: it needs a header row")
+    return header, reader, separator, reason
+
+
+def stream_dialect(records: Iterator[list[str]], separator: Separator, reason: str | None,
+                   declared: DeclaredDialect, columns: Sequence[int]
+                   ) -> tuple[Dialect, Iterator[list[str]]]:
+    """The dialect of a streamed upload, from its first records' numeric ``columns``; and the
+    records, the ones looked at included."""
+    looks = declared.decimal is None and separator != "comma"
+    head = list(islice(records, DETECTION_ROWS)) if looks else []
+    decimal, decimal_reason = decimal_of(separator, declared, head, columns)
+    dialect = Dialect(separator, decimal, {
+        k: v for k, v in (("separator", reason), ("decimal", decimal_reason)) if v})
+    return dialect, chain(head, records)
+
+
+SeparatorParam = Annotated[Separator | None, Query(
+    description="How the upload separates its fields: comma, semicolon or tab. Default: "
+                "detected from the header row (stated in the answer's notices).")]
+DecimalParam = Annotated[DecimalMark | None, Query(
+    description="The decimal mark of the upload's numbers: point or comma (comma needs "
+                "separator semicolon or tab). Default: detected (stated in the answer's "
+                "notices); numbers with thousands grouped are refused either way.")]
 
 
 def check_media_type(request: Request) -> None:

@@ -22,7 +22,7 @@ from ...core.errors import RowProblem
 from ...core.households import HouseholdChunk, HouseholdJob, check_quantiles
 from ..problems import FieldError, RequestProblem
 from ..schemas.households import HouseholdIndicesRequest, HouseholdJobSpec
-from .csv import NUMBER_RULE, parse_number
+from .csv import Dialect
 from .items import ItemAxis
 from .locator import CsvRows, Locator, Place
 from .model import core_parameters
@@ -69,7 +69,8 @@ def job_of(spec: HouseholdJobSpec, loc: Locator, *, max_items: int, max_tree_dep
         job = HouseholdJob.checked(
             spec.model.family, parameters, p0, np.stack(rows), formulas=spec.formulas,
             lloyd_moulton_sigma=spec.lloyd_moulton_sigma,
-            normalise_shares=spec.normalise_shares, chunk_rows=chunk_rows)
+            normalise_shares=spec.normalise_shares, chunk_rows=chunk_rows,
+            share_unit=spec.share_unit)
         quantiles = check_quantiles(spec.quantiles)
     return job, axis, quantiles
 
@@ -127,6 +128,14 @@ class CsvLayout:
     expenditure_column: int | None
     weight_column: int | None
     unused: list[str]
+    #: How the records are read: separator and decimal mark (see inputs/csv.py).
+    dialect: Dialect = Dialect()
+
+    @property
+    def numeric_columns(self) -> list[int]:
+        """The columns holding numbers: the items', income and weight."""
+        return self.items + [j for j in (self.expenditure_column, self.weight_column)
+                             if j is not None]
 
 
 def csv_layout(header: Sequence[str], axis: ItemAxis, loc: Locator, *,
@@ -170,6 +179,7 @@ class _ChunkReader:
         self.ids: list[str | None] = []
         self.problems: list[RowProblem] = []
         self.raw: dict[int, Sequence[str]] = {}  # cells of rows that did not parse, for messages
+        self.other_mark = "," if layout.dialect.decimal == "point" else "."
 
     def add(self, record: int, cells: list[str]) -> None:
         layout = self.layout
@@ -186,13 +196,17 @@ class _ChunkReader:
         picked = self.pick(cells)
         if len(layout.items) == 1:
             picked = (picked,)
+        dialect = layout.dialect
         try:
-            # float() also reads '1_000'; a CSV number has no grouping.
-            if "_" in "".join(picked):
+            # float() also reads '1_000', and the other decimal mark is never in a number here.
+            joined = "\x1f".join(picked)
+            if "_" in joined or self.other_mark in joined:
                 raise ValueError("grouping")
+            if dialect.decimal == "comma":
+                picked = tuple(joined.replace(",", ".").split("\x1f"))
             self.values.append(list(map(float, picked)))
         except ValueError:
-            self.values.append([_number(c) for c in picked])
+            self.values.append([_number(c, dialect) for c in picked])
             self.raw[len(self.rows) - 1] = picked
         self.incomes.append(self._optional(cells, layout.expenditure_column, EXPENDITURE_COLUMN,
                                            record))
@@ -204,11 +218,12 @@ class _ChunkReader:
         if column is None:
             return 1.0
         cell = cells[column]
-        value = parse_number(cell)
+        value = self.layout.dialect.parse(cell)
         if value is None:
-            what = "is empty" if not cell.strip() else f"{cell.strip()!r} is not a finite number"
-            self.problems.append(RowProblem(record, name, f"{what} ({NUMBER_RULE})",
-                                            "not_a_number"))
+            what = "is empty" if not cell.strip() else self.layout.dialect.bad_number(cell)
+            if not cell.strip():
+                what += f" ({self.layout.dialect.number_rule})"
+            self.problems.append(RowProblem(record, name, what, "not_a_number"))
             return 1.0
         return value
 
@@ -220,9 +235,10 @@ class _ChunkReader:
             if self.rows[k] in refused:
                 continue
             i = int(np.argmax(bad_cells[k]))
-            text = self.raw[k][i].strip() if k in self.raw else repr(float(shares[k, i]))
-            self.problems.append(RowProblem(self.rows[k], "shares", f"{text!r} is not a finite "
-                                            f"number ({NUMBER_RULE})", "not_a_number", i))
+            text = self.raw[k][i] if k in self.raw else repr(float(shares[k, i]))
+            self.problems.append(RowProblem(self.rows[k], "shares",
+                                            self.layout.dialect.bad_number(text), "not_a_number",
+                                            i))
         layout = self.layout
         return HouseholdChunk(
             rows=np.array(self.rows, dtype=np.int64), shares=shares,
@@ -233,9 +249,9 @@ class _ChunkReader:
         )
 
 
-def _number(cell: str) -> float:
-    """A finite number written with '.' as decimal point, or NaN if the cell is not one."""
-    value = parse_number(cell)
+def _number(cell: str, dialect: Dialect) -> float:
+    """A finite number in the upload's dialect, or NaN if the cell is not one."""
+    value = dialect.parse(cell)
     return float("nan") if value is None else value
 
 

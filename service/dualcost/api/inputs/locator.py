@@ -69,6 +69,9 @@ class CsvRows:
     cells: dict[tuple[int, int], int] = field(default_factory=dict)  # (row t, item i) -> record
     first: dict[int, int] = field(default_factory=dict)  # row t -> its first record
     item_first: dict[int, int] = field(default_factory=dict)  # item i -> its first record
+    #: Long uploads read column by column: the record of each (row t, item i) as a matrix,
+    #: 0 where there is none (in place of ``cells``).
+    cell_records: Any = None
     #: Wide uploads (one record per household): the column of each item.
     item_columns: list[int] = field(default_factory=list)
     #: The record named when a row is not found, and whether an error about a whole column
@@ -86,6 +89,10 @@ class CsvRows:
             return self.item_first.get(i, self.default_record) if i is not None else 1
         if i is None:
             return self.first.get(t, self.default_record)
+        if self.cell_records is not None:
+            rows, columns = self.cell_records.shape
+            found = int(self.cell_records[t, i]) if 0 <= t < rows and 0 <= i < columns else 0
+            return found or self.first.get(t, self.default_record)
         return self.cells.get((t, i), self.first.get(t, self.default_record))
 
 

@@ -10,15 +10,16 @@ and every observation has every item. CSV: one record per observation and item (
 
 from __future__ import annotations
 
+import io
 from collections.abc import Sequence
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 from typing import Any
 
 import numpy as np
 from numpy.typing import NDArray
 
 from ..problems import FieldError, RequestProblem
-from .csv import read_table, record_numbers
+from .csv import SEPARATORS, DeclaredDialect, Dialect, read_table, records_of, separator_of
 from .items import ItemAxis
 from .locator import CsvRows, Locator, Place
 
@@ -31,7 +32,10 @@ CSV_DESCRIPTION = (
     "`share` with `total_expenditure` (the observation's total, repeated on its rows), "
     "`expenditure` (money spent on the item), or `quantity`; optionally `weight` (the "
     "observation's survey weight, repeated on its rows) and `label` (the item's name). Every "
-    "observation must list the same items as the first. Errors name the row and column "
+    "observation must list the same items as the first. Fields may be quoted (RFC 4180); "
+    "fields separated by `,`, `;` or a tab and numbers with `.` or `,` as decimal mark, declared "
+    "by `separator` and `decimal` or detected (stated in `notices`, code "
+    "`csv_dialect_detected`); no grouping of thousands. Errors name the row and column "
     "(`#cell=row,column`, RFC 7111)."
 )
 #: The spending a request gives: its JSON field, its CSV column, and the total's field and column.
@@ -54,6 +58,8 @@ class Observations:
     total: Array | None
     spending: Array | None
     weights: Array | None
+    #: How a CSV upload was read (None for JSON).
+    dialect: Dialect | None = None
 
 
 def bind(loc: Locator, kind: str) -> None:
@@ -154,10 +160,14 @@ def _csv_kind(columns: dict[str, int]) -> tuple[list[str], str]:
     return keys, kinds[0]
 
 
-def from_csv(text: str, loc: Locator, *, max_rows: int) -> Observations:
+def from_csv(text: str, loc: Locator, *, max_rows: int,
+             declared: DeclaredDialect | None = None) -> Observations:
     """Long form (:data:`CSV_DESCRIPTION`); items in the order the first observation lists
-    them, observations in order of first appearance."""
-    header, numbers = record_numbers(text)
+    them, observations in order of first appearance. The dialect is as declared, or detected
+    (:mod:`dualcost.api.inputs.csv`)."""
+    declared = (declared or DeclaredDialect()).checked()
+    text = text.lstrip("\ufeff")
+    header = _header_names(text, declared)
     where = CsvRows(columns={h: j + 1 for j, h in enumerate(header)}, default_record=1,
                     whole_column=True)
     loc.csv = where
@@ -165,18 +175,26 @@ def from_csv(text: str, loc: Locator, *, max_rows: int) -> Observations:
     kind = {"share": "shares", "expenditure": "expenditures", "quantity": "quantities"}[column]
     bind(loc, kind)
     numeric = ["price", column] + (["total_expenditure"] if column == "share" else [])
-    rows = read_table(text, required=keys + ["item"] + numeric, numeric=numeric,
-                      optional_numeric=["weight"], max_rows=max_rows)
-    if not rows:
+    table = read_table(text, required=keys + ["item"] + numeric, numeric=numeric,
+                       optional_numeric=["weight"], max_rows=max_rows, declared=declared)
+    if not len(table):
         raise RequestProblem.at("#row=2", "the CSV has a header but no rows")
-    table = _CsvTable(keys, column, where)
-    for k, row in enumerate(rows):
-        table.add(row, numbers[k])
-        if len(table.errors) >= 20:
+    csv_table = _CsvTable(keys, column, where)
+    for record, row in zip(table.records, table.rows(), strict=True):
+        csv_table.add(row, record)
+        if len(csv_table.errors) >= 20:
             break
-    if table.errors:
-        raise RequestProblem(table.errors)
-    return table.observations(loc)
+    if csv_table.errors:
+        raise RequestProblem(csv_table.errors)
+    return replace(csv_table.observations(loc), dialect=table.dialect)
+
+
+def _header_names(text: str, declared: DeclaredDialect) -> list[str]:
+    """The header's column names, read in the declared or detected separator."""
+    first = text.split("\n", 1)[0]
+    separator, _ = separator_of(first, declared)
+    cells = next(records_of(io.StringIO(text), SEPARATORS[separator]), [])
+    return [h.strip() for h in cells]
 
 
 class _CsvTable:

@@ -18,7 +18,7 @@ import numpy as np
 from numpy.typing import NDArray
 
 from ..problems import FieldError, RequestProblem
-from .csv import read_table, record_numbers
+from .csv import DeclaredDialect, Dialect, Table, read_table
 from .items import ItemAxis
 from .locator import CsvRows, Locator
 
@@ -45,6 +45,8 @@ class PanelArrays:
     prices: Array
     quantities: Array | None
     expenditures: Array | None
+    #: How a CSV upload was read (None for JSON).
+    dialect: Dialect | None = None
 
 
 def _check_limits(n_periods: int, n_items: int, limits: Limits, loc: Locator) -> None:
@@ -114,65 +116,81 @@ def panel_from_json(periods: Sequence[Any], items: Sequence[Any], rows: dict[str
     return PanelArrays(labels, axis, prices, mats["quantities"], mats["expenditures"])
 
 
-def panel_from_csv(text: str, limits: Limits, loc: Locator) -> PanelArrays:
-    """Long form: one record per period and item; records grouped by period, in time order."""
-    rows = read_table(text, required=CSV_COLUMNS, numeric=("price",),
-                      optional_numeric=("quantity", "expenditure"), max_rows=limits.cells)
-    header, numbers = record_numbers(text)
-    where = CsvRows(columns={h: j + 1 for j, h in enumerate(header)})
+def panel_from_csv(text: str, limits: Limits, loc: Locator,
+                   declared: DeclaredDialect | None = None) -> PanelArrays:
+    """Long form: one record per period and item; records grouped by period, in time order.
+    The dialect is as declared, or detected (:mod:`dualcost.api.inputs.csv`)."""
+    table = read_table(text, required=CSV_COLUMNS, numeric=("price",),
+                       optional_numeric=("quantity", "expenditure"), max_rows=limits.cells,
+                       declared=declared)
+    where = CsvRows(columns={h: j + 1 for j, h in enumerate(table.header)})
     loc.csv = where
-    if not rows:
+    if not len(table):
         raise RequestProblem([FieldError("#row=2", "the CSV has a header but no rows")])
-    period_pos, item_pos, labels, cells = _read_records(rows, numbers, where)
-    periods, ids = list(period_pos), list(item_pos)
+    periods, ids, labels, t_at, i_at = _read_records(table, where)
     loc.items = ids
     _check_limits(len(periods), len(ids), limits, loc)
-    axis = ItemAxis(ids, [labels[i] for i in ids])
+    axis = ItemAxis(ids, labels)
     shape = (len(periods), len(ids))
     prices = np.full(shape, np.nan)
-    quantities = np.full(shape, np.nan) if "quantity" in where.columns else None
-    expenditures = np.full(shape, np.nan) if "expenditure" in where.columns else None
-    for t, i, p, q, e in cells:
-        prices[t, i] = p
-        if quantities is not None and q is not None:
-            quantities[t, i] = q
-        if expenditures is not None and e is not None:
-            expenditures[t, i] = e
-    return PanelArrays(periods, axis, prices, quantities, expenditures)
+    prices[t_at, i_at] = table.columns["price"]
+    quantities = _optional(table, "quantity", shape, t_at, i_at)
+    expenditures = _optional(table, "expenditure", shape, t_at, i_at)
+    return PanelArrays(periods, axis, prices, quantities, expenditures, table.dialect)
 
 
-Cell = tuple[int, int, float, "float | None", "float | None"]
+def _optional(table: Table, column: str, shape: tuple[int, int], t_at: NDArray[np.intp],
+              i_at: NDArray[np.intp]) -> Array | None:
+    """An optional numeric column as a matrix, NaN where not given (an empty cell too)."""
+    if column not in table.columns:
+        return None
+    out = np.full(shape, np.nan)
+    out[t_at, i_at] = np.array(table.columns[column], dtype=np.float64)  # None -> NaN
+    return out
 
 
-def _read_records(rows: list[dict[str, Any]], numbers: list[int], where: CsvRows
-                  ) -> tuple[dict[str, int], dict[str, int], dict[str, str | None], list[Cell]]:
-    """Periods and items in order of appearance, each cell's place, and the cells."""
-    period_pos: dict[str, int] = {}
-    item_pos: dict[str, int] = {}
-    labels: dict[str, str | None] = {}
-    cells: list[Cell] = []
-    current: str | None = None
-    for k, row in enumerate(rows):
-        record = numbers[k]
-        period, item = row["period"], row["item"]
-        if period != current:
-            if period in period_pos:
-                raise RequestProblem([FieldError(
-                    f"#cell={record},{where.columns['period']}", f"period {period!r} appears "
-                    f"again after period {current!r} began: rows must be grouped by period, in "
-                    "time order")])
-            period_pos[period] = len(period_pos)
-            where.first[period_pos[period]] = record
-            current = period
-        if item not in item_pos:
-            item_pos[item] = len(item_pos)
-            where.item_first[item_pos[item]] = record
-            labels[item] = row.get("label") or None
-        t, i = period_pos[period], item_pos[item]
-        if (t, i) in where.cells:
-            raise RequestProblem([FieldError(f"#row={record}", f"period {period!r} and item "
-                                             f"{item!r} were already given in row "
-                                             f"{where.cells[(t, i)]}")])
-        where.cells[(t, i)] = record
-        cells.append((t, i, row["price"], row.get("quantity"), row.get("expenditure")))
-    return period_pos, item_pos, labels, cells
+def _read_records(table: Table, where: CsvRows
+                  ) -> tuple[list[str], list[str], list[str | None], NDArray[np.intp],
+                             NDArray[np.intp]]:
+    """Periods and items in order of appearance, their labels, and each record's period and
+    item positions; ``where`` learns each cell's record. Column by column: the records'
+    positions are looked up in one pass each, and the rules (periods grouped, no cell twice)
+    are checked on the arrays."""
+    period_column, item_column = table.columns["period"], table.columns["item"]
+    records = np.asarray(table.records, dtype=np.intp)
+    period_pos = {p: t for t, p in enumerate(dict.fromkeys(period_column))}
+    item_pos = {i: k for k, i in enumerate(dict.fromkeys(item_column))}
+    t_at = np.fromiter(map(period_pos.__getitem__, period_column), dtype=np.intp,
+                       count=len(records))
+    i_at = np.fromiter(map(item_pos.__getitem__, item_column), dtype=np.intp, count=len(records))
+    back = np.flatnonzero(np.diff(t_at) < 0)
+    if back.size:  # a period that appears again after a later one began
+        k = int(back[0]) + 1
+        earlier = int(np.flatnonzero(t_at[:k] == t_at[k])[-1])
+        raise RequestProblem([FieldError(
+            f"#cell={records[k]},{where.columns['period']}", f"period {period_column[k]!r} "
+            f"appears again after period {period_column[earlier + 1]!r} began: rows must be "
+            "grouped by period, in time order")])
+    n_items = len(item_pos)
+    flat = t_at * n_items + i_at
+    order = np.argsort(flat, kind="stable")
+    twice = np.flatnonzero(flat[order][1:] == flat[order][:-1])
+    if twice.size:  # the same period and item again: name the earliest repeat in the file
+        second = order[twice + 1]
+        j = int(np.argmin(second))
+        k, first = int(second[j]), int(order[twice[j]])
+        raise RequestProblem([FieldError(f"#row={records[k]}", f"period {period_column[k]!r} and "
+                                         f"item {item_column[k]!r} were already given in row "
+                                         f"{records[first]}")])
+    _, first_of_period = np.unique(t_at, return_index=True)
+    _, first_of_item = np.unique(i_at, return_index=True)
+    where.first.update(enumerate(records[first_of_period].tolist()))
+    where.item_first.update(enumerate(records[first_of_item].tolist()))
+    cell_records = np.zeros((len(period_pos), n_items), dtype=np.intp)
+    cell_records[t_at, i_at] = records
+    where.cell_records = cell_records
+    label_column = table.columns.get("label")
+    labels: list[str | None] = (
+        [None] * n_items if label_column is None else
+        [label_column[k] or None for k in first_of_item.tolist()])
+    return list(period_pos), list(item_pos), labels, t_at, i_at

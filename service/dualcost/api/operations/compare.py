@@ -48,6 +48,7 @@ PLACES: dict[str, Place] = {
     "lloyd_moulton_sigma": Place("/lloyd_moulton_sigma", "lloyd_moulton_sigma"),
     "formulas": Place("/formulas", "formulas", "list"),
     "normalise_shares": Place("/normalise_shares", "normalise_shares"),
+    "share_unit": Place("/share_unit", "share_unit"),
     "family": Place("/model/family", "family"),
     "model": Place("/model", "family"),
     # The parameters the spreadsheet forms carry as query parameters of their own.
@@ -78,7 +79,7 @@ def run(request: ComparisonRequest, settings: Settings, loc: Locator | None = No
     arguments = _base(request, axis, loc)
     parameters = core_parameters(request.model, axis, loc, max_tree_depth=settings.max_tree_depth,
                                  deadline_seconds=settings.compute_deadline_seconds)
-    arguments |= current_arguments(request, axis, loc)
+    arguments |= current_arguments(request, axis, loc, request.share_unit)
     with computing("compare", settings), loc.translating():
         result, model = compare_budgets(request.model.family, parameters, **arguments)
     return Outcome(result, model, axis)
@@ -95,6 +96,7 @@ def _base(request: ComparisonRequest, axis: ItemAxis, loc: Locator) -> dict[str,
     else:  # the core derives the quantities from the shares
         loc.add("q0", PLACES["w0"])
         out["base_shares"] = axis.vector(loc, "w0", b.shares)  # type: ignore[arg-type]
+        out["share_unit"] = request.share_unit
         loc.given("q0", b.shares)
     return out
 
@@ -114,8 +116,10 @@ class ComparedPeriod(Protocol):
     formulas: list[str] | None
 
 
-def current_arguments(request: ComparedPeriod, axis: ItemAxis, loc: Locator) -> dict[str, Any]:
-    """The current period's vectors and the options, under the core's argument names."""
+def current_arguments(request: ComparedPeriod, axis: ItemAxis, loc: Locator,
+                      share_unit: str = "fraction") -> dict[str, Any]:
+    """The current period's vectors and the options, under the core's argument names;
+    ``share_unit`` is the unit of the weight-reference shares."""
     c = request.current
     if c.expenditure is None:  # a current income the core derives is about the current period
         loc.add("m1", replace(loc.places["m1"], json=loc.places["p1"].json.rsplit("/", 1)[0]))
@@ -136,6 +140,8 @@ def current_arguments(request: ComparedPeriod, axis: ItemAxis, loc: Locator) -> 
     if wr is not None:
         out["weight_reference"] = {_WEIGHTS[name]: axis.vector(loc, name, value)
                                    for name, value in given.items() if value is not None}
+        if given.get("wb") is not None:
+            out["weight_reference"]["share_unit"] = share_unit
     return out
 
 

@@ -22,6 +22,7 @@ from ...config import Settings
 from ...core.estimation import FitResult, Panel, fit
 from ...core.estimation.estimator import ParameterEstimate
 from ...core.preferences.nested_ces import ItemIdTree
+from ..inputs.csv import dialect_notices
 from ..inputs.items import ItemAxis
 from ..inputs.locator import Form, Locator, Place
 from ..inputs.observations import Observations
@@ -40,6 +41,7 @@ PLACES: dict[str, Place] = {
     "confidence_level": Place("/confidence_level", "confidence_level"),
     "max_iterations": Place("/max_iterations", "max_iterations"),
     "normalise_shares": Place("/normalise_shares", "normalise_shares"),
+    "share_unit": Place("/share_unit", "share_unit"),
     "residuals": Place("/residuals", "residuals"),
     "point_expenditure": Place("/elasticities_at/expenditure", "elasticities_at"),
     "point_prices": Place("/elasticities_at/prices", "elasticities_at", "items"),
@@ -59,6 +61,7 @@ class Options:
     normalise_shares: bool
     residuals: bool
     point: tuple[np.ndarray, float] | None = None
+    share_unit: str = "fraction"
 
 
 @dataclass(frozen=True)
@@ -78,7 +81,7 @@ def options_of(request: FitRequest, axis: ItemAxis, loc: Locator) -> Options:
         point = (axis.vector(loc, "point_prices", request.elasticities_at.prices),
                  request.elasticities_at.expenditure)
     return Options(request.confidence_level, request.max_iterations, request.normalise_shares,
-                   request.residuals, point)
+                   request.residuals, point, request.share_unit)
 
 
 def run(data: Observations, spec: FitModelIn, options: Options, settings: Settings,
@@ -96,7 +99,7 @@ def run(data: Observations, spec: FitModelIn, options: Options, settings: Settin
     with computing(operation, settings), loc.translating():
         if data.shares is not None and data.total is not None:
             panel = Panel.checked(data.prices, data.shares, data.total, data.weights,
-                                  normalise=options.normalise_shares)
+                                  normalise=options.normalise_shares, unit=options.share_unit)
         else:
             assert data.spending is not None
             panel = Panel.from_spending(data.prices, data.spending, data.weights)
@@ -164,7 +167,8 @@ def document(outcome: Outcome) -> dict[str, Any]:
                    "imposed": t.imposed} for t in r.tests],
         "elasticities": _elasticities(outcome),
         "regularity": _regularity(r, labels),
-        "notices": [{"code": n.code, "message": n.message} for n in r.notices],
+        "notices": dialect_notices(outcome.data.dialect)
+        + [{"code": n.code, "message": n.message} for n in r.notices],
         "caution": CAUTION,
     }
 

@@ -59,7 +59,8 @@ def run(request: FitAndCompareRequest, settings: Settings) -> Outcome:
     for parameter in FAMILIES[fitted.result.family].parameter_specs:
         loc.add(parameter.name, _MODEL)
     part = request.comparison
-    arguments = _base(part, fitted, floc, loc) | compare.current_arguments(part, data.axis, loc)
+    arguments = _base(part, fitted, floc, loc, request.share_unit) | compare.current_arguments(
+        part, data.axis, loc, request.share_unit)
     try:
         with computing("fitAndCompare", settings), loc.translating():
             point, model = compare_budgets(fitted.result.family, fitted.result.spec, **arguments)
@@ -72,8 +73,8 @@ def run(request: FitAndCompareRequest, settings: Settings) -> Outcome:
     return Outcome(fitted, comparison, intervals)
 
 
-def _base(part: FitComparisonIn, fitted: fits.Outcome, floc: Locator, loc: Locator
-          ) -> dict[str, Any]:
+def _base(part: FitComparisonIn, fitted: fits.Outcome, floc: Locator, loc: Locator,
+          share_unit: str = "fraction") -> dict[str, Any]:
     """The base budget; without a bundle, the fitted model's demand at the base prices and
     expenditure (so that calibrating the family keeps the fitted parameters)."""
     axis = fitted.data.axis
@@ -86,6 +87,7 @@ def _base(part: FitComparisonIn, fitted: fits.Outcome, floc: Locator, loc: Locat
     if b.shares is not None:
         loc.add("q0", PLACES["w0"])
         out["base_shares"] = axis.vector(loc, "w0", b.shares)
+        out["share_unit"] = share_unit
         loc.given("q0", b.shares)
         return out
     p0 = out["base_prices"]

@@ -47,6 +47,7 @@ PLACES: dict[str, Place] = {
     "quantiles": Place("/quantiles", shape="list"),
     "households": Place("/households"),
     "engine": Place("/engine"),
+    "share_unit": Place("/share_unit"),
 } | ROW_PLACES
 DEFINITIONS = (
     "Per household and period: each formula index and the Konüs index as ratios (1 = no "

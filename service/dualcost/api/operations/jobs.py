@@ -22,7 +22,6 @@ with Retry-After.
 from __future__ import annotations
 
 import codecs
-import csv
 import hashlib
 import io
 import tempfile
@@ -31,6 +30,7 @@ import uuid
 from collections import OrderedDict
 from collections.abc import Generator, Iterator
 from contextlib import contextmanager
+from dataclasses import replace
 from datetime import datetime, timezone
 from typing import Any
 
@@ -38,7 +38,13 @@ from fastapi import Request
 
 from ...config import Settings
 from ...core.households import Accumulator, HouseholdJob
-from ..inputs.csv import check_media_type
+from ..inputs.csv import (
+    DeclaredDialect,
+    check_media_type,
+    dialect_notices,
+    stream_dialect,
+    stream_header,
+)
 from ..inputs.households import CsvLayout, csv_chunks, csv_layout, job_of, labels_of
 from ..inputs.items import ItemAxis
 from ..inputs.locator import Locator
@@ -122,6 +128,7 @@ class JobState:
             self.rows_read = 0
             self.rows_total = None
             self.engine = None
+            self.layout = None
             self.acc = Accumulator(self.job)
             self.provenance = of_job(self.spec, None)
 
@@ -162,11 +169,17 @@ class JobState:
                 "summary": self.summary,
                 "unused_columns": [] if self.layout is None else self.layout.unused,
                 "error": self.error,
-                "notices": households.notices_json(acc.notices() if done else self.job.notices),
+                "notices": self.input_notices() + households.notices_json(
+                    acc.notices() if done else self.job.notices),
                 "links": {"self": f"/v1/household-jobs/{self.id}",
                           "households": f"/v1/household-jobs/{self.id}/households"},
                 "caution": CAUTION,
             }, self.provenance
+
+
+    def input_notices(self) -> list[dict[str, str]]:
+        """What was done in reading the upload (its dialect, when detected)."""
+        return dialect_notices(None if self.layout is None else self.layout.dialect)
 
 
 class JobStore:
@@ -294,18 +307,19 @@ async def spool(request: Request) -> tuple[Any, int, str]:
 
 
 def open_upload(state: JobState, file: Any, lines: int, settings: Settings,
-                households_sha256: str) -> tuple[io.TextIOWrapper, Iterator[list[str]], str | None]:
+                households_sha256: str, declared: DeclaredDialect | None = None
+                ) -> tuple[io.TextIOWrapper, Iterator[list[str]], str | None]:
     """The upload's text, its record reader (past the header) and the scheduler's address;
-    a header without an item's column is refused at once. From here on the job's provenance
-    is of its body and these households together."""
+    a header without an item's column is refused at once, and so is a dialect that cannot be
+    told from the header and the first records (see inputs/csv.py). From here on the job's
+    provenance is of its body and these households together."""
     text = io.TextIOWrapper(file, encoding="utf-8-sig", newline="")
-    reader = csv.reader(text)
-    try:
-        header = next(reader)
-    except StopIteration:
-        raise RequestProblem.at("#row=1", "the CSV is empty: it needs a header row") from None
-    state.layout = csv_layout(header, state.axis, state.locator,
-                              needs_income=state.job.needs_income)
+    declared = declared or DeclaredDialect()
+    header, records, separator, reason = stream_header(iter(text), declared)
+    layout = csv_layout(header, state.axis, state.locator, needs_income=state.job.needs_income)
+    dialect, reader = stream_dialect(records, separator, reason, declared,
+                                     layout.numeric_columns)
+    state.layout = replace(layout, dialect=dialect)
     state.rows_total = max(0, lines - 1)
     address = households.scheduler_for(state.spec.engine, state.rows_total, settings,
                                        state.locator)

@@ -10,7 +10,7 @@ one row per period.
 from __future__ import annotations
 
 from collections.abc import Mapping, Sequence
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 from typing import Any
 
 import numpy as np
@@ -18,6 +18,7 @@ import numpy as np
 from ...config import Settings
 from ...core.preferences import BaseBudget, Preferences
 from ...core.series import MODEL_RULE, IndexSeries, LabelledSeries, describe_treatment, series_by_label
+from ..inputs.csv import Dialect, dialect_notices
 from ..inputs.items import ItemAxis
 from ..inputs.locator import Form, Locator, Place
 from ..inputs.model import calibrated
@@ -57,6 +58,7 @@ PLACES: dict[str, Place] = {
     "span_end": Place("/span/end", "span_end"),
     "loop": Place("/loop", "loop", "list"),
     "model": Place("/model", "model", json_text=True),
+    "share_unit": Place("/share_unit", "share_unit"),
 }
 
 ANNUAL_DEFINITION = (
@@ -82,6 +84,8 @@ class Outcome:
     axis: ItemAxis
     model: Preferences | None
     frequency: str | None
+    #: How a CSV upload was read (None for JSON).
+    dialect: Dialect | None = None
 
 
 def locator(form: Form = "json") -> Locator:
@@ -98,7 +102,7 @@ def run(options: SeriesOptions, panel: PanelArrays, settings: Settings, loc: Loc
     arguments = core_arguments(options, panel, settings, loc)
     with computing(operation, settings), loc.translating():
         labelled = series_by_label(**arguments)
-    return _outcome(labelled, panel.axis)
+    return replace(_outcome(labelled, panel.axis), dialect=panel.dialect)
 
 
 def core_arguments(options: SeriesOptions, panel: PanelArrays, settings: Settings,
@@ -151,8 +155,11 @@ def _weights(options: SeriesOptions, axis: ItemAxis, loc: Locator) -> dict[str, 
         return None
     given = {"prices": ("pb", wr.prices), "quantities": ("qb", wr.quantities),
              "shares": ("wb", wr.shares)}
-    return {key: axis.vector(loc, name, value) for key, (name, value) in given.items()
-            if value is not None}
+    out: dict[str, Any] = {key: axis.vector(loc, name, value)
+                           for key, (name, value) in given.items() if value is not None}
+    if wr.shares is not None:
+        out["share_unit"] = options.share_unit
+    return out
 
 
 # -- the answer -------------------------------------------------------------------------------
@@ -194,7 +201,8 @@ def document(outcome: Outcome) -> dict[str, Any]:
             "detail": describe_treatment(e, labels, r.base)} for e in r.item_treatment],
         "weights": _weights_out(r, labels, outcome.axis.ids),
         "lloyd_moulton_sigma": r.lloyd_moulton_sigma, "new_goods_sigma": r.new_goods_sigma,
-        "notices": notices_json(r.notices, outcome.axis.ids, outcome.axis.labels),
+        "notices": dialect_notices(outcome.dialect)
+        + notices_json(r.notices, outcome.axis.ids, outcome.axis.labels),
         "scale": {"levels": f"index levels on the reference period = {r.reference_value:g}",
                   "links": "period-to-period links as ratios (1 = no change)",
                   "bias_points": "index points on reference 100, whatever reference_value is",

@@ -41,8 +41,11 @@ def comparison_body(params: Mapping[str, Any]) -> dict[str, Any]:
                    ("expenditure_elasticities", "elasticities"))
     body: dict[str, Any] = {"items": names(params["items"], decimal), "base": base,
                             "current": current, "model": model}
-    if params["normalise_shares"]:  # given only when asked: the body a caller would write
+    # Options given only when they differ from their defaults: the body a caller would write.
+    if params["normalise_shares"]:
         body["normalise_shares"] = True
+    if params["share_unit"] != "fraction":
+        body["share_unit"] = params["share_unit"]
     if params.get("formulas"):
         body["formulas"] = names(params["formulas"], decimal)
     return body | given(("reference_income", "reference_income"))

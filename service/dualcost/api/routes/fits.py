@@ -10,7 +10,7 @@ from fastapi.responses import Response
 
 from ..deps import settings_of
 from ..inputs import observations
-from ..inputs.csv import CSV_REQUEST_BODY, csv_body
+from ..inputs.csv import CSV_REQUEST_BODY, DecimalParam, DeclaredDialect, SeparatorParam, csv_body
 from ..operations import fits, fitted
 from ..provenance import Provenance, UploadSha256, of_body, of_upload, query_of
 from ..render import (
@@ -23,6 +23,7 @@ from ..render import (
     negotiate,
 )
 from ..routing import JsonRoute
+from ..schemas.common import SHARE_UNIT_TEXT, ShareUnit
 from ..schemas.estimation import FitAndCompareRequest, FitAndCompareResponse, FitRequest, FitResponse
 
 router = APIRouter(route_class=JsonRoute, prefix="/v1", tags=["estimation"])
@@ -62,9 +63,11 @@ Slutsky matrix that is not negative semidefinite. `model` in the answer is the f
 
 def _answer(outcome: fits.Outcome, fmt: str, provenance: Provenance, place: str) -> Response:
     if fmt == "csv":
+        dialect = outcome.data.dialect
         return csv_response(fits.PARAMETER_COLUMNS, fits.parameter_rows(outcome),
                             provenance=provenance, trailer=place == "trailer",
-                            filename="fit-parameters.csv")
+                            filename="fit-parameters.csv",
+                            headers=None if dialect is None else dialect.headers())
     return json_response(fits.document(outcome), provenance=provenance)
 
 
@@ -99,8 +102,12 @@ def fit_model_csv(
     tree: Annotated[str | None, Query(description="nested_ces: the grouping as JSON.")] = None,
     confidence_level: Annotated[float, Query(gt=0.0, lt=1.0)] = 0.95,
     normalise_shares: Annotated[bool, Query()] = False,
+    share_unit: Annotated[ShareUnit, Query(description=SHARE_UNIT_TEXT + " It applies to the "
+                                           "share column.")] = "fraction",
     max_iterations: Annotated[int, Query(ge=1, le=1000)] = 200,
     residuals: Annotated[bool, Query()] = True,
+    separator: SeparatorParam = None,
+    decimal: DecimalParam = None,
     format: FormatParam = None,
     provenance: ProvenanceQuery = "headers",
 ) -> Response:
@@ -111,8 +118,10 @@ def fit_model_csv(
     spec = fits.model_from_query(dict(family=family, estimator=estimator,
                                       restrictions=restrictions, quadratic=quadratic,
                                       price_terms=price_terms, alpha0=alpha0, tree=tree), loc)
-    data = observations.from_csv(text, loc, max_rows=settings.max_fit_cells)
-    options = fits.Options(confidence_level, max_iterations, normalise_shares, residuals)
+    data = observations.from_csv(text, loc, max_rows=settings.max_fit_cells,
+                                 declared=DeclaredDialect(separator, decimal))
+    options = fits.Options(confidence_level, max_iterations, normalise_shares, residuals,
+                           share_unit=share_unit)
     outcome = fits.run(data, spec, options, settings, loc, "fitModelCsv")
     origin = of_upload(csv_sha256, query_of(request.query_params.multi_items(), names))
     return _answer(outcome, fmt, origin, provenance)

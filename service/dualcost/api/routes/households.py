@@ -23,7 +23,7 @@ from starlette.concurrency import run_in_threadpool
 from starlette.types import Receive, Scope, Send
 
 from ..deps import settings_of
-from ..inputs.csv import CSV_REQUEST_BODY
+from ..inputs.csv import CSV_REQUEST_BODY, DecimalParam, DeclaredDialect, SeparatorParam
 from ..operations import households, jobs
 from ..problems import PROBLEM_MEDIA_TYPE
 from ..provenance import Provenance, of_body
@@ -147,15 +147,21 @@ def create_household_job(body: HouseholdJobSpec, request: Request) -> Response:
                         409: {"description": "The job already has its households."}},
              openapi_extra=CSV_REQUEST_BODY)
 async def household_indices_from_csv(job_id: str, request: Request,
-                                     provenance: ProvenanceQuery = "headers") -> Response:
+                                     provenance: ProvenanceQuery = "headers",
+                                     separator: SeparatorParam = None,
+                                     decimal: DecimalParam = None) -> Response:
     """One CSV record per household: a column per item id holding the base share, and the
     optional columns household (an id), expenditure (income; required for non-homothetic
     families) and weight. The answer streams one CSV row per household and period as
     chunks are done; GET the job meanwhile for progress, and at the end for the
     distribution summaries and the rows skipped and why. A missing item column is refused
     at once (422, #row=1). With bad_rows reject, the answer comes only when every row has
-    passed, else a 422 naming each bad row by RFC 7111 fragment (#cell=row,column). The
-    answer's Dualcost-Input-Digest is the job's: of its body and these households together."""
+    passed, else a 422 naming each bad row by RFC 7111 fragment (#cell=row,column).
+    Fields may be quoted (RFC 4180); the separator (comma, semicolon or tab) and the decimal
+    mark are declared with separator and decimal, or detected from the header and the first
+    1000 rows: the answer's Dualcost-Input-Separator and Dualcost-Input-Decimal headers, and
+    the job's notices, say which. The answer's Dualcost-Input-Digest is the job's: of its body
+    and these households together."""
     negotiate(request, ("csv",))
     settings = settings_of(request)
     store = _store(request)
@@ -172,7 +178,10 @@ async def household_indices_from_csv(job_id: str, request: Request,
         raise
     text = None
     try:
-        text, reader, address = jobs.open_upload(state, file, lines, settings, households_sha256)
+        # The header and, for a dialect to detect, the first records: off the event loop.
+        text, reader, address = await run_in_threadpool(
+            jobs.open_upload, state, file, lines, settings, households_sha256,
+            DeclaredDialect(separator, decimal))
         # Connect before answering, so that an unreachable cluster is a 503, not a cut stream.
         scheduler = None if address is None else await run_in_threadpool(households.connect,
                                                                           address)
@@ -186,6 +195,8 @@ async def household_indices_from_csv(job_id: str, request: Request,
     headers = {"Link": f'</v1/household-jobs/{state.id}>; rel="monitor"',
                "Content-Location": f"/v1/household-jobs/{state.id}"}
     trailer = provenance == "trailer"
+    if state.layout is not None:
+        headers |= state.layout.dialect.headers()
     if state.bad_rows == "skip":
         return _JobAnswer(state, jobs.stream(state, reader, text, scheduler, settings), headers,
                           state.provenance, trailer)

@@ -9,7 +9,7 @@ from fastapi import APIRouter, Depends, Query, Request
 from fastapi.responses import Response
 
 from ..deps import settings_of
-from ..inputs.csv import CSV_REQUEST_BODY, csv_body
+from ..inputs.csv import CSV_REQUEST_BODY, DecimalParam, DeclaredDialect, SeparatorParam, csv_body
 from ..inputs.panels import panel_from_csv, panel_from_json
 from ..inputs.query import validated
 from ..operations import series
@@ -66,14 +66,19 @@ CSV_DESCRIPTION = (
     "and item, rows grouped by period in time order; an item not priced in a period has "
     "no row. Options are query parameters; `model` is a JSON object "
     '(`{"family": "ces", "sigma": 0.7}`), `formulas` and `loop` are comma-separated. '
+    "Fields may be quoted (RFC 4180); fields separated by `,`, `;` or a tab and numbers with "
+    "`.` or `,` as decimal mark, declared by `separator` and `decimal` or detected (stated in "
+    "`notices`, code `csv_dialect_detected`); no grouping of thousands. "
     "Errors name the row and column (`#cell=row,column`, RFC 7111).\n\n")
 
 
 def _answer(outcome: series.Outcome, fmt: str, provenance: Provenance, place: str) -> Response:
     if fmt == "csv":
         header, rows = series.table(outcome)
+        dialect = outcome.dialect
         return csv_response(header, rows, provenance=provenance, trailer=place == "trailer",
-                            filename="index-series.csv")
+                            filename="index-series.csv",
+                            headers=None if dialect is None else dialect.headers())
     return json_response(series.document(outcome), provenance=provenance)
 
 
@@ -115,6 +120,8 @@ def index_series_from_csv(
     span_start: Annotated[str | None, Query()] = None,
     span_end: Annotated[str | None, Query()] = None,
     loop: Annotated[str | None, Query(description="Comma-separated period labels.")] = None,
+    separator: SeparatorParam = None,
+    decimal: DecimalParam = None,
     format: FormatParam = None,
     provenance: ProvenanceQuery = "headers",
 ) -> Response:
@@ -123,7 +130,7 @@ def index_series_from_csv(
     settings = settings_of(request)
     loc = series.locator("csv")
     options = validated(SeriesOptions, series.options_body(query), loc)
-    panel = panel_from_csv(text, series.limits(settings), loc)
+    panel = panel_from_csv(text, series.limits(settings), loc, DeclaredDialect(separator, decimal))
     origin = of_upload(csv_sha256, query_of(request.query_params.multi_items(), query))
     return _answer(series.run(options, panel, settings, loc, "indexSeriesFromCsv"), fmt, origin,
                    provenance)

@@ -38,7 +38,7 @@ from ..render import (
     negotiate,
 )
 from ..routing import JsonRoute, inline_when_small
-from ..schemas.common import DecimalMark
+from ..schemas.common import SHARE_UNIT_TEXT, DecimalMark, ShareUnit
 from ..schemas.comparison import ComparisonRequest
 from ..schemas.series import SeriesRequest
 
@@ -80,6 +80,8 @@ def comparison_query(
     reference_income: Annotated[str | None, _number("Income of the reference living "
                                                     "standard.")] = None,
     normalise_shares: bool = False,
+    share_unit: Annotated[ShareUnit, Query(description=SHARE_UNIT_TEXT + " It applies to "
+                                           "w0.")] = "fraction",
     formulas: Annotated[str | None, Query(description="Formula names, comma-separated "
                                                       "(default: every formula the data "
                                                       "allow).")] = None,

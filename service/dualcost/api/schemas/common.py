@@ -10,6 +10,13 @@ from pydantic import BaseModel, ConfigDict, Field
 FiniteFloat = Annotated[float, Field(allow_inf_nan=False)]
 #: The decimal mark a spreadsheet form reads and writes numbers with (its ``decimal`` option).
 DecimalMark = Literal["point", "comma"]
+#: The unit expenditure shares are given in: fractions of 1, percent, per mille.
+ShareUnit = Literal["fraction", "percent", "per_mille"]
+SHARE_UNIT_TEXT = (
+    "The unit of the request's expenditure shares: fraction (a budget sums to 1, the default), "
+    "percent (100) or per_mille (1000). Shares in percent or per mille are divided by 100 or "
+    "1000 before every check, and the answer's notices say so (code shares_converted); "
+    "normalise_shares then applies to the converted shares.")
 
 #: A vector: either an object keyed by item id, or a list aligned with ``items``. The two
 #: forms cannot be confused, so the union is tried left to right: pydantic's default "smart"

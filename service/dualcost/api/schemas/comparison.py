@@ -9,11 +9,13 @@ from pydantic import Field, model_validator
 from ...core.indices import formulas_for
 from .common import (
     CAUTION,
+    SHARE_UNIT_TEXT,
     SIGN_CONVENTION,
     FiniteFloat,
     ItemIn,
     NoticeOut,
     ProvenanceOut,
+    ShareUnit,
     StrictModel,
     ValidityOut,
     VectorIn,
@@ -77,6 +79,9 @@ class ComparisonRequest(StrictModel):
         None, description="Formulas to compute (default: every formula that the data allow).")
     normalise_shares: bool = Field(
         False, description="Divide base shares by their sum when it is not 1; the answer says so.")
+    share_unit: ShareUnit = Field(
+        "fraction", description=SHARE_UNIT_TEXT + " It applies to base.shares and "
+        "weight_reference.shares.")
 
 
 # -- response ---------------------------------------------------------------------------------

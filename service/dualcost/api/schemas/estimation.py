@@ -14,7 +14,16 @@ from typing import Annotated, Any, Literal
 
 from pydantic import Field, model_validator
 
-from .common import FiniteFloat, ItemIn, NoticeOut, ProvenanceOut, StrictModel, VectorIn
+from .common import (
+    SHARE_UNIT_TEXT,
+    FiniteFloat,
+    ItemIn,
+    NoticeOut,
+    ProvenanceOut,
+    ShareUnit,
+    StrictModel,
+    VectorIn,
+)
 from .comparison import ComparisonOut, CurrentIn, FormulaName, WeightReferenceIn
 
 FittedFamily = Literal["ces", "nested_ces", "stone_geary", "aids", "quaids"]
@@ -76,6 +85,9 @@ class FitRequest(StrictModel):
         None, description="A survey weight per observation, above zero (default: all 1).")
     normalise_shares: bool = Field(
         False, description="Divide shares that do not sum to 1 by their sum; the answer says so.")
+    share_unit: ShareUnit = Field(
+        "fraction", description=SHARE_UNIT_TEXT + " It applies to shares (and, in a fitted "
+        "comparison, to comparison.base.shares and comparison.weight_reference.shares).")
     model: FitModelIn
     confidence_level: float = Field(0.95, gt=0.0, lt=1.0, description="Of every interval.")
     elasticities_at: PointIn | None = Field(

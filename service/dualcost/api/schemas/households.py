@@ -9,7 +9,16 @@ from pydantic import Field, model_validator
 
 from ...core.households import DEFAULT_QUANTILES
 from ...core.indices import formulas_for
-from .common import FiniteFloat, ItemIn, NoticeOut, ProvenanceOut, StrictModel, VectorIn
+from .common import (
+    SHARE_UNIT_TEXT,
+    FiniteFloat,
+    ItemIn,
+    NoticeOut,
+    ProvenanceOut,
+    ShareUnit,
+    StrictModel,
+    VectorIn,
+)
 from .model import ModelSpec
 
 HouseholdFormula = Literal[formulas_for("households")]  # type: ignore[valid-type]
@@ -56,6 +65,9 @@ class HouseholdJobSpec(StrictModel):
     normalise_shares: bool = Field(
         False, description="Divide shares that do not sum to 1 by their sum (counted in notices) "
                            "instead of refusing the row.")
+    share_unit: ShareUnit = Field(
+        "fraction", description=SHARE_UNIT_TEXT + " It applies to every household's shares, in "
+        "JSON and in a job's CSV upload.")
     bad_rows: Literal["reject", "skip"] | None = Field(
         None, description="reject: any bad household row fails the request, naming every row "
                           "(up to 20); skip: bad rows are left out, counted and listed with the "

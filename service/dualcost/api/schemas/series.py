@@ -8,7 +8,16 @@ from typing import Annotated, Any, Literal
 from pydantic import Field, model_validator
 
 from ...core.indices import formulas_for
-from .common import FiniteFloat, ItemIn, NoticeOut, ProvenanceOut, StrictModel, VectorIn
+from .common import (
+    SHARE_UNIT_TEXT,
+    FiniteFloat,
+    ItemIn,
+    NoticeOut,
+    ProvenanceOut,
+    ShareUnit,
+    StrictModel,
+    VectorIn,
+)
 from .model import ModelSpec
 
 SeriesFormula = Literal[formulas_for("series")]  # type: ignore[valid-type]
@@ -76,6 +85,8 @@ class SeriesOptions(StrictModel):
         None, description="Elasticity (> 1) for Feenstra's new-goods adjustment (default: the "
                           "model's own when above 1).")
     weight_reference: WeightReferenceIn | None = None
+    share_unit: ShareUnit = Field(
+        "fraction", description=SHARE_UNIT_TEXT + " It applies to weight_reference.shares.")
     geks: GeksIn = Field(default_factory=GeksIn)
     span: SpanIn | None = Field(None, description="Span of the average annual bias.")
     loop: list[PeriodLabel] | None = Field(

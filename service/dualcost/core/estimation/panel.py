@@ -19,9 +19,10 @@ import numpy as np
 import numpy.typing as npt
 from numpy.typing import NDArray
 
+from .. import _checks
 from .._checks import ADDING_UP_TOLERANCE
 from ..errors import InvalidInput
-from ..preferences.base import Notice
+from ..preferences.base import Notice, converted_notices
 
 Matrix = NDArray[np.float64]
 Vector = NDArray[np.float64]
@@ -107,8 +108,11 @@ class Panel:
         weights: npt.ArrayLike | None = None,
         *,
         normalise: bool = False,
+        unit: str = "fraction",
     ) -> Panel:
         """Check the data; with ``normalise`` shares not summing to one are divided by their sum.
+        Shares given in another ``unit`` (``percent``, ``per_mille``) are divided by 100 or 1000
+        first, with a notice.
 
         Raises :class:`InvalidInput` naming ``prices``, ``shares`` (index ``(t, i)``, or ``(t,)``
         for a row sum), ``expenditure`` or ``weights`` (index ``t``), or ``items`` (index ``i``).
@@ -123,18 +127,22 @@ class Panel:
         if bad.size:
             t, i = (int(v) for v in bad[0])
             raise InvalidInput("prices", f"must be greater than zero, got {p[t, i]!r}", (t, i))
-        w = _matrix("shares", shares, (t_obs, n))
+        scale = _checks.share_scale(unit)
+        given = _matrix("shares", shares, (t_obs, n))
+        w = given / scale if scale != 1.0 else given
         bad = np.argwhere((w < 0.0) | (w > 1.0))
         if bad.size:
             t, i = (int(v) for v in bad[0])
-            raise InvalidInput("shares", f"a budget share must lie in [0, 1], got {w[t, i]!r}",
-                               (t, i))
+            bound = "[0, 1]" if scale == 1.0 else f"[0, {scale:g}] (share_unit={unit})"
+            hint = _checks.unit_hint(float(given[t].sum()), unit)
+            raise InvalidInput("shares", f"a budget share must lie in {bound}, got "
+                               f"{float(given[t, i])!r}{hint}", (t, i))
         m = _per_observation("expenditure", expenditure, t_obs, "total expenditure")
         omega = (np.ones(t_obs) if weights is None
                  else _per_observation("weights", weights, t_obs, "a survey weight"))
         totals = w.sum(axis=1)
         gap = np.abs(totals - 1.0)
-        notices: tuple[Notice, ...] = ()
+        notices: tuple[Notice, ...] = converted_notices("The budget shares", unit)
         if normalise:
             bad_t = np.flatnonzero(totals <= 0.0)
             if bad_t.size:
@@ -144,7 +152,7 @@ class Panel:
             if changed:
                 w = w / totals[:, None]
                 worst = int(np.argmax(gap))
-                notices = (Notice(
+                notices += (Notice(
                     "shares_normalised",
                     f"The shares of {changed} of {t_obs} observations did not sum to 1 (largest "
                     f"gap {gap[worst]:.3g}, observation {worst}); as asked, each was divided by "
@@ -153,10 +161,11 @@ class Panel:
             bad_t = np.flatnonzero(gap > ADDING_UP_TOLERANCE)
             if bad_t.size:
                 t = int(bad_t[0])
+                total = float(totals[t] * scale)
                 raise InvalidInput(
-                    "shares", f"the budget shares of an observation must sum to 1 (within 1e-6); "
-                    f"they sum to {totals[t]:.10g} (set normalise_shares to divide them by their "
-                    "sum)", (t,))
+                    "shares", f"the budget shares of an observation: {_checks.sum_rule(unit)}; "
+                    f"they sum to {total:.10g}{_checks.unit_hint(total, unit)} (set "
+                    "normalise_shares to divide them by their sum)", (t,))
         empty = np.flatnonzero(np.all(w == 0.0, axis=0))
         if empty.size:
             raise InvalidInput("items", "this item has a zero share in every observation, so "

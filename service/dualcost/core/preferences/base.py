@@ -185,23 +185,27 @@ class BaseBudget:
         expenditure: float,
         *,
         normalise: bool = False,
+        unit: str = "fraction",
     ) -> BaseBudget:
         """Base prices, base expenditure shares and total expenditure.
 
-        Shares must sum to one within 1e-6. With ``normalise=True`` shares that do not are divided
-        by their sum instead, and the budget carries a notice saying so.
+        Shares must sum to one within 1e-6. Given in another ``unit`` (``percent``,
+        ``per_mille``: see :data:`dualcost.core._checks.SHARE_UNITS`) they are divided by 100 or
+        1000 first, and the budget carries a notice saying so. With ``normalise=True`` shares
+        that do not sum to one are divided by their sum instead, and the budget carries a notice
+        saying so.
         """
         p = _checks.positive("p0", prices)
         m = _checks.scalar("m0", expenditure, minimum=0.0)
-        notices: tuple[Notice, ...] = ()
+        notices: tuple[Notice, ...] = converted_notices("The base expenditure shares", unit)
         if normalise:
-            w = _checks.nonnegative("w0", shares, size=p.size)
+            w = _checks.nonnegative("w0", shares, size=p.size) / _checks.share_scale(unit)
             total = float(w.sum())
             if total <= 0.0:
                 raise InvalidInput("w0", "at least one base share must be greater than zero")
             if abs(total - 1.0) > 0.0:
                 w = w / total
-                notices = (
+                notices += (
                     Notice(
                         "shares_normalised",
                         f"The base expenditure shares summed to {total:.10g}; as asked, each was "
@@ -209,9 +213,20 @@ class BaseBudget:
                     ),
                 )
         else:
-            w = _checks.shares("w0", shares, size=p.size)
+            w = _checks.shares("w0", shares, size=p.size, unit=unit)
         return cls(prices=p, quantities=w * m / p, expenditure=m, notices=notices)
 
+
+
+def converted_notices(what: str, unit: str) -> tuple[Notice, ...]:
+    """The notice that shares given in ``unit`` were turned into fractions ("The base
+    expenditure shares were given in percent (share_unit=percent) and divided by 100."); none for
+    fractions."""
+    scale = _checks.share_scale(unit)
+    if scale == 1.0:
+        return ()
+    return (Notice("shares_converted", f"{what} were given in {_checks.unit_words(unit)} "
+                   f"(share_unit={unit}) and divided by {scale:g}."),)
 
 
 def _per_item(values: Any) -> Any:
