@@ -13,6 +13,7 @@ from .common import (
     FiniteFloat,
     ItemIn,
     NoticeOut,
+    ScaleOut,
     StrictModel,
     ValidityOut,
     VectorIn,
@@ -151,6 +152,7 @@ class DiagnosticsOut(StrictModel):
 class ComparisonResponse(StrictModel):
     family: str
     items: list[str]
+    scale: ScaleOut
     validity: ValidityOut
     konus: KonusOut
     living_standards: LivingStandardsOut
