@@ -10,7 +10,6 @@ from typing import Any
 from ...core.preferences import Notice
 from ...core.validity import MODEL_FIGURES, USABLE_FIGURES, Validity
 
-
 #: The scale of an answer whose indices are ratios (the comparison, the households): stated in
 #: each such answer as ``scale``, the same words everywhere.
 SCALE_RATIO: dict[str, str] = {

@@ -6,6 +6,11 @@ Jobs live in the memory of the process that created them (:class:`JobStore`, one
 several worker processes a client must reach the same process for all of a job's requests. The
 upload is spooled to a temporary file (in memory up to 8 MiB, then on disk) and read back chunk
 by chunk, so the households are never held twice.
+
+The CSV answer numbers households from 1 (``row``: the record after the header) and gives the
+line each household's record starts on (``record``); ``model_regular``, ``irregular_reasons``
+and ``irregular_items`` say where the model is outside its regular region (the model's figures
+are then empty cells).
 """
 
 from __future__ import annotations
@@ -25,6 +30,7 @@ from fastapi import Request
 
 from ...config import Settings
 from ...core.households import Accumulator, HouseholdJob
+from ...core.preferences import Notice
 from ..inputs.csv import check_media_type
 from ..inputs.households import CsvLayout, csv_chunks, csv_layout, job_of, labels_of
 from ..inputs.items import ItemAxis
@@ -34,6 +40,7 @@ from ..render import csv_line
 from ..schemas.common import CAUTION
 from ..schemas.households import HouseholdJobSpec
 from . import households
+from .answers import SCALE_RATIO, notices_json
 
 SPOOL_MEMORY_BYTES = 8 * 1024 * 1024
 
@@ -57,6 +64,8 @@ class JobState:
         self.locator = Locator(households.PLACES, "csv", items=axis.ids)
         self.summary: list[dict[str, Any]] | None = None
         self.error: str | None = None
+        #: What the web layer filled in for the upload (no weight column).
+        self.defaults: tuple[Notice, ...] = ()
         self.lock = threading.Lock()
 
     def claim(self) -> None:
@@ -73,6 +82,7 @@ class JobState:
             self.rows_read = 0
             self.rows_total = None
             self.engine = None
+            self.defaults = ()
             self.acc = Accumulator(self.job)
 
     def count(self, n: int) -> None:
@@ -97,6 +107,7 @@ class JobState:
         with self.lock:
             acc, total, done = self.acc, self.rows_total, self.status == "done"
             fraction = 1.0 if done else (min(1.0, self.rows_read / total) if total else None)
+            notices = (*(acc.notices() if done else self.job.notices), *self.defaults)
             return {
                 "id": self.id, "status": self.status, "created": self.created,
                 "family": self.job.family, "periods": self.labels, "engine": self.engine,
@@ -107,8 +118,8 @@ class JobState:
                 "skipped": households.skipped_json(acc.skipped, self.locator),
                 "summary": self.summary,
                 "unused_columns": [] if self.layout is None else self.layout.unused,
-                "error": self.error,
-                "notices": households.notices_json(acc.notices() if done else self.job.notices),
+                "error": self.error, "scale": SCALE_RATIO,
+                "notices": notices_json(notices, self.axis.ids, self.axis.labels),
                 "links": {"self": f"/v1/household-jobs/{self.id}",
                           "households": f"/v1/household-jobs/{self.id}/households"},
                 "caution": CAUTION,
@@ -208,6 +219,8 @@ def open_upload(state: JobState, file: Any, lines: int, settings: Settings
         raise RequestProblem.at("#row=1", "the CSV is empty: it needs a header row") from None
     state.layout = csv_layout(header, state.axis, state.locator,
                               needs_income=state.job.needs_income)
+    if state.layout.weight_column is None:
+        state.defaults = (households.weights_notice(None),)
     state.rows_total = max(0, lines - 1)
     address = households.scheduler_for(state.spec.engine, state.rows_total, settings,
                                        state.locator)
@@ -225,12 +238,13 @@ def stream(state: JobState, reader: Iterator[list[str]], text: io.TextIOWrapper 
     assert state.layout is not None
     with_income = state.layout.expenditure_column is not None
     try:
-        yield csv_line(households.csv_header(job, with_income))
+        yield csv_line(households.csv_header(job, with_income, records=True))
         chunks = csv_chunks(reader, state.layout, job.chunk_rows, state.count)
         for result in households.evaluate(job, chunks, scheduler, settings):
             state.acc.add(result)
             if result.size:
-                yield households.csv_rows(result, job, state.labels, with_income)
+                yield households.csv_rows(result, job, state.labels, with_income,
+                                          state.axis.ids, records=True)
         if reject and state.acc.skipped.count:
             state.fail("failed", f"{state.acc.skipped.count} row(s) break a rule and bad_rows "
                        "is reject: no result was given")
