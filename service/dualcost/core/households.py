@@ -533,7 +533,10 @@ def _count(counts: dict[str, tuple[int, Notice]], notice: Notice, n: int = 1) ->
 def _negative_rows(x: Matrix) -> tuple[NDArray[np.intp], NDArray[np.bool_]]:
     """The households (rows of ``x``, households by items) with a demand below zero beyond
     rounding (:data:`NEGATIVE_TOLERANCE`), and which of their items. One pass over ``x`` when no
-    demand is negative, the common case (and the only one for Cobb-Douglas and CES)."""
+    demand is negative, the common case (and the only one for Cobb-Douglas and CES): the
+    smallest of all, then (only if it is not >= 0, NaN included) row by row."""
+    if x.size and x.min() >= 0.0:
+        return np.zeros(0, dtype=np.intp), np.zeros((0, x.shape[-1]), dtype=bool)
     suspects = np.flatnonzero(np.min(x, axis=-1) < 0.0)
     if not suspects.size:
         return suspects, np.zeros((0, x.shape[-1]), dtype=bool)
