@@ -705,20 +705,14 @@ def _one_by_one(job: HouseholdJob, model: RowModels, rows: NDArray[np.int64], m:
             try:
                 r = comparison_of(model.model(h), model.budget(h), change.row(j),
                                   lloyd_moulton_sigma=job.lloyd_moulton_sigma,
-                                  formulas=job.formulas, formulas_required=job.formulas_given)
-            except InvalidInput as exc:
-                if exc.parameter != "formulas" or not isinstance(exc.index, int):
-                    problems.append(_refusal(job, int(rows[h]), exc, "model_failed"))
-                else:
-                    name = job.formulas[exc.index]
-                    problems.append(RowProblem(int(rows[h]), "formulas", f"formulas[{exc.index}] "
-                                               f"({name}): {exc.rule} Leave the formula out to "
-                                               "keep this household.", "formula_not_computed",
-                                               exc.index))
-                alive[h] = False
-                continue
+                                  formulas=job.formulas, formulas_required=False)
             except DualcostError as exc:
                 problems.append(_refusal(job, int(rows[h]), exc, "model_failed"))
+                alive[h] = False
+                continue
+            refusal = _named_formula_left_out(job, r.formulas, r.notices, int(rows[h]))
+            if refusal is not None:
+                problems.append(refusal)
                 alive[h] = False
                 continue
             for name in job.formulas:
@@ -740,6 +734,25 @@ def _one_by_one(job: HouseholdJob, model: RowModels, rows: NDArray[np.int64], m:
             for code in dict.fromkeys(n.code for n in notices if n.code not in _JOB_LEVEL_NOTICES):
                 _count(counts, next(n for n in notices if n.code == code))
     return out, alive, irregular, items
+
+
+def _named_formula_left_out(job: HouseholdJob, computed: Mapping[str, Any],
+                            notices: Sequence[Notice], row: int) -> RowProblem | None:
+    """The refusal of household ``row`` when a formula named in the request was left out of its
+    comparison (the comparison's notice says why); None when every named formula was computed,
+    or when the formulas are the default set (left out for the household, with the notice)."""
+    if not job.formulas_given:
+        return None
+    for i, name in enumerate(job.formulas):
+        if name in computed:
+            continue
+        title = REGISTRY[name].title
+        why = next((n.message.split("; it was left out")[0] for n in notices
+                    if n.code == "formula_not_computed" and f"The {title} index" in n.message),
+                   f"The {title} index cannot be computed for this household")
+        return RowProblem(row, "formulas", f"formulas[{i}] ({name}): {why}; leave the formula "
+                          "out to keep this household", "formula_not_computed", i)
+    return None
 
 
 def _kept_items(items: ItemsAt, kept: NDArray[np.intp]) -> ItemsAt:
