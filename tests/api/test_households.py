@@ -85,7 +85,8 @@ def test_json_answer_is_the_core_batch(client: TestClient) -> None:
     core = run_households(job, w, expenditure=m, weights=a, quantiles=body["quantiles"])
     for j, hh in enumerate(answer["households"]):
         (period,) = hh["periods"]
-        assert hh["household"] == f"decile_{j + 1}" and hh["row"] == j
+        assert hh["household"] == f"decile_{j + 1}" and hh["row"] == j + 1  # rows from 1
+        assert period["model_regular"] is True and period["irregular_reasons"] == []
         assert period["konus"] == core.values["konus"][0, j]
         assert period["compensating_variation"] == core.values["compensating_variation"][0, j]
         for f in body["formulas"]:
@@ -119,7 +120,8 @@ def test_csv_answer_on_request(client: TestClient) -> None:
 def test_shares_not_summing_to_one_name_the_row(client: TestClient) -> None:
     body = example()
     body["households"][3]["shares"]["flat_rent"] += 0.05
-    problem = assert_problem(post(client, body), "/households/3/shares", "household row 3",
+    # The fourth household: row 4 in the message, /households/3 in the pointer (RFC 6901).
+    problem = assert_problem(post(client, body), "/households/3/shares", "household row 4",
                              "sum to 1")
     assert "decile_4" in problem["errors"][0]["detail"]
 
@@ -127,13 +129,13 @@ def test_shares_not_summing_to_one_name_the_row(client: TestClient) -> None:
 def test_missing_item_in_a_household_names_the_row(client: TestClient) -> None:
     body = example()
     del body["households"][6]["shares"]["ferry_pass"]
-    assert_problem(post(client, body), "/households/6/shares", "household row 6", "ferry_pass")
+    assert_problem(post(client, body), "/households/6/shares", "household row 7", "ferry_pass")
 
 
 def test_negative_income_names_the_row(client: TestClient) -> None:
     body = example()
     body["households"][2]["expenditure"] = -1460.0
-    assert_problem(post(client, body), "/households/2/expenditure", "household row 2",
+    assert_problem(post(client, body), "/households/2/expenditure", "household row 3",
                    "greater than zero")
 
 
@@ -141,7 +143,7 @@ def test_household_below_subsistence_names_the_row_and_item(client: TestClient) 
     body = example(SUBSISTENCE)
     body["households"][0]["expenditure"] = 400.0
     problem = assert_problem(post(client, body), "/households/0/shares/rye_loaf",
-                             "household row 0", "below subsistence")
+                             "household row 1", "below subsistence")
     assert len(problem["errors"]) == 1
 
 
@@ -149,7 +151,8 @@ def test_non_homothetic_model_needs_incomes(client: TestClient) -> None:
     body = example(SUBSISTENCE)
     for h in body["households"]:
         del h["expenditure"]
-    assert_problem(post(client, body), "/households/0/expenditure", "not homothetic")
+    assert_problem(post(client, body), "/households/0/expenditure", "household row 1",
+                   "not homothetic")
 
 
 def test_job_level_errors_point_at_the_field(client: TestClient) -> None:
@@ -181,12 +184,13 @@ def test_skip_keeps_the_good_rows_and_says_why(client: TestClient) -> None:
     r = post(client, body)
     assert r.status_code == 200, r.text
     answer = r.json()
-    assert [h["row"] for h in answer["households"]] == [1, 2, 3, 5, 6, 7, 8, 9]
+    assert [h["row"] for h in answer["households"]] == [2, 3, 4, 6, 7, 8, 9, 10]
     skipped = answer["skipped"]
     assert skipped["count"] == 2
     assert skipped["by_reason"] == {"below_subsistence": 1, "bad_income": 1}
     assert [s["pointer"] for s in skipped["rows"]] == ["/households/0/shares/rye_loaf",
                                                        "/households/4/expenditure"]
+    assert [(s["row"], s["record"]) for s in skipped["rows"]] == [(1, None), (5, None)]
 
 
 # -- jobs with CSV ------------------------------------------------------------------------------
@@ -216,7 +220,9 @@ def test_csv_job_streams_good_rows_and_reports_the_bad(client: TestClient) -> No
     assert r.headers["link"] == f'</v1/household-jobs/{job["id"]}>; rel="monitor"'
     rows = list(csv.DictReader(io.StringIO(r.text)))
     assert [row["household"] for row in rows] == good
-    assert [int(row["row"]) for row in rows] == list(range(2, 12))
+    # Rows from 1 after the header; record: the line each household's record starts on.
+    assert [int(row["row"]) for row in rows] == list(range(1, 11))
+    assert [int(row["record"]) for row in rows] == list(range(2, 12))
 
     status = client.get(job["links"]["self"]).json()
     HouseholdJobOut.model_validate(status)
@@ -228,6 +234,9 @@ def test_csv_job_streams_good_rows_and_reports_the_bad(client: TestClient) -> No
                                               "below_subsistence": 1, "not_a_number": 1}
     pointers = [s["pointer"] for s in status["skipped"]["rows"]]
     assert pointers == ["#row=12", "#cell=13,3", "#cell=14,5", "#cell=15,5"]
+    assert [(s["row"], s["record"]) for s in status["skipped"]["rows"]] == [
+        (11, 12), (12, 13), (13, 14), (14, 15)]
+    assert status["skipped"]["rows"][1]["detail"].startswith("row 12: column 'expenditure'")
     assert "'rye_loaf'" in status["skipped"]["rows"][3]["detail"]
     assert status["unused_columns"] == ["region"]
 
@@ -265,7 +274,7 @@ def test_csv_job_with_reject_names_every_bad_row(client: TestClient) -> None:
              "minus,harbour,-1.0,1.0," + ",".join(repr(body["households"][1]["shares"][i])
                                                   for i in ids)]
     r = upload(client, job, household_csv(body, extra=extra))
-    problem = assert_problem(r, "#cell=12,5", "row 12", "below subsistence")
+    problem = assert_problem(r, "#cell=12,5", "row 11:", "below subsistence")
     assert [e["pointer"] for e in problem["errors"]] == ["#cell=12,5", "#cell=13,3"]
     status = client.get(job["links"]["self"]).json()
     assert status["status"] == "failed" and status["skipped"]["count"] == 2

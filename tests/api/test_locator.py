@@ -80,20 +80,27 @@ def test_translating_turns_core_errors_into_located_problems() -> None:
 
 
 def test_refused_household_rows_are_named_in_json_and_in_csv() -> None:
-    """A household row's field: /households/<row>/<field>[/<item>] in JSON; the record's cell
-    in a wide CSV upload (one column per item)."""
-    problem = RowProblem(3, "shares", "must not be negative", "negative_share", 2)
+    """A household row's field: /households/<row - 1>/<field>[/<item>] in JSON (RFC 6901
+    pointers count from 0, rows from 1); the record's cell in a wide CSV upload (one column per
+    item; RFC 7111, the header being record 1), and the line the record starts on where it
+    differs (a quoted field spanning lines before it)."""
+    problem = RowProblem(4, "shares", "must not be negative", "negative_share", 2)
     loc = Locator({"row:shares": Place("/households/{row}/shares", column="*item")}, items=ITEMS)
     loc.given_rows("row:shares", [True] * 5)
     loc.row_names = ["a", "b", "c", "d", "e"]
     error = loc.row_error(problem)
     assert error.pointer == "/households/3/shares/ferry_pass"
-    assert error.detail == "household row 3 ('d'): must not be negative"
+    assert error.detail == "household row 4 ('d'): must not be negative"
     loc.form = "csv"
     loc.csv = CsvRows(columns={"household": 1}, item_columns=[2, 3, 4])
     error = loc.row_error(problem)
-    assert (error.pointer, error.detail) == ("#cell=3,4", "row 3: column 'ferry_pass': must not "
+    assert (error.pointer, error.detail) == ("#cell=5,4", "row 4: column 'ferry_pass': must not "
                                                           "be negative")
+    on_line_5 = RowProblem(4, "shares", "must not be negative", "negative_share", 2, record=5)
+    assert loc.row_error(on_line_5).detail.startswith("row 4: ")  # line 5 is record 5
+    on_line_7 = RowProblem(4, "shares", "must not be negative", "negative_share", 2, record=7)
+    assert loc.row_error(on_line_7).pointer == "#cell=5,4"
+    assert loc.row_error(on_line_7).detail.startswith("row 4 (line 7): column 'ferry_pass'")
     with pytest.raises(RequestProblem) as info, loc.translating():
         raise InvalidRows([problem], 1)
-    assert [e.pointer for e in info.value.errors] == ["#cell=3,4"]
+    assert [e.pointer for e in info.value.errors] == ["#cell=5,4"]

@@ -191,7 +191,7 @@ def test_a_household_in_percent_under_fraction_is_refused_by_row_naming_the_opti
     body = example(CES)
     body["households"][3]["shares"] = in_unit(body["households"][3]["shares"], "percent")
     assert_problem(client.post("/v1/household-indices", json=body), "/households/3/shares",
-                   "household row 3", "give share_unit=percent")
+                   "household row 4", "give share_unit=percent")  # rows from 1
 
 
 def test_a_household_job_upload_in_percent(client) -> None:

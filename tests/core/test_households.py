@@ -17,6 +17,7 @@ from dualcost.core.comparison import compare
 from dualcost.core.errors import InvalidInput, InvalidRows
 from dualcost.core.households import (
     HouseholdJob,
+    reasons_of,
     run_households,
     weighted_quantiles,
 )
@@ -283,24 +284,41 @@ def test_a_chunk_of_only_bad_rows(family: str) -> None:
     assert res.rows.tolist() == [0, 3, 4] and res.skipped.count == 2 and res.chunks == 3
 
 
-def test_one_by_one_families_refuse_households_where_the_model_is_not_regular() -> None:
+def test_one_by_one_families_flag_households_where_the_model_is_not_regular() -> None:
     """A flexible form is regular only near its base point (Christensen, Jorgenson and Lau 1975;
     Diewert 1976): a large price change sends some households' translog shares outside [0, 1],
-    that is, a negative current demand, where the current-weighted formulas are undefined. Those
-    households are refused with the reason (skipped and counted under bad_rows="skip"), exactly
-    the ones whose single comparison warns of it; the others pass."""
+    that is, a negative current demand (Mas-Colell, Whinston and Green 1995, 2.F and 3.G). With
+    the default formulas those households are kept and flagged, exactly the ones whose single
+    comparison is irregular, with its reasons and items; their model figures are NaN (withheld)
+    and the current-weighted formulas, undefined at a negative quantity, are left out for them.
+    Named explicitly, such a formula refuses those households instead, at ``formulas``."""
     rng = np.random.default_rng(24)
     p0, p1 = np.ones(4), np.array([0.4, 1.0, 1.6, 1.0])
     w = rng.dirichlet(np.ones(4), 20)
-    res = run_households(HouseholdJob.checked("translog", {"sigma": 3.0}, p0, p1), w,
-                         on_bad_rows="skip")
+    job = HouseholdJob.checked("translog", {"sigma": 3.0}, p0, p1)
+    res = run_households(job, w)
+    assert res.skipped.count == 0 and res.rows.tolist() == list(range(20))
     irregular = []
     for h in range(20):
         base = BaseBudget.from_shares(p0, w[h], 1.0)
         r = compare(calibrate("translog", base, {"sigma": 3.0}), base, p1, current_income=1.0)
-        if any(n.code == "shares_outside_unit_interval" for n in r.notices):
-            irregular.append(h)
+        assert (res.irregular[0, h] != 0) == (not r.validity.regular)
+        if r.validity.regular:
+            assert res.values["konus"][0, h] == pytest.approx(r.konus.base, rel=1e-12)
+            continue
+        irregular.append(h)
+        assert set(reasons_of(int(res.irregular[0, h]))) == {n.code for n in r.validity.reasons}
+        assert res.irregular_items[(0, h)] == r.validity.items
+        assert np.isnan(res.values["konus"][0, h]) and np.isnan(res.values["bias_laspeyres"][0, h])
+        assert res.values["laspeyres"][0, h] == pytest.approx(r.formulas["laspeyres"].value)
+        assert np.isnan(res.values["paasche"][0, h])  # weights by the negative demand
     assert 0 < len(irregular) < 20
-    assert res.skipped.count == len(irregular)
-    assert sorted(p.row for p in res.skipped.listed) == irregular
-    assert all("negative" in p.rule for p in res.skipped.listed)
+    codes = {n.code for n in res.notices}
+    assert {"households_outside_regular_region", "formula_not_computed",
+            "shares_outside_unit_interval"} <= codes
+    named = HouseholdJob.checked("translog", {"sigma": 3.0}, p0, p1,
+                                 formulas=["laspeyres", "paasche"])
+    refused = run_households(named, w, on_bad_rows="skip")
+    assert sorted(p.row for p in refused.skipped.listed) == irregular
+    assert all(p.field == "formulas" and p.item == 1 and "negative" in p.rule
+               for p in refused.skipped.listed)

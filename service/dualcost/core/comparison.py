@@ -303,12 +303,17 @@ def comparison_of(
     weight_reference: WeightReference | None = None,
     lloyd_moulton_sigma: float | None = None,
     formulas: Sequence[str] | None = None,
+    formulas_required: bool | None = None,
 ) -> Comparison:
     """The single comparison assembled from the kernel's evaluation of one change
     (:func:`dualcost.core.konus.price_change` with ``decomposition=True``): the formula indices
     and their bias, the Hicks decomposition, the diagnostics and every notice, each checked as
     :func:`compare` checks it. The households that a family evaluates one by one go through
-    here too, so that each is checked as its own comparison would be."""
+    here too, so that each is checked as its own comparison would be.
+
+    ``formulas_required``: whether a formula of ``formulas`` that the data do not allow is an
+    error (``InvalidInput`` at ``formulas``) rather than left out with a notice; by default,
+    when ``formulas`` are named. A household batch's default set passes False."""
     notices: list[Notice] = list(base.notices) + list(model.calibration_notices)
     if weight_reference is not None:
         notices.extend(weight_reference.notices)
@@ -335,7 +340,8 @@ def comparison_of(
     data = IndexData(p0=p0, p1=p1, q0=q0, q1=q1, weight_quantities=weights.quantities,
                      weight_shares=weights.shares, sigma=lm_sigma)
     results = _formula_results(data, konus, formulas, notices,
-                               q1_observed=observed_quantities is not None)
+                               q1_observed=observed_quantities is not None,
+                               required=formulas_required)
     demands, diagnostics = _demands_and_diagnostics(change, q0, q1, observed_quantities)
     notices.extend(_diagnostic_notices(model, diagnostics, konus, results, p0, m0, p1, m1))
     notices.extend(_vanishing_shares(p0, q0, m0))
@@ -425,12 +431,13 @@ def _demands_and_diagnostics(change: PriceChange, q0: Vector, q1: Vector,
 
 
 def _formula_results(data: IndexData, konus: KonusIndices, requested: Sequence[str] | None,
-                     notices: list[Notice], *, q1_observed: bool = True
-                     ) -> dict[str, FormulaResult]:
+                     notices: list[Notice], *, q1_observed: bool = True,
+                     required: bool | None = None) -> dict[str, FormulaResult]:
     """Each formula's value and bias; floating-point warnings are off (a value beyond floating
     point is caught as not finite and left out, or refused, by name)."""
     with np.errstate(all="ignore"):
-        return _each_formula(data, konus, requested, notices, q1_observed=q1_observed)
+        return _each_formula(data, konus, requested, notices, q1_observed=q1_observed,
+                             required=required)
 
 
 def _each_formula(
@@ -440,8 +447,9 @@ def _each_formula(
     notices: list[Notice],
     *,
     q1_observed: bool = True,
+    required: bool | None = None,
 ) -> dict[str, FormulaResult]:
-    explicit = requested is not None
+    explicit = requested is not None if required is None else required
     names = (check_formula_names(list(requested)) if requested is not None
              else formulas_for("comparison"))
     # The inputs a comparison may lack; both periods' quantities are always there (q1 observed

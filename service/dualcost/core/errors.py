@@ -71,9 +71,12 @@ class InvalidInput(DualcostError, ValueError):
 class RowProblem:
     """Why one household row was refused.
 
-    ``row`` is the caller's label for the row (its position in a JSON list, its record number
-    in a CSV file); ``field`` is ``"shares"``, ``"expenditure"`` or ``"weight"``; ``item`` is
-    the position of the offending item for a share; ``code`` is a stable word for counting.
+    ``row`` is the caller's label for the row (the web layer numbers households from 1: the
+    position in a JSON list, or the record after a CSV header); ``field`` is ``"shares"``,
+    ``"expenditure"``, ``"weight"`` or ``"formulas"``; ``item`` is the position of the offending
+    item for a share (of the formula in the job's list for ``"formulas"``); ``code`` is a stable
+    word for counting; ``record`` is the line of a CSV upload where the row's record starts,
+    when the row came from one.
     """
 
     row: int
@@ -81,6 +84,7 @@ class RowProblem:
     rule: str
     code: str
     item: int | None = None
+    record: int | None = None
 
 
 class InvalidRows(InvalidInput):

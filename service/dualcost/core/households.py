@@ -43,8 +43,10 @@ aggregate basket, the index a consumer price index approximates.
 
 from __future__ import annotations
 
+import dataclasses
 from collections.abc import Callable, Iterable, Iterator, Mapping, Sequence
 from dataclasses import dataclass, field
+from functools import lru_cache
 from typing import Any, Literal
 
 import numpy as np
@@ -55,10 +57,11 @@ from . import _checks
 from .comparison import comparison_of
 from .deadline import check as check_deadline
 from .errors import DualcostError, InvalidInput, InvalidRows, RowProblem
-from .indices import FORMULAS, HOUSEHOLD_DEFAULT, IndexData, formulas_for
+from .indices import FORMULAS, HOUSEHOLD_DEFAULT, REGISTRY, IndexData, formulas_for
 from .konus import PriceChange, price_change
 from .preferences import FAMILIES, BaseBudget, Notice, Preferences
 from .preferences.base import RowModels, converted_notices
+from .validity import IRREGULAR, negative_demands
 
 Vector = NDArray[np.float64]
 Matrix = NDArray[np.float64]
@@ -78,6 +81,30 @@ LISTED_PROBLEMS = 100
 
 KONUS_COLUMNS = ("konus", "konus_current", "konus_midpoint")
 MONEY_COLUMNS = ("compensating_variation", "equivalent_variation")
+#: The reasons a household-period can be outside the model's regular region (the codes of
+#: :data:`dualcost.core.validity.IRREGULAR`), one bit each in ``ChunkResult.irregular``.
+REASONS: tuple[str, ...] = tuple(sorted(IRREGULAR))
+_BIT: dict[str, int] = {code: 1 << k for k, code in enumerate(REASONS)}
+#: A demand below zero by more than this, relative to the household's largest demand, is
+#: negative (as :func:`dualcost.core.validity.negative_demands` has it: not the rounding at an
+#: exact zero).
+NEGATIVE_TOLERANCE = 1e-12
+#: Items by household-period: (period, household) -> the items a reason names.
+ItemsAt = dict[tuple[int, int], tuple[int, ...]]
+
+
+@lru_cache(maxsize=256)
+def reasons_of(mask: int) -> tuple[str, ...]:
+    """The reason codes whose bits are set in ``mask`` (an entry of ``ChunkResult.irregular``)."""
+    return tuple(code for k, code in enumerate(REASONS) if int(mask) >> k & 1)
+
+
+def reason_mask(codes: Iterable[str]) -> int:
+    """The bits of ``codes`` (those of :data:`REASONS`; others are ignored)."""
+    mask = 0
+    for code in codes:
+        mask |= _BIT.get(code, 0)
+    return mask
 
 
 @dataclass(frozen=True)
@@ -99,6 +126,10 @@ class HouseholdJob:
     notices: tuple[Notice, ...] = ()
     #: The unit the households' shares are given in (``fraction``, ``percent``, ``per_mille``).
     share_unit: str = "fraction"
+    #: Whether the formulas were named by the caller: a named formula that cannot be computed
+    #: for a household refuses that household (field ``formulas``); one of the default set is
+    #: left out for it (NaN) with a notice, and never fails the request.
+    formulas_given: bool = False
 
     @classmethod
     def checked(
@@ -136,6 +167,14 @@ class HouseholdJob:
                                    f"{accepted})")
         probe = _probe(family, params, p0)
         names = _checked_formulas(formulas)
+        defaults: list[Notice] = []
+        if formulas is None:
+            others = [f for f in HOUSEHOLD_FORMULAS if f not in names]
+            defaults.append(Notice("default_formulas", "No formulas were named: the default set "
+                                   f"({', '.join(names)}) is computed; "
+                                   f"{', '.join(others)} are computed only when named in "
+                                   "formulas. A default formula that cannot be computed for a "
+                                   "household is left out for it (null) with a notice."))
         lm_sigma = lloyd_moulton_sigma
         if lm_sigma is not None:
             lm_sigma = _checks.scalar("lloyd_moulton_sigma", lm_sigma)
@@ -144,6 +183,10 @@ class HouseholdJob:
                                    f"zero or more, got {lm_sigma:g}")
         elif probe is not None:
             lm_sigma = probe.substitution_elasticity
+            if lm_sigma is not None and "lloyd_moulton" in names:
+                defaults.append(Notice("lloyd_moulton_sigma_from_model", "No Lloyd-Moulton "
+                                       "elasticity was given: the model's own elasticity of "
+                                       f"substitution, {lm_sigma:.10g}, is used."))
         if "lloyd_moulton" in names and lm_sigma is None:
             raise InvalidInput("formulas", "the Lloyd-Moulton index needs an elasticity of "
                                "substitution (lloyd_moulton_sigma; the model has no single one)",
@@ -152,15 +195,21 @@ class HouseholdJob:
             chunk_rows = default_chunk_rows(p0.size)
         if int(chunk_rows) < 1:
             raise InvalidInput("chunk_rows", f"must be 1 or more, got {chunk_rows}")
-        notices: tuple[Notice, ...] = converted
+        defaults.append(Notice("current_income_assumed", "Each household's current income is "
+                               "taken equal to its base income (expenditure), so that the "
+                               "answer isolates the price change; for a model that is not "
+                               "homothetic this choice moves K(u1), the midpoint index and the "
+                               "equivalent variation."))
         if not FAMILIES[family].broadcasts:
-            notices += (Notice("evaluated_one_by_one", f"The {family} family has no closed form "
-                               "over households here: each household was calibrated and "
-                               "compared in turn (slower than the vectorised families)."),)
+            defaults.append(Notice("evaluated_one_by_one", f"The {family} family has no closed "
+                                   "form over households here: each household was calibrated "
+                                   "and compared in turn (slower than the vectorised "
+                                   "families)."))
         return cls(family=family, parameters=params, base_prices=p0, current_prices=p1,
                    formulas=names, lloyd_moulton_sigma=lm_sigma,
                    normalise_shares=bool(normalise_shares), chunk_rows=int(chunk_rows),
-                   notices=notices, share_unit=share_unit)
+                   notices=(*converted, *defaults), share_unit=share_unit,
+                   formulas_given=formulas is not None)
 
     @property
     def n_items(self) -> int:
@@ -207,6 +256,8 @@ class HouseholdChunk:
     ids: tuple[str | None, ...] | None = None
     #: Problems found before the chunk was built (a cell that is not a number, in a CSV).
     problems: tuple[RowProblem, ...] = ()
+    #: Where each row came from in a CSV upload: the line its record starts on.
+    records: NDArray[np.int64] | None = None
 
 
 @dataclass(frozen=True)
@@ -223,13 +274,42 @@ class ChunkResult:
     #: What calibration did to some households, from the family: code -> (households, the
     #: sentence that completes "For n household(s) ...").
     remarks: dict[str, tuple[int, str]] = field(default_factory=dict)
-    #: Households evaluated one by one: how many drew each notice of the single comparison
-    #: (code -> count and the first message), e.g. a regularity warning of a flexible form.
-    notice_counts: dict[str, tuple[int, str]] = field(default_factory=dict)
+    #: How many household-periods drew each notice (code -> count and the first such notice):
+    #: a regularity warning, a formula left out for a household.
+    notice_counts: dict[str, tuple[int, Notice]] = field(default_factory=dict)
+    #: Per period and household, as ``values``: the bits of :data:`REASONS` for which the model
+    #: is outside its regular region there (0: regular). Where it is not 0 the model's figures
+    #: (Konüs indices, CV, EV, cv_percent, biases) are NaN: withheld, not results. None: all
+    #: regular.
+    irregular: NDArray[np.uint32] | None = None
+    #: The items the reasons name, where the model is irregular: (period, household) -> items.
+    irregular_items: ItemsAt = field(default_factory=dict)
+    #: The CSV line each household's record starts on, for households from a CSV upload.
+    records: NDArray[np.int64] | None = None
 
     @property
     def size(self) -> int:
         return int(self.rows.size)
+
+    def irregular_or_zeros(self, periods: int) -> NDArray[np.uint32]:
+        """``irregular``, as zeros when every household-period is regular."""
+        if self.irregular is None:
+            return np.zeros((periods, self.size), dtype=np.uint32)
+        return self.irregular
+
+    def block(self, part: slice) -> ChunkResult:
+        """The households ``part`` (consecutive) of this result, with their flags and items."""
+        start, stop, _ = part.indices(self.size)
+        items = {(t, j - start): at for (t, j), at in self.irregular_items.items()
+                 if start <= j < stop}
+        return ChunkResult(
+            rows=self.rows[part], ids=None if self.ids is None else self.ids[part],
+            weights=self.weights[part],
+            expenditure=None if self.expenditure is None else self.expenditure[part],
+            values={name: v[:, part] for name, v in self.values.items()}, problems=(),
+            irregular=None if self.irregular is None else self.irregular[:, part],
+            irregular_items=items,
+            records=None if self.records is None else self.records[part])
 
 
 # -- job checks -------------------------------------------------------------------------------
@@ -458,21 +538,139 @@ def _kernel(job: HouseholdJob, model: Preferences, p1: Vector, m: Vector,
                          decomposition=decomposition), ok)
 
 
+def _count(counts: dict[str, tuple[int, Notice]], notice: Notice, n: int = 1) -> None:
+    """Count ``n`` more household-periods that drew ``notice``'s code (the first one is kept)."""
+    seen, first = counts.get(notice.code, (0, notice))
+    counts[notice.code] = (seen + n, first)
+
+
+def _negative_rows(x: Matrix) -> tuple[NDArray[np.intp], NDArray[np.bool_]]:
+    """The households (rows of ``x``, households by items) with a demand below zero beyond
+    rounding (:data:`NEGATIVE_TOLERANCE`), and which of their items. One pass over ``x`` when no
+    demand is negative, the common case (and the only one for Cobb-Douglas and CES): the
+    smallest of all, then (only if it is not >= 0, NaN included) row by row."""
+    if x.size and x.min() >= 0.0:
+        return np.zeros(0, dtype=np.intp), np.zeros((0, x.shape[-1]), dtype=bool)
+    suspects = np.flatnonzero(np.min(x, axis=-1) < 0.0)
+    if not suspects.size:
+        return suspects, np.zeros((0, x.shape[-1]), dtype=bool)
+    xs = x[suspects]
+    floor = -NEGATIVE_TOLERANCE * np.maximum(np.max(np.abs(xs), axis=-1, keepdims=True), 1e-300)
+    below = xs < floor
+    found = below.any(axis=-1)
+    return suspects[found], below[found]
+
+
+def _broadcast_regularity(job: HouseholdJob, model: Preferences, change: PriceChange,
+                          irregular: NDArray[np.uint32], items: ItemsAt, t: int,
+                          live: NDArray[np.intp], counts: dict[str, tuple[int, Notice]]
+                          ) -> NDArray[np.intp]:
+    """Where a family that broadcasts leaves its regular region at period ``t``, found on the
+    kernel's own arrays without a loop over households; the positions (in ``live``) of the
+    households whose current demand is negative.
+
+    Cobb-Douglas, CES (sigma >= 0) and Stone-Geary above subsistence come from a utility
+    function that is increasing and quasi-concave, so their expenditure function is concave and
+    increasing in prices and their Slutsky matrix symmetric and negative semidefinite
+    (Mas-Colell, Whinston and Green 1995, *Microeconomic Theory*, 3.E-3.G): they report no
+    regularity notices. What can still fail is a demand below zero (a Stone-Geary subsistence
+    quantity below zero lets one fall under it). Checked: the Marshallian demand ``x(p1, m)``,
+    which the kernel has computed already, and, for a family that is not homothetic, the
+    Hicksian demand ``h(p1, u0)``. For a homothetic family ``h(p1, u0) = x(p1, e(p1, u0))
+    = x(p1, m) e(p1, u0) / m`` (demand proportional to income: Mas-Colell, Whinston and Green
+    1995, 3.B and 3.E), which has the signs of ``x(p1, m)``, so it is not evaluated again.
+    """
+    x1 = change.current_demands
+    negative, below = _negative_rows(x1)
+    at: dict[int, NDArray[np.bool_]] = {int(k): b for k, b in zip(negative, below, strict=True)}
+    first: list[Notice] = []
+    if negative.size:
+        first += negative_demands("At current prices", {"demand": x1[negative[0]]})
+    if not job.homothetic:
+        h10 = model.hicksian(job.current_prices[t], change.base_utility)
+        compensated, h_below = _negative_rows(h10)
+        for k, b in zip(compensated, h_below, strict=True):
+            at[int(k)] = at[int(k)] | b if int(k) in at else b
+        if compensated.size:
+            first += negative_demands("At current prices", {"compensated demand":
+                                                            h10[compensated[0]]})
+    if at:
+        bit = np.uint32(_BIT["negative_demand"])
+        for k, b in at.items():
+            h = int(live[k])
+            irregular[t, h] |= bit
+            items[(t, h)] = tuple(int(i) for i in np.flatnonzero(b))
+        _count(counts, first[0], len(at))
+    return negative
+
+
+def _formulas_left_out(job: HouseholdJob, values: dict[str, Vector], negative: NDArray[np.intp],
+                       rows: NDArray[np.int64], problems: list[RowProblem],
+                       counts: dict[str, tuple[int, Notice]]) -> NDArray[np.bool_]:
+    """The formula values the households' data do not allow: a formula weighting by current
+    quantities where the model's current demand is negative (the quantity is not one), and any
+    value beyond floating point. Of the default set they are left out for the household (NaN,
+    counted in a notice); a formula named in the request refuses the household instead (field
+    ``formulas``). Which households (positions in ``rows``) were refused."""
+    refused = np.zeros(rows.size, dtype=bool)
+    left = np.zeros(rows.size, dtype=bool)
+    first: Notice | None = None
+    for i, name in enumerate(job.formulas):
+        formula = REGISTRY[name]
+        v = values[name]
+        bad = ~np.isfinite(v)
+        texts = {}
+        if bad.any():
+            texts.update({int(k): f"The {formula.title} index is beyond floating point for this "
+                          "household at these prices (its sums overflow or underflow)"
+                          for k in np.flatnonzero(bad)})
+        if negative.size and formula.uses_current_quantities:
+            bad[negative] = True
+            texts.update({int(k): f"The {formula.title} index weights by current quantities, "
+                          "and the model's current demand of this household is negative (the "
+                          "model is outside its regular region)" for k in negative})
+        if not texts:
+            continue
+        if job.formulas_given:
+            for k, text in texts.items():
+                if not refused[k]:
+                    problems.append(RowProblem(int(rows[k]), "formulas", f"formulas[{i}] "
+                                               f"({name}): {text}; leave the formula out to "
+                                               "keep this household", "formula_not_computed",
+                                               i))
+                    refused[k] = True
+            continue
+        values[name] = np.where(bad, np.nan, v)
+        left |= bad
+        if first is None:
+            k = min(texts)
+            first = Notice("formula_not_computed", texts[k] + "; it was left out for that "
+                           "household (null).")
+    if first is not None:
+        _count(counts, first, int(np.count_nonzero(left & ~refused)))
+    return refused
+
+
 def _all_at_once(job: HouseholdJob, model: Preferences, rows: NDArray[np.int64], q0: Matrix,
-                 m: Vector, problems: list[RowProblem]) -> tuple[dict[str, Matrix], NDArray[np.bool_]]:
+                 m: Vector, problems: list[RowProblem], counts: dict[str, tuple[int, Notice]]
+                 ) -> tuple[dict[str, Matrix], NDArray[np.bool_], NDArray[np.uint32], ItemsAt]:
     """A family that broadcasts: the kernel over all the households at once, period by period,
-    and the formula indices along the item axis of the same arrays."""
+    the formula indices along the item axis of the same arrays, and the regularity checks on
+    them (:func:`_broadcast_regularity`)."""
     out = _columns(job, m.size)
+    irregular = np.zeros((job.n_periods, m.size), dtype=np.uint32)
+    items: ItemsAt = {}
     alive = np.ones(m.size, dtype=bool)
     for t in range(job.n_periods):
         p1 = job.current_prices[t]
         live = np.flatnonzero(alive)
-        everyone = live.size == m.size
-        change, ok = _kernel(job, model if everyone else model.take(live), p1, m[live],
-                             rows[live], problems, decomposition=False)
+        here = model if live.size == m.size else model.take(live)
+        change, ok = _kernel(job, here, p1, m[live], rows[live], problems, decomposition=False)
         alive[live[~ok]] = False
         if change is None:
             continue
+        if not ok.all():
+            here = here.take(np.flatnonzero(ok))
         live = live[ok]
         values = _formula_values(job, p1, q0 if live.size == m.size else q0[live],
                                  change.current_demands)
@@ -480,10 +678,14 @@ def _all_at_once(job: HouseholdJob, model: Preferences, rows: NDArray[np.int64],
                       konus_midpoint=change.midpoint.konus,
                       compensating_variation=change.compensating_variation,
                       equivalent_variation=change.equivalent_variation)
+        negative = _broadcast_regularity(job, here, change, irregular, items, t, live, counts)
+        refused = _formulas_left_out(job, values, negative, rows[live], problems, counts)
         where = slice(None) if live.size == m.size else live
         for name, v in values.items():
             out[name][t, where] = v
-    return out, alive
+        if refused.any():
+            alive[live[refused]] = False
+    return out, alive, irregular, items
 
 
 #: Notices of a single comparison that the batch states once for all households.
@@ -491,13 +693,18 @@ _JOB_LEVEL_NOTICES = frozenset({"homothetic", "current_quantities_from_model"})
 
 
 def _one_by_one(job: HouseholdJob, model: RowModels, rows: NDArray[np.int64], m: Vector,
-                problems: list[RowProblem], counts: dict[str, tuple[int, str]]
-                ) -> tuple[dict[str, Matrix], NDArray[np.bool_]]:
+                problems: list[RowProblem], counts: dict[str, tuple[int, Notice]]
+                ) -> tuple[dict[str, Matrix], NDArray[np.bool_], NDArray[np.uint32], ItemsAt]:
     """A family that does not broadcast: the kernel over the households through the
     row-by-row fallback, then each household's comparison assembled and checked as its own
     single comparison would be (:func:`dualcost.core.comparison.comparison_of`): the formula
-    indices, the checks and the notices, counted over households and periods."""
+    indices, the checks, the validity (:mod:`dualcost.core.validity`: the family's
+    ``regularity``, negative demands, the Konüs bound) and the notices, counted over
+    households and periods. A default formula the household's data do not allow is left out
+    for it; a named one refuses the household."""
     out = _columns(job, m.size)
+    irregular = np.zeros((job.n_periods, m.size), dtype=np.uint32)
+    items: ItemsAt = {}
     alive = np.ones(m.size, dtype=bool)
     drawn: list[list[list[Notice]]] = [[] for _ in range(m.size)]
     for t in range(job.n_periods):
@@ -512,25 +719,62 @@ def _one_by_one(job: HouseholdJob, model: RowModels, rows: NDArray[np.int64], m:
             try:
                 r = comparison_of(model.model(h), model.budget(h), change.row(j),
                                   lloyd_moulton_sigma=job.lloyd_moulton_sigma,
-                                  formulas=job.formulas)
+                                  formulas=job.formulas, formulas_required=False)
             except DualcostError as exc:
                 problems.append(_refusal(job, int(rows[h]), exc, "model_failed"))
                 alive[h] = False
                 continue
+            refusal = _named_formula_left_out(job, r.formulas, r.notices, int(rows[h]))
+            if refusal is not None:
+                problems.append(refusal)
+                alive[h] = False
+                continue
             for name in job.formulas:
-                out[name][t, h] = r.formulas[name].value
+                found = r.formulas.get(name)  # left out (a notice says why): stays NaN
+                if found is not None:
+                    out[name][t, h] = found.value
             out["konus"][t, h], out["konus_current"][t, h] = r.konus.base, r.konus.current
             out["konus_midpoint"][t, h] = r.konus.midpoint
             out["compensating_variation"][t, h] = r.compensating_variation
             out["equivalent_variation"][t, h] = r.equivalent_variation
+            if not r.validity.regular:
+                irregular[t, h] = reason_mask(n.code for n in r.validity.reasons)
+                items[(t, int(h))] = r.validity.items
             drawn[h].append(r.notices)
-    for household in drawn:  # counted household by household, then period by period
+    for h, household in enumerate(drawn):  # counted household by household, then by period
+        if not alive[h]:
+            continue
         for notices in household:
-            for code in {n.code for n in notices} - _JOB_LEVEL_NOTICES:
-                message = next(n.message for n in notices if n.code == code)
-                seen, first = counts.get(code, (0, message))
-                counts[code] = (seen + 1, first)
-    return out, alive
+            for code in dict.fromkeys(n.code for n in notices if n.code not in _JOB_LEVEL_NOTICES):
+                _count(counts, next(n for n in notices if n.code == code))
+    return out, alive, irregular, items
+
+
+def _named_formula_left_out(job: HouseholdJob, computed: Mapping[str, Any],
+                            notices: Sequence[Notice], row: int) -> RowProblem | None:
+    """The refusal of household ``row`` when a formula named in the request was left out of its
+    comparison (the comparison's notice says why); None when every named formula was computed,
+    or when the formulas are the default set (left out for the household, with the notice)."""
+    if not job.formulas_given:
+        return None
+    for i, name in enumerate(job.formulas):
+        if name in computed:
+            continue
+        title = REGISTRY[name].title
+        why = next((n.message.split("; it was left out")[0] for n in notices
+                    if n.code == "formula_not_computed" and f"The {title} index" in n.message),
+                   f"The {title} index cannot be computed for this household")
+        return RowProblem(row, "formulas", f"formulas[{i}] ({name}): {why}; leave the formula "
+                          "out to keep this household", "formula_not_computed", i)
+    return None
+
+
+def _kept_items(items: ItemsAt, kept: NDArray[np.intp]) -> ItemsAt:
+    """``items`` of the households at positions ``kept``, renumbered as positions in ``kept``."""
+    if not items:
+        return {}
+    position = {int(old): new for new, old in enumerate(kept)}
+    return {(t, position[h]): at for (t, h), at in items.items() if h in position}
 
 
 # -- a chunk ----------------------------------------------------------------------------------
@@ -570,27 +814,37 @@ def _row_checks(job: HouseholdJob, chunk: HouseholdChunk, rows: NDArray[np.int64
 
 def _evaluated(job: HouseholdJob, rows: NDArray[np.int64], w0: Matrix, m: Vector,
                problems: list[RowProblem], bad: NDArray[np.bool_],
-               counts: dict[str, tuple[int, str]]) -> tuple[dict[str, Matrix], dict[str, tuple[int, str]]]:
-    """The model's columns for the households not refused (marked in ``bad`` otherwise), and
-    the family's remarks on their calibration."""
+               counts: dict[str, tuple[int, Notice]]
+               ) -> tuple[dict[str, Matrix], NDArray[np.uint32], ItemsAt,
+                          dict[str, tuple[int, str]]]:
+    """The model's columns for the households not refused (marked in ``bad`` otherwise), where
+    the model is outside its regular region among them (bits and items), and the family's
+    remarks on their calibration."""
     model, q0, remarks = _calibrated(job, rows, w0, m, problems, bad)
     keep = np.flatnonzero(~bad)
     if model is None or not keep.size:
-        return _columns(job, 0), remarks
+        return _columns(job, 0), np.zeros((job.n_periods, 0), dtype=np.uint32), {}, remarks
     if FAMILIES[job.family].broadcasts:
-        values, alive = _all_at_once(job, model, rows[keep], q0, m[keep], problems)
+        values, alive, irregular, items = _all_at_once(job, model, rows[keep], q0, m[keep],
+                                                       problems, counts)
     else:
         assert isinstance(model, RowModels)  # what calibrate_many gives such a family
-        values, alive = _one_by_one(job, model, rows[keep], m[keep], problems, counts)
+        values, alive, irregular, items = _one_by_one(job, model, rows[keep], m[keep], problems,
+                                                      counts)
     if not alive.all():
         bad[keep[~alive]] = True
         values = {name: v[:, alive] for name, v in values.items()}
-    return values, remarks
+        irregular = irregular[:, alive]
+        items = _kept_items(items, np.flatnonzero(alive))
+    return values, irregular, items, remarks
 
 
 def evaluate_chunk(job: HouseholdJob, chunk: HouseholdChunk) -> ChunkResult:
     """Check and evaluate one chunk of households; rows that break a rule are left out and
-    reported, never silently repaired (normalised shares are counted)."""
+    reported, never silently repaired (normalised shares are counted). Where the model is
+    outside its regular region for a household-period its figures are withheld (NaN) and
+    ``irregular`` says why; a formula of the default set that a household's data do not allow
+    is NaN for it, counted in ``notice_counts``. Every other number is finite."""
     rows = np.asarray(chunk.rows, dtype=np.int64)
     w0 = np.asarray(chunk.shares, dtype=np.float64)
     h, n = rows.size, job.n_items
@@ -602,22 +856,29 @@ def evaluate_chunk(job: HouseholdJob, chunk: HouseholdChunk) -> ChunkResult:
     known = {p.row for p in problems}
     if known:
         bad |= np.isin(rows, np.fromiter(known, dtype=np.int64))
-    counts: dict[str, tuple[int, str]] = {}
+    counts: dict[str, tuple[int, Notice]] = {}
     with np.errstate(all="ignore"):
         w0, m, weights, normalised = _row_checks(job, chunk, rows, w0, problems, bad)
-        values, remarks = _evaluated(job, rows, w0, m, problems, bad, counts)
+        values, irregular, items, remarks = _evaluated(job, rows, w0, m, problems, bad, counts)
         keep = ~bad
         kept_m = m[keep]
+        withheld = irregular != 0
+        any_withheld = bool(withheld.any())
+        if any_withheld:  # not results: the model is outside its regular region there
+            for name in (*KONUS_COLUMNS, *MONEY_COLUMNS):
+                values[name] = np.where(withheld, np.nan, values[name])
         values["cv_percent"] = 100.0 * values["compensating_variation"] / kept_m
         for name in job.formulas:
             target = FORMULAS[name].target
             k = values[{"base": "konus", "current": "konus_current",
                         "midpoint": "konus_midpoint"}[target]]
             values[f"bias_{name}"] = 100.0 * (values[name] - k)
-        # Rows the arithmetic could not carry (an overflow at extreme inputs) are refused too.
+        # Rows the arithmetic could not carry (an overflow at extreme inputs) are refused too:
+        # the model's figures must be finite wherever they are results.
         finite = np.ones(int(np.count_nonzero(keep)), dtype=bool)
-        for v in values.values():
-            finite &= np.all(np.isfinite(v), axis=0)
+        for name in (*KONUS_COLUMNS, *MONEY_COLUMNS):
+            ok = np.isfinite(values[name])
+            finite &= np.all(ok | withheld if any_withheld else ok, axis=0)
     kept_rows = rows[keep]
     if not finite.all():
         for r in kept_rows[~finite]:
@@ -625,6 +886,8 @@ def evaluate_chunk(job: HouseholdJob, chunk: HouseholdChunk) -> ChunkResult:
                                        "floating point for this household (a result overflowed or "
                                        "is undefined)", "not_evaluable"))
         values = {name: v[:, finite] for name, v in values.items()}
+        irregular = irregular[:, finite]
+        items = _kept_items(items, np.flatnonzero(finite))
         keep_idx = np.flatnonzero(keep)[finite]
         keep = np.zeros(h, dtype=bool)
         keep[keep_idx] = True
@@ -635,12 +898,18 @@ def evaluate_chunk(job: HouseholdJob, chunk: HouseholdChunk) -> ChunkResult:
         for name in MONEY_COLUMNS:
             values.pop(name)
     ids = None if chunk.ids is None else tuple(chunk.ids[i] for i in np.flatnonzero(keep))
+    records = None if chunk.records is None else np.asarray(chunk.records, dtype=np.int64)
+    if records is not None and problems:
+        line = dict(zip(rows.tolist(), records.tolist(), strict=True))
+        problems = [p if p.record is not None or p.row not in line
+                    else dataclasses.replace(p, record=line[p.row]) for p in problems]
     return ChunkResult(
         rows=kept_rows, ids=ids, weights=weights[keep],
         expenditure=kept_m if with_income else None,
         values={name: values[name] for name in job.output_columns(with_income)},
         problems=tuple(sorted(problems, key=lambda p: p.row)), normalised=normalised,
-        remarks=remarks, notice_counts=counts,
+        remarks=remarks, notice_counts=counts, irregular=irregular, irregular_items=items,
+        records=None if records is None else records[keep],
     )
 
 
@@ -709,10 +978,15 @@ class IndexSummary:
     share_above_plutocratic: float | None
     minimum: float
     maximum: float
+    #: How many households it is over (fewer than the period's when a default formula was left
+    #: out for some).
+    households: int = 0
 
 
 @dataclass(frozen=True)
 class PeriodSummary:
+    """The aggregates of one period, over the households whose model is regular there."""
+
     period: int
     households: int
     weight_total: float
@@ -721,6 +995,9 @@ class PeriodSummary:
     compensating_variation_total: float | None
     #: 100 sum_h a_h CV_h / sum_h a_h m_h: the compensation as a percent of all income.
     cv_percent_of_income: float | None
+    #: Households left out of every aggregate of the period: the model is outside its regular
+    #: region for them there.
+    households_outside_regular_region: int = 0
 
 
 def summarise_index(name: str, values: Vector, weights: Vector, expenditure: Vector | None,
@@ -740,7 +1017,7 @@ def summarise_index(name: str, values: Vector, weights: Vector, expenditure: Vec
         quantiles=tuple((float(p), float(q)) for p, q in zip(quantiles, qs, strict=True)),
         share_above_democratic=float(np.sum(weights[values > democratic]) / total),
         share_above_plutocratic=share_pluto,
-        minimum=float(values.min()), maximum=float(values.max()),
+        minimum=float(values.min()), maximum=float(values.max()), households=int(values.size),
     )
 
 
@@ -763,9 +1040,10 @@ class SkipReport:
 class Accumulator:
     """Collects chunk results in order: what the summaries need, and the rows left out.
 
-    It keeps the summarised indices, weights and incomes of every household (a few numbers
-    each), not the shares; with ``keep_all`` it keeps every output column too (for an answer
-    that lists every household).
+    It keeps the summarised indices, weights, incomes and regularity flags of every household
+    (a few numbers each), not the shares; with ``keep_all`` it keeps every output column and
+    the items of each irregular household-period too (for an answer that lists every
+    household).
     """
 
     def __init__(self, job: HouseholdJob, *, keep_all: bool = False) -> None:
@@ -778,7 +1056,10 @@ class Accumulator:
         self.normalised = 0
         self.remarks: dict[str, tuple[int, str]] = {}
         self.with_income: bool | None = None
-        self.notice_counts: dict[str, tuple[int, str]] = {}
+        self.notice_counts: dict[str, tuple[int, Notice]] = {}
+        #: Household-periods outside the model's regular region: per period, and per reason.
+        self.outside = np.zeros(job.n_periods, dtype=np.int64)
+        self.outside_by_reason: dict[str, int] = {}
 
     def add(self, result: ChunkResult) -> None:
         self.chunks += 1
@@ -786,12 +1067,19 @@ class Accumulator:
         self.normalised += result.normalised
         for code, (count, text) in result.remarks.items():
             self.remarks[code] = (self.remarks.get(code, (0, text))[0] + count, text)
-        for code, (count, message) in result.notice_counts.items():
-            seen, first = self.notice_counts.get(code, (0, message))
+        for code, (count, notice) in result.notice_counts.items():
+            seen, first = self.notice_counts.get(code, (0, notice))
             self.notice_counts[code] = (seen + count, first)
         self.skipped.add(result.problems)
         if result.size:
             self.with_income = result.expenditure is not None
+        flags = result.irregular
+        if flags is not None and flags.size and flags.any():
+            self.outside += np.count_nonzero(flags, axis=1)
+            for code, bit in _BIT.items():
+                n = int(np.count_nonzero(flags & np.uint32(bit)))
+                if n:
+                    self.outside_by_reason[code] = self.outside_by_reason.get(code, 0) + n
         if not self.keep_all:
             names = self.job.summarised
             result = ChunkResult(rows=result.rows, ids=None, weights=result.weights,
@@ -799,7 +1087,7 @@ class Accumulator:
                                  values={n: result.values[n] for n in names}
                                  | ({"compensating_variation": result.values["compensating_variation"]}
                                     if "compensating_variation" in result.values else {}),
-                                 problems=(), normalised=0)
+                                 problems=(), normalised=0, irregular=result.irregular)
         self.parts.append(result)
 
     def column(self, name: str) -> Matrix:
@@ -814,25 +1102,67 @@ class Accumulator:
             return None
         return np.concatenate([p.expenditure for p in self.parts if p.expenditure is not None])
 
+    def irregular(self) -> NDArray[np.uint32]:
+        """The regularity flags of every household kept, periods by households."""
+        parts = [p.irregular_or_zeros(self.job.n_periods) for p in self.parts if p.size]
+        return (np.concatenate(parts, axis=1) if parts
+                else np.zeros((self.job.n_periods, 0), dtype=np.uint32))
+
+    def irregular_items(self) -> ItemsAt:
+        """The items of every irregular household-period, by position among all households."""
+        out: ItemsAt = {}
+        offset = 0
+        for p in self.parts:
+            out.update({(t, h + offset): at for (t, h), at in p.irregular_items.items()})
+            offset += p.size
+        return out
+
     def summary(self, quantiles: Sequence[float] = DEFAULT_QUANTILES) -> tuple[PeriodSummary, ...]:
+        """Each period's aggregates over the households whose model is regular there; an index
+        left out for some households (a default formula their data do not allow) is summarised
+        over the others."""
         if self.households == 0:
             return ()
         a = self.weights()
         m = self.expenditure()
         columns = {name: self.column(name) for name in self.job.summarised}
         cv = self.column("compensating_variation") if m is not None else None
+        flags = self.irregular()
         out = []
         for t in range(self.job.n_periods):
-            cv_total = None if cv is None else float(np.sum(a * cv[t]))
-            spend = None if m is None else float(np.sum(a * m))
+            regular = flags[t] == 0
+            outside = int(a.size - np.count_nonzero(regular))
+
+            def pick(v: Vector, regular: NDArray[np.bool_] = regular,
+                     outside: int = outside) -> Vector:
+                return v[regular] if outside else v
+
+            at, mt = pick(a), None if m is None else pick(m)
+            if not at.size:
+                out.append(PeriodSummary(
+                    period=t, households=0, weight_total=0.0,
+                    expenditure_total=None if m is None else 0.0, indices=(),
+                    compensating_variation_total=None, cv_percent_of_income=None,
+                    households_outside_regular_region=outside))
+                continue
+            indices = []
+            for name in self.job.summarised:
+                v = pick(columns[name][t])
+                ok = np.isfinite(v)
+                if ok.all():
+                    indices.append(summarise_index(name, v, at, mt, quantiles))
+                elif ok.any():
+                    indices.append(summarise_index(name, v[ok], at[ok],
+                                                   None if mt is None else mt[ok], quantiles))
+            cv_total = None if cv is None else float(np.sum(at * pick(cv[t])))
+            spend = None if mt is None else float(np.sum(at * mt))
             out.append(PeriodSummary(
-                period=t, households=self.households, weight_total=float(np.sum(a)),
-                expenditure_total=spend,
-                indices=tuple(summarise_index(name, columns[name][t], a, m, quantiles)
-                              for name in self.job.summarised),
+                period=t, households=int(at.size), weight_total=float(np.sum(at)),
+                expenditure_total=spend, indices=tuple(indices),
                 compensating_variation_total=cv_total,
                 cv_percent_of_income=None if cv_total is None or spend is None
                 else 100.0 * cv_total / spend,
+                households_outside_regular_region=outside,
             ))
         return tuple(out)
 
@@ -850,9 +1180,21 @@ class Accumulator:
                               "sum."))
         for code, (count, text) in self.remarks.items():
             out.append(Notice(code, f"For {count} household(s) {text}"))
-        for code, (count, message) in self.notice_counts.items():
+        outside = int(self.outside.sum())
+        if outside:
+            by_period = ", ".join(str(int(n)) for n in self.outside)
+            by_reason = ", ".join(f"{code} {n}" for code, n in self.outside_by_reason.items())
+            out.append(Notice("households_outside_regular_region", f"{outside} "
+                              "household-period(s) are outside the model's regular region "
+                              f"(by period, in order: {by_period}; by reason: {by_reason}). "
+                              "There the Konüs indices, compensating and equivalent "
+                              "variation, cv_percent and the biases are null (model_regular "
+                              "false): they are not results. Each period's summary leaves "
+                              "those households out of every aggregate; their formula indices "
+                              "stay in their rows."))
+        for code, (count, first) in self.notice_counts.items():
             out.append(Notice(code, f"{count} household-period(s) drew this notice; the first: "
-                              f"{message}"))
+                              f"{first.message}", first.items))
         if self.with_income is False:
             out.append(Notice("no_incomes", "No incomes were given: compensating variation is "
                               "stated only in percent of income, and the plutocratic "
@@ -865,7 +1207,12 @@ class Accumulator:
 
 @dataclass(frozen=True)
 class HouseholdResults:
-    """Every household's results (columns over periods by households), with the summaries."""
+    """Every household's results (columns over periods by households), with the summaries.
+
+    As in :class:`ChunkResult`: ``irregular`` flags the household-periods where the model is
+    outside its regular region (their model figures are NaN), ``irregular_items`` the items
+    named there; a formula left out for a household is NaN for it.
+    """
 
     job: HouseholdJob
     rows: NDArray[np.int64]
@@ -878,6 +1225,8 @@ class HouseholdResults:
     notices: tuple[Notice, ...]
     engine: str
     chunks: int
+    irregular: NDArray[np.uint32]
+    irregular_items: ItemsAt
 
 
 #: Evaluates a job's chunks somewhere and yields their results in input order (see
@@ -917,7 +1266,8 @@ def collect(
         weights=acc.weights(), expenditure=acc.expenditure(),
         values={name: acc.column(name) for name in names},
         summary=acc.summary(quantiles), skipped=acc.skipped, notices=acc.notices(),
-        engine=engine, chunks=acc.chunks,
+        engine=engine, chunks=acc.chunks, irregular=acc.irregular(),
+        irregular_items=acc.irregular_items(),
     )
 
 

@@ -253,19 +253,32 @@ def csv_problem(exc: csv.Error, record: int) -> RequestProblem:
                                       "must be quoted, and a quote inside doubled)")])
 
 
-def records_of(lines: Iterable[str], delimiter: str) -> Iterator[list[str]]:
+def records_of(lines: Iterable[str], delimiter: str) -> Records:
     """Records read strictly (RFC 4180 quoting); a malformed one is a problem at its record."""
-    reader = csv.reader(lines, delimiter=delimiter, strict=True)
-    record = 0
-    while True:
-        record += 1
+    return Records(csv.reader(lines, delimiter=delimiter, strict=True))
+
+
+class Records:
+    """A strict :func:`csv.reader`'s records, each malformed one a problem at its record, with
+    the reader's ``line_num`` (the line the last record read ends on)."""
+
+    def __init__(self, reader: Any) -> None:
+        self.reader = reader
+        self.record = 0
+
+    @property
+    def line_num(self) -> int:
+        return int(self.reader.line_num)
+
+    def __iter__(self) -> Records:
+        return self
+
+    def __next__(self) -> list[str]:
+        self.record += 1
         try:
-            cells = next(reader)
-        except StopIteration:
-            return
+            return list(next(self.reader))
         except csv.Error as exc:
-            raise csv_problem(exc, record) from None
-        yield cells
+            raise csv_problem(exc, self.record) from None
 
 
 def _failing_record(text: str, delimiter: str) -> int:
@@ -457,11 +470,46 @@ def stream_dialect(records: Iterator[list[str]], separator: Separator, reason: s
     """The dialect of a streamed upload, from its first records' numeric ``columns``; and the
     records, the ones looked at included."""
     looks = declared.decimal is None and separator != "comma"
-    head = list(islice(records, DETECTION_ROWS)) if looks else []
+    start: int | None = getattr(records, "line_num", None)
+    head: list[list[str]] = []
+    lines: list[int] = []
+    if looks:
+        for record in islice(records, DETECTION_ROWS):
+            head.append(record)
+            lines.append(int(getattr(records, "line_num", 0)))
     decimal, decimal_reason = decimal_of(separator, declared, head, columns)
     dialect = Dialect(separator, decimal, {
         k: v for k, v in (("separator", reason), ("decimal", decimal_reason)) if v})
-    return dialect, chain(head, records)
+    if not head:
+        return dialect, records
+    if start is None:
+        return dialect, chain(head, records)
+    return dialect, _Replayed(head, lines, start, records)
+
+
+class _Replayed:
+    """Records already read (for detection), then the rest of the reader, with ``line_num`` as
+    the :func:`csv.reader` gave it after each: the line a record ends on, so that a household
+    whose quoted field spans lines is still named by its line."""
+
+    def __init__(self, head: list[list[str]], lines: list[int], start: int,
+                 rest: Iterator[list[str]]) -> None:
+        self.head, self.lines, self.rest = head, lines, rest
+        self.line_num = start
+        self.at = 0
+
+    def __iter__(self) -> _Replayed:
+        return self
+
+    def __next__(self) -> list[str]:
+        if self.at < len(self.head):
+            record = self.head[self.at]
+            self.line_num = self.lines[self.at]
+            self.at += 1
+            return record
+        record = next(self.rest)
+        self.line_num = int(getattr(self.rest, "line_num", self.line_num + 1))
+        return record
 
 
 SeparatorParam = Annotated[Separator | None, Query(

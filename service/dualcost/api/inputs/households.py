@@ -5,6 +5,12 @@ CSV: one column per item id holding the base share, and the optional columns ``h
 id), ``expenditure`` (the income, required for non-homothetic families) and ``weight`` (how many
 households the row stands for; default 1). Other columns are not used, and the answer names
 them. A cell that is not a number, or a record of the wrong length, refuses that row only.
+
+Rows are numbered from 1 everywhere: a JSON household's place in ``households`` (its pointer
+counts from 0, ``/households/0``, by RFC 6901), a CSV household's record after the header (so
+that its record is ``#row=<row + 1>`` in RFC 7111 terms); a CSV row also keeps the line its
+record starts on (``record``), which differs from ``row + 1`` after a quoted field that spans
+lines.
 """
 
 from __future__ import annotations
@@ -38,6 +44,8 @@ ROW_PLACES: dict[str, Place] = {
     "row:expenditure": Place("/households/{row}/expenditure", column=EXPENDITURE_COLUMN),
     "row:weight": Place("/households/{row}/weight", column=WEIGHT_COLUMN),
     "row:row": Place("/households/{row}"),
+    # A formula named in the request that a household's data do not allow: /formulas/<i>.
+    "row:formulas": Place("/formulas"),
 }
 
 
@@ -83,6 +91,8 @@ class HouseholdRows:
     incomes: Array | None
     weights: Array
     ids: tuple[str | None, ...] | None
+    #: How many households gave no weight (each counts as 1).
+    weights_assumed: int = 0
 
 
 def rows_of(request: HouseholdIndicesRequest, axis: ItemAxis, loc: Locator) -> HouseholdRows:
@@ -96,15 +106,16 @@ def rows_of(request: HouseholdIndicesRequest, axis: ItemAxis, loc: Locator) -> H
     errors: list[FieldError] = []
     if any(given) and not all(given):
         h = given.index(False)
-        errors.append(FieldError(f"/households/{h}/expenditure", f"household row {h} has no "
-                                 "income while others do: give every household's income, or "
-                                 "none"))
+        errors.append(FieldError(f"/households/{h}/expenditure", f"household row {h + 1} has "
+                                 "no income while others do: give every household's income, "
+                                 "or none"))
     for h, household in enumerate(households):
         loc.add("w0", Place(f"/households/{h}/shares", shape="items"))
         try:
             shares[h] = axis.vector(loc, "w0", household.shares)
         except RequestProblem as exc:
-            errors += [FieldError(e.pointer, f"household row {h}: {e.detail}") for e in exc.errors]
+            errors += [FieldError(e.pointer, f"household row {h + 1}: {e.detail}")
+                       for e in exc.errors]
         if len(errors) >= 20:
             break
     if errors:
@@ -112,7 +123,8 @@ def rows_of(request: HouseholdIndicesRequest, axis: ItemAxis, loc: Locator) -> H
     ids = tuple(h.id for h in households)
     return HouseholdRows(shares, np.array(incomes, dtype=np.float64) if all(given) else None,
                          np.array([h.weight for h in households], dtype=np.float64),
-                         ids if any(i is not None for i in ids) else None)
+                         ids if any(i is not None for i in ids) else None,
+                         sum("weight" not in h.model_fields_set for h in households))
 
 
 # -- a wide CSV upload ------------------------------------------------------------------------
@@ -173,6 +185,7 @@ class _ChunkReader:
         self.layout = layout
         self.pick = operator.itemgetter(*layout.items)
         self.rows: list[int] = []
+        self.lines: list[int] = []
         self.values: list[list[float]] = []
         self.incomes: list[float] = []
         self.weights: list[float] = []
@@ -181,9 +194,11 @@ class _ChunkReader:
         self.raw: dict[int, Sequence[str]] = {}  # cells of rows that did not parse, for messages
         self.other_mark = "," if layout.dialect.decimal == "point" else "."
 
-    def add(self, record: int, cells: list[str]) -> None:
+    def add(self, record: int, cells: list[str], line: int | None = None) -> None:
+        """Household row ``record`` (from 1 after the header), starting on ``line``."""
         layout = self.layout
         self.rows.append(record)
+        self.lines.append(record + 1 if line is None else line)
         if len(cells) != len(layout.header):
             self.problems.append(RowProblem(record, "row", f"has {len(cells)} cells but the "
                                             f"header has {len(layout.header)} columns",
@@ -245,7 +260,7 @@ class _ChunkReader:
             expenditure=None if layout.expenditure_column is None else np.array(self.incomes),
             weights=None if layout.weight_column is None else np.array(self.weights),
             ids=None if layout.id_column is None else tuple(self.ids),
-            problems=tuple(self.problems),
+            problems=tuple(self.problems), records=np.array(self.lines, dtype=np.int64),
         )
 
 
@@ -257,21 +272,28 @@ def _number(cell: str, dialect: Dialect) -> float:
 
 def csv_chunks(records: Iterator[list[str]], layout: CsvLayout, chunk_rows: int,
                progress: Callable[[int], Any] | None = None) -> Iterator[HouseholdChunk]:
-    """Household chunks from CSV records after the header (record numbers from 2).
+    """Household chunks from CSV records after the header: rows numbered from 1, the first
+    record after the header being row 1 (a blank record keeps its number but holds no
+    household), and the line each record starts on, where ``records`` tells it (a
+    :func:`csv.reader`'s ``line_num``).
 
     A cell that is not a number, or a record of the wrong length, becomes a refused row carried
     with the chunk; the good rows of the chunk go on. ``progress(n)`` is told of each record.
     """
-    record = 1
+    record = 0
+    last_line: int | None = getattr(records, "line_num", None)
     while True:
         reader = _ChunkReader(layout)
         for cells in records:
             record += 1
+            line = None
+            if last_line is not None:
+                line, last_line = last_line + 1, int(getattr(records, "line_num", last_line + 1))
             if progress is not None:
                 progress(1)
             if not cells or all(not c.strip() for c in cells):
                 continue
-            reader.add(record, cells)
+            reader.add(record, cells, line)
             if len(reader.rows) >= chunk_rows:
                 break
         if not reader.rows:

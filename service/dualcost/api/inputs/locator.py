@@ -233,21 +233,29 @@ class Locator:
                               slug=problem.slug)
 
     def row_error(self, problem: RowProblem) -> FieldError:
-        """A refused household row (a core :class:`RowProblem`) as a field error: in a JSON body
-        ``/households/3/shares/rye_loaf`` (the place ``row:<field>``), in a CSV upload the cell
-        of the row's record and the field's column."""
+        """A refused household row (a core :class:`RowProblem`) as a field error.
+
+        Rows are numbered from 1 in every message: the household's place in the request's list,
+        or in a CSV upload the record after the header. A JSON pointer counts from 0 (RFC 6901):
+        household row 4 is ``/households/3/shares/rye_loaf`` (the place ``row:<field>``). In a
+        CSV upload the pointer is the cell of the row's record (RFC 7111, the header being
+        record 1: ``#cell=<row + 1>,<column>``) and the message names the line the record
+        starts on where that differs (a quoted field spanning lines before it)."""
         place = self.places.get(f"row:{problem.field}")
         if self.form == "csv" and self.csv is not None:
             column, name = self._row_column(place, problem)
-            where = f"#cell={problem.row},{column}" if column else f"#row={problem.row}"
+            record = problem.row + 1
+            where = f"#cell={record},{column}" if column else f"#row={record}"
             named = f"column {name!r}: " if name else ""
-            return FieldError(where, f"row {problem.row}: {named}{problem.rule}")
-        json_pointer = "" if place is None else place.json.format(row=problem.row)
+            line = "" if problem.record in (None, record) else f" (line {problem.record})"
+            return FieldError(where, f"row {problem.row}{line}: {named}{problem.rule}")
+        position = problem.row - 1
+        json_pointer = "" if place is None else place.json.format(row=position)
         if problem.item is not None and place is not None:
             keyed = self._keyed.get(f"row:{problem.field}", [])
-            by_id = problem.row < len(keyed) and keyed[problem.row]
+            by_id = 0 <= position < len(keyed) and keyed[position]
             json_pointer += "/" + (escape(self.items[problem.item]) if by_id else str(problem.item))
-        household = self.row_names[problem.row] if problem.row < len(self.row_names) else None
+        household = self.row_names[position] if 0 <= position < len(self.row_names) else None
         name = f"household row {problem.row}" + (f" ({household!r})" if household else "")
         return FieldError(json_pointer, f"{name}: {problem.rule}")
 

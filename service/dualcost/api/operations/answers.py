@@ -1,5 +1,6 @@
-"""Parts every answer writes the same way: notices that name their items, and the validity
-block that says whether the model stands behind its figures (:mod:`dualcost.core.validity`)."""
+"""Parts every answer writes the same way: notices that name their items, the validity block
+that says whether the model stands behind its figures (:mod:`dualcost.core.validity`), and the
+scale the figures are on."""
 
 from __future__ import annotations
 
@@ -8,6 +9,13 @@ from typing import Any
 
 from ...core.preferences import Notice
 from ...core.validity import MODEL_FIGURES, USABLE_FIGURES, Validity
+
+#: The scale of an answer whose indices are ratios (the comparison, the households): stated in
+#: each such answer as ``scale``, the same words everywhere.
+SCALE_RATIO: dict[str, str] = {
+    "indices": "ratio, 1 = no change",
+    "bias": "index points on base 100",
+}
 
 
 def item_refs(positions: Iterable[int], ids: Sequence[str],

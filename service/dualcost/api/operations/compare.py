@@ -28,7 +28,7 @@ from ..schemas.comparison import (
     CurrentIn,
     WeightReferenceIn,
 )
-from .answers import notices_json, validity_json
+from .answers import SCALE_RATIO, notices_json, validity_json
 
 #: Where each core argument of a comparison is, in the JSON body and in the spreadsheet forms'
 #: query strings.
@@ -175,6 +175,7 @@ def document(outcome: Outcome) -> dict[str, Any]:
     return {
         "family": r.family,
         "items": axis.ids,
+        "scale": SCALE_RATIO,
         "validity": validity_json(r.validity, axis.ids, axis.labels, figures),
         "konus": konus if regular else _withheld(konus, keep=("homothetic",)),
         "living_standards": {

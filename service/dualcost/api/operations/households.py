@@ -4,7 +4,12 @@ jobs share with it (where the work runs, the summaries, the CSV rows of the answ
 The job common to all households and their rows are translated once
 (:mod:`dualcost.api.inputs.households`); the core evaluates the rows chunk by chunk, in this
 process or on a Dask cluster (:mod:`dualcost.core.households`), and gathers them; a refused row
-is named by its place in the request.
+is named by its place in the request, numbered from 1 (the n-th household of the list, or of
+the CSV after its header).
+
+Where a household's model is outside its regular region at a period's prices, that
+household-period's model figures are null (empty CSV cells), ``model_regular`` is false and
+``irregular_reasons`` says why; the summaries leave it out, and a notice counts them.
 """
 
 from __future__ import annotations
@@ -13,17 +18,21 @@ from collections.abc import Iterable, Iterator, Sequence
 from dataclasses import dataclass
 from typing import Any
 
+import numpy as np
+
 from ...config import Settings
 from ...core.households import (
     ChunkResult,
     HouseholdChunk,
     HouseholdJob,
     HouseholdResults,
+    ItemsAt,
     PeriodSummary,
     SkipReport,
     chunks_of,
     collect,
     evaluate_locally,
+    reasons_of,
 )
 from ...core.preferences import Notice
 from ..inputs.households import ROW_PLACES, job_of, labels_of, rows_of
@@ -34,6 +43,7 @@ from ..problems import RequestProblem
 from ..render import csv_line, csv_lines, finite
 from ..schemas.common import CAUTION, SIGN_CONVENTION
 from ..schemas.households import HouseholdIndicesRequest
+from .answers import SCALE_RATIO, notices_json
 
 #: Where each core argument of a household batch or job is in the request.
 PLACES: dict[str, Place] = {
@@ -58,7 +68,10 @@ DEFINITIONS = (
     "Summaries: democratic = sum a_h P_h / sum a_h, plutocratic = sum a_h m_h P_h / sum a_h m_h "
     "(Prais 1959) with a_h the weight and m_h the income; quantiles of the weighted distribution "
     "(inverted distribution function); share_above_* = weighted share of households whose index "
-    "exceeds that aggregate."
+    "exceeds that aggregate. model_regular false: the model is outside its regular region for "
+    "that household at that period's prices (irregular_reasons), its Konüs indices, CV, EV, "
+    "cv_percent and biases are null, and the period's summary leaves the household out. Rows "
+    "are numbered from 1."
 )
 MAX_IN_FLIGHT = 8
 
@@ -70,6 +83,8 @@ class Outcome:
     labels: list[str]
     request: HouseholdIndicesRequest
     locator: Locator
+    #: What the web layer filled in (weights not given).
+    notices: tuple[Notice, ...] = ()
 
 
 def locator() -> Locator:
@@ -127,17 +142,26 @@ def run(request: HouseholdIndicesRequest, settings: Settings) -> Outcome:
                                   chunk_rows=settings.household_chunk_rows)
     rows = rows_of(request, axis, loc)
     if rows.incomes is None and job.needs_income:
-        raise RequestProblem.at("/households/0/expenditure", f"household row 0: the {job.family} "
+        raise RequestProblem.at("/households/0/expenditure", f"household row 1: the {job.family} "
                                 "model is not homothetic and needs each household's income "
                                 "(expenditure)")
     scheduler = scheduler_for(request.engine, len(request.households), settings, loc)
     with computing("householdIndices", settings), loc.translating():
         chunks = chunks_of(job, rows.shares, expenditure=rows.incomes, weights=rows.weights,
-                           ids=rows.ids)
+                           ids=rows.ids, rows=np.arange(1, len(request.households) + 1))
         result = collect(job, evaluate(job, chunks, scheduler, settings),
                          on_bad_rows=request.bad_rows or "reject", quantiles=quantiles,
                          engine="local" if scheduler is None else "cluster")
-    return Outcome(result, axis, labels_of(request), request, loc)
+    extra = () if not rows.weights_assumed else (weights_notice(rows.weights_assumed),)
+    return Outcome(result, axis, labels_of(request), request, loc, extra)
+
+
+def weights_notice(count: int | None) -> Notice:
+    """The default weight, stated: ``count`` households without one (None: no weight column)."""
+    which = ("The upload has no weight column: every household" if count is None else
+             f"{count} household(s) gave no weight: each")
+    return Notice("weights_assumed", f"{which} counts as one household (weight 1) in the "
+                  "summaries.")
 
 
 # -- answers ----------------------------------------------------------------------------------
@@ -145,12 +169,14 @@ def run(request: HouseholdIndicesRequest, settings: Settings) -> Outcome:
 
 def summary_json(summary: Sequence[PeriodSummary], labels: Sequence[str]) -> list[dict[str, Any]]:
     return [{
-        "period": labels[s.period], "households": s.households, "weight_total": s.weight_total,
-        "expenditure_total": s.expenditure_total,
+        "period": labels[s.period], "households": s.households,
+        "households_outside_regular_region": s.households_outside_regular_region,
+        "weight_total": s.weight_total, "expenditure_total": s.expenditure_total,
         "compensating_variation_total": s.compensating_variation_total,
         "cv_percent_of_income": s.cv_percent_of_income,
         "indices": [{
-            "index": i.index, "democratic": i.democratic, "plutocratic": i.plutocratic,
+            "index": i.index, "households": i.households, "democratic": i.democratic,
+            "plutocratic": i.plutocratic,
             "quantiles": [{"probability": p, "value": v} for p, v in i.quantiles],
             "share_above_democratic": i.share_above_democratic,
             "share_above_plutocratic": i.share_above_plutocratic,
@@ -160,42 +186,60 @@ def summary_json(summary: Sequence[PeriodSummary], labels: Sequence[str]) -> lis
 
 
 def skipped_json(report: SkipReport, loc: Locator) -> dict[str, Any]:
-    """Rows left out, each with the place of its field."""
+    """Rows left out, each with the place of its field (rows from 1; ``record``: the CSV line
+    the row's record starts on, for CSV uploads)."""
     rows = []
     for p in report.listed:
         error = loc.row_error(p)
-        rows.append({"row": p.row, "reason": p.code, "pointer": error.pointer,
-                     "detail": error.detail})
+        rows.append({"row": p.row, "record": p.record, "reason": p.code,
+                     "pointer": error.pointer, "detail": error.detail})
     return {"count": report.count, "by_reason": dict(report.by_reason), "rows": rows}
-
-
-def notices_json(notices: Iterable[Notice]) -> list[dict[str, str]]:
-    return [{"code": n.code, "message": n.message} for n in notices]
 
 
 def document(outcome: Outcome) -> dict[str, Any]:
     """The JSON answer as plain data (built directly: thousands of households are common)."""
-    res, labels = outcome.result, outcome.labels
+    res, labels, axis = outcome.result, outcome.labels, outcome.axis
     job = res.job
     return finite({
-        "family": job.family, "items": outcome.axis.ids, "formulas": list(job.formulas),
-        "periods": list(labels), "households": _households(res, labels),
+        "family": job.family, "items": axis.ids, "scale": SCALE_RATIO,
+        "formulas": list(job.formulas), "periods": list(labels),
+        "households": _households(res, labels, axis.ids),
         "summary": summary_json(res.summary, labels),
         "skipped": skipped_json(res.skipped, outcome.locator),
         "engine": res.engine, "chunks": res.chunks, "definitions": DEFINITIONS,
-        "sign_convention": SIGN_CONVENTION, "notices": notices_json(res.notices),
+        "sign_convention": SIGN_CONVENTION,
+        "notices": notices_json((*res.notices, *outcome.notices), axis.ids, axis.labels),
         "caution": CAUTION,
     }, "households")
 
 
-def _households(res: HouseholdResults, labels: Sequence[str]) -> list[dict[str, Any]]:
+def _listed(column: Any) -> list[list[float | None]]:
+    """A column (periods by households) as lists, NaN as None: a figure withheld or a formula
+    left out (the core gives every other number finite)."""
+    rows: list[list[float | None]] = column.tolist()
+    if np.isnan(column).any():
+        rows = [[None if x != x else x for x in row] for row in rows]
+    return rows
+
+
+def _flags(irregular: Any, items: ItemsAt, ids: Sequence[str]
+           ) -> tuple[list[list[int]], dict[tuple[int, int], list[str]]]:
+    """The regularity flags as lists, and the irregular household-periods' item ids."""
+    return irregular.tolist(), {key: [ids[i] for i in at] for key, at in items.items()}
+
+
+def _households(res: HouseholdResults, labels: Sequence[str],
+                ids: Sequence[str]) -> list[dict[str, Any]]:
     job = res.job
-    v = {name: col.tolist() for name, col in res.values.items()}
+    v = {name: _listed(col) for name, col in res.values.items()}
     money = "compensating_variation" in v
+    flags, named = _flags(res.irregular, res.irregular_items, ids)
     out = []
     for j, row in enumerate(res.rows.tolist()):
         periods = [{
-            "period": label,
+            "period": label, "model_regular": not flags[t][j],
+            "irregular_reasons": list(reasons_of(flags[t][j])) if flags[t][j] else [],
+            "irregular_items": named.get((t, j), []),
             "indices": {f: v[f][t][j] for f in job.formulas},
             "konus": v["konus"][t][j], "konus_current": v["konus_current"][t][j],
             "konus_midpoint": v["konus_midpoint"][t][j],
@@ -211,40 +255,53 @@ def _households(res: HouseholdResults, labels: Sequence[str]) -> list[dict[str, 
     return out
 
 
-def csv_header(job: HouseholdJob, with_income: bool) -> list[str]:
-    return ["household", "row", "period", "weight", "expenditure",
-            *job.output_columns(with_income)]
+#: The columns that say whether the model is regular for a household-period, and why not.
+FLAG_COLUMNS = ("model_regular", "irregular_reasons", "irregular_items")
+
+
+def csv_header(job: HouseholdJob, with_income: bool, *, records: bool = False) -> list[str]:
+    """``row`` counts households from 1; ``record`` (CSV uploads) is the line the household's
+    record starts on in the upload."""
+    return ["household", "row", *(("record",) if records else ()), "period", "weight",
+            "expenditure", *FLAG_COLUMNS, *job.output_columns(with_income)]
 
 
 def csv_rows(result: ChunkResult, job: HouseholdJob, labels: Sequence[str],
-             with_income: bool) -> str:
-    """One CSV line per household and period, in the order of :func:`csv_header`."""
+             with_income: bool, items: Sequence[str], *, records: bool = False) -> str:
+    """One CSV line per household and period, in the order of :func:`csv_header`: empty cells
+    for the figures withheld (``model_regular`` false) or left out; the reasons and the items'
+    ids joined by semicolons."""
     names = job.output_columns(with_income)
     cols = [result.values[n].tolist() for n in names]
     weights = result.weights.tolist()
     incomes = None if result.expenditure is None else result.expenditure.tolist()
+    flags, named = _flags(result.irregular_or_zeros(len(labels)), result.irregular_items, items)
+    lines_of = (result.records.tolist() if records and result.records is not None
+                else [None] * result.size)
 
     def lines() -> Iterator[list[Any]]:
         for j, row in enumerate(result.rows.tolist()):
             hid = "" if result.ids is None or result.ids[j] is None else result.ids[j]
             m = None if incomes is None or not with_income else incomes[j]
+            where = [row, lines_of[j]] if records else [row]
             for t, label in enumerate(labels):
-                yield [hid, row, label, weights[j], m, *(c[t][j] for c in cols)]
+                flag = flags[t][j]
+                why = ("true", "", "") if not flag else (
+                    "false", ";".join(reasons_of(flag)), ";".join(named.get((t, j), ())))
+                yield [hid, *where, label, weights[j], m, *why, *(c[t][j] for c in cols)]
 
     return csv_lines(lines())
 
 
 def csv_pieces(outcome: Outcome, rows: int = 4096) -> Iterator[str]:
     """A finished batch as CSV, a block of households at a time."""
-    result = outcome.result
-    job = result.job
-    with_income = result.expenditure is not None
+    res = outcome.result
+    job = res.job
+    with_income = res.expenditure is not None
     yield csv_line(csv_header(job, with_income))
-    for start in range(0, result.rows.size, rows):
-        part = slice(start, start + rows)
-        block = ChunkResult(
-            rows=result.rows[part], ids=None if result.ids is None else result.ids[part],
-            weights=result.weights[part],
-            expenditure=None if result.expenditure is None else result.expenditure[part],
-            values={name: v[:, part] for name, v in result.values.items()}, problems=())
-        yield csv_rows(block, job, outcome.labels, with_income)
+    whole = ChunkResult(rows=res.rows, ids=res.ids, weights=res.weights,
+                        expenditure=res.expenditure, values=res.values, problems=(),
+                        irregular=res.irregular, irregular_items=res.irregular_items)
+    for start in range(0, res.rows.size, rows):
+        yield csv_rows(whole.block(slice(start, start + rows)), job, outcome.labels,
+                       with_income, outcome.axis.ids)

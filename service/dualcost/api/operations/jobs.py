@@ -17,6 +17,11 @@ own oldest waiting job (one without an upload on its way first), the oldest fini
 key; never a running job, never another key's waiting one. A key holding its share of the table
 (``max_household_jobs_per_key``) can only replace its own jobs. No room: 503 ``job-table-full``
 with Retry-After.
+
+The CSV answer numbers households from 1 (``row``: the record after the header) and gives the
+line each household's record starts on (``record``); ``model_regular``, ``irregular_reasons``
+and ``irregular_items`` say where the model is outside its regular region (the model's figures
+are then empty cells).
 """
 
 from __future__ import annotations
@@ -38,6 +43,7 @@ from fastapi import Request
 
 from ...config import Settings
 from ...core.households import Accumulator, HouseholdJob
+from ...core.preferences import Notice
 from ..inputs.csv import (
     DeclaredDialect,
     check_media_type,
@@ -54,6 +60,7 @@ from ..render import csv_line
 from ..schemas.common import CAUTION
 from ..schemas.households import HouseholdJobSpec
 from . import households
+from .answers import SCALE_RATIO, notices_json
 
 SPOOL_MEMORY_BYTES = 8 * 1024 * 1024
 #: Seconds a client is asked to wait (Retry-After) when the job table has no room.
@@ -93,6 +100,8 @@ class JobState:
         self.error: str | None = None
         #: The job's input: its body, then its body and its households' CSV.
         self.provenance: Provenance = of_job(spec, None)
+        #: What the web layer filled in for the upload (no weight column).
+        self.defaults: tuple[Notice, ...] = ()
         self.lock = threading.Lock()
 
     def expect_households(self) -> None:
@@ -129,6 +138,7 @@ class JobState:
             self.rows_total = None
             self.engine = None
             self.layout = None
+            self.defaults = ()
             self.acc = Accumulator(self.job)
             self.provenance = of_job(self.spec, None)
 
@@ -158,6 +168,7 @@ class JobState:
         with self.lock:
             acc, total, done = self.acc, self.rows_total, self.status == "done"
             fraction = 1.0 if done else (min(1.0, self.rows_read / total) if total else None)
+            notices = (*(acc.notices() if done else self.job.notices), *self.defaults)
             return {
                 "id": self.id, "status": self.status, "created": self.created,
                 "family": self.job.family, "periods": self.labels, "engine": self.engine,
@@ -168,9 +179,9 @@ class JobState:
                 "skipped": households.skipped_json(acc.skipped, self.locator),
                 "summary": self.summary,
                 "unused_columns": [] if self.layout is None else self.layout.unused,
-                "error": self.error,
-                "notices": self.input_notices() + households.notices_json(
-                    acc.notices() if done else self.job.notices),
+                "error": self.error, "scale": SCALE_RATIO,
+                "notices": self.input_notices()
+                + notices_json(notices, self.axis.ids, self.axis.labels),
                 "links": {"self": f"/v1/household-jobs/{self.id}",
                           "households": f"/v1/household-jobs/{self.id}/households"},
                 "caution": CAUTION,
@@ -320,6 +331,8 @@ def open_upload(state: JobState, file: Any, lines: int, settings: Settings,
     dialect, reader = stream_dialect(records, separator, reason, declared,
                                      layout.numeric_columns)
     state.layout = replace(layout, dialect=dialect)
+    if state.layout.weight_column is None:
+        state.defaults = (households.weights_notice(None),)
     state.rows_total = max(0, lines - 1)
     address = households.scheduler_for(state.spec.engine, state.rows_total, settings,
                                        state.locator)
@@ -340,12 +353,13 @@ def stream(state: JobState, reader: Iterator[list[str]], text: io.TextIOWrapper 
     assert state.layout is not None
     with_income = state.layout.expenditure_column is not None
     try:
-        yield csv_line(households.csv_header(job, with_income))
+        yield csv_line(households.csv_header(job, with_income, records=True))
         chunks = csv_chunks(reader, state.layout, job.chunk_rows, state.count)
         for result in households.evaluate(job, chunks, scheduler, settings):
             state.acc.add(result)
             if result.size:
-                yield households.csv_rows(result, job, state.labels, with_income)
+                yield households.csv_rows(result, job, state.labels, with_income,
+                                          state.axis.ids, records=True)
         if reject and state.acc.skipped.count:
             state.fail("failed", f"{state.acc.skipped.count} row(s) break a rule and bad_rows "
                        "is reject: no result was given")

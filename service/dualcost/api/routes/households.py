@@ -25,6 +25,7 @@ from starlette.types import Receive, Scope, Send
 from ..deps import settings_of
 from ..inputs.csv import CSV_REQUEST_BODY, DecimalParam, DeclaredDialect, SeparatorParam
 from ..operations import households, jobs
+from ..operations.answers import SCALE_RATIO
 from ..problems import PROBLEM_MEDIA_TYPE
 from ..provenance import Provenance, of_body
 from ..render import (
@@ -60,6 +61,10 @@ PROBLEM_RESPONSES: dict[int | str, dict[str, Any]] = {
 OFFERS: tuple[Format, ...] = ("json", "csv")
 FormatParam = Annotated[Literal["json", "csv"] | None, format_query(OFFERS)]
 NO_JOB = {"description": "No such job in this process (or it belongs to another API key)."}
+
+
+#: The scale of a CSV answer's figures, in a header (a JSON answer has it as ``scale``).
+SCALE_HEADERS = {"Dualcost-Scale": "; ".join(f"{k}: {v}" for k, v in SCALE_RATIO.items())}
 
 
 def _store(request: Request) -> jobs.JobStore:
@@ -112,14 +117,17 @@ def household_indices(body: HouseholdIndicesRequest, request: Request,
     gives per household the formula indices, the Konüs index, compensating and equivalent
     variation and each formula's bias; then the democratic and plutocratic aggregates
     (Prais 1959), weighted quantiles and the share of households above each aggregate.
-    Cobb-Douglas, CES and Stone-Geary are evaluated over all households at once. Bad rows
-    fail the request naming each one, unless bad_rows is skip."""
+    Where a household's model is outside its regular region at a period's prices, its model
+    figures there are null (model_regular false, with the reasons) and the summaries leave
+    it out. Cobb-Douglas, CES and Stone-Geary are evaluated over all households at once. Bad
+    rows fail the request naming each one (rows from 1), unless bad_rows is skip."""
     fmt = negotiate(request, OFFERS, format)
     outcome = households.run(body, settings_of(request))
     if fmt == "csv":
         return csv_stream(households.csv_pieces(outcome), provenance=of_body(body),
                           trailer=provenance == "trailer",
-                          headers={"Dualcost-Skipped-Rows": str(outcome.result.skipped.count)})
+                          headers={"Dualcost-Skipped-Rows": str(outcome.result.skipped.count)}
+                          | SCALE_HEADERS)
     return json_response(households.document(outcome), provenance=of_body(body))
 
 
@@ -153,7 +161,9 @@ async def household_indices_from_csv(job_id: str, request: Request,
     """One CSV record per household: a column per item id holding the base share, and the
     optional columns household (an id), expenditure (income; required for non-homothetic
     families) and weight. The answer streams one CSV row per household and period as
-    chunks are done; GET the job meanwhile for progress, and at the end for the
+    chunks are done (row: from 1 after the header; record: the line the household's record
+    starts on; model_regular, irregular_reasons and irregular_items; empty cells where the
+    model's figures are withheld); GET the job meanwhile for progress, and at the end for the
     distribution summaries and the rows skipped and why. A missing item column is refused
     at once (422, #row=1). With bad_rows reject, the answer comes only when every row has
     passed, else a 422 naming each bad row by RFC 7111 fragment (#cell=row,column).
@@ -193,7 +203,7 @@ async def household_indices_from_csv(job_id: str, request: Request,
         state.release()
         raise
     headers = {"Link": f'</v1/household-jobs/{state.id}>; rel="monitor"',
-               "Content-Location": f"/v1/household-jobs/{state.id}"}
+               "Content-Location": f"/v1/household-jobs/{state.id}"} | SCALE_HEADERS
     trailer = provenance == "trailer"
     if state.layout is not None:
         headers |= state.layout.dialect.headers()

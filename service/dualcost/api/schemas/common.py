@@ -73,6 +73,14 @@ class NoticeOut(StrictModel):
                                     description="The items the notice is about, by id and label.")
 
 
+class ScaleOut(StrictModel):
+    """The scale of the answer's figures (the same words in every answer that has them)."""
+
+    indices: str = Field(description="How the indices are written: 'ratio, 1 = no change'.")
+    bias: str = Field(description="How a bias is written: 'index points on base 100', that is "
+                                  "100 (index - Konüs index).")
+
+
 class ValidityOut(StrictModel):
     """Whether the model stands behind its figures at the prices and incomes used."""
 

@@ -15,6 +15,7 @@ from .common import (
     ItemIn,
     NoticeOut,
     ProvenanceOut,
+    ScaleOut,
     ShareUnit,
     StrictModel,
     ValidityOut,
@@ -159,6 +160,7 @@ class ComparisonOut(StrictModel):
 
     family: str
     items: list[str]
+    scale: ScaleOut
     validity: ValidityOut
     konus: KonusOut
     living_standards: LivingStandardsOut

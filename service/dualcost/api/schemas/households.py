@@ -15,6 +15,7 @@ from .common import (
     ItemIn,
     NoticeOut,
     ProvenanceOut,
+    ScaleOut,
     ShareUnit,
     StrictModel,
     VectorIn,
@@ -40,7 +41,8 @@ class HouseholdIn(StrictModel):
         None, description="Income (total base expenditure); required for non-homothetic "
                           "families, and for compensation in money and plutocratic aggregates.")
     weight: FiniteFloat = Field(1.0, description="How many households this row stands for "
-                                "(a survey weight); greater than zero.")
+                                "(a survey weight); greater than zero. Default 1, stated in a "
+                                "notice (weights_assumed).")
 
 
 class HouseholdJobSpec(StrictModel):
@@ -56,9 +58,13 @@ class HouseholdJobSpec(StrictModel):
     model: ModelSpec
     formulas: list[HouseholdFormula] | None = Field(  # type: ignore[valid-type]
         None, description="Formulas to compute (default: laspeyres, paasche, fisher, tornqvist, "
-                          "geometric_laspeyres).")
+                          "geometric_laspeyres, stated in a notice; a default formula that a "
+                          "household's data do not allow is null for it, with a notice). A "
+                          "formula named here that a household's data do not allow refuses "
+                          "that household, pointing at /formulas/<i>.")
     lloyd_moulton_sigma: FiniteFloat | None = Field(
-        None, description="Elasticity for the Lloyd-Moulton index (default: the model's own).")
+        None, description="Elasticity for the Lloyd-Moulton index (default: the model's own, "
+                          "stated in a notice).")
     quantiles: list[FiniteFloat] = Field(
         list(DEFAULT_QUANTILES), max_length=101,
         description="Probabilities of the weighted quantiles in the summaries.")
@@ -102,6 +108,9 @@ class QuantileOut(StrictModel):
 
 class IndexSummaryOut(StrictModel):
     index: str = Field(description="A formula, or konus (the Konüs index at base utility).")
+    households: int = Field(description="How many households it is over: the period's regular "
+                                        "ones, less any for which a default formula was left "
+                                        "out.")
     democratic: float = Field(description="sum a_h P_h / sum a_h (Prais 1959).")
     plutocratic: float | None = Field(description="sum a_h m_h P_h / sum a_h m_h (Prais 1959); "
                                       "null without incomes.")
@@ -113,8 +122,13 @@ class IndexSummaryOut(StrictModel):
 
 
 class PeriodSummaryOut(StrictModel):
+    """A period's aggregates, over the households whose model is regular in that period."""
+
     period: str
-    households: int
+    households: int = Field(description="Households the aggregates are over.")
+    households_outside_regular_region: int = Field(
+        description="Households left out of every aggregate of this period: the model is "
+                    "outside its regular region for them there (see their model_regular).")
     weight_total: float
     expenditure_total: float | None
     compensating_variation_total: float | None = Field(description="sum a_h CV_h.")
@@ -124,28 +138,45 @@ class PeriodSummaryOut(StrictModel):
 
 class HouseholdPeriodOut(StrictModel):
     period: str
-    indices: dict[str, float]
-    konus: float
-    konus_current: float
-    konus_midpoint: float
+    model_regular: bool = Field(
+        description="False where the model is outside its regular region at this period's "
+                    "prices and the household's income (a share outside [0, 1], a negative "
+                    "demand, a Slutsky matrix that is not negative semidefinite or not "
+                    "symmetric, ...): the Konüs indices, CV, EV, cv_percent and biases are then "
+                    "null, not results. The formula indices stay.")
+    irregular_reasons: list[str] = Field(description="The reason codes where model_regular is "
+                                                     "false (e.g. negative_demand).")
+    irregular_items: list[str] = Field(description="The ids of the items the reasons name.")
+    indices: dict[str, float | None] = Field(
+        description="Each formula as a ratio (1 = no change); null where a default formula "
+                    "cannot be computed for this household (a notice says why).")
+    konus: float | None
+    konus_current: float | None
+    konus_midpoint: float | None
     compensating_variation: float | None
     equivalent_variation: float | None
-    cv_percent: float = Field(description="100 CV / income.")
-    bias_points: dict[str, float]
+    cv_percent: float | None = Field(description="100 CV / income.")
+    bias_points: dict[str, float | None] = Field(
+        description="100 (formula - the Konüs index it targets): index points on base 100.")
 
 
 class HouseholdOut(StrictModel):
     household: str | None
-    row: int = Field(description="The household's position in the request (from 0).")
+    row: int = Field(description="The household's place in the request's households, from 1 "
+                                 "(its JSON pointer counts from 0: row 1 is /households/0).")
     weight: float
     expenditure: float | None
     periods: list[HouseholdPeriodOut]
 
 
 class SkippedRowOut(StrictModel):
-    row: int
+    row: int = Field(description="From 1: the household's place in the request's list, or in a "
+                                 "CSV upload the record after the header.")
+    record: int | None = Field(description="CSV uploads: the line the household's record "
+                                           "starts on (the header is line 1); null for JSON.")
     reason: str
-    pointer: str
+    pointer: str = Field(description="A JSON pointer (counting from 0, RFC 6901) or, in a CSV "
+                                     "upload, an RFC 7111 fragment (#cell=<row + 1>,<column>).")
     detail: str
 
 
@@ -158,6 +189,7 @@ class SkippedOut(StrictModel):
 class HouseholdIndicesResponse(StrictModel):
     family: str
     items: list[str]
+    scale: ScaleOut
     formulas: list[str]
     periods: list[str]
     households: list[HouseholdOut]
@@ -195,6 +227,7 @@ class HouseholdJobOut(StrictModel):
     summary: list[PeriodSummaryOut] | None
     unused_columns: list[str]
     error: str | None
+    scale: ScaleOut
     notices: list[NoticeOut]
     links: dict[str, str]
     caution: str
