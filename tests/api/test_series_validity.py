@@ -76,7 +76,7 @@ def test_every_period_default_is_stated(client) -> None:
     codes = {n["code"] for n in given["notices"]}
     assert not {"base_period_assumed", "reference_period_assumed",
                 "frequency_from_labels"} & codes
-    assert given["scale"]["levels"].endswith("= 100")
+    assert given["scale"]["indices"] == "levels, 2025-01 = 100"
 
 
 def test_formulas_named_say_which_defaults_were_left_out(client) -> None:
@@ -137,3 +137,22 @@ def test_dualcost_check_warns_about_the_model(tmp_path, capsys) -> None:
     assert code == 0, out
     assert "warning: the translog model is outside its regular region in 1 period(s) (2025-03" \
         in out
+
+
+def test_every_answer_states_its_scale_in_the_same_words(client) -> None:
+    """Comparisons and series say how their indices and biases are scaled, in JSON and in a
+    CSV answer's Dualcost-Scale header."""
+    from tests.api.test_comparisons import small_request
+
+    comparison = client.post("/v1/comparisons", json=small_request())
+    assert comparison.json()["scale"] == {"indices": "ratio, 1 = no change",
+                                          "bias": "index points on base 100"}
+    as_csv = client.post("/v1/comparisons", json=small_request(), headers={"accept": "text/csv"})
+    assert as_csv.headers["dualcost-scale"] == ("indices: ratio, 1 = no change; "
+                                                "bias: index points on base 100")
+    series = client.post("/v1/index-series", json=series_request(model=None)).json()
+    assert series["scale"] == {"indices": "levels, 2025-01 = 100",
+                               "bias": "index points on base 100",
+                               "links": "ratio, 1 = no change"}
+    series_csv = client.post("/v1/index-series?format=csv", json=series_request(model=None))
+    assert series_csv.headers["dualcost-scale"].startswith("indices: levels, 2025-01 = 100; ")

@@ -18,6 +18,11 @@ SCALE_RATIO: dict[str, str] = {
 }
 
 
+def scale_headers(scale: dict[str, str]) -> dict[str, str]:
+    """The scale as a CSV answer states it: ``Dualcost-Scale: indices: ...; bias: ...``."""
+    return {"Dualcost-Scale": "; ".join(f"{k}: {v}" for k, v in scale.items() if v)}
+
+
 def item_refs(positions: Iterable[int], ids: Sequence[str],
               labels: Sequence[str | None]) -> list[dict[str, Any]]:
     """The items at ``positions`` (0-based, as the core gives them) by id and label."""

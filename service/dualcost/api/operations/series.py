@@ -27,7 +27,7 @@ from ..inputs.query import json_parameter, names
 from ..observability import computing
 from ..schemas.common import CAUTION
 from ..schemas.series import SeriesOptions
-from .answers import notices_json
+from .answers import SCALE_RATIO, notices_json
 
 #: Where each core argument of a series is: in the JSON body, in the query string (the CSV
 #: upload's options and the spreadsheet form) and in the CSV upload's columns.
@@ -203,10 +203,7 @@ def document(outcome: Outcome) -> dict[str, Any]:
         "lloyd_moulton_sigma": r.lloyd_moulton_sigma, "new_goods_sigma": r.new_goods_sigma,
         "notices": dialect_notices(outcome.dialect)
         + notices_json(r.notices, outcome.axis.ids, outcome.axis.labels),
-        "scale": {"levels": f"index levels on the reference period = {r.reference_value:g}",
-                  "links": "period-to-period links as ratios (1 = no change)",
-                  "bias_points": "index points on reference 100, whatever reference_value is",
-                  "percent": "percent"},
+        "scale": scale(outcome),
         "caution": CAUTION,
     }
 
@@ -225,6 +222,13 @@ def _konus(outcome: Outcome) -> dict[str, Any] | None:
         "model_parameters": dict(outcome.model.parameters()) if outcome.model is not None else {},
         "rule_for_items_that_come_and_go": MODEL_RULE,
     }
+
+
+def scale(outcome: Outcome) -> dict[str, str]:
+    """How the series' levels, links and biases are written (the words every answer uses)."""
+    r = outcome.result
+    return {"indices": f"levels, {r.periods[r.reference]} = {r.reference_value:g}",
+            "bias": SCALE_RATIO["bias"], "links": SCALE_RATIO["indices"]}
 
 
 def _values(values: np.ndarray) -> list[float | None]:

@@ -9,6 +9,7 @@ from fastapi.responses import Response
 
 from ..deps import settings_of
 from ..operations import compare
+from ..operations.answers import SCALE_RATIO, scale_headers
 from ..provenance import of_body
 from ..render import CSV_ANSWER, Format, ProvenanceQuery, csv_response, format_query, json_response, negotiate
 from ..routing import JsonRoute, inline_when_small
@@ -46,5 +47,6 @@ def compare_prices(body: ComparisonRequest, request: Request,
     if fmt == "csv":
         header, rows = compare.table(outcome)
         return csv_response(header, rows, provenance=of_body(body),
-                            trailer=provenance == "trailer", filename="comparison.csv")
+                            trailer=provenance == "trailer", filename="comparison.csv",
+                            headers=scale_headers(SCALE_RATIO))
     return json_response(compare.document(outcome), provenance=of_body(body))

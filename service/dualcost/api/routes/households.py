@@ -25,7 +25,7 @@ from starlette.types import Receive, Scope, Send
 from ..deps import settings_of
 from ..inputs.csv import CSV_REQUEST_BODY, DecimalParam, DeclaredDialect, SeparatorParam
 from ..operations import households, jobs
-from ..operations.answers import SCALE_RATIO
+from ..operations.answers import SCALE_RATIO, scale_headers
 from ..problems import PROBLEM_MEDIA_TYPE
 from ..provenance import Provenance, of_body
 from ..render import (
@@ -64,7 +64,7 @@ NO_JOB = {"description": "No such job in this process (or it belongs to another 
 
 
 #: The scale of a CSV answer's figures, in a header (a JSON answer has it as ``scale``).
-SCALE_HEADERS = {"Dualcost-Scale": "; ".join(f"{k}: {v}" for k, v in SCALE_RATIO.items())}
+SCALE_HEADERS = scale_headers(SCALE_RATIO)
 
 
 def _store(request: Request) -> jobs.JobStore:

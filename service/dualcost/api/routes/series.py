@@ -13,6 +13,7 @@ from ..inputs.csv import CSV_REQUEST_BODY, DecimalParam, DeclaredDialect, Separa
 from ..inputs.panels import panel_from_csv, panel_from_json
 from ..inputs.query import validated
 from ..operations import series
+from ..operations.answers import scale_headers
 from ..provenance import Provenance, UploadSha256, of_body, of_upload, query_of
 from ..render import (
     CSV_ANSWER,
@@ -76,9 +77,11 @@ def _answer(outcome: series.Outcome, fmt: str, provenance: Provenance, place: st
     if fmt == "csv":
         header, rows = series.table(outcome)
         dialect = outcome.dialect
+        headers = scale_headers(series.scale(outcome))
+        if dialect is not None:
+            headers |= dialect.headers()
         return csv_response(header, rows, provenance=provenance, trailer=place == "trailer",
-                            filename="index-series.csv",
-                            headers=None if dialect is None else dialect.headers())
+                            filename="index-series.csv", headers=headers)
     return json_response(series.document(outcome), provenance=provenance)
 
 

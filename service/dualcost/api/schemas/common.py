@@ -76,9 +76,13 @@ class NoticeOut(StrictModel):
 class ScaleOut(StrictModel):
     """The scale of the answer's figures (the same words in every answer that has them)."""
 
-    indices: str = Field(description="How the indices are written: 'ratio, 1 = no change'.")
+    indices: str = Field(description="How the indices are written: 'ratio, 1 = no change' "
+                                     "(comparisons, households), or 'levels, <reference "
+                                     "period> = <reference value>' (series).")
     bias: str = Field(description="How a bias is written: 'index points on base 100', that is "
-                                  "100 (index - Konüs index).")
+                                  "100 (index - Konüs index), in every answer.")
+    links: str | None = Field(None, description="Series only: period-to-period links, "
+                                                "'ratio, 1 = no change'.")
 
 
 class ValidityOut(StrictModel):

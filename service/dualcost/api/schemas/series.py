@@ -14,6 +14,7 @@ from .common import (
     ItemIn,
     NoticeOut,
     ProvenanceOut,
+    ScaleOut,
     ShareUnit,
     StrictModel,
     VectorIn,
@@ -249,7 +250,7 @@ class SeriesResponse(StrictModel):
     lloyd_moulton_sigma: float | None
     new_goods_sigma: float | None
     notices: list[NoticeOut]
-    scale: dict[str, str] = Field(description="How each kind of figure is scaled.")
+    scale: ScaleOut = Field(description="How the levels, links and biases are scaled.")
     caution: str
     provenance: ProvenanceOut
 
