@@ -15,14 +15,17 @@ field), big integers, and repeated keys (the last one counts, as with ``json.loa
 is not JSON still becomes the 400 ``malformed-request`` problem, with the parser's message.
 
 **Where a computation runs.** FastAPI runs a plain (``def``) endpoint in a thread, so the event
-loop stays free while it computes. For a small request the handoff costs more than the
+loop stays free while it computes. For a cheap request the handoff costs more than the
 computation: in a loaded worker, moving a 300-item comparison (27 kB) to a thread and back
 costs about a fifth of its throughput, because the computation holds the interpreter lock
-either way. An endpoint decorated with :func:`inline_when_small` therefore runs on the event
-loop when the request body is at most ``inline_compute_max_bytes`` (a GET has no body), and in
-the compute threads otherwise. Only operations whose work grows with the size of the request
-use it (comparisons, index series, audits, the spreadsheet forms); model fits and household
-batches always use the threads.
+either way. An endpoint decorated with :func:`inline_when_cheap` therefore runs on the event
+loop when the work its request asks for, estimated from its model and sizes by
+:mod:`dualcost.api.workload`, is at most ``inline_compute_max_work`` (about microseconds) and its
+body is at most ``inline_compute_max_bytes``; otherwise, and always for the families that solve
+numerically (utility formulas, demand systems integrated along a path), in the compute threads,
+where the interpreter switches to the event loop every few milliseconds and the probes keep
+answering. Only operations whose work can be small use it (comparisons, index series, audits,
+the spreadsheet forms); model fits and household batches always use the threads.
 """
 
 from __future__ import annotations
@@ -31,7 +34,7 @@ import contextvars
 import functools
 import json
 import re
-from collections.abc import Callable, Coroutine
+from collections.abc import Callable, Coroutine, Mapping
 from typing import Any, ParamSpec, TypeVar
 
 from fastapi import Request, Response
@@ -44,8 +47,10 @@ from starlette.types import Receive, Scope
 P = ParamSpec("P")
 T = TypeVar("T")
 
-#: Whether the request being served is small enough to compute on the event loop.
-_SMALL_REQUEST: contextvars.ContextVar[bool] = contextvars.ContextVar("small_request", default=False)
+#: The work (in :mod:`~dualcost.api.workload` units) up to which the request being served may
+#: compute on the event loop; negative when its body is too large for that.
+_INLINE_BUDGET: contextvars.ContextVar[float] = contextvars.ContextVar("inline_budget",
+                                                                       default=-1.0)
 
 _WHERE = re.compile(r"line (\d+) column (\d+)")
 
@@ -105,42 +110,51 @@ def _body_model(route: APIRoute) -> type[BaseModel] | None:
     return None
 
 
-def _is_small(request: Request) -> bool:
-    """A body of at most the service's ``inline_compute_max_bytes`` (none for GET and HEAD; a
-    body of unknown length, sent in chunks, counts as large)."""
-    if request.method in ("GET", "HEAD"):
-        return True
-    limit = request.app.state.settings.inline_compute_max_bytes
-    length = request.headers.get("content-length")
-    return length is not None and length.isdigit() and int(length) <= limit
+def _inline_budget(request: Request) -> float:
+    """The service's ``inline_compute_max_work`` for a body of at most its
+    ``inline_compute_max_bytes`` (none for GET and HEAD), else -1: a body of unknown length,
+    sent in chunks, counts as large."""
+    settings = request.app.state.settings
+    if request.method not in ("GET", "HEAD"):
+        length = request.headers.get("content-length")
+        if not (length is not None and length.isdigit()
+                and int(length) <= settings.inline_compute_max_bytes):
+            return -1.0
+    return float(settings.inline_compute_max_work)
 
 
 class JsonRoute(APIRoute):
-    """A route whose handler receives a :class:`JsonRequest`, and knows whether the request is
-    small (for :func:`inline_when_small`)."""
+    """A route whose handler receives a :class:`JsonRequest`, and knows how much work its
+    request may do on the event loop (for :func:`inline_when_cheap`)."""
 
     def get_route_handler(self) -> Callable[[Request], Coroutine[Any, Any, Response]]:
         handler = super().get_route_handler()
         model = _body_model(self)
 
         async def parse_with_pydantic_core(request: Request) -> Response:
-            token = _SMALL_REQUEST.set(_is_small(request))
+            token = _INLINE_BUDGET.set(_inline_budget(request))
             try:
                 return await handler(JsonRequest(request.scope, request.receive, model))
             finally:
-                _SMALL_REQUEST.reset(token)
+                _INLINE_BUDGET.reset(token)
 
         return parse_with_pydantic_core
 
 
-def inline_when_small(endpoint: Callable[P, T]) -> Callable[P, Coroutine[Any, Any, T]]:
-    """Run a plain endpoint on the event loop for a small request, in a compute thread for a
-    large one (see the module's notes). The endpoint keeps its signature for FastAPI."""
+def inline_when_cheap(estimate: Callable[[Mapping[str, Any]], float],
+                      ) -> Callable[[Callable[P, T]], Callable[P, Coroutine[Any, Any, T]]]:
+    """Run a plain endpoint on the event loop when ``estimate`` of its arguments (by name, as
+    FastAPI passes them) is within the request's inline budget, else in a compute thread (see
+    the module's notes). The endpoint keeps its signature for FastAPI."""
 
-    @functools.wraps(endpoint)
-    async def dispatch(*args: P.args, **kwargs: P.kwargs) -> T:
-        if _SMALL_REQUEST.get():
-            return endpoint(*args, **kwargs)
-        return await run_in_threadpool(endpoint, *args, **kwargs)
+    def decorate(endpoint: Callable[P, T]) -> Callable[P, Coroutine[Any, Any, T]]:
+        @functools.wraps(endpoint)
+        async def dispatch(*args: P.args, **kwargs: P.kwargs) -> T:
+            budget = _INLINE_BUDGET.get()
+            if budget >= 0 and estimate(kwargs) <= budget:
+                return endpoint(*args, **kwargs)
+            return await run_in_threadpool(endpoint, *args, **kwargs)
 
-    return dispatch
+        return dispatch
+
+    return decorate

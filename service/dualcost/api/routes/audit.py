@@ -5,10 +5,11 @@ from __future__ import annotations
 from fastapi import APIRouter, Request
 from fastapi.responses import Response
 
+from .. import workload
 from ..deps import settings_of
 from ..operations import audit
 from ..render import json_response
-from ..routing import JsonRoute, inline_when_small
+from ..routing import JsonRoute, inline_when_cheap
 from ..schemas.audit import AuditRequest, AuditResponse
 
 router = APIRouter(route_class=JsonRoute, prefix="/v1", tags=["audits"])
@@ -16,7 +17,7 @@ router = APIRouter(route_class=JsonRoute, prefix="/v1", tags=["audits"])
 
 @router.post("/audits", operation_id="auditPublishedSeries", response_model=AuditResponse,
              summary="Recompute published index numbers from their panel and compare")
-@inline_when_small
+@inline_when_cheap(workload.of_series)
 def audit_published(body: AuditRequest, request: Request) -> Response:
     """The panel (prices with quantities or expenditures, as for POST /v1/index-series, with
     the same options: base period, reference value 1 or 100...) and the published values,

@@ -5,10 +5,11 @@ from __future__ import annotations
 from fastapi import APIRouter, Request
 from fastapi.responses import Response
 
+from .. import workload
 from ..deps import settings_of
 from ..operations import compare
 from ..render import json_response
-from ..routing import JsonRoute, inline_when_small
+from ..routing import JsonRoute, inline_when_cheap
 from ..schemas.comparison import ComparisonRequest, ComparisonResponse
 
 router = APIRouter(route_class=JsonRoute, prefix="/v1", tags=["comparisons"])
@@ -20,7 +21,7 @@ router = APIRouter(route_class=JsonRoute, prefix="/v1", tags=["comparisons"])
     summary="Compare two price situations: Konüs index, formula indices, bias, compensation",
     response_model=ComparisonResponse,
 )
-@inline_when_small
+@inline_when_cheap(workload.of_comparison)
 def compare_prices(body: ComparisonRequest, request: Request) -> Response:
     """Calibrate the chosen preference model to the base budget, evaluate its expenditure
     function at base and current prices, and set the true (Konüs) cost-of-living index beside
