@@ -128,10 +128,10 @@ def test_live_answers_within_100_ms_while_the_costliest_formula_computes(formula
               f"{statistics.median(busy) * 1000:.1f} ms, max {max(busy) * 1000:.1f} ms over "
               f"{len(busy)} probes")
     assert answer["status"] in (200, 503), answer
-    assert answer["seconds"] > 1.0, answer
+    assert answer["seconds"] > 0.3, answer
     # ...and every /live answered meanwhile within the limit.
     assert max(busy) < LIVE_LIMIT_SECONDS, report
-    assert len(busy) >= 10, report
+    assert len(busy) >= 5, report
 
 
 # -- the estimates -----------------------------------------------------------------------------

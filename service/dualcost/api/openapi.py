@@ -39,7 +39,8 @@ class ProblemOut(BaseModel):
 _ALWAYS = {
     "400": "The body is not valid JSON.",
     "413": "The request body is larger than the limit.",
-    "422": "The request breaks a rule; `errors` points at each field.",
+    "422": "The request breaks a rule (`errors` points at each field), or the computation "
+           "left the floating-point range (`errors` names the likely input).",
     "500": "Internal error (a bug: please report it).",
 }
 _PROTECTED = {
@@ -47,6 +48,7 @@ _PROTECTED = {
     "429": "This API key's rate limit is used up (when configured); see Retry-After.",
 }
 _COMPUTING = {"503": "The computation ran past the service's compute deadline."}
+_JSON_BODY = "The body was sent with a Content-Type other than JSON (application/json)."
 
 
 def problem_openapi(app: FastAPI) -> dict[str, Any]:
@@ -67,6 +69,8 @@ def problem_openapi(app: FastAPI) -> dict[str, Any]:
             extra = dict(_ALWAYS)
             if path.startswith("/v1/"):
                 extra |= _PROTECTED | (_COMPUTING if method in ("get", "post") else {})
+            if "application/json" in op.get("requestBody", {}).get("content", {}):
+                extra["415"] = _JSON_BODY
             for code, text in extra.items():
                 responses.setdefault(code, {"description": text})
             for code, response in responses.items():

@@ -11,8 +11,12 @@ every broken rule as before.
 
 The rules a body meets do not change. ``from_json`` accepts what ``json.loads`` accepts,
 including ``NaN`` and ``Infinity`` (which validation then refuses with a problem naming the
-field), big integers, and repeated keys (the last one counts, as with ``json.loads``). Text that
-is not JSON still becomes the 400 ``malformed-request`` problem, with the parser's message.
+field) and repeated keys (the last one counts, as with ``json.loads``). Text that is not JSON
+still becomes the 400 ``malformed-request`` problem, with the parser's message. Before parsing,
+:func:`check_json_body` refuses a body that is not sent as JSON (415) and any number literal
+beyond the floating-point range or below the smallest normal float, wherever it is (422 with a
+pointer to each); a body nesting deeper than the parser reads is refused with a pointer too
+(:mod:`dualcost.api.inputs.json_text`, :mod:`dualcost.api.problems`).
 
 **Where a computation runs.** FastAPI runs a plain (``def``) endpoint in a thread, so the event
 loop stays free while it computes. For a cheap request the handoff costs more than the
@@ -37,12 +41,15 @@ import re
 from collections.abc import Callable, Coroutine, Mapping
 from typing import Any, ParamSpec, TypeVar
 
-from fastapi import Request, Response
+from fastapi import Request, Response, params
 from fastapi.routing import APIRoute
 from pydantic import BaseModel, ValidationError
 from pydantic_core import from_json
 from starlette.concurrency import run_in_threadpool
 from starlette.types import Receive, Scope
+
+from .inputs import json_text
+from .problems import RequestProblem
 
 P = ParamSpec("P")
 T = TypeVar("T")
@@ -123,18 +130,58 @@ def _inline_budget(request: Request) -> float:
     return float(settings.inline_compute_max_work)
 
 
+def _is_json(media_type: str) -> bool:
+    """``application/json`` or ``application/<anything>+json``, with any parameters."""
+    main, _, sub = media_type.split(";", 1)[0].strip().lower().partition("/")
+    return main == "application" and (sub == "json" or sub.endswith("+json"))
+
+
+#: Bodies up to this size are scanned for out-of-range numbers on the event loop (a few
+#: milliseconds at most); larger ones in a compute thread.
+_SCAN_INLINE_BYTES = 65_536
+
+
+async def check_json_body(request: Request) -> None:
+    """The rules a JSON body meets before it is parsed: a JSON media type (415 otherwise, and
+    for a body without a Content-Type, which FastAPI would not read as JSON), and no number
+    literal beyond the
+    floating-point range or below the smallest normal float (422 naming each; see
+    :mod:`dualcost.api.inputs.json_text`)."""
+    body = await request.body()
+    media = request.headers.get("content-type")
+    if body and (media is None or not _is_json(media)):
+        sent = "without a Content-Type" if media is None else f"as {media!r}"
+        raise RequestProblem.at("#/header/content-type", "must be application/json: this "
+                                f"operation takes a JSON body, and the body was sent {sent}",
+                                slug="unsupported-media-type")
+    request.state.json_body = body  # for a problem that names an input (problems.py)
+    if json_text.may_hold(body):
+        if len(body) <= _SCAN_INLINE_BYTES:
+            errors = json_text.number_errors(body)
+        else:
+            errors = await run_in_threadpool(json_text.number_errors, body)
+        if errors:
+            raise RequestProblem(errors)
+
+
 class JsonRoute(APIRoute):
-    """A route whose handler receives a :class:`JsonRequest`, and knows how much work its
-    request may do on the event loop (for :func:`inline_when_cheap`)."""
+    """A route whose handler receives a :class:`JsonRequest` whose body met
+    :func:`check_json_body`, and knows how much work its request may do on the event loop (for
+    :func:`inline_when_cheap`)."""
 
     def get_route_handler(self) -> Callable[[Request], Coroutine[Any, Any, Response]]:
         handler = super().get_route_handler()
         model = _body_model(self)
+        takes_json = self.body_field is not None and not isinstance(self.body_field.field_info,
+                                                                    params.Form)
 
         async def parse_with_pydantic_core(request: Request) -> Response:
             token = _INLINE_BUDGET.set(_inline_budget(request))
             try:
-                return await handler(JsonRequest(request.scope, request.receive, model))
+                json_request = JsonRequest(request.scope, request.receive, model)
+                if takes_json:
+                    await check_json_body(json_request)
+                return await handler(json_request)
             finally:
                 _INLINE_BUDGET.reset(token)
 

@@ -14,7 +14,7 @@ from typing import Annotated, Any, Literal
 
 from pydantic import Field, model_validator
 
-from .common import FiniteFloat, ItemIn, NoticeOut, StrictModel, VectorIn
+from .common import FiniteFloat, ItemIn, NoticeOut, StrictInt, StrictModel, VectorIn
 from .comparison import ComparisonResponse, CurrentIn, FormulaName, WeightReferenceIn
 
 FittedFamily = Literal["ces", "nested_ces", "stone_geary", "aids", "quaids"]
@@ -77,11 +77,11 @@ class FitRequest(StrictModel):
     normalise_shares: bool = Field(
         False, description="Divide shares that do not sum to 1 by their sum; the answer says so.")
     model: FitModelIn
-    confidence_level: float = Field(0.95, gt=0.0, lt=1.0, description="Of every interval.")
+    confidence_level: FiniteFloat = Field(0.95, gt=0.0, lt=1.0, description="Of every interval.")
     elasticities_at: PointIn | None = Field(
         None, description="Where to evaluate elasticities (default: the sample's weighted "
                           "geometric mean prices and total expenditure).")
-    max_iterations: int = Field(200, ge=1, le=1000, description="Of the iterated least squares.")
+    max_iterations: StrictInt = Field(200, ge=1, le=1000, description="Of the iterated least squares.")
     residuals: bool = Field(True, description="Include each observation's fitted shares and "
                             "residuals.")
 
@@ -131,8 +131,8 @@ class FitComparisonIn(StrictModel):
 class UncertaintyIn(StrictModel):
     """The parametric bootstrap behind the intervals."""
 
-    draws: int = Field(500, ge=10, description="Parameter draws.")
-    seed: int = Field(0, ge=0, description="Seed of the random generator (same seed, same "
+    draws: StrictInt = Field(500, ge=10, description="Parameter draws.")
+    seed: StrictInt = Field(0, ge=0, description="Seed of the random generator (same seed, same "
                       "interval).")
 
 

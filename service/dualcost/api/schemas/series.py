@@ -8,7 +8,15 @@ from typing import Annotated, Any, Literal
 from pydantic import Field, model_validator
 
 from ...core.indices import formulas_for
-from .common import FiniteFloat, ItemIn, NoticeOut, StrictModel, VectorIn
+from .common import (
+    FiniteFloat,
+    ItemIn,
+    NoticeOut,
+    StrictInt,
+    StrictModel,
+    VectorIn,
+    WholeNumber,
+)
 from .model import ModelSpec
 
 SeriesFormula = Literal[formulas_for("series")]  # type: ignore[valid-type]
@@ -43,7 +51,7 @@ class WeightReferenceIn(StrictModel):
 
 
 class GeksIn(StrictModel):
-    window: int | None = Field(None, ge=2, description="Rolling window in periods (default: a "
+    window: StrictInt | None = Field(None, ge=2, description="Rolling window in periods (default: a "
                                "year and one period, 13 for monthly data).")
     splice: Literal["movement", "window", "half", "mean"] = Field(
         "movement", description="How each new window joins the published series (Ivancic, "
@@ -62,8 +70,8 @@ class SeriesOptions(StrictModel):
                                             "the model is calibrated to it. Default: the first.")
     reference_period: PeriodLabel | None = Field(None, description="The index reference period "
                                                  "(default: the base period).")
-    reference_value: Literal[1, 100] = Field(100, description="The series' value in the index "
-                                             "reference period.")
+    reference_value: Annotated[Literal[1, 100], WholeNumber] = Field(
+        100, description="The series' value in the index reference period.")
     frequency: Literal["monthly", "quarterly", "annual"] | None = Field(
         None, description=FREQUENCY_TEXT + ".")
     formulas: list[SeriesFormula] | None = Field(  # type: ignore[valid-type]
