@@ -46,6 +46,7 @@ from ..core.errors import (
     InvalidInput,
     NumericalFailure,
 )
+from .inputs import json_text
 
 PROBLEM_MEDIA_TYPE = "application/problem+json"
 log = logging.getLogger("dualcost.api")
@@ -258,9 +259,7 @@ async def _on_validation_error(request: Request, exc: RequestValidationError) ->
         message = str(invalid.get("ctx", {}).get("error", "parse error"))
         if "recursion limit" in message and isinstance(exc.body, str):
             # Valid JSON nested deeper than the parser reads: a rule of this service, at a place.
-            from .inputs import json_text  # (it builds field errors: imported when needed)
-
-            errors = [await run_in_threadpool(json_text.depth_error, exc.body)]
+            errors = [FieldError(*await run_in_threadpool(json_text.depth_error, exc.body))]
             return problem_response("invalid-input", _summary(errors), errors=errors,
                                     instance=request.url.path)
         return problem_response("malformed-request", f"The body is not valid JSON: {message}.",
@@ -338,8 +337,6 @@ async def _on_numerical_failure(request: Request, exc: NumericalFailure) -> JSON
 def _extreme_query_number(request: Request) -> tuple[str, str] | None:
     """The query parameter (or its position in a list) holding the number farthest from 1 in
     magnitude, at least 1e100 or 1e-100 away, in the spreadsheet forms' query strings."""
-    from .inputs import json_text  # (it builds field errors: imported when needed)
-
     best: tuple[float, str, str] | None = None
     for name, text in request.query_params.multi_items():
         cells = text.replace(";", ",").split(",")
@@ -360,8 +357,6 @@ async def _likely_cause(request: Request) -> list[FieldError]:
     """The input named by a numerical failure: the number of the request farthest from 1 in
     magnitude when one is extreme (beyond 1e100 or 1e-100). A failure without one (a fit that
     does not converge) is told by its detail alone."""
-    from .inputs import json_text  # (it builds field errors: imported when needed)
-
     body = getattr(request.state, "json_body", None)
     if isinstance(body, bytes):
         found = await run_in_threadpool(json_text.extreme_number, body)

@@ -49,7 +49,7 @@ from starlette.concurrency import run_in_threadpool
 from starlette.types import Receive, Scope
 
 from .inputs import json_text
-from .problems import RequestProblem
+from .problems import FieldError, RequestProblem
 
 P = ParamSpec("P")
 T = TypeVar("T")
@@ -161,7 +161,7 @@ async def check_json_body(request: Request) -> None:
         else:
             errors = await run_in_threadpool(json_text.number_errors, body)
         if errors:
-            raise RequestProblem(errors)
+            raise RequestProblem([FieldError(*error) for error in errors])
 
 
 class JsonRoute(APIRoute):

@@ -25,8 +25,9 @@ import re
 import sys
 from collections.abc import Iterator
 
-from ..problems import FieldError
-from .locator import escape
+#: A problem's place and rule: ``(pointer, rule)`` (a field error of ``problems.py``, which
+#: imports this module).
+Located = tuple[str, str]
 
 #: Levels of objects and lists that the JSON parser (pydantic-core's) reads; one more is an error.
 MAX_DEPTH = 201
@@ -90,7 +91,10 @@ class _Frame:
         self.wants_key = is_object
 
     def token(self) -> str:
-        return escape(self.key) if self.is_object else str(self.index)
+        """The frame's reference token in a JSON Pointer (RFC 6901: '~' and '/' escaped)."""
+        if not self.is_object:
+            return str(self.index)
+        return self.key.replace("~", "~0").replace("/", "~1")
 
 
 def _pointer(stack: list[_Frame]) -> str:
@@ -153,18 +157,18 @@ def _walk(text: str) -> Iterator[tuple[str, str, list[_Frame]]]:
         yield ("number" if found.re is _NUMBER else "other"), found.group(), stack
 
 
-def number_errors(body: bytes, limit: int = 20) -> list[FieldError]:
+def number_errors(body: bytes, limit: int = 20) -> list[Located]:
     """Each number literal of ``body`` that breaks a rule of :func:`number_rule`, with its
     pointer (at most ``limit`` of them)."""
     text = body.decode("utf-8", errors="replace")
-    errors: list[FieldError] = []
+    errors: list[Located] = []
     for kind, token, stack in _walk(text):
         if kind != "number":
             continue
         rule = number_rule(token)
         if rule is not None:
             shown = token if len(token) <= 24 else f"{token[:12]}...{token[-6:]} ({len(token)} characters)"
-            errors.append(FieldError(_pointer(stack), f"{shown} {rule}"))
+            errors.append((_pointer(stack), f"{shown} {rule}"))
             if len(errors) >= limit:
                 break
     return errors
@@ -195,9 +199,9 @@ def extreme_number(body: bytes) -> tuple[str, str] | None:
     return None if best is None else (best[1], best[2])
 
 
-def depth_error(text: str) -> FieldError:
+def depth_error(text: str) -> Located:
     """Where ``text`` first nests deeper than :data:`MAX_DEPTH`."""
     for kind, _, stack in _walk(text):
         if kind == "open" and len(stack) >= MAX_DEPTH:
-            return FieldError(_pointer(stack), TOO_DEEP)
-    return FieldError("", TOO_DEEP)
+            return _pointer(stack), TOO_DEEP
+    return "", TOO_DEEP
