@@ -149,9 +149,8 @@ def _number_errors(body: bytes) -> list[tuple[str, str]]:
 async def check_json_body(request: Request) -> None:
     """The rules a JSON body meets before it is parsed: a JSON media type (415 otherwise, and
     for a body without a Content-Type, which FastAPI would not read as JSON), and no number
-    literal beyond the
-    floating-point range or below the smallest normal float (422 naming each; see
-    :mod:`dualcost.api.inputs.json_text`)."""
+    literal beyond the floating-point range or below the smallest normal float (422 naming
+    each; see :mod:`dualcost.api.inputs.json_text`)."""
     body = await request.body()
     media = request.headers.get("content-type")
     if body and (media is None or not _is_json(media)):
@@ -161,7 +160,7 @@ async def check_json_body(request: Request) -> None:
                                 slug="unsupported-media-type")
     request.state.json_body = body  # for a problem that names an input (problems.py)
     if len(body) <= _SCAN_INLINE_BYTES:
-        errors = json_text.number_errors(body) if json_text.may_hold(body) else []
+        errors = _number_errors(body)
     else:
         errors = await run_in_threadpool(_number_errors, body)
     if errors:
