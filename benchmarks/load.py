@@ -99,7 +99,9 @@ LABELS = {"dualcost": "dualcost", "echo": "echo", "threads": "dualcost, compute 
 
 def server(name: str, port: int) -> tuple[list[str], dict[str, str], str, str]:
     """Command, environment, load URL and readiness URL of one target."""
-    env = dict(os.environ, PYTHONPATH=str(HERE))
+    # benchmarks/ first, then any path given (a worktree's service/ rather than the installed one)
+    env = dict(os.environ, PYTHONPATH=os.pathsep.join(
+        p for p in (str(HERE), os.environ.get("PYTHONPATH", "")) if p))
     if name == "echo":
         cmd = [sys.executable, "-m", "uvicorn", "echo_app:app", "--port", str(port),
                "--workers", "2", "--log-level", "warning", "--no-access-log"]

@@ -22,8 +22,14 @@ class Settings(BaseSettings):
                                  "computes at the same time (the rest wait their turn).")
     inline_compute_max_bytes: int = Field(
         65_536, ge=0, description="Comparisons, index series, audits and spreadsheet requests "
-        "whose body is at most this many bytes are computed on the worker's event loop, where "
-        "they cost less than a thread handoff; larger ones use the compute threads (0: always).")
+        "whose body is at most this many bytes, and whose estimated work is at most "
+        "inline_compute_max_work, are computed on the worker's event loop, where they cost less "
+        "than a thread handoff; the others use the compute threads (0: always).")
+    inline_compute_max_work: int = Field(
+        10_000, ge=0, description="The estimated work (about microseconds: from the model "
+        "family, the items, the periods) up to which a request may compute on the worker's "
+        "event loop; utility formulas and demand systems integrated along a path always use "
+        "the compute threads (0: every request does).")
     examples_dir: Path = Field(
         _REPO_EXAMPLES,
         description="Folder of example request bodies shown in the OpenAPI document.",

@@ -39,8 +39,13 @@ def test_a_list_option_and_a_scalar() -> None:
     assert loc.pointer("m0", 7) == "/base/expenditure"
 
 
-def test_an_argument_without_a_place_names_itself_in_the_detail() -> None:
+def test_an_argument_without_a_place_names_itself_at_the_model() -> None:
+    """An argument the request does not carry (the model's demands standing in for current
+    quantities) is the model's: the error points at the model and names the argument."""
     error = _json().error(InvalidInput("mystery", "breaks a rule"))
+    assert (error.pointer, error.detail) == ("/model", "mystery: breaks a rule")
+    places = {k: v for k, v in compare.PLACES.items() if k != "model"}
+    error = Locator(places, items=ITEMS).error(InvalidInput("mystery", "breaks a rule"))
     assert (error.pointer, error.detail) == ("", "mystery: breaks a rule")
 
 

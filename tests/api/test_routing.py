@@ -1,5 +1,5 @@
-"""Where a computation runs: on the event loop for a small request, in a thread for a large one
-(service/dualcost/api/routing.py)."""
+"""Where a computation runs: on the event loop for a cheap request, in a thread for one that may
+be slow (service/dualcost/api/routing.py, service/dualcost/api/workload.py)."""
 
 from __future__ import annotations
 
@@ -10,27 +10,32 @@ from fastapi import APIRouter, FastAPI
 from fastapi.testclient import TestClient
 
 from dualcost.api.app import create_app
-from dualcost.api.routing import JsonRoute, inline_when_small
+from dualcost.api.routing import JsonRoute, inline_when_cheap
 from dualcost.config import Settings
 from tests.api.test_comparisons import small_request
 
 
-def _app(limit: int) -> FastAPI:
+def _app(limit: int, max_work: int = 10_000) -> FastAPI:
     app = FastAPI()
-    app.state.settings = Settings(inline_compute_max_bytes=limit)
+    app.state.settings = Settings(inline_compute_max_bytes=limit, inline_compute_max_work=max_work)
     router = APIRouter(route_class=JsonRoute)
 
     @router.get("/loop")
     async def loop_thread() -> int:
         return threading.get_ident()
 
+    def work_of(arguments) -> float:
+        """A made-up estimate: the number the request names as its work."""
+        body = arguments.get("body") or {}
+        return float(body.get("work", arguments.get("x", 0)))
+
     @router.post("/work")
-    @inline_when_small
-    def work(body: dict[str, str]) -> dict[str, int]:
+    @inline_when_cheap(work_of)
+    def work(body: dict[str, int]) -> dict[str, int]:
         return {"thread": threading.get_ident(), "keys": len(body)}
 
     @router.get("/work")
-    @inline_when_small
+    @inline_when_cheap(work_of)
     def work_get(x: int = 0) -> dict[str, int]:
         return {"thread": threading.get_ident(), "keys": x}
 
@@ -42,10 +47,22 @@ def _app(limit: int) -> FastAPI:
 def test_small_bodies_compute_on_the_event_loop(limit, inline) -> None:
     with TestClient(_app(limit)) as client:
         loop = client.get("/loop").json()
-        r = client.post("/work", json={"a": "x" * 20})
+        r = client.post("/work", json={"work": 10, "padding": 10**20})
         assert r.status_code == 200
-        assert r.json()["keys"] == 1
+        assert r.json()["keys"] == 2
         assert (r.json()["thread"] == loop) is inline
+
+
+@pytest.mark.parametrize("work,max_work,inline", [(10, 10_000, True), (10_000, 10_000, True),
+                                                  (10_001, 10_000, False), (1, 0, False)])
+def test_the_estimated_work_decides_and_not_the_size(work, max_work, inline) -> None:
+    """A small body whose work is estimated above the budget goes to a thread, and so does every
+    request when the budget is 0."""
+    with TestClient(_app(100_000, max_work)) as client:
+        loop = client.get("/loop").json()
+        r = client.post("/work", json={"work": work})
+        assert (r.json()["thread"] == loop) is inline
+        assert (client.get("/work", params={"x": work}).json()["thread"] == loop) is inline
 
 
 def test_a_get_has_no_body_and_computes_on_the_event_loop() -> None:
@@ -55,8 +72,8 @@ def test_a_get_has_no_body_and_computes_on_the_event_loop() -> None:
 
 def test_a_body_of_unknown_length_goes_to_a_thread() -> None:
     def chunks():
-        yield b'{"a": '
-        yield b'"b"}'
+        yield b'{"work": '
+        yield b'1}'
 
     with TestClient(_app(1_000_000)) as client:
         r = client.post("/work", content=chunks(), headers={"content-type": "application/json"})

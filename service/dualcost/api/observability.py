@@ -26,11 +26,13 @@ from collections.abc import Iterator
 from contextlib import contextmanager
 from typing import Any
 
+import numpy as np
 from prometheus_client import CONTENT_TYPE_LATEST, CollectorRegistry, Counter, Histogram, generate_latest
 from starlette.requests import ClientDisconnect
 from starlette.types import ASGIApp, Message, Receive, Scope, Send
 
 from ..core.deadline import deadline
+from ..core.errors import NumericalFailure
 from ..core.expressions import formula_limits
 
 REQUEST_ID: contextvars.ContextVar[str] = contextvars.ContextVar("request_id", default="-")
@@ -57,11 +59,28 @@ def compute_time(operation: str) -> Iterator[None]:
 
 
 @contextmanager
+def checked_arithmetic() -> Iterator[None]:
+    """Floating-point trouble as a :class:`NumericalFailure`: inside, an overflow, a division by
+    zero or an undefined operation raises (numpy's error state, which is per thread and per
+    context) rather than warning and carrying an infinity or NaN on into the answer, and a
+    linear-algebra failure on such values (an SVD that does not converge) is one too. The core
+    marks the places where it means to compute with infinities (``np.errstate`` of its own)."""
+    try:
+        with np.errstate(over="raise", divide="raise", invalid="raise"):
+            yield
+    except (FloatingPointError, OverflowError, ZeroDivisionError,
+            np.linalg.LinAlgError) as exc:
+        raise NumericalFailure("computation", "the arithmetic left the range of floating-point "
+                               f"numbers at these inputs ({exc})") from exc
+
+
+@contextmanager
 def computing(operation: str, settings: Any) -> Iterator[None]:
     """A request's computation: timed for the metrics, under the compute deadline and the
-    formula limits of the service's settings."""
+    formula limits of the service's settings, with its arithmetic checked
+    (:func:`checked_arithmetic`)."""
     with compute_time(operation), deadline(settings.compute_deadline_seconds), formula_limits(
-            settings.max_formula_chars, settings.max_formula_depth):
+            settings.max_formula_chars, settings.max_formula_depth), checked_arithmetic():
         yield
 
 

@@ -43,7 +43,8 @@ _ALWAYS = {
     "408": "The request (its header fields or its body) did not arrive within the read time.",
     "413": "The request body is larger than the limit.",
     "431": "The request's header fields are too large or too many.",
-    "422": "The request breaks a rule; `errors` points at each field.",
+    "422": "The request breaks a rule (`errors` points at each field), or the computation "
+           "left the floating-point range (`errors` names the likely input).",
     "500": "Internal error (a bug: please report it).",
 }
 _PROTECTED = {
@@ -55,6 +56,7 @@ _COMPUTING = {"503": "The computation ran past the service's compute deadline."}
 #: Every operation under /v1 that answers with a body honours the Accept header.
 _NEGOTIATED = {"406": "The Accept header admits none of the media types this operation "
                       "answers (listed in `acceptable`)."}
+_JSON_BODY = "The body was sent with a Content-Type other than JSON (application/json)."
 
 
 def problem_openapi(app: FastAPI) -> dict[str, Any]:
@@ -76,6 +78,8 @@ def problem_openapi(app: FastAPI) -> dict[str, Any]:
             if path.startswith("/v1/"):
                 extra |= _PROTECTED | (_COMPUTING | _NEGOTIATED if method in ("get", "post")
                                        else {})
+            if "application/json" in op.get("requestBody", {}).get("content", {}):
+                extra["415"] = _JSON_BODY
             for code, text in extra.items():
                 responses.setdefault(code, {"description": text})
             for code, response in responses.items():

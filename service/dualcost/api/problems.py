@@ -10,7 +10,7 @@ The web layer's exceptions join the core's tree (:mod:`dualcost.core.errors`)::
     DualcostError
      ├── InvalidInput, NumericalFailure, EngineUnavailable   the core's (see core.errors)
      ├── RequestProblem       bad input the web layer found, or a core error located in the
-     │                        request (422, or the slug it carries: 400, 413)
+     │                        request (422, or the slug it carries: 400, 413, 415)
      └── ServiceProblem       the service's state refuses the request
           ├── JobNotFound     404
           ├── JobConflict     409
@@ -32,6 +32,7 @@ from __future__ import annotations
 
 import json
 import logging
+import math
 from collections.abc import Iterable, Mapping, Sequence
 from dataclasses import dataclass
 from http import HTTPStatus
@@ -40,8 +41,10 @@ from typing import Any
 from fastapi import FastAPI, Request
 from fastapi.exceptions import RequestValidationError
 from fastapi.responses import JSONResponse, PlainTextResponse, Response
+from starlette.concurrency import run_in_threadpool
 from starlette.exceptions import HTTPException as StarletteHTTPException
-from starlette.types import Send
+from starlette.requests import ClientDisconnect
+from starlette.types import ASGIApp, Message, Receive, Scope, Send
 
 from ..core.errors import (
     DeadlineExceeded,
@@ -50,6 +53,7 @@ from ..core.errors import (
     InvalidInput,
     NumericalFailure,
 )
+from .inputs import json_text
 
 PROBLEM_MEDIA_TYPE = "application/problem+json"
 log = logging.getLogger("dualcost.api")
@@ -88,6 +92,10 @@ PROBLEM_TYPES: dict[str, ProblemType] = {
                     "second per DUALCOST_READ_MIN_BYTES_PER_SECOND bytes received). Nothing was "
                     "computed; the connection is closed after this answer: send the request "
                     "again."),
+        ProblemType("unsupported-media-type", 415, "The body's media type is not accepted",
+                    "This operation takes a JSON body: send it with 'Content-Type: "
+                    "application/json' (the CSV uploads take text/csv at their own addresses). "
+                    "The Content-Type header is named in `errors`."),
         ProblemType("unauthorized", 401, "An API key is needed",
                     "This service requires an API key in the X-API-Key header (or as "
                     "'Authorization: Bearer <key>')."),
@@ -301,9 +309,23 @@ def pointer_of(loc: tuple[Any, ...], body: Any = _NO_BODY, kind: str = "") -> st
     return prefix + "".join("/" + str(p).replace("~", "~0").replace("/", "~1") for p in kept)
 
 
+#: The rule for a number given as text, the same for every numeric field of every request.
+NUMBER_NOT_TEXT = ("must be a number, written as a JSON number and not as text (0.6, not "
+                   "\"0.6\"): no field of a request takes numbers as text")
+NUMBER_NOT_BOOL = "must be a number, not true or false"
+_NUMBER_TYPES = frozenset({"float_type", "int_type", "float_parsing", "int_parsing",
+                           "int_from_float"})
+
+
 def rule_of(err: Mapping[str, Any]) -> str:
     """One validation error's rule in plain words."""
     kind = err.get("type", "")
+    if kind in _NUMBER_TYPES:
+        given = err.get("input")
+        if isinstance(given, str):
+            return NUMBER_NOT_TEXT
+        if isinstance(given, bool):
+            return NUMBER_NOT_BOOL
     if kind == "finite_number":
         return "must be a finite number (not NaN or infinity)"
     if kind == "missing":
@@ -316,9 +338,14 @@ def rule_of(err: Mapping[str, Any]) -> str:
 async def _on_validation_error(request: Request, exc: RequestValidationError) -> Response:
     raw = exc.errors()
     if any(e.get("type") == "json_invalid" for e in raw):
-        ctx = next(e for e in raw if e.get("type") == "json_invalid").get("ctx", {})
-        return problem_response("malformed-request",
-                                f"The body is not valid JSON: {ctx.get('error', 'parse error')}.",
+        invalid = next(e for e in raw if e.get("type") == "json_invalid")
+        message = str(invalid.get("ctx", {}).get("error", "parse error"))
+        if "recursion limit" in message and isinstance(exc.body, str):
+            # Valid JSON nested deeper than the parser reads: a rule of this service, at a place.
+            errors = [FieldError(*await run_in_threadpool(json_text.depth_error, exc.body))]
+            return problem_response("invalid-input", _summary(errors), errors=errors,
+                                    instance=request.url.path)
+        return problem_response("malformed-request", f"The body is not valid JSON: {message}.",
                                 instance=request.url.path)
     errors = field_errors(raw, exc.body)
     if request.query_params.get("on_error") == "text":
@@ -331,10 +358,31 @@ async def _on_validation_error(request: Request, exc: RequestValidationError) ->
 def field_errors(raw: Iterable[Mapping[str, Any]], body: Any = _NO_BODY, *,
                  prefix: tuple[str, ...] = ()) -> list[FieldError]:
     """Pydantic's validation errors (``ValidationError.errors()``) as field errors pointing into
-    ``body``; ``prefix`` is put before each location (``("body",)`` for a model validated on its
-    own, as FastAPI reports the body's errors)."""
-    return [FieldError(pointer_of(prefix + tuple(e.get("loc", ())), body, e.get("type", "")),
-                       rule_of(e)) for e in raw]
+    ``body``, one per broken rule; ``prefix`` is put before each location (``("body",)`` for a
+    model validated on its own, as FastAPI reports the body's errors).
+
+    A value that fits none of the forms a field takes (an item: an id or an object; a vector: a
+    list or an object) is reported by pydantic once per form. The value's own form is the one
+    whose errors lie inside it, so an error saying the value is not of another form is left out
+    where there are errors inside; two or more at the same place become one.
+    """
+    located = [(pointer_of(prefix + tuple(e.get("loc", ())), body, e.get("type", "")),
+                str(e.get("type", "")), rule_of(e)) for e in raw]
+    holding = set()  # every place with an error inside it
+    for pointer, _, _ in located:
+        cut = pointer.rfind("/")
+        while cut >= 0 and pointer[:cut] not in holding:
+            holding.add(pointer[:cut])
+            cut = pointer.rfind("/", 0, cut)
+    kept: dict[str, list[str]] = {}
+    for pointer, kind, rule in located:
+        if kind.endswith("_type") and pointer in holding:
+            continue  # another form of the value, whose own errors are inside it
+        rules = kept.setdefault(pointer, [])
+        if rule not in rules:
+            rules.append(rule)
+    return [FieldError(pointer, rules[0] + "".join(f" (or: {r})" for r in rules[1:]))
+            for pointer, rules in kept.items()]
 
 
 def error_text(errors: list[FieldError]) -> str:
@@ -367,8 +415,46 @@ async def _on_engine_unavailable(request: Request, exc: EngineUnavailable) -> JS
 
 
 async def _on_numerical_failure(request: Request, exc: NumericalFailure) -> JSONResponse:
-    slug = "deadline-exceeded" if isinstance(exc, DeadlineExceeded) else "numerical-failure"
-    return problem_response(slug, str(exc), instance=request.url.path)
+    if isinstance(exc, DeadlineExceeded):
+        return problem_response("deadline-exceeded", str(exc), instance=request.url.path)
+    return problem_response("numerical-failure", str(exc), errors=await _likely_cause(request),
+                            instance=request.url.path)
+
+
+def _extreme_query_number(request: Request) -> tuple[str, str] | None:
+    """The query parameter (or its position in a list) holding the number farthest from 1 in
+    magnitude, at least 1e100 or 1e-100 away, in the spreadsheet forms' query strings."""
+    best: tuple[float, str, str] | None = None
+    for name, text in request.query_params.multi_items():
+        cells = text.replace(";", ",").split(",")
+        for i, cell in enumerate(cells):
+            try:
+                value = abs(float(cell.strip()))
+            except ValueError:
+                continue
+            if 0.0 < value < float("inf"):
+                decades = abs(math.log10(value))
+                where = f"#/query/{name}" + (f"/{i}" if len(cells) > 1 else "")
+                if decades >= json_text.EXTREME_DECADES and (best is None or decades > best[0]):
+                    best = (decades, where, cell.strip())
+    return None if best is None else (best[1], best[2])
+
+
+async def _likely_cause(request: Request) -> list[FieldError]:
+    """The input named by a numerical failure: the number of the request farthest from 1 in
+    magnitude when one is extreme (beyond 1e100 or 1e-100). A failure without one (a fit that
+    does not converge) is told by its detail alone."""
+    body = getattr(request.state, "json_body", None)
+    if isinstance(body, bytes):
+        found = await run_in_threadpool(json_text.extreme_number, body)
+    else:
+        found = _extreme_query_number(request)
+    if found is not None:
+        where, literal = found
+        return [FieldError(where, f"{literal} is the number of the request farthest from 1 in "
+                           "magnitude, and the likely cause: with numbers of ordinary size the "
+                           "computation stays within the floating-point range")]
+    return []
 
 
 async def _on_http_error(request: Request, exc: StarletteHTTPException) -> JSONResponse:
@@ -381,6 +467,43 @@ async def _on_unexpected(request: Request, exc: Exception) -> JSONResponse:
     log.exception("unhandled error on %s", request.url.path)
     return problem_response("internal-error", "The service failed to answer this request.",
                             instance=request.url.path)
+
+
+class UnexpectedErrorMiddleware:
+    """A bug answers a 500 problem and the connection stays open for the client's next request.
+
+    The framework's outermost error handler answers too, but then raises the error again to the
+    server, which closes the connection: a client's next request on it is reset. This layer, just
+    inside it, answers and logs the error and ends the request there. An error after the answer
+    has started (a stream cut halfway) can only end the connection, as HTTP allows no second
+    status; it is left to the server.
+    """
+
+    def __init__(self, app: ASGIApp) -> None:
+        self.app = app
+
+    async def __call__(self, scope: Scope, receive: Receive, send: Send) -> None:
+        if scope["type"] != "http":
+            await self.app(scope, receive, send)
+            return
+        started = False
+
+        async def tracking_send(message: Message) -> None:
+            nonlocal started
+            if message["type"] == "http.response.start":
+                started = True
+            await send(message)
+
+        try:
+            await self.app(scope, receive, tracking_send)
+        except ClientDisconnect:
+            raise  # not a bug: the client left; the request context ends it quietly (499)
+        except Exception:
+            if started:
+                raise
+            log.exception("unhandled error on %s", scope.get("path"))
+            await send_problem(send, "internal-error", "The service failed to answer this "
+                               "request.", instance=scope.get("path"))
 
 
 def _summary(errors: list[FieldError]) -> str:
@@ -400,3 +523,4 @@ def install(app: FastAPI) -> None:
     app.add_exception_handler(EngineUnavailable, _on_engine_unavailable)  # type: ignore[arg-type]
     app.add_exception_handler(StarletteHTTPException, _on_http_error)  # type: ignore[arg-type]
     app.add_exception_handler(Exception, _on_unexpected)
+    app.add_middleware(UnexpectedErrorMiddleware)

@@ -11,18 +11,25 @@ every broken rule as before.
 
 The rules a body meets do not change. ``from_json`` accepts what ``json.loads`` accepts,
 including ``NaN`` and ``Infinity`` (which validation then refuses with a problem naming the
-field), big integers, and repeated keys (the last one counts, as with ``json.loads``). Text that
-is not JSON still becomes the 400 ``malformed-request`` problem, with the parser's message.
+field) and repeated keys (the last one counts, as with ``json.loads``). Text that is not JSON
+still becomes the 400 ``malformed-request`` problem, with the parser's message. Before parsing,
+:func:`check_json_body` refuses a body that is not sent as JSON (415) and any number literal
+beyond the floating-point range or below the smallest normal float, wherever it is (422 with a
+pointer to each); a body nesting deeper than the parser reads is refused with a pointer too
+(:mod:`dualcost.api.inputs.json_text`, :mod:`dualcost.api.problems`).
 
 **Where a computation runs.** FastAPI runs a plain (``def``) endpoint in a thread, so the event
-loop stays free while it computes. For a small request the handoff costs more than the
+loop stays free while it computes. For a cheap request the handoff costs more than the
 computation: in a loaded worker, moving a 300-item comparison (27 kB) to a thread and back
 costs about a fifth of its throughput, because the computation holds the interpreter lock
-either way. An endpoint decorated with :func:`inline_when_small` therefore runs on the event
-loop when the request body is at most ``inline_compute_max_bytes`` (a GET has no body), and in
-the compute threads otherwise. Only operations whose work grows with the size of the request
-use it (comparisons, index series, audits, the spreadsheet forms); model fits and household
-batches always use the threads.
+either way. An endpoint decorated with :func:`inline_when_cheap` therefore runs on the event
+loop when the work its request asks for, estimated from its model and sizes by
+:mod:`dualcost.api.workload`, is at most ``inline_compute_max_work`` (about microseconds) and its
+body is at most ``inline_compute_max_bytes``; otherwise, and always for the families that solve
+numerically (utility formulas, demand systems integrated along a path), in the compute threads,
+where the interpreter switches to the event loop every few milliseconds and the probes keep
+answering. Only operations whose work can be small use it (comparisons, index series, audits,
+the spreadsheet forms); model fits and household batches always use the threads.
 """
 
 from __future__ import annotations
@@ -31,21 +38,26 @@ import contextvars
 import functools
 import json
 import re
-from collections.abc import Callable, Coroutine
+from collections.abc import Callable, Coroutine, Mapping
 from typing import Any, ParamSpec, TypeVar
 
-from fastapi import Request, Response
+from fastapi import Request, Response, params
 from fastapi.routing import APIRoute
 from pydantic import BaseModel, ValidationError
 from pydantic_core import from_json
 from starlette.concurrency import run_in_threadpool
 from starlette.types import Receive, Scope
 
+from .inputs import json_text
+from .problems import FieldError, RequestProblem
+
 P = ParamSpec("P")
 T = TypeVar("T")
 
-#: Whether the request being served is small enough to compute on the event loop.
-_SMALL_REQUEST: contextvars.ContextVar[bool] = contextvars.ContextVar("small_request", default=False)
+#: The work (in :mod:`~dualcost.api.workload` units) up to which the request being served may
+#: compute on the event loop; negative when its body is too large for that.
+_INLINE_BUDGET: contextvars.ContextVar[float] = contextvars.ContextVar("inline_budget",
+                                                                       default=-1.0)
 
 _WHERE = re.compile(r"line (\d+) column (\d+)")
 
@@ -105,42 +117,94 @@ def _body_model(route: APIRoute) -> type[BaseModel] | None:
     return None
 
 
-def _is_small(request: Request) -> bool:
-    """A body of at most the service's ``inline_compute_max_bytes`` (none for GET and HEAD; a
-    body of unknown length, sent in chunks, counts as large)."""
-    if request.method in ("GET", "HEAD"):
-        return True
-    limit = request.app.state.settings.inline_compute_max_bytes
-    length = request.headers.get("content-length")
-    return length is not None and length.isdigit() and int(length) <= limit
+def _inline_budget(request: Request) -> float:
+    """The service's ``inline_compute_max_work`` for a body of at most its
+    ``inline_compute_max_bytes`` (none for GET and HEAD), else -1: a body of unknown length,
+    sent in chunks, counts as large."""
+    settings = request.app.state.settings
+    if request.method not in ("GET", "HEAD"):
+        length = request.headers.get("content-length")
+        if not (length is not None and length.isdigit()
+                and int(length) <= settings.inline_compute_max_bytes):
+            return -1.0
+    return float(settings.inline_compute_max_work)
+
+
+def _is_json(media_type: str) -> bool:
+    """``application/json`` or ``application/<anything>+json``, with any parameters."""
+    main, _, sub = media_type.split(";", 1)[0].strip().lower().partition("/")
+    return main == "application" and (sub == "json" or sub.endswith("+json"))
+
+
+#: Bodies up to this size are checked for out-of-range numbers on the event loop (0.1 ms at
+#: most, a few milliseconds where a suspect spelling makes a scan needed); larger ones in a
+#: compute thread.
+_SCAN_INLINE_BYTES = 65_536
+
+
+def _number_errors(body: bytes) -> list[tuple[str, str]]:
+    return json_text.number_errors(body) if json_text.may_hold(body) else []
+
+
+async def check_json_body(request: Request) -> None:
+    """The rules a JSON body meets before it is parsed: a JSON media type (415 otherwise, and
+    for a body without a Content-Type, which FastAPI would not read as JSON), and no number
+    literal beyond the floating-point range or below the smallest normal float (422 naming
+    each; see :mod:`dualcost.api.inputs.json_text`)."""
+    body = await request.body()
+    media = request.headers.get("content-type")
+    if body and (media is None or not _is_json(media)):
+        sent = "without a Content-Type" if media is None else f"as {media!r}"
+        raise RequestProblem.at("#/header/content-type", "must be application/json: this "
+                                f"operation takes a JSON body, and the body was sent {sent}",
+                                slug="unsupported-media-type")
+    request.state.json_body = body  # for a problem that names an input (problems.py)
+    if len(body) <= _SCAN_INLINE_BYTES:
+        errors = _number_errors(body)
+    else:
+        errors = await run_in_threadpool(_number_errors, body)
+    if errors:
+        raise RequestProblem([FieldError(*error) for error in errors])
 
 
 class JsonRoute(APIRoute):
-    """A route whose handler receives a :class:`JsonRequest`, and knows whether the request is
-    small (for :func:`inline_when_small`)."""
+    """A route whose handler receives a :class:`JsonRequest` whose body met
+    :func:`check_json_body`, and knows how much work its request may do on the event loop (for
+    :func:`inline_when_cheap`)."""
 
     def get_route_handler(self) -> Callable[[Request], Coroutine[Any, Any, Response]]:
         handler = super().get_route_handler()
         model = _body_model(self)
+        takes_json = self.body_field is not None and not isinstance(self.body_field.field_info,
+                                                                    params.Form)
 
         async def parse_with_pydantic_core(request: Request) -> Response:
-            token = _SMALL_REQUEST.set(_is_small(request))
+            token = _INLINE_BUDGET.set(_inline_budget(request))
             try:
-                return await handler(JsonRequest(request.scope, request.receive, model))
+                json_request = JsonRequest(request.scope, request.receive, model)
+                if takes_json:
+                    await check_json_body(json_request)
+                return await handler(json_request)
             finally:
-                _SMALL_REQUEST.reset(token)
+                _INLINE_BUDGET.reset(token)
 
         return parse_with_pydantic_core
 
 
-def inline_when_small(endpoint: Callable[P, T]) -> Callable[P, Coroutine[Any, Any, T]]:
-    """Run a plain endpoint on the event loop for a small request, in a compute thread for a
-    large one (see the module's notes). The endpoint keeps its signature for FastAPI."""
+def inline_when_cheap(estimate: Callable[[Mapping[str, Any]], float],
+                      ) -> Callable[[Callable[P, T]], Callable[P, Coroutine[Any, Any, T]]]:
+    """Run a plain endpoint on the event loop when ``estimate`` of its arguments (by name, as
+    FastAPI passes them) is within the request's inline budget, else in a compute thread (see
+    the module's notes). The endpoint keeps its signature for FastAPI."""
 
-    @functools.wraps(endpoint)
-    async def dispatch(*args: P.args, **kwargs: P.kwargs) -> T:
-        if _SMALL_REQUEST.get():
-            return endpoint(*args, **kwargs)
-        return await run_in_threadpool(endpoint, *args, **kwargs)
+    def decorate(endpoint: Callable[P, T]) -> Callable[P, Coroutine[Any, Any, T]]:
+        @functools.wraps(endpoint)
+        async def dispatch(*args: P.args, **kwargs: P.kwargs) -> T:
+            budget = _INLINE_BUDGET.get()
+            if budget >= 0 and estimate(kwargs) <= budget:
+                return endpoint(*args, **kwargs)
+            return await run_in_threadpool(endpoint, *args, **kwargs)
 
-    return dispatch
+        return dispatch
+
+    return decorate

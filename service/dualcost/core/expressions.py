@@ -49,6 +49,7 @@ from typing import Any
 import numpy as np
 import numpy.typing as npt
 
+from .deadline import share_the_interpreter
 from .errors import InvalidInput
 
 #: Longest formula accepted, in characters (common practice for user-supplied text: a bound
@@ -640,6 +641,9 @@ def _runner(root: Node) -> Evaluator:
     steps = _program(root)
 
     def run(env: Mapping[str, Any]) -> Value:
+        # A solve evaluates formulas many times: let the process's other threads have the
+        # interpreter now and then (see dualcost.core.deadline).
+        share_the_interpreter()
         vals: list[Any] = []
         append = vals.append
         for step in steps:

@@ -37,6 +37,7 @@ import numpy as np
 from numpy.typing import NDArray
 from scipy.integrate import solve_ivp
 
+from .deadline import share_the_interpreter
 from .errors import DeadlineExceeded, InvalidInput
 
 # Not imported from preferences.base: the families import this module.
@@ -79,6 +80,7 @@ class Deadline:
         self.expires = None if self.seconds is None else time.monotonic() + self.seconds
 
     def check(self, doing: str) -> None:
+        share_the_interpreter()  # (see dualcost.core.deadline)
         if self.expires is not None and time.monotonic() > self.expires:
             raise DeadlineExceeded("deadline", f"the compute deadline of {self.seconds:g} s passed "
                                    f"while {doing}; the model is too slow to evaluate at these "

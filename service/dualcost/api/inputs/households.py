@@ -26,6 +26,7 @@ from numpy.typing import NDArray
 from ...core import _checks
 from ...core.errors import RowProblem
 from ...core.households import HouseholdChunk, HouseholdJob, check_quantiles
+from ..observability import checked_arithmetic
 from ..problems import FieldError, RequestProblem
 from ..schemas.households import HouseholdIndicesRequest, HouseholdJobSpec
 from .csv import Dialect
@@ -73,7 +74,8 @@ def job_of(spec: HouseholdJobSpec, loc: Locator, *, max_items: int, max_tree_dep
         rows.append(vector)
     parameters = {k: v for k, v in core_parameters(
         spec.model, axis, loc, max_tree_depth=max_tree_depth).items() if v is not None}
-    with loc.translating():
+    # Checking the job calibrates the model on a probe household: computing, checked as such.
+    with loc.translating(), checked_arithmetic():
         job = HouseholdJob.checked(
             spec.model.family, parameters, p0, np.stack(rows), formulas=spec.formulas,
             lloyd_moulton_sigma=spec.lloyd_moulton_sigma,

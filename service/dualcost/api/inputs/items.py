@@ -15,7 +15,7 @@ from typing import Any
 import numpy as np
 from numpy.typing import NDArray
 
-from ..problems import RequestProblem
+from ..problems import NUMBER_NOT_BOOL, NUMBER_NOT_TEXT, RequestProblem
 from .locator import Locator
 
 Array = NDArray[np.float64]
@@ -23,6 +23,18 @@ Array = NDArray[np.float64]
 
 def is_number(value: Any) -> bool:
     return isinstance(value, (int, float)) and not isinstance(value, bool)
+
+
+def number_rule(value: Any) -> str | None:
+    """The rule a value the schema did not check (a model parameter) breaks as a number, in
+    the words the schema's own numbers use, or ``None``."""
+    if isinstance(value, str):
+        return NUMBER_NOT_TEXT
+    if isinstance(value, bool):
+        return NUMBER_NOT_BOOL
+    if not is_number(value) or not math.isfinite(value):
+        return "must be a finite number"
+    return None
 
 
 @dataclass
@@ -89,11 +101,17 @@ class ItemAxis:
         return out
 
     def numbers(self, locator: Locator, name: str, value: Any) -> Array:
-        """A vector whose entries the request's schema did not check (a model parameter)."""
-        entries = value.values() if isinstance(value, dict) else value
-        if not isinstance(value, (list, dict)) or not all(map(is_number, entries)):
+        """A vector whose entries the request's schema did not check (a model parameter); an
+        entry that is not a finite number is named."""
+        if not isinstance(value, (list, dict)):
             raise locator.problem(name, "must be a vector: an object keyed by item id, or a list "
                                   "in item order, of numbers")
+        locator.given(name, value)
+        entries = value.items() if isinstance(value, dict) else enumerate(value)
+        for where, entry in entries:
+            rule = number_rule(entry)
+            if rule is not None:
+                raise locator.problem(name, rule, where)
         return self.vector(locator, name, value)
 
     def matrix(self, locator: Locator, name: str, value: Any) -> Array:
@@ -101,8 +119,11 @@ class ItemAxis:
         an object keyed by item id (entries left out are zero)."""
         n = len(self.ids)
         if isinstance(value, list) and value and all(isinstance(r, list) for r in value):
-            if not all(is_number(v) for row in value for v in row):
-                raise locator.problem(name, "must hold numbers only")
+            for r, row in enumerate(value):
+                for c, entry in enumerate(row):
+                    rule = number_rule(entry)
+                    if rule is not None:
+                        raise locator.problem(name, rule, (r, c))
             if len(value) != n or any(len(row) != n for row in value):
                 raise locator.problem(name, f"must be a {n} by {n} matrix (one row and one "
                                       "column per item, in the order of items)")
@@ -121,7 +142,8 @@ class ItemAxis:
                 if col_id not in self.position:
                     raise locator.problem(name, f"{col_id!r} is not an item id listed in items",
                                           (row_id, col_id))
-                if not is_number(v) or not math.isfinite(v):
-                    raise locator.problem(name, "must be a finite number", (row_id, col_id))
+                rule = number_rule(v)
+                if rule is not None:
+                    raise locator.problem(name, rule, (row_id, col_id))
                 out[self.position[row_id], self.position[col_id]] = v
         return out

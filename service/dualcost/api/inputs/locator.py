@@ -213,10 +213,14 @@ class Locator:
         return rule
 
     def error(self, exc: InvalidInput) -> FieldError:
-        """The core's error as a field error; one that points nowhere names the argument."""
+        """The core's error as a field error. An argument the request does not carry (the
+        model's demands standing in for current quantities) is named in the rule, at the
+        model's place where the request has one: the model produced it."""
         where = self.pointer(exc.parameter, exc.index)
         detail = self.detail(exc.parameter, exc.rule, exc.index)
-        return FieldError(where, detail if where else f"{exc.parameter}: {detail}")
+        if where:
+            return FieldError(where, detail)
+        return FieldError(self.pointer("model"), f"{exc.parameter}: {detail}")
 
     def field(self, name: str, rule: str, index: Any = None) -> FieldError:
         """A rule the web layer checks itself, at the place of argument ``name``."""

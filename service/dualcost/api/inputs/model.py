@@ -11,14 +11,13 @@ the field.
 
 from __future__ import annotations
 
-import math
 from collections.abc import Callable
 from typing import Any
 
 from ...core.preferences import FAMILIES, BaseBudget, Preferences, calibrate
 from ...core.preferences.nested_ces import ItemIdTree
 from ..schemas.model import ModelSpec
-from .items import ItemAxis, is_number
+from .items import ItemAxis, number_rule
 from .locator import Locator, Place, Shape
 
 
@@ -95,8 +94,9 @@ def _python_only(name: str, value: Any, axis: ItemAxis, locator: Locator) -> Any
 
 
 def _number(name: str, value: Any, axis: ItemAxis, locator: Locator) -> Any:
-    if not is_number(value) or not math.isfinite(value):
-        raise locator.problem(name, "must be a finite number")
+    rule = number_rule(value)
+    if rule is not None:
+        raise locator.problem(name, rule)
     return value
 
 
@@ -145,11 +145,10 @@ def _path(name: str, value: Any, axis: ItemAxis, locator: Locator) -> Any:
     for k, point in enumerate(value):
         here = f"{name}[{k}]"
         locator.add(here, Place(f"/model/{name}/{k}", shape="items", names_item=True))
-        entries = point.values() if isinstance(point, dict) else point
-        if not isinstance(point, (list, dict)) or not all(map(is_number, entries)):
+        if not isinstance(point, (list, dict)):
             raise locator.problem(here, "must be a price vector: an object keyed by item id, or a "
                                   "list in item order, of numbers")
-        points.append(axis.vector(locator, here, point))
+        points.append(axis.numbers(locator, here, point))
     return points
 
 

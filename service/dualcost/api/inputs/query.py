@@ -6,9 +6,10 @@ decimal mark and the values are separated by commas (or all by semicolons); a ca
 sheet writes decimal commas declares ``decimal=comma``, and then writes numbers with ',' as
 decimal mark, values separated by ';'. No grouping either way, and a number that could be read
 two ways (a '.' under ``decimal=comma``, more than one ',') is refused, not guessed. A value that
-is not a number is named by its position (``#/query/p0/2``). The body built from them is
-validated by the operation's own model, and its errors are named by query parameter through the
-operation's locator.
+is not a number is named by its position (``#/query/p0/2``), and so is one beyond the
+floating-point range or below the smallest normal float (the rule of every JSON body, see
+``json_text.py``). The body built from them is validated by the operation's own model, and its
+errors are named by query parameter through the operation's locator.
 """
 
 from __future__ import annotations
@@ -22,6 +23,7 @@ from pydantic import BaseModel, ValidationError
 from ..problems import FieldError, RequestProblem, field_errors
 from ..schemas.common import DecimalMark
 from .csv import parse_number
+from .json_text import number_rule
 from .locator import Locator
 
 
@@ -55,6 +57,9 @@ def _number(pointer: str, cell: str, decimal: DecimalMark) -> float:
         value = parse_number(cell.replace(",", "."))
     else:
         value = parse_number(cell)
+    rule = number_rule(cell.replace(",", ".") if decimal == "comma" else cell)
+    if rule is not None:  # beyond the floating-point range, or below the smallest normal float
+        raise RequestProblem([FieldError(pointer, f"{cell} {rule}")])
     if value is None:
         hint = ("use '.' as decimal point, no grouping" if decimal == "point"
                 else "use ',' as decimal mark, no grouping")

@@ -7,11 +7,12 @@ from typing import Annotated, Any, Literal
 from fastapi import APIRouter, Request
 from fastapi.responses import Response
 
+from .. import workload
 from ..deps import settings_of
 from ..operations import audit
 from ..provenance import of_body
 from ..render import CSV_ANSWER, Format, ProvenanceQuery, csv_response, format_query, json_response, negotiate
-from ..routing import JsonRoute, inline_when_small
+from ..routing import JsonRoute, inline_when_cheap
 from ..schemas.audit import AuditRequest, AuditResponse
 
 router = APIRouter(route_class=JsonRoute, prefix="/v1", tags=["audits"])
@@ -27,7 +28,7 @@ RESPONSES: dict[int | str, dict[str, Any]] = {
 @router.post("/audits", operation_id="auditPublishedSeries", response_model=AuditResponse,
              summary="Recompute published index numbers from their panel and compare",
              responses=RESPONSES)
-@inline_when_small
+@inline_when_cheap(workload.of_series)
 def audit_published(body: AuditRequest, request: Request,
                     format: Annotated[Literal["json", "csv"] | None, format_query(OFFERS)] = None,
                     provenance: ProvenanceQuery = "headers") -> Response:

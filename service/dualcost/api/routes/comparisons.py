@@ -7,12 +7,13 @@ from typing import Annotated, Any, Literal
 from fastapi import APIRouter, Request
 from fastapi.responses import Response
 
+from .. import workload
 from ..deps import settings_of
 from ..operations import compare
 from ..operations.answers import SCALE_RATIO, scale_headers
 from ..provenance import of_body
 from ..render import CSV_ANSWER, Format, ProvenanceQuery, csv_response, format_query, json_response, negotiate
-from ..routing import JsonRoute, inline_when_small
+from ..routing import JsonRoute, inline_when_cheap
 from ..schemas.comparison import ComparisonRequest, ComparisonResponse
 
 router = APIRouter(route_class=JsonRoute, prefix="/v1", tags=["comparisons"])
@@ -32,7 +33,7 @@ RESPONSES: dict[int | str, dict[str, Any]] = {
     response_model=ComparisonResponse,
     responses=RESPONSES,
 )
-@inline_when_small
+@inline_when_cheap(workload.of_comparison)
 def compare_prices(body: ComparisonRequest, request: Request,
                    format: Annotated[Literal["json", "csv"] | None, format_query(OFFERS)] = None,
                    provenance: ProvenanceQuery = "headers") -> Response:

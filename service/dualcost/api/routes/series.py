@@ -8,6 +8,7 @@ from typing import Annotated, Any, Literal
 from fastapi import APIRouter, Depends, Query, Request
 from fastapi.responses import Response
 
+from .. import workload
 from ..deps import settings_of
 from ..inputs.csv import CSV_REQUEST_BODY, DecimalParam, DeclaredDialect, SeparatorParam, csv_body
 from ..inputs.panels import panel_from_csv, panel_from_json
@@ -24,7 +25,7 @@ from ..render import (
     json_response,
     negotiate,
 )
-from ..routing import JsonRoute, inline_when_small
+from ..routing import JsonRoute, inline_when_cheap
 from ..schemas.series import SeriesOptions, SeriesRequest, SeriesResponse
 
 router = APIRouter(route_class=JsonRoute, prefix="/v1", tags=["series"])
@@ -88,7 +89,7 @@ def _answer(outcome: series.Outcome, fmt: str, provenance: Provenance, place: st
 @router.post("/index-series", operation_id="indexSeries",
              summary="Index series over a panel: fixed-base, chained, Konüs, bias, drift, GEKS",
              description=DESCRIPTION, response_model=SeriesResponse, responses=RESPONSES)
-@inline_when_small
+@inline_when_cheap(workload.of_series)
 def index_series(body: SeriesRequest, request: Request, format: FormatParam = None,
                  provenance: ProvenanceQuery = "headers") -> Response:
     fmt = negotiate(request, OFFERS, format)
@@ -104,7 +105,7 @@ def index_series(body: SeriesRequest, request: Request, format: FormatParam = No
              summary="Index series from a CSV panel in long form (one row per period and item)",
              description=CSV_DESCRIPTION + DESCRIPTION, response_model=SeriesResponse,
              responses=RESPONSES, openapi_extra=CSV_REQUEST_BODY)
-@inline_when_small
+@inline_when_cheap(workload.of_series_csv)
 def index_series_from_csv(
     text: Annotated[str, Depends(csv_body)],
     csv_sha256: UploadSha256,

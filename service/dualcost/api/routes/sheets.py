@@ -22,6 +22,7 @@ from typing import Annotated, Any, Literal
 from fastapi import APIRouter, Depends, Query, Request
 from fastapi.responses import PlainTextResponse, Response
 
+from .. import workload
 from ..deps import settings_of
 from ..inputs.locator import Place
 from ..inputs.panels import panel_from_json
@@ -37,7 +38,7 @@ from ..render import (
     SheetNumbers,
     negotiate,
 )
-from ..routing import JsonRoute, inline_when_small
+from ..routing import JsonRoute, inline_when_cheap
 from ..schemas.common import SHARE_UNIT_TEXT, DecimalMark, ShareUnit
 from ..schemas.comparison import ComparisonRequest
 from ..schemas.series import SeriesRequest
@@ -126,7 +127,7 @@ def _comparison(params: dict[str, Any], request: Request) -> tuple[compare.Outco
                              "regular at these prices and 0 when not (the model's figures and "
                              "the biases are then empty); with on_error=text a bad request is answered as "
                              "text/plain 'ERROR: ...'"}})
-@inline_when_small
+@inline_when_cheap(workload.of_sheet_comparison)
 def sheet_comparison(params: ComparisonQuery, request: Request,
                      provenance: ProvenanceQuery = "headers") -> Response:
     """The comparison as CSV: one row per measure (Konüs indices, formulas with their bias,
@@ -145,7 +146,7 @@ def sheet_comparison(params: ComparisonQuery, request: Request,
 @router.head("/value", include_in_schema=False)
 @router.get("/value", operation_id="sheetValue", response_class=PlainTextResponse,
             responses={200: {"content": {"text/plain": {}}, "description": "One number."}})
-@inline_when_small
+@inline_when_cheap(workload.of_sheet_comparison)
 def sheet_value(params: ComparisonQuery, request: Request,
                 measure: Measure = "konus_base") -> Response:
     """One number as text/plain, for a spreadsheet's web-fetch function."""
@@ -176,7 +177,7 @@ def sheet_value(params: ComparisonQuery, request: Request,
                              "description": "CSV: one row per period, one column per series (as "
                              "POST /v1/index-series answers in CSV); with on_error=text a bad "
                              "request is answered as text/plain 'ERROR: ...'"}})
-@inline_when_small
+@inline_when_cheap(workload.of_sheet_series)
 def sheet_series(
     request: Request,
     items: Annotated[str, Query(description="Item ids, comma-separated: the order of every row.")],

@@ -6,7 +6,7 @@ from typing import Literal
 
 from pydantic import Field
 
-from .common import FiniteFloat, ProvenanceOut, StrictModel
+from .common import FiniteFloat, ProvenanceOut, StrictInt, StrictModel
 from .series import PeriodLabel, PeriodValidityOut, SeriesFormula, SeriesRequest
 
 
@@ -15,7 +15,7 @@ class PublishedIn(StrictModel):
     series: Literal["fixed_base", "chained"] = "fixed_base"
     period: PeriodLabel
     value: FiniteFloat
-    decimals: int | None = Field(None, ge=0, le=15, description="Decimal places it was published "
+    decimals: StrictInt | None = Field(None, ge=0, le=15, description="Decimal places it was published "
                                  "with (sets its tolerance when `tolerance` is not given).")
 
 

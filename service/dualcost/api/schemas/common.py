@@ -5,9 +5,26 @@ from __future__ import annotations
 
 from typing import Annotated, Any, Literal
 
-from pydantic import BaseModel, ConfigDict, Field
+from pydantic import BaseModel, BeforeValidator, ConfigDict, Field
+from pydantic_core import PydanticCustomError
 
-FiniteFloat = Annotated[float, Field(allow_inf_nan=False)]
+#: One rule for every number of every request: a JSON number, never text (``0.6``, not
+#: ``"0.6"``) and never ``true``/``false``; strict validation refuses the others, naming the
+#: field (see ``problems.rule_of``). Integers are accepted where a number is.
+FiniteFloat = Annotated[float, Field(allow_inf_nan=False, strict=True)]
+StrictInt = Annotated[int, Field(strict=True)]
+
+
+def _whole_number(value: Any) -> Any:
+    """A JSON integer, not text, a bool or a float (for a choice of numbers, ``Literal[1, 100]``,
+    which takes no ``strict``)."""
+    if isinstance(value, bool) or not isinstance(value, int):
+        raise PydanticCustomError("int_type", "Input should be a valid integer")
+    return value
+
+
+#: Marks a ``Literal`` of integers as taking JSON integers only.
+WholeNumber = BeforeValidator(_whole_number)
 #: The decimal mark a spreadsheet form reads and writes numbers with (its ``decimal`` option).
 DecimalMark = Literal["point", "comma"]
 #: The unit expenditure shares are given in: fractions of 1, percent, per mille.

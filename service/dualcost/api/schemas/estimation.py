@@ -21,6 +21,7 @@ from .common import (
     NoticeOut,
     ProvenanceOut,
     ShareUnit,
+    StrictInt,
     StrictModel,
     VectorIn,
 )
@@ -89,11 +90,11 @@ class FitRequest(StrictModel):
         "fraction", description=SHARE_UNIT_TEXT + " It applies to shares (and, in a fitted "
         "comparison, to comparison.base.shares and comparison.weight_reference.shares).")
     model: FitModelIn
-    confidence_level: float = Field(0.95, gt=0.0, lt=1.0, description="Of every interval.")
+    confidence_level: FiniteFloat = Field(0.95, gt=0.0, lt=1.0, description="Of every interval.")
     elasticities_at: PointIn | None = Field(
         None, description="Where to evaluate elasticities (default: the sample's weighted "
                           "geometric mean prices and total expenditure).")
-    max_iterations: int = Field(200, ge=1, le=1000, description="Of the iterated least squares.")
+    max_iterations: StrictInt = Field(200, ge=1, le=1000, description="Of the iterated least squares.")
     residuals: bool = Field(True, description="Include each observation's fitted shares and "
                             "residuals.")
 
@@ -143,8 +144,8 @@ class FitComparisonIn(StrictModel):
 class UncertaintyIn(StrictModel):
     """The parametric bootstrap behind the intervals."""
 
-    draws: int = Field(500, ge=10, description="Parameter draws.")
-    seed: int = Field(0, ge=0, description="Seed of the random generator (same seed, same "
+    draws: StrictInt = Field(500, ge=10, description="Parameter draws.")
+    seed: StrictInt = Field(0, ge=0, description="Seed of the random generator (same seed, same "
                       "interval).")
 
 

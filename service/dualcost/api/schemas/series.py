@@ -16,8 +16,10 @@ from .common import (
     ProvenanceOut,
     ScaleOut,
     ShareUnit,
+    StrictInt,
     StrictModel,
     VectorIn,
+    WholeNumber,
 )
 from .model import ModelSpec
 
@@ -53,7 +55,7 @@ class WeightReferenceIn(StrictModel):
 
 
 class GeksIn(StrictModel):
-    window: int | None = Field(None, ge=2, description="Rolling window in periods (default: a "
+    window: StrictInt | None = Field(None, ge=2, description="Rolling window in periods (default: a "
                                "year and one period, 13 for monthly data).")
     splice: Literal["movement", "window", "half", "mean"] = Field(
         "movement", description="How each new window joins the published series (Ivancic, "
@@ -72,8 +74,8 @@ class SeriesOptions(StrictModel):
                                             "the model is calibrated to it. Default: the first.")
     reference_period: PeriodLabel | None = Field(None, description="The index reference period "
                                                  "(default: the base period).")
-    reference_value: Literal[1, 100] = Field(100, description="The series' value in the index "
-                                             "reference period.")
+    reference_value: Annotated[Literal[1, 100], WholeNumber] = Field(
+        100, description="The series' value in the index reference period.")
     frequency: Literal["monthly", "quarterly", "annual"] | None = Field(
         None, description=FREQUENCY_TEXT + ".")
     formulas: list[SeriesFormula] | None = Field(  # type: ignore[valid-type]

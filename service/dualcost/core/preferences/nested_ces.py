@@ -127,6 +127,8 @@ _MODEL_WORDING: dict[str, str] = {
                  "unique",
     "no_sigma": "group '{path}' has no sigma; give its elasticity of substitution (0 or more)",
     "sigma_not_number": "group '{path}' has sigma {raw!r}, which is not a number",
+    "sigma_as_text": "group '{path}' has sigma {raw!r}, which is not a number but text; write "
+                     "it as a number ({raw}, not {raw!r})",
     "sigma_not_finite": "group '{path}' has sigma {sigma}; it must be a finite number",
     "sigma_negative": "group '{path}' has sigma {sigma:g}; an elasticity of substitution must be "
                       "zero or more",
@@ -341,6 +343,8 @@ class _Walk:
         place = self.places[g] + ("sigma",)
         if raw is None:
             raise self.fail("no_sigma", place, g)
+        if isinstance(raw, str):
+            raise self.fail("sigma_as_text", place, g, raw=raw)
         if isinstance(raw, bool) or not isinstance(raw, Real):
             raise self.fail("sigma_not_number", place, g, raw=raw)
         sigma = float(raw)
