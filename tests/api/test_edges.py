@@ -111,13 +111,16 @@ def test_every_bad_literal_is_named_at_once(client) -> None:
     assert [e["pointer"] for e in r.json()["errors"]] == ["/base/prices/0", "/current/prices/2"]
 
 
-def test_a_household_weight_of_1e308_is_a_numerical_failure_naming_it(client) -> None:
+def test_a_household_weight_of_1e308_is_refused_naming_it(client) -> None:
+    """A weight counts households: above 1e12 it is refused by its field, before any total
+    over the households could overflow."""
     body = load_example("householdIndices.wrenmouth_deciles_ces.json")
     r = post(client, "/v1/household-indices", replaced(body, ("households", 3, "weight"), "1e308"))
     assert r.status_code == 422, r.text
     problem = r.json()
-    assert problem["type"] == "/problems/numerical-failure"
+    assert problem["type"] == "/problems/invalid-input"
     assert [e["pointer"] for e in problem["errors"]] == ["/households/3/weight"]
+    assert "at most 1e+12" in problem["errors"][0]["detail"]
 
 
 def test_an_overflowing_computation_is_a_numerical_failure_naming_the_input(client) -> None:

@@ -290,3 +290,31 @@ def test_comparison_and_households_state_the_same_scale(client: TestClient) -> N
     one = client.post("/v1/comparisons", json=comparison).json()
     assert one["scale"] == post(client, body).json()["scale"] == SCALE_RATIO
     assert SCALE_RATIO == {"indices": "ratio, 1 = no change", "bias": "index points on base 100"}
+
+
+def test_weights_whose_total_would_overflow_are_refused_by_row(client: TestClient) -> None:
+    """Two household weights of 1e308 would make the period's weight total infinite after the
+    rows were streamed (a cut answer, a failed job). Weights are counts of households, so the
+    rule bounds them at 1e12 (and incomes at 1e100): such a row is refused by its row and
+    field, before anything is computed, and the job completes (common practice: survey weights
+    gross a sample up to a population)."""
+    from tests.api.test_households import create_job, upload
+
+    lines = job_csv().split("\r\n")
+    for k in (1, 2):
+        cells = lines[k].split(",")
+        cells[2] = "1e308"
+        lines[k] = ",".join(cells)
+    job = create_job(client, panel())
+    r = upload(client, job, "\r\n".join(lines))
+    assert r.status_code == 200, r.text
+    status = client.get(job["links"]["self"]).json()
+    assert status["status"] == "done"
+    skipped = status["skipped"]["rows"]
+    assert [(s["row"], s["reason"]) for s in skipped] == [(1, "bad_weight"), (2, "bad_weight")]
+    assert "at most 1e+12" in skipped[0]["detail"]
+    body = panel()
+    body["households"][0]["weight"] = 1e308
+    refused = client.post("/v1/household-indices", json=body)
+    assert refused.status_code == 422
+    assert "at most 1e+12" in refused.text

@@ -418,13 +418,23 @@ def _share_problems(rows: NDArray[np.int64], w: Matrix, normalise: bool,
     return w, 0
 
 
+#: The largest household weight (a number of households: no population comes near it) and the
+#: largest income: bounds that keep every total over a batch's households (sum of weights,
+#: of weighted incomes and compensations) inside floating point, so that no summary overflows
+#: after the rows have been answered.
+MAX_WEIGHT = 1e12
+MAX_INCOME = 1e100
+
+
 def _scalar_problems(rows: NDArray[np.int64], values: Vector, name: str, code: str,
                      problems: list[RowProblem], bad: NDArray[np.bool_]) -> None:
-    wrong = ~np.isfinite(values) | (values <= 0.0)
+    top = MAX_INCOME if name == "expenditure" else MAX_WEIGHT
+    wrong = ~np.isfinite(values) | (values <= 0.0) | (values > top)
     for h in np.flatnonzero(wrong & ~bad):
         what = "income (total expenditure)" if name == "expenditure" else "weight"
         problems.append(RowProblem(int(rows[h]), name, f"the household's {what} must be "
-                                   f"greater than zero, got {values[h]:.10g}", code))
+                                   f"greater than zero and at most {top:g}, got "
+                                   f"{values[h]:.10g}", code))
         bad[h] = True
 
 
