@@ -281,3 +281,36 @@ def test_the_read_keeps_its_numbers_exact() -> None:
     table = read_table(european(PANEL), **COLUMNS)
     plain = [float(row[2]) for row in list(csv.reader(io.StringIO(PANEL)))[1:]]
     assert_allclose(table.columns["price"], plain, rtol=0, atol=0)
+
+
+@pytest.mark.parametrize("literal,words", [
+    ("1e-400", "smaller in magnitude than 2.2e-308"),
+    ("5e-324", "smaller in magnitude than 2.2e-308"),
+    ("1e400", "beyond the range of floating-point numbers"),
+])
+def test_a_csv_number_outside_the_floating_point_range_is_refused_at_its_cell(
+        client, literal: str, words: str) -> None:
+    """The rule every number of a request follows (README, "Numbers"), in a CSV cell too: 1e-400
+    would silently become 0 and 5e-324 is subnormal (IEEE 754: the smallest normal double is
+    2.2250738585072014e-308)."""
+    lines = PANEL.splitlines()
+    cells = lines[3].split(",")
+    cells[2] = literal
+    lines[3] = ",".join(cells)
+    assert_problem(series(client, "\n".join(lines) + "\n"), "#cell=4,3", literal, words)
+
+
+def test_a_household_share_below_the_floating_point_range_refuses_its_row(client) -> None:
+    body = example(SUBSISTENCE)
+    text = household_csv(body).splitlines()
+    header = text[0].split(",")
+    cells = text[1].split(",")
+    item_column = header.index("rye_loaf")
+    cells[item_column] = "1e-400"
+    text[1] = ",".join(cells)
+    job = create_job(client, body, bad_rows="skip")
+    r = client.post(job["links"]["households"], content=("\n".join(text) + "\n").encode(),
+                    headers={"content-type": "text/csv"})
+    assert r.status_code == 200, r.text
+    skipped = client.get(job["links"]["self"]).json()["skipped"]["rows"]
+    assert skipped[0]["row"] == 1 and "2.2e-308" in skipped[0]["detail"]

@@ -49,6 +49,7 @@ from fastapi import Query, Request
 
 from ..problems import FieldError, RequestProblem
 from ..schemas.common import DecimalMark
+from .json_text import SMALLEST_NORMAL, number_rule
 
 CSV_MEDIA_TYPE = "text/csv"
 Separator = Literal["comma", "semicolon", "tab"]
@@ -66,7 +67,10 @@ NUMBER_RULE = "write numbers with '.' as decimal point and no grouping"
 
 
 def parse_number(text: str) -> float | None:
-    """A finite number written with '.' as decimal point, or None if it is not one."""
+    """A finite number written with '.' as decimal point, or None if it is not one, or if it
+    lies outside the floating-point range: beyond about 1.8e308, or nonzero and below 2.2e-308
+    (a subnormal, or one that would silently become 0), the rule every number of a request
+    follows (:func:`dualcost.api.inputs.json_text.number_rule`)."""
     cleaned = text.strip()
     if not cleaned or "," in cleaned or "_" in cleaned:
         return None
@@ -74,7 +78,16 @@ def parse_number(text: str) -> float | None:
         value = float(cleaned)
     except ValueError:
         return None
-    return value if math.isfinite(value) else None
+    if not math.isfinite(value) or (0.0 < abs(value) < SMALLEST_NORMAL):
+        return None
+    if value == 0.0 and _NONZERO_DIGIT.search(cleaned.split("e")[0].split("E")[0]):
+        return None  # underflowed to zero
+    return value
+
+
+_NONZERO_DIGIT = re.compile(r"[1-9]")
+#: An exponent below -299: a number that may lie below the floating-point range.
+TINY_EXPONENT = re.compile(r"[eE]-0*(?:[3-9]\d\d|\d{4,})")
 
 
 def parse_number_comma(text: str) -> float | None:
@@ -135,6 +148,10 @@ class Dialect:
                      "tab)")
         elif self.decimal == "comma" and "." in cell and "," not in cell:
             hint += "; for decimal points declare decimal=point"
+        rule = number_rule(cell.strip().replace(",", ".") if self.decimal == "comma"
+                           else cell.strip())
+        if rule is not None:
+            return f"{cell.strip()!r} {rule}"
         return f"{cell.strip()!r} is not a finite number ({hint})"
 
     def describe(self) -> str:
@@ -355,13 +372,16 @@ def _numbers(cells: Sequence[str], name: str, column: int, records: Sequence[int
     cell is a number in the dialect; else cell by cell, naming each bad cell."""
     joined = "\x1f".join(cells)
     other = "," if dialect.decimal == "point" else "."
-    if "_" not in joined and other not in joined:
+    # The fast path: no grouping, no other decimal mark, no exponent that may lie below the
+    # floating-point range (1e-400 would read as 0), and every value finite and normal.
+    if "_" not in joined and other not in joined and not TINY_EXPONENT.search(joined):
         try:
             if dialect.decimal == "comma":
                 values = list(map(float, joined.replace(",", ".").split("\x1f")))
             else:
                 values = list(map(float, cells))
-            if all(map(math.isfinite, values)):
+            # A subnormal needs an exponent below -299 or a literal of 300 characters or more.
+            if all(map(math.isfinite, values)) and max(map(len, cells), default=0) < 300:
                 return values
         except ValueError:
             pass

@@ -29,8 +29,9 @@ from ...core.households import HouseholdChunk, HouseholdJob, check_quantiles
 from ..observability import checked_arithmetic
 from ..problems import FieldError, RequestProblem
 from ..schemas.households import HouseholdIndicesRequest, HouseholdJobSpec
-from .csv import Dialect
+from .csv import TINY_EXPONENT, Dialect
 from .items import ItemAxis
+from .json_text import SMALLEST_NORMAL
 from .locator import CsvRows, Locator, Place
 from .model import core_parameters
 
@@ -219,6 +220,8 @@ class _ChunkReader:
             joined = "\x1f".join(picked)
             if "_" in joined or self.other_mark in joined:
                 raise ValueError("grouping")
+            if TINY_EXPONENT.search(joined):  # perhaps beyond floating point: cell by cell
+                raise ValueError("range")
             if dialect.decimal == "comma":
                 picked = tuple(joined.replace(",", ".").split("\x1f"))
             self.values.append(list(map(float, picked)))
@@ -247,7 +250,7 @@ class _ChunkReader:
     def chunk(self) -> HouseholdChunk:
         shares = np.array(self.values, dtype=np.float64)
         refused = {p.row for p in self.problems if p.field == "row"}
-        bad_cells = ~np.isfinite(shares)
+        bad_cells = ~np.isfinite(shares) | ((shares != 0.0) & (np.abs(shares) < SMALLEST_NORMAL))
         for k in map(int, np.flatnonzero(bad_cells.any(axis=1))):
             if self.rows[k] in refused:
                 continue
