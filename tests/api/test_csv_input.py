@@ -314,3 +314,11 @@ def test_a_household_share_below_the_floating_point_range_refuses_its_row(client
     assert r.status_code == 200, r.text
     skipped = client.get(job["links"]["self"]).json()["skipped"]["rows"]
     assert skipped[0]["row"] == 1 and "2.2e-308" in skipped[0]["detail"]
+
+
+@pytest.mark.parametrize("parameter", ["lloyd_moulton_sigma", "new_goods_sigma"])
+def test_a_query_option_below_the_floating_point_range_is_refused_by_name(
+        client, parameter: str) -> None:
+    """The same number rule for the CSV upload's query options: 1e-400 would read as 0."""
+    r = series(client, PANEL, **{parameter: "1e-400"})
+    assert_problem(r, f"#/query/{parameter}", "2.2e-308")

@@ -211,3 +211,13 @@ def depth_error(text: str) -> Located:
         if kind == "open" and len(stack) >= MAX_DEPTH:
             return _pointer(stack), TOO_DEEP
     return "", TOO_DEEP
+
+
+def in_float_range(value: object) -> object:
+    """A query parameter's text checked by :func:`number_rule` before it is read as a float
+    (a pydantic ``BeforeValidator``): 1e-400 would otherwise read as 0 without a word."""
+    if isinstance(value, str):
+        rule = number_rule(value.strip())
+        if rule is not None:
+            raise ValueError(f"{value.strip()!r} {rule}")
+    return value

@@ -7,10 +7,12 @@ from typing import Annotated, Any, Literal
 
 from fastapi import APIRouter, Depends, Query, Request
 from fastapi.responses import Response
+from pydantic import BeforeValidator
 
 from ..deps import settings_of
 from ..inputs import observations
 from ..inputs.csv import CSV_REQUEST_BODY, DecimalParam, DeclaredDialect, SeparatorParam, csv_body
+from ..inputs.json_text import in_float_range
 from ..operations import fits, fitted
 from ..provenance import Provenance, UploadSha256, of_body, of_upload, query_of
 from ..render import (
@@ -98,9 +100,11 @@ def fit_model_csv(
     restrictions: Annotated[Literal["none", "homogeneity", "symmetry"] | None, Query()] = None,
     quadratic: Annotated[bool, Query()] = False,
     price_terms: Annotated[bool | None, Query()] = None,
-    alpha0: Annotated[float | None, Query(allow_inf_nan=False)] = None,
+    alpha0: Annotated[float | None, BeforeValidator(in_float_range),
+                      Query(allow_inf_nan=False)] = None,
     tree: Annotated[str | None, Query(description="nested_ces: the grouping as JSON.")] = None,
-    confidence_level: Annotated[float, Query(gt=0.0, lt=1.0)] = 0.95,
+    confidence_level: Annotated[float, BeforeValidator(in_float_range),
+                                Query(gt=0.0, lt=1.0)] = 0.95,
     normalise_shares: Annotated[bool, Query()] = False,
     share_unit: Annotated[ShareUnit, Query(description=SHARE_UNIT_TEXT + " It applies to the "
                                            "share column.")] = "fraction",

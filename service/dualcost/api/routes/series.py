@@ -7,10 +7,12 @@ from typing import Annotated, Any, Literal
 
 from fastapi import APIRouter, Depends, Query, Request
 from fastapi.responses import Response
+from pydantic import BeforeValidator
 
 from .. import workload
 from ..deps import settings_of
 from ..inputs.csv import CSV_REQUEST_BODY, DecimalParam, DeclaredDialect, SeparatorParam, csv_body
+from ..inputs.json_text import in_float_range
 from ..inputs.panels import panel_from_csv, panel_from_json
 from ..inputs.query import validated
 from ..operations import series
@@ -116,8 +118,10 @@ def index_series_from_csv(
     frequency: Annotated[Literal["monthly", "quarterly", "annual"] | None, Query()] = None,
     formulas: Annotated[str | None, Query(description="Comma-separated formula names.")] = None,
     model: Annotated[str | None, Query(description="The preference model as a JSON object.")] = None,
-    lloyd_moulton_sigma: Annotated[float | None, Query(allow_inf_nan=False)] = None,
-    new_goods_sigma: Annotated[float | None, Query(allow_inf_nan=False)] = None,
+    lloyd_moulton_sigma: Annotated[float | None, BeforeValidator(in_float_range),
+                                   Query(allow_inf_nan=False)] = None,
+    new_goods_sigma: Annotated[float | None, BeforeValidator(in_float_range),
+                               Query(allow_inf_nan=False)] = None,
     weight_reference_period: Annotated[str | None, Query()] = None,
     geks_window: Annotated[int | None, Query(ge=2)] = None,
     geks_splice: Annotated[Literal["movement", "window", "half", "mean"] | None, Query()] = None,
