@@ -602,14 +602,7 @@ def index_series(
         Periods of the circularity check (default: the span in order, closing back to its start).
     """
     n_t = panel.n_periods
-    if n_t < 2:
-        raise InvalidInput("periods", "a series needs at least two periods")
-    _check_position("base_period", base, n_t)
-    ref = base if reference is None else reference
-    _check_position("reference_period", ref, n_t)
-    scale = float(reference_value)
-    if not np.isfinite(scale) or scale <= 0.0:
-        raise InvalidInput("reference_value", f"must be greater than zero, got {scale:g}")
+    ref, scale = _reference(n_t, base, reference, reference_value)
     notices: list[Notice] = []
     if isinstance(weight_reference, WeightReference):
         notices.extend(weight_reference.notices)
@@ -625,20 +618,8 @@ def index_series(
     lm_sigma, ng_sigma = _elasticities(model, lloyd_moulton_sigma, new_goods_sigma)
     unmet = _unmet(panel, model, wts, lm_sigma, ng_sigma)
     names = _choose_formulas(formulas, unmet, notices)
-    if lloyd_moulton_sigma is None and lm_sigma is not None and "lloyd_moulton" in names:
-        notices.append(Notice("lloyd_moulton_sigma_from_model", "No Lloyd-Moulton elasticity "
-                              "was given: the model's own elasticity of substitution, "
-                              f"{lm_sigma:.10g}, is used."))
-    if new_goods_sigma is None and ng_sigma is not None and "feenstra" in names:
-        notices.append(Notice("new_goods_sigma_from_model", "No new-goods elasticity was given: "
-                              f"the model's own elasticity of substitution, {ng_sigma:.10g}, "
-                              "is used."))
-    if formulas is not None:
-        skipped = [n for n in formulas_for("series") if n not in names]
-        if skipped:
-            notices.append(Notice("formulas_as_asked", "Only the formulas named in formulas "
-                                  "were computed; left out of the default set: "
-                                  f"{', '.join(skipped)}."))
+    notices += _filled_in(names, formulas, given=(lloyd_moulton_sigma, new_goods_sigma),
+                          used=(lm_sigma, ng_sigma))
 
     compare = _Comparer(panel, quantities, wts, lm_sigma, ng_sigma)
     raw = _formula_series(compare, [n for n in names if REGISTRY[n].kind == "bilateral"], base,
@@ -663,6 +644,41 @@ def index_series(
         bias=bias, annual_bias=annual, span=the_span, chain_drift=drift,
         item_treatment=treatment, weights=weight_shares, lloyd_moulton_sigma=lm_sigma,
         new_goods_sigma=ng_sigma, notices=notices)
+
+
+def _reference(n_t: int, base: int, reference: int | None,
+               reference_value: float) -> tuple[int, float]:
+    """The index reference period (default: the base) and its value, checked."""
+    if n_t < 2:
+        raise InvalidInput("periods", "a series needs at least two periods")
+    _check_position("base_period", base, n_t)
+    ref = base if reference is None else reference
+    _check_position("reference_period", ref, n_t)
+    scale = float(reference_value)
+    if not np.isfinite(scale) or scale <= 0.0:
+        raise InvalidInput("reference_value", f"must be greater than zero, got {scale:g}")
+    return ref, scale
+
+
+def _filled_in(names: Sequence[str], formulas: Sequence[str] | None,
+               given: tuple[float | None, float | None],
+               used: tuple[float | None, float | None]) -> list[Notice]:
+    """Notices for what the service chose: the Lloyd-Moulton and new-goods elasticities taken
+    from the model, and the default formulas left out because ``formulas`` named others."""
+    out = []
+    for formula, (code, what), asked, value in zip(
+            ("lloyd_moulton", "feenstra"),
+            (("lloyd_moulton_sigma_from_model", "Lloyd-Moulton"),
+             ("new_goods_sigma_from_model", "new-goods")), given, used, strict=True):
+        if asked is None and value is not None and formula in names:
+            out.append(Notice(code, f"No {what} elasticity was given: the model's own "
+                              f"elasticity of substitution, {value:.10g}, is used."))
+    if formulas is not None:
+        skipped = [n for n in formulas_for("series") if n not in names]
+        if skipped:
+            out.append(Notice("formulas_as_asked", "Only the formulas named in formulas were "
+                              f"computed; left out of the default set: {', '.join(skipped)}."))
+    return out
 
 
 def _elasticities(model: Preferences | None, lloyd_moulton_sigma: float | None,
