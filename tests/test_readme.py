@@ -144,10 +144,13 @@ def test_the_csv_series_example_uses_a_shipped_file_and_states_its_last_row(answ
 def test_the_fit_example_states_its_figures(answers) -> None:
     fit = answer_json(answers, "/v1/fits")
     (iterations, elasticity, se, wald_h, df_h, p_h, wald_s, df_s, p_s) = stated(
-        r"converges in (\d+) iterations; the rye-loaf expenditure elasticity is (\S+) "
+        r"converges in about (\d+) iterations; the rye-loaf expenditure elasticity is (\S+) "
         r"\(s\.e\. (\S+)\); homogeneity gives Wald (\S+) \((\d+) df, p = (\S+)\) and symmetry "
         r"(\S+) \((\d+) df, p = ([\d.]+)\)")
-    assert fit["fit"]["converged"] and fit["fit"]["iterations"] == int(iterations)
+    # The iteration count depends on the releases of numpy and scipy installed (11 on an
+    # earlier machine, 12 with numpy 2.4.6 and scipy 1.17.1, the same estimates to the digits
+    # printed): the README says "about".
+    assert fit["fit"]["converged"] and abs(fit["fit"]["iterations"] - int(iterations)) <= 3
     rye = fit["elasticities"]["expenditure_elasticities"]["rye_loaf"]
     assert as_written(rye["estimate"], elasticity) == elasticity
     assert as_written(rye["std_error"], se) == se

@@ -48,6 +48,11 @@ def _parser() -> argparse.ArgumentParser:
                        "in the last published decimal place)")
     check.add_argument("--url", help="check against a running service instead of in process")
     check.add_argument("--api-key", help="API key for --url (or set DUALCOST_API_KEY)")
+    check.add_argument("--separator", choices=["comma", "semicolon", "tab"],
+                       help="how the CSV files separate fields (default: detected)")
+    check.add_argument("--decimal", choices=["point", "comma"],
+                       help="the CSV files' decimal mark (default: detected; a decimal comma "
+                            "needs fields separated by semicolons or tabs)")
     check.add_argument("--junit", help="write a JUnit XML report to this file")
     return parser
 

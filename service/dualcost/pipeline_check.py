@@ -11,6 +11,11 @@ Inputs are files:
   and/or ``expenditure`` columns, one row per period and item; or JSON in the shape of the
   ``POST /v1/index-series`` body (which may carry the options too).
 
+Both CSV files are read in the dialect ``--separator`` and ``--decimal`` declare, as the
+service's uploads are (``comma``, ``semicolon`` or ``tab``; ``point`` or ``comma``); what is
+not declared is detected from the file, and the check says on standard error what it detected
+(a spreadsheet saved in a decimal-comma locale writes ``101,3`` in cells separated by ``;``).
+
 The check runs in process, or against a running service with ``--url`` (``POST /v1/audits``).
 It prints a table and the provenance of the recomputation (the version of dualcost that made it
 and the digest of the audit request it made it from, as the answer states them), writes JUnit
@@ -38,7 +43,7 @@ from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Any, TextIO
 
-from .api.inputs.csv import read_table
+from .api.inputs.csv import MARKS, DeclaredDialect, Table, decimal_of, read_table
 from .core.audit import decimals_of
 from .core.errors import DualcostError
 
@@ -56,17 +61,47 @@ class CheckError(DualcostError):
 # -- reading the inputs -----------------------------------------------------------------------
 
 
-def _table(path: Path, text: str, **columns: Any) -> list[dict[str, Any]]:
+def _table(path: Path, text: str, declared: DeclaredDialect, notices: list[str] | None,
+           **columns: Any) -> Table:
     from .api.problems import RequestProblem
 
     try:
-        return list(read_table(text, **columns).rows())
+        table = read_table(text, declared=declared, **columns)
     except RequestProblem as exc:
         raise CheckError(f"{path}: " + "; ".join(f"{e.pointer} {e.detail}"
                                                  for e in exc.errors)) from None
+    if notices is not None:
+        notices += _detected(path, table)
+    return table
 
 
-def published_from_file(path: Path) -> list[dict[str, Any]]:
+def _detected(path: Path, table: Table) -> list[str]:
+    """What was detected that is not the plain CSV default (fields separated by commas, a
+    decimal point): said, so a file is never read in a dialect nobody chose unawares."""
+    d = table.dialect
+    return [f"{path}: read with {what} {value} ({d.detected[what]})"
+            for what, value, default in (("separator", d.separator, "comma"),
+                                         ("decimal", d.decimal, "point"))
+            if what in d.detected and value != default]
+
+
+def _value_mark(path: Path, table: Table, declared: DeclaredDialect) -> str:
+    """The decimal mark of the published values, read as text so that their decimals as
+    written set the tolerance: declared, or detected from the ``value`` cells as the service
+    detects it from numeric cells."""
+    from .api.problems import RequestProblem
+
+    cells = [[v] for v in table.columns["value"]]
+    try:
+        decimal, _ = decimal_of(table.dialect.separator, declared, cells, [0])
+    except RequestProblem as exc:
+        raise CheckError(f"{path}: " + "; ".join(e.detail for e in exc.errors)) from None
+    return MARKS[decimal]
+
+
+def published_from_file(path: Path, declared: DeclaredDialect | None = None,
+                        notices: list[str] | None = None) -> list[dict[str, Any]]:
+    declared = declared or DeclaredDialect()
     text = path.read_text(encoding="utf-8")
     if path.suffix.lower() == ".json":
         data = json.loads(text)
@@ -75,14 +110,21 @@ def published_from_file(path: Path) -> list[dict[str, Any]]:
             raise CheckError(f"{path}: expected a list of published values, or an object with "
                              "that list under \"published\"")
         return values
-    rows = _table(path, text, required=["formula", "period", "value"], numeric=[])
+    table = _table(path, text, declared, None, required=["formula", "period", "value"],
+                   numeric=[])
+    mark = _value_mark(path, table, declared)
+    if notices is not None:
+        notices += _detected(path, table)
+        if declared.decimal is None and mark != ".":
+            notices.append(f"{path}: read with decimal comma (the values have decimal commas)")
     out = []
-    for k, row in enumerate(rows, start=2):
-        raw = row["value"]
+    for k, row in zip(table.records, table.rows(), strict=True):
+        raw = row["value"] if mark == "." else row["value"].replace(mark, ".")
         try:
             value = float(raw)
         except ValueError:
-            raise CheckError(f"{path}#cell={k}: {raw!r} is not a number") from None
+            raise CheckError(f"{path}#cell={k},{table.header.index('value') + 1}: "
+                             f"{row['value']!r} is not a number") from None
         if not math.isfinite(value):
             raise CheckError(f"{path}#row={k}: the value must be a finite number")
         out.append({"formula": row["formula"], "series": row.get("series") or "fixed_base",
@@ -90,7 +132,8 @@ def published_from_file(path: Path) -> list[dict[str, Any]]:
     return out
 
 
-def panel_from_file(path: Path) -> dict[str, Any]:
+def panel_from_file(path: Path, declared: DeclaredDialect | None = None,
+                    notices: list[str] | None = None) -> dict[str, Any]:
     """The panel as the JSON body of POST /v1/index-series."""
     text = path.read_text(encoding="utf-8")
     if path.suffix.lower() == ".json":
@@ -98,8 +141,9 @@ def panel_from_file(path: Path) -> dict[str, Any]:
         if not isinstance(given, dict):
             raise CheckError(f"{path}: expected a JSON object with periods, items and prices")
         return given
-    rows = _table(path, text, required=["period", "item", "price"], numeric=["price"],
-                  optional_numeric=["quantity", "expenditure"])
+    rows = _table(path, text, declared or DeclaredDialect(), notices,
+                  required=["period", "item", "price"], numeric=["price"],
+                  optional_numeric=["quantity", "expenditure"]).rows()
     periods: list[str] = []
     items: list[str] = []
     cells: dict[str, dict[str, dict[str, float | None]]] = {"prices": {}, "quantities": {},
@@ -132,12 +176,15 @@ def audit_request(published: list[dict[str, Any]], panel: dict[str, Any], *,
     return body
 
 
-def request_from_args(args: Any) -> dict[str, Any]:
+def request_from_args(args: Any, notices: list[str] | None = None) -> dict[str, Any]:
     """The body of POST /v1/audits from the command's arguments; unreadable files, bad JSON
-    and text that is not UTF-8 raise :class:`CheckError`."""
+    and text that is not UTF-8 raise :class:`CheckError`. What was detected rather than
+    declared (the CSV files' separator and decimal mark) is added to ``notices``."""
     try:
-        published = published_from_file(Path(args.published))
-        panel = panel_from_file(Path(args.panel))
+        declared = DeclaredDialect(getattr(args, "separator", None),
+                                   getattr(args, "decimal", None))
+        published = published_from_file(Path(args.published), declared, notices)
+        panel = panel_from_file(Path(args.panel), declared, notices)
         options = {"base_period": args.base_period, "reference_period": args.reference_period,
                    "reference_value": args.reference_value,
                    "model": json.loads(args.model) if args.model else None}
@@ -387,8 +434,11 @@ def check(args: Any, out: TextIO | None = None, err: TextIO | None = None) -> in
     out = sys.stdout if out is None else out
     err = sys.stderr if err is None else err
     run = runner(args)
+    notices: list[str] = []
     try:
-        body = request_from_args(args)
+        body = request_from_args(args, notices)
+        for notice in notices:
+            print(f"dualcost check: {notice}", file=err)
         answer = run(body)
         found = None if answer["passed"] else diagnose(answer, body)
         hint = None if found is None else hint_text(found, body, run)

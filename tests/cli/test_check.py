@@ -329,3 +329,51 @@ def test_the_hint_against_a_running_service(tmp_path, live_url, capsys) -> None:
     code, out, _ = check_in_process(capsys, str(published), str(panel), "--reference-value", "1",
                                     "--url", live_url)
     assert code == 1 and "--base-period 1 (with it, all 20 values agree)" in out
+
+
+def _decimal_comma_copy(path: Path, separator: str = ";") -> None:
+    """The file as a spreadsheet in a decimal-comma locale saves it: fields separated by
+    semicolons (or tabs), decimal commas (common practice in such locales)."""
+    lines = path.read_text(encoding="utf-8").splitlines()
+    path.write_text("\n".join(line.replace(",", separator).replace(".", ",") for line in lines)
+                    + "\n", encoding="utf-8")
+
+
+@pytest.mark.parametrize("declare", [False, True])
+def test_files_from_a_decimal_comma_locale_pass_detected_or_declared(tmp_path, capsys,
+                                                                     declare) -> None:
+    """The same published table in semicolon-separated, decimal-comma files passes as the
+    point-decimal one does: declared with --separator/--decimal, or detected and said."""
+    published, panel = write_inputs(tmp_path)
+    _decimal_comma_copy(published)
+    _decimal_comma_copy(panel)
+    options = ["--separator", "semicolon", "--decimal", "comma"] if declare else []
+    code, out, err = check_in_process(capsys, str(published), str(panel), "--reference-value",
+                                      "1", *options)
+    assert code == 0, out + err
+    assert "20 published values checked: all agree" in out
+    if declare:
+        assert "read with" not in err
+    else:
+        assert f"{published}: read with decimal comma" in err
+        assert f"{panel}: read with decimal comma" in err
+        assert "separator semicolon" in err
+
+
+def test_a_decimal_comma_keeps_the_tolerance_of_the_decimals_as_written(tmp_path, capsys) -> None:
+    """'1,2731' is four decimals, as '1.2731' is: the typo of the point-decimal test fails the
+    check here too, not passed by a tolerance read from the wrong mark."""
+    published, panel = write_inputs(tmp_path, wrong=True)
+    _decimal_comma_copy(published, "\t")
+    _decimal_comma_copy(panel, "\t")
+    code, out, err = check_in_process(capsys, str(published), str(panel), "--reference-value",
+                                      "1", "--separator", "tab", "--decimal", "comma")
+    assert code == 1, out + err
+    assert "1 differ" in out
+
+
+def test_a_decimal_comma_with_comma_separated_fields_cannot_be_checked(tmp_path, capsys) -> None:
+    published, panel = write_inputs(tmp_path)
+    code, _, err = check_in_process(capsys, str(published), str(panel), "--decimal", "comma")
+    assert code == 2
+    assert "decimal comma cannot go with fields separated by commas" in err
