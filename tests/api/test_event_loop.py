@@ -219,3 +219,34 @@ def test_a_utility_formula_computes_in_a_thread_and_a_ces_on_the_event_loop(monk
 
 async def _ident() -> int:
     return threading.get_ident()
+
+
+def test_a_large_body_is_parsed_in_a_thread_and_a_small_one_on_the_event_loop(monkeypatch
+                                                                               ) -> None:
+    """Parsing and validating a body takes tens of milliseconds at a few megabytes: above
+    routing._PARSE_INLINE_BYTES it happens in a compute thread. The large body here is the same
+    comparison padded with JSON whitespace, so only its size differs, and both answers agree."""
+    from fastapi.testclient import TestClient
+
+    from dualcost.api import routing
+    from dualcost.api.app import create_app
+
+    where: list[int] = []
+    real = routing._parsed
+
+    def parsed(*args: Any) -> Any:
+        where.append(threading.get_ident())
+        return real(*args)
+
+    monkeypatch.setattr(routing, "_parsed", parsed)
+    small = json.dumps(load_example("compare.ces_from_shares.json"))
+    large = small[:-1] + " " * (routing._PARSE_INLINE_BYTES + 1) + "}"
+    headers = {"content-type": "application/json"}
+    with TestClient(create_app()) as client:
+        loop = client.portal.call(_ident)
+        answers = [client.post("/v1/comparisons", content=body, headers=headers)
+                   for body in (small, large)]
+    assert [a.status_code for a in answers] == [200, 200]
+    assert answers[0].json()["konus"] == answers[1].json()["konus"]
+    assert where[0] == loop
+    assert where[1] != loop
