@@ -7,7 +7,8 @@ parser is the costliest step before any computation: about four times slower tha
 when an operation's body is one model, the bytes are validated straight into it (0.13 ms for a
 300-item comparison, against 0.45 ms for ``json.loads`` and validation); a body that breaks a rule,
 and any other body, is parsed with ``from_json`` and left to FastAPI's validation, which names
-every broken rule as before.
+every broken rule as before. A body above 64 kB is parsed and validated in a compute thread,
+not on the event loop (tens of milliseconds for a 5 MB panel).
 
 The rules a body meets do not change. ``from_json`` accepts what ``json.loads`` accepts,
 including ``NaN`` and ``Infinity`` (which validation then refuses with a problem naming the
