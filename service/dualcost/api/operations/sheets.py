@@ -72,6 +72,9 @@ def series_body(query: Mapping[str, Any], prices: list[str], quantities: list[st
             body[key] = query[key]
     if query.get("formulas"):
         body["formulas"] = names(query["formulas"], decimal)
+    if query.get("rebase_period") or query.get("rebase_year") is not None:
+        body["rebase"] = {key: query[f"rebase_{key}"] for key in ("period", "year")
+                          if query.get(f"rebase_{key}") is not None}
     if query.get("family"):
         body["model"] = {"family": query["family"]}
         if query.get("sigma") is not None:

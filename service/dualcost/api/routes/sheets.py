@@ -61,6 +61,12 @@ Vector = Annotated[str | None, Query(description="Numbers in the order of items,
                                      "semicolons.")]
 
 
+RebasePeriod = Annotated[str | None, Query(description="Rebase every series to this period "
+                                                  "(the change measures' rebased columns).")]
+RebaseYear = Annotated[int | None, Query(ge=1, le=9999, description="Rebase every series to "
+                                         "this calendar year's average.")]
+
+
 def _number(description: str) -> Any:
     return Query(description=f"{description} A number, written with the decimal mark that "
                              "`decimal` declares.")
@@ -193,6 +199,8 @@ def sheet_series(
     family: Annotated[str | None, Query(description="A model for the Konüs series (ces, "
                                                     "cobb_douglas, translog, quadratic).")] = None,
     sigma: Annotated[str | None, _number("Elasticity of substitution.")] = None,
+    rebase_period: RebasePeriod = None,
+    rebase_year: RebaseYear = None,
     digits: Digits = None,
     decimal: Decimal = "point",
     on_error: OnError = "problem",
