@@ -212,7 +212,7 @@ def rebased(levels: Array, rebase: Rebase, calendar: Calendar) -> Array:
         assert rebase.year is not None
         at = levels[calendar.complete_years()[rebase.year]]
     reference = float(np.mean(at))
-    return np.asarray(rebase.value * levels / reference, dtype=np.float64)
+    return np.asarray(rebase.value * (levels / reference), dtype=np.float64)
 
 
 def _empty_periods(measure: str, values: Array, levels: Array, earlier: NDArray[np.intp] | None,
