@@ -14,6 +14,7 @@ from numpy.testing import assert_allclose
 
 from dualcost.api.schemas.common import CAUTION
 from tests.api.test_bad_input import assert_problem
+from tests.api.test_series_validity import PERIODS, PRICES, QUANTITIES, series_request
 from tests.conftest import load_example
 
 EXAMPLE = "uprating.wrenmouth_pensions_april.json"
@@ -154,3 +155,27 @@ def test_the_spreadsheet_form_names_bad_parameters(client) -> None:
     assert_problem(client.get(SHEET + q + "&paid_from=2024-05"), "#/query/paid_from")
     text = client.get(SHEET.replace("floor=0", "floor=5&cap=1") + q + "&on_error=text")
     assert text.status_code == 200 and text.text.startswith("ERROR:") and "floor" in text.text
+
+
+def test_a_konus_factor_outside_the_regular_region_is_not_a_result(client) -> None:
+    """Where the model is outside its regular region at a period a clause reads, the Konüs
+    factor is null with a notice (and the sheet form answers model-not-regular), while the
+    formula factors stand (the regular-region panel of tests/api/test_series_validity.py)."""
+    body = series_request(formulas=["laspeyres"], amount=100.0, clauses=[
+        {"measure": "cumulative", "since": "2025-01", "period_of_year": 3, "lag": 1}])
+    r = client.post("/v1/uprating", json=body)
+    assert r.status_code == 200, r.text
+    answer = r.json()
+    (u,) = answer["clauses"][0]["upratings"]
+    by = {x["index"]: x for x in u["by_index"]}
+    assert by["konus"]["factor"] is None and by["laspeyres"]["factor"] > 1.0
+    assert "uprating_withheld" in {n["code"] for n in answer["notices"]}
+    money = {m["index"]: m for m in answer["clauses"][0]["money"]}
+    assert money["konus"]["paid"][-1] is None and money["laspeyres"]["paid"][-1] is not None
+    url = ("/v1/sheet/uprating?items=bread,transit,heating&periods=" + ",".join(PERIODS)
+           + "".join("&prices=" + ",".join(map(str, p)) for p in PRICES)
+           + "".join("&quantities=" + ",".join(map(str, q)) for q in QUANTITIES)
+           + "&family=translog&sigma=3&measure=cumulative&since=2025-01&period_of_year=3"
+           + "&lag=1&index=konus")
+    sheet = client.get(url)
+    assert sheet.status_code == 422 and sheet.json()["type"].endswith("model-not-regular")

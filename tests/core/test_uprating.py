@@ -150,3 +150,16 @@ def test_the_series_and_the_clauses_come_from_one_call() -> None:
     assert {n.code for n in out.notices} >= {"series_kind_assumed", "konus_standard_assumed"}
     diff = c.by_series["laspeyres"].difference
     assert diff is not None and c.by_series["konus"].difference is None
+
+
+def test_a_quarterly_clause_reads_the_same_quarter_a_year_earlier() -> None:
+    """The 12-month change of quarterly data compares four quarters back (common practice);
+    a third-quarter measure with a lag of one quarter is paid from the fourth."""
+    labels = [f"{y}-Q{q}" for y in (2024, 2025) for q in range(1, 5)]
+    x = np.array([100.0, 101.0, 102.0, 103.0, 104.0, 105.0, 106.08, 107.0])
+    (r,) = uprate([Clause("twelve_month", lag=1, period_of_year=3, decimals=2)],
+                  {"i": x}, calendar(labels))
+    (step,) = r.steps
+    assert (labels[step.measured_at], labels[step.measured_from], step.paid_from_label) == (
+        "2025-Q3", "2024-Q3", "2025-Q4")
+    assert r.by_series["i"].applied_percent.tolist() == [4.0]

@@ -619,8 +619,7 @@ def index_series(
     loop:
         Periods of the circularity check (default: the span in order, closing back to its start).
     rebase:
-        A further reference period or calendar year for the change measures' rebased levels
-        (:mod:`dualcost.core.changes`); its value is ``reference_value``.
+        A further reference (period or year) of the changes' rebased levels, worth ``reference_value``.
     """
     n_t = panel.n_periods
     ref, scale = _reference(n_t, base, reference, reference_value)
@@ -660,16 +659,14 @@ def index_series(
     drift = _drift(compare, raw, multilateral, panel, base, the_span, loop)
     treatment = item_treatment(panel, base, konus)
     calendar = Calendar.of(panel.periods, panel.frequency, panel.times)
-    if rebase is not None:
-        rebase = Rebase(rebase.period, rebase.year, scale)
-    measured = series_changes(series, geks_out, konus_out, calendar, rebase)
+    rebase = None if rebase is None else Rebase(rebase.period, rebase.year, scale)
     return IndexSeries(
         periods=panel.periods, items=panel.items, base=base, reference=ref,
         reference_value=scale, formulas=series, konus=konus_out, multilateral=geks_out,
         bias=bias, annual_bias=annual, span=the_span, chain_drift=drift,
         item_treatment=treatment, weights=weight_shares, lloyd_moulton_sigma=lm_sigma,
-        new_goods_sigma=ng_sigma, notices=notices, changes=measured, calendar=calendar,
-        rebase=rebase)
+        new_goods_sigma=ng_sigma, notices=notices, calendar=calendar, rebase=rebase,
+        changes=series_changes(series, geks_out, konus_out, calendar, rebase))
 
 
 def series_changes(series: Mapping[str, FormulaSeries], multilateral: Sequence[Multilateral],
@@ -1060,10 +1057,7 @@ def series_by_label(
         weights = WeightReference.checked(panel.n_items,
                                           share_unit=str(given.pop("share_unit", "fraction")),
                                           **given)
-    rebase = None
-    if rebase_period is not None or rebase_year is not None:
-        rebase = Rebase(None if rebase_period is None
-                        else panel.period_index("rebase_period", rebase_period, 0), rebase_year)
+    rebase = _rebase(panel, rebase_period, rebase_year)
     calibrated = None
     if model is not None:
         budget, items_priced = base_budget(panel, base)
@@ -1073,6 +1067,13 @@ def series_by_label(
                           **options)
     result.notices[:0] = _period_defaults(panel, base_period, reference_period, frequency)
     return LabelledSeries(result, panel, calibrated)
+
+
+def _rebase(panel: Panel, period: str | None, year: int | None) -> Rebase | None:
+    """The rebase the labels name (its value is set by :func:`index_series`)."""
+    if period is None and year is None:
+        return None
+    return Rebase(None if period is None else panel.period_index("rebase_period", period, 0), year)
 
 
 def _period_defaults(panel: Panel, base_period: str | None, reference_period: str | None,
