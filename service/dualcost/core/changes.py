@@ -28,6 +28,7 @@ from __future__ import annotations
 
 from collections.abc import Mapping, Sequence
 from dataclasses import dataclass
+from functools import cached_property
 from typing import TypeVar
 
 import numpy as np
@@ -101,24 +102,23 @@ class Calendar:
 
     def earlier(self, steps: int) -> NDArray[np.intp]:
         """For each period, the position of the period ``steps`` periods earlier, -1 if none."""
-        out = np.full(self.ordinals.size, -1, dtype=np.intp)
-        for t, ordinal in enumerate(self.ordinals.tolist()):
-            at = self.position(ordinal - steps)
-            if at is not None:
-                out[t] = at
-        return out
+        target = self.ordinals - steps
+        at = np.minimum(np.searchsorted(self.ordinals, target), self.ordinals.size - 1)
+        return np.where(self.ordinals[at] == target, at, -1).astype(np.intp)
 
     def complete_years(self) -> dict[int, NDArray[np.intp]]:
         """Each calendar year the series covers fully, with its periods' positions."""
+        return self._complete_years
+
+    @cached_property
+    def _complete_years(self) -> dict[int, NDArray[np.intp]]:
         if not self.dated or self.per_year is None:
             return {}
-        years = self.ordinals // self.per_year
-        out = {}
-        for y in np.unique(years).tolist():
-            at = np.flatnonzero(years == y)
-            if at.size == self.per_year:
-                out[int(y)] = at
-        return out
+        years = self.ordinals // self.per_year  # sorted: periods run forwards
+        found, starts, counts = np.unique(years, return_index=True, return_counts=True)
+        return {int(y): np.arange(a, a + n, dtype=np.intp)
+                for y, a, n in zip(found.tolist(), starts.tolist(), counts.tolist(), strict=True)
+                if n == self.per_year}
 
 
 @dataclass(frozen=True)
@@ -180,12 +180,13 @@ def annual_averages(levels: Array, calendar: Calendar) -> AnnualAverages:
     year before is not complete."""
     years = calendar.complete_years()
     ys = tuple(sorted(years))
-    averages = np.array([float(np.mean(levels[years[y]])) for y in ys], dtype=np.float64)
+    if not ys:
+        return AnnualAverages((), np.empty(0), np.empty(0))
+    averages = np.mean(levels[np.stack([years[y] for y in ys])], axis=1)
     change = np.full(len(ys), np.nan)
-    for j, y in enumerate(ys):
-        if j and ys[j - 1] == y - 1:
-            with np.errstate(invalid="ignore"):
-                change[j] = ratio_change(averages[j:j + 1], averages[j - 1:j])[0]
+    follows = np.flatnonzero(np.diff(np.asarray(ys)) == 1) + 1  # a year after a covered one
+    with np.errstate(invalid="ignore"):
+        change[follows] = ratio_change(averages[follows], averages[follows - 1])
     return AnnualAverages(ys, averages, change)
 
 
@@ -216,14 +217,16 @@ def rebased(levels: Array, rebase: Rebase, calendar: Calendar) -> Array:
 
 
 def _empty_periods(measure: str, values: Array, levels: Array, earlier: NDArray[np.intp] | None,
-                   calendar: Calendar, needs: str) -> list[Empty]:
+                   needs: str) -> list[Empty]:
     """Group the periods where ``values`` is empty by their reason."""
     missing = np.flatnonzero(np.isnan(values))
     if not missing.size:
         return []
-    no_level = [t for t in missing.tolist() if np.isnan(levels[t])
-                or (earlier is not None and earlier[t] >= 0 and np.isnan(levels[earlier[t]]))]
-    no_period = [t for t in missing.tolist() if t not in no_level]
+    withheld = np.isnan(levels)
+    if earlier is not None:
+        withheld = withheld | ((earlier >= 0) & withheld[np.maximum(earlier, 0)])
+    no_level = [t for t in missing.tolist() if withheld[t]]
+    no_period = [t for t in missing.tolist() if not withheld[t]]
     out = []
     if no_period:
         out.append(Empty(measure, needs, tuple(no_period)))
@@ -237,7 +240,7 @@ def changes(levels: Array, calendar: Calendar, rebase: Rebase | None = None) -> 
     levels = np.asarray(levels, dtype=np.float64)
     previous = calendar.earlier(1) if calendar.dated else np.arange(levels.size) - 1
     pop = _between(levels, previous)
-    empty = _empty_periods("period_on_period", pop, levels, previous, calendar,
+    empty = _empty_periods("period_on_period", pop, levels, previous,
                            "the period just before is not in the series")
     if calendar.per_year is None:
         twelve = np.full(levels.size, np.nan)
@@ -246,7 +249,7 @@ def changes(levels: Array, calendar: Calendar, rebase: Rebase | None = None) -> 
     else:
         year_ago = calendar.earlier(calendar.per_year)
         twelve = _between(levels, year_ago)
-        empty += _empty_periods("twelve_month", twelve, levels, year_ago, calendar,
+        empty += _empty_periods("twelve_month", twelve, levels, year_ago,
                                 "the same period a year earlier is not in the series")
     annual = annual_averages(levels, calendar)
     empty += _empty_years(annual, calendar)
@@ -262,17 +265,17 @@ def _empty_years(annual: AnnualAverages, calendar: Calendar) -> list[Empty]:
         return [Empty("annual_average", "calendar years are not known: the period labels are "
                       "not dates (YYYY-MM, YYYY-Qn, YYYY)")]
     out = []
-    partial = sorted({int(o) // (calendar.per_year or 1) for o in calendar.ordinals.tolist()}
-                     - set(annual.years))
+    every = np.unique(calendar.ordinals // (calendar.per_year or 1)).tolist()
+    partial = sorted(set(every) - set(annual.years))
     if partial:
         out.append(Empty("annual_average", "the series does not cover every period of the "
                          "year", years=tuple(partial)))
-    withheld = tuple(y for y, a in zip(annual.years, annual.averages, strict=True)
-                     if np.isnan(a))
+    averages, change = annual.averages.tolist(), annual.change_percent.tolist()
+    withheld = tuple(y for y, a in zip(annual.years, averages, strict=True) if a != a)  # NaN
     if withheld:
         out.append(Empty("annual_average", WITHHELD, years=withheld))
     first = tuple(y for j, y in enumerate(annual.years)
-                  if np.isnan(annual.change_percent[j]) and not np.isnan(annual.averages[j])
+                  if change[j] != change[j] and averages[j] == averages[j]
                   and (j == 0 or annual.years[j - 1] != y - 1))
     if first:
         out.append(Empty("annual_average_change", "the year before is not covered in full",
