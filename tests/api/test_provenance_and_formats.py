@@ -48,6 +48,11 @@ SHEET_QUERY = ("items=rye_loaf,peat_briquettes,ferry_pass&p0=2.40,9,38&p1=2.52,1
 SERIES_SHEET_QUERY = ("items=rye_loaf,peat_briquettes,ferry_pass&periods=2025-01,2025-02"
                       "&prices=2.40,9,38&prices=2.45,10.5,38&quantities=12,6,1"
                       "&quantities=12,5.6,1&formulas=laspeyres,fisher")
+UPRATING_SHEET_QUERY = ("items=rye_loaf,ferry_pass&periods=2025-01,2025-02,2026-01,2026-02"
+                        "&prices=2.40,38&prices=2.45,38&prices=2.50,39&prices=2.60,40"
+                        "&quantities=12,1&quantities=12,1&quantities=12,1&quantities=12,1"
+                        "&measure=twelve_month&period_of_year=1&lag=1&index=laspeyres")
+UPRATING = "uprating.wrenmouth_pensions_april.json"
 HOUSEHOLDS = "householdIndices.wrenmouth_deciles_ces.json"
 FIT = "fitModel.wrenmouth_quarterly_aids.json"
 
@@ -203,7 +208,7 @@ def test_every_example_gets_the_digest_of_its_body(client: TestClient, name: str
     path = {"compare": "/v1/comparisons", "indexSeries": "/v1/index-series",
             "auditPublishedSeries": "/v1/audits", "fitModel": "/v1/fits",
             "fitAndCompare": "/v1/fitted-comparisons",
-            "householdIndices": "/v1/household-indices"}[operation]
+            "householdIndices": "/v1/household-indices", "uprating": "/v1/uprating"}[operation]
     body = load_example(name)
     r = client.post(path, json=body)
     assert r.status_code == 200, r.text
@@ -402,6 +407,8 @@ def _requests(client: TestClient) -> dict[str, tuple[str, str, dict[str, Any]]]:
         "sheetValue": ("GET", f"/v1/sheet/value?{SHEET_QUERY}", {}),
         "sheetComparison": ("GET", f"/v1/sheet/comparison?{SHEET_QUERY}", {}),
         "sheetSeries": ("GET", f"/v1/sheet/series?{SERIES_SHEET_QUERY}", {}),
+        "uprating": ("POST", "/v1/uprating", {"json": load_example(UPRATING)}),
+        "sheetUprating": ("GET", f"/v1/sheet/uprating?{UPRATING_SHEET_QUERY}", {}),
     }
 
 
@@ -422,7 +429,7 @@ def test_every_operation_is_covered(client: TestClient) -> None:
     ["compare", "indexSeries", "indexSeriesFromCsv", "auditPublishedSeries", "fitModel",
      "fitModelCsv", "fitAndCompare", "householdIndices", "createHouseholdJob",
      "householdIndicesFromCsv", "getHouseholdJob", "listPreferenceFamilies", "listIndexFormulas",
-     "demo", "sheetValue", "sheetComparison", "sheetSeries"]))
+     "demo", "sheetValue", "sheetComparison", "sheetSeries", "uprating", "sheetUprating"]))
 def test_an_accept_header_that_admits_nothing_gets_406(client: TestClient, operation: str) -> None:
     method, path, kwargs = _requests(client)[operation]
     headers = {**kwargs.pop("headers", {}), "accept": "image/png"}

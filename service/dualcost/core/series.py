@@ -54,6 +54,7 @@ import numpy as np
 import numpy.typing as npt
 from numpy.typing import NDArray
 
+from .changes import Calendar, Changes, Rebase, changes_of
 from .comparison import WeightReference
 from .deadline import check as check_deadline
 from .errors import DualcostError, InvalidInput, NumericalFailure
@@ -205,6 +206,18 @@ class WeightShares:
 
 
 @dataclass(frozen=True)
+class SeriesChanges:
+    """The change measures of one published series (:mod:`dualcost.core.changes`):
+    ``series`` a formula, GEKS method or ``konus``; ``kind`` fixed_base, chained, full_span or
+    rolling; ``standard`` the Konüs living standard (None for the others)."""
+
+    series: str
+    kind: str
+    standard: Target | None
+    changes: Changes
+
+
+@dataclass(frozen=True)
 class IndexSeries:
     """Everything :func:`index_series` returns; see the module docstring for each definition."""
 
@@ -225,6 +238,10 @@ class IndexSeries:
     lloyd_moulton_sigma: float | None
     new_goods_sigma: float | None
     notices: list[Notice] = field(default_factory=list)
+    #: Change measures of every published series, and the calendar and rebase they used.
+    changes: list[SeriesChanges] = field(default_factory=list)
+    calendar: Calendar | None = None
+    rebase: Rebase | None = None
 
 
 # -- the model and its base budget ----------------------------------------------------------------
@@ -570,6 +587,7 @@ def index_series(
     geks_splice: Splice = "movement",
     span: tuple[int, int] | None = None,
     loop: Sequence[int] | None = None,
+    rebase: Rebase | None = None,
 ) -> IndexSeries:
     """Formula, Konüs and GEKS series over a panel, with bias, chain drift and item treatment.
 
@@ -600,6 +618,8 @@ def index_series(
         First and last period of the average annual bias (default: the whole panel).
     loop:
         Periods of the circularity check (default: the span in order, closing back to its start).
+    rebase:
+        A further reference (period or year) of the changes' rebased levels, worth ``reference_value``.
     """
     n_t = panel.n_periods
     ref, scale = _reference(n_t, base, reference, reference_value)
@@ -638,12 +658,36 @@ def index_series(
                               "are not computed."))
     drift = _drift(compare, raw, multilateral, panel, base, the_span, loop)
     treatment = item_treatment(panel, base, konus)
+    calendar = Calendar.of(panel.periods, panel.frequency, panel.times)
+    rebase = None if rebase is None else Rebase(rebase.period, rebase.year, scale)
     return IndexSeries(
         periods=panel.periods, items=panel.items, base=base, reference=ref,
         reference_value=scale, formulas=series, konus=konus_out, multilateral=geks_out,
         bias=bias, annual_bias=annual, span=the_span, chain_drift=drift,
         item_treatment=treatment, weights=weight_shares, lloyd_moulton_sigma=lm_sigma,
-        new_goods_sigma=ng_sigma, notices=notices)
+        new_goods_sigma=ng_sigma, notices=notices, calendar=calendar, rebase=rebase,
+        changes=series_changes(series, geks_out, konus_out, calendar, rebase))
+
+
+def series_changes(series: Mapping[str, FormulaSeries], multilateral: Sequence[Multilateral],
+                   konus: KonusSeries | None, calendar: Calendar,
+                   rebase: Rebase | None) -> list[SeriesChanges]:
+    """The change measures of every published series: each formula's fixed-base and chained
+    series, each GEKS series, and the Konüs series at each standard."""
+    named: dict[tuple[str, str, Target | None], Array] = {}
+    for f in series.values():
+        named[(f.name, "fixed_base", None)] = f.fixed_base
+        named[(f.name, "chained", None)] = f.chained
+    for g in multilateral:
+        named[(g.name, "full_span", None)] = g.full_span
+        if g.rolling is not None:
+            named[(g.name, "rolling", None)] = g.rolling
+    if konus is not None:
+        for kind, block in (("fixed_base", konus.fixed_base), ("chained", konus.chained)):
+            for target, values in block.items():
+                named[("konus", kind, target)] = values  # type: ignore[index]
+    found = changes_of(named, calendar, rebase)
+    return [SeriesChanges(name, kind, target, c) for (name, kind, target), c in found.items()]
 
 
 def _reference(n_t: int, base: int, reference: int | None,
@@ -978,6 +1022,8 @@ def series_by_label(
     weight_reference_period: str | None = None,
     weight_reference: Mapping[str, npt.ArrayLike] | None = None,
     model: Callable[[BaseBudget, tuple[int, ...]], Preferences] | None = None,
+    rebase_period: str | None = None,
+    rebase_year: int | None = None,
     **options: Any,
 ) -> LabelledSeries:
     """The whole series from plain arrays and period labels, in one call.
@@ -987,7 +1033,8 @@ def series_by_label(
     when given, is called with the base period's budget and the positions of the items priced
     in it, and returns the family calibrated to them; ``weight_reference`` holds any of
     ``prices``, ``quantities`` and ``shares`` of an earlier period, and the shares'
-    ``share_unit`` (:class:`WeightReference`).
+    ``share_unit`` (:class:`WeightReference`); ``rebase_period`` (a label) or ``rebase_year``
+    the further reference of the change measures' rebased levels.
     The other ``options`` go to :func:`index_series`. Errors name the arguments as
     :func:`index_series` does, the period arguments by their names (``base_period``, ``span``,
     ``loop`` with the position in the loop, ``weight_reference``).
@@ -1010,14 +1057,23 @@ def series_by_label(
         weights = WeightReference.checked(panel.n_items,
                                           share_unit=str(given.pop("share_unit", "fraction")),
                                           **given)
+    rebase = _rebase(panel, rebase_period, rebase_year)
     calibrated = None
     if model is not None:
         budget, items_priced = base_budget(panel, base)
         calibrated = model(budget, items_priced)
     result = index_series(panel, base=base, reference=reference, model=calibrated,
-                          weight_reference=weights, span=positions, loop=loop_at, **options)
+                          weight_reference=weights, span=positions, loop=loop_at, rebase=rebase,
+                          **options)
     result.notices[:0] = _period_defaults(panel, base_period, reference_period, frequency)
     return LabelledSeries(result, panel, calibrated)
+
+
+def _rebase(panel: Panel, period: str | None, year: int | None) -> Rebase | None:
+    """The rebase the labels name (its value is set by :func:`index_series`)."""
+    if period is None and year is None:
+        return None
+    return Rebase(None if period is None else panel.period_index("rebase_period", period, 0), year)
 
 
 def _period_defaults(panel: Panel, base_period: str | None, reference_period: str | None,

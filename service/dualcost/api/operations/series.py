@@ -27,6 +27,7 @@ from ..inputs.query import json_parameter, names
 from ..observability import computing
 from ..schemas.common import CAUTION
 from ..schemas.series import SeriesOptions
+from . import changes
 from .answers import SCALE_RATIO, notices_json
 
 #: Where each core argument of a series is: in the JSON body, in the query string (the CSV
@@ -59,6 +60,9 @@ PLACES: dict[str, Place] = {
     "loop": Place("/loop", "loop", "list"),
     "model": Place("/model", "model", json_text=True),
     "share_unit": Place("/share_unit", "share_unit"),
+    "rebase": Place("/rebase", "rebase_period"),
+    "rebase_period": Place("/rebase/period", "rebase_period"),
+    "rebase_year": Place("/rebase/year", "rebase_year"),
 }
 
 ANNUAL_DEFINITION = (
@@ -145,6 +149,8 @@ def _periods(options: SeriesOptions) -> dict[str, Any]:
                                                    label(options.span.end)),
         "loop": None if options.loop is None else [str(x) for x in options.loop],
         "weight_reference_period": None if wr is None else label(wr.period),
+        "rebase_period": None if options.rebase is None else label(options.rebase.period),
+        "rebase_year": None if options.rebase is None else options.rebase.year,
     }
 
 
@@ -201,6 +207,7 @@ def document(outcome: Outcome) -> dict[str, Any]:
             "detail": describe_treatment(e, labels, r.base)} for e in r.item_treatment],
         "weights": _weights_out(r, labels, outcome.axis.ids),
         "lloyd_moulton_sigma": r.lloyd_moulton_sigma, "new_goods_sigma": r.new_goods_sigma,
+        "changes": changes.document(r),
         "notices": dialect_notices(outcome.dialect)
         + notices_json(r.notices, outcome.axis.ids, outcome.axis.labels),
         "scale": scale(outcome),
@@ -283,7 +290,8 @@ def _num(x: float) -> float | None:
 def table(outcome: Outcome) -> tuple[list[str], list[list[Any]]]:
     """The per-period table: one row per period, one column per series."""
     r = outcome.result
-    columns = _konus_columns(r) + _formula_columns(r) + _treatment_columns(r, outcome.axis.ids)
+    columns = (_konus_columns(r) + _formula_columns(r) + _treatment_columns(r, outcome.axis.ids)
+               + changes.columns(r))
     header = ["period"] + [name for name, _ in columns]
     rows = [[r.periods[t]] + [values[t] for _, values in columns]
             for t in range(len(r.periods))]
@@ -351,6 +359,9 @@ def options_body(query: Mapping[str, Any]) -> dict[str, Any]:
     for key in ("formulas", "loop"):
         if query.get(key):
             body[key] = names(query[key])
+    if query.get("rebase_period") is not None or query.get("rebase_year") is not None:
+        body["rebase"] = {key: query[f"rebase_{key}"] for key in ("period", "year")
+                          if query.get(f"rebase_{key}") is not None}
     if query.get("weight_reference_period") is not None:
         body["weight_reference"] = {"period": query["weight_reference_period"]}
     body["geks"] = {key: query[f"geks_{key}"] for key in ("window", "splice")

@@ -72,8 +72,37 @@ def series_body(query: Mapping[str, Any], prices: list[str], quantities: list[st
             body[key] = query[key]
     if query.get("formulas"):
         body["formulas"] = names(query["formulas"], decimal)
+    if query.get("rebase_period") or query.get("rebase_year") is not None:
+        body["rebase"] = {key: query[f"rebase_{key}"] for key in ("period", "year")
+                          if query.get(f"rebase_{key}") is not None}
     if query.get("family"):
         body["model"] = {"family": query["family"]}
         if query.get("sigma") is not None:
             body["model"]["sigma"] = number("sigma", query["sigma"], decimal)
+    return body
+
+
+#: The clause form's query parameters and the clause fields they fill.
+CLAUSE_FIELDS = ("measure", "period_of_year", "since", "lag", "floor", "cap")
+
+
+def uprating_body(query: Mapping[str, Any], prices: list[str], quantities: list[str] | None,
+                  ) -> dict[str, Any]:
+    """The JSON body of an uprating with one clause, from the clause form's query parameters:
+    the series as :func:`series_body` reads it, and the clause's fields."""
+    decimal = query["decimal"]
+    body = series_body(query, prices, quantities)
+    clause: dict[str, Any] = {}
+    for key in CLAUSE_FIELDS:
+        value = query.get(key)
+        if value is None:
+            continue
+        clause[key] = number(key, value, decimal) if key in ("floor", "cap") else value
+    if query.get("decimals") is not None or query.get("rounding") is not None:
+        clause["rounding"] = {key: query[name] for key, name in (
+            ("decimals", "decimals"), ("method", "rounding")) if query.get(name) is not None}
+    body["clauses"] = [clause]
+    for key in ("series_kind", "konus_standard"):
+        if query.get(key) is not None:
+            body[key] = query[key]
     return body

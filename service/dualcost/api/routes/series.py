@@ -63,6 +63,12 @@ series adds the CES new-goods adjustment (Feenstra 1994) with elasticity `new_go
 **Lowe and Young** series take the basket or shares of a `weight_reference` period at or before the
 base; `weights` gives the shares and their price-updated form (the form in which Young equals
 Lowe).
+
+**Change measures** of every series (`changes`; in CSV, columns per series): period-on-period,
+12-month (the same period a year earlier, for monthly, quarterly or annual data), the annual
+average of each calendar year covered in full and its change over the previous year, and the
+levels rebased to any period or year (`rebase`). A measure that needs a period the series lacks
+is null, and `empty` says where and why.
 """
 CSV_DESCRIPTION = (
     "The body is `text/csv` with columns `period`, `item`, `price` and, where known, "
@@ -128,6 +134,11 @@ def index_series_from_csv(
     span_start: Annotated[str | None, Query()] = None,
     span_end: Annotated[str | None, Query()] = None,
     loop: Annotated[str | None, Query(description="Comma-separated period labels.")] = None,
+    rebase_period: Annotated[str | None, Query(description="Rebase every series to this "
+                                                           "period (the changes' rebased "
+                                                           "levels).")] = None,
+    rebase_year: Annotated[int | None, Query(ge=1, le=9999, description="Rebase every series "
+                                             "to this calendar year's average.")] = None,
     separator: SeparatorParam = None,
     decimal: DecimalParam = None,
     format: FormatParam = None,

@@ -27,10 +27,10 @@ from ..deps import settings_of
 from ..inputs.locator import Place
 from ..inputs.panels import panel_from_json
 from ..inputs.query import validated
-from ..operations import compare, series, sheets
+from ..operations import compare, series, sheets, uprating
 from ..operations.answers import notices_json
 from ..problems import RequestProblem, error_text, problem_response
-from ..provenance import Provenance, of_body
+from ..provenance import Provenance, header_text, of_body
 from ..render import (
     CSV_CONTENT_TYPE,
     TEXT_CONTENT_TYPE,
@@ -42,6 +42,7 @@ from ..routing import JsonRoute, inline_when_cheap
 from ..schemas.common import SHARE_UNIT_TEXT, DecimalMark, ShareUnit
 from ..schemas.comparison import ComparisonRequest
 from ..schemas.series import SeriesRequest
+from ..schemas.uprating import UpratingRequest
 
 router = APIRouter(route_class=JsonRoute, prefix="/v1/sheet", tags=["spreadsheets"])
 
@@ -59,6 +60,12 @@ Vector = Annotated[str | None, Query(description="Numbers in the order of items,
                                      "commas (or all by semicolons), '.' as decimal point; "
                                      "with decimal=comma, ',' as decimal mark and separated by "
                                      "semicolons.")]
+
+
+RebasePeriod = Annotated[str | None, Query(description="Rebase every series to this period "
+                                                  "(the change measures' rebased columns).")]
+RebaseYear = Annotated[int | None, Query(ge=1, le=9999, description="Rebase every series to "
+                                         "this calendar year's average.")]
 
 
 def _number(description: str) -> Any:
@@ -193,6 +200,8 @@ def sheet_series(
     family: Annotated[str | None, Query(description="A model for the Konüs series (ces, "
                                                     "cobb_douglas, translog, quadratic).")] = None,
     sigma: Annotated[str | None, _number("Elasticity of substitution.")] = None,
+    rebase_period: RebasePeriod = None,
+    rebase_year: RebaseYear = None,
     digits: Digits = None,
     decimal: Decimal = "point",
     on_error: OnError = "problem",
@@ -225,6 +234,84 @@ SERIES_MODEL_PLACES = {"model": Place("/model", "family"), "family": Place("/mod
                        "sigma": Place("/model/sigma", "sigma")}
 
 
+#: Where the clause form's query parameters go in the uprating body it stands for.
+CLAUSE_PLACES = {
+    **{f"clause_{k}": Place(f"/clauses/0/{k}", k) for k in sheets.CLAUSE_FIELDS},
+    "clause_decimals": Place("/clauses/0/rounding/decimals", "decimals"),
+    "clause_rounding": Place("/clauses/0/rounding/method", "rounding"),
+    "clause_rounding_object": Place("/clauses/0/rounding", "decimals"),
+    "clause": Place("/clauses/0", "measure"),
+}
+
+
+@router.head("/uprating", include_in_schema=False)
+@router.get("/uprating", operation_id="sheetUprating", response_class=Response,
+            responses={200: {"content": {"text/csv": {}, "text/plain": {}},
+                             "description": "One number, the clause's uprating factor under "
+                             "`index` (a CSV of one cell); the uprating is named in the "
+                             "Dualcost-Uprating header. With on_error=text a bad request is "
+                             "answered as text/plain 'ERROR: ...'"}})
+@inline_when_cheap(workload.of_sheet_series)
+def sheet_uprating(
+    request: Request,
+    items: Annotated[str, Query(description="Item ids, comma-separated: the order of every row.")],
+    periods: Annotated[str, Query(description="Period labels (dates), comma-separated.")],
+    prices: Annotated[list[str], Query(description="Repeated once per period, in period order: "
+                                                   "that period's prices in item order.")],
+    measure: Annotated[str, Query(description="twelve_month, annual_average or cumulative.")],
+    lag: Annotated[int, Query(description="Periods from the measure period to the payment.")],
+    index: Annotated[str, Query(description="The index whose factor to give: a formula name, "
+                                            "or konus (needs family).")],
+    quantities: Annotated[list[str] | None, Query(description="Repeated once per period, like "
+                                                               "prices (optional).")] = None,
+    period_of_year: Annotated[int | None, Query(description="Month or quarter the change is "
+                                                            "read in.")] = None,
+    since: Annotated[str | None, Query(description="cumulative: the period it counts "
+                                                   "from.")] = None,
+    decimals: Annotated[int | None, Query(description="Decimals of the rounded change.")] = None,
+    rounding: Annotated[str | None, Query(description="half_up, half_even, down or up.")] = None,
+    floor: Annotated[str | None, _number("Lowest change applied, percent.")] = None,
+    cap: Annotated[str | None, _number("Highest change applied, percent.")] = None,
+    paid_from: Annotated[str | None, Query(description="The uprating paid from this period "
+                                                       "(default: the last one paid within "
+                                                       "the series).")] = None,
+    series_kind: Annotated[str | None, Query(description="fixed_base or chained.")] = None,
+    konus_standard: Annotated[str | None, Query(description="base, current or midpoint.")] = None,
+    base_period: str | None = None,
+    formulas: Annotated[str | None, Query(description="Comma-separated formula names.")] = None,
+    family: Annotated[str | None, Query(description="A model for the Konüs index.")] = None,
+    sigma: Annotated[str | None, _number("Elasticity of substitution.")] = None,
+    digits: Digits = None,
+    decimal: Decimal = "point",
+    on_error: OnError = "problem",
+) -> Response:
+    """One clause's uprating factor as one number (text/csv), for a spreadsheet: the series as
+    in `/v1/sheet/series`, the clause's fields as query parameters, e.g.
+    `&measure=twelve_month&period_of_year=9&lag=7&decimals=1&rounding=half_up&floor=0&index=laspeyres`."""
+    query = dict(locals())
+    chosen: dict[str, str] = {}
+
+    def one() -> tuple[str, Provenance]:
+        loc = uprating.locator("query")
+        for name, place in (SERIES_MODEL_PLACES | CLAUSE_PLACES).items():
+            loc.add(name, place)
+        body = validated(UpratingRequest, sheets.uprating_body(query, prices, quantities), loc)
+        settings = settings_of(request)
+        panel = panel_from_json(body.periods, body.items, {"prices": body.prices,
+                                "quantities": body.quantities, "expenditures": None},
+                                series.limits(settings), loc)
+        outcome = uprating.run(body, panel, settings, loc, "sheetUprating")
+        value, chosen["text"] = uprating.factor(outcome, index, paid_from)
+        return numbers.number(value) + "\r\n", of_body(body)
+
+    numbers = SheetNumbers(decimal, digits)
+    response = _answer(request, on_error, CSV_CONTENT_TYPE, one, numbers)
+    if "text" in chosen:
+        response.headers["Dualcost-Uprating"] = header_text(chosen["text"])
+    return response
+
+
+@router.options("/uprating", include_in_schema=False)
 @router.options("/comparison", include_in_schema=False)
 @router.options("/value", include_in_schema=False)
 @router.options("/series", include_in_schema=False)

@@ -67,6 +67,21 @@ class SpanIn(StrictModel):
     end: PeriodLabel | None = Field(None, description="Last period (default: the last).")
 
 
+class RebaseIn(StrictModel):
+    """A further index reference for the change measures' rebased levels: one period of the
+    panel, or a calendar year the panel covers in full (its average is then the reference)."""
+
+    period: PeriodLabel | None = Field(None, description="A period of the panel.")
+    year: StrictInt | None = Field(None, ge=1, le=9999, description="A calendar year the "
+                                   "panel covers in full (monthly, quarterly or annual labels).")
+
+    @model_validator(mode="after")
+    def _one(self) -> RebaseIn:
+        if (self.period is None) == (self.year is None):
+            raise ValueError("give the period or the year to rebase to, one of them")
+        return self
+
+
 class SeriesOptions(StrictModel):
     """Everything but the panel: shared by the JSON and the CSV operation."""
 
@@ -95,6 +110,10 @@ class SeriesOptions(StrictModel):
     loop: list[PeriodLabel] | None = Field(
         None, min_length=2, description="Periods of the circularity check, in order (default: the "
                                         "span's periods, closing back to its first).")
+    rebase: RebaseIn | None = Field(
+        None, description="Rebase every series to this period or year (worth reference_value "
+                          "there) in `changes.by_series[].rebased`; the changes are the same on "
+                          "any reference.")
 
 
 class SeriesRequest(SeriesOptions):
@@ -234,6 +253,48 @@ class WeightsOut(StrictModel):
     rule: str
 
 
+class EmptyOut(StrictModel):
+    measure: Literal["period_on_period", "twelve_month", "annual_average",
+                     "annual_average_change", "rebased"]
+    reason: str
+    periods: list[str] = Field(description="The periods where the measure is empty.")
+    years: list[int] = Field(description="The years where an annual measure is empty.")
+
+
+class AnnualOut(StrictModel):
+    year: int
+    average: float | None = Field(description="Arithmetic mean of the year's levels.")
+    change_percent: float | None = Field(description="100 (A_y / A_{y-1} - 1).")
+
+
+class SeriesChangesOut(StrictModel):
+    series: str = Field(description="A formula, a GEKS method, or konus.")
+    kind: Literal["fixed_base", "chained", "full_span", "rolling"]
+    standard: Literal["base", "current", "midpoint"] | None = Field(
+        description="The Konüs series' living standard (null for the others).")
+    period_on_period_percent: list[float | None] = Field(
+        description="100 (X_t / X_{t-1} - 1); null where empty (see empty).")
+    twelve_month_percent: list[float | None] = Field(
+        description="100 (X_t / X_{t-k} - 1), k periods to a year: the change from the same "
+                    "period a year earlier; null where empty.")
+    annual: list[AnnualOut] = Field(description="Each calendar year the series covers in full.")
+    rebased: list[float | None] | None = Field(description="The levels on the `rebase` "
+                                               "reference (null when none was asked for).")
+    empty: list[EmptyOut]
+
+
+class RebasedToOut(StrictModel):
+    period: str | None
+    year: int | None
+    value: float
+
+
+class ChangesOut(StrictModel):
+    definitions: dict[str, str]
+    rebased_to: RebasedToOut | None
+    by_series: list[SeriesChangesOut]
+
+
 class SeriesResponse(StrictModel):
     periods: list[str]
     items: list[str]
@@ -251,11 +312,14 @@ class SeriesResponse(StrictModel):
     weights: WeightsOut | None
     lloyd_moulton_sigma: float | None
     new_goods_sigma: float | None
+    changes: ChangesOut = Field(description="Change measures of every series: period-on-period, "
+                                "12-month, annual averages and their changes, and the levels "
+                                "rebased where asked.")
     notices: list[NoticeOut]
     scale: ScaleOut = Field(description="How the levels, links and biases are scaled.")
     caution: str
     provenance: ProvenanceOut
 
 
-__all__ = ["FREQUENCY_TEXT", "PeriodLabel", "SeriesFormula", "SeriesOptions", "SeriesRequest",
+__all__ = ["FREQUENCY_TEXT", "RebaseIn", "PeriodLabel", "SeriesFormula", "SeriesOptions", "SeriesRequest",
            "SeriesResponse"]
