@@ -159,3 +159,25 @@ def of_sheet_comparison(arguments: Mapping[str, Any]) -> float:
 
 def of_sheet_series(arguments: Mapping[str, Any]) -> float:
     return sheet_series(arguments.get("items"), arguments.get("periods"), arguments.get("family"))
+
+
+def index_tree(body: Any) -> float:
+    """The index of a classification tree: every quote in every period, and the model's pass
+    over the tree's nodes in every period (each link computes its own periods)."""
+    periods = len(body.periods)
+    nodes = len(body.tree) if isinstance(body.tree, list) else groups_of_nodes(body.tree)
+    return PER_CELL * periods * (len(body.quotes) + nodes) + PER_GROUP * nodes * periods
+
+
+def groups_of_nodes(tree: Any) -> int:
+    """The nodes of a nested classification (a request's NodeIn), counted without recursion."""
+    count, stack = 0, [tree]
+    while stack:
+        node = stack.pop()
+        count += 1
+        stack.extend(node.children or [])
+    return count
+
+
+def of_index_tree(arguments: Mapping[str, Any]) -> float:
+    return index_tree(arguments["body"])
