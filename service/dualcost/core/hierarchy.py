@@ -209,25 +209,26 @@ def check_weights(h: Hierarchy, given: npt.ArrayLike, *, tolerance: float = 1e-6
     w = np.array(given, dtype=np.float64, copy=True)
     raw = _raw_weights(h, w, label)
     notices: list[Notice] = []
-    scale = np.ones(h.size)
-    for g in sorted(h.groups, key=lambda k: h.depths[k]):  # top-down: a factor passes down
-        kids = list(h.children[g])
-        total = float(np.sum(raw[kids]))
-        if np.isnan(w[g]):
-            scale[kids] = scale[g]
-            continue
-        gap = abs(total - w[g])
-        if gap > tolerance * w[g]:
-            if not normalise:
+    if not normalise:  # the deepest group that does not add up is the one to correct
+        for g in h.order:
+            total = float(np.sum(raw[list(h.children[g])]))
+            if h.children[g] and not np.isnan(w[g]) and abs(total - w[g]) > tolerance * w[g]:
                 raise InvalidInput("weights", f"the weights of the children of "
                                    f"{h.path(g)!r} add up to {total:.10g}, not to its weight "
                                    f"{w[g]:.10g}{label} (difference {total - w[g]:.3g}, "
                                    f"tolerance {tolerance:g} of the weight); correct them, or "
                                    "ask for normalise_weights", index=(g,))
-            notices.append(Notice("weights_normalised", f"The weights of the children of "
-                                  f"{h.path(g)!r}{label} added up to {total:.10g}, not to its "
-                                  f"weight {w[g]:.10g}; they were scaled by "
-                                  f"{w[g] / total:.10g} to add up to it."))
+    scale = np.ones(h.size)
+    for g in sorted(h.groups, key=lambda k: h.depths[k]):  # top-down: a factor passes down
+        kids = list(h.children[g])
+        total = float(np.sum(raw[kids]))
+        if np.isnan(w[g]) or abs(total - w[g]) <= tolerance * w[g]:
+            scale[kids] = scale[g]  # within the tolerance nothing is rescaled
+            continue
+        notices.append(Notice("weights_normalised", f"The weights of the children of "
+                              f"{h.path(g)!r}{label} added up to {total:.10g}, not to its "
+                              f"weight {w[g]:.10g}; they were scaled by {w[g] / total:.10g} "
+                              "to add up to it."))
         scale[kids] = scale[g] * w[g] / total
     scaled = raw * scale
     grand = float(np.sum(scaled[list(h.elementary)]))

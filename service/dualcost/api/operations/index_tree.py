@@ -198,7 +198,7 @@ def _place(exc: InvalidInput, nodes: Nodes, request: IndexTreeRequest,
            ) -> tuple[str, str, Any]:
     """(argument, rule, index) in the request's terms."""
     index = exc.index
-    if exc.parameter in _NODE_FIELDS and isinstance(index, int):
+    if exc.parameter in _NODE_FIELDS and isinstance(index, int) and index < len(nodes.places):
         field = _NODE_FIELDS[exc.parameter]
         place = nodes.places[index]
         if field is not None and (nodes.flat or field in ("name", "sigma", "formula")):

@@ -41,7 +41,7 @@ class FlatNodeIn(StrictModel):
     formula: ElementaryFormula | None = Field(None, description=FORMULA_TEXT)
 
 
-TreeIn = Annotated[NodeIn | list[FlatNodeIn], Field(
+TreeIn = Annotated[NodeIn | Annotated[list[FlatNodeIn], Field(min_length=1)], Field(
     union_mode="left_to_right",
     description="The classification: a root node with nested children, or a list of nodes "
                 "each naming its parent (one root).")]
