@@ -263,3 +263,27 @@ def test_a_big_tree_is_sent_to_the_compute_threads() -> None:
     for k, q in enumerate(big["quotes"]):
         q["id"] = f"q{k}"
     assert workload.index_tree(IndexTreeRequest.model_validate(big)) > 100_000
+
+
+def test_the_demo_file_is_the_example_and_the_readme_states_its_figures(
+        client: TestClient) -> None:
+    """The spreadsheet form reads service/dualcost/demo/wrenmouth_index_tree.json, which is the
+    example; the README's figures for 2026-06 are the answer's, to the decimals written."""
+    import json
+    import re
+
+    from tests.conftest import ROOT
+
+    demo = ROOT / "service" / "dualcost" / "demo" / "wrenmouth_index_tree.json"
+    assert json.loads(demo.read_text(encoding="utf-8")) == body()
+    nodes = {n["name"]: n for n in client.post("/v1/index-tree", json=body()).json()["nodes"]}
+    readme = re.sub(r"\s+", " ", (ROOT / "README.md").read_text(encoding="utf-8"))
+    found = re.search(r"all items stand at ([\d.]+) .*? against a Konüs index of ([\d.]+): a "
+                      r"bias of ([\d.]+) index points, ([\d.]+) in food", readme)
+    assert found is not None
+    root, food = nodes["all items"], nodes["01 food and non-alcoholic beverages"]
+    for text, value in zip(found.groups(), (root["index"][-1], root["konus"][-1],
+                                            root["bias_points"][-1], food["bias_points"][-1]),
+                           strict=True):
+        assert text == f"{value:.2f}"
+    assert "applicable law or agreement" in readme.split("### The index as a statistical")[1]
