@@ -126,8 +126,11 @@ def elementary_indices(h: Hierarchy, quotes: Quotes, base: int, periods: Sequenc
     counts = np.zeros((h.size, len(periods)))
     model = None if sigmas is None else np.full((h.size, len(periods)), np.nan)
     owner = np.asarray(quotes.aggregate, dtype=np.intp)
+    # Quotes sorted by aggregate once, so each aggregate's are one slice (not a mask per node).
+    order = np.argsort(owner, kind="stable")
+    starts = np.searchsorted(owner[order], np.arange(h.size + 1))
     for e in h.elementary:
-        p = quotes.prices[owner == e]
+        p = quotes.prices[order[starts[e]:starts[e + 1]]]
         p0 = p[:, base][None, :]
         pt = p[:, list(periods)].T
         matched = np.isfinite(p0) & np.isfinite(pt)
@@ -143,6 +146,7 @@ def elementary_indices(h: Hierarchy, quotes: Quotes, base: int, periods: Sequenc
         index[e] = ELEMENTARY[formula](p0, pt, matched)
         if model is not None and sigmas is not None:
             model[e] = model_elementary(p0, pt, matched, float(sigmas[e]))
+        check_deadline("the elementary aggregates")
     return index, counts, model
 
 
@@ -248,8 +252,8 @@ def konus_indices(h: Hierarchy, sigmas: Array, shares: Array, at_b: Array,
     spec, items = model_tree(h, sigmas)
     model = NestedCES(shares[items] / np.sum(shares[items]), at_b[items],
                       parse_tree(spec, len(items)))
-    names = [g["name"] for g in model.groups()]
-    rows = [h.names.index(str(name)) for name in names]
+    position = {name: k for k, name in enumerate(h.names)}
+    rows = [position[str(g["name"])] for g in model.groups()]
     out = np.array(at_t, copy=True)
     start = model.group_cost_relatives(np.ones(len(items)))
     for t in range(at_t.shape[1]):

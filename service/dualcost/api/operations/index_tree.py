@@ -27,6 +27,7 @@ from ...core.hierarchy import Hierarchy, build_hierarchy
 from ...core.index_tree import IndexTree, index_tree
 from ..inputs.locator import Form, Locator, Place
 from ..observability import computing
+from ..render import finite
 from ..schemas.common import CAUTION
 from ..schemas.index_tree import IndexTreeRequest, NodeIn
 from .answers import notices_json
@@ -231,7 +232,7 @@ def document(outcome: Outcome) -> dict[str, Any]:
     periods = [request.periods[t] for t in r.periods]
     ids, labels = _labels(request)
     counts = Counter(q.aggregate for q in request.quotes)
-    return {
+    return finite({
         "periods": periods,
         "reference_period": periods[0],
         "reference_value": scale,
@@ -243,7 +244,7 @@ def document(outcome: Outcome) -> dict[str, Any]:
         "notices": notices_json(r.notices, ids, labels),
         "scale": _scale(periods[0], scale),
         "caution": CAUTION,
-    }
+    }, "index tree")
 
 
 def _scale(reference: str, value: float) -> dict[str, str | None]:
