@@ -249,10 +249,12 @@ def test_bad_input_names_the_field_and_the_node(client: TestClient, change: Any,
 
 
 def test_a_big_tree_is_sent_to_the_compute_threads() -> None:
-    """The work estimate grows with quotes, nodes and periods (api/workload.py), so a big tree
-    is computed off the event loop."""
+    """The work estimate grows with quotes, nodes and periods (api/workload.py): a two-period
+    tree of fourteen items computes on the event loop, the demo tree and bigger ones in the
+    compute threads."""
     from dualcost.api import workload
     from dualcost.api.schemas.index_tree import IndexTreeRequest
+    from dualcost.config import Settings
 
     small = IndexTreeRequest.model_validate(comparison_as_tree(
         load_example("compare.wrenmouth_nested_ces.json")))
@@ -262,7 +264,9 @@ def test_a_big_tree_is_sent_to_the_compute_threads() -> None:
     big["quotes"] = big["quotes"] * 40
     for k, q in enumerate(big["quotes"]):
         q["id"] = f"q{k}"
-    assert workload.index_tree(IndexTreeRequest.model_validate(big)) > 100_000
+    budget = Settings().inline_compute_max_work
+    assert workload.index_tree(small) < budget < workload.index_tree(demo)
+    assert workload.index_tree(IndexTreeRequest.model_validate(big)) > 3 * budget
 
 
 def test_the_demo_file_is_the_example_and_the_readme_states_its_figures(

@@ -224,3 +224,35 @@ def test_an_aggregate_without_prices_in_a_period_is_refused_naming_it_and_the_pe
         index_tree(tree(), Quotes(prices, OWNER, ("kg",) * 6), [Link(1, WEIGHTS)], PERIODS)
     assert caught.value.index == (4,) and "'all > b'" in caught.value.rule
     assert "'1'" in caught.value.rule
+
+
+@pytest.mark.parametrize("sigma", [0.0, 0.5, 1.0, 1.0 + 1e-9, 3.0, 40.0])
+def test_the_model_s_elementary_index_is_the_power_mean_of_the_matched_relatives(
+        sigma: float) -> None:
+    """Each aggregate's model index is the equal-weight power mean of order 1 - sigma of its
+    matched quotes' relatives (the CES unit cost with equal shares; Hardy, Littlewood and Polya
+    1934), checked against scipy.stats.pmean (scipy.stats.gmean at order 0) as reference
+    library, including a quote left out in one period and orders where the terms span many
+    powers of ten (the shifted evaluation)."""
+    from scipy.stats import gmean, pmean
+
+    from dualcost.core.aggregation import elementary_indices
+
+    rng = np.random.default_rng(3)
+    prices = rng.uniform(0.5, 2.0, size=(6, 4))
+    prices[1, 3] = NAN
+    sigmas = np.full(5, sigma)
+    _, counts, model = elementary_indices(tree(), Quotes(prices, OWNER, (None,) * 6), 0,
+                                          [0, 1, 2, 3], PERIODS + ["3"], sigmas)
+    assert model is not None
+    for e, rows in ((2, [0, 1]), (3, [2, 3]), (4, [4, 5])):
+        for t in range(4):
+            kept = [j for j in rows if np.isfinite(prices[j, t])]
+            rel = prices[kept, t] / prices[kept, 0]
+            order = 1.0 - sigma
+            # Near order 0 scipy's pmean loses digits (rounding over the order); the mean there
+            # is the geometric mean to within |order| times the spread of the logs.
+            near_zero = abs(order) < 1e-6
+            expected = gmean(rel) if near_zero else pmean(rel, order)
+            assert counts[e, t] == len(kept)
+            assert_allclose(model[e, t], expected, rtol=1e-8 if near_zero else 1e-12)

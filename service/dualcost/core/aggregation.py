@@ -58,7 +58,6 @@ import numpy as np
 import numpy.typing as npt
 from numpy.typing import NDArray
 
-from ._means import log_power_mean
 from .deadline import check as check_deadline
 from .errors import InvalidInput
 from .hierarchy import Hierarchy, Weights
@@ -96,15 +95,6 @@ def dutot(p0: Array, pt: Array, matched: Mask) -> Array:
 ELEMENTARY = {"jevons": jevons, "carli": carli, "dutot": dutot}
 
 
-def model_elementary(p0: Array, pt: Array, matched: Mask, sigma: float) -> Array:
-    """The model's elementary index: the power mean of order ``1 - sigma`` of the matched
-    quotes' relatives with equal weights (CES unit cost with equal shares; Jevons at 1)."""
-    n = np.sum(matched, axis=-1, keepdims=True)
-    logs = np.where(matched, np.log(np.where(matched, pt, 1.0) / np.where(matched, p0, 1.0)), 0.0)
-    weights = np.where(matched, 1.0 / n, 0.0)
-    return np.asarray(np.exp(log_power_mean(logs, weights, 1.0 - sigma)), dtype=np.float64)
-
-
 @dataclass(frozen=True)
 class Quotes:
     """Price quotes: ``prices[j, t]`` (``NaN`` where quote ``j`` has no price in period ``t``),
@@ -115,39 +105,105 @@ class Quotes:
     units: tuple[str | None, ...]
 
 
+@dataclass(frozen=True)
+class _Grouped:
+    """Quotes sorted by aggregate (``order``): the aggregates in ascending node order
+    (``nodes``), where each one's quotes start (``starts``), and each sorted quote's aggregate
+    as a position in ``nodes`` (``segment``); every sum over an aggregate is one reduction."""
+
+    order: NDArray[np.intp]
+    nodes: NDArray[np.intp]
+    starts: NDArray[np.intp]
+    segment: NDArray[np.intp]
+
+
+def _grouped(h: Hierarchy, quotes: Quotes) -> _Grouped:
+    owner = np.asarray(quotes.aggregate, dtype=np.intp)
+    order = np.argsort(owner, kind="stable")
+    nodes, starts = np.unique(owner[order], return_index=True)
+    for e in sorted(set(h.elementary) - set(nodes.tolist())):
+        raise InvalidInput("quotes", f"elementary aggregate {h.path(e)!r} has no quotes; give "
+                           "it quotes, or children", index=(e,))
+    for g in nodes.tolist():
+        if h.children[g]:
+            raise InvalidInput("quotes", f"quotes name {h.path(g)!r}, a group with children; a "
+                               "quote belongs to an elementary aggregate", index=(g,))
+    segment = np.repeat(np.arange(nodes.size), np.diff(np.r_[starts, owner.size]))
+    return _Grouped(order, nodes, starts, segment)
+
+
 def elementary_indices(h: Hierarchy, quotes: Quotes, base: int, periods: Sequence[int],
                        periods_named: Sequence[str], sigmas: Array | None = None,
                        ) -> tuple[Array, Array, Array | None]:
     """Each elementary aggregate's index in ``periods`` on period ``base``, by its formula, the
     number of quotes matched, and (with ``sigmas``, one per node) the model's elementary
     index. Rows are nodes (groups' rows unused). An aggregate without a quote priced in both
-    periods is refused, naming it and the periods."""
+    periods is refused, naming it and the periods. The formulas are those of :func:`jevons`,
+    :func:`carli` and :func:`dutot`, and the model's power means (:func:`_model_means`), each
+    summed over every aggregate in one reduction."""
+    g = _grouped(h, quotes)
+    p = quotes.prices[g.order]
+    p0, pt = p[:, [base]], p[:, list(periods)]
+    matched = np.isfinite(p0) & np.isfinite(pt)
+    n = np.add.reduceat(matched, g.starts, axis=0).astype(np.float64)
+    if np.any(n == 0):
+        e, t = (int(x) for x in np.argwhere(n == 0)[0])
+        raise InvalidInput("quotes", f"elementary aggregate {h.path(int(g.nodes[e]))!r} has no "
+                           f"quote priced in both {periods_named[base]!r} and "
+                           f"{periods_named[periods[t]]!r}; an index needs at least one",
+                           index=(int(g.nodes[e]),))
+    rel = np.where(matched, pt, 1.0) / np.where(matched, p0, 1.0)
+    logs = np.where(matched, np.log(rel), 0.0)
+
+    def total(values: Array) -> Array:
+        return np.add.reduceat(np.where(matched, values, 0.0), g.starts, axis=0)
+
+    def by(formula: str) -> Array:
+        if formula == "jevons":
+            return np.exp(total(logs) / n)
+        if formula == "carli":
+            return total(rel) / n
+        return total(np.where(matched, pt, 0.0)) / total(np.where(matched, p0, 0.0))
+
     index = np.full((h.size, len(periods)), np.nan)
+    formulas = np.array([h.formulas[int(e)] for e in g.nodes])
+    for name in ELEMENTARY:
+        rows = np.flatnonzero(formulas == name)
+        if rows.size:
+            index[g.nodes[rows]] = by(name)[rows]
     counts = np.zeros((h.size, len(periods)))
-    model = None if sigmas is None else np.full((h.size, len(periods)), np.nan)
-    owner = np.asarray(quotes.aggregate, dtype=np.intp)
-    # Quotes sorted by aggregate once, so each aggregate's are one slice (not a mask per node).
-    order = np.argsort(owner, kind="stable")
-    starts = np.searchsorted(owner[order], np.arange(h.size + 1))
-    for e in h.elementary:
-        p = quotes.prices[order[starts[e]:starts[e + 1]]]
-        p0 = p[:, base][None, :]
-        pt = p[:, list(periods)].T
-        matched = np.isfinite(p0) & np.isfinite(pt)
-        counts[e] = np.sum(matched, axis=-1)
-        if np.any(counts[e] == 0):
-            t = int(np.argmin(counts[e]))
-            raise InvalidInput("quotes", f"elementary aggregate {h.path(e)!r} has no quote "
-                               f"priced in both {periods_named[base]!r} and "
-                               f"{periods_named[periods[t]]!r}; an index needs at least one",
-                               index=(e,))
-        formula = h.formulas[e]
-        assert formula is not None
-        index[e] = ELEMENTARY[formula](p0, pt, matched)
-        if model is not None and sigmas is not None:
-            model[e] = model_elementary(p0, pt, matched, float(sigmas[e]))
-        check_deadline("the elementary aggregates")
+    counts[g.nodes] = n
+    check_deadline("the elementary aggregates")
+    if sigmas is None:
+        return index, counts, None
+    model = np.full((h.size, len(periods)), np.nan)
+    model[g.nodes] = _model_means(logs, matched, n, g, 1.0 - sigmas[g.nodes])
     return index, counts, model
+
+
+#: Beyond this |t (ln r - centre)| the expm1 form of a power mean could overflow.
+_EXPM1_LIMIT = 30.0
+
+
+def _model_means(logs: Array, matched: Mask, n: Array, g: _Grouped, t: Array) -> Array:
+    """The power mean of order ``t_e`` of each aggregate's matched relatives with equal weights,
+    all aggregates at once, evaluated as :func:`dualcost.core._means.log_power_mean` does:
+    centred on the log mean, by ``expm1``/``log1p`` (full accuracy as ``t`` nears 0), or by a
+    max shift where a term could overflow."""
+    centre = np.add.reduceat(logs, g.starts, axis=0) / n
+    t_q = t[g.segment][:, None]
+    z = np.where(matched, t_q * (logs - centre[g.segment]), 0.0)
+    t_safe = np.where(t == 0.0, 1.0, t)[:, None]
+    small = np.add.reduceat(np.expm1(np.clip(z, -_EXPM1_LIMIT, _EXPM1_LIMIT)), g.starts,
+                            axis=0) / n
+    out = centre + np.log1p(small) / t_safe
+    big = np.maximum.reduceat(np.abs(z), g.starts, axis=0) >= _EXPM1_LIMIT
+    if np.any(big):
+        top = np.maximum.reduceat(np.where(matched, z, -np.inf), g.starts, axis=0)
+        shifted = np.where(matched, np.exp(np.minimum(z - top[g.segment], 0.0)), 0.0)
+        out = np.where(big, centre + (top + np.log(np.add.reduceat(shifted, g.starts, axis=0)
+                                                    / n)) / t_safe, out)
+    return np.exp(np.where(t[:, None] == 0.0, centre, out))
 
 
 def unit_notices(h: Hierarchy, quotes: Quotes) -> list[Notice]:
