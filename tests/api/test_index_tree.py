@@ -54,6 +54,8 @@ def test_the_csv_answer_has_one_row_per_period_and_node(client: TestClient) -> N
     r = client.post("/v1/index-tree", json=b, headers={"accept": "text/csv"})
     assert r.status_code == 200 and r.headers["content-type"].startswith("text/csv")
     assert r.headers["dualcost-input-digest"] == as_json["provenance"]["input_digest"]
+    assert r.headers["dualcost-scale"] == ("indices: levels, 2024-12 = 100; "
+                                           "bias: index points on base 100")
     rows = list(csv.DictReader(io.StringIO(r.text)))
     assert len(rows) == len(as_json["periods"]) * len(as_json["nodes"])
     last = [row for row in rows if row["period"] == "2026-06" and row["node"] == "07 transport"]
@@ -73,6 +75,11 @@ def test_the_spreadsheet_form_gives_one_node_in_one_period(client: TestClient) -
     comma = client.get("/v1/sheet/index-tree", params={"node": "01.1.3 fish", "period": "2025-09",
                                                        "decimal": "comma", "digits": 2})
     assert comma.text == f"{fish['index'][column]:.2f}".replace(".", ",")
+    head = client.head("/v1/sheet/index-tree", params={"node": "01.1.3 fish",
+                                                       "period": "2025-09"})
+    assert head.status_code == 200 and head.headers["dualcost-input-digest"]
+    options = client.options("/v1/sheet/index-tree")
+    assert options.status_code == 204 and "GET" in options.headers["allow"]
     bad = client.get("/v1/sheet/index-tree", params={"node": "02 tobacco", "period": "2025-09"})
     assert errors(bad)[0]["pointer"] == "#/query/node"
     text = client.get("/v1/sheet/index-tree", params={"node": "01.1.3 fish", "period": "1999-01",

@@ -46,7 +46,9 @@ a nested CES model (Sato 1967; :class:`~dualcost.core.preferences.nested_ces.Nes
 same tree with each group's sigma, calibrated to the weight shares at the prices of the weight
 reference period; the Konüs index of a node is its cost relative ``P_g(p^t) / P_g(p^0)``, which
 for a homothetic model does not depend on the living standard (Konüs 1924). The model's series
-is chained at the same links, recalibrated to each link's weights.
+is chained at the same links, recalibrated to each link's weights. With every sigma zero or
+more and positive weights the model is regular everywhere (an increasing, concave unit cost),
+so no Konüs figure is withheld (:mod:`dualcost.core.validity`).
 """
 
 from __future__ import annotations

@@ -247,6 +247,12 @@ def document(outcome: Outcome) -> dict[str, Any]:
     }, "index tree")
 
 
+def scale_of(outcome: Outcome) -> dict[str, str | None]:
+    """The scale of the answer's figures, as the JSON answer's ``scale`` and a CSV header."""
+    r = outcome.result
+    return _scale(outcome.request.periods[r.periods[0]], float(outcome.request.reference_value))
+
+
 def _scale(reference: str, value: float) -> dict[str, str | None]:
     return {"indices": f"levels, {reference} = {value:g}", "bias": "index points on base 100",
             "links": None}
@@ -306,5 +312,5 @@ def value(outcome: Outcome, node: str, period: str, measure: str) -> float | Non
     return (scale if measure == "konus" else 1.0) * float(source[k, column])
 
 
-__all__ = ["Outcome", "PLACES", "document", "flatten", "locator", "run", "table",
+__all__ = ["Outcome", "PLACES", "document", "flatten", "locator", "run", "scale_of", "table",
            "value"]

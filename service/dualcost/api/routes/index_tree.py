@@ -16,6 +16,7 @@ from fastapi.responses import PlainTextResponse, Response
 from .. import workload
 from ..deps import settings_of
 from ..operations import index_tree
+from ..operations.answers import scale_headers
 from ..problems import RequestProblem
 from ..provenance import Provenance, of_body
 from ..render import (
@@ -71,8 +72,10 @@ def index_tree_answer(body: IndexTreeRequest, request: Request,
     outcome = index_tree.run(body, settings_of(request))
     if fmt == "csv":
         header, rows = index_tree.table(outcome)
+        scale = {k: v for k, v in index_tree.scale_of(outcome).items() if v}
         return csv_response(header, rows, provenance=of_body(body),
-                            trailer=provenance == "trailer", filename="index-tree.csv")
+                            trailer=provenance == "trailer", filename="index-tree.csv",
+                            headers=scale_headers(scale))
     return json_response(index_tree.document(outcome), provenance=of_body(body))
 
 
