@@ -101,7 +101,7 @@ def test_an_upper_index_is_consistent_in_aggregation() -> None:
 positive_prices = st.lists(st.floats(0.01, 1e4), min_size=1, max_size=12)
 
 
-@settings(max_examples=200, deadline=None)
+@settings(max_examples=200, deadline=None, derandomize=True, database=None)
 @given(st.data())
 def test_jevons_never_exceeds_carli(data: st.DataObject) -> None:
     """The geometric mean of the relatives is at most their arithmetic mean (the AM-GM
@@ -113,7 +113,7 @@ def test_jevons_never_exceeds_carli(data: st.DataObject) -> None:
     assert jevons(p0, p1, matched) <= carli(p0, p1, matched) * (1 + 1e-12)
 
 
-@settings(max_examples=200, deadline=None)
+@settings(max_examples=200, deadline=None, derandomize=True, database=None)
 @given(st.data())
 def test_dutot_depends_on_units_and_jevons_and_carli_do_not(data: st.DataObject) -> None:
     """Pricing one quote per a different quantity (its prices times k in both periods) leaves
@@ -133,7 +133,7 @@ def test_dutot_depends_on_units_and_jevons_and_carli_do_not(data: st.DataObject)
     weighted_carli = np.sum(q0 / np.sum(q0) * (p1 / p0))
     assert_allclose(dutot(q0, q1, matched), weighted_carli, rtol=1e-12)
     others = np.sum(p1[1:]) / np.sum(p0[1:])
-    if abs(p1[0] / p0[0] - others) > 1e-6 * others and abs(k - 1.0) > 1e-3:
+    if abs(p1[0] / p0[0] - others) > 1e-3 * others and abs(k - 1.0) > 0.1:
         assert not math.isclose(dutot(q0, q1, matched), dutot(p0, p1, matched), rel_tol=1e-12)
 
 
