@@ -298,3 +298,23 @@ def test_the_demo_file_is_the_example_and_the_readme_states_its_figures(
                            strict=True):
         assert text == f"{value:.2f}"
     assert "applicable law or agreement" in readme.split("### The index as a statistical")[1]
+
+
+def test_the_client_sends_the_tree_and_reads_the_csv_answer(client: TestClient) -> None:
+    """dualcost.client.Client.index_tree posts the body (format=csv for the table) and reads
+    the answer as the other operations' (here through the app in-process)."""
+    import httpx
+
+    from dualcost.client import Client, Table
+
+    def handler(request: httpx.Request) -> httpx.Response:
+        r = client.request(request.method, str(request.url.copy_with(scheme="http",
+                                                                      host="testserver")),
+                           content=request.content, headers=dict(request.headers))
+        return httpx.Response(r.status_code, content=r.content, headers=r.headers)
+
+    with Client("http://dualcost.test", transport=httpx.MockTransport(handler)) as dc:
+        table = dc.index_tree(body(), format="csv")
+        answer = dc.index_tree(body())
+    assert isinstance(table, Table) and table.header[:2] == ("period", "node")
+    assert len(table.rows) == len(answer["periods"]) * len(answer["nodes"])
