@@ -256,3 +256,40 @@ def test_the_model_s_elementary_index_is_the_power_mean_of_the_matched_relatives
             expected = gmean(rel) if near_zero else pmean(rel, order)
             assert counts[e, t] == len(kept)
             assert_allclose(model[e, t], expected, rtol=1e-8 if near_zero else 1e-12)
+
+
+def jevons_tree(upper_sigmas: list[float]) -> object:
+    """The worked tree with Jevons in every aggregate and the model's aggregates at sigma 1 (so
+    each aggregate's model index is its Jevons index), the groups' sigmas as given."""
+    return build_hierarchy(NAMES, PARENTS, formulas=[None, None, "jevons", "jevons", "jevons"],
+                           sigmas=[*upper_sigmas, 1.0, 1.0, 1.0])
+
+
+def test_with_cobb_douglas_groups_the_konus_index_is_the_weighted_geometric_mean() -> None:
+    """At sigma 1 everywhere the Konüs index is the geometric mean of the aggregates' indices
+    weighted by the base shares, exact for Cobb-Douglas preferences (Konüs and Byushgens 1926),
+    and the Young (here Laspeyres-type) index is at least that (the weighted AM-GM inequality):
+    worked by hand."""
+    r = index_tree(jevons_tree([1.0, 1.0]), quotes(), [Link(1, WEIGHTS)], PERIODS, upper="young")
+    jev = [math.sqrt(1.5), math.sqrt(1.2 * 1.1), math.sqrt(1.2 * 1.05)]
+    expected = jev[0] ** 0.3 * jev[1] ** 0.2 * jev[2] ** 0.5
+    assert r.konus is not None and r.bias_points is not None
+    assert_allclose(r.konus[0, 1], expected, rtol=1e-13)
+    assert_allclose(r.konus[1, 1], jev[0] ** 0.6 * jev[1] ** 0.4, rtol=1e-13)
+    assert np.all(r.bias_points >= -1e-12)
+
+
+@settings(max_examples=60, deadline=None, derandomize=True, database=None)
+@given(st.lists(st.floats(0.0, 5.0), min_size=2, max_size=2),
+       st.lists(st.floats(0.2, 5.0), min_size=6, max_size=6))
+def test_the_index_on_base_weights_bounds_the_konus_index_at_every_group(
+        sigmas: list[float], current: list[float]) -> None:
+    """With weights of the price reference period, the Young index over Jevons aggregates is a
+    Laspeyres index over the aggregates (whose model prices are their Jevons indices), so it is
+    at least the Konüs index at base utility at every group, whatever the sigmas (Konüs 1924)."""
+    prices = PRICES.copy()
+    prices[:, 2] = current
+    r = index_tree(jevons_tree(sigmas), Quotes(prices, OWNER, (None,) * 6), [Link(1, WEIGHTS)],
+                   PERIODS, upper="young")
+    assert r.konus is not None
+    assert np.all(r.index[:, 1] >= r.konus[:, 1] * (1 - 1e-12))
