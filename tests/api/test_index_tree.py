@@ -58,6 +58,9 @@ def test_the_csv_answer_has_one_row_per_period_and_node(client: TestClient) -> N
                                            "bias: index points on base 100")
     rows = list(csv.DictReader(io.StringIO(r.text)))
     assert len(rows) == len(as_json["periods"]) * len(as_json["nodes"])
+    trailed = client.post("/v1/index-tree?format=csv&provenance=trailer", json=b)
+    assert trailed.text.splitlines()[-3].startswith("#dualcost-version,")
+    assert "#dualcost-input-digest," + r.headers["dualcost-input-digest"] in trailed.text
     last = [row for row in rows if row["period"] == "2026-06" and row["node"] == "07 transport"]
     transport = next(n for n in as_json["nodes"] if n["name"] == "07 transport")
     assert float(last[0]["index"]) == pytest.approx(transport["index"][-1], rel=1e-15)
