@@ -412,6 +412,18 @@ class Client:
                      format=format)
         return self._post_csv("/v1/index-series/csv", panel, query)
 
+    @overload
+    def index_tree(self, request: Mapping[str, Any], *,
+                   format: Literal["json"] = ...) -> dict[str, Any]: ...
+    @overload
+    def index_tree(self, request: Mapping[str, Any], *, format: Literal["csv"]) -> Table: ...
+
+    def index_tree(self, request: Mapping[str, Any], *,
+                   format: Format = "json") -> dict[str, Any] | Table:
+        """POST /v1/index-tree: the index of a classification tree at every node beside the
+        Konüs index; ``format="csv"``: one row per period and node."""
+        return self._post_json("/v1/index-tree", request, format)
+
     def audit(self, request: Mapping[str, Any]) -> dict[str, Any]:
         """POST /v1/audits: published values against a recomputation from their panel."""
         return self._post_json("/v1/audits", request)

@@ -208,7 +208,8 @@ def test_every_example_gets_the_digest_of_its_body(client: TestClient, name: str
     path = {"compare": "/v1/comparisons", "indexSeries": "/v1/index-series",
             "auditPublishedSeries": "/v1/audits", "fitModel": "/v1/fits",
             "fitAndCompare": "/v1/fitted-comparisons",
-            "householdIndices": "/v1/household-indices", "uprating": "/v1/uprating"}[operation]
+            "householdIndices": "/v1/household-indices", "uprating": "/v1/uprating",
+            "indexTree": "/v1/index-tree"}[operation]
     body = load_example(name)
     r = client.post(path, json=body)
     assert r.status_code == 200, r.text
@@ -409,6 +410,9 @@ def _requests(client: TestClient) -> dict[str, tuple[str, str, dict[str, Any]]]:
         "sheetSeries": ("GET", f"/v1/sheet/series?{SERIES_SHEET_QUERY}", {}),
         "uprating": ("POST", "/v1/uprating", {"json": load_example(UPRATING)}),
         "sheetUprating": ("GET", f"/v1/sheet/uprating?{UPRATING_SHEET_QUERY}", {}),
+        "indexTree": ("POST", "/v1/index-tree",
+                      {"json": load_example("indexTree.wrenmouth_coicop.json")}),
+        "sheetIndexTree": ("GET", "/v1/sheet/index-tree?node=07%20transport&period=2026-03", {}),
     }
 
 
@@ -429,7 +433,8 @@ def test_every_operation_is_covered(client: TestClient) -> None:
     ["compare", "indexSeries", "indexSeriesFromCsv", "auditPublishedSeries", "fitModel",
      "fitModelCsv", "fitAndCompare", "householdIndices", "createHouseholdJob",
      "householdIndicesFromCsv", "getHouseholdJob", "listPreferenceFamilies", "listIndexFormulas",
-     "demo", "sheetValue", "sheetComparison", "sheetSeries", "uprating", "sheetUprating"]))
+     "demo", "sheetValue", "sheetComparison", "sheetSeries", "uprating", "sheetUprating",
+     "indexTree", "sheetIndexTree"]))
 def test_an_accept_header_that_admits_nothing_gets_406(client: TestClient, operation: str) -> None:
     method, path, kwargs = _requests(client)[operation]
     headers = {**kwargs.pop("headers", {}), "accept": "image/png"}

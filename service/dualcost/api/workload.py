@@ -20,7 +20,11 @@ The estimate is in microseconds of one core of the machine the figures were meas
 - an index series or an audit: 2 us per pair of periods (the bilateral comparisons behind GEKS
   and the drift checks), 5 us per period and item, and its model's own cost once; a CSV panel
   counts each record as a period of its own, which bounds its periods from above;
-- a spreadsheet form: the comparison or the series its query describes.
+- an index tree: 1 us per quote and period, 20 us per node and period (the demo tree, 27 quotes
+  and 19 nodes over 30 months, estimates 12 ms and computes in about 7; forty times its quotes,
+  44 ms for about 21);
+- a spreadsheet form: the comparison or the series its query describes (the index tree's form:
+  its demo tree).
 
 Model fits and household batches always use the compute threads and need no estimate.
 """
@@ -39,6 +43,7 @@ PER_GROUP = 20.0
 PER_MATRIX_CUBE = 0.015
 PER_PERIOD_PAIR = 2.0
 PER_CELL = 5.0
+PER_QUOTE_CELL = 1.0
 #: The work of a model that solves numerically: always more than any inline budget.
 UNBOUNDED = math.inf
 
@@ -159,3 +164,26 @@ def of_sheet_comparison(arguments: Mapping[str, Any]) -> float:
 
 def of_sheet_series(arguments: Mapping[str, Any]) -> float:
     return sheet_series(arguments.get("items"), arguments.get("periods"), arguments.get("family"))
+
+
+def index_tree(body: Any) -> float:
+    """The index of a classification tree: every quote in every period (1 us: the elementary
+    aggregates are vectorised), and every node in every period (20 us: the groups' means, the
+    model's pass over the tree, the answer's row)."""
+    periods = len(body.periods)
+    nodes = len(body.tree) if isinstance(body.tree, list) else groups_of_nodes(body.tree)
+    return PER_QUOTE_CELL * periods * len(body.quotes) + PER_GROUP * nodes * periods
+
+
+def groups_of_nodes(tree: Any) -> int:
+    """The nodes of a nested classification (a request's NodeIn), counted without recursion."""
+    count, stack = 0, [tree]
+    while stack:
+        node = stack.pop()
+        count += 1
+        stack.extend(node.children or [])
+    return count
+
+
+def of_index_tree(arguments: Mapping[str, Any]) -> float:
+    return index_tree(arguments["body"])

@@ -2,7 +2,18 @@
 
 from __future__ import annotations
 
-from . import audit, catalogue, comparisons, fits, households, series, service, sheets, uprating
+from . import (
+    audit,
+    catalogue,
+    comparisons,
+    fits,
+    households,
+    index_tree,
+    series,
+    service,
+    sheets,
+    uprating,
+)
 
 ROUTERS = [comparisons.router, series.router, audit.router, catalogue.router, service.router,
-           sheets.router, households.router, fits.router, uprating.router]
+           sheets.router, households.router, fits.router, uprating.router, index_tree.router]
