@@ -30,12 +30,13 @@ def test_a_ces_grid_follows_the_closed_form() -> None:
     grid = sv.Grid("ces", {}, "sigma", (0.0, 0.5, 1.0, 2.0))
     result = sv.sweep(BASE, P1, grid=grid, current_income=12.0)
     w, r = BASE.shares, P1 / P0
-    for sigma, c in zip(grid.values, result.points, strict=True):
+    for sigma, point in zip(grid.values, result.points, strict=True):
+        c = point.comparison
         expected = (float(np.prod(r ** w)) if sigma == 1.0
                     else float(w @ r ** (1 - sigma)) ** (1 / (1 - sigma)))
         assert c.konus.base == pytest.approx(expected, rel=1e-12)
         assert c.konus.base <= c.formulas["laspeyres"].value * (1 + 1e-12)
-    konus = [c.konus.base for c in result.points]
+    konus = [p.comparison.konus.base for p in result.points]
     assert konus == sorted(konus, reverse=True)  # more substitution, a lower true index
     band = {r.measure: r for r in result.along_grid}["konus_base"]
     assert (band.low, band.high, band.count) == (min(konus), max(konus), 4)
@@ -63,8 +64,8 @@ def test_a_sweep_equals_separate_comparisons_point_by_point(
     for value, point in zip(values, result.points, strict=True):
         alone = compare(calibrate(family, base, sv.with_parameter(grid, value)), base, P1,
                         current_income=11.0)
-        assert point.konus == alone.konus
-        assert {n: f.bias_points for n, f in point.formulas.items()} == {
+        assert point.comparison.konus == alone.konus
+        assert {n: f.bias_points for n, f in point.comparison.formulas.items()} == {
             n: f.bias_points for n, f in alone.formulas.items()}
 
 
@@ -74,10 +75,10 @@ def test_the_band_runs_across_the_models() -> None:
                                                                          {"sigma": 0.3}),
               lambda b: calibrate("nested_ces", b, {"tree": TREE})]
     result = sv.sweep(BASE, P1, models=models, current_income=12.0)
-    konus = [c.konus.base for c in result.models]
+    konus = [e.comparison.konus.base for e in result.models]
     band = {r.measure: r for r in result.band}
     assert (band["konus_base"].low, band["konus_base"].high) == (min(konus), max(konus))
-    lasp = [c.formulas["laspeyres"].bias_points for c in result.models]
+    lasp = [e.comparison.formulas["laspeyres"].bias_points for e in result.models]
     assert band["laspeyres_bias_points"].high == max(lasp)
     assert result.points == () and result.along_grid == ()
 

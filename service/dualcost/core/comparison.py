@@ -619,15 +619,9 @@ def compare_budgets(
     :func:`compare` and the family do (``p0``, ``q0``, ``w0``, ``m0``, ``pb``, ``qb``, ``wb``,
     ``sigma``, ...).
     """
-    if base_quantities is not None:
-        budget = BaseBudget.from_quantities(base_prices, base_quantities,
-                                            expenditure=base_expenditure)
-    else:
-        if base_shares is None or base_expenditure is None:
-            raise InvalidInput("w0", "give the base quantities, or the base shares with the "
-                               "base expenditure")
-        budget = BaseBudget.from_shares(base_prices, base_shares, base_expenditure,
-                                        normalise=normalise_shares, unit=share_unit)
+    budget = base_budget(base_prices, base_quantities=base_quantities, base_shares=base_shares,
+                         base_expenditure=base_expenditure, normalise_shares=normalise_shares,
+                         share_unit=share_unit)
     model = calibrate(family, budget, parameters)
     weights = None
     if weight_reference:
@@ -640,3 +634,18 @@ def compare_budgets(
                      weight_reference=weights, lloyd_moulton_sigma=lloyd_moulton_sigma,
                      formulas=formulas)
     return result, model
+
+
+def base_budget(base_prices: npt.ArrayLike, *, base_quantities: npt.ArrayLike | None = None,
+                base_shares: npt.ArrayLike | None = None, base_expenditure: float | None = None,
+                normalise_shares: bool = False, share_unit: str = "fraction") -> BaseBudget:
+    """The base budget from ``p0`` with quantities ``q0``, or with shares ``w0`` and
+    expenditure ``m0`` (:meth:`BaseBudget.from_quantities`, :meth:`BaseBudget.from_shares`)."""
+    if base_quantities is not None:
+        return BaseBudget.from_quantities(base_prices, base_quantities,
+                                          expenditure=base_expenditure)
+    if base_shares is None or base_expenditure is None:
+        raise InvalidInput("w0", "give the base quantities, or the base shares with the base "
+                           "expenditure")
+    return BaseBudget.from_shares(base_prices, base_shares, base_expenditure,
+                                  normalise=normalise_shares, unit=share_unit)

@@ -26,7 +26,7 @@ import numpy as np
 import numpy.typing as npt
 
 from . import deadline
-from .comparison import Comparison, compare
+from .comparison import Comparison, base_budget, compare
 from .errors import InvalidInput
 from .preferences import FAMILIES, calibrate
 from .preferences.base import BaseBudget, Preferences
@@ -63,12 +63,20 @@ class Range:
 
 
 @dataclass(frozen=True)
+class Evaluated:
+    """One model, calibrated, and its comparison."""
+
+    model: Preferences
+    comparison: Comparison
+
+
+@dataclass(frozen=True)
 class Sensitivity:
     """One comparison per model of the set, one per grid value, and their ranges."""
 
-    models: tuple[Comparison, ...]
+    models: tuple[Evaluated, ...]
     grid: Grid | None
-    points: tuple[Comparison, ...]
+    points: tuple[Evaluated, ...]
     band: tuple[Range, ...]
     along_grid: tuple[Range, ...]
 
@@ -83,14 +91,36 @@ def sweep(base: BaseBudget, current_prices: npt.ArrayLike, *,
     if not models and grid is None:
         raise InvalidInput("models", "give at least one model, or a grid")
 
-    def one(model: Preferences) -> Comparison:
+    def one(model: Preferences) -> Evaluated:
         deadline.check("comparing the models of a sweep")
-        return compare(model, base, current_prices, current_income=current_income,
-                       current_quantities=current_quantities, formulas=formulas)
+        return Evaluated(model, compare(model, base, current_prices,
+                                        current_income=current_income,
+                                        current_quantities=current_quantities,
+                                        formulas=formulas))
 
     across = tuple(one(calibrator(base)) for calibrator in models)
     points = () if grid is None else tuple(one(m) for m in _grid_models(base, grid))
-    return Sensitivity(across, grid, points, ranges(across), ranges(points))
+    return Sensitivity(across, grid, points, ranges([e.comparison for e in across]),
+                       ranges([e.comparison for e in points]))
+
+
+def sweep_budgets(base_prices: npt.ArrayLike, current_prices: npt.ArrayLike, *,
+                  base_quantities: npt.ArrayLike | None = None,
+                  base_shares: npt.ArrayLike | None = None,
+                  base_expenditure: float | None = None, normalise_shares: bool = False,
+                  share_unit: str = "fraction", models: Sequence[Calibrator] = (),
+                  grid: Grid | None = None, current_income: float | None = None,
+                  current_quantities: npt.ArrayLike | None = None,
+                  formulas: Sequence[str] | None = None) -> Sensitivity:
+    """:func:`sweep` from plain arrays: the base budget as
+    :func:`dualcost.core.comparison.compare_budgets` reads it (``p0`` with ``q0``, or ``w0``
+    with ``m0``), then the sweep."""
+    budget = base_budget(base_prices, base_quantities=base_quantities, base_shares=base_shares,
+                         base_expenditure=base_expenditure, normalise_shares=normalise_shares,
+                         share_unit=share_unit)
+    return sweep(budget, current_prices, models=models, grid=grid,
+                 current_income=current_income, current_quantities=current_quantities,
+                 formulas=formulas)
 
 
 def _grid_models(base: BaseBudget, grid: Grid) -> list[Preferences]:
