@@ -203,7 +203,9 @@ def test_every_example_gets_the_digest_of_its_body(client: TestClient, name: str
     path = {"compare": "/v1/comparisons", "indexSeries": "/v1/index-series",
             "auditPublishedSeries": "/v1/audits", "fitModel": "/v1/fits",
             "fitAndCompare": "/v1/fitted-comparisons",
-            "householdIndices": "/v1/household-indices"}[operation]
+            "householdIndices": "/v1/household-indices",
+            "revealedPreference": "/v1/revealed-preference",
+            "sensitivity": "/v1/sensitivity"}[operation]
     body = load_example(name)
     r = client.post(path, json=body)
     assert r.status_code == 200, r.text
@@ -402,6 +404,11 @@ def _requests(client: TestClient) -> dict[str, tuple[str, str, dict[str, Any]]]:
         "sheetValue": ("GET", f"/v1/sheet/value?{SHEET_QUERY}", {}),
         "sheetComparison": ("GET", f"/v1/sheet/comparison?{SHEET_QUERY}", {}),
         "sheetSeries": ("GET", f"/v1/sheet/series?{SERIES_SHEET_QUERY}", {}),
+        "sheetSweep": ("GET", f"/v1/sheet/sweep?{SHEET_QUERY}&values=0.2,1", {}),
+        "revealedPreference": ("POST", "/v1/revealed-preference", {"json": load_example(
+            "revealedPreference.wrenmouth_household_diary.json")}),
+        "sensitivity": ("POST", "/v1/sensitivity", {"json": load_example(
+            "sensitivity.stone_geary_pensioner_frisch.json")}),
     }
 
 
@@ -422,7 +429,8 @@ def test_every_operation_is_covered(client: TestClient) -> None:
     ["compare", "indexSeries", "indexSeriesFromCsv", "auditPublishedSeries", "fitModel",
      "fitModelCsv", "fitAndCompare", "householdIndices", "createHouseholdJob",
      "householdIndicesFromCsv", "getHouseholdJob", "listPreferenceFamilies", "listIndexFormulas",
-     "demo", "sheetValue", "sheetComparison", "sheetSeries"]))
+     "demo", "sheetValue", "sheetComparison", "sheetSeries", "sheetSweep", "revealedPreference",
+     "sensitivity"]))
 def test_an_accept_header_that_admits_nothing_gets_406(client: TestClient, operation: str) -> None:
     method, path, kwargs = _requests(client)[operation]
     headers = {**kwargs.pop("headers", {}), "accept": "image/png"}

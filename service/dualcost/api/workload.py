@@ -22,7 +22,9 @@ The estimate is in microseconds of one core of the machine the figures were meas
   counts each record as a period of its own, which bounds its periods from above;
 - a spreadsheet form: the comparison or the series its query describes.
 
-Model fits and household batches always use the compute threads and need no estimate.
+Model fits, household batches, revealed-preference panels (a closure and linear programmes)
+and sensitivity sweeps (up to ``max_sweep_points`` comparisons) always use the compute threads
+and need no estimate.
 """
 
 from __future__ import annotations

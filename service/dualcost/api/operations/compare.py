@@ -24,6 +24,7 @@ from ..render import all_finite
 from ..schemas.comparison import (
     CAUTION,
     SIGN_CONVENTION,
+    BaseIn,
     ComparisonRequest,
     CurrentIn,
     WeightReferenceIn,
@@ -76,7 +77,7 @@ def run(request: ComparisonRequest, settings: Settings, loc: Locator | None = No
     """Translate the request, compare under its model, and point any error at the request."""
     loc = loc or locator()
     axis = ItemAxis.from_request(request.items, loc, limit=settings.max_items)
-    arguments = _base(request, axis, loc)
+    arguments = base_arguments(request, axis, loc)
     parameters = core_parameters(request.model, axis, loc, max_tree_depth=settings.max_tree_depth,
                                  deadline_seconds=settings.compute_deadline_seconds)
     arguments |= current_arguments(request, axis, loc, request.share_unit)
@@ -85,7 +86,19 @@ def run(request: ComparisonRequest, settings: Settings, loc: Locator | None = No
     return Outcome(result, model, axis)
 
 
-def _base(request: ComparisonRequest, axis: ItemAxis, loc: Locator) -> dict[str, Any]:
+class BudgetRequest(Protocol):
+    """The parts of a request that describe the base budget (a comparison, a sensitivity
+    sweep), read only."""
+
+    @property
+    def base(self) -> BaseIn: ...
+    @property
+    def normalise_shares(self) -> bool: ...
+    @property
+    def share_unit(self) -> str: ...
+
+
+def base_arguments(request: BudgetRequest, axis: ItemAxis, loc: Locator) -> dict[str, Any]:
     """The base budget's vectors in item order, under the core's argument names."""
     b = request.base
     out: dict[str, Any] = {"base_prices": axis.vector(loc, "p0", b.prices),
