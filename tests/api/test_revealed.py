@@ -138,3 +138,30 @@ def test_a_large_value_is_a_numerical_problem_not_a_crash(client: TestClient) ->
     body["prices"][1] = [1e10, 1e10]
     r = client.post(PATH, json=body)
     assert r.status_code == 422, r.text
+
+
+def test_a_comparison_can_carry_the_model_free_bracket(client: TestClient) -> None:
+    """POST /v1/comparisons with revealed_bounds: the bracket from the two observed bundles
+    beside the model's K(u0) (inside it here), and in the CSV table two rows more; without
+    current quantities the option is refused by name."""
+    body = {"items": ["a", "b", "c"],
+            "base": {"prices": [1.0, 2.0, 4.0], "quantities": [10.0, 5.0, 2.0]},
+            "current": {"prices": [1.3, 2.0, 3.6], "quantities": [8.0, 6.0, 2.2]},
+            "model": {"family": "ces", "sigma": 0.6}, "revealed_bounds": True}
+    answer = client.post("/v1/comparisons", json=body).json()
+    bracket = answer["revealed_bounds"]
+    assert bracket["garp"] and bracket["konus_inside"]
+    assert bracket["lower"] <= answer["konus"]["base"] <= bracket["upper"]
+    assert bracket["upper"] <= bracket["laspeyres"] * (1 + 1e-12)  # Konüs (1924)
+    table = client.post("/v1/comparisons?format=csv", json=body).text
+    assert "revealed_bounds_lower" in table and "revealed_bounds_upper" in table
+    assert client.post("/v1/comparisons", json=small_request()).json()["revealed_bounds"] is None
+    del body["current"]["quantities"]
+    refused = client.post("/v1/comparisons", json=body)
+    assert refused.status_code == 422
+    assert refused.json()["errors"][0]["pointer"] == "/revealed_bounds"
+
+
+def small_request() -> dict[str, Any]:
+    return {"items": ["a", "b"], "base": {"prices": [1.0, 2.0], "quantities": [1.0, 1.0]},
+            "current": {"prices": [1.1, 2.0]}, "model": {"family": "ces", "sigma": 0.5}}

@@ -127,3 +127,45 @@ def test_one_call_reads_a_consistent_panel() -> None:
     with pytest.raises(InvalidInput) as caught:
         rb.revealed_preference(data.prices, data.quantities, base=5)
     assert caught.value.parameter == "base"
+
+
+@pytest.mark.parametrize("family", FAMILIES)
+def test_a_comparison_asked_for_bounds_has_its_konus_index_inside(family: str) -> None:
+    """compare_budgets(revealed_bounds=True) with the model's own current demand as observed
+    quantities: the model explains both choices, so its K(u0) lies within Varian's (1982)
+    bracket from the two bundles; a current bundle the model would not choose (all spent on
+    the dearest item) is flagged."""
+    from dualcost.core.comparison import compare_budgets
+
+    rng = np.random.default_rng(17)
+    data, model, prices, incomes = _model_panel(family, rng, periods=2)
+    params = dict(model.parameters()) if family != "cobb_douglas" else {}  # type: ignore[attr-defined]
+    params = {k: v for k, v in params.items() if k in {"sigma", "gamma", "beta", "alpha",
+                                                       "subsistence_quantities"}}
+    result, _ = compare_budgets(family, params, prices[0], prices[1],
+                                base_quantities=data.quantities[0],
+                                current_quantities=data.quantities[1], revealed_bounds=True)
+    assert result.revealed is not None
+    bracket = result.revealed.bounds[1]
+    assert bracket.lower * (1 - SLACK) <= result.konus.base <= bracket.upper * (1 + SLACK)
+    assert "konus_outside_revealed_bounds" not in {n.code for n in result.notices}
+
+
+def test_a_konus_index_outside_the_bracket_is_flagged() -> None:
+    """Two bundles and a CES model of sigma 5 (K(u0) = (0.5 + 0.5 * 2^-4)^(-1/4) = 1.171),
+    while the observed current bundle (3, 5.5) was affordable at base prices (8.5 <= 10, so
+    revealed worse than the base bundle) and costs 14 at current prices: reaching u0 at p1
+    costs at least 14, K(u0) >= 1.4 (Varian 1982), so the model's index lies outside."""
+    from dualcost.core.comparison import compare_budgets
+
+    p0, p1 = np.array([1.0, 1.0]), np.array([1.0, 2.0])
+    q0, q1 = np.array([5.0, 5.0]), np.array([3.0, 5.5])
+    result, _ = compare_budgets("ces", {"sigma": 5.0}, p0, p1, base_quantities=q0,
+                                current_quantities=q1, revealed_bounds=True)
+    assert result.revealed is not None and result.revealed.consistency.garp
+    assert result.konus.base == pytest.approx(0.53125 ** -0.25, rel=1e-12)
+    assert result.revealed.bounds[1].lower == pytest.approx(1.4, rel=1e-9)
+    assert "konus_outside_revealed_bounds" in {n.code for n in result.notices}
+    with pytest.raises(InvalidInput) as caught:
+        compare_budgets("ces", {"sigma": 5.0}, p0, p1, base_quantities=q0, revealed_bounds=True)
+    assert caught.value.parameter == "revealed_bounds"
