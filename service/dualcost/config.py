@@ -85,6 +85,10 @@ class Settings(BaseSettings):
     max_revealed_periods: int = Field(
         240, ge=2, description="Most periods of one revealed-preference panel (its relations "
         "grow with the square of the periods, its linear programmes with periods times items).")
+    max_revealed_work: int = Field(
+        3_000_000, ge=1, description="Most periods x periods x items of one revealed-preference "
+        "panel: the size of its linear programmes (about 4 s of compute at the default on a "
+        "shared 2-core machine).")
     max_sweep_points: int = Field(
         101, ge=1, description="Most values of one sensitivity sweep's grid (each one "
         "comparison).")

@@ -165,3 +165,10 @@ def test_a_comparison_can_carry_the_model_free_bracket(client: TestClient) -> No
 def small_request() -> dict[str, Any]:
     return {"items": ["a", "b"], "base": {"prices": [1.0, 2.0], "quantities": [1.0, 1.0]},
             "current": {"prices": [1.1, 2.0]}, "model": {"family": "ces", "sigma": 0.5}}
+
+
+def test_a_panel_beyond_the_configured_work_is_refused() -> None:
+    """DUALCOST_MAX_REVEALED_WORK bounds periods x periods x items (the linear programmes)."""
+    client = TestClient(create_app(Settings(examples_dir=EXAMPLES, max_revealed_work=17)))
+    errors = _problem(client, small())
+    assert errors[0][0] == "/periods" and "3 x 3 x 2 = 18" in errors[0][1]

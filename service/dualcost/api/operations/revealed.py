@@ -57,6 +57,13 @@ def run(request: RevealedRequest, settings: Settings) -> Outcome:
     panel = panel_from_json(request.periods, request.items, {
         "prices": request.prices, "quantities": request.quantities,
         "expenditures": request.expenditures}, limits(settings), loc)
+    periods, items = len(panel.periods), len(panel.axis)
+    if periods * periods * items > settings.max_revealed_work:
+        raise loc.problem("periods", f"{periods} periods of {items} items make linear "
+                          f"programmes of {periods} x {periods} x {items} = "
+                          f"{periods * periods * items} coefficients; the limit is "
+                          f"{settings.max_revealed_work} (max_revealed_work): give fewer "
+                          "periods or items")
     base = _position(panel.periods, request.base_period, "base_period", loc, 0)
     utility = _position(panel.periods, request.utility_period, "utility_period", loc, base)
     with computing("revealedPreference", settings), loc.translating():
