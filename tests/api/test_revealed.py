@@ -172,3 +172,47 @@ def test_a_panel_beyond_the_configured_work_is_refused() -> None:
     client = TestClient(create_app(Settings(examples_dir=EXAMPLES, max_revealed_work=17)))
     errors = _problem(client, small())
     assert errors[0][0] == "/periods" and "3 x 3 x 2 = 18" in errors[0][1]
+
+
+def test_an_index_series_can_carry_the_model_free_brackets(client: TestClient) -> None:
+    """POST /v1/index-series with revealed_bounds: the Wrenmouth monthly panel's bounds use the
+    six items priced in every month (a notice names the two others), and equal POST
+    /v1/revealed-preference on those items; the model's items differ, so konus_inside is
+    null."""
+    request = load_example("indexSeries.wrenmouth_monthly_ces.json") | {"revealed_bounds": True}
+    answer = client.post("/v1/index-series", json=request)
+    assert answer.status_code == 200, answer.text
+    block = answer.json()["revealed_bounds"]
+    basket = load_example(BASKET)
+    assert block["items"] == [item["id"] for item in basket["items"]]
+    alone = client.post(PATH, json=basket).json()
+    assert [(r["lower"], r["upper"]) for r in block["rows"]] == [
+        (r["lower"], r["upper"]) for r in alone["bounds"]["rows"]]
+    assert block["consistency"]["garp"] and all(r["konus_inside"] is None
+                                                for r in block["rows"])
+    assert "revealed_bounds_items" in {n["code"] for n in answer.json()["notices"]}
+    audit = load_example("auditPublishedSeries.wrenmouth_monthly_bulletin.json")
+    refused = client.post("/v1/audits", json=audit | {"revealed_bounds": True})
+    assert refused.status_code == 422
+    assert refused.json()["errors"][0]["pointer"] == "/revealed_bounds"
+
+
+def test_a_series_from_a_model_s_own_choices_lies_inside_its_brackets(client: TestClient
+                                                                      ) -> None:
+    """Quantities a CES consumer of sigma 0.7 chose (the project's family, Arrow et al. 1961),
+    every item priced in every period: its Konüs series at base utility lies inside every
+    bracket (Varian 1982)."""
+    import numpy as np
+
+    from dualcost.core.preferences import BaseBudget, calibrate
+
+    rng = np.random.default_rng(3)
+    p = 1.0 + 0.2 * rng.uniform(-1, 1, (6, 4))
+    model = calibrate("ces", BaseBudget.from_quantities(p[0], [3.0, 2.0, 1.0, 4.0]),
+                      {"sigma": 0.7})
+    x = np.asarray(model.marshallian(p, 10.0 * rng.uniform(0.9, 1.2, 6)))
+    body = {"periods": [f"2025-0{t + 1}" for t in range(6)], "items": ["a", "b", "c", "d"],
+            "prices": p.tolist(), "quantities": x.tolist(),
+            "model": {"family": "ces", "sigma": 0.7}, "revealed_bounds": True}
+    rows = client.post("/v1/index-series", json=body).json()["revealed_bounds"]["rows"]
+    assert all(r["konus_inside"] for r in rows)

@@ -84,26 +84,34 @@ def _position(periods: list[str], label: Any, name: str, loc: Locator, default: 
 def document(outcome: Outcome) -> dict[str, Any]:
     """The answer as plain JSON-ready values, in the shape of ``RevealedResponse``."""
     r, labels = outcome.result, outcome.periods
-    c = r.consistency
     return {
         "periods": labels, "items": outcome.axis.ids, "scale": SCALE_RATIO,
-        "consistency": {
-            "garp": c.garp, "warp": c.warp, "sarp": c.sarp, "efficiency_index": r.efficiency,
-            "violations": [{"axiom": v.axiom, "first": labels[v.first],
-                            "second": labels[v.second],
-                            "periods": [labels[t] for t in v.periods]} for v in c.violations],
-            "violation_counts": {axiom: Counter(v.axiom for v in c.violations)[axiom]
-                                 for axiom in ("GARP", "WARP", "SARP")},
-        },
+        "consistency": consistency_json(r, labels),
         "bounds": {"base_period": labels[r.base], "utility_period": labels[r.utility_of],
                    "efficiency_level": r.level, "method": BOUNDS_METHOD,
-                   "rows": [{"period": labels[k.current], "lower": k.lower, "upper": k.upper,
-                             "laspeyres": k.laspeyres, "paasche": k.paasche}
-                            for k in r.bounds]},
+                   "rows": rows_json(r, labels)},
         "expenditure": r.expenditure.tolist(),
         "notices": notices_json(r.notices),
         "caution": CAUTION,
     }
+
+
+def consistency_json(r: RevealedPreference, labels: list[str]) -> dict[str, Any]:
+    """The verdicts, Afriat's index and every violation, periods by label (also in the index
+    series' answer)."""
+    c = r.consistency
+    counts = Counter(v.axiom for v in c.violations)
+    return {"garp": c.garp, "warp": c.warp, "sarp": c.sarp, "efficiency_index": r.efficiency,
+            "violations": [{"axiom": v.axiom, "first": labels[v.first],
+                            "second": labels[v.second],
+                            "periods": [labels[t] for t in v.periods]} for v in c.violations],
+            "violation_counts": {axiom: counts[axiom] for axiom in ("GARP", "WARP", "SARP")}}
+
+
+def rows_json(r: RevealedPreference, labels: list[str]) -> list[dict[str, Any]]:
+    """One bracket per period against the base period."""
+    return [{"period": labels[k.current], "lower": k.lower, "upper": k.upper,
+             "laspeyres": k.laspeyres, "paasche": k.paasche} for k in r.bounds]
 
 
 #: The columns of the CSV answer: one row per period.
