@@ -224,3 +224,16 @@ def test_bad_panels_are_refused_by_name(prices: list[list[float]],
         rv.panel(prices, quantities)
     assert caught.value.parameter == name
     assert caught.value.index == index
+
+
+def test_a_failure_only_through_a_tie_at_full_efficiency_is_bounded_just_below() -> None:
+    """Period 0's budget exactly affords period 1's bundle (a tie: x0 R0 x1 at e = 1 only) while
+    period 1 strictly affords period 0's: GARP fails at 1 and holds at every e < 1, so Afriat's
+    index is 1 as a supremum (Afriat 1972) and the bounds use a level just below it."""
+    prices = [[1.0, 1.0], [1.0, 2.0]]
+    quantities = [[2.0, 2.0], [1.0, 3.0]]  # C00 = C01 = 4; C11 = 7 > C10 = 6
+    data = rv.panel(prices, quantities)
+    assert not rv.garp_holds(data.costs, 1.0)
+    assert rv.efficiency_index(data.costs) == 1.0
+    level = rv.level_below(data.costs, 1.0)
+    assert level < 1.0 and rv.garp_holds(data.costs, level)

@@ -282,8 +282,8 @@ def level_below(costs: Matrix, index: float, tolerance: float = TOLERANCE) -> fl
     """An efficiency level at which GARP holds and the relations are those just below
     ``index``: the index itself when GARP holds there, else the middle of the interval of
     ratios that ends at it."""
-    if index >= 1.0 or garp_holds(costs, index, tolerance):
-        return index
+    if garp_holds(costs, index, tolerance):
+        return index  # (an index of 1 where the data fail only through a tie at 1 goes on)
     own = np.diagonal(costs)[:, None]
     ratios = (costs / own)[~np.eye(costs.shape[0], dtype=np.bool_)]
     below = ratios[ratios < index]
