@@ -428,6 +428,33 @@ class Client:
         """POST /v1/audits: published values against a recomputation from their panel."""
         return self._post_json("/v1/audits", request)
 
+    # -- answers that do not hang on one model -------------------------------------------------
+
+    @overload
+    def revealed_preference(self, request: Mapping[str, Any], *,
+                            format: Literal["json"] = ...) -> dict[str, Any]: ...
+    @overload
+    def revealed_preference(self, request: Mapping[str, Any], *,
+                            format: Literal["csv"]) -> Table: ...
+
+    def revealed_preference(self, request: Mapping[str, Any], *,
+                            format: Format = "json") -> dict[str, Any] | Table:
+        """POST /v1/revealed-preference: GARP, WARP, SARP, Afriat's efficiency index and
+        Varian's bounds on the Konüs index; ``format="csv"``: one row a period."""
+        return self._post_json("/v1/revealed-preference", request, format)
+
+    @overload
+    def sensitivity(self, request: Mapping[str, Any], *,
+                    format: Literal["json"] = ...) -> dict[str, Any]: ...
+    @overload
+    def sensitivity(self, request: Mapping[str, Any], *, format: Literal["csv"]) -> Table: ...
+
+    def sensitivity(self, request: Mapping[str, Any], *,
+                    format: Format = "json") -> dict[str, Any] | Table:
+        """POST /v1/sensitivity: the Konüs index and bias across models and along a grid;
+        ``format="csv"``: one row a model or grid value."""
+        return self._post_json("/v1/sensitivity", request, format)
+
     # -- households ----------------------------------------------------------------------------
 
     @overload

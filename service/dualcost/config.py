@@ -82,6 +82,16 @@ class Settings(BaseSettings):
     max_periods: int = Field(1_000, ge=2, description="Most periods one index-series panel may carry.")
     max_panel_cells: int = Field(
         2_000_000, ge=1, description="Most periods times items (and CSV rows) in one panel.")
+    max_revealed_periods: int = Field(
+        240, ge=2, description="Most periods of one revealed-preference panel (its relations "
+        "grow with the square of the periods, its linear programmes with periods times items).")
+    max_revealed_work: int = Field(
+        3_000_000, ge=1, description="Most periods x periods x items of one revealed-preference "
+        "panel: the size of its linear programmes (about 4 s of compute at the default on a "
+        "shared 2-core machine).")
+    max_sweep_points: int = Field(
+        101, ge=1, description="Most values of one sensitivity sweep's grid (each one "
+        "comparison).")
     max_households: int = Field(100_000, ge=1, description="Most households in one JSON request "
                                 "(larger batches: a household job with a CSV upload).")
     household_chunk_rows: int | None = Field(None, ge=1, description="Household rows evaluated "

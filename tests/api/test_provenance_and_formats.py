@@ -209,7 +209,9 @@ def test_every_example_gets_the_digest_of_its_body(client: TestClient, name: str
             "auditPublishedSeries": "/v1/audits", "fitModel": "/v1/fits",
             "fitAndCompare": "/v1/fitted-comparisons",
             "householdIndices": "/v1/household-indices", "uprating": "/v1/uprating",
-            "indexTree": "/v1/index-tree"}[operation]
+            "indexTree": "/v1/index-tree",
+            "revealedPreference": "/v1/revealed-preference",
+            "sensitivity": "/v1/sensitivity"}[operation]
     body = load_example(name)
     r = client.post(path, json=body)
     assert r.status_code == 200, r.text
@@ -413,6 +415,11 @@ def _requests(client: TestClient) -> dict[str, tuple[str, str, dict[str, Any]]]:
         "indexTree": ("POST", "/v1/index-tree",
                       {"json": load_example("indexTree.wrenmouth_coicop.json")}),
         "sheetIndexTree": ("GET", "/v1/sheet/index-tree?node=07%20transport&period=2026-03", {}),
+        "sheetSweep": ("GET", f"/v1/sheet/sweep?{SHEET_QUERY}&values=0.2,1", {}),
+        "revealedPreference": ("POST", "/v1/revealed-preference", {"json": load_example(
+            "revealedPreference.wrenmouth_household_diary.json")}),
+        "sensitivity": ("POST", "/v1/sensitivity", {"json": load_example(
+            "sensitivity.stone_geary_pensioner_frisch.json")}),
     }
 
 
@@ -434,7 +441,7 @@ def test_every_operation_is_covered(client: TestClient) -> None:
      "fitModelCsv", "fitAndCompare", "householdIndices", "createHouseholdJob",
      "householdIndicesFromCsv", "getHouseholdJob", "listPreferenceFamilies", "listIndexFormulas",
      "demo", "sheetValue", "sheetComparison", "sheetSeries", "uprating", "sheetUprating",
-     "indexTree", "sheetIndexTree"]))
+     "indexTree", "sheetIndexTree", "sheetSweep", "revealedPreference", "sensitivity"]))
 def test_an_accept_header_that_admits_nothing_gets_406(client: TestClient, operation: str) -> None:
     method, path, kwargs = _requests(client)[operation]
     headers = {**kwargs.pop("headers", {}), "accept": "image/png"}

@@ -273,6 +273,20 @@ def test_client_compares_and_lists(live_url) -> None:
         assert "fisher" in {f["formula"] for f in dc.formulas()}
 
 
+def test_client_reads_the_answers_that_do_not_hang_on_one_model(live_url) -> None:
+    """The client's two doors to the revealed-preference and sensitivity operations, JSON and
+    CSV, give what the service answers (the numbers themselves are checked in tests/api)."""
+    diary = load_example("revealedPreference.wrenmouth_household_diary.json")
+    sweep = load_example("sensitivity.stone_geary_pensioner_frisch.json")
+    with Client(live_url) as dc:
+        assert not dc.revealed_preference(diary)["consistency"]["garp"]
+        table = dc.revealed_preference(diary, format="csv")
+        assert table.column("period") == diary["periods"]
+        answer = dc.sensitivity(sweep)
+        assert len(answer["grid"]["points"]) == len(sweep["grid"]["values"])
+        assert dc.sensitivity(sweep, format="csv").column("kind")[-1] == "grid"
+
+
 def test_client_raises_the_problem_with_its_pointer(live_url) -> None:
     bad = small_request()
     bad["current"]["prices"][0] = 0

@@ -26,7 +26,9 @@ The estimate is in microseconds of one core of the machine the figures were meas
 - a spreadsheet form: the comparison or the series its query describes (the index tree's form:
   its demo tree).
 
-Model fits and household batches always use the compute threads and need no estimate.
+Model fits, household batches, revealed-preference panels (a closure and linear programmes)
+and sensitivity sweeps (up to ``max_sweep_points`` comparisons) always use the compute threads
+and need no estimate.
 """
 
 from __future__ import annotations

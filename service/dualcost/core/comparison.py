@@ -31,7 +31,7 @@ from __future__ import annotations
 
 import math
 from collections.abc import Mapping, Sequence
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 from typing import Any
 
 import numpy as np
@@ -52,6 +52,7 @@ from .indices import (
 from .konus import PriceChange, StandardAt, konus_at_income, naming, price_change
 from .preferences import calibrate
 from .preferences.base import BaseBudget, Notice, Preferences, Vector, converted_notices
+from .revealed_bounds import RevealedPreference, revealed_preference
 from .validity import Validity, assess, negative_demands
 
 #: Duality residuals above this (relative) are reported as a notice.
@@ -189,6 +190,10 @@ class Comparison:
     #: indices, CV, EV, compensated income, the biases and the Hicks decomposition are not
     #: results (:mod:`dualcost.core.validity`).
     validity: Validity = field(default_factory=Validity)
+    #: On request (``compare_budgets(revealed_bounds=True)``), what the two observed bundles
+    #: say without a model: GARP and Varian's bounds on the Konüs index at base utility
+    #: (:mod:`dualcost.core.revealed_bounds`).
+    revealed: RevealedPreference | None = None
 
 
 def _relative_gap(a: Vector, b: Vector) -> float:
@@ -607,6 +612,7 @@ def compare_budgets(
     weight_reference: Mapping[str, npt.ArrayLike] | None = None,
     lloyd_moulton_sigma: float | None = None,
     formulas: Sequence[str] | None = None,
+    revealed_bounds: bool = False,
 ) -> tuple[Comparison, Preferences]:
     """The whole comparison from plain arrays, in one call: the base budget (``p0`` with
     quantities ``q0``, or shares ``w0`` and expenditure ``m0``), the family calibrated to it
@@ -618,16 +624,16 @@ def compare_budgets(
     ``share_unit`` (:class:`WeightReference`). Errors name the arguments as
     :func:`compare` and the family do (``p0``, ``q0``, ``w0``, ``m0``, ``pb``, ``qb``, ``wb``,
     ``sigma``, ...).
+
+    ``revealed_bounds``: also bracket the Konüs index at base utility by the two observed
+    bundles alone (:func:`with_revealed_bounds`; needs ``current_quantities``).
     """
-    if base_quantities is not None:
-        budget = BaseBudget.from_quantities(base_prices, base_quantities,
-                                            expenditure=base_expenditure)
-    else:
-        if base_shares is None or base_expenditure is None:
-            raise InvalidInput("w0", "give the base quantities, or the base shares with the "
-                               "base expenditure")
-        budget = BaseBudget.from_shares(base_prices, base_shares, base_expenditure,
-                                        normalise=normalise_shares, unit=share_unit)
+    if revealed_bounds and current_quantities is None:
+        raise InvalidInput("revealed_bounds", "the model-free bounds come from the two observed "
+                           "bundles: give the current quantities too")
+    budget = base_budget(base_prices, base_quantities=base_quantities, base_shares=base_shares,
+                         base_expenditure=base_expenditure, normalise_shares=normalise_shares,
+                         share_unit=share_unit)
     model = calibrate(family, budget, parameters)
     weights = None
     if weight_reference:
@@ -639,4 +645,42 @@ def compare_budgets(
                      current_quantities=current_quantities, reference_income=reference_income,
                      weight_reference=weights, lloyd_moulton_sigma=lloyd_moulton_sigma,
                      formulas=formulas)
+    if revealed_bounds:
+        result = with_revealed_bounds(result, budget)
     return result, model
+
+
+def with_revealed_bounds(result: Comparison, base: BaseBudget) -> Comparison:
+    """The comparison with Varian's bounds (1982) from its two observed bundles: GARP, and the
+    bracket on ``K(u0) = e(p1, u0) / e(p0, u0)`` that holds for every utility function
+    explaining both choices, beside the model's own ``K(u0)``. A model whose index lies outside
+    the bracket cannot have made both choices; a notice says so."""
+    q1 = result.demands.formula_current_quantities
+    found = revealed_preference(np.vstack([base.prices, result.current_prices]),
+                                np.vstack([base.quantities, q1]))
+    bracket = found.bounds[1]
+    notices = list(result.notices) + [n for n in found.notices if n.code == "garp_failed"]
+    k = result.konus.base
+    if result.validity.regular and not (bracket.lower * (1 - 1e-9) <= k
+                                        <= bracket.upper * (1 + 1e-9)):
+        notices.append(Notice("konus_outside_revealed_bounds", f"The model's Konüs index at "
+                              f"base utility, {k:.10g}, lies outside [{bracket.lower:.10g}, "
+                              f"{bracket.upper:.10g}], the bracket the two observed bundles "
+                              "allow for any utility function that explains both (Varian "
+                              "1982): the model does not explain the current choice."))
+    return replace(result, revealed=found, notices=notices)
+
+
+def base_budget(base_prices: npt.ArrayLike, *, base_quantities: npt.ArrayLike | None = None,
+                base_shares: npt.ArrayLike | None = None, base_expenditure: float | None = None,
+                normalise_shares: bool = False, share_unit: str = "fraction") -> BaseBudget:
+    """The base budget from ``p0`` with quantities ``q0``, or with shares ``w0`` and
+    expenditure ``m0`` (:meth:`BaseBudget.from_quantities`, :meth:`BaseBudget.from_shares`)."""
+    if base_quantities is not None:
+        return BaseBudget.from_quantities(base_prices, base_quantities,
+                                          expenditure=base_expenditure)
+    if base_shares is None or base_expenditure is None:
+        raise InvalidInput("w0", "give the base quantities, or the base shares with the base "
+                           "expenditure")
+    return BaseBudget.from_shares(base_prices, base_shares, base_expenditure,
+                                  normalise=normalise_shares, unit=share_unit)

@@ -72,6 +72,7 @@ from .indices import (
 from .konus import price_change
 from .multilateral import Splice, bilateral_log_matrix, geks, rolling_geks
 from .preferences import BaseBudget, Notice, Preferences, calibrate
+from .revealed_bounds import RevealedPreference, revealed_preference
 from .series_panel import PERIODS_PER_YEAR, Array, Panel
 from .validity import REGULAR, Validity, assess
 
@@ -1005,6 +1006,10 @@ class LabelledSeries:
     result: IndexSeries
     panel: Panel
     model: Preferences | None
+    #: On request (``revealed_bounds=True``): what the panel says without a model, over the
+    #: items priced in every period (``revealed_items``, panel positions).
+    revealed: RevealedPreference | None = None
+    revealed_items: tuple[int, ...] = ()
 
 
 def series_by_label(
@@ -1024,6 +1029,7 @@ def series_by_label(
     model: Callable[[BaseBudget, tuple[int, ...]], Preferences] | None = None,
     rebase_period: str | None = None,
     rebase_year: int | None = None,
+    revealed_bounds: bool = False,
     **options: Any,
 ) -> LabelledSeries:
     """The whole series from plain arrays and period labels, in one call.
@@ -1038,6 +1044,8 @@ def series_by_label(
     The other ``options`` go to :func:`index_series`. Errors name the arguments as
     :func:`index_series` does, the period arguments by their names (``base_period``, ``span``,
     ``loop`` with the position in the loop, ``weight_reference``).
+    ``revealed_bounds``: also test the panel's choices for GARP and bracket each period's Konüs
+    index against the base at base utility without a model (:func:`revealed_over`).
     """
     panel = Panel.checked(prices, quantities=quantities, expenditures=expenditures,
                           periods=periods, items=items, frequency=frequency)
@@ -1066,7 +1074,41 @@ def series_by_label(
                           weight_reference=weights, span=positions, loop=loop_at, rebase=rebase,
                           **options)
     result.notices[:0] = _period_defaults(panel, base_period, reference_period, frequency)
-    return LabelledSeries(result, panel, calibrated)
+    if not revealed_bounds:
+        return LabelledSeries(result, panel, calibrated)
+    found, kept, notices = revealed_over(panel, base)
+    result.notices.extend(notices)
+    return LabelledSeries(result, panel, calibrated, found, kept)
+
+
+def revealed_over(panel: Panel, base: int
+                  ) -> tuple[RevealedPreference, tuple[int, ...], list[Notice]]:
+    """GARP and Varian's bounds (:func:`dualcost.core.revealed_bounds.revealed_preference`)
+    over the items priced in every period, each period against ``base`` at base utility; every
+    period needs quantities. A notice names the items left out."""
+    without = np.flatnonzero(~panel.has_quantities)
+    if without.size:
+        raise InvalidInput("revealed_bounds", "the model-free bounds need the quantities (or "
+                           f"expenditures) of every period; period {panel.periods[without[0]]!r}"
+                           " has prices only")
+    kept = np.flatnonzero(panel.priced.all(axis=0))
+    if not kept.size:
+        raise InvalidInput("revealed_bounds", "the model-free bounds need items priced in "
+                           "every period, and no item is")
+    try:
+        found = revealed_preference(panel.prices[:, kept], panel.quantities[:, kept], base=base)
+    except InvalidInput as exc:  # a period with nothing bought among the kept items
+        index = exc.index
+        if isinstance(index, tuple) and len(index) == 2:
+            index = (index[0], int(kept[int(index[1])]))
+        raise InvalidInput(exc.parameter, exc.rule + " (over the items priced in every "
+                           "period, which the model-free bounds use)", index) from exc
+    left = np.flatnonzero(~panel.priced.all(axis=0))
+    notices = [] if not left.size else [Notice(
+        "revealed_bounds_items", f"The model-free bounds use the {kept.size} items priced in "
+        f"every period; the {left.size} others are left out of them.", tuple(int(i)
+                                                                         for i in left))]
+    return found, tuple(int(i) for i in kept), notices
 
 
 def _rebase(panel: Panel, period: str | None, year: int | None) -> Rebase | None:

@@ -107,6 +107,9 @@ class Locator:
         self.csv = csv
         #: The household id of each row of a JSON batch, for messages about refused rows.
         self.row_names: Sequence[str | None] = ()
+        #: Where the request's model is: its parameters are below it (``/models/2`` for one
+        #: of several models).
+        self.model_root = "/model"
         self._keyed: dict[str, list[bool]] = {}
 
     # -- what the request looked like --------------------------------------------------------

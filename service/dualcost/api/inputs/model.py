@@ -5,8 +5,8 @@ A request names a family and gives that family's parameters flat (``{"family": "
 order (for the families without a closed form also as objects of rows keyed by item id); a nested
 CES tree whose children are item ids or further groups; for a demand system, formulas per item,
 an item id and a list of price vectors. Each parameter becomes its core form here, and gets its
-place in the locator (``/model/<name>``), so that an error the family raises about it points at
-the field.
+place in the locator (``/model/<name>``, or below the locator's ``model_root``), so that an
+error the family raises about it points at the field.
 """
 
 from __future__ import annotations
@@ -37,7 +37,7 @@ def family_of(spec: ModelSpec, locator: Locator) -> type[Preferences]:
 def _place(locator: Locator, name: str, shape: Shape) -> None:
     known = locator.places.get(name)
     query = known.query if known is not None else None
-    locator.add(name, Place(f"/model/{name}", query=query, shape=shape,
+    locator.add(name, Place(f"{locator.model_root}/{name}", query=query, shape=shape,
                             names_item=shape == "items"))
 
 

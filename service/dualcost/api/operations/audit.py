@@ -32,6 +32,9 @@ TOLERANCE_RULE = ("A published value passes when |published - recomputed| <= tol
 def run(request: AuditRequest, settings: Settings) -> Audit:
     """Recompute the series the published values belong to, then compare them one by one."""
     loc = Locator(PLACES)
+    if request.revealed_bounds:  # the audit's answer has no place for them
+        raise loc.problem("revealed_bounds", "is not part of an audit: ask POST "
+                          "/v1/index-series or POST /v1/revealed-preference for the bounds")
     if request.tolerance is None:  # each value's tolerance comes from its decimals
         loc.add("tolerance", PLACES["published"])
     panel = panel_from_json(request.periods, request.items, {

@@ -24,10 +24,12 @@ from ..render import all_finite
 from ..schemas.comparison import (
     CAUTION,
     SIGN_CONVENTION,
+    BaseIn,
     ComparisonRequest,
     CurrentIn,
     WeightReferenceIn,
 )
+from ..schemas.revealed import BOUNDS_METHOD
 from .answers import SCALE_RATIO, notices_json, validity_json
 
 #: Where each core argument of a comparison is, in the JSON body and in the spreadsheet forms'
@@ -49,6 +51,7 @@ PLACES: dict[str, Place] = {
     "formulas": Place("/formulas", "formulas", "list"),
     "normalise_shares": Place("/normalise_shares", "normalise_shares"),
     "share_unit": Place("/share_unit", "share_unit"),
+    "revealed_bounds": Place("/revealed_bounds", "revealed_bounds"),
     "family": Place("/model/family", "family"),
     "model": Place("/model", "family"),
     # The parameters the spreadsheet forms carry as query parameters of their own.
@@ -76,16 +79,29 @@ def run(request: ComparisonRequest, settings: Settings, loc: Locator | None = No
     """Translate the request, compare under its model, and point any error at the request."""
     loc = loc or locator()
     axis = ItemAxis.from_request(request.items, loc, limit=settings.max_items)
-    arguments = _base(request, axis, loc)
+    arguments = base_arguments(request, axis, loc)
     parameters = core_parameters(request.model, axis, loc, max_tree_depth=settings.max_tree_depth,
                                  deadline_seconds=settings.compute_deadline_seconds)
     arguments |= current_arguments(request, axis, loc, request.share_unit)
     with computing("compare", settings), loc.translating():
-        result, model = compare_budgets(request.model.family, parameters, **arguments)
+        result, model = compare_budgets(request.model.family, parameters, **arguments,
+                                        revealed_bounds=request.revealed_bounds)
     return Outcome(result, model, axis)
 
 
-def _base(request: ComparisonRequest, axis: ItemAxis, loc: Locator) -> dict[str, Any]:
+class BudgetRequest(Protocol):
+    """The parts of a request that describe the base budget (a comparison, a sensitivity
+    sweep), read only."""
+
+    @property
+    def base(self) -> BaseIn: ...
+    @property
+    def normalise_shares(self) -> bool: ...
+    @property
+    def share_unit(self) -> str: ...
+
+
+def base_arguments(request: BudgetRequest, axis: ItemAxis, loc: Locator) -> dict[str, Any]:
     """The base budget's vectors in item order, under the core's argument names."""
     b = request.base
     out: dict[str, Any] = {"base_prices": axis.vector(loc, "p0", b.prices),
@@ -200,7 +216,23 @@ def document(outcome: Outcome) -> dict[str, Any]:
                         "base_bundle_gap": r.diagnostics.base_bundle_gap},
         "notices": notices_json(r.notices, axis.ids, axis.labels),
         "caution": CAUTION,
+        "revealed_bounds": _revealed(r),
     }
+
+
+def _revealed(r: Comparison) -> dict[str, Any] | None:
+    """The model-free bracket beside the model's K(u0), when it was asked for."""
+    found = r.revealed
+    if found is None:
+        return None
+    b = found.bounds[1]
+    k = r.konus.base if r.validity.regular else None
+    return {"garp": found.consistency.garp, "efficiency_index": found.efficiency,
+            "efficiency_level": found.level, "lower": b.lower, "upper": b.upper,
+            "laspeyres": b.laspeyres, "paasche": b.paasche, "konus_base": k,
+            "konus_inside": None if k is None else bool(b.lower * (1 - 1e-9) <= k
+                                                        <= b.upper * (1 + 1e-9)),
+            "method": BOUNDS_METHOD}
 
 
 def _withheld(figures: dict[str, Any], keep: tuple[str, ...] = ()) -> dict[str, Any]:
@@ -260,6 +292,10 @@ def measures(outcome: Outcome) -> list[Row]:
     rows += [("compensating_variation", model(r.compensating_variation), "", None, None),
              ("equivalent_variation", model(r.equivalent_variation), "", None, None),
              ("compensated_income", model(r.compensated_income), "", None, None)]
+    if r.revealed is not None:  # on request: the model-free bracket on K(u0)
+        bracket = r.revealed.bounds[1]
+        rows += [("revealed_bounds_lower", bracket.lower, "base", None, None),
+                 ("revealed_bounds_upper", bracket.upper, "base", None, None)]
     return rows
 
 

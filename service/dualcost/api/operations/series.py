@@ -17,6 +17,7 @@ import numpy as np
 
 from ...config import Settings
 from ...core.preferences import BaseBudget, Preferences
+from ...core.revealed_bounds import RevealedPreference
 from ...core.series import MODEL_RULE, IndexSeries, LabelledSeries, describe_treatment, series_by_label
 from ..inputs.csv import Dialect, dialect_notices
 from ..inputs.items import ItemAxis
@@ -26,9 +27,11 @@ from ..inputs.panels import Limits, PanelArrays
 from ..inputs.query import json_parameter, names
 from ..observability import computing
 from ..schemas.common import CAUTION
+from ..schemas.revealed import BOUNDS_METHOD
 from ..schemas.series import SeriesOptions
 from . import changes
 from .answers import SCALE_RATIO, notices_json
+from .revealed import consistency_json, rows_json
 
 #: Where each core argument of a series is: in the JSON body, in the query string (the CSV
 #: upload's options and the spreadsheet form) and in the CSV upload's columns.
@@ -63,6 +66,7 @@ PLACES: dict[str, Place] = {
     "rebase": Place("/rebase", "rebase_period"),
     "rebase_period": Place("/rebase/period", "rebase_period"),
     "rebase_year": Place("/rebase/year", "rebase_year"),
+    "revealed_bounds": Place("/revealed_bounds", "revealed_bounds"),
 }
 
 ANNUAL_DEFINITION = (
@@ -90,6 +94,9 @@ class Outcome:
     frequency: str | None
     #: How a CSV upload was read (None for JSON).
     dialect: Dialect | None = None
+    #: On request: the model-free reading of the panel, and the items it used.
+    revealed: RevealedPreference | None = None
+    revealed_items: tuple[int, ...] = ()
 
 
 def locator(form: Form = "json") -> Locator:
@@ -128,12 +135,14 @@ def core_arguments(options: SeriesOptions, panel: PanelArrays, settings: Setting
         model=None if options.model is None else model,
         reference_value=float(options.reference_value), formulas=options.formulas,
         lloyd_moulton_sigma=options.lloyd_moulton_sigma, new_goods_sigma=options.new_goods_sigma,
-        geks_window=options.geks.window, geks_splice=options.geks.splice)
+        geks_window=options.geks.window, geks_splice=options.geks.splice,
+        revealed_bounds=options.revealed_bounds)
 
 
 def _outcome(labelled: LabelledSeries, axis: ItemAxis) -> Outcome:
     frequency = labelled.result.span.frequency or labelled.panel.frequency
-    return Outcome(labelled.result, axis, labelled.model, frequency)
+    return Outcome(labelled.result, axis, labelled.model, frequency,
+                   revealed=labelled.revealed, revealed_items=labelled.revealed_items)
 
 
 def _periods(options: SeriesOptions) -> dict[str, Any]:
@@ -212,7 +221,29 @@ def document(outcome: Outcome) -> dict[str, Any]:
         + notices_json(r.notices, outcome.axis.ids, outcome.axis.labels),
         "scale": scale(outcome),
         "caution": CAUTION,
+        "revealed_bounds": _revealed(outcome, labels),
     }
+
+
+def _revealed(outcome: Outcome, labels: list[str]) -> dict[str, Any] | None:
+    """The model-free brackets beside the model's fixed-base Konüs index at base utility."""
+    found = outcome.revealed
+    if found is None:
+        return None
+    rows = rows_json(found, labels)
+    k = outcome.result.konus
+    same_items = k is not None and tuple(k.items) == outcome.revealed_items
+    base = outcome.result.base
+    for row, t in zip(rows, range(len(labels)), strict=True):
+        level = None if k is None else k.fixed_base["base"]
+        ratio = None if level is None or not (np.isfinite(level[t]) and np.isfinite(level[base])) \
+            else float(level[t] / level[base])
+        row["konus_base"] = ratio
+        row["konus_inside"] = None if ratio is None or not same_items else bool(
+            row["lower"] * (1 - 1e-9) <= ratio <= row["upper"] * (1 + 1e-9))
+    return {"items": [outcome.axis.ids[i] for i in outcome.revealed_items],
+            "consistency": consistency_json(found, labels), "base_period": labels[found.base],
+            "efficiency_level": found.level, "method": BOUNDS_METHOD, "rows": rows}
 
 
 def _konus(outcome: Outcome) -> dict[str, Any] | None:

@@ -16,6 +16,7 @@ from collections.abc import Mapping
 from typing import Any
 
 from ..inputs.query import names, number, rows, vector
+from ..problems import RequestProblem
 
 
 def comparison_body(params: Mapping[str, Any]) -> dict[str, Any]:
@@ -105,4 +106,18 @@ def uprating_body(query: Mapping[str, Any], prices: list[str], quantities: list[
     for key in ("series_kind", "konus_standard"):
         if query.get(key) is not None:
             body[key] = query[key]
+    return body
+
+
+def sweep_body(params: Mapping[str, Any], parameter: str, values: str | None
+               ) -> dict[str, Any]:
+    """The JSON body of a sensitivity sweep from the sweep form: the comparison form's budget
+    and model (the one model of the sweep), and ``parameter`` run over ``values``."""
+    if not values:
+        raise RequestProblem.at("#/query/values", "give the values of the grid, separated by "
+                                "commas (or semicolons with decimal=comma)")
+    body = comparison_body(params)
+    body["models"] = [body.pop("model")]
+    body["grid"] = {"parameter": parameter,
+                    "values": vector("values", values, params["decimal"])}
     return body

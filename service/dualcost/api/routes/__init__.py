@@ -9,6 +9,8 @@ from . import (
     fits,
     households,
     index_tree,
+    revealed,
+    sensitivity,
     series,
     service,
     sheets,
@@ -16,4 +18,5 @@ from . import (
 )
 
 ROUTERS = [comparisons.router, series.router, audit.router, catalogue.router, service.router,
-           sheets.router, households.router, fits.router, uprating.router, index_tree.router]
+           sheets.router, households.router, fits.router, uprating.router, index_tree.router,
+           revealed.router, sensitivity.router]

@@ -27,7 +27,7 @@ from ..deps import settings_of
 from ..inputs.locator import Place
 from ..inputs.panels import panel_from_json
 from ..inputs.query import validated
-from ..operations import compare, series, sheets, uprating
+from ..operations import compare, sensitivity, series, sheets, uprating
 from ..operations.answers import notices_json
 from ..problems import RequestProblem, error_text, problem_response
 from ..provenance import Provenance, header_text, of_body
@@ -41,6 +41,7 @@ from ..render import (
 from ..routing import JsonRoute, inline_when_cheap
 from ..schemas.common import SHARE_UNIT_TEXT, DecimalMark, ShareUnit
 from ..schemas.comparison import ComparisonRequest
+from ..schemas.sensitivity import SensitivityRequest
 from ..schemas.series import SeriesRequest
 from ..schemas.uprating import UpratingRequest
 
@@ -312,6 +313,36 @@ def sheet_uprating(
 
 
 @router.options("/uprating", include_in_schema=False)
+@router.head("/sweep", include_in_schema=False)
+@router.get("/sweep", operation_id="sheetSweep", response_class=Response,
+            responses={200: {"content": {"text/csv": {}, "text/plain": {}},
+                             "description": "CSV: one row for the model as given (kind model), "
+                             "then one per value of the grid (kind grid): " + ",".join(
+                                 sensitivity.LEADING_COLUMNS) + ", then each formula's value "
+                             "and <formula>_bias_points, as POST /v1/sensitivity answers in "
+                             "CSV; with on_error=text a bad request is answered as text/plain "
+                             "'ERROR: ...'"}})
+def sheet_sweep(params: ComparisonQuery, request: Request,
+                values: Vector = None,
+                parameter: Annotated[str, Query(description="The model's parameter run over "
+                                                "the values (sigma, frisch, ...).")] = "sigma",
+                provenance: ProvenanceQuery = "headers") -> Response:
+    """The σ sweep (or another number parameter's) of one comparison for a spreadsheet's CSV
+    import: the comparison form's parameters, and `values`, e.g. `&values=0.2,0.5,1,2`."""
+    numbers = SheetNumbers(params["decimal"], params["digits"])
+
+    def table() -> tuple[str, Provenance]:
+        loc = sensitivity.locator("query")
+        body = validated(SensitivityRequest, sheets.sweep_body(params, parameter, values), loc)
+        header, rows = sensitivity.table(sensitivity.run(body, settings_of(request), loc,
+                                                         "sheetSweep"))
+        origin = of_body(body)
+        return numbers.table(header, rows, origin if provenance == "trailer" else None), origin
+
+    return _answer(request, params["on_error"], CSV_CONTENT_TYPE, table, numbers)
+
+
+@router.options("/sweep", include_in_schema=False)
 @router.options("/comparison", include_in_schema=False)
 @router.options("/value", include_in_schema=False)
 @router.options("/series", include_in_schema=False)

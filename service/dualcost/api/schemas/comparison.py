@@ -83,6 +83,10 @@ class ComparisonRequest(StrictModel):
     share_unit: ShareUnit = Field(
         "fraction", description=SHARE_UNIT_TEXT + " It applies to base.shares and "
         "weight_reference.shares.")
+    revealed_bounds: bool = Field(
+        False, description="Also bracket the Konüs index at base utility by the two observed "
+        "bundles alone (Varian 1982; needs current.quantities): the answer's revealed_bounds "
+        "block, with whether the model's index lies inside.")
 
 
 # -- response ---------------------------------------------------------------------------------
@@ -155,6 +159,23 @@ class DiagnosticsOut(StrictModel):
     base_bundle_gap: float
 
 
+class RevealedBoundsOut(StrictModel):
+    """What the two observed bundles say without a model (on request)."""
+
+    garp: bool = Field(description="Whether one utility function can explain both choices.")
+    efficiency_index: float = Field(description="Afriat's index: 1 when GARP holds.")
+    efficiency_level: float = Field(description="The efficiency the bounds were computed at.")
+    lower: float = Field(description="Least Konüs index at base utility the data allow.")
+    upper: float = Field(description="Greatest; never above Laspeyres at full efficiency.")
+    laspeyres: float
+    paasche: float
+    konus_base: float | None = Field(description="The model's own K(u0), null outside its "
+                                                 "regular region.")
+    konus_inside: bool | None = Field(description="Whether the model's K(u0) lies in "
+                                                  "[lower, upper] (relative 1e-9).")
+    method: str
+
+
 class ComparisonOut(StrictModel):
     """A comparison's figures (inside a fitted comparison's answer, too)."""
 
@@ -173,7 +194,8 @@ class ComparisonOut(StrictModel):
     diagnostics: DiagnosticsOut
     notices: list[NoticeOut]
     caution: str
-
+    revealed_bounds: RevealedBoundsOut | None = Field(
+        None, description="On request (revealed_bounds: true): the model-free bracket.")
 
 
 class ComparisonResponse(ComparisonOut):

@@ -114,6 +114,11 @@ class SeriesOptions(StrictModel):
         None, description="Rebase every series to this period or year (worth reference_value "
                           "there) in `changes.by_series[].rebased`; the changes are the same on "
                           "any reference.")
+    revealed_bounds: bool = Field(
+        False, description="Also test the panel's choices for GARP (Varian 1982) and bracket "
+        "each period's Konüs index against the base at base utility without a model, over the "
+        "items priced in every period (needs quantities or expenditures in every period); the "
+        "answer's revealed_bounds block. JSON body only.")
 
 
 class SeriesRequest(SeriesOptions):
@@ -293,6 +298,32 @@ class ChangesOut(StrictModel):
     definitions: dict[str, str]
     rebased_to: RebasedToOut | None
     by_series: list[SeriesChangesOut]
+class RevealedRowOut(StrictModel):
+    period: str
+    lower: float
+    upper: float
+    laspeyres: float
+    paasche: float
+    konus_base: float | None = Field(description="The model's fixed-base Konüs index at base "
+                                                 "utility as a ratio to the base period (null "
+                                                 "without a model or where withheld).")
+    konus_inside: bool | None = Field(description="Whether it lies in [lower, upper]; null "
+                                                  "when the model's items differ from the "
+                                                  "bounds' items.")
+
+
+class RevealedSeriesOut(StrictModel):
+    """What the panel says without a model (on request)."""
+
+    items: list[str] = Field(description="The items the bounds use: those priced in every "
+                                         "period.")
+    consistency: dict[str, Any] = Field(description="garp, warp, sarp, efficiency_index, "
+                                        "violations, violation_counts, as POST "
+                                        "/v1/revealed-preference gives them.")
+    base_period: str
+    efficiency_level: float
+    method: str
+    rows: list[RevealedRowOut]
 
 
 class SeriesResponse(StrictModel):
@@ -318,6 +349,9 @@ class SeriesResponse(StrictModel):
     notices: list[NoticeOut]
     scale: ScaleOut = Field(description="How the levels, links and biases are scaled.")
     caution: str
+    revealed_bounds: RevealedSeriesOut | None = Field(
+        None, description="On request (revealed_bounds: true): the model-free brackets, as "
+                          "ratios to the base period.")
     provenance: ProvenanceOut
 
 
