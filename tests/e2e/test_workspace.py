@@ -1,0 +1,319 @@
+"""The workspace page at / end to end, in headless Chromium from Debian's packages.
+
+The service runs on loopback in a thread (``live_url``); Selenium drives /usr/bin/chromium
+through /usr/bin/chromedriver (nothing is downloaded), with every host name but 127.0.0.1 mapped
+to "not found" and the network log read back. Each view is opened at a laptop's viewport
+(1366x900) and a phone's (390x844): it loads the service's own demo or example, computes, and
+must show the numbers the JSON API answers to the same request; a bad cell gives a message naming
+its row and column and the rule; the page is never wider than the screen; nothing is fetched from
+another host. Full-page screenshots of every view are kept in test-artifacts/workspace/ (the path
+is printed).
+
+The reference numbers are the service's own JSON answers: this test checks the page against the
+API, not the economics (tests/core and tests/api do that against published sources).
+"""
+
+from __future__ import annotations
+
+import base64
+import json
+import time
+from collections.abc import Iterator
+from dataclasses import dataclass
+from pathlib import Path
+from typing import Any
+from urllib.parse import urlsplit
+
+import httpx
+import pytest
+
+from tests.conftest import ROOT, load_example
+from tests.e2e.test_api_docs import (
+    CHROMEDRIVER,
+    CHROMIUM,
+    OFFLINE,
+    assert_nothing_left_the_machine,
+    requests_made,
+)
+
+webdriver = pytest.importorskip("selenium.webdriver")
+from selenium.webdriver.chrome.service import Service  # noqa: E402
+from selenium.webdriver.common.by import By  # noqa: E402
+from selenium.webdriver.common.keys import Keys  # noqa: E402
+from selenium.webdriver.support.ui import WebDriverWait  # noqa: E402
+
+ARTIFACTS = ROOT / "test-artifacts" / "workspace"
+SIZES = {"laptop": (1366, 900), "phone": (390, 844)}
+
+
+@dataclass(frozen=True)
+class ViewCase:
+    """One view: the request it starts from, where it sends it, the figures it shows (element
+    id, how to read the same figure from the JSON answer, decimals) and a cell to spoil (grid
+    number, column number, the column's title as the page names it)."""
+
+    view: str
+    path: str
+    example: str
+    figures: tuple[tuple[str, Any, int], ...]
+    grid: int
+    column: int
+    column_title: str
+
+
+def _formula(answer: dict[str, Any], name: str) -> dict[str, Any]:
+    return next(f for f in answer["formulas"] if f["formula"] == name)
+
+
+def _konus_summary(answer: dict[str, Any]) -> dict[str, Any]:
+    return next(i for i in answer["summary"][0]["indices"] if i["index"] == "konus")
+
+
+def _annual(answer: dict[str, Any]) -> float:
+    return next(s["bias_pp_per_year"] for s in answer["annual_bias"]["by_series"]
+                if s["series"] == "laspeyres" and s["kind"] == "fixed_base")
+
+
+CASES = [
+    ViewCase("comparison", "/v1/comparisons", "compare.wrenmouth_nested_ces.json", (
+        ("konus-base", lambda a: a["konus"]["base"], 4),
+        ("konus-current", lambda a: a["konus"]["current"], 4),
+        ("laspeyres", lambda a: _formula(a, "laspeyres")["value"], 4),
+        ("bias", lambda a: a["laspeyres_gap_points"], 3),
+        ("cv", lambda a: a["compensation"]["compensating_variation"], 2),
+        ("ev", lambda a: a["compensation"]["equivalent_variation"], 2)), 0, 1, "current price"),
+    ViewCase("series", "/v1/index-series", "indexSeries.wrenmouth_monthly_ces.json", (
+        ("series-konus-last", lambda a: a["konus"]["fixed_base"]["base"][-1], 3),
+        ("series-laspeyres-last", lambda a: _formula(a, "laspeyres")["fixed_base"][-1], 3),
+        ("series-annual-bias", _annual, 3)), 0, 0, "Rye loaf, 800 g"),
+    ViewCase("households", "/v1/household-indices", "householdIndices.wrenmouth_deciles_ces.json", (
+        ("hh-konus-democratic", lambda a: _konus_summary(a)["democratic"], 4),
+        ("hh-konus-plutocratic", lambda a: _konus_summary(a)["plutocratic"], 4),
+        ("hh-cv-percent", lambda a: a["summary"][0]["cv_percent_of_income"], 2)), 0, 1,
+        "current price"),
+    ViewCase("fits", "/v1/fits", "fitModel.wrenmouth_monthly_nested_ces.json", (
+        ("fit-observations", lambda a: a["fit"]["observations"], 0),
+        ("fit-iterations", lambda a: a["fit"]["iterations"], 0)), 0, 0, "Rye loaf, 800 g"),
+    ViewCase("audits", "/v1/audits", "auditPublishedSeries.wrenmouth_monthly_bulletin.json", (
+        ("audit-checked", lambda a: a["checked"], 0),
+        ("audit-failed", lambda a: a["failed"], 0)), 1, 0, "Rye loaf, 800 g"),
+]
+IDS = [c.view for c in CASES]
+
+
+@pytest.fixture(scope="module", params=list(SIZES))
+def browser(request: pytest.FixtureRequest, tmp_path_factory: pytest.TempPathFactory) -> Iterator[Any]:
+    options = webdriver.ChromeOptions()
+    options.binary_location = CHROMIUM
+    width, height = SIZES[request.param]
+    for flag in ("--headless=new", "--no-sandbox", "--disable-gpu", "--disable-quic",
+                 "--no-first-run", "--disable-background-networking",
+                 "--disable-component-update", "--disable-sync", "--disable-extensions",
+                 f"--window-size={width},{height}", OFFLINE):
+        options.add_argument(flag)
+    options.set_capability("goog:loggingPrefs", {"performance": "ALL", "browser": "ALL"})
+    driver = webdriver.Chrome(service=Service(executable_path=CHROMEDRIVER), options=options)
+    driver.execute_cdp_cmd("Emulation.setDeviceMetricsOverride", {
+        "width": width, "height": height, "deviceScaleFactor": 1,
+        "mobile": request.param == "phone"})
+    downloads = tmp_path_factory.mktemp(f"downloads-{request.param}")
+    driver.execute_cdp_cmd("Browser.setDownloadBehavior",
+                           {"behavior": "allow", "downloadPath": str(downloads)})
+    driver.size_name = request.param
+    driver.downloads = downloads
+    try:
+        yield driver
+    finally:
+        driver.quit()
+
+
+def open_view(browser: Any, live_url: str, view: str) -> None:
+    browser.get("about:blank")
+    browser.get_log("performance")
+    browser.get(f"{live_url}/#{view}")
+    WebDriverWait(browser, 20).until(lambda d: d.find_elements(By.ID, "compute")
+                                     and d.find_elements(By.CSS_SELECTOR, ".grid input"))
+
+
+def compute(browser: Any) -> Any:
+    browser.find_element(By.ID, "compute").click()
+    return WebDriverWait(browser, 60).until(
+        lambda d: d.find_element(By.ID, "result") if d.find_element(By.ID, "result").is_displayed()
+        else (d.find_element(By.ID, "error").is_displayed() and pytest.fail(
+            d.find_element(By.ID, "error").text)))
+
+
+def page_width(browser: Any) -> tuple[int, int]:
+    return browser.execute_script(
+        "return [document.documentElement.scrollWidth, window.innerWidth]")
+
+
+def in_view(browser: Any, element_id: str) -> bool:
+    return bool(browser.execute_script("""
+        const r = document.getElementById(arguments[0]).getBoundingClientRect();
+        return r.top < window.innerHeight && r.bottom > 0;""", element_id))
+
+
+def screenshot(browser: Any, name: str) -> Path:
+    """The whole page, not just the viewport, as a PNG in test-artifacts/workspace/: the
+    viewport is made as tall as the page for the picture (charts redraw at the new size), then
+    put back."""
+    width, height = SIZES[browser.size_name]
+    full = int(browser.execute_cdp_cmd("Page.getLayoutMetrics", {})["cssContentSize"]["height"])
+    metrics = {"width": width, "deviceScaleFactor": 1, "mobile": browser.size_name == "phone"}
+    browser.execute_cdp_cmd("Emulation.setDeviceMetricsOverride", {**metrics, "height": full})
+    time.sleep(0.5)
+    shot = browser.execute_cdp_cmd("Page.captureScreenshot", {"format": "png"})
+    browser.execute_cdp_cmd("Emulation.setDeviceMetricsOverride", {**metrics, "height": height})
+    ARTIFACTS.mkdir(parents=True, exist_ok=True)
+    path = ARTIFACTS / f"{name}-{browser.size_name}.png"
+    path.write_bytes(base64.b64decode(shot["data"]))
+    print(f"screenshot: {path}")
+    return path
+
+
+@pytest.mark.parametrize("case", CASES, ids=IDS)
+def test_each_view_computes_its_example_and_shows_the_apis_numbers(
+        live_url: str, browser: Any, case: ViewCase) -> None:
+    open_view(browser, live_url, case.view)
+    compute(browser)
+    assert in_view(browser, "result"), "the result was not scrolled into view"
+    sent = browser.execute_script("return window.dualcost.state.sent")
+    # The form gives back the example as the service ships it: nothing added, nothing lost.
+    expected = load_example(case.example)
+    assert sent == expected
+    answer = httpx.post(live_url + case.path, json=expected, timeout=60).json()
+    for element_id, read, digits in case.figures:
+        shown = browser.find_element(By.ID, element_id).text
+        assert shown == f"{read(answer):.{digits}f}", element_id
+    charts = browser.execute_script(
+        "return [...document.querySelectorAll('#result canvas')].filter("
+        "c => window.Chart.getChart(c)).length")
+    assert charts >= 1
+    width, viewport = page_width(browser)
+    assert width <= viewport, f"the page is {width}px wide in a {viewport}px viewport"
+    assert_nothing_left_the_machine(requests_made(browser), live_url)
+    entries = browser.execute_script(
+        "return performance.getEntries().map(e => e.name).filter(n => /^https?:/.test(n))")
+    host = urlsplit(live_url).netloc
+    assert entries and all(urlsplit(n).netloc == host for n in entries), entries
+    screenshot(browser, case.view)
+
+
+@pytest.mark.parametrize("case", CASES, ids=IDS)
+def test_each_view_names_the_row_and_column_of_a_bad_cell(
+        live_url: str, browser: Any, case: ViewCase) -> None:
+    open_view(browser, live_url, case.view)
+    grid = browser.find_elements(By.CSS_SELECTOR, ".grid")[case.grid]
+    cell = grid.find_elements(By.CSS_SELECTOR, "tbody tr")[0].find_elements(
+        By.CSS_SELECTOR, "input")[case.column]
+    # A decimal comma, caught in the page with a plain message.
+    cell.clear()
+    cell.send_keys("2,5")
+    browser.find_element(By.ID, "compute").click()
+    error = WebDriverWait(browser, 20).until(lambda d: d.find_element(By.ID, "error")
+                                             if d.find_element(By.ID, "error").is_displayed() else None)
+    assert "row 1" in error.text and f"'{case.column_title}'" in error.text
+    assert "decimal comma" in error.text and "2.5" in error.text
+    assert cell.get_attribute("aria-invalid") == "true"
+    assert in_view(browser, "error")
+    # A negative price, refused by the service, shown at the cell the person typed it in.
+    cell.clear()
+    cell.send_keys("-2.5")
+    browser.find_element(By.ID, "compute").click()
+    WebDriverWait(browser, 30).until(lambda d: "-2,5" not in d.find_element(By.ID, "error").text
+                                     and "decimal comma" not in d.find_element(By.ID, "error").text
+                                     and d.find_element(By.ID, "error").is_displayed())
+    text = browser.find_element(By.ID, "error").text
+    assert "row 1" in text and f"'{case.column_title}'" in text, text
+    assert "greater than" in text or "positive" in text, text
+    assert cell.get_attribute("aria-invalid") == "true"
+    assert not browser.find_element(By.ID, "result").is_displayed()
+    width, viewport = page_width(browser)
+    assert width <= viewport
+    screenshot(browser, f"{case.view}-error")
+
+
+def test_the_demo_is_the_same_as_get_v1_demo(live_url: str, browser: Any) -> None:
+    """'Wrenmouth demo' sends exactly GET /v1/demo's request and shows its answer's figures."""
+    open_view(browser, live_url, "comparison")
+    compute(browser)
+    demo = httpx.get(live_url + "/v1/demo").json()
+    assert browser.execute_script("return window.dualcost.state.sent") == demo["request"]
+    assert browser.find_element(By.ID, "konus-base").text == f"{demo['result']['konus']['base']:.4f}"
+
+
+def test_the_sensitivity_comes_from_the_service(live_url: str, browser: Any) -> None:
+    """Each point of the σ control is the service's comparison at that point: the tree's σ
+    scaled by 1 is the demo itself."""
+    open_view(browser, live_url, "comparison")
+    compute(browser)
+    browser.find_element(By.ID, "sweep").click()
+    rows = WebDriverWait(browser, 120).until(
+        lambda d: d.find_elements(By.CSS_SELECTOR, "#sweep-values tbody tr"))
+    by_point = {r.find_elements(By.TAG_NAME, "td")[0].text: r for r in rows}
+    assert "×1" in by_point and len(rows) == 6
+    demo = httpx.get(live_url + "/v1/demo").json()["result"]
+    cells = by_point["×1"].find_elements(By.TAG_NAME, "td")
+    assert cells[1].text == f"{demo['konus']['base']:.4f}"
+    assert cells[2].text == f"{demo['laspeyres_gap_points']:.3f}"
+    assert page_width(browser)[0] <= page_width(browser)[1]
+    screenshot(browser, "comparison-sensitivity")
+
+
+def test_the_page_is_usable_from_the_keyboard(live_url: str, browser: Any) -> None:
+    """Every control has a label; Enter on the focused button computes."""
+    open_view(browser, live_url, "series")
+    unlabelled = browser.execute_script("""
+        return [...document.querySelectorAll('input, select, textarea')].filter(i =>
+          !(i.labels && i.labels.length) && !i.getAttribute('aria-label')).map(i => i.outerHTML)""")
+    assert unlabelled == []
+    browser.execute_script("document.getElementById('compute').focus()")
+    browser.switch_to.active_element.send_keys(Keys.ENTER)
+    WebDriverWait(browser, 60).until(lambda d: d.find_element(By.ID, "result").is_displayed())
+
+
+def test_a_model_outside_its_regular_region_is_flagged_beside_its_figures(
+        live_url: str, browser: Any) -> None:
+    """Translog with σ 3 far from its base point (the transit price more than quadrupled): a
+    blocking warning names the item and the model's figures read "not a result"; Laspeyres,
+    computed by hand from the shares, stays."""
+    body = {"items": [{"id": "bread", "label": "Rye loaf"}, {"id": "transit", "label": "Transit pass"},
+                      {"id": "heating", "label": "Heating"}],
+            "base": {"prices": {"bread": 2.40, "transit": 9, "heating": 38},
+                     "shares": {"bread": 0.3, "transit": 0.3, "heating": 0.4}, "expenditure": 100},
+            "current": {"prices": {"bread": 2.52, "transit": 40, "heating": 41}},
+            "model": {"family": "translog", "sigma": 3}}
+    open_view(browser, live_url, "comparison")
+    browser.execute_script("document.getElementById('request-json').value = arguments[0]",
+                           json.dumps(body))
+    browser.execute_script("document.querySelector('details.advanced').open = true")
+    browser.find_element(By.XPATH, "//button[text()='Use this JSON']").click()
+    browser.find_element(By.ID, "compute").click()
+    warning = WebDriverWait(browser, 30).until(lambda d: d.find_elements(By.ID, "validity"))[0]
+    assert "not results" in warning.text and "Transit pass (transit)" in warning.text
+    for key in ("konus-base", "bias", "cv"):
+        assert browser.find_element(By.ID, key).text == "not a result"
+    lasp = 0.3 * 2.52 / 2.40 + 0.3 * 40 / 9 + 0.4 * 41 / 38
+    assert browser.find_element(By.ID, "laspeyres").text == f"{lasp:.4f}"
+
+
+def test_results_download_as_json_and_csv(live_url: str, browser: Any) -> None:
+    """The JSON download is the answer; the CSV download is the service's CSV answer."""
+    open_view(browser, live_url, "series")
+    compute(browser)
+    for kind in ("json", "csv"):
+        target = browser.downloads / f"series.{kind}"
+        target.unlink(missing_ok=True)
+        browser.find_element(By.ID, f"download-{kind}").click()
+        deadline = time.monotonic() + 20
+        while not target.exists():
+            assert time.monotonic() < deadline, f"no {kind} download"
+            time.sleep(0.1)
+        time.sleep(0.2)
+    expected = httpx.post(live_url + "/v1/index-series", timeout=60,
+                          json=load_example("indexSeries.wrenmouth_monthly_ces.json")).json()
+    got = json.loads((browser.downloads / "series.json").read_text(encoding="utf-8"))
+    assert got["formulas"] == expected["formulas"]
+    header = (browser.downloads / "series.csv").read_text(encoding="utf-8").splitlines()[0]
+    assert header.startswith("period")
