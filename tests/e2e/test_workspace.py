@@ -317,3 +317,105 @@ def test_results_download_as_json_and_csv(live_url: str, browser: Any) -> None:
     assert got["formulas"] == expected["formulas"]
     header = (browser.downloads / "series.csv").read_text(encoding="utf-8").splitlines()[0]
     assert header.startswith("period")
+
+
+def sent_and_answer(browser: Any, live_url: str, path: str) -> tuple[dict[str, Any], dict[str, Any]]:
+    sent = browser.execute_script("return window.dualcost.state.sent")
+    return sent, httpx.post(live_url + path, json=sent, timeout=60).json()
+
+
+def upload(browser: Any, tmp_path: Path, name: str, text: str) -> None:
+    path = tmp_path / name
+    path.write_text(text, encoding="utf-8")
+    browser.find_element(By.ID, "upload").send_keys(str(path))
+
+
+def test_a_comparison_csv_fills_the_grid_and_computes(
+        live_url: str, browser: Any, tmp_path: Path) -> None:
+    open_view(browser, live_url, "comparison")
+    upload(browser, tmp_path, "basket.csv", "item,label,base_price,current_price,base_quantity\n"
+           "rye_loaf,Rye loaf,2.40,2.52,12\nferry_pass,Ferry pass,38,41,1\n"
+           "flat_rent,Flat rent,610,634,1\n")
+    WebDriverWait(browser, 10).until(
+        lambda d: len(d.find_elements(By.CSS_SELECTOR, ".grid tbody tr")) == 3)
+    compute(browser)
+    sent, answer = sent_and_answer(browser, live_url, "/v1/comparisons")
+    assert sent["current"]["prices"] == {"rye_loaf": 2.52, "ferry_pass": 41, "flat_rent": 634}
+    assert browser.find_element(By.ID, "konus-base").text == f"{answer['konus']['base']:.4f}"
+
+
+@pytest.mark.parametrize(("text", "expected"), [
+    ("item,base_price,current_price,base_quantity\nrye_loaf,2,40,2.52,12\n",
+     ["row 2", "5 cells", "decimal comma"]),
+    ("item;base_price;current_price;base_quantity\nrye_loaf;2.40;2,52;12\n",
+     ["row 2", "column 'current_price'", "decimal comma", "2.52"]),
+    ("item,base_price,current_price,base_quantity\nrye_loaf,2.40,cheap,12\n",
+     ["row 2", "column 'current_price'", "'cheap' is not a number"]),
+], ids=["comma-splits-a-cell", "semicolons-and-decimal-commas", "not-a-number"])
+def test_a_bad_csv_is_refused_by_row_and_column(
+        live_url: str, browser: Any, tmp_path: Path, text: str, expected: list[str]) -> None:
+    open_view(browser, live_url, "comparison")
+    upload(browser, tmp_path, "bad.csv", text)
+    error = WebDriverWait(browser, 10).until(lambda d: d.find_element(By.ID, "error")
+                                             if d.find_element(By.ID, "error").is_displayed() else None)
+    for part in expected:
+        assert part in error.text, error.text
+    assert "bad.csv" in error.text
+
+
+def test_a_series_panel_csv_fills_the_grids_and_computes(
+        live_url: str, browser: Any, tmp_path: Path) -> None:
+    example = load_example("indexSeries.wrenmouth_monthly_ces.json")
+    lines = ["period,item,price,quantity"]
+    for t, period in enumerate(example["periods"]):
+        for item, price in example["prices"][t].items():
+            lines.append(f"{period},{item},{price},{example['quantities'][t][item]}")
+    open_view(browser, live_url, "series")
+    upload(browser, tmp_path, "panel.csv", "\n".join(lines))
+    WebDriverWait(browser, 10).until(lambda d: d.execute_script(
+        "return window.dualcost.state.scenario") == "")
+    compute(browser)
+    sent, answer = sent_and_answer(browser, live_url, "/v1/index-series")
+    assert sent["prices"] == example["prices"] and sent["quantities"] == example["quantities"]
+    last = answer["konus"]["fixed_base"]["base"][-1]
+    assert browser.find_element(By.ID, "series-konus-last").text == f"{last:.3f}"
+
+
+def tree_sigma(browser: Any, group: str) -> Any:
+    return browser.find_element(By.CSS_SELECTOR, f"input[aria-label='σ of {group}']")
+
+
+def test_the_tree_editor_changes_a_groups_sigma(live_url: str, browser: Any) -> None:
+    open_view(browser, live_url, "comparison")
+    sigma = tree_sigma(browser, "food and drink")
+    sigma.clear()
+    sigma.send_keys("0.5")
+    compute(browser)
+    sent, answer = sent_and_answer(browser, live_url, "/v1/comparisons")
+    assert sent["model"]["tree"]["children"][0] == {**load_example(
+        "compare.wrenmouth_nested_ces.json")["model"]["tree"]["children"][0], "sigma": 0.5}
+    assert browser.find_element(By.ID, "konus-base").text == f"{answer['konus']['base']:.4f}"
+
+
+def test_a_bad_sigma_in_the_tree_is_named_by_its_group(live_url: str, browser: Any) -> None:
+    open_view(browser, live_url, "comparison")
+    sigma = tree_sigma(browser, "transport")
+    sigma.clear()
+    sigma.send_keys("-1")
+    browser.find_element(By.ID, "compute").click()
+    error = WebDriverWait(browser, 20).until(lambda d: d.find_element(By.ID, "error")
+                                             if d.find_element(By.ID, "error").is_displayed() else None)
+    assert "Tree group 'transport', σ" in error.text, error.text
+    assert sigma.get_attribute("aria-invalid") == "true"
+
+
+def test_changing_the_family_starts_it_from_plain_values(live_url: str, browser: Any) -> None:
+    from selenium.webdriver.support.ui import Select
+
+    open_view(browser, live_url, "comparison")
+    Select(browser.find_element(By.ID, "family")).select_by_value("stone_geary")
+    WebDriverWait(browser, 10).until(lambda d: not d.find_elements(By.CSS_SELECTOR, ".tree input"))
+    compute(browser)
+    sent, answer = sent_and_answer(browser, live_url, "/v1/comparisons")
+    assert sent["model"] == {"family": "stone_geary", "frisch": -2}
+    assert browser.find_element(By.ID, "konus-current").text == f"{answer['konus']['current']:.4f}"

@@ -384,13 +384,15 @@
       { kind: "chart", id: "estimates-chart", title: "Estimates with confidence intervals",
         height: (a) => 60 + a.parameters.length * 26,
         chart: (a) => ({ ...C.barConfig({ labels: a.parameters.map((p) => p.name),
-          datasets: [{ label: `${Math.round(100 * a.confidence_level)}% interval`, data: a.parameters.map((p) => (p.ci_low === null ? null : [p.ci_low, p.ci_high])) },
-            { label: "estimate", data: a.parameters.map((p) => [p.estimate - 1e-3 * Math.abs(p.estimate || 1), p.estimate + 1e-3 * Math.abs(p.estimate || 1)]), grouped: false, barPercentage: 0.9 }],
+          datasets: [{ label: `${Math.round(100 * a.confidence_level)}% interval`, order: 2, data: a.parameters.map((p) => (p.ci_low === null ? null : [p.ci_low, p.ci_high])) },
+            { type: "line", indexAxis: "y", showLine: false, label: "estimate", data: a.parameters.map((p) => p.estimate),
+              pointStyle: "rectRot", pointRadius: 6, order: 1, borderColor: "#000", backgroundColor: "#000" }],
           xTitle: "parameter", yTitle: "estimate (parameter units)" }) }) },
       { kind: "table", id: "parameters-table", title: "Estimates", rows: (a) => a.parameters, columns: [
         { title: "parameter", get: (p) => p.name }, { title: "estimate", get: (p) => p.estimate },
         { title: "std. error", get: (p) => p.std_error }, { title: "ci low", get: (p) => p.ci_low },
-        { title: "ci high", get: (p) => p.ci_high }, { title: "p-value", get: (p) => p.p_value }] },
+        { title: "ci high", get: (p) => p.ci_high }, { title: "p-value", get: (p) => p.p_value },
+        { title: "kind", get: (p) => p.kind }] },
       { kind: "chart", id: "elasticities-chart", title: "Elasticities at the sample means",
         height: (a) => 60 + Object.keys(a.elasticities.expenditure_elasticities || {}).length * 40,
         chart: (a) => {
