@@ -363,15 +363,12 @@ def test_a_bad_csv_is_refused_by_row_and_column(
     assert "bad.csv" in error.text
 
 
-def test_a_series_panel_csv_fills_the_grids_and_computes(
-        live_url: str, browser: Any, tmp_path: Path) -> None:
+def test_the_shipped_panel_csv_fills_the_series_grids_and_computes(
+        live_url: str, browser: Any) -> None:
+    """docs/examples/wrenmouth_panel.csv is the series example in long form."""
     example = load_example("indexSeries.wrenmouth_monthly_ces.json")
-    lines = ["period,item,price,quantity"]
-    for t, period in enumerate(example["periods"]):
-        for item, price in example["prices"][t].items():
-            lines.append(f"{period},{item},{price},{example['quantities'][t][item]}")
     open_view(browser, live_url, "series")
-    upload(browser, tmp_path, "panel.csv", "\n".join(lines))
+    browser.find_element(By.ID, "upload").send_keys(str(ROOT / "docs/examples/wrenmouth_panel.csv"))
     WebDriverWait(browser, 10).until(lambda d: d.execute_script(
         "return window.dualcost.state.scenario") == "")
     compute(browser)
@@ -379,6 +376,59 @@ def test_a_series_panel_csv_fills_the_grids_and_computes(
     assert sent["prices"] == example["prices"] and sent["quantities"] == example["quantities"]
     last = answer["konus"]["fixed_base"]["base"][-1]
     assert browser.find_element(By.ID, "series-konus-last").text == f"{last:.3f}"
+
+
+def test_the_shipped_bulletin_csv_fills_the_audit(live_url: str, browser: Any) -> None:
+    """docs/examples/wrenmouth_published.csv is the audit example's bulletin and its base month."""
+    open_view(browser, live_url, "audits")
+    browser.find_element(By.ID, "upload").send_keys(
+        str(ROOT / "docs/examples/wrenmouth_published.csv"))
+    WebDriverWait(browser, 10).until(lambda d: d.execute_script(
+        "return window.dualcost.state.scenario") == "")
+    compute(browser)
+    sent, answer = sent_and_answer(browser, live_url, "/v1/audits")
+    assert len(sent["published"]) == 11 and sent["published"][1]["decimals"] == 1
+    assert browser.find_element(By.ID, "audit-checked").text == str(answer["checked"])
+    assert len(browser.find_elements(By.CSS_SELECTOR, "#audit-table tbody tr")) == 11
+
+
+def test_a_household_csv_fills_the_household_grid(
+        live_url: str, browser: Any, tmp_path: Path) -> None:
+    example = load_example("householdIndices.wrenmouth_deciles_ces.json")
+    ids = [item["id"] for item in example["items"]]
+    lines = [",".join(["household", "expenditure", "weight", *ids])]
+    for h in example["households"][:4]:
+        lines.append(",".join([h["id"], str(h["expenditure"]), str(h["weight"]),
+                               *(str(h["shares"][i]) for i in ids)]))
+    open_view(browser, live_url, "households")
+    upload(browser, tmp_path, "households.csv", "\n".join(lines))
+    WebDriverWait(browser, 10).until(
+        lambda d: len(d.find_elements(By.CSS_SELECTOR, ".grid")[1].find_elements(
+            By.CSS_SELECTOR, "tbody tr")) == 4)
+    compute(browser)
+    sent, answer = sent_and_answer(browser, live_url, "/v1/household-indices")
+    assert sent["households"] == example["households"][:4]
+    konus = next(i for i in answer["summary"][0]["indices"] if i["index"] == "konus")
+    assert browser.find_element(By.ID, "hh-konus-democratic").text == f"{konus['democratic']:.4f}"
+
+
+def test_a_fit_csv_in_long_form_fills_the_grids(
+        live_url: str, browser: Any, tmp_path: Path) -> None:
+    example = load_example("fitModel.wrenmouth_monthly_nested_ces.json")
+    ids = [item["id"] if isinstance(item, dict) else item for item in example["items"]]
+    lines = ["observation,item,price,expenditure"]
+    for t, obs in enumerate(example["observations"]):
+        for i, item in enumerate(ids):
+            lines.append(f"{obs},{item},{example['prices'][t][i]},{example['expenditures'][t][i]}")
+    open_view(browser, live_url, "fits")
+    upload(browser, tmp_path, "budgets.csv", "\n".join(lines))
+    WebDriverWait(browser, 10).until(lambda d: d.execute_script(
+        "return window.dualcost.state.scenario") == "")
+    compute(browser)
+    sent, answer = sent_and_answer(browser, live_url, "/v1/fits")
+    assert sent["prices"] == example["prices"] and sent["expenditures"] == example["expenditures"]
+    first = browser.find_element(By.CSS_SELECTOR, "#parameters-table tbody tr td:nth-child(2)")
+    assert first.text == f"{answer['parameters'][0]['estimate']:.4f}"
 
 
 def tree_sigma(browser: Any, group: str) -> Any:

@@ -27,7 +27,7 @@
       const p = r.period.text;
       const i = r.item.text;
       if (!periods.includes(p)) { periods.push(p); prices.push({}); quantities.push({}); }
-      if (!items.includes(i)) items.push(i);
+      if (!items.some((x) => itemId(x) === i)) items.push(r.label && r.label.text ? { id: i, label: r.label.text } : i);
       const t = periods.indexOf(p);
       prices[t][i] = n(r.price);
       if (r.quantity && r.quantity.text !== "") quantities[t][i] = n(r.quantity);
@@ -423,7 +423,18 @@
     path: "/v1/audits",
     operationId: "auditPublishedSeries",
     action: "Audit",
-    csv: { columns: "period,item,price[,quantity] (the panel; published values stay)", required: ["period", "item", "price"], read: readPanel },
+    csv: { columns: "the panel (period,item,price[,quantity]) or the published values (formula,series,period,value)",
+      required: ["period"],
+      read(records, body, n) {
+        if (!records[0].formula) return readPanel(records, body, n);
+        // The decimals each value was published to are read from how it is written (101.2: 1).
+        body.published = records.map((r) => ({ formula: r.formula.text, period: r.period.text,
+          ...(r.series ? { series: r.series.text } : {}), value: n(r.value),
+          decimals: (r.value.text.split(".")[1] || "").length }));
+        return body;
+      } },
+    note: "A published-values file replaces the published rows and keeps the panel; a panel file keeps the published rows. "
+      + "Each value's decimals are read from how it is written (101.2: one decimal).",
     fields: [
       { pointer: "/base_period", label: "Base period", kind: "select", optional: true,
         options: (_, body) => (body.periods || []).map((p) => [p, p]) },
@@ -432,6 +443,7 @@
     grids: [
       { title: "Published values", rows: { pointer: "/published", title: "row", label: (_, r) => String(r + 1) },
         columns: [{ title: "formula", pointer: "/published/{r}/formula", kind: "text", keep: true },
+          { title: "series", pointer: "/published/{r}/series", kind: "text", keep: true },
           { title: "period", pointer: "/published/{r}/period", kind: "text", keep: true },
           { title: "value", pointer: "/published/{r}/value", keep: true },
           { title: "decimals", pointer: "/published/{r}/decimals", keep: true }] },
