@@ -37,6 +37,7 @@ from tests.e2e.test_api_docs import (
 )
 
 webdriver = pytest.importorskip("selenium.webdriver")
+from selenium.common.exceptions import StaleElementReferenceException  # noqa: E402
 from selenium.webdriver.chrome.service import Service  # noqa: E402
 from selenium.webdriver.common.by import By  # noqa: E402
 from selenium.webdriver.common.keys import Keys  # noqa: E402
@@ -127,17 +128,22 @@ def browser(request: pytest.FixtureRequest, tmp_path_factory: pytest.TempPathFac
         driver.quit()
 
 
+def wait(browser: Any, seconds: float) -> Any:
+    """A wait that reads again an element the page has just redrawn."""
+    return WebDriverWait(browser, seconds, ignored_exceptions=(StaleElementReferenceException,))
+
+
 def open_view(browser: Any, live_url: str, view: str) -> None:
     browser.get("about:blank")
     browser.get_log("performance")
     browser.get(f"{live_url}/#{view}")
-    WebDriverWait(browser, 20).until(lambda d: d.find_elements(By.ID, "compute")
+    wait(browser, 20).until(lambda d: d.find_elements(By.ID, "compute")
                                      and d.find_elements(By.CSS_SELECTOR, ".grid input"))
 
 
 def compute(browser: Any) -> Any:
     browser.find_element(By.ID, "compute").click()
-    return WebDriverWait(browser, 60).until(
+    return wait(browser, 60).until(
         lambda d: d.find_element(By.ID, "result") if d.find_element(By.ID, "result").is_displayed()
         else (d.find_element(By.ID, "error").is_displayed() and pytest.fail(
             d.find_element(By.ID, "error").text)))
@@ -211,7 +217,7 @@ def test_each_view_names_the_row_and_column_of_a_bad_cell(
     cell.clear()
     cell.send_keys("2,5")
     browser.find_element(By.ID, "compute").click()
-    error = WebDriverWait(browser, 20).until(lambda d: d.find_element(By.ID, "error")
+    error = wait(browser, 20).until(lambda d: d.find_element(By.ID, "error")
                                              if d.find_element(By.ID, "error").is_displayed() else None)
     assert "row 1" in error.text and f"'{case.column_title}'" in error.text
     assert "decimal comma" in error.text and "2.5" in error.text
@@ -221,7 +227,7 @@ def test_each_view_names_the_row_and_column_of_a_bad_cell(
     cell.clear()
     cell.send_keys("-2.5")
     browser.find_element(By.ID, "compute").click()
-    WebDriverWait(browser, 30).until(lambda d: "-2,5" not in d.find_element(By.ID, "error").text
+    wait(browser, 30).until(lambda d: "-2,5" not in d.find_element(By.ID, "error").text
                                      and "decimal comma" not in d.find_element(By.ID, "error").text
                                      and d.find_element(By.ID, "error").is_displayed())
     text = browser.find_element(By.ID, "error").text
@@ -249,7 +255,7 @@ def test_the_sensitivity_comes_from_the_service(live_url: str, browser: Any) -> 
     open_view(browser, live_url, "comparison")
     compute(browser)
     browser.find_element(By.ID, "sweep").click()
-    rows = WebDriverWait(browser, 120).until(
+    rows = wait(browser, 120).until(
         lambda d: d.find_elements(By.CSS_SELECTOR, "#sweep-values tbody tr"))
     by_point = {r.find_elements(By.TAG_NAME, "td")[0].text: r for r in rows}
     assert "×1" in by_point and len(rows) == 6
@@ -270,7 +276,7 @@ def test_the_page_is_usable_from_the_keyboard(live_url: str, browser: Any) -> No
     assert unlabelled == []
     browser.execute_script("document.getElementById('compute').focus()")
     browser.switch_to.active_element.send_keys(Keys.ENTER)
-    WebDriverWait(browser, 60).until(lambda d: d.find_element(By.ID, "result").is_displayed())
+    wait(browser, 60).until(lambda d: d.find_element(By.ID, "result").is_displayed())
 
 
 def test_a_model_outside_its_regular_region_is_flagged_beside_its_figures(
@@ -290,7 +296,7 @@ def test_a_model_outside_its_regular_region_is_flagged_beside_its_figures(
     browser.execute_script("document.querySelector('details.advanced').open = true")
     browser.find_element(By.XPATH, "//button[text()='Use this JSON']").click()
     browser.find_element(By.ID, "compute").click()
-    warning = WebDriverWait(browser, 30).until(lambda d: d.find_elements(By.ID, "validity"))[0]
+    warning = wait(browser, 30).until(lambda d: d.find_elements(By.ID, "validity"))[0]
     assert "not results" in warning.text and "Transit pass (transit)" in warning.text
     for key in ("konus-base", "bias", "cv"):
         assert browser.find_element(By.ID, key).text == "not a result"
@@ -336,7 +342,7 @@ def test_a_comparison_csv_fills_the_grid_and_computes(
     upload(browser, tmp_path, "basket.csv", "item,label,base_price,current_price,base_quantity\n"
            "rye_loaf,Rye loaf,2.40,2.52,12\nferry_pass,Ferry pass,38,41,1\n"
            "flat_rent,Flat rent,610,634,1\n")
-    WebDriverWait(browser, 10).until(
+    wait(browser, 10).until(
         lambda d: len(d.find_elements(By.CSS_SELECTOR, ".grid tbody tr")) == 3)
     compute(browser)
     sent, answer = sent_and_answer(browser, live_url, "/v1/comparisons")
@@ -356,7 +362,7 @@ def test_a_bad_csv_is_refused_by_row_and_column(
         live_url: str, browser: Any, tmp_path: Path, text: str, expected: list[str]) -> None:
     open_view(browser, live_url, "comparison")
     upload(browser, tmp_path, "bad.csv", text)
-    error = WebDriverWait(browser, 10).until(lambda d: d.find_element(By.ID, "error")
+    error = wait(browser, 10).until(lambda d: d.find_element(By.ID, "error")
                                              if d.find_element(By.ID, "error").is_displayed() else None)
     for part in expected:
         assert part in error.text, error.text
@@ -369,7 +375,7 @@ def test_the_shipped_panel_csv_fills_the_series_grids_and_computes(
     example = load_example("indexSeries.wrenmouth_monthly_ces.json")
     open_view(browser, live_url, "series")
     browser.find_element(By.ID, "upload").send_keys(str(ROOT / "docs/examples/wrenmouth_panel.csv"))
-    WebDriverWait(browser, 10).until(lambda d: d.execute_script(
+    wait(browser, 10).until(lambda d: d.execute_script(
         "return window.dualcost.state.scenario") == "")
     compute(browser)
     sent, answer = sent_and_answer(browser, live_url, "/v1/index-series")
@@ -383,7 +389,7 @@ def test_the_shipped_bulletin_csv_fills_the_audit(live_url: str, browser: Any) -
     open_view(browser, live_url, "audits")
     browser.find_element(By.ID, "upload").send_keys(
         str(ROOT / "docs/examples/wrenmouth_published.csv"))
-    WebDriverWait(browser, 10).until(lambda d: d.execute_script(
+    wait(browser, 10).until(lambda d: d.execute_script(
         "return window.dualcost.state.scenario") == "")
     compute(browser)
     sent, answer = sent_and_answer(browser, live_url, "/v1/audits")
@@ -402,7 +408,7 @@ def test_a_household_csv_fills_the_household_grid(
                                *(str(h["shares"][i]) for i in ids)]))
     open_view(browser, live_url, "households")
     upload(browser, tmp_path, "households.csv", "\n".join(lines))
-    WebDriverWait(browser, 10).until(
+    wait(browser, 10).until(
         lambda d: len(d.find_elements(By.CSS_SELECTOR, ".grid")[1].find_elements(
             By.CSS_SELECTOR, "tbody tr")) == 4)
     compute(browser)
@@ -422,7 +428,7 @@ def test_a_fit_csv_in_long_form_fills_the_grids(
             lines.append(f"{obs},{item},{example['prices'][t][i]},{example['expenditures'][t][i]}")
     open_view(browser, live_url, "fits")
     upload(browser, tmp_path, "budgets.csv", "\n".join(lines))
-    WebDriverWait(browser, 10).until(lambda d: d.execute_script(
+    wait(browser, 10).until(lambda d: d.execute_script(
         "return window.dualcost.state.scenario") == "")
     compute(browser)
     sent, answer = sent_and_answer(browser, live_url, "/v1/fits")
@@ -453,7 +459,7 @@ def test_a_bad_sigma_in_the_tree_is_named_by_its_group(live_url: str, browser: A
     sigma.clear()
     sigma.send_keys("-1")
     browser.find_element(By.ID, "compute").click()
-    error = WebDriverWait(browser, 20).until(lambda d: d.find_element(By.ID, "error")
+    error = wait(browser, 20).until(lambda d: d.find_element(By.ID, "error")
                                              if d.find_element(By.ID, "error").is_displayed() else None)
     assert "Tree group 'transport', σ" in error.text, error.text
     assert sigma.get_attribute("aria-invalid") == "true"
@@ -464,7 +470,7 @@ def test_changing_the_family_starts_it_from_plain_values(live_url: str, browser:
 
     open_view(browser, live_url, "comparison")
     Select(browser.find_element(By.ID, "family")).select_by_value("stone_geary")
-    WebDriverWait(browser, 10).until(lambda d: not d.find_elements(By.CSS_SELECTOR, ".tree input"))
+    wait(browser, 10).until(lambda d: not d.find_elements(By.CSS_SELECTOR, ".tree input"))
     compute(browser)
     sent, answer = sent_and_answer(browser, live_url, "/v1/comparisons")
     assert sent["model"] == {"family": "stone_geary", "frisch": -2}

@@ -9,6 +9,12 @@
   const itemId = (x) => (typeof x === "object" ? x.id : x);
   const titleOf = (a, f) => (a.formulas.find((x) => x.formula === f) || {}).title || f;
   const num = (x) => (x === null || x === undefined ? null : x);
+  // The weighted formulas of an answer (the registry says which), or all if none is weighted.
+  const weighted = (a) => {
+    const flags = Object.fromEntries(window.dualcost.state.catalogue.formulas.map((f) => [f.formula, f.weighted]));
+    const w = a.formulas.filter((f) => flags[f.formula] !== false);
+    return w.length ? w : a.formulas;
+  };
 
   // What the model cannot stand behind is not a result: a blocking box above the figures.
   const validityBox = (a) => (a.validity && a.validity.regular === false ? {
@@ -107,10 +113,12 @@
       { kind: "chart", id: "bias-chart", title: "How much each formula overstates the Konüs index",
         notices: ["current_quantities_from_model", "quantities_from_model", "current_income_assumed"],
         when: (a) => a.validity.regular,
-        height: (a) => 60 + a.formulas.length * 34,
-        chart: (a) => C.barConfig({ labels: a.formulas.map((f) => `${f.title} (vs Konüs ${f.compared_with})`),
-          datasets: [{ label: "bias, index points (base 100)", data: a.formulas.map((f) => num(f.bias_points)) },
-            { label: "bias, percent of the Konüs index", data: a.formulas.map((f) => num(f.bias_percent)) }],
+        text: (a) => (weighted(a).length < a.formulas.length
+          ? "Unweighted formulas (Carli, Jevons, Dutot) are in the table below: their gaps, of another order, would flatten this chart." : ""),
+        height: (a) => 90 + weighted(a).length * 42,
+        chart: (a) => C.barConfig({ labels: weighted(a).map((f) => [f.title, `vs Konüs ${f.compared_with}`]),
+          datasets: [{ label: "bias, index points (base 100)", data: weighted(a).map((f) => num(f.bias_points)) },
+            { label: "bias, percent of the Konüs index", data: weighted(a).map((f) => num(f.bias_percent)) }],
           xTitle: "formula", yTitle: "bias: index points and percent (0 = no bias)" }) },
       { kind: "table", id: "formula-table", title: "Formula indices and the Konüs index each is compared with",
         rows: (a) => a.formulas, columns: [

@@ -465,6 +465,8 @@ function renderAnswer(answer) {
       const canvas = el("canvas", { role: "img", "aria-label": block.title });
       section.append(el("div", { class: "chart", style: `height:${block.height ? block.height(answer) : 320}px` }, canvas));
       section.dataset.chart = block.id;
+      const note = block.text ? block.text(answer) : "";
+      if (note) section.append(el("p", { class: "hint", text: note }));
       blocks.push(section);
       section._draw = () => drawChart(canvas, block.chart(answer, colour));
       continue;
