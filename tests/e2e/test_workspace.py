@@ -475,3 +475,22 @@ def test_changing_the_family_starts_it_from_plain_values(live_url: str, browser:
     sent, answer = sent_and_answer(browser, live_url, "/v1/comparisons")
     assert sent["model"] == {"family": "stone_geary", "frisch": -2}
     assert browser.find_element(By.ID, "konus-current").text == f"{answer['konus']['current']:.4f}"
+
+
+def test_the_family_sensitivity_compares_the_simple_families(live_url: str, browser: Any) -> None:
+    """Varying the family: one comparison per simple family on the same basket, CES at σ 0.7
+    (the demo's tree has no single σ)."""
+    from selenium.webdriver.support.ui import Select
+
+    open_view(browser, live_url, "comparison")
+    compute(browser)
+    Select(browser.find_element(By.ID, "sweep-kind")).select_by_value("family")
+    browser.find_element(By.ID, "sweep").click()
+    rows = wait(browser, 120).until(
+        lambda d: d.find_elements(By.CSS_SELECTOR, "#sweep-values tbody tr"))
+    by_point = {r.find_elements(By.TAG_NAME, "td")[0].text: r for r in rows}
+    assert set(by_point) == {"cobb_douglas", "ces", "translog", "quadratic", "stone_geary"}
+    body = {**load_example("compare.wrenmouth_nested_ces.json"),
+            "model": {"family": "ces", "sigma": 0.7}}
+    answer = httpx.post(live_url + "/v1/comparisons", json=body, timeout=60).json()
+    assert by_point["ces"].find_elements(By.TAG_NAME, "td")[1].text == f"{answer['konus']['base']:.4f}"

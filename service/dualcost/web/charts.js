@@ -107,7 +107,11 @@ function boxConfig({ labels, stats, xTitle, yTitle }) {
           backgroundColor: "#000", barPercentage: 0.7, grouped: false },
       ],
     },
-    options: baseOptions(xTitle, yTitle, { horizontal: true }),
+    options: (() => {
+      const o = baseOptions(xTitle, yTitle, { horizontal: true });
+      o.scales.x.beginAtZero = false;  // the spread, not the distance from zero, is the point
+      return o;
+    })(),
   };
 }
 

@@ -168,11 +168,14 @@
         const series = ["laspeyres", "paasche", "fisher", "tornqvist", "lowe", "young"].filter((f) => formulas.includes(f));
         const labels = rows.map((r) => r.label);
         const bias = (r, f) => (r.ok ? num((r.answer.formulas.find((x) => x.formula === f) || {}).bias_points) : null);
-        return C.lineConfig({ labels, xTitle: kind === "family" ? "preference family" : "σ (or the tree's σ scaled)",
-          yTitle: "bias, index points; Konüs index − 1 in points",
-          zeroAt: 0,
-          datasets: [{ label: "Konüs index (base), points above 100", data: rows.map((r) => (r.ok && r.answer.konus.base !== null ? 100 * (r.answer.konus.base - 1) : null)), colour: "#000", borderWidth: 3 },
-            ...series.map((f) => ({ label: `${f} bias`, data: rows.map((r) => bias(r, f)) }))] });
+        const config = C.lineConfig({ labels, xTitle: kind === "family" ? "preference family" : "σ (or the tree's σ scaled)",
+          yTitle: "bias, index points (0 = no bias)", zeroAt: 0,
+          datasets: [{ label: "Konüs index, base = 100 (right axis)", yAxisID: "y2", colour: "#000", borderWidth: 3,
+            data: rows.map((r) => (r.ok && r.answer.konus.base !== null ? 100 * r.answer.konus.base : null)) },
+          ...series.map((f) => ({ label: `${titleOf(ok[0].answer, f)} bias`, data: rows.map((r) => bias(r, f)) }))] });
+        config.options.scales.y2 = { position: "right", grid: { drawOnChartArea: false },
+          title: { display: true, text: "Konüs index, base = 100", font: { size: 12 } }, ticks: { font: { size: 11 } } };
+        return config;
       },
       table(rows) {
         const el = window.dualcost.el;
@@ -306,15 +309,23 @@
         height: (a) => 80 + a.summary[0].indices.length * 40,
         chart: (a) => {
           const names = a.summary[0].indices.map((i) => i.index);
-          const values = (name) => a.households.map((h) => (name === "konus" ? h.periods[0].konus : h.periods[0].indices[name]));
+          const level = (x) => (x === null || x === undefined ? null : 100 * x);
+          const values = (name) => a.households.map((h) => level(name === "konus" ? h.periods[0].konus : h.periods[0].indices[name]));
           return C.boxConfig({ labels: names.map((n) => (n === "konus" ? "Konüs" : n)), stats: names.map((n) => C.boxStats(values(n))),
-            xTitle: "index", yTitle: `index (${a.scale.indices})` });
+            xTitle: "index", yTitle: "index, base = 100" });
         } },
       { kind: "chart", id: "hh-hist-chart", title: "Household Konüs indices: histogram",
         chart: (a) => {
-          const h = C.histogram(a.households.map((x) => x.periods[0].konus));
-          return C.barConfig({ labels: h.labels, datasets: [{ label: "households", data: h.counts }],
-            xTitle: "Konüs index (bin middle)", yTitle: "households", horizontal: false });
+          const h = C.histogram(a.households.map((x) => (x.periods[0].konus === null ? NaN : 100 * x.periods[0].konus)));
+          return C.barConfig({ labels: h.labels.map((l) => Number(l).toFixed(2)), datasets: [{ label: "households", data: h.counts }],
+            xTitle: "Konüs index, base = 100 (bin middle)", yTitle: "households", horizontal: false });
+        } },
+      { kind: "chart", id: "hh-bias-chart", title: "How much Laspeyres overstates each household's Konüs index",
+        when: (a) => a.households.some((h) => h.periods[0].bias_points && h.periods[0].bias_points.laspeyres !== undefined),
+        chart: (a) => {
+          const h = C.histogram(a.households.map((x) => (x.periods[0].bias_points || {}).laspeyres ?? NaN));
+          return C.barConfig({ labels: h.labels.map((l) => Number(l).toFixed(3)), datasets: [{ label: "households", data: h.counts }],
+            xTitle: "Laspeyres bias, index points (bin middle)", yTitle: "households", horizontal: false, zeroAt: null });
         } },
       { kind: "chart", id: "hh-aggregate-chart", title: "Democratic and plutocratic aggregates",
         height: (a) => 80 + a.summary[0].indices.length * 40,

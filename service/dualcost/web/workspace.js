@@ -567,7 +567,7 @@ const SWEEP = {
 
 function sensitivityBlock(spec) {
   const kind = el("select", { id: "sweep-kind" },
-    el("option", { value: "sigma", text: "σ of the current family (0.1 to 2.5)" }),
+    el("option", { value: "sigma", text: "σ (0.1 to 2.5; a tree's σ all scaled)" }),
     el("option", { value: "family", text: "the preference family (simple families)" }));
   const canvas = el("canvas", { role: "img", "aria-label": "Konüs index and biases by σ or family" });
   const table = el("div", { id: "sweep-table" });
