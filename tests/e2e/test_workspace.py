@@ -33,6 +33,7 @@ from tests.e2e.test_api_docs import (
     CHROMIUM,
     OFFLINE,
     assert_nothing_left_the_machine,
+    console_errors,
     requests_made,
 )
 
@@ -136,6 +137,7 @@ def wait(browser: Any, seconds: float) -> Any:
 def open_view(browser: Any, live_url: str, view: str) -> None:
     browser.get("about:blank")
     browser.get_log("performance")
+    browser.get_log("browser")
     browser.get(f"{live_url}/#{view}")
     wait(browser, 20).until(lambda d: d.find_elements(By.ID, "compute")
                                      and d.find_elements(By.CSS_SELECTOR, ".grid input"))
@@ -203,6 +205,7 @@ def test_each_view_computes_its_example_and_shows_the_apis_numbers(
         "return performance.getEntries().map(e => e.name).filter(n => /^https?:/.test(n))")
     host = urlsplit(live_url).netloc
     assert entries and all(urlsplit(n).netloc == host for n in entries), entries
+    assert not console_errors(browser)
     screenshot(browser, case.view)
 
 
@@ -494,3 +497,35 @@ def test_the_family_sensitivity_compares_the_simple_families(live_url: str, brow
             "model": {"family": "ces", "sigma": 0.7}}
     answer = httpx.post(live_url + "/v1/comparisons", json=body, timeout=60).json()
     assert by_point["ces"].find_elements(By.TAG_NAME, "td")[1].text == f"{answer['konus']['base']:.4f}"
+
+
+def test_an_audit_flags_a_published_value_that_differs(live_url: str, browser: Any) -> None:
+    """A published value two points off is flagged in the table and the chart's labels."""
+    open_view(browser, live_url, "audits")
+    value = browser.find_element(By.CSS_SELECTOR, "input[aria-label='Published values: 1, value']")
+    value.clear()
+    value.send_keys("103.2")
+    compute(browser)
+    flagged = browser.find_elements(By.CSS_SELECTOR, "#audit-table tr.flagged")
+    assert len(flagged) == 1 and "DIFFERS" in flagged[0].text and "103.2" in flagged[0].text
+    assert browser.find_element(By.ID, "audit-failed").text == "1"
+    screenshot(browser, "audits-flagged")
+
+
+def test_with_api_keys_the_page_sends_the_key_typed(browser: Any) -> None:
+    """Where the service asks for a key, the page says so until one is typed, then works."""
+    from dualcost.config import Settings
+    from tests.conftest import EXAMPLES, running_service
+
+    with running_service(Settings(examples_dir=EXAMPLES, api_keys=("wrenmouth-office",))) as url:
+        browser.get("about:blank")
+        browser.get(url + "/#comparison")
+        error = wait(browser, 20).until(lambda d: d.find_element(By.ID, "error")
+                                        if d.find_element(By.ID, "error").is_displayed() else None)
+        assert "401" in error.text and "API key" in error.text
+        key = browser.find_element(By.ID, "api-key")
+        key.send_keys("wrenmouth-office", Keys.TAB)
+        wait(browser, 20).until(lambda d: d.find_elements(By.CSS_SELECTOR, ".grid input"))
+        compute(browser)
+        assert browser.find_element(By.ID, "konus-base").text
+        browser.execute_script("sessionStorage.clear()")

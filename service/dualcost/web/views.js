@@ -473,8 +473,8 @@
         { id: "audit-checked", label: "published values checked", value: a.checked, digits: 0 },
         { id: "audit-failed", label: "differences beyond the tolerance", value: a.failed, digits: 0 }] },
       { kind: "chart", id: "audit-chart", title: "Published minus recomputed, against the rounding tolerance",
-        height: (a) => 60 + a.rows.length * 26,
-        chart: (a) => C.barConfig({ labels: a.rows.map((r) => `${r.formula} ${r.series} ${r.period}`), datasets: [
+        height: (a) => 90 + a.rows.length * 40,
+        chart: (a) => C.barConfig({ labels: a.rows.map((r) => [`${r.formula}, ${r.period}`, `${r.series}${r.passed ? "" : ": DIFFERS"}`]), datasets: [
           { label: "published − recomputed (index points)", data: a.rows.map((r) => r.difference),
             backgroundColor: a.rows.map((r) => (r.passed ? C.PALETTE[0] : C.PALETTE[3])) },
           { label: "tolerance (±)", data: a.rows.map((r) => [-r.tolerance, r.tolerance]), backgroundColor: "rgba(0,0,0,0.12)", grouped: false }],

@@ -68,8 +68,21 @@ function readNumber(text, where) {
 const state = { views: [], view: null, body: null, places: [], answer: null, catalogue: null,
   scenario: "" };
 
+// Where the service asks for an API key, the one typed in the header goes with every /v1 request
+// (kept for this tab only, in sessionStorage).
+function headers(accept, json = false) {
+  const out = { accept };
+  if (json) out["content-type"] = "application/json";
+  const key = sessionStorage.getItem("dualcost-api-key");
+  if (key) out["x-api-key"] = key;
+  return out;
+}
+
 async function getJson(url) {
-  const response = await fetch(url, { headers: { accept: "application/json" } });
+  const response = await fetch(url, { headers: headers("application/json") });
+  if (response.status === 401) {
+    throw new Error(`${url} answered 401: the service asks for an API key; type it in the box at the top.`);
+  }
   if (!response.ok) throw new Error(`${url} answered ${response.status}`);
   return response.json();
 }
@@ -388,7 +401,7 @@ async function compute() {
   }
   $("status").textContent = "Computing…";
   const response = await fetch(state.view.path, { method: "POST",
-    headers: { "content-type": "application/json", accept: "application/json" }, body: JSON.stringify(body) });
+    headers: headers("application/json", true), body: JSON.stringify(body) });
   const answer = await response.json();
   $("status").textContent = "";
   if (!response.ok) {
@@ -504,7 +517,7 @@ async function download(kind) {
     blob = new Blob([JSON.stringify(state.answer, null, 1)], { type: "application/json" });
   } else {
     const response = await fetch(state.view.path, { method: "POST",
-      headers: { "content-type": "application/json", accept: "text/csv" }, body: JSON.stringify(state.sent) });
+      headers: headers("text/csv", true), body: JSON.stringify(state.sent) });
     if (!response.ok) throw new Error(`The CSV answer was refused (${response.status}).`);
     blob = new Blob([await response.text()], { type: "text/csv" });
   }
@@ -556,7 +569,7 @@ const SWEEP = {
     for (const pt of points) {
       const b = clone(body);
       b.model = pt.model;
-      const r = await fetch(path, { method: "POST", headers: { "content-type": "application/json", accept: "application/json" },
+      const r = await fetch(path, { method: "POST", headers: headers("application/json", true),
         body: JSON.stringify(b) });
       const a = await r.json();
       rows.push({ label: pt.label, x: pt.x, ok: r.ok, answer: a });
@@ -604,6 +617,13 @@ async function showView(id) {
 
 async function boot(views) {
   state.views = views;
+  const key = $("api-key");
+  key.value = sessionStorage.getItem("dualcost-api-key") || "";
+  key.addEventListener("change", () => {
+    if (key.value.trim()) sessionStorage.setItem("dualcost-api-key", key.value.trim());
+    else sessionStorage.removeItem("dualcost-api-key");
+    location.reload();
+  });
   state.catalogue = await loadCatalogue();
   const nav = $("views");
   for (const v of views) {
