@@ -529,3 +529,57 @@ def test_with_api_keys_the_page_sends_the_key_typed(browser: Any) -> None:
         compute(browser)
         assert browser.find_element(By.ID, "konus-base").text
         browser.execute_script("sessionStorage.clear()")
+
+
+def test_a_rule_about_a_whole_row_names_the_row(live_url: str, browser: Any) -> None:
+    """Shares that do not add up are a rule about a household's row: the row is named and its
+    cells marked."""
+    open_view(browser, live_url, "households")
+    cell = browser.find_element(
+        By.CSS_SELECTOR, "input[aria-label='Households: budget shares: decile_2, Rye loaf and other bread']")
+    cell.clear()
+    cell.send_keys("0.5")
+    browser.find_element(By.ID, "compute").click()
+    error = wait(browser, 20).until(lambda d: d.find_element(By.ID, "error")
+                                    if d.find_element(By.ID, "error").is_displayed() else None)
+    assert "Households: budget shares, row 2 (decile_2): " in error.text, error.text
+    assert "sum to 1" in error.text
+    row = cell.find_element(By.XPATH, "./ancestor::tr")
+    marked = row.find_elements(By.CSS_SELECTOR, "input[aria-invalid='true']")
+    assert len(marked) == len(load_example("householdIndices.wrenmouth_deciles_ces.json")["items"])
+
+
+#: The view of each operation whose examples the page lists.
+VIEW_OF = {"compare": ("comparison", "/v1/comparisons"), "indexSeries": ("series", "/v1/index-series"),
+           "householdIndices": ("households", "/v1/household-indices"),
+           "fitModel": ("fits", "/v1/fits"), "auditPublishedSeries": ("audits", "/v1/audits")}
+EXAMPLES = sorted(p.name for p in (ROOT / "openapi_examples").glob("*.json")
+                  if p.name.split(".")[0] in VIEW_OF)
+
+
+@pytest.mark.parametrize("example", EXAMPLES)
+def test_every_example_round_trips_through_the_form(
+        live_url: str, browser: Any, example: str) -> None:
+    """Every example of every view (demand systems, utility formulas, AIDS, observed
+    quantities, shares in percent, Stone-Geary series, household types by quarter, AIDS and LES
+    fits...) goes through the form unchanged and is answered; a comparison shows the API's
+    figures."""
+    from selenium.webdriver.support.ui import Select
+
+    operation, name = example.removesuffix(".json").split(".", 1)
+    view, path = VIEW_OF[operation]
+    open_view(browser, live_url, view)
+    Select(browser.find_element(By.ID, "scenario")).select_by_value(f"example:{name}")
+    browser.find_element(By.ID, "load").click()
+    wait(browser, 10).until(lambda d: d.execute_script(
+        "return window.dualcost.state.scenario") == f"example:{name}")
+    compute(browser)
+    sent, answer = sent_and_answer(browser, live_url, path)
+    assert sent == load_example(example)
+    if view != "comparison":
+        return
+    lasp = next(f["value"] for f in answer["formulas"] if f["formula"] == "laspeyres")
+    assert browser.find_element(By.ID, "laspeyres").text == f"{lasp:.4f}"
+    konus = answer["konus"]["base"]
+    shown = browser.find_element(By.ID, "konus-base").text
+    assert shown == ("not a result" if konus is None else f"{konus:.4f}")

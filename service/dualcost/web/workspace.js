@@ -188,8 +188,9 @@ function gridBlock(grid, body) {
       const input = el("input", { type: "text", inputmode: col.kind === "text" ? null : "decimal",
         value: value === undefined || value === null ? "" : String(value),
         "aria-label": `${grid.title}: ${rowLabel(row, r)}, ${col.title}`, size: 7 });
+      const rowWhere = `${grid.title}, row ${r + 1} (${rowLabel(row, r)})`;
       place({ pointer, kind: col.kind || "number", optional: true, input, pruneParent: !col.keep,
-        where: `${grid.title}, row ${r + 1} (${rowLabel(row, r)}), column '${col.title}'` });
+        rowWhere, where: `${rowWhere}, column '${col.title}'` });
       tr.append(el("td", {}, input));
     }
     tbody.append(tr);
@@ -424,12 +425,26 @@ function locate(pointer) {
   return best;
 }
 
+// A pointer to a whole row or object (/households/2/shares) marks every cell under it and is
+// named by the row when they share one.
+function locateAll(pointer) {
+  const under = state.places.filter((p) => p.pointer.startsWith(pointer + "/"));
+  if (!under.length) return null;
+  const rows = new Set(under.map((p) => p.rowWhere || p.where));
+  return { inputs: under.map((p) => p.input), where: rows.size === 1 ? [...rows][0] : null };
+}
+
 function showProblem(problem) {
   const lines = [problem.title || "The request was refused."];
   let first = null;
   for (const e of problem.errors || []) {
     const p = locate(e.pointer || "");
-    if (p) {
+    const group = p ? null : locateAll(e.pointer || "");
+    if (group && group.where) {
+      group.inputs.forEach((i) => i.setAttribute("aria-invalid", "true"));
+      first = first || group.inputs[0];
+      lines.push(`${group.where}: ${e.detail}`);
+    } else if (p) {
       p.input.setAttribute("aria-invalid", "true");
       first = first || p.input;
       lines.push(`${p.where}: ${e.detail}`);
