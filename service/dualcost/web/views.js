@@ -264,6 +264,7 @@
     ],
   };
   const a0 = () => window.dualcost.state.answer;
+  const last = (a) => a.summary[a.summary.length - 1];
 
   const households = {
     id: "households",
@@ -288,65 +289,77 @@
     grids: [
       { title: "Prices", rows: { pointer: "/items", title: "item" }, columns: [
         { title: "base price", pointer: "/base_prices/{row}" }, { title: "current price", pointer: "/current_prices/{row}" }] },
+      { title: "Prices by period", when: (b) => Array.isArray(b.periods),
+        rows: { pointer: "/periods", title: "period", key: (p) => p.period, label: (p) => p.period },
+        columnsFrom: { pointer: "/items", cell: "/periods/{r}/prices/{col}" } },
       { title: "Households: budget shares", rows: { pointer: "/households", title: "household" },
         columns: [{ title: "expenditure", pointer: "/households/{r}/expenditure" },
           { title: "weight", pointer: "/households/{r}/weight" }],
         columnsFrom: { pointer: "/items", cell: "/households/{r}/shares/{col}" } },
     ],
+    // With several periods, the distribution and the tables are the last period's (named).
     validity: (a) => (a.summary.some((s) => s.households_outside_regular_region) ? {
       title: "Some households are outside the model's regular region: their Konüs figures are not results and are left out of the aggregates.",
       reasons: a.summary.map((s) => `${s.period}: ${s.households_outside_regular_region} of ${s.households} households`) } : null),
     results: [
       { kind: "cards", cards: (a) => {
-        const k = a.summary[0].indices.find((i) => i.index === "konus") || {};
+        const k = last(a).indices.find((i) => i.index === "konus") || {};
         return [
           { id: "hh-konus-democratic", label: "Konüs, democratic (mean over households)", value: k.democratic },
           { id: "hh-konus-plutocratic", label: "Konüs, plutocratic (spending-weighted)", value: k.plutocratic },
-          { id: "hh-cv-percent", label: "Compensation, percent of income", value: a.summary[0].cv_percent_of_income, digits: 2 },
+          { id: "hh-cv-percent", label: "Compensation, percent of income", value: last(a).cv_percent_of_income, digits: 2 },
         ];
       } },
-      { kind: "chart", id: "hh-box-chart", title: "Distribution of household indices (box plots)",
-        height: (a) => 80 + a.summary[0].indices.length * 40,
+      { kind: "chart", id: "hh-periods-chart", title: "Konüs aggregates by period (democratic and plutocratic)",
+        when: (a) => a.summary.length > 1,
         chart: (a) => {
-          const names = a.summary[0].indices.map((i) => i.index);
+          const k = (s, f) => { const i = s.indices.find((x) => x.index === "konus"); return i && i[f] !== null ? 100 * i[f] : null; };
+          return C.lineConfig({ labels: a.summary.map((s) => s.period), xTitle: "period", yTitle: "Konüs index, base = 100",
+            datasets: [{ label: "democratic", data: a.summary.map((s) => k(s, "democratic")) },
+              { label: "plutocratic", data: a.summary.map((s) => k(s, "plutocratic")) }] });
+        } },
+      { kind: "chart", id: "hh-box-chart", title: (a) => `Distribution of household indices, ${last(a).period} (box plots)`,
+        height: (a) => 80 + last(a).indices.length * 40,
+        chart: (a) => {
+          const names = last(a).indices.map((i) => i.index);
           const level = (x) => (x === null || x === undefined ? null : 100 * x);
-          const values = (name) => a.households.map((h) => level(name === "konus" ? h.periods[0].konus : h.periods[0].indices[name]));
+          const values = (name) => a.households.map((h) => level(name === "konus" ? h.periods[h.periods.length - 1].konus : h.periods[h.periods.length - 1].indices[name]));
           return C.boxConfig({ labels: names.map((n) => (n === "konus" ? "Konüs" : n)), stats: names.map((n) => C.boxStats(values(n))),
             xTitle: "index", yTitle: "index, base = 100" });
         } },
-      { kind: "chart", id: "hh-hist-chart", title: "Household Konüs indices: histogram",
+      { kind: "chart", id: "hh-hist-chart", title: (a) => `Household Konüs indices, ${last(a).period}: histogram`,
         chart: (a) => {
-          const h = C.histogram(a.households.map((x) => (x.periods[0].konus === null ? NaN : 100 * x.periods[0].konus)));
+          const h = C.histogram(a.households.map((x) => (x.periods[x.periods.length - 1].konus === null ? NaN : 100 * x.periods[x.periods.length - 1].konus)));
           return C.barConfig({ labels: h.labels.map((l) => Number(l).toFixed(2)), datasets: [{ label: "households", data: h.counts }],
             xTitle: "Konüs index, base = 100 (bin middle)", yTitle: "households", horizontal: false });
         } },
-      { kind: "chart", id: "hh-bias-chart", title: "How much Laspeyres overstates each household's Konüs index",
-        when: (a) => a.households.some((h) => h.periods[0].bias_points && h.periods[0].bias_points.laspeyres !== undefined),
+      { kind: "chart", id: "hh-bias-chart", title: (a) => `How much Laspeyres overstates each household's Konüs index, ${last(a).period}`,
+        when: (a) => a.households.some((h) => h.periods[h.periods.length - 1].bias_points && h.periods[h.periods.length - 1].bias_points.laspeyres !== undefined),
         chart: (a) => {
-          const h = C.histogram(a.households.map((x) => (x.periods[0].bias_points || {}).laspeyres ?? NaN));
+          const h = C.histogram(a.households.map((x) => (x.periods[x.periods.length - 1].bias_points || {}).laspeyres ?? NaN));
           return C.barConfig({ labels: h.labels.map((l) => Number(l).toFixed(3)), datasets: [{ label: "households", data: h.counts }],
             xTitle: "Laspeyres bias, index points (bin middle)", yTitle: "households", horizontal: false, zeroAt: null });
         } },
-      { kind: "chart", id: "hh-aggregate-chart", title: "Democratic and plutocratic aggregates",
-        height: (a) => 80 + a.summary[0].indices.length * 40,
+      { kind: "chart", id: "hh-aggregate-chart", title: (a) => `Democratic and plutocratic aggregates, ${last(a).period}`,
+        height: (a) => 80 + last(a).indices.length * 40,
         chart: (a) => {
-          const rows = a.summary[0].indices;
+          const rows = last(a).indices;
           return C.barConfig({ labels: rows.map((i) => i.index), datasets: [
             { label: "democratic (points above 100)", data: rows.map((i) => 100 * (i.democratic - 1)) },
             { label: "plutocratic (points above 100)", data: rows.map((i) => 100 * (i.plutocratic - 1)) }],
           xTitle: "index", yTitle: "index points above 100" });
         } },
-      { kind: "table", id: "hh-summary-table", title: "Aggregates and quantiles",
-        rows: (a) => a.summary[0].indices,
+      { kind: "table", id: "hh-summary-table", title: (a) => `Aggregates and quantiles, ${last(a).period}`,
+        rows: (a) => last(a).indices,
         columns: (a) => [{ title: "index", get: (i) => i.index }, { title: "democratic", get: (i) => i.democratic },
           { title: "plutocratic", get: (i) => i.plutocratic },
-          ...(a.summary[0].indices[0]?.quantiles || []).map((q, k) => ({ title: `q${q.probability}`, get: (i) => i.quantiles[k].value })),
+          ...(last(a).indices[0]?.quantiles || []).map((q, k) => ({ title: `q${q.probability}`, get: (i) => i.quantiles[k].value })),
           { title: "min", get: (i) => i.minimum }, { title: "max", get: (i) => i.maximum }] },
-      { kind: "table", id: "hh-table", title: "Each household",
+      { kind: "table", id: "hh-table", title: (a) => `Each household, ${last(a).period}`,
         rows: (a) => a.households,
-        columns: [{ title: "household", get: (h) => h.household }, { title: "Konüs", get: (h) => h.periods[0].konus, model: true },
-          { title: "CV %", get: (h) => h.periods[0].cv_percent, digits: 2, model: true },
-          { title: "Laspeyres bias (points)", get: (h) => (h.periods[0].bias_points || {}).laspeyres, digits: 3, model: true }] },
+        columns: [{ title: "household", get: (h) => h.household }, { title: "Konüs", get: (h) => h.periods[h.periods.length - 1].konus, model: true },
+          { title: "CV %", get: (h) => h.periods[h.periods.length - 1].cv_percent, digits: 2, model: true },
+          { title: "Laspeyres bias (points)", get: (h) => (h.periods[h.periods.length - 1].bias_points || {}).laspeyres, digits: 3, model: true }] },
     ],
   };
 
@@ -384,9 +397,13 @@
     ],
     grids: [
       { title: "Prices by observation", rows: { pointer: "/observations", title: "observation" },
-        columnsFrom: { pointer: "/items", cell: "/prices/{r}/{c}" } },
-      { title: "Expenditure by observation", rows: { pointer: "/observations", title: "observation" },
-        columnsFrom: { pointer: "/items", cell: "/expenditures/{r}/{c}" } },
+        columnsFrom: { pointer: "/items", cell: "/prices/{r}/{col}" } },
+      { title: "Expenditure by observation", when: (b) => !b.shares, rows: { pointer: "/observations", title: "observation" },
+        columnsFrom: { pointer: "/items", cell: "/expenditures/{r}/{col}" } },
+      { title: "Budget shares by observation", when: (b) => Boolean(b.shares), rows: { pointer: "/observations", title: "observation" },
+        columns: [{ title: "total expenditure", pointer: "/total_expenditure/{r}", keep: true },
+          { title: "weight", pointer: "/weights/{r}", keep: true }],
+        columnsFrom: { pointer: "/items", cell: "/shares/{r}/{col}" } },
     ],
     validity: (a) => {
       const r = a.regularity;

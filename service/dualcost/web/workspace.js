@@ -43,11 +43,29 @@ function setAt(doc, ptr, value) {
 function deleteAt(doc, ptr) {
   const parts = segments(ptr);
   const parent = getAt(doc, parts.slice(0, -1).length ? "/" + parts.slice(0, -1).map(escape).join("/") : "");
-  if (Array.isArray(parent)) parent[Number(parts.at(-1))] = null;  // an empty cell of a matrix
+  if (Array.isArray(parent)) {
+    if (/^\d+$/.test(parts.at(-1))) parent[Number(parts.at(-1))] = null;  // an empty cell of a matrix
+  }
   else if (parent && typeof parent === "object") delete parent[parts.at(-1)];
 }
 const parentOf = (ptr) => ptr.slice(0, ptr.lastIndexOf("/"));
 const fill = (template, vars) => template.replace(/\{(\w+)\}/g, (_, k) => escape(vars[k]));
+
+// A cell's pointer in this request: where the request gives a vector as a list in item order
+// rather than an object keyed by item id, the item's position stands in for its id.
+function cellPointer(template, vars, body) {
+  const parts = segments(fill(template, vars));
+  let node = body;
+  const out = parts.map((s) => {
+    let seg = s;
+    if (Array.isArray(node) && !/^\d+$/.test(s)) {
+      seg = String(s === String(vars.col) ? vars.c : vars.r);
+    }
+    node = node === undefined || node === null ? undefined : node[Array.isArray(node) ? Number(seg) : seg];
+    return seg;
+  });
+  return "/" + out.map(escape).join("/");
+}
 const clone = (x) => JSON.parse(JSON.stringify(x));
 
 // ---- numbers as a person types them ---------------------------------------------------------
@@ -183,7 +201,7 @@ function gridBlock(grid, body) {
     const key = rowKey(row, r);
     const tr = el("tr", {}, el("th", { scope: "row", text: rowLabel(row, r) }));
     for (const col of columns) {
-      const pointer = fill(col.pointer, { row: key, r, col: col.key, c: col.c });
+      const pointer = cellPointer(col.pointer, { row: key, r, col: col.key, c: col.c }, body);
       const value = getAt(body, pointer);
       const input = el("input", { type: "text", inputmode: col.kind === "text" ? null : "decimal",
         value: value === undefined || value === null ? "" : String(value),
@@ -321,7 +339,7 @@ function renderForm() {
     else fields.append(fieldInput(f, body, view.id));
   }
   parts.push(fields);
-  for (const g of view.grids || []) parts.push(gridBlock(g, body));
+  for (const g of view.grids || []) if (!g.when || g.when(body)) parts.push(gridBlock(g, body));
   const json = el("textarea", { id: "request-json", rows: 10, spellcheck: "false", "aria-label": "the request as JSON" });
   json.value = JSON.stringify(body, null, 1);
   parts.push(el("details", { class: "advanced" }, el("summary", { text: "The request as JSON (every field of the operation)" }),
@@ -483,14 +501,15 @@ function renderAnswer(answer) {
     if (block.when && !block.when(answer)) continue;
     const near = (answer.notices || []).filter((n) => (block.notices || []).includes(n.code));
     near.forEach((n) => used.add(n));
-    const section = el("section", { class: `block ${block.kind}` }, block.title ? el("h3", { text: block.title }) : null,
+    const title = typeof block.title === "function" ? block.title(answer) : block.title;
+    const section = el("section", { class: `block ${block.kind}` }, title ? el("h3", { text: title }) : null,
       ...near.map((n) => el("p", { class: "warning", role: "note", text: `⚠ ${n.message}` })));
     if (block.kind === "cards") {
       section.append(el("div", { class: "cards" }, ...block.cards(answer).map((c) =>
         el("div", { class: "card" }, el("span", { text: c.label }),
           el("strong", { id: c.id, class: c.withheld ? "withheld" : null, text: c.withheld ? WITHHELD : fmt(c.value, c.digits ?? 4) })))));
     } else if (block.kind === "chart") {
-      const canvas = el("canvas", { role: "img", "aria-label": block.title });
+      const canvas = el("canvas", { role: "img", "aria-label": title });
       section.append(el("div", { class: "chart", style: `height:${block.height ? block.height(answer) : 320}px` }, canvas));
       section.dataset.chart = block.id;
       const note = block.text ? block.text(answer) : "";
@@ -501,7 +520,7 @@ function renderAnswer(answer) {
     } else if (block.kind === "table") {
       const cols = typeof block.columns === "function" ? block.columns(answer) : block.columns;
       const rows = block.rows(answer);
-      section.append(el("div", { class: "scroll", tabindex: "0", role: "region", "aria-label": block.title },
+      section.append(el("div", { class: "scroll", tabindex: "0", role: "region", "aria-label": title },
         el("table", { id: block.id }, el("thead", {}, el("tr", {}, ...cols.map((c) => el("th", { scope: "col", text: c.title })))),
           el("tbody", {}, ...rows.map((r) => el("tr", { class: block.flag && block.flag(r) ? "flagged" : null },
             ...cols.map((c) => { const v = c.get(r); return el("td", { text: typeof v === "number" ? fmt(v, c.digits ?? 4) : v === null || v === undefined ? (c.model ? WITHHELD : "") : String(v) }); })))))));
