@@ -96,6 +96,12 @@ CASES = [
     ViewCase("fits", "/v1/fits", "fitModel.wrenmouth_monthly_nested_ces.json", (
         ("fit-observations", lambda a: a["fit"]["observations"], 0),
         ("fit-iterations", lambda a: a["fit"]["iterations"], 0)), 0, 0, "Rye loaf, 800 g"),
+    ViewCase("fitted", "/v1/fitted-comparisons", "fitAndCompare.wrenmouth_monthly_nested_ces.json", (
+        ("fitted-konus", lambda a: a["comparison"]["konus"]["base"], 4),
+        ("fitted-konus-low", lambda a: a["intervals"]["konus"]["base"]["low"], 4),
+        ("fitted-konus-high", lambda a: a["intervals"]["konus"]["base"]["high"], 4),
+        ("fitted-laspeyres-bias", lambda a: a["intervals"]["formulas"][0]["bias_points"]["estimate"],
+         3)), 0, 1, "current price"),
     ViewCase("audits", "/v1/audits", "auditPublishedSeries.wrenmouth_monthly_bulletin.json", (
         ("audit-checked", lambda a: a["checked"], 0),
         ("audit-failed", lambda a: a["failed"], 0)), 1, 0, "Rye loaf, 800 g"),
@@ -552,7 +558,8 @@ def test_a_rule_about_a_whole_row_names_the_row(live_url: str, browser: Any) -> 
 #: The view of each operation whose examples the page lists.
 VIEW_OF = {"compare": ("comparison", "/v1/comparisons"), "indexSeries": ("series", "/v1/index-series"),
            "householdIndices": ("households", "/v1/household-indices"),
-           "fitModel": ("fits", "/v1/fits"), "auditPublishedSeries": ("audits", "/v1/audits")}
+           "fitModel": ("fits", "/v1/fits"), "auditPublishedSeries": ("audits", "/v1/audits"),
+           "fitAndCompare": ("fitted", "/v1/fitted-comparisons")}
 EXAMPLES = sorted(p.name for p in (ROOT / "openapi_examples").glob("*.json")
                   if p.name.split(".")[0] in VIEW_OF)
 

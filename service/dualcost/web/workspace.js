@@ -533,9 +533,9 @@ function renderAnswer(answer) {
   if (rest.length) blocks.push(el("section", { class: "block" }, el("h3", { text: "Notices" }),
     el("ul", { class: "notices" }, ...rest.map((n) => el("li", { text: n.message })))));
   if (answer.caution) blocks.push(el("p", { class: "hint", text: answer.caution }));
-  const downloads = el("div", { class: "row" },
-    el("button", { type: "button", id: "download-json", text: "Download JSON", onclick: () => download("json") }),
-    el("button", { type: "button", id: "download-csv", text: "Download CSV", onclick: () => download("csv").catch(showFailure) }));
+  const offered = state.view.downloads || ["json", "csv"];
+  const downloads = el("div", { class: "row" }, ...offered.map((kind) => el("button", { type: "button",
+    id: `download-${kind}`, text: `Download ${kind.toUpperCase()}`, onclick: () => download(kind).catch(showFailure) })));
   const sens = state.view.sensitivity ? sensitivityBlock(state.view.sensitivity) : null;
   out.replaceChildren(...[el("h2", { text: "Result", tabindex: "-1", id: "result-title" }), downloads, ...blocks, sens].filter(Boolean));
   out.hidden = false;
