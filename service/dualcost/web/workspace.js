@@ -267,7 +267,9 @@ function modelBlock(field, body) {
   const family = getAt(body, `${field.pointer}/family`);
   const families = state.catalogue.families.filter((f) => !field.families || field.families.includes(f.family));
   const select = el("select", { id: "family" });
-  for (const f of families) select.append(el("option", { value: f.family, text: f.family, selected: f.family === family }));
+  for (const f of families) {
+    select.append(el("option", { value: f.family, text: `${f.title.split(":")[0]} (${f.family})`, selected: f.family === family }));
+  }
   select.addEventListener("change", () => {
     commit();
     const start = STARTS[select.value];
