@@ -595,3 +595,31 @@ def test_every_example_round_trips_through_the_form(
     konus = answer["konus"]["base"]
     shown = browser.find_element(By.ID, "konus-base").text
     assert shown == ("not a result" if konus is None else f"{konus:.4f}")
+
+
+def test_the_tree_editor_adds_and_removes_groups(live_url: str, browser: Any) -> None:
+    """A new subgroup of 'transport' takes the ferry pass; removing 'recreation' hands its items
+    to the top group. The service computes the edited tree."""
+    open_view(browser, live_url, "comparison")
+    row = browser.find_element(
+        By.XPATH, "//input[@aria-label='σ of transport']/ancestor::div[@class='tree-row']")
+    row.find_element(By.XPATH, ".//button[text()='+ subgroup']").click()
+    leaves = wait(browser, 10).until(lambda d: d.find_element(
+        By.CSS_SELECTOR, "input[aria-label='items directly in new group']"))
+    leaves.send_keys("ferry_pass")
+    transport = browser.find_element(By.CSS_SELECTOR, "input[aria-label='items directly in transport']")
+    transport.clear()
+    transport.send_keys("bicycle_repair")
+    recreation = browser.find_element(
+        By.XPATH, "//input[@aria-label='σ of recreation']/ancestor::div[@class='tree-row']")
+    recreation.find_element(By.XPATH, ".//button[text()='remove']").click()
+    wait(browser, 10).until(lambda d: not d.find_elements(
+        By.CSS_SELECTOR, "input[aria-label='σ of recreation']"))
+    compute(browser)
+    sent, answer = sent_and_answer(browser, live_url, "/v1/comparisons")
+    tree = sent["model"]["tree"]
+    transport_group = next(g for g in tree["children"] if isinstance(g, dict) and g["name"] == "transport")
+    assert transport_group["children"] == [
+        "bicycle_repair", {"name": "new group", "sigma": 1, "children": ["ferry_pass"]}]
+    assert tree["children"][-2:] == ["harbour_cinema", "lantern_festival"]
+    assert browser.find_element(By.ID, "konus-base").text == f"{answer['konus']['base']:.4f}"
