@@ -623,3 +623,20 @@ def test_the_tree_editor_adds_and_removes_groups(live_url: str, browser: Any) ->
         "bicycle_repair", {"name": "new group", "sigma": 1, "children": ["ferry_pass"]}]
     assert tree["children"][-2:] == ["harbour_cinema", "lantern_festival"]
     assert browser.find_element(By.ID, "konus-base").text == f"{answer['konus']['base']:.4f}"
+
+
+def test_the_services_error_about_an_uploaded_value_names_the_files_row(
+        live_url: str, browser: Any, tmp_path: Path) -> None:
+    """A negative price read from a file: the service refuses it by its JSON pointer; the page
+    names the grid cell and the file's row and column it came from."""
+    open_view(browser, live_url, "series")
+    lines = (ROOT / "docs/examples/wrenmouth_panel.csv").read_text(encoding="utf-8").splitlines()
+    period, item, price, quantity = lines[9].split(",")
+    lines[9] = ",".join([period, item, "-" + price, quantity])
+    upload(browser, tmp_path, "panel.csv", "\n".join(lines))
+    wait(browser, 10).until(lambda d: d.execute_script("return window.dualcost.state.scenario") == "")
+    browser.find_element(By.ID, "compute").click()
+    error = wait(browser, 20).until(lambda d: d.find_element(By.ID, "error")
+                                    if d.find_element(By.ID, "error").is_displayed() else None)
+    assert f"row 2 ({period})" in error.text, error.text
+    assert "(from panel.csv, row 10, column 'price')" in error.text, error.text

@@ -7,6 +7,7 @@
   const C = window.dualcostCharts;
   const { fmt } = window.dualcost;
   const itemId = (x) => (typeof x === "object" ? x.id : x);
+  const esc = (s) => String(s).replaceAll("~", "~0").replaceAll("/", "~1");
   const titleOf = (a, f) => (a.formulas.find((x) => x.formula === f) || {}).title || f;
   const num = (x) => (x === null || x === undefined ? null : x);
   // The weighted formulas of an answer (the registry says which), or all if none is weighted.
@@ -35,8 +36,8 @@
       if (!periods.includes(p)) { periods.push(p); prices.push({}); quantities.push({}); }
       if (!items.some((x) => itemId(x) === i)) items.push(r.label && r.label.text ? { id: i, label: r.label.text } : i);
       const t = periods.indexOf(p);
-      prices[t][i] = n(r.price);
-      if (r.quantity && r.quantity.text !== "") quantities[t][i] = n(r.quantity);
+      prices[t][i] = n(r.price, `/prices/${t}/${esc(i)}`);
+      if (r.quantity && r.quantity.text !== "") quantities[t][i] = n(r.quantity, `/quantities/${t}/${esc(i)}`);
     }
     Object.assign(body, { periods, items, prices });
     if (quantities.some((q) => Object.keys(q).length)) body.quantities = quantities;
@@ -68,17 +69,18 @@
     csv: { columns: "item,base_price,current_price,base_quantity or base_share[,current_quantity]",
       required: ["item", "base_price", "current_price"],
       read(records, body, n) {
-        const ids = records.map((r) => r.item.text);
-        const keyed = (col) => Object.fromEntries(records.filter((r) => r[col] && r[col].text !== "")
-          .map((r) => [r.item.text, n(r[col])]));
+        const keyed = (col, at) => Object.fromEntries(records.filter((r) => r[col] && r[col].text !== "")
+          .map((r) => [r.item.text, n(r[col], `${at}/${esc(r.item.text)}`)]));
         body.items = records.map((r) => (r.label ? { id: r.item.text, label: r.label.text } : r.item.text));
-        body.base = { prices: keyed("base_price") };
-        if (records[0].base_share) { body.base.shares = keyed("base_share"); body.base.expenditure = body.base?.expenditure || 1000; }
-        else body.base.quantities = keyed("base_quantity");
-        body.current = { prices: keyed("current_price") };
-        if (records[0].current_quantity) body.current.quantities = keyed("current_quantity");
+        const income = body.base && body.base.expenditure;
+        body.base = { prices: keyed("base_price", "/base/prices") };
+        if (records[0].base_share) {
+          body.base.shares = keyed("base_share", "/base/shares");
+          body.base.expenditure = income || 1000;
+        } else body.base.quantities = keyed("base_quantity", "/base/quantities");
+        body.current = { prices: keyed("current_price", "/current/prices") };
+        if (records[0].current_quantity) body.current.quantities = keyed("current_quantity", "/current/quantities");
         if (body.model?.family === "nested_ces" || !body.model) body.model = { family: "ces", sigma: 0.7 };
-        void ids;
         return body;
       } },
     fields: [
@@ -276,9 +278,10 @@
     csv: { columns: "household,expenditure,weight,<one share column per item>", required: ["household", "expenditure"],
       read(records, body, n) {
         const items = (body.items || []).map(itemId);
-        body.households = records.map((r) => ({ id: r.household.text, expenditure: n(r.expenditure),
-          ...(r.weight ? { weight: n(r.weight) } : {}),
-          shares: Object.fromEntries(items.filter((i) => r[i]).map((i) => [i, n(r[i])])) }));
+        body.households = records.map((r, k) => ({ id: r.household.text,
+          expenditure: n(r.expenditure, `/households/${k}/expenditure`),
+          ...(r.weight ? { weight: n(r.weight, `/households/${k}/weight`) } : {}),
+          shares: Object.fromEntries(items.filter((i) => r[i]).map((i) => [i, n(r[i], `/households/${k}/shares/${esc(i)}`)])) }));
         return body;
       } },
     note: "Household CSV: the items and prices stay as in the form; each row gives a household's shares of the items by their ids.",
@@ -385,8 +388,8 @@
         for (const r of records) {
           const t = obs.indexOf(r.observation.text);
           const i = items.indexOf(r.item.text);
-          prices[t][i] = n(r.price);
-          spend[t][i] = n(r.expenditure);
+          prices[t][i] = n(r.price, `/prices/${t}/${i}`);
+          spend[t][i] = n(r.expenditure, `/expenditures/${t}/${i}`);
         }
         Object.assign(body, { observations: obs, items, prices, expenditures: spend });
         return body;
@@ -529,8 +532,8 @@
       read(records, body, n) {
         if (!records[0].formula) return readPanel(records, body, n);
         // The decimals each value was published to are read from how it is written (101.2: 1).
-        body.published = records.map((r) => ({ formula: r.formula.text, period: r.period.text,
-          ...(r.series ? { series: r.series.text } : {}), value: n(r.value),
+        body.published = records.map((r, k) => ({ formula: r.formula.text, period: r.period.text,
+          ...(r.series ? { series: r.series.text } : {}), value: n(r.value, `/published/${k}/value`),
           decimals: (r.value.text.split(".")[1] || "").length }));
         return body;
       } },

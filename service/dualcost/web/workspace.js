@@ -84,7 +84,7 @@ function readNumber(text, where) {
 
 // ---- the state: one view, its scenario (the request body) and the places of its inputs --------
 const state = { views: [], view: null, body: null, places: [], answer: null, catalogue: null,
-  scenario: "" };
+  scenario: "", origin: new Map() };
 
 // Where the service asks for an API key, the one typed in the header goes with every /v1 request
 // (kept for this tab only, in sessionStorage).
@@ -136,14 +136,20 @@ async function loadScenario(id) {
   else body = state.catalogue.examples[view.operationId][id.slice("example:".length)].value;
   state.body = clone(body);
   state.scenario = id;
+  state.origin = new Map();
   renderForm();
 }
 
 // ---- the form ------------------------------------------------------------------------------
 function place(entry) {
   state.places.push(entry);
+  // A value typed over one read from a file no longer comes from the file.
+  entry.input.addEventListener("input", () => state.origin.delete(entry.pointer));
   return entry.input;
 }
+
+// Where a value came from in an uploaded file, said beside the grid's own row and column.
+const fromFile = (pointer) => (state.origin.has(pointer) ? ` (from ${state.origin.get(pointer)})` : "");
 
 function fieldInput(field, body, prefix) {
   const value = getAt(body, field.pointer);
@@ -467,7 +473,7 @@ function showProblem(problem) {
     } else if (p) {
       p.input.setAttribute("aria-invalid", "true");
       first = first || p.input;
-      lines.push(`${p.where}: ${e.detail}`);
+      lines.push(`${p.where}${fromFile(p.pointer)}: ${e.detail}`);
     } else {
       lines.push(`In the request JSON at ${e.pointer}: ${e.detail}`);
     }
@@ -588,8 +594,16 @@ async function uploadCsv(input) {
   for (const col of need) {
     if (!header.includes(col)) throw new Located(`${file.name}, row 1: the header has no column '${col}'.`);
   }
-  const num = (cell) => readNumber(cell.text, cell.where);
+  // number(cell, pointer): the cell's number; with the pointer it will have in the request, the
+  // service's errors about it also name the file's row and column.
+  const origin = new Map();
+  const num = (cell, pointer) => {
+    const value = readNumber(cell.text, cell.where);
+    if (pointer) origin.set(pointer, cell.where);
+    return value;
+  };
   state.body = state.view.csv.read(records, clone(state.body), num);
+  state.origin = origin;
   state.scenario = "";
   renderForm();
   showError([]);
