@@ -640,3 +640,16 @@ def test_the_services_error_about_an_uploaded_value_names_the_files_row(
                                     if d.find_element(By.ID, "error").is_displayed() else None)
     assert f"row 2 ({period})" in error.text, error.text
     assert "(from panel.csv, row 10, column 'price')" in error.text, error.text
+
+
+def test_a_warning_that_changes_a_figure_sits_beside_it(live_url: str, browser: Any) -> None:
+    """With no current quantities the formula indices use the model's demands: the notice saying
+    so is inside the bias chart's block, not only in the list at the end."""
+    open_view(browser, live_url, "comparison")
+    compute(browser)
+    block = browser.find_element(By.XPATH, "//section[@data-chart='bias-chart']")
+    warnings = [w.text for w in block.find_elements(By.CSS_SELECTOR, ".warning")]
+    demo = httpx.get(live_url + "/v1/demo").json()["result"]
+    expected = next(n["message"] for n in demo["notices"]
+                    if n["code"] == "current_quantities_from_model")
+    assert any(expected in w for w in warnings), warnings

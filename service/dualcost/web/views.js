@@ -191,7 +191,15 @@
     },
   };
 
-  const seriesOf = (a) => a.formulas.slice(0, 7);
+  // Seven lines stay readable (the palette's size): the formulas ticked, else the usual ones.
+  const USUAL = ["laspeyres", "paasche", "fisher", "tornqvist", "lowe", "young", "geometric_laspeyres"];
+  const seriesOf = (a) => {
+    const asked = window.dualcost.state.sent && window.dualcost.state.sent.formulas;
+    const pick = asked ? a.formulas : a.formulas.filter((f) => USUAL.includes(f.formula));
+    return (pick.length ? pick : a.formulas).slice(0, 7);
+  };
+  const chartNote = (a) => (seriesOf(a).length < a.formulas.length
+    ? `The chart shows ${seriesOf(a).map((f) => f.title).join(", ")}; tick formulas above to choose others (all are in the tables).` : "");
   const series = {
     id: "series",
     title: "Index series",
@@ -222,7 +230,7 @@
           { id: "series-annual-bias", label: "Laspeyres bias, percentage points per year", value: annual ? annual.bias_pp_per_year : null, digits: 3 },
         ];
       } },
-      { kind: "chart", id: "levels-chart", title: "Fixed-base series and the Konüs band",
+      { kind: "chart", id: "levels-chart", title: "Fixed-base series and the Konüs band", text: chartNote,
         notices: ["quantities_from_model", "weights_assumed"],
         chart: (a) => {
           const k = a.konus ? a.konus.fixed_base : null;
@@ -235,7 +243,8 @@
       { kind: "chart", id: "bias-series-chart", title: "Bias per period against the Konüs series (index points)",
         when: (a) => a.bias && a.bias.length,
         chart: (a) => {
-          const rows = a.bias.filter((b) => b.kind === "fixed_base").slice(0, 7);
+          const shown = new Set(seriesOf(a).map((f) => f.formula));
+          const rows = a.bias.filter((b) => b.kind === "fixed_base" && shown.has(b.series)).slice(0, 7);
           return C.lineConfig({ labels: a.periods, xTitle: "period", yTitle: `bias, ${a.scale.bias}`, zeroAt: 0,
             datasets: rows.map((b) => ({ label: `${titleOf(a, b.series)} (vs Konüs ${b.compared_with})`, data: b.points })) });
         } },
