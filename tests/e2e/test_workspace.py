@@ -353,6 +353,8 @@ def test_a_comparison_csv_fills_the_grid_and_computes(
            "flat_rent,Flat rent,610,634,1\n")
     wait(browser, 10).until(
         lambda d: len(d.find_elements(By.CSS_SELECTOR, ".grid tbody tr")) == 3)
+    # The demo's tree names other items: the page says what it put in its place.
+    assert "CES with σ 0.7" in browser.find_element(By.ID, "status").text
     compute(browser)
     sent, answer = sent_and_answer(browser, live_url, "/v1/comparisons")
     assert sent["current"]["prices"] == {"rye_loaf": 2.52, "ferry_pass": 41, "flat_rent": 634}

@@ -80,7 +80,14 @@
         } else body.base.quantities = keyed("base_quantity", "/base/quantities");
         body.current = { prices: keyed("current_price", "/current/prices") };
         if (records[0].current_quantity) body.current.quantities = keyed("current_quantity", "/current/quantities");
-        if (body.model?.family === "nested_ces" || !body.model) body.model = { family: "ces", sigma: 0.7 };
+        const ids = records.map((r) => r.item.text);
+        const tree = body.model && body.model.tree;
+        const leaves = (g) => (typeof g === "string" ? [g] : (g.children || []).flatMap(leaves));
+        if (!body.model || (tree && leaves(tree).sort().join() !== ids.slice().sort().join())) {
+          body.model = { family: "ces", sigma: 0.7 };
+          window.dualcost.say("The file's items are not the tree's: the model is now CES with σ 0.7. "
+            + "Choose the family and its parameters (or build the tree) above.");
+        }
         return body;
       } },
     fields: [

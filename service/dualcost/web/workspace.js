@@ -426,7 +426,7 @@ async function compute() {
     showError(problems.map((p) => p.message), problems[0].place.input);
     return;
   }
-  $("status").textContent = "Computing…";
+  say("Computing…");
   const response = await fetch(state.view.path, { method: "POST",
     headers: headers("application/json", true), body: JSON.stringify(body) });
   const answer = await response.json();
@@ -687,4 +687,7 @@ async function boot(views) {
   await showView(location.hash.slice(1) || views[0].id);
 }
 
-window.dualcost = { boot, fmt, el, getAt, WITHHELD, state };
+// A plain line under the form about something the page did (not an error).
+const say = (text) => { $("status").textContent = text; };
+
+window.dualcost = { boot, fmt, el, getAt, WITHHELD, state, say };
