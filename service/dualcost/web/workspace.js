@@ -497,45 +497,58 @@ const showFailure = (e) => { $("status").textContent = ""; showError([String(e.m
 const fmt = (x, d = 4) => (x === null || x === undefined ? "" : Number(x).toFixed(d));
 const WITHHELD = "not a result";
 
+const cellText = (v, c) => (typeof v === "number" ? fmt(v, c.digits ?? 4)
+  : v === null || v === undefined ? (c.model ? WITHHELD : "") : String(v));
+
+// One drawer per kind of result block; each fills its section and may return a function to
+// run once the section is on the page (a chart needs its size). A new kind is one more entry.
+const BLOCKS = {
+  cards(section, block, answer) {
+    section.append(el("div", { class: "cards" }, ...block.cards(answer).map((c) =>
+      el("div", { class: "card" }, el("span", { text: c.label }), el("strong", { id: c.id,
+        class: c.withheld ? "withheld" : null, text: c.withheld ? WITHHELD : fmt(c.value, c.digits ?? 4) })))));
+  },
+  chart(section, block, answer, title) {
+    const canvas = el("canvas", { role: "img", "aria-label": title });
+    section.append(el("div", { class: "chart", style: `height:${block.height ? block.height(answer) : 320}px` }, canvas));
+    section.dataset.chart = block.id;
+    const note = block.text ? block.text(answer) : "";
+    if (note) section.append(el("p", { class: "hint", text: note }));
+    return () => window.dualcostCharts.drawChart(canvas, block.chart(answer));
+  },
+  table(section, block, answer, title) {
+    const cols = typeof block.columns === "function" ? block.columns(answer) : block.columns;
+    const head = el("thead", {}, el("tr", {}, ...cols.map((c) => el("th", { scope: "col", text: c.title }))));
+    const body = el("tbody", {}, ...block.rows(answer).map((r) => el("tr",
+      { class: block.flag && block.flag(r) ? "flagged" : null }, ...cols.map((c) => el("td", { text: cellText(c.get(r), c) })))));
+    section.append(el("div", { class: "scroll", tabindex: "0", role: "region", "aria-label": title },
+      el("table", { id: block.id }, head, body)));
+  },
+  text(section, block, answer) {
+    section.append(el("p", { text: block.text(answer) }));
+  },
+};
+
+// A block's section: its title, the notices that change its meaning, then what its kind draws.
+function blockSection(block, answer, used) {
+  const near = (answer.notices || []).filter((n) => (block.notices || []).includes(n.code));
+  near.forEach((n) => used.add(n));
+  const title = typeof block.title === "function" ? block.title(answer) : block.title;
+  const section = el("section", { class: `block ${block.kind}` }, title ? el("h3", { text: title }) : null,
+    ...near.map((n) => el("p", { class: "warning", role: "note", text: `⚠ ${n.message}` })));
+  section._draw = BLOCKS[block.kind](section, block, answer, title);
+  return section;
+}
+
 function renderAnswer(answer) {
   const out = $("result");
-  const { colour, drawChart } = window.dualcostCharts;
   const used = new Set();
   const blocks = [];
   const validity = state.view.validity ? state.view.validity(answer) : null;
   if (validity) blocks.push(el("div", { id: "validity", class: "blocking", role: "alert" },
     el("strong", { text: validity.title }), el("ul", {}, ...validity.reasons.map((r) => el("li", { text: r })))));
   for (const block of state.view.results) {
-    if (block.when && !block.when(answer)) continue;
-    const near = (answer.notices || []).filter((n) => (block.notices || []).includes(n.code));
-    near.forEach((n) => used.add(n));
-    const title = typeof block.title === "function" ? block.title(answer) : block.title;
-    const section = el("section", { class: `block ${block.kind}` }, title ? el("h3", { text: title }) : null,
-      ...near.map((n) => el("p", { class: "warning", role: "note", text: `⚠ ${n.message}` })));
-    if (block.kind === "cards") {
-      section.append(el("div", { class: "cards" }, ...block.cards(answer).map((c) =>
-        el("div", { class: "card" }, el("span", { text: c.label }),
-          el("strong", { id: c.id, class: c.withheld ? "withheld" : null, text: c.withheld ? WITHHELD : fmt(c.value, c.digits ?? 4) })))));
-    } else if (block.kind === "chart") {
-      const canvas = el("canvas", { role: "img", "aria-label": title });
-      section.append(el("div", { class: "chart", style: `height:${block.height ? block.height(answer) : 320}px` }, canvas));
-      section.dataset.chart = block.id;
-      const note = block.text ? block.text(answer) : "";
-      if (note) section.append(el("p", { class: "hint", text: note }));
-      blocks.push(section);
-      section._draw = () => drawChart(canvas, block.chart(answer, colour));
-      continue;
-    } else if (block.kind === "table") {
-      const cols = typeof block.columns === "function" ? block.columns(answer) : block.columns;
-      const rows = block.rows(answer);
-      section.append(el("div", { class: "scroll", tabindex: "0", role: "region", "aria-label": title },
-        el("table", { id: block.id }, el("thead", {}, el("tr", {}, ...cols.map((c) => el("th", { scope: "col", text: c.title })))),
-          el("tbody", {}, ...rows.map((r) => el("tr", { class: block.flag && block.flag(r) ? "flagged" : null },
-            ...cols.map((c) => { const v = c.get(r); return el("td", { text: typeof v === "number" ? fmt(v, c.digits ?? 4) : v === null || v === undefined ? (c.model ? WITHHELD : "") : String(v) }); })))))));
-    } else if (block.kind === "text") {
-      section.append(el("p", { text: block.text(answer) }));
-    }
-    blocks.push(section);
+    if (!block.when || block.when(answer)) blocks.push(blockSection(block, answer, used));
   }
   const rest = (answer.notices || []).filter((n) => !used.has(n));
   if (rest.length) blocks.push(el("section", { class: "block" }, el("h3", { text: "Notices" }),
@@ -638,7 +651,7 @@ function sensitivityBlock(spec) {
     const points = spec.points(state.sent, kind.value);
     if (!points.length) { table.replaceChildren(el("p", { text: "This family has no single σ to vary; compare families instead." })); return; }
     $("status").textContent = "Computing the sensitivity…";
-    const rows = await SWEEP.byComparisons(state.view.path, state.sent, points);
+    const rows = await SWEEP[spec.source || "byComparisons"](state.view.path, state.sent, points);
     $("status").textContent = "";
     window.dualcostCharts.drawChart(canvas, spec.chart(rows, kind.value));
     table.replaceChildren(spec.table(rows));
