@@ -211,7 +211,9 @@ def test_each_view_computes_its_example_and_shows_the_apis_numbers(
         "return performance.getEntries().map(e => e.name).filter(n => /^https?:/.test(n))")
     host = urlsplit(live_url).netloc
     assert entries and all(urlsplit(n).netloc == host for n in entries), entries
-    assert not console_errors(browser)
+    assert not console_errors(browser)  # a refusal under the page's policy would show here
+    policy = httpx.get(live_url + "/").headers["content-security-policy"]
+    assert "default-src 'self'" in policy and "connect-src 'self'" in policy
     screenshot(browser, case.view)
 
 
@@ -285,6 +287,11 @@ def test_the_page_is_usable_from_the_keyboard(live_url: str, browser: Any) -> No
     assert unlabelled == []
     browser.execute_script("document.getElementById('compute').focus()")
     browser.switch_to.active_element.send_keys(Keys.ENTER)
+    wait(browser, 60).until(lambda d: d.find_element(By.ID, "result").is_displayed())
+    # Enter in a field computes too (the form's submit).
+    browser.execute_script("window.dualcost.state.answer = null; "
+                           "document.getElementById('result').hidden = true")
+    browser.find_element(By.CSS_SELECTOR, ".grid input").send_keys(Keys.ENTER)
     wait(browser, 60).until(lambda d: d.find_element(By.ID, "result").is_displayed())
 
 

@@ -355,7 +355,7 @@ function renderForm() {
       try { state.body = JSON.parse(json.value); renderForm(); } catch (e) { showError([`The request JSON: ${e.message}`]); }
     } })));
   parts.push(el("div", { class: "row actions" },
-    el("button", { type: "button", id: "compute", class: "primary", text: view.action || "Compute", onclick: () => compute().catch(showFailure) })));
+    el("button", { type: "submit", id: "compute", class: "primary", text: view.action || "Compute" })));
   form.replaceChildren(...parts.filter(Boolean));
 }
 
@@ -680,6 +680,11 @@ async function showView(id) {
 
 async function boot(views) {
   state.views = views;
+  // Enter in any field, or the button, computes (the page's policy allows no inline handlers).
+  $("form").addEventListener("submit", (event) => {
+    event.preventDefault();
+    compute().catch(showFailure);
+  });
   const key = $("api-key");
   key.value = sessionStorage.getItem("dualcost-api-key") || "";
   key.addEventListener("change", () => {
