@@ -167,9 +167,7 @@ function fieldInput(field, body, prefix) {
   const label = el("label", { for: id, text: field.label });
   const wrap = el("div", { class: "field" }, label, input,
     field.hint ? el("small", { text: field.hint }) : null);
-  place({ pointer: field.pointer, kind: field.kind, optional: field.optional, input,
-    where: `${field.label}`, onchange: field.restructure });
-  if (field.restructure) input.addEventListener("change", () => restructure(field.restructure));
+  place({ pointer: field.pointer, kind: field.kind, optional: field.optional, input, where: field.label });
   return wrap;
 }
 
@@ -357,11 +355,6 @@ function renderForm() {
   parts.push(el("div", { class: "row actions" },
     el("button", { type: "submit", id: "compute", class: "primary", text: view.action || "Compute" })));
   form.replaceChildren(...parts.filter(Boolean));
-}
-
-function restructure() {
-  commit();
-  renderForm();
 }
 
 // Read every input into the body; collect the located problems instead of stopping at the first.
