@@ -24,6 +24,11 @@ from .operations import jobs
 from .routes import ROUTERS
 
 WEB_DIR = Path(__file__).resolve().parents[1] / "web"
+#: The page's scripts and styles come from the service (inline style attributes: chart sizes),
+#: its requests go to the service, downloads are blob: URLs it makes itself.
+PAGE_POLICY = ("default-src 'self'; script-src 'self'; style-src 'self' 'unsafe-inline'; "
+               "img-src 'self' data: blob:; connect-src 'self'; object-src 'none'; "
+               "frame-ancestors 'self'; base-uri 'self'; form-action 'none'")
 #: The interpreter's thread switch interval in a service process (see ``_lifespan``).
 GIL_SWITCH_SECONDS = 0.001
 
@@ -128,8 +133,10 @@ def create_app(settings: Settings | None = None) -> FastAPI:
     app.mount("/static", StaticFiles(directory=WEB_DIR), name="static")
 
     @app.get("/", include_in_schema=False)
-    def dashboard() -> FileResponse:
-        """The dashboard page: paste prices and a budget, see the indices, bias and items."""
-        return FileResponse(WEB_DIR / "index.html", media_type="text/html")
+    def workspace() -> FileResponse:
+        """The workspace page (web/): a view per operation, its charts and tables; the browser
+        may load nothing but the service's own URLs (PAGE_POLICY)."""
+        return FileResponse(WEB_DIR / "index.html", media_type="text/html",
+                            headers={"Content-Security-Policy": PAGE_POLICY})
 
     return app

@@ -1,0 +1,664 @@
+"""The workspace page at / end to end, in headless Chromium from Debian's packages.
+
+The service runs on loopback in a thread (``live_url``); Selenium drives /usr/bin/chromium
+through /usr/bin/chromedriver (nothing is downloaded), with every host name but 127.0.0.1 mapped
+to "not found" and the network log read back. Each view is opened at a laptop's viewport
+(1366x900) and a phone's (390x844): it loads the service's own demo or example, computes, and
+must show the numbers the JSON API answers to the same request; a bad cell gives a message naming
+its row and column and the rule; the page is never wider than the screen; nothing is fetched from
+another host. Full-page screenshots of every view are kept in test-artifacts/workspace/ (the path
+is printed).
+
+The reference numbers are the service's own JSON answers: this test checks the page against the
+API, not the economics (tests/core and tests/api do that against published sources).
+"""
+
+from __future__ import annotations
+
+import base64
+import json
+import time
+from collections.abc import Iterator
+from dataclasses import dataclass
+from pathlib import Path
+from typing import Any
+from urllib.parse import urlsplit
+
+import httpx
+import pytest
+
+from tests.conftest import ROOT, load_example
+from tests.e2e.test_api_docs import (
+    CHROMEDRIVER,
+    CHROMIUM,
+    OFFLINE,
+    assert_nothing_left_the_machine,
+    console_errors,
+    requests_made,
+)
+
+webdriver = pytest.importorskip("selenium.webdriver")
+from selenium.common.exceptions import StaleElementReferenceException  # noqa: E402
+from selenium.webdriver.chrome.service import Service  # noqa: E402
+from selenium.webdriver.common.by import By  # noqa: E402
+from selenium.webdriver.common.keys import Keys  # noqa: E402
+from selenium.webdriver.support.ui import WebDriverWait  # noqa: E402
+
+ARTIFACTS = ROOT / "test-artifacts" / "workspace"
+SIZES = {"laptop": (1366, 900), "phone": (390, 844)}
+
+
+@dataclass(frozen=True)
+class ViewCase:
+    """One view: the request it starts from, where it sends it, the figures it shows (element
+    id, how to read the same figure from the JSON answer, decimals) and a cell to spoil (grid
+    number, column number, the column's title as the page names it)."""
+
+    view: str
+    path: str
+    example: str
+    figures: tuple[tuple[str, Any, int], ...]
+    grid: int
+    column: int
+    column_title: str
+
+
+def _formula(answer: dict[str, Any], name: str) -> dict[str, Any]:
+    return next(f for f in answer["formulas"] if f["formula"] == name)
+
+
+def _konus_summary(answer: dict[str, Any]) -> dict[str, Any]:
+    return next(i for i in answer["summary"][0]["indices"] if i["index"] == "konus")
+
+
+def _annual(answer: dict[str, Any]) -> float:
+    return next(s["bias_pp_per_year"] for s in answer["annual_bias"]["by_series"]
+                if s["series"] == "laspeyres" and s["kind"] == "fixed_base")
+
+
+CASES = [
+    ViewCase("comparison", "/v1/comparisons", "compare.wrenmouth_nested_ces.json", (
+        ("konus-base", lambda a: a["konus"]["base"], 4),
+        ("konus-current", lambda a: a["konus"]["current"], 4),
+        ("laspeyres", lambda a: _formula(a, "laspeyres")["value"], 4),
+        ("bias", lambda a: a["laspeyres_gap_points"], 3),
+        ("cv", lambda a: a["compensation"]["compensating_variation"], 2),
+        ("ev", lambda a: a["compensation"]["equivalent_variation"], 2)), 0, 1, "current price"),
+    ViewCase("series", "/v1/index-series", "indexSeries.wrenmouth_monthly_ces.json", (
+        ("series-konus-last", lambda a: a["konus"]["fixed_base"]["base"][-1], 3),
+        ("series-laspeyres-last", lambda a: _formula(a, "laspeyres")["fixed_base"][-1], 3),
+        ("series-annual-bias", _annual, 3)), 0, 0, "Rye loaf, 800 g"),
+    ViewCase("households", "/v1/household-indices", "householdIndices.wrenmouth_deciles_ces.json", (
+        ("hh-konus-democratic", lambda a: _konus_summary(a)["democratic"], 4),
+        ("hh-konus-plutocratic", lambda a: _konus_summary(a)["plutocratic"], 4),
+        ("hh-cv-percent", lambda a: a["summary"][0]["cv_percent_of_income"], 2)), 0, 1,
+        "current price"),
+    ViewCase("fits", "/v1/fits", "fitModel.wrenmouth_monthly_nested_ces.json", (
+        ("fit-observations", lambda a: a["fit"]["observations"], 0),
+        ("fit-iterations", lambda a: a["fit"]["iterations"], 0)), 0, 0, "Rye loaf, 800 g"),
+    ViewCase("fitted", "/v1/fitted-comparisons", "fitAndCompare.wrenmouth_monthly_nested_ces.json", (
+        ("fitted-konus", lambda a: a["comparison"]["konus"]["base"], 4),
+        ("fitted-konus-low", lambda a: a["intervals"]["konus"]["base"]["low"], 4),
+        ("fitted-konus-high", lambda a: a["intervals"]["konus"]["base"]["high"], 4),
+        ("fitted-laspeyres-bias", lambda a: a["intervals"]["formulas"][0]["bias_points"]["estimate"],
+         3)), 0, 1, "current price"),
+    ViewCase("audits", "/v1/audits", "auditPublishedSeries.wrenmouth_monthly_bulletin.json", (
+        ("audit-checked", lambda a: a["checked"], 0),
+        ("audit-failed", lambda a: a["failed"], 0)), 1, 0, "Rye loaf, 800 g"),
+]
+IDS = [c.view for c in CASES]
+
+
+@pytest.fixture(scope="module", params=list(SIZES))
+def browser(request: pytest.FixtureRequest, tmp_path_factory: pytest.TempPathFactory) -> Iterator[Any]:
+    options = webdriver.ChromeOptions()
+    options.binary_location = CHROMIUM
+    width, height = SIZES[request.param]
+    for flag in ("--headless=new", "--no-sandbox", "--disable-gpu", "--disable-quic",
+                 "--no-first-run", "--disable-background-networking",
+                 "--disable-component-update", "--disable-sync", "--disable-extensions",
+                 f"--window-size={width},{height}", OFFLINE):
+        options.add_argument(flag)
+    options.set_capability("goog:loggingPrefs", {"performance": "ALL", "browser": "ALL"})
+    driver = webdriver.Chrome(service=Service(executable_path=CHROMEDRIVER), options=options)
+    driver.execute_cdp_cmd("Emulation.setDeviceMetricsOverride", {
+        "width": width, "height": height, "deviceScaleFactor": 1,
+        "mobile": request.param == "phone"})
+    downloads = tmp_path_factory.mktemp(f"downloads-{request.param}")
+    driver.execute_cdp_cmd("Browser.setDownloadBehavior",
+                           {"behavior": "allow", "downloadPath": str(downloads)})
+    driver.size_name = request.param
+    driver.downloads = downloads
+    try:
+        yield driver
+    finally:
+        driver.quit()
+
+
+def wait(browser: Any, seconds: float) -> Any:
+    """A wait that reads again an element the page has just redrawn."""
+    return WebDriverWait(browser, seconds, ignored_exceptions=(StaleElementReferenceException,))
+
+
+def open_view(browser: Any, live_url: str, view: str) -> None:
+    browser.get("about:blank")
+    browser.get_log("performance")
+    browser.get_log("browser")
+    browser.get(f"{live_url}/#{view}")
+    wait(browser, 20).until(lambda d: d.find_elements(By.ID, "compute")
+                                     and d.find_elements(By.CSS_SELECTOR, ".grid input"))
+
+
+def compute(browser: Any) -> Any:
+    browser.find_element(By.ID, "compute").click()
+    return wait(browser, 60).until(
+        lambda d: d.find_element(By.ID, "result") if d.find_element(By.ID, "result").is_displayed()
+        else (d.find_element(By.ID, "error").is_displayed() and pytest.fail(
+            d.find_element(By.ID, "error").text)))
+
+
+def page_width(browser: Any) -> tuple[int, int]:
+    return browser.execute_script(
+        "return [document.documentElement.scrollWidth, window.innerWidth]")
+
+
+def in_view(browser: Any, element_id: str) -> bool:
+    return bool(browser.execute_script("""
+        const r = document.getElementById(arguments[0]).getBoundingClientRect();
+        return r.top < window.innerHeight && r.bottom > 0;""", element_id))
+
+
+def screenshot(browser: Any, name: str) -> Path:
+    """The whole page, not just the viewport, as a PNG in test-artifacts/workspace/: the
+    viewport is made as tall as the page for the picture (charts redraw at the new size), then
+    put back."""
+    width, height = SIZES[browser.size_name]
+    full = int(browser.execute_cdp_cmd("Page.getLayoutMetrics", {})["cssContentSize"]["height"])
+    metrics = {"width": width, "deviceScaleFactor": 1, "mobile": browser.size_name == "phone"}
+    browser.execute_cdp_cmd("Emulation.setDeviceMetricsOverride", {**metrics, "height": full})
+    time.sleep(0.5)
+    shot = browser.execute_cdp_cmd("Page.captureScreenshot", {"format": "png"})
+    browser.execute_cdp_cmd("Emulation.setDeviceMetricsOverride", {**metrics, "height": height})
+    ARTIFACTS.mkdir(parents=True, exist_ok=True)
+    path = ARTIFACTS / f"{name}-{browser.size_name}.png"
+    path.write_bytes(base64.b64decode(shot["data"]))
+    print(f"screenshot: {path}")
+    return path
+
+
+@pytest.mark.parametrize("case", CASES, ids=IDS)
+def test_each_view_computes_its_example_and_shows_the_apis_numbers(
+        live_url: str, browser: Any, case: ViewCase) -> None:
+    open_view(browser, live_url, case.view)
+    compute(browser)
+    assert in_view(browser, "result"), "the result was not scrolled into view"
+    sent = browser.execute_script("return window.dualcost.state.sent")
+    # The form gives back the example as the service ships it: nothing added, nothing lost.
+    expected = load_example(case.example)
+    assert sent == expected
+    answer = httpx.post(live_url + case.path, json=expected, timeout=60).json()
+    for element_id, read, digits in case.figures:
+        shown = browser.find_element(By.ID, element_id).text
+        assert shown == f"{read(answer):.{digits}f}", element_id
+    charts = browser.execute_script(
+        "return [...document.querySelectorAll('#result canvas')].filter("
+        "c => window.Chart.getChart(c)).length")
+    assert charts >= 1
+    width, viewport = page_width(browser)
+    assert width <= viewport, f"the page is {width}px wide in a {viewport}px viewport"
+    assert_nothing_left_the_machine(requests_made(browser), live_url)
+    entries = browser.execute_script(
+        "return performance.getEntries().map(e => e.name).filter(n => /^https?:/.test(n))")
+    host = urlsplit(live_url).netloc
+    assert entries and all(urlsplit(n).netloc == host for n in entries), entries
+    assert not console_errors(browser)  # a refusal under the page's policy would show here
+    policy = httpx.get(live_url + "/").headers["content-security-policy"]
+    assert "default-src 'self'" in policy and "connect-src 'self'" in policy
+    screenshot(browser, case.view)
+
+
+@pytest.mark.parametrize("case", CASES, ids=IDS)
+def test_each_view_names_the_row_and_column_of_a_bad_cell(
+        live_url: str, browser: Any, case: ViewCase) -> None:
+    open_view(browser, live_url, case.view)
+    grid = browser.find_elements(By.CSS_SELECTOR, ".grid")[case.grid]
+    cell = grid.find_elements(By.CSS_SELECTOR, "tbody tr")[0].find_elements(
+        By.CSS_SELECTOR, "input")[case.column]
+    # A decimal comma, caught in the page with a plain message.
+    cell.clear()
+    cell.send_keys("2,5")
+    browser.find_element(By.ID, "compute").click()
+    error = wait(browser, 20).until(lambda d: d.find_element(By.ID, "error")
+                                             if d.find_element(By.ID, "error").is_displayed() else None)
+    assert "row 1" in error.text and f"'{case.column_title}'" in error.text
+    assert "decimal comma" in error.text and "2.5" in error.text
+    assert cell.get_attribute("aria-invalid") == "true"
+    assert in_view(browser, "error")
+    # A negative price, refused by the service, shown at the cell the person typed it in.
+    cell.clear()
+    cell.send_keys("-2.5")
+    browser.find_element(By.ID, "compute").click()
+    wait(browser, 30).until(lambda d: "-2,5" not in d.find_element(By.ID, "error").text
+                                     and "decimal comma" not in d.find_element(By.ID, "error").text
+                                     and d.find_element(By.ID, "error").is_displayed())
+    text = browser.find_element(By.ID, "error").text
+    assert "row 1" in text and f"'{case.column_title}'" in text, text
+    assert "greater than" in text or "positive" in text, text
+    assert cell.get_attribute("aria-invalid") == "true"
+    assert not browser.find_element(By.ID, "result").is_displayed()
+    width, viewport = page_width(browser)
+    assert width <= viewport
+    screenshot(browser, f"{case.view}-error")
+
+
+def test_the_demo_is_the_same_as_get_v1_demo(live_url: str, browser: Any) -> None:
+    """'Wrenmouth demo' sends exactly GET /v1/demo's request and shows its answer's figures."""
+    open_view(browser, live_url, "comparison")
+    compute(browser)
+    demo = httpx.get(live_url + "/v1/demo").json()
+    assert browser.execute_script("return window.dualcost.state.sent") == demo["request"]
+    assert browser.find_element(By.ID, "konus-base").text == f"{demo['result']['konus']['base']:.4f}"
+
+
+def test_the_sensitivity_comes_from_the_service(live_url: str, browser: Any) -> None:
+    """Each point of the σ control is the service's comparison at that point: the tree's σ
+    scaled by 1 is the demo itself."""
+    open_view(browser, live_url, "comparison")
+    compute(browser)
+    browser.find_element(By.ID, "sweep").click()
+    rows = wait(browser, 120).until(
+        lambda d: d.find_elements(By.CSS_SELECTOR, "#sweep-values tbody tr"))
+    by_point = {r.find_elements(By.TAG_NAME, "td")[0].text: r for r in rows}
+    assert "×1" in by_point and len(rows) == 6
+    demo = httpx.get(live_url + "/v1/demo").json()["result"]
+    cells = by_point["×1"].find_elements(By.TAG_NAME, "td")
+    assert cells[1].text == f"{demo['konus']['base']:.4f}"
+    assert cells[2].text == f"{demo['laspeyres_gap_points']:.3f}"
+    assert page_width(browser)[0] <= page_width(browser)[1]
+    screenshot(browser, "comparison-sensitivity")
+
+
+def test_the_page_is_usable_from_the_keyboard(live_url: str, browser: Any) -> None:
+    """Every control has a label; Enter on the focused button computes."""
+    open_view(browser, live_url, "series")
+    unlabelled = browser.execute_script("""
+        return [...document.querySelectorAll('input, select, textarea')].filter(i =>
+          !(i.labels && i.labels.length) && !i.getAttribute('aria-label')).map(i => i.outerHTML)""")
+    assert unlabelled == []
+    browser.execute_script("document.getElementById('compute').focus()")
+    browser.switch_to.active_element.send_keys(Keys.ENTER)
+    wait(browser, 60).until(lambda d: d.find_element(By.ID, "result").is_displayed())
+    # Enter in a field computes too (the form's submit).
+    browser.execute_script("window.dualcost.state.answer = null; "
+                           "document.getElementById('result').hidden = true")
+    browser.find_element(By.CSS_SELECTOR, ".grid input").send_keys(Keys.ENTER)
+    wait(browser, 60).until(lambda d: d.find_element(By.ID, "result").is_displayed())
+
+
+def test_a_model_outside_its_regular_region_is_flagged_beside_its_figures(
+        live_url: str, browser: Any) -> None:
+    """Translog with σ 3 far from its base point (the transit price more than quadrupled): a
+    blocking warning names the item and the model's figures read "not a result"; Laspeyres,
+    computed by hand from the shares, stays."""
+    body = {"items": [{"id": "bread", "label": "Rye loaf"}, {"id": "transit", "label": "Transit pass"},
+                      {"id": "heating", "label": "Heating"}],
+            "base": {"prices": {"bread": 2.40, "transit": 9, "heating": 38},
+                     "shares": {"bread": 0.3, "transit": 0.3, "heating": 0.4}, "expenditure": 100},
+            "current": {"prices": {"bread": 2.52, "transit": 40, "heating": 41}},
+            "model": {"family": "translog", "sigma": 3}}
+    open_view(browser, live_url, "comparison")
+    browser.execute_script("document.getElementById('request-json').value = arguments[0]",
+                           json.dumps(body))
+    browser.execute_script("document.querySelector('details.advanced').open = true")
+    browser.find_element(By.XPATH, "//button[text()='Use this JSON']").click()
+    browser.find_element(By.ID, "compute").click()
+    warning = wait(browser, 30).until(lambda d: d.find_elements(By.ID, "validity"))[0]
+    assert "not results" in warning.text and "Transit pass (transit)" in warning.text
+    for key in ("konus-base", "bias", "cv"):
+        assert browser.find_element(By.ID, key).text == "not a result"
+    lasp = 0.3 * 2.52 / 2.40 + 0.3 * 40 / 9 + 0.4 * 41 / 38
+    assert browser.find_element(By.ID, "laspeyres").text == f"{lasp:.4f}"
+
+
+def test_results_download_as_json_and_csv(live_url: str, browser: Any) -> None:
+    """The JSON download is the answer; the CSV download is the service's CSV answer."""
+    open_view(browser, live_url, "series")
+    compute(browser)
+    for kind in ("json", "csv"):
+        target = browser.downloads / f"series.{kind}"
+        target.unlink(missing_ok=True)
+        browser.find_element(By.ID, f"download-{kind}").click()
+        deadline = time.monotonic() + 20
+        while not target.exists():
+            assert time.monotonic() < deadline, f"no {kind} download"
+            time.sleep(0.1)
+        time.sleep(0.2)
+    expected = httpx.post(live_url + "/v1/index-series", timeout=60,
+                          json=load_example("indexSeries.wrenmouth_monthly_ces.json")).json()
+    got = json.loads((browser.downloads / "series.json").read_text(encoding="utf-8"))
+    assert got["formulas"] == expected["formulas"]
+    header = (browser.downloads / "series.csv").read_text(encoding="utf-8").splitlines()[0]
+    assert header.startswith("period")
+
+
+def sent_and_answer(browser: Any, live_url: str, path: str) -> tuple[dict[str, Any], dict[str, Any]]:
+    sent = browser.execute_script("return window.dualcost.state.sent")
+    return sent, httpx.post(live_url + path, json=sent, timeout=60).json()
+
+
+def upload(browser: Any, tmp_path: Path, name: str, text: str) -> None:
+    path = tmp_path / name
+    path.write_text(text, encoding="utf-8")
+    browser.find_element(By.ID, "upload").send_keys(str(path))
+
+
+def test_a_comparison_csv_fills_the_grid_and_computes(
+        live_url: str, browser: Any, tmp_path: Path) -> None:
+    open_view(browser, live_url, "comparison")
+    upload(browser, tmp_path, "basket.csv", "item,label,base_price,current_price,base_quantity\n"
+           "rye_loaf,Rye loaf,2.40,2.52,12\nferry_pass,Ferry pass,38,41,1\n"
+           "flat_rent,Flat rent,610,634,1\n")
+    wait(browser, 10).until(
+        lambda d: len(d.find_elements(By.CSS_SELECTOR, ".grid tbody tr")) == 3)
+    # The demo's tree names other items: the page says what it put in its place.
+    assert "CES with σ 0.7" in browser.find_element(By.ID, "status").text
+    compute(browser)
+    sent, answer = sent_and_answer(browser, live_url, "/v1/comparisons")
+    assert sent["current"]["prices"] == {"rye_loaf": 2.52, "ferry_pass": 41, "flat_rent": 634}
+    assert browser.find_element(By.ID, "konus-base").text == f"{answer['konus']['base']:.4f}"
+
+
+@pytest.mark.parametrize(("text", "expected"), [
+    ("item,base_price,current_price,base_quantity\nrye_loaf,2,40,2.52,12\n",
+     ["row 2", "5 cells", "decimal comma"]),
+    ("item;base_price;current_price;base_quantity\nrye_loaf;2.40;2,52;12\n",
+     ["row 2", "column 'current_price'", "decimal comma", "2.52"]),
+    ("item,base_price,current_price,base_quantity\nrye_loaf,2.40,cheap,12\n",
+     ["row 2", "column 'current_price'", "'cheap' is not a number"]),
+], ids=["comma-splits-a-cell", "semicolons-and-decimal-commas", "not-a-number"])
+def test_a_bad_csv_is_refused_by_row_and_column(
+        live_url: str, browser: Any, tmp_path: Path, text: str, expected: list[str]) -> None:
+    open_view(browser, live_url, "comparison")
+    upload(browser, tmp_path, "bad.csv", text)
+    error = wait(browser, 10).until(lambda d: d.find_element(By.ID, "error")
+                                             if d.find_element(By.ID, "error").is_displayed() else None)
+    for part in expected:
+        assert part in error.text, error.text
+    assert "bad.csv" in error.text
+
+
+def test_the_shipped_panel_csv_fills_the_series_grids_and_computes(
+        live_url: str, browser: Any) -> None:
+    """docs/examples/wrenmouth_panel.csv is the series example in long form."""
+    example = load_example("indexSeries.wrenmouth_monthly_ces.json")
+    open_view(browser, live_url, "series")
+    browser.find_element(By.ID, "upload").send_keys(str(ROOT / "docs/examples/wrenmouth_panel.csv"))
+    wait(browser, 10).until(lambda d: d.execute_script(
+        "return window.dualcost.state.scenario") == "")
+    compute(browser)
+    sent, answer = sent_and_answer(browser, live_url, "/v1/index-series")
+    assert sent["prices"] == example["prices"] and sent["quantities"] == example["quantities"]
+    last = answer["konus"]["fixed_base"]["base"][-1]
+    assert browser.find_element(By.ID, "series-konus-last").text == f"{last:.3f}"
+
+
+def test_the_shipped_bulletin_csv_fills_the_audit(live_url: str, browser: Any) -> None:
+    """docs/examples/wrenmouth_published.csv is the audit example's bulletin and its base month."""
+    open_view(browser, live_url, "audits")
+    browser.find_element(By.ID, "upload").send_keys(
+        str(ROOT / "docs/examples/wrenmouth_published.csv"))
+    wait(browser, 10).until(lambda d: d.execute_script(
+        "return window.dualcost.state.scenario") == "")
+    compute(browser)
+    sent, answer = sent_and_answer(browser, live_url, "/v1/audits")
+    assert len(sent["published"]) == 11 and sent["published"][1]["decimals"] == 1
+    assert browser.find_element(By.ID, "audit-checked").text == str(answer["checked"])
+    assert len(browser.find_elements(By.CSS_SELECTOR, "#audit-table tbody tr")) == 11
+
+
+def test_a_household_csv_fills_the_household_grid(
+        live_url: str, browser: Any, tmp_path: Path) -> None:
+    example = load_example("householdIndices.wrenmouth_deciles_ces.json")
+    ids = [item["id"] for item in example["items"]]
+    lines = [",".join(["household", "expenditure", "weight", *ids])]
+    for h in example["households"][:4]:
+        lines.append(",".join([h["id"], str(h["expenditure"]), str(h["weight"]),
+                               *(str(h["shares"][i]) for i in ids)]))
+    open_view(browser, live_url, "households")
+    upload(browser, tmp_path, "households.csv", "\n".join(lines))
+    wait(browser, 10).until(
+        lambda d: len(d.find_elements(By.CSS_SELECTOR, ".grid")[1].find_elements(
+            By.CSS_SELECTOR, "tbody tr")) == 4)
+    compute(browser)
+    sent, answer = sent_and_answer(browser, live_url, "/v1/household-indices")
+    assert sent["households"] == example["households"][:4]
+    konus = next(i for i in answer["summary"][0]["indices"] if i["index"] == "konus")
+    assert browser.find_element(By.ID, "hh-konus-democratic").text == f"{konus['democratic']:.4f}"
+
+
+def test_a_fit_csv_in_long_form_fills_the_grids(
+        live_url: str, browser: Any, tmp_path: Path) -> None:
+    example = load_example("fitModel.wrenmouth_monthly_nested_ces.json")
+    ids = [item["id"] if isinstance(item, dict) else item for item in example["items"]]
+    lines = ["observation,item,price,expenditure"]
+    for t, obs in enumerate(example["observations"]):
+        for i, item in enumerate(ids):
+            lines.append(f"{obs},{item},{example['prices'][t][i]},{example['expenditures'][t][i]}")
+    open_view(browser, live_url, "fits")
+    upload(browser, tmp_path, "budgets.csv", "\n".join(lines))
+    wait(browser, 10).until(lambda d: d.execute_script(
+        "return window.dualcost.state.scenario") == "")
+    compute(browser)
+    sent, answer = sent_and_answer(browser, live_url, "/v1/fits")
+    assert sent["prices"] == example["prices"] and sent["expenditures"] == example["expenditures"]
+    first = browser.find_element(By.CSS_SELECTOR, "#parameters-table tbody tr td:nth-child(2)")
+    assert first.text == f"{answer['parameters'][0]['estimate']:.4f}"
+
+
+def tree_sigma(browser: Any, group: str) -> Any:
+    return browser.find_element(By.CSS_SELECTOR, f"input[aria-label='σ of {group}']")
+
+
+def test_the_tree_editor_changes_a_groups_sigma(live_url: str, browser: Any) -> None:
+    open_view(browser, live_url, "comparison")
+    sigma = tree_sigma(browser, "food and drink")
+    sigma.clear()
+    sigma.send_keys("0.5")
+    compute(browser)
+    sent, answer = sent_and_answer(browser, live_url, "/v1/comparisons")
+    assert sent["model"]["tree"]["children"][0] == {**load_example(
+        "compare.wrenmouth_nested_ces.json")["model"]["tree"]["children"][0], "sigma": 0.5}
+    assert browser.find_element(By.ID, "konus-base").text == f"{answer['konus']['base']:.4f}"
+
+
+def test_a_bad_sigma_in_the_tree_is_named_by_its_group(live_url: str, browser: Any) -> None:
+    open_view(browser, live_url, "comparison")
+    sigma = tree_sigma(browser, "transport")
+    sigma.clear()
+    sigma.send_keys("-1")
+    browser.find_element(By.ID, "compute").click()
+    error = wait(browser, 20).until(lambda d: d.find_element(By.ID, "error")
+                                             if d.find_element(By.ID, "error").is_displayed() else None)
+    assert "Tree group 'transport', σ" in error.text, error.text
+    assert sigma.get_attribute("aria-invalid") == "true"
+
+
+def test_changing_the_family_starts_it_from_plain_values(live_url: str, browser: Any) -> None:
+    from selenium.webdriver.support.ui import Select
+
+    open_view(browser, live_url, "comparison")
+    Select(browser.find_element(By.ID, "family")).select_by_value("stone_geary")
+    wait(browser, 10).until(lambda d: not d.find_elements(By.CSS_SELECTOR, ".tree input"))
+    compute(browser)
+    sent, answer = sent_and_answer(browser, live_url, "/v1/comparisons")
+    assert sent["model"] == {"family": "stone_geary", "frisch": -2}
+    assert browser.find_element(By.ID, "konus-current").text == f"{answer['konus']['current']:.4f}"
+
+
+def test_the_family_sensitivity_compares_the_simple_families(live_url: str, browser: Any) -> None:
+    """Varying the family: one comparison per simple family on the same basket, CES at σ 0.7
+    (the demo's tree has no single σ)."""
+    from selenium.webdriver.support.ui import Select
+
+    open_view(browser, live_url, "comparison")
+    compute(browser)
+    Select(browser.find_element(By.ID, "sweep-kind")).select_by_value("family")
+    browser.find_element(By.ID, "sweep").click()
+    rows = wait(browser, 120).until(
+        lambda d: d.find_elements(By.CSS_SELECTOR, "#sweep-values tbody tr"))
+    by_point = {r.find_elements(By.TAG_NAME, "td")[0].text: r for r in rows}
+    assert set(by_point) == {"cobb_douglas", "ces", "translog", "quadratic", "stone_geary"}
+    body = {**load_example("compare.wrenmouth_nested_ces.json"),
+            "model": {"family": "ces", "sigma": 0.7}}
+    answer = httpx.post(live_url + "/v1/comparisons", json=body, timeout=60).json()
+    assert by_point["ces"].find_elements(By.TAG_NAME, "td")[1].text == f"{answer['konus']['base']:.4f}"
+
+
+def test_an_audit_flags_a_published_value_that_differs(live_url: str, browser: Any) -> None:
+    """A published value two points off is flagged in the table and the chart's labels."""
+    open_view(browser, live_url, "audits")
+    value = browser.find_element(By.CSS_SELECTOR, "input[aria-label='Published values: 1, value']")
+    value.clear()
+    value.send_keys("103.2")
+    compute(browser)
+    flagged = browser.find_elements(By.CSS_SELECTOR, "#audit-table tr.flagged")
+    assert len(flagged) == 1 and "DIFFERS" in flagged[0].text and "103.2" in flagged[0].text
+    assert browser.find_element(By.ID, "audit-failed").text == "1"
+    screenshot(browser, "audits-flagged")
+
+
+def test_with_api_keys_the_page_sends_the_key_typed(browser: Any) -> None:
+    """Where the service asks for a key, the page says so until one is typed, then works."""
+    from dualcost.config import Settings
+    from tests.conftest import EXAMPLES, running_service
+
+    with running_service(Settings(examples_dir=EXAMPLES, api_keys=("wrenmouth-office",))) as url:
+        browser.get("about:blank")
+        browser.get(url + "/#comparison")
+        error = wait(browser, 20).until(lambda d: d.find_element(By.ID, "error")
+                                        if d.find_element(By.ID, "error").is_displayed() else None)
+        assert "401" in error.text and "API key" in error.text
+        key = browser.find_element(By.ID, "api-key")
+        key.send_keys("wrenmouth-office", Keys.TAB)
+        wait(browser, 20).until(lambda d: d.find_elements(By.CSS_SELECTOR, ".grid input"))
+        compute(browser)
+        assert browser.find_element(By.ID, "konus-base").text
+        browser.execute_script("sessionStorage.clear()")
+
+
+def test_a_rule_about_a_whole_row_names_the_row(live_url: str, browser: Any) -> None:
+    """Shares that do not add up are a rule about a household's row: the row is named and its
+    cells marked."""
+    open_view(browser, live_url, "households")
+    cell = browser.find_element(
+        By.CSS_SELECTOR, "input[aria-label='Households: budget shares: decile_2, Rye loaf and other bread']")
+    cell.clear()
+    cell.send_keys("0.5")
+    browser.find_element(By.ID, "compute").click()
+    error = wait(browser, 20).until(lambda d: d.find_element(By.ID, "error")
+                                    if d.find_element(By.ID, "error").is_displayed() else None)
+    assert "Households: budget shares, row 2 (decile_2): " in error.text, error.text
+    assert "sum to 1" in error.text
+    row = cell.find_element(By.XPATH, "./ancestor::tr")
+    marked = row.find_elements(By.CSS_SELECTOR, "input[aria-invalid='true']")
+    assert len(marked) == len(load_example("householdIndices.wrenmouth_deciles_ces.json")["items"])
+
+
+#: The view of each operation whose examples the page lists.
+VIEW_OF = {"compare": ("comparison", "/v1/comparisons"), "indexSeries": ("series", "/v1/index-series"),
+           "householdIndices": ("households", "/v1/household-indices"),
+           "fitModel": ("fits", "/v1/fits"), "auditPublishedSeries": ("audits", "/v1/audits"),
+           "fitAndCompare": ("fitted", "/v1/fitted-comparisons")}
+EXAMPLES = sorted(p.name for p in (ROOT / "openapi_examples").glob("*.json")
+                  if p.name.split(".")[0] in VIEW_OF)
+
+
+@pytest.mark.parametrize("example", EXAMPLES)
+def test_every_example_round_trips_through_the_form(
+        live_url: str, browser: Any, example: str) -> None:
+    """Every example of every view (demand systems, utility formulas, AIDS, observed
+    quantities, shares in percent, Stone-Geary series, household types by quarter, AIDS and LES
+    fits...) goes through the form unchanged and is answered; a comparison shows the API's
+    figures."""
+    from selenium.webdriver.support.ui import Select
+
+    operation, name = example.removesuffix(".json").split(".", 1)
+    view, path = VIEW_OF[operation]
+    open_view(browser, live_url, view)
+    Select(browser.find_element(By.ID, "scenario")).select_by_value(f"example:{name}")
+    browser.find_element(By.ID, "load").click()
+    wait(browser, 10).until(lambda d: d.execute_script(
+        "return window.dualcost.state.scenario") == f"example:{name}")
+    # The grids show the example's numbers whether it keys vectors by item or lists them.
+    empty = browser.execute_script(
+        "return [...document.querySelectorAll('.grid')].filter(g => ![...g.querySelectorAll("
+        "'input')].some(i => i.value !== '')).map(g => g.querySelector('h3').textContent)")
+    assert empty in ([], ["Quantities by period"]), empty
+    compute(browser)
+    sent, answer = sent_and_answer(browser, live_url, path)
+    assert sent == load_example(example)
+    if view != "comparison":
+        return
+    lasp = next(f["value"] for f in answer["formulas"] if f["formula"] == "laspeyres")
+    assert browser.find_element(By.ID, "laspeyres").text == f"{lasp:.4f}"
+    konus = answer["konus"]["base"]
+    shown = browser.find_element(By.ID, "konus-base").text
+    assert shown == ("not a result" if konus is None else f"{konus:.4f}")
+
+
+def test_the_tree_editor_adds_and_removes_groups(live_url: str, browser: Any) -> None:
+    """A new subgroup of 'transport' takes the ferry pass; removing 'recreation' hands its items
+    to the top group. The service computes the edited tree."""
+    open_view(browser, live_url, "comparison")
+    row = browser.find_element(
+        By.XPATH, "//input[@aria-label='σ of transport']/ancestor::div[@class='tree-row']")
+    row.find_element(By.XPATH, ".//button[text()='+ subgroup']").click()
+    leaves = wait(browser, 10).until(lambda d: d.find_element(
+        By.CSS_SELECTOR, "input[aria-label='items directly in new group']"))
+    leaves.send_keys("ferry_pass")
+    transport = browser.find_element(By.CSS_SELECTOR, "input[aria-label='items directly in transport']")
+    transport.clear()
+    transport.send_keys("bicycle_repair")
+    recreation = browser.find_element(
+        By.XPATH, "//input[@aria-label='σ of recreation']/ancestor::div[@class='tree-row']")
+    recreation.find_element(By.XPATH, ".//button[text()='remove']").click()
+    wait(browser, 10).until(lambda d: not d.find_elements(
+        By.CSS_SELECTOR, "input[aria-label='σ of recreation']"))
+    compute(browser)
+    sent, answer = sent_and_answer(browser, live_url, "/v1/comparisons")
+    tree = sent["model"]["tree"]
+    transport_group = next(g for g in tree["children"] if isinstance(g, dict) and g["name"] == "transport")
+    assert transport_group["children"] == [
+        "bicycle_repair", {"name": "new group", "sigma": 1, "children": ["ferry_pass"]}]
+    assert tree["children"][-2:] == ["harbour_cinema", "lantern_festival"]
+    assert browser.find_element(By.ID, "konus-base").text == f"{answer['konus']['base']:.4f}"
+
+
+def test_the_services_error_about_an_uploaded_value_names_the_files_row(
+        live_url: str, browser: Any, tmp_path: Path) -> None:
+    """A negative price read from a file: the service refuses it by its JSON pointer; the page
+    names the grid cell and the file's row and column it came from."""
+    open_view(browser, live_url, "series")
+    lines = (ROOT / "docs/examples/wrenmouth_panel.csv").read_text(encoding="utf-8").splitlines()
+    period, item, price, quantity = lines[9].split(",")
+    lines[9] = ",".join([period, item, "-" + price, quantity])
+    upload(browser, tmp_path, "panel.csv", "\n".join(lines))
+    wait(browser, 10).until(lambda d: d.execute_script("return window.dualcost.state.scenario") == "")
+    browser.find_element(By.ID, "compute").click()
+    error = wait(browser, 20).until(lambda d: d.find_element(By.ID, "error")
+                                    if d.find_element(By.ID, "error").is_displayed() else None)
+    assert f"row 2 ({period})" in error.text, error.text
+    assert "(from panel.csv, row 10, column 'price')" in error.text, error.text
+
+
+def test_a_warning_that_changes_a_figure_sits_beside_it(live_url: str, browser: Any) -> None:
+    """With no current quantities the formula indices use the model's demands: the notice saying
+    so is inside the bias chart's block, not only in the list at the end."""
+    open_view(browser, live_url, "comparison")
+    compute(browser)
+    block = browser.find_element(By.XPATH, "//section[@data-chart='bias-chart']")
+    warnings = [w.text for w in block.find_elements(By.CSS_SELECTOR, ".warning")]
+    demo = httpx.get(live_url + "/v1/demo").json()["result"]
+    expected = next(n["message"] for n in demo["notices"]
+                    if n["code"] == "current_quantities_from_model")
+    assert any(expected in w for w in warnings), warnings
