@@ -2,7 +2,7 @@
 
 from __future__ import annotations
 
-from . import audit, catalogue, comparisons, fits, households, series, service, sheets
+from . import audit, catalogue, comparisons, fits, households, runs, series, service, sheets
 
 ROUTERS = [comparisons.router, series.router, audit.router, catalogue.router, service.router,
-           sheets.router, households.router, fits.router]
+           sheets.router, households.router, fits.router, runs.router]
