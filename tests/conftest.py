@@ -2,8 +2,10 @@
 
 from __future__ import annotations
 
+import atexit
 import json
 import os
+import shutil
 import socket
 import tempfile
 import threading
@@ -27,6 +29,7 @@ EXAMPLES = ROOT / "openapi_examples"
 # The tests' household jobs and saved runs go to a database of their own, never the user's
 # (tests that need one of their own give data_dir or database_url; see tests/storage.py).
 os.environ["DUALCOST_DATA_DIR"] = tempfile.mkdtemp(prefix="dualcost-tests-")
+atexit.register(shutil.rmtree, os.environ["DUALCOST_DATA_DIR"], True)
 os.environ.pop("DUALCOST_DATABASE_URL", None)
 
 

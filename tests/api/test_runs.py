@@ -126,7 +126,7 @@ def test_a_rerun_whose_input_is_refused_now_reports_the_problem(database_url: st
     refused = small_request() | {"model": {"family": "ces", "sigma": -1}}
     with client.app.state.db.transaction() as s:  # type: ignore[attr-defined]
         s.execute(update(RunRecord).where(RunRecord.id == run_id)
-                  .values(request_body=orjson.dumps(refused)))
+                  .values(input=orjson.dumps(refused).decode()))
     found = client.post(f"/v1/runs/{run_id}/rerun").json()
     assert found["current"]["status"] == 422 and not found["identical"]
     assert found["current"]["problem"]["errors"][0]["pointer"] == "/model/sigma"

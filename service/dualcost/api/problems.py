@@ -118,7 +118,7 @@ PROBLEM_TYPES: dict[str, ProblemType] = {
                     "symmetric, ...): the figure is not a result. The detail names the reason and "
                     "the items; the formula indices remain available."),
         ProblemType("job-table-full", 503, "No room for another household job",
-                    "The household-job table of this process is full of jobs that may not be "
+                    "The household-job table (one for every worker) is full of jobs that may not be "
                     "removed (running jobs, and jobs of other API keys that have not finished), "
                     "or this API key holds its share of the table "
                     "(DUALCOST_MAX_HOUSEHOLD_JOBS_PER_KEY) and all of its jobs are running. Retry "

@@ -88,7 +88,10 @@ def _same(a: Any, b: Any) -> bool:
 
 async def run_again(app: FastAPI, request: Request, row: RunRecord) -> Rerun:
     """The saved request answered now by this process's route for it, as the same key."""
-    headers = [(b"content-length", str(len(row.request_body)).encode())]
+    payload = row.request_body
+    if not payload and row.method != "GET" and row.content_type:
+        payload = row.input.encode()  # a JSON body: its canonical input is that body
+    headers = [(b"content-length", str(len(payload)).encode())]
     if row.content_type:
         headers.append((b"content-type", row.content_type.encode("latin-1")))
     if row.accept:
@@ -114,7 +117,7 @@ async def run_again(app: FastAPI, request: Request, row: RunRecord) -> Rerun:
         if body_sent:
             return {"type": "http.disconnect"}
         body_sent = True
-        return {"type": "http.request", "body": row.request_body, "more_body": False}
+        return {"type": "http.request", "body": payload, "more_body": False}
 
     async def send(message: Message) -> None:
         if message["type"] == "http.response.start":
