@@ -159,3 +159,35 @@ def test_an_unreachable_database_stops_the_app_from_being_made(tmp_path: Any) ->
     not_a_folder.touch()
     with pytest.raises(StorageUnavailable, match="cannot open the database"):
         database_of(Settings(data_dir=not_a_folder))
+
+
+def test_the_migrations_make_the_tables_the_code_uses(database_url: str) -> None:
+    """Alembic's comparison of the migrated database with the models finds no difference."""
+    from alembic.autogenerate import compare_metadata
+    from alembic.runtime.migration import MigrationContext
+
+    from dualcost.storage.tables import Base
+
+    db = database_of(Settings(database_url=database_url))
+    with db.engine.connect() as connection:
+        assert compare_metadata(MigrationContext.configure(connection), Base.metadata) == []
+
+
+def test_the_migrations_are_shipped_with_the_package() -> None:
+    """Every file Alembic needs is matched by the package data of pyproject.toml, so that an
+    installed service (pip install, not a source tree) can migrate its database."""
+    import fnmatch
+    import tomllib
+
+    from tests.conftest import ROOT
+
+    patterns = tomllib.loads((ROOT / "pyproject.toml").read_text())["tool"]["setuptools"][
+        "package-data"]["dualcost"]
+    package = ROOT / "service" / "dualcost"
+    needed = [p.relative_to(package).as_posix()
+              for p in (package / "storage" / "migrations").rglob("*")
+              if p.is_file() and "__pycache__" not in p.parts]
+    assert "storage/migrations/env.py" in needed
+    assert any(n.startswith("storage/migrations/versions/") for n in needed)
+    for name in needed:
+        assert any(fnmatch.fnmatch(name, pattern) for pattern in patterns), name

@@ -140,16 +140,23 @@ class JobStore:
         session.execute(update(JobTable).where(JobTable.id == 1)
                         .values(generation=JobTable.generation + 1))
 
-    def _expire(self, session: Session) -> None:
-        """Running jobs whose worker has stopped: failed, with the reason."""
+    def _expire(self, session: Session, job_id: str | None = None) -> None:
+        """Running jobs whose worker has stopped (or the one job ``job_id``): failed, with
+        the reason."""
         seconds = int(self.lease.total_seconds())
+        stale = [JobRecord.status == "running", JobRecord.heartbeat < utcnow() - self.lease]
+        if job_id is not None:
+            stale.append(JobRecord.id == job_id)
         session.execute(
-            update(JobRecord)
-            .where(JobRecord.status == "running", JobRecord.heartbeat < utcnow() - self.lease)
+            update(JobRecord).where(*stale)
             .values(status="failed", runner=None, updated=utcnow(),
                     error=f"the worker computing this job stopped (no sign of it for {seconds} "
                           "s: the service was restarted, or the worker ended); upload the "
                           "households to a new job"))
+
+    def _stale(self, row: JobRecord) -> bool:
+        return (row.status == "running" and row.heartbeat is not None
+                and row.heartbeat < utcnow() - self.lease)
 
     @staticmethod
     def _delete(session: Session, job_id: str) -> None:
@@ -196,8 +203,11 @@ class JobStore:
     def record(self, job_id: str, owner: str | None = None) -> JobRecord:
         """The job's row, if ``owner`` may see it; another owner's job is 'not found' too."""
         with self.db.transaction() as s:
-            self._expire(s)
-            return self._visible(s, job_id, owner)
+            row = self._visible(s, job_id, owner)
+            if self._stale(row):  # a write only when there is something to write
+                self._expire(s, job_id)
+                s.refresh(row)
+            return row
 
     def view(self, job_id: str, owner: str | None = None) -> tuple[dict[str, Any], Provenance]:
         """The job as GET answers it, and that answer's provenance."""
