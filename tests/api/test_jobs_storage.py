@@ -177,6 +177,7 @@ def test_the_migrations_are_shipped_with_the_package() -> None:
     """Every file Alembic needs is matched by the package data of pyproject.toml, so that an
     installed service (pip install, not a source tree) can migrate its database."""
     import fnmatch
+
     import tomllib
 
     from tests.conftest import ROOT
