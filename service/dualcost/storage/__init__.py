@@ -8,8 +8,10 @@ every database.
 Every change is one transaction (:meth:`Database.transaction`): committed whole or not at all.
 A database that cannot be reached, or refuses the statement (a lost connection, a locked file,
 a missing table), raises :class:`~dualcost.core.errors.StorageUnavailable` after the rollback;
-the web layer answers 503 with Retry-After, and ``/ready`` says false until a probe reaches
-the database again (:attr:`Database.healthy`).
+the web layer answers 503 with Retry-After. ``/ready`` reads :attr:`Database.healthy`, which
+a probe (a read of its smallest table) sets after such a failure, and each keeper round sets:
+false while the database cannot be reached, true again once it can (a database that is only
+busy stays healthy).
 """
 
 from __future__ import annotations
@@ -23,7 +25,7 @@ from alembic import command
 from alembic.config import Config
 from alembic.runtime.migration import MigrationContext
 from alembic.script import ScriptDirectory
-from sqlalchemy import Engine, create_engine, text
+from sqlalchemy import Engine, create_engine, select
 from sqlalchemy.exc import DBAPIError, InterfaceError, OperationalError
 from sqlalchemy.exc import TimeoutError as PoolTimeout
 from sqlalchemy.orm import Session, sessionmaker
@@ -88,20 +90,23 @@ class Database:
             with self.sessions.begin() as session:
                 yield session
         except _UNAVAILABLE as exc:
-            self.healthy = False
+            # A busy database (a locked SQLite file) is not a lost one: /ready follows a probe.
+            self.ping()
             raise StorageUnavailable(_reason(exc)) from None
         except DBAPIError as exc:
             if exc.connection_invalidated:
-                self.healthy = False
+                self.ping()
                 raise StorageUnavailable(_reason(exc)) from None
             raise
         self.healthy = True
 
     def ping(self) -> bool:
-        """Whether the database answers a trivial query now (and remember it)."""
+        """Whether the database answers now, with its tables (and remember it)."""
+        from .tables import JobTable
+
         try:
             with self.engine.connect() as connection:
-                connection.execute(text("SELECT 1"))
+                connection.execute(select(JobTable.id).limit(1))
         except (DBAPIError, PoolTimeout):
             self.healthy = False
         else:
