@@ -381,8 +381,11 @@ def _requests(client: TestClient) -> dict[str, tuple[str, str, dict[str, Any]]]:
     """A valid request for every operation under /v1 that answers with a body."""
     households = copy.deepcopy(load_example(HOUSEHOLDS))
     fit = load_example(FIT)
-    job = _job(client)
+    job, done = _job(client), _job(client)
     csv_upload = {"headers": {"content-type": "text/csv"}}
+    assert client.post(done["links"]["households"], content=household_csv(households).encode(),
+                       **csv_upload).status_code == 200
+    run = client.post("/v1/comparisons?save=true", json=BASKET).headers["dualcost-run"]
     return {
         "compare": ("POST", "/v1/comparisons", {"json": BASKET}),
         "indexSeries": ("POST", "/v1/index-series",
@@ -404,6 +407,10 @@ def _requests(client: TestClient) -> dict[str, tuple[str, str, dict[str, Any]]]:
                                     {"content": household_csv(households).encode(),
                                      **csv_upload}),
         "getHouseholdJob": ("GET", job["links"]["self"], {}),
+        "getHouseholdJobResults": ("GET", done["links"]["results"], {}),
+        "getRun": ("GET", f"/v1/runs/{run}", {}),
+        "listRuns": ("GET", "/v1/runs", {}),
+        "rerunRun": ("POST", f"/v1/runs/{run}/rerun", {}),
         "listPreferenceFamilies": ("GET", "/v1/preference-families", {}),
         "listIndexFormulas": ("GET", "/v1/index-formulas", {}),
         "demo": ("GET", "/v1/demo", {}),
@@ -441,7 +448,8 @@ def test_every_operation_is_covered(client: TestClient) -> None:
      "fitModelCsv", "fitAndCompare", "householdIndices", "createHouseholdJob",
      "householdIndicesFromCsv", "getHouseholdJob", "listPreferenceFamilies", "listIndexFormulas",
      "demo", "sheetValue", "sheetComparison", "sheetSeries", "uprating", "sheetUprating",
-     "indexTree", "sheetIndexTree", "sheetSweep", "revealedPreference", "sensitivity"]))
+     "indexTree", "sheetIndexTree", "sheetSweep", "revealedPreference", "sensitivity",
+     "getHouseholdJobResults", "getRun", "listRuns", "rerunRun"]))
 def test_an_accept_header_that_admits_nothing_gets_406(client: TestClient, operation: str) -> None:
     method, path, kwargs = _requests(client)[operation]
     headers = {**kwargs.pop("headers", {}), "accept": "image/png"}
