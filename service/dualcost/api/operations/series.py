@@ -318,11 +318,36 @@ def _num(x: float) -> float | None:
     return None if not np.isfinite(x) else float(x)
 
 
+#: The columns the model-free brackets add to the CSV table (revealed_bounds: true), after
+#: the others: the JSON block's rows, one per period.
+REVEALED_COLUMNS = ("lower", "upper", "laspeyres", "paasche", "konus_base", "konus_inside")
+
+
+def _revealed_columns(outcome: Outcome) -> list[tuple[str, list[Any]]]:
+    block = _revealed(outcome, outcome.result.periods)
+    if block is None:
+        return []
+    return [(f"revealed_{name}", [row[name] for row in block["rows"]])
+            for name in REVEALED_COLUMNS]
+
+
+def revealed_headers(outcome: Outcome) -> dict[str, str]:
+    """The verdicts and the efficiency level of the brackets, as a CSV answer states them
+    (none without revealed_bounds)."""
+    found = outcome.revealed
+    if found is None:
+        return {}
+    return {"Dualcost-Garp": "pass" if found.consistency.garp else "fail",
+            "Dualcost-Efficiency-Index": repr(found.efficiency),
+            "Dualcost-Revealed-Items": " ".join(outcome.axis.ids[i]
+                                                for i in outcome.revealed_items)}
+
+
 def table(outcome: Outcome) -> tuple[list[str], list[list[Any]]]:
     """The per-period table: one row per period, one column per series."""
     r = outcome.result
     columns = (_konus_columns(r) + _formula_columns(r) + _treatment_columns(r, outcome.axis.ids)
-               + changes.columns(r))
+               + changes.columns(r) + _revealed_columns(outcome))
     header = ["period"] + [name for name, _ in columns]
     rows = [[r.periods[t]] + [values[t] for _, values in columns]
             for t in range(len(r.periods))]

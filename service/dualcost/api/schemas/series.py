@@ -118,7 +118,9 @@ class SeriesOptions(StrictModel):
         False, description="Also test the panel's choices for GARP (Varian 1982) and bracket "
         "each period's Konüs index against the base at base utility without a model, over the "
         "items priced in every period (needs quantities or expenditures in every period); the "
-        "answer's revealed_bounds block. JSON body only.")
+        "answer's revealed_bounds block; in the CSV answer, its rows as revealed_* columns "
+        "and the verdicts in the headers Dualcost-Garp and Dualcost-Efficiency-Index. JSON body "
+        "only.")
 
 
 class SeriesRequest(SeriesOptions):
