@@ -34,3 +34,55 @@ def test_the_series_csv_carries_the_brackets_when_asked(client: TestClient) -> N
     plain = client.post("/v1/index-series?format=csv", json=load_example(SERIES))
     assert "revealed_lower" not in plain.text.splitlines()[0]
     assert "dualcost-garp" not in plain.headers
+
+
+BAND = "compare.wrenmouth_nested_ces_inside_bracket_and_band.json"
+
+
+def test_a_comparison_s_band_equals_the_sensitivity_request_with_those_models(
+        client: TestClient) -> None:
+    """band_models: the band block equals POST /v1/sensitivity with the same budget, prices
+    and models (its ranges and each model's Konüs indices), and konus_inside says whether the
+    comparison's own K(u0) is in the konus_base range (its definition)."""
+    request = load_example(BAND)
+    answer = client.post("/v1/comparisons", json=request).json()
+    band = answer["band"]
+    sweep = {k: request[k] for k in ("items", "base", "current")} | {
+        "models": request["band_models"]}
+    alone = client.post("/v1/sensitivity", json=sweep).json()
+    assert band["ranges"] == alone["band"]
+    for mine, theirs in zip(band["models"], alone["models"], strict=True):
+        assert mine["family"] == theirs["family"]
+        assert [mine[f"konus_{k}"] for k in ("base", "current", "midpoint")] == [
+            theirs["konus"][k] for k in ("base", "current", "midpoint")]
+    k = answer["konus"]["base"]
+    base = next(x for x in band["ranges"] if x["measure"] == "konus_base")
+    assert band["konus_inside"] == (base["low"] <= k <= base["high"])
+    bracket = answer["revealed_bounds"]
+    assert all(bracket["lower"] <= m["konus_base"] <= bracket["upper"] for m in band["models"])
+
+
+def test_a_comparison_s_band_in_csv_and_its_absence(client: TestClient) -> None:
+    request = load_example(BAND)
+    band = client.post("/v1/comparisons", json=request).json()["band"]
+    r = client.post("/v1/comparisons?format=csv", json=request)
+    assert r.status_code == 200, r.text
+    rows = {row["measure"]: row for row in csv.DictReader(io.StringIO(r.text))}
+    for x in band["ranges"]:
+        if x["measure"].startswith("konus_"):
+            assert float(rows[f"band_{x['measure']}_low"]["value"]) == x["low"]
+            assert float(rows[f"band_{x['measure']}_high"]["value"]) == x["high"]
+    plain = {k: v for k, v in request.items() if k != "band_models"}
+    assert client.post("/v1/comparisons", json=plain).json()["band"] is None
+
+
+def test_a_bad_band_model_is_named_by_its_position(client: TestClient) -> None:
+    request = load_example(BAND)
+    request["band_models"][0]["sigma"] = -1.0
+    r = client.post("/v1/comparisons", json=request)
+    assert r.status_code == 422, r.text
+    assert [e["pointer"] for e in r.json()["errors"]] == ["/band_models/0/sigma"]
+    request["band_models"] = []
+    r = client.post("/v1/comparisons", json=request)
+    assert r.status_code == 422, r.text
+    assert [e["pointer"] for e in r.json()["errors"]] == ["/band_models"]

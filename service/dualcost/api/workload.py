@@ -100,8 +100,11 @@ def _model_of(spec: Any) -> tuple[Any, Mapping[str, Any]]:
 def comparison(body: Any) -> float:
     """A comparison (:class:`~dualcost.api.schemas.comparison.ComparisonRequest`)."""
     n = len(body.items)
-    family, parameters = _model_of(body.model)
-    return PER_ITEM * n + model(family, parameters, n)
+    work = 0.0
+    for spec in (body.model, *(getattr(body, "band_models", None) or ())):  # each compared
+        family, parameters = _model_of(spec)
+        work += PER_ITEM * n + model(family, parameters, n)
+    return work
 
 
 def series_shape(periods: int, items: int, spec: Any) -> float:

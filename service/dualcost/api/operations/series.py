@@ -324,7 +324,7 @@ REVEALED_COLUMNS = ("lower", "upper", "laspeyres", "paasche", "konus_base", "kon
 
 
 def _revealed_columns(outcome: Outcome) -> list[tuple[str, list[Any]]]:
-    block = _revealed(outcome, outcome.result.periods)
+    block = _revealed(outcome, list(outcome.result.periods))
     if block is None:
         return []
     return [(f"revealed_{name}", [row[name] for row in block["rows"]])
