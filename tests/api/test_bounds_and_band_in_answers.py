@@ -86,3 +86,68 @@ def test_a_bad_band_model_is_named_by_its_position(client: TestClient) -> None:
     r = client.post("/v1/comparisons", json=request)
     assert r.status_code == 422, r.text
     assert [e["pointer"] for e in r.json()["errors"]] == ["/band_models"]
+
+
+HOUSEHOLDS = "householdIndices.wrenmouth_household_types_band.json"
+
+
+def test_each_household_s_band_is_the_range_of_its_own_indices_under_each_model(
+        client: TestClient) -> None:
+    """band_models on the household batch: each household-period's band is the least and
+    greatest K(u0) of the same household in the batch requested alone under each model (the
+    band's definition), and konus_inside compares the batch's own K(u0) with it."""
+    request = load_example(HOUSEHOLDS)
+    answer = client.post("/v1/household-indices", json=request)
+    assert answer.status_code == 200, answer.text
+    alone = []
+    for spec in request["band_models"]:
+        single = {k: v for k, v in request.items() if k != "band_models"} | {"model": spec}
+        r = client.post("/v1/household-indices", json=single)
+        assert r.status_code == 200, r.text
+        alone.append(r.json()["households"])
+    for j, household in enumerate(answer.json()["households"]):
+        for t, period in enumerate(household["periods"]):
+            values = [a[j]["periods"][t]["konus"] for a in alone]
+            band = period["band"]
+            assert (band["konus_low"], band["konus_high"], band["models"]) == (
+                min(values), max(values), len(values))
+            k = period["konus"]
+            assert band["konus_inside"] == (min(values) <= k <= max(values))
+    plain = {k: v for k, v in request.items() if k != "band_models"}
+    first = client.post("/v1/household-indices", json=plain).json()["households"][0]
+    assert first["periods"][0].get("band") is None
+
+
+def test_the_household_band_in_csv(client: TestClient) -> None:
+    request = load_example(HOUSEHOLDS)
+    households = client.post("/v1/household-indices", json=request).json()["households"]
+    r = client.post("/v1/household-indices?format=csv", json=request)
+    assert r.status_code == 200, r.text
+    rows = list(csv.DictReader(io.StringIO(r.text)))
+    want = [p["band"] for h in households for p in h["periods"]]
+    assert len(rows) == len(want)
+    for row, band in zip(rows, want, strict=True):
+        assert float(row["band_konus_low"]) == band["konus_low"]
+        assert float(row["band_konus_high"]) == band["konus_high"]
+        assert int(row["band_models"]) == band["models"]
+
+
+def test_a_household_band_refuses_by_field(client: TestClient) -> None:
+    """A bad band model is named by its position; a model that needs incomes the households do
+    not give is named; households times models above max_households is refused."""
+    from dualcost.api.app import create_app
+    from dualcost.config import Settings
+    from tests.conftest import EXAMPLES
+
+    request = load_example(HOUSEHOLDS)
+    request["band_models"][2] = {"family": "ces", "sigma": -2.0}
+    r = client.post("/v1/household-indices", json=request)
+    assert [e["pointer"] for e in r.json()["errors"]] == ["/band_models/2/sigma"], r.text
+    request["band_models"][2] = {"family": "stone_geary"}
+    r = client.post("/v1/household-indices", json=request)
+    assert r.status_code == 422, r.text
+    assert [e["pointer"] for e in r.json()["errors"]] == ["/band_models/2"]
+    small = TestClient(create_app(Settings(examples_dir=EXAMPLES, max_households=8)))
+    r = small.post("/v1/household-indices", json=load_example(HOUSEHOLDS))
+    assert r.status_code == 422, r.text
+    assert [e["pointer"] for e in r.json()["errors"]] == ["/band_models"]

@@ -19,10 +19,7 @@ def calibrator(root: str, spec: ModelSpec, axis: ItemAxis, loc: Locator, setting
                query: str | None = None) -> tuple[Calibrator, dict[str, Any]]:
     """The model at ``root``: its calibration callback and its parameters in core form.
     ``query`` is the query parameter that carries its family in a spreadsheet form, if any."""
-    own = Locator(dict(loc.places), loc.form, items=axis.ids)
-    own.model_root = root
-    own.add("model", Place(root, query))
-    own.add("family", Place(f"{root}/family", query))
+    own = locator_at(root, loc, axis.ids, query=query)
     parameters = core_parameters(spec, axis, own, max_tree_depth=settings.max_tree_depth,
                                  deadline_seconds=settings.compute_deadline_seconds)
 
@@ -31,3 +28,13 @@ def calibrator(root: str, spec: ModelSpec, axis: ItemAxis, loc: Locator, setting
             return calibrate(spec.family, budget, parameters)
 
     return calibrated, parameters
+
+
+def locator_at(root: str, loc: Locator, items: list[str], *, query: str | None = None
+               ) -> Locator:
+    """A copy of ``loc`` that places a model's family and parameters below ``root``."""
+    own = Locator(dict(loc.places), loc.form, items=items)
+    own.model_root = root
+    own.add("model", Place(root, query))
+    own.add("family", Place(f"{root}/family", query))
+    return own
