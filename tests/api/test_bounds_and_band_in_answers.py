@@ -151,3 +151,30 @@ def test_a_household_band_refuses_by_field(client: TestClient) -> None:
     r = small.post("/v1/household-indices", json=load_example(HOUSEHOLDS))
     assert r.status_code == 422, r.text
     assert [e["pointer"] for e in r.json()["errors"]] == ["/band_models"]
+
+
+def test_households_a_band_model_refuses_are_counted_not_dropped(client: TestClient) -> None:
+    """A Stone-Geary band model whose subsistence cost is above the poorer deciles' incomes
+    refuses them (Stone 1954: income must cover subsistence); their band is over the other
+    model alone, a notice counts them, and the households the model takes have both."""
+    request = load_example("householdIndices.wrenmouth_deciles_subsistence.json")
+    subsistence = request["model"]["subsistence_quantities"]
+    request["model"] = {"family": "ces", "sigma": 0.5}
+    request["band_models"] = [
+        {"family": "stone_geary",
+         "subsistence_quantities": {k: 2.5 * v for k, v in subsistence.items()}},
+        {"family": "cobb_douglas"}]
+    r = client.post("/v1/household-indices", json=request)
+    assert r.status_code == 200, r.text
+    answer = r.json()
+    counts = [h["periods"][0]["band"]["models"] for h in answer["households"]]
+    assert 1 in counts and 2 in counts and set(counts) <= {1, 2}
+    notice = next(n for n in answer["notices"] if n["code"] == "band_households_left_out")
+    assert notice["message"].startswith(f"{counts.count(1)} household(s)")
+    alone = {k: v for k, v in request.items() if k != "band_models"} | {
+        "model": {"family": "cobb_douglas"}}
+    cobb = client.post("/v1/household-indices", json=alone).json()["households"]
+    for h, c in zip(answer["households"], cobb, strict=True):
+        band = h["periods"][0]["band"]
+        if band["models"] == 1:
+            assert band["konus_low"] == band["konus_high"] == c["periods"][0]["konus"]
