@@ -178,3 +178,56 @@ def test_households_a_band_model_refuses_are_counted_not_dropped(client: TestCli
         band = h["periods"][0]["band"]
         if band["models"] == 1:
             assert band["konus_low"] == band["konus_high"] == c["periods"][0]["konus"]
+
+
+def test_a_series_band_is_the_range_of_each_model_s_own_series(client: TestClient) -> None:
+    """band_models on POST /v1/index-series: each model's fixed-base Konüs series equals the
+    series requested alone with that model, and the band is their least and greatest in every
+    period (its definition), beside the series' own; as CSV, three columns more; an audit
+    refuses the option by name rather than drop it."""
+    request = load_example(SERIES) | {"band_models": [
+        {"family": "cobb_douglas"}, {"family": "ces", "sigma": 0.3}]}
+    r = client.post("/v1/index-series", json=request)
+    assert r.status_code == 200, r.text
+    answer = r.json()
+    band = answer["band"]
+    alone = []
+    for spec, model in zip(request["band_models"], band["models"], strict=True):
+        single = {k: v for k, v in request.items() if k != "band_models"} | {"model": spec}
+        own = client.post("/v1/index-series", json=single).json()["konus"]["fixed_base"]["base"]
+        assert model["fixed_base"] == own
+        alone.append(own)
+    mine = answer["konus"]["fixed_base"]["base"]
+    for t, row in enumerate(band["rows"]):
+        values = [a[t] for a in alone]
+        assert (row["konus_low"], row["konus_high"], row["models"]) == (
+            min(values), max(values), 2)
+        assert row["konus"] == mine[t]
+        assert row["konus_inside"] == (min(values) * (1 - 1e-9) <= mine[t]
+                                       <= max(values) * (1 + 1e-9))
+    table = list(csv.DictReader(io.StringIO(
+        client.post("/v1/index-series?format=csv", json=request).text)))
+    assert [float(row["band_konus_low"]) for row in table] == [
+        row["konus_low"] for row in band["rows"]]
+    audit = load_example("auditPublishedSeries.wrenmouth_monthly_bulletin.json")
+    refused = client.post("/v1/audits", json=audit | {"band_models": [{"family": "ces",
+                                                                       "sigma": 1}]})
+    assert refused.status_code == 422
+    assert refused.json()["errors"][0]["pointer"] == "/band_models"
+
+
+def test_a_series_band_refuses_by_field() -> None:
+    from dualcost.api.app import create_app
+    from dualcost.config import Settings
+    from tests.conftest import EXAMPLES
+
+    request = load_example(SERIES) | {"band_models": [{"family": "ces", "sigma": -1.0}]}
+    client = TestClient(create_app(Settings(examples_dir=EXAMPLES)))
+    r = client.post("/v1/index-series", json=request)
+    assert [e["pointer"] for e in r.json()["errors"]] == ["/band_models/0/sigma"], r.text
+    cells = len(request["periods"]) * len(request["items"])
+    small = TestClient(create_app(Settings(examples_dir=EXAMPLES, max_panel_cells=cells + 1)))
+    request["band_models"] = [{"family": "cobb_douglas"}]
+    r = small.post("/v1/index-series", json=request)
+    assert r.status_code == 422, r.text
+    assert [e["pointer"] for e in r.json()["errors"]] == ["/band_models"]

@@ -116,7 +116,9 @@ def series_shape(periods: int, items: int, spec: Any) -> float:
 
 def series(body: Any) -> float:
     """An index series or an audit, from its JSON body."""
-    work = series_shape(len(body.periods), len(body.items), body.model)
+    work = 0.0
+    for spec in (body.model, *(getattr(body, "band_models", None) or ())):  # each a series
+        work += series_shape(len(body.periods), len(body.items), spec)
     return work + PER_ITEM * len(getattr(body, "published", ()))
 
 
