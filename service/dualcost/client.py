@@ -455,6 +455,20 @@ class Client:
         ``format="csv"``: one row a model or grid value."""
         return self._post_json("/v1/sensitivity", request, format)
 
+    @overload
+    def fitted_sensitivity(self, request: Mapping[str, Any], *,
+                           format: Literal["json"] = ...) -> dict[str, Any]: ...
+    @overload
+    def fitted_sensitivity(self, request: Mapping[str, Any], *,
+                           format: Literal["csv"]) -> Table: ...
+
+    def fitted_sensitivity(self, request: Mapping[str, Any], *,
+                           format: Format = "json") -> dict[str, Any] | Table:
+        """POST /v1/fitted-sensitivity: several families fitted to the same data, the band
+        across them beside each fit's intervals; ``format="csv"``: one row a family and
+        measure, and the band's."""
+        return self._post_json("/v1/fitted-sensitivity", request, format)
+
     # -- households ----------------------------------------------------------------------------
 
     @overload

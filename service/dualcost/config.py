@@ -99,6 +99,9 @@ class Settings(BaseSettings):
     max_sweep_points: int = Field(
         101, ge=1, description="Most values of one sensitivity sweep's grid (each one "
         "comparison).")
+    max_fitted_families: int = Field(
+        6, ge=1, description="Most families one request of POST /v1/fitted-sensitivity may fit "
+        "(each one fit and one bootstrap, one after another).")
     max_households: int = Field(100_000, ge=1, description="Most households in one JSON request "
                                 "(larger batches: a household job with a CSV upload).")
     household_chunk_rows: int | None = Field(None, ge=1, description="Household rows evaluated "

@@ -211,7 +211,8 @@ def test_every_example_gets_the_digest_of_its_body(client: TestClient, name: str
             "householdIndices": "/v1/household-indices", "uprating": "/v1/uprating",
             "indexTree": "/v1/index-tree",
             "revealedPreference": "/v1/revealed-preference",
-            "sensitivity": "/v1/sensitivity"}[operation]
+            "sensitivity": "/v1/sensitivity",
+            "fittedSensitivity": "/v1/fitted-sensitivity"}[operation]
     body = load_example(name)
     r = client.post(path, json=body)
     assert r.status_code == 200, r.text
@@ -427,6 +428,8 @@ def _requests(client: TestClient) -> dict[str, tuple[str, str, dict[str, Any]]]:
             "revealedPreference.wrenmouth_household_diary.json")}),
         "sensitivity": ("POST", "/v1/sensitivity", {"json": load_example(
             "sensitivity.stone_geary_pensioner_frisch.json")}),
+        "fittedSensitivity": ("POST", "/v1/fitted-sensitivity", {"json": load_example(
+            "fittedSensitivity.wrenmouth_quarterly_three_families.json")}),
     }
 
 
@@ -449,7 +452,7 @@ def test_every_operation_is_covered(client: TestClient) -> None:
      "householdIndicesFromCsv", "getHouseholdJob", "listPreferenceFamilies", "listIndexFormulas",
      "demo", "sheetValue", "sheetComparison", "sheetSeries", "uprating", "sheetUprating",
      "indexTree", "sheetIndexTree", "sheetSweep", "revealedPreference", "sensitivity",
-     "getHouseholdJobResults", "getRun", "listRuns", "rerunRun"]))
+     "getHouseholdJobResults", "getRun", "listRuns", "rerunRun", "fittedSensitivity"]))
 def test_an_accept_header_that_admits_nothing_gets_406(client: TestClient, operation: str) -> None:
     method, path, kwargs = _requests(client)[operation]
     headers = {**kwargs.pop("headers", {}), "accept": "image/png"}

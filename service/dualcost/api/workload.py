@@ -100,8 +100,11 @@ def _model_of(spec: Any) -> tuple[Any, Mapping[str, Any]]:
 def comparison(body: Any) -> float:
     """A comparison (:class:`~dualcost.api.schemas.comparison.ComparisonRequest`)."""
     n = len(body.items)
-    family, parameters = _model_of(body.model)
-    return PER_ITEM * n + model(family, parameters, n)
+    work = 0.0
+    for spec in (body.model, *(getattr(body, "band_models", None) or ())):  # each compared
+        family, parameters = _model_of(spec)
+        work += PER_ITEM * n + model(family, parameters, n)
+    return work
 
 
 def series_shape(periods: int, items: int, spec: Any) -> float:
@@ -113,7 +116,9 @@ def series_shape(periods: int, items: int, spec: Any) -> float:
 
 def series(body: Any) -> float:
     """An index series or an audit, from its JSON body."""
-    work = series_shape(len(body.periods), len(body.items), body.model)
+    work = 0.0
+    for spec in (body.model, *(getattr(body, "band_models", None) or ())):  # each a series
+        work += series_shape(len(body.periods), len(body.items), spec)
     return work + PER_ITEM * len(getattr(body, "published", ()))
 
 
