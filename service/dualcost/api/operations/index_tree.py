@@ -40,6 +40,8 @@ PLACES: dict[str, Place] = {
     "periods": Place("/periods", "periods", "list"),
     "sigma_by_level": Place("/sigma_by_level", "sigma_by_level", "list"),
     "upper": Place("/upper_formula", "upper_formula"),
+    "sigma_fit": Place("/sigma_fit", "sigma_fit"),
+    "sigma_fallback": Place("/sigma_fallback", "sigma_fallback"),
 }
 #: The core's node-level arguments, and the field of a flat node each is about.
 _NODE_FIELDS = {"name": "name", "parent": "parent", "formula": "formula", "sigma": "sigma",
@@ -109,7 +111,8 @@ def run(request: IndexTreeRequest, settings: Settings, loc: Locator | None = Non
         result = index_tree(h, quotes, links, request.periods, upper=request.upper_formula,
                             sigma_by_level=request.sigma_by_level,
                             tolerance=request.weight_tolerance,
-                            normalise_weights=request.normalise_weights)
+                            normalise_weights=request.normalise_weights,
+                            sigma_fit=request.sigma_fit, sigma_fallback=request.sigma_fallback)
     return Outcome(result, request, nodes)
 
 
@@ -241,10 +244,34 @@ def document(outcome: Outcome) -> dict[str, Any]:
                    "weight_reference": [request.periods[t] for t in s.weight_reference],
                    "periods": [request.periods[t] for t in s.periods]} for s in r.segments],
         "nodes": [_node(r, k, scale, counts) for k in range(h.size)],
+        "sigma_fit": _fits(r),
         "notices": notices_json(r.notices, ids, labels),
         "scale": _scale(periods[0], scale),
         "caution": CAUTION,
     }, "index tree")
+
+
+EQUATION = ("D ln s_c = a_{g,k} + (1 - sigma_g) D ln P_c: the change of each child's share of its "
+            "group between consecutive links against the change of its price level, one effect "
+            "per group and link pair, least squares (CES share equation, Arrow, Chenery, Minhas "
+            "and Solow 1961; sigma the Allen elasticity, Allen 1938)")
+
+
+def _fits(r: IndexTree) -> dict[str, Any] | None:
+    if r.fits is None:
+        return None
+    names = r.hierarchy.names
+    return {
+        "method": r.fits.method, "equation": EQUATION,
+        "estimates": [{"nodes": [names[g] for g in e.nodes], "level": e.level,
+                       "sigma": e.sigma, "standard_error": e.standard_error,
+                       "observations": e.observations,
+                       "degrees_of_freedom": e.degrees_of_freedom, "used": list(e.used),
+                       "fitted": e.fitted, "reason": e.reason} for e in r.fits.estimates],
+        "data": [{"node": names[d.node], "children": [names[c] for c in d.children],
+                  "shares": d.shares.tolist(), "price_levels": d.prices.tolist()}
+                 for d in r.fits.data],
+    }
 
 
 def scale_of(outcome: Outcome) -> dict[str, str | None]:

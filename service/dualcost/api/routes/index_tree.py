@@ -53,7 +53,13 @@ price-updated from the weight reference period to the link) or **Young** (the sh
 **chain-linked** at each link's period (e.g. December, with annual re-weighting), published on
 the first link = 100. Beside it, at every node, the **Konüs index** of a nested CES model on the
 same tree (sigma per node, or per level in `sigma_by_level`) calibrated to the same weights, and
-the **bias** in index points. A group's weight must equal its children's sum (within
+the **bias** in index points. With `sigma_fit` (`by_group` or `by_level`) each group's sigma is
+**fitted** from the tree's own data: the change of each child's share of its group between
+consecutive links against the change of its price level (the CES share equation, least squares
+with one effect per group and link pair), with standard errors and the data used in
+`sigma_fit`; a group that cannot be fitted (one child, one link, no relative price change, or a
+fit below 0) keeps its given sigma or `sigma_fallback`, and a notice names it. A group's weight
+must equal its children's sum (within
 `weight_tolerance`; `normalise_weights` scales them instead, with a notice). Errors name the
 field and the node.
 """
