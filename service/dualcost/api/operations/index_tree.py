@@ -91,13 +91,32 @@ def flatten(tree: NodeIn | list[Any]) -> Nodes:
     return out
 
 
+@dataclass(frozen=True)
+class Translated:
+    """The request in the core's terms: the checked tree, the quotes, the links, the nodes."""
+
+    hierarchy: Hierarchy
+    quotes: Quotes
+    links: list[Link]
+    nodes: Nodes
+
+
 def run(request: IndexTreeRequest, settings: Settings, loc: Locator | None = None) -> Outcome:
     """Translate the request, compute the tree's index and its Konüs index, point any error
     at the request."""
     loc = loc or locator()
+    t = translate(request, settings, loc)
+    with computing("index_tree", settings), pointing(loc, t.nodes, request):
+        result = index_tree(t.hierarchy, t.quotes, t.links, request.periods,
+                            **tree_options(request))
+    return Outcome(result, request, t.nodes)
+
+
+def translate(request: IndexTreeRequest, settings: Settings, loc: Locator) -> Translated:
+    """The tree, quotes and links of the request, each error pointed at its place."""
     nodes = flatten(request.tree)
     periods = _periods(request, loc)
-    with _pointing(loc, nodes, request):
+    with pointing(loc, nodes, request):
         h = build_hierarchy(nodes.names, nodes.parents, formulas=nodes.formulas,
                             sigmas=nodes.sigmas, default_formula=request.elementary_formula,
                             max_depth=settings.max_tree_depth)
@@ -106,14 +125,15 @@ def run(request: IndexTreeRequest, settings: Settings, loc: Locator | None = Non
                           f"{len(h.names) + len(request.quotes)}; the limit is "
                           f"{settings.max_items}")
     quotes = _quotes(request, h, periods, loc, nodes)
-    links = _links(request, h, periods, loc)
-    with computing("index_tree", settings), _pointing(loc, nodes, request):
-        result = index_tree(h, quotes, links, request.periods, upper=request.upper_formula,
-                            sigma_by_level=request.sigma_by_level,
-                            tolerance=request.weight_tolerance,
-                            normalise_weights=request.normalise_weights,
-                            sigma_fit=request.sigma_fit, sigma_fallback=request.sigma_fallback)
-    return Outcome(result, request, nodes)
+    return Translated(h, quotes, _links(request, h, periods, loc), nodes)
+
+
+def tree_options(request: IndexTreeRequest) -> dict[str, Any]:
+    """The options of :func:`dualcost.core.index_tree.index_tree` the request sets."""
+    return {"upper": request.upper_formula, "sigma_by_level": request.sigma_by_level,
+            "tolerance": request.weight_tolerance,
+            "normalise_weights": request.normalise_weights, "sigma_fit": request.sigma_fit,
+            "sigma_fallback": request.sigma_fallback}
 
 
 def _periods(request: IndexTreeRequest, loc: Locator) -> dict[str, int]:
@@ -190,16 +210,16 @@ def _links(request: IndexTreeRequest, h: Hierarchy, periods: dict[str, int],
 
 
 @contextmanager
-def _pointing(loc: Locator, nodes: Nodes, request: IndexTreeRequest) -> Iterator[None]:
+def pointing(loc: Locator, nodes: Nodes, request: IndexTreeRequest) -> Iterator[None]:
     """The core's errors about a node, a link's weights or a quote, at their place."""
     try:
         yield
     except InvalidInput as exc:
-        raise loc.problem(*_place(exc, nodes, request)) from exc
+        raise loc.problem(*_place(exc, nodes, request, loc.places)) from exc
 
 
 def _place(exc: InvalidInput, nodes: Nodes, request: IndexTreeRequest,
-           ) -> tuple[str, str, Any]:
+           places: dict[str, Place]) -> tuple[str, str, Any]:
     """(argument, rule, index) in the request's terms."""
     index = exc.index
     if exc.parameter in _NODE_FIELDS and isinstance(index, int) and index < len(nodes.places):
@@ -215,7 +235,7 @@ def _place(exc: InvalidInput, nodes: Nodes, request: IndexTreeRequest,
         return "links", exc.rule, (link, "weights", name) if given else (link, "weights")
     if exc.parameter == "quotes" and isinstance(index, tuple) and index:
         return "tree", exc.rule, nodes.places[int(index[0])]
-    if exc.parameter in PLACES:
+    if exc.parameter in places:
         return exc.parameter, exc.rule, index
     return "tree", f"{exc.parameter}: {exc.rule}", None
 
@@ -339,5 +359,5 @@ def value(outcome: Outcome, node: str, period: str, measure: str) -> float | Non
     return (scale if measure == "konus" else 1.0) * float(source[k, column])
 
 
-__all__ = ["Outcome", "PLACES", "document", "flatten", "locator", "run", "scale_of", "table",
-           "value"]
+__all__ = ["Outcome", "PLACES", "Translated", "document", "flatten", "locator", "pointing", "run",
+           "scale_of", "table", "translate", "tree_options", "value"]
