@@ -210,6 +210,7 @@ def test_every_example_gets_the_digest_of_its_body(client: TestClient, name: str
             "fitAndCompare": "/v1/fitted-comparisons",
             "householdIndices": "/v1/household-indices", "uprating": "/v1/uprating",
             "indexTree": "/v1/index-tree",
+            "upratingFromIndexTree": "/v1/uprating/index-tree",
             "revealedPreference": "/v1/revealed-preference",
             "sensitivity": "/v1/sensitivity"}[operation]
     body = load_example(name)
@@ -415,6 +416,8 @@ def _requests(client: TestClient) -> dict[str, tuple[str, str, dict[str, Any]]]:
         "indexTree": ("POST", "/v1/index-tree",
                       {"json": load_example("indexTree.wrenmouth_coicop.json")}),
         "sheetIndexTree": ("GET", "/v1/sheet/index-tree?node=07%20transport&period=2026-03", {}),
+        "upratingFromIndexTree": ("POST", "/v1/uprating/index-tree", {"json": load_example(
+            "upratingFromIndexTree.wrenmouth_pension_from_the_tree.json")}),
         "sheetSweep": ("GET", f"/v1/sheet/sweep?{SHEET_QUERY}&values=0.2,1", {}),
         "revealedPreference": ("POST", "/v1/revealed-preference", {"json": load_example(
             "revealedPreference.wrenmouth_household_diary.json")}),
@@ -441,7 +444,8 @@ def test_every_operation_is_covered(client: TestClient) -> None:
      "fitModelCsv", "fitAndCompare", "householdIndices", "createHouseholdJob",
      "householdIndicesFromCsv", "getHouseholdJob", "listPreferenceFamilies", "listIndexFormulas",
      "demo", "sheetValue", "sheetComparison", "sheetSeries", "uprating", "sheetUprating",
-     "indexTree", "sheetIndexTree", "sheetSweep", "revealedPreference", "sensitivity"]))
+     "indexTree", "sheetIndexTree", "sheetSweep", "revealedPreference", "sensitivity",
+     "upratingFromIndexTree"]))
 def test_an_accept_header_that_admits_nothing_gets_406(client: TestClient, operation: str) -> None:
     method, path, kwargs = _requests(client)[operation]
     headers = {**kwargs.pop("headers", {}), "accept": "image/png"}
