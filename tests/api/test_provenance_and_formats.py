@@ -416,6 +416,8 @@ def _requests(client: TestClient) -> dict[str, tuple[str, str, dict[str, Any]]]:
         "indexTree": ("POST", "/v1/index-tree",
                       {"json": load_example("indexTree.wrenmouth_coicop.json")}),
         "sheetIndexTree": ("GET", "/v1/sheet/index-tree?node=07%20transport&period=2026-03", {}),
+        "indexTreeFromCsv": ("POST", f"/v1/index-tree/csv?{tree_csv_query()}",
+                             {"content": tree_csv().encode(), **csv_upload}),
         "upratingFromIndexTree": ("POST", "/v1/uprating/index-tree", {"json": load_example(
             "upratingFromIndexTree.wrenmouth_pension_from_the_tree.json")}),
         "sheetSweep": ("GET", f"/v1/sheet/sweep?{SHEET_QUERY}&values=0.2,1", {}),
@@ -424,6 +426,21 @@ def _requests(client: TestClient) -> dict[str, tuple[str, str, dict[str, Any]]]:
         "sensitivity": ("POST", "/v1/sensitivity", {"json": load_example(
             "sensitivity.stone_geary_pensioner_frisch.json")}),
     }
+
+
+def tree_csv() -> str:
+    """The Wrenmouth demo tree's quotes as a long CSV table (tests/api/test_index_tree_csv.py)."""
+    from tests.api.test_index_tree_csv import as_csv, demo, records
+
+    return as_csv(records(demo()))
+
+
+def tree_csv_query() -> str:
+    from urllib.parse import urlencode
+
+    from tests.api.test_index_tree_csv import demo, query
+
+    return urlencode(query(demo()))
 
 
 def test_every_operation_is_covered(client: TestClient) -> None:
@@ -445,7 +462,7 @@ def test_every_operation_is_covered(client: TestClient) -> None:
      "householdIndicesFromCsv", "getHouseholdJob", "listPreferenceFamilies", "listIndexFormulas",
      "demo", "sheetValue", "sheetComparison", "sheetSeries", "uprating", "sheetUprating",
      "indexTree", "sheetIndexTree", "sheetSweep", "revealedPreference", "sensitivity",
-     "upratingFromIndexTree"]))
+     "upratingFromIndexTree", "indexTreeFromCsv"]))
 def test_an_accept_header_that_admits_nothing_gets_406(client: TestClient, operation: str) -> None:
     method, path, kwargs = _requests(client)[operation]
     headers = {**kwargs.pop("headers", {}), "accept": "image/png"}

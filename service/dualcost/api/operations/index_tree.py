@@ -25,8 +25,12 @@ from ...core.aggregation import Link, Quotes
 from ...core.errors import InvalidInput
 from ...core.hierarchy import Hierarchy, build_hierarchy
 from ...core.index_tree import IndexTree, index_tree
+from ..inputs.csv import parse_number
 from ..inputs.locator import Form, Locator, Place
+from ..inputs.query import json_parameter, validated
+from ..inputs.quotes import QuoteTable
 from ..observability import computing
+from ..problems import RequestProblem
 from ..render import finite
 from ..schemas.common import CAUTION
 from ..schemas.index_tree import IndexTreeRequest, NodeIn
@@ -42,6 +46,15 @@ PLACES: dict[str, Place] = {
     "upper": Place("/upper_formula", "upper_formula"),
     "sigma_fit": Place("/sigma_fit", "sigma_fit"),
     "sigma_fallback": Place("/sigma_fallback", "sigma_fallback"),
+}
+#: The places of the CSV upload: the tree and the links as JSON text in query parameters, the
+#: quotes in the CSV (an error about a quote at its first record's aggregate cell).
+CSV_PLACES: dict[str, Place] = {
+    **PLACES,
+    "tree": Place("/tree", "tree", "path", json_text=True),
+    "links": Place("/links", "links", "path", json_text=True),
+    "quotes": Place("/quotes", None, "path", column="aggregate"),
+    "sigma_by_level": Place("/sigma_by_level", "sigma_by_level", "scalar"),
 }
 #: The core's node-level arguments, and the field of a flat node each is about.
 _NODE_FIELDS = {"name": "name", "parent": "parent", "formula": "formula", "sigma": "sigma",
@@ -69,7 +82,41 @@ class Outcome:
 
 
 def locator(form: Form = "json") -> Locator:
-    return Locator(PLACES, form)
+    return Locator(CSV_PLACES if form == "csv" else PLACES, form)
+
+
+#: The query parameters of the CSV upload that are options of the JSON form, as they are.
+CSV_OPTIONS = ("elementary_formula", "upper_formula", "sigma_fit", "sigma_fallback",
+               "weight_tolerance", "normalise_weights", "reference_value")
+
+
+def csv_request(query: dict[str, Any], quotes: QuoteTable, loc: Locator) -> IndexTreeRequest:
+    """The request of a CSV upload: the quotes from the CSV, the tree and links from their
+    query parameters' JSON text, the options as given; errors name the query parameter."""
+    body: dict[str, Any] = {"periods": quotes.periods, "quotes": quotes.quotes,
+                            "tree": json_parameter("tree", query["tree"], TREE_EXAMPLE),
+                            "links": json_parameter("links", query["links"], LINKS_EXAMPLE)}
+    body |= {k: query[k] for k in CSV_OPTIONS if query.get(k) is not None}
+    if query.get("sigma_by_level"):
+        body["sigma_by_level"] = numbers_of(query["sigma_by_level"], "sigma_by_level")
+    request: IndexTreeRequest = validated(IndexTreeRequest, body, loc)
+    return request
+
+
+TREE_EXAMPLE = '{"name": "all items", "children": [{"name": "bread"}, {"name": "fish"}]}'
+LINKS_EXAMPLE = '[{"period": "2024-12", "weights": {"bread": 60, "fish": 40}}]'
+
+
+def numbers_of(text: str, name: str) -> list[float]:
+    """Comma-separated numbers of a query parameter (``0.3,0.7,1``)."""
+    out = []
+    for k, part in enumerate(text.split(",")):
+        value = parse_number(part.strip())
+        if value is None:
+            raise RequestProblem.at(f"#/query/{name}/{k}", f"{part.strip()!r} is not a number; "
+                                    f"give comma-separated numbers such as 0.3,0.7,1")
+        out.append(value)
+    return out
 
 
 def flatten(tree: NodeIn | list[Any]) -> Nodes:
@@ -359,5 +406,5 @@ def value(outcome: Outcome, node: str, period: str, measure: str) -> float | Non
     return (scale if measure == "konus" else 1.0) * float(source[k, column])
 
 
-__all__ = ["Outcome", "PLACES", "Translated", "document", "flatten", "locator", "pointing", "run",
-           "scale_of", "table", "translate", "tree_options", "value"]
+__all__ = ["CSV_PLACES", "Outcome", "PLACES", "Translated", "csv_request", "document", "flatten",
+           "locator", "pointing", "run", "scale_of", "table", "translate", "tree_options", "value"]
