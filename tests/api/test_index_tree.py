@@ -366,3 +366,24 @@ def test_bad_fit_options_are_named_by_field(client: TestClient, change: dict[str
     b = body() | change
     found = errors(client.post("/v1/index-tree", json=b))
     assert found[0]["pointer"] == pointer
+
+
+def test_the_readme_states_the_fitted_examples_figures(client: TestClient) -> None:
+    import re
+
+    from tests.conftest import ROOT
+
+    readme = re.sub(r"\s+", " ", (ROOT / "README.md").read_text(encoding="utf-8"))
+    found = re.search(r"give food a sigma of ([\d.]+) \(standard error ([\d.]+), three degrees "
+                      r"of freedom\), and in 2026-06 all items stand at ([\d.]+) against a Konüs "
+                      r"index of ([\d.]+) under the fitted sigmas", readme)
+    assert found is not None
+    answer = client.post("/v1/index-tree",
+                         json=load_example("indexTree.wrenmouth_fitted_sigma.json")).json()
+    food = next(e for e in answer["sigma_fit"]["estimates"]
+                if e["nodes"] == ["01 food and non-alcoholic beverages"])
+    root = answer["nodes"][0]
+    values = (food["sigma"], food["standard_error"], root["index"][-1], root["konus"][-1])
+    for text, value in zip(found.groups(), values, strict=True):
+        assert text == f"{value:.2f}"
+    assert food["degrees_of_freedom"] == 3

@@ -143,3 +143,21 @@ def test_bad_input_names_the_cell_or_the_query_parameter(client: TestClient, cha
     first = r.json()["errors"][0]
     assert first["pointer"] == pointer, first
     assert words in first["detail"], first
+
+
+def test_the_shipped_files_are_the_demo_tree_and_the_upload_answers_as_the_json_form(
+        client: TestClient) -> None:
+    """docs/examples/wrenmouth_quotes.csv, wrenmouth_tree.json and wrenmouth_links.json (the
+    README's command) are the demo tree's quotes, tree and links."""
+    from tests.conftest import ROOT
+
+    folder = ROOT / "docs" / "examples"
+    body = demo()
+    text = (folder / "wrenmouth_quotes.csv").read_text(encoding="utf-8")
+    assert text == as_csv(records(body))
+    tree = (folder / "wrenmouth_tree.json").read_text(encoding="utf-8")
+    links = (folder / "wrenmouth_links.json").read_text(encoding="utf-8")
+    assert json.loads(tree) == body["tree"] and json.loads(links) == body["links"]
+    r = post(client, text, {"tree": tree, "links": links, "sigma_by_level": "0.3,0.7,1,1"})
+    want = client.post("/v1/index-tree", json=body).json()
+    assert r.status_code == 200 and r.json()["nodes"] == want["nodes"]

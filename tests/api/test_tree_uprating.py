@@ -129,3 +129,21 @@ def test_bad_clauses_and_nodes_are_named_by_field(client: TestClient, change: di
     [e] = r.json()["errors"]
     assert e["pointer"] == pointer, e
     assert words in e["detail"], e
+
+
+def test_the_readme_states_the_examples_figures(client: TestClient) -> None:
+    """The README's figures for the example are the answer's, to the decimals written."""
+    import re
+
+    from tests.conftest import ROOT
+
+    readme = re.sub(r"\s+", " ", (ROOT / "README.md").read_text(encoding="utf-8"))
+    found = re.search(r"never down: ([\d.]+) percent under the published Lowe index against "
+                      r"([\d.]+) under the Konüs index, ([\d.]+) more paid by 2026-06", readme)
+    assert found is not None
+    answer = client.post("/v1/uprating/index-tree", json=body()).json()
+    got = factors(answer, 0)
+    lowe = next(m for m in answer["clauses"][0]["money"] if m["index"] == "lowe")
+    values = (100 * (got["lowe"] - 1), 100 * (got["konus"] - 1), lowe["difference_vs_konus_total"])
+    for text, value in zip(found.groups(), values, strict=True):
+        assert text == f"{value:.{len(text.split('.')[1])}f}"

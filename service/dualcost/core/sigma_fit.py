@@ -29,6 +29,11 @@ index, the same figure Lowe price-updates with).
 Not identified: a group with one child, a tree with one link, or children whose prices moved in
 proportion (no relative price change). Such a group, and one whose estimate is below 0 (outside
 the CES model's regular region), takes its fallback sigma; a notice names it and the value.
+
+Why not :mod:`dualcost.core.estimation`: it fits a nested CES jointly on item budget shares of
+a panel of budgets by nonlinear least squares. A tree has a few periods of weights per link and
+price indices of groups, not items' prices; on those the differenced share equation is linear
+in ``1 - sigma`` and has the closed-form estimate and standard error above.
 """
 
 from __future__ import annotations
