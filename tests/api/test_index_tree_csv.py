@@ -161,3 +161,28 @@ def test_the_shipped_files_are_the_demo_tree_and_the_upload_answers_as_the_json_
     r = post(client, text, {"tree": tree, "links": links, "sigma_by_level": "0.3,0.7,1,1"})
     want = client.post("/v1/index-tree", json=body).json()
     assert r.status_code == 200 and r.json()["nodes"] == want["nodes"]
+
+
+def test_the_client_uploads_the_quotes_and_runs_clauses_on_the_tree(client: TestClient) -> None:
+    """dualcost.client.Client.index_tree_csv and uprating_from_index_tree, through the app
+    in-process: the same answers as the operations give."""
+    import httpx
+
+    from dualcost.client import Client
+
+    def handler(request: httpx.Request) -> httpx.Response:
+        r = client.request(request.method, str(request.url.copy_with(scheme="http",
+                                                                      host="testserver")),
+                           content=request.content, headers=dict(request.headers))
+        return httpx.Response(r.status_code, content=r.content, headers=r.headers)
+
+    body = demo()
+    clauses = load_example("upratingFromIndexTree.wrenmouth_pension_from_the_tree.json")
+    with Client("http://dualcost.test", transport=httpx.MockTransport(handler)) as dc:
+        answer = dc.index_tree_csv(as_csv(records(body)), tree=body["tree"], links=body["links"],
+                                   sigma_by_level=body["sigma_by_level"])
+        upratings = dc.uprating_from_index_tree(clauses)
+    assert isinstance(answer, dict) and isinstance(upratings, dict)
+    assert answer["nodes"] == client.post("/v1/index-tree", json=body).json()["nodes"]
+    assert upratings["clauses"] == client.post("/v1/uprating/index-tree",
+                                               json=clauses).json()["clauses"]
