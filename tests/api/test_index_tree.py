@@ -355,6 +355,8 @@ def test_fitted_sigmas_come_with_their_standard_errors_data_and_notices(
                and "1.5 (its own sigma)" in m for m in notices)
     assert any("'all items > 07 transport'" in m and "below 0" in m for m in notices)
     assert by_node["07 transport"].sigma == 0.5  # its own sigma, as the notice says
+    [over] = [n.message for n in answer.notices if n.code == "sigma_fitted_over_given"]
+    assert "'01 food and non-alcoholic beverages' 0.9 (its own sigma) -> 0.9002" in over
 
 
 @pytest.mark.parametrize(("change", "pointer"), [

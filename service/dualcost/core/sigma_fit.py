@@ -168,6 +168,13 @@ def fit_sigmas(h: Hierarchy, shares: Sequence[Array], prices: Sequence[Array],
         est = _estimate(h, nodes, level, members, fallback, fallback_source, notices)
         sigmas[list(nodes)] = est.used
         estimates.append(est)
+    replaced = [f"{h.names[g]!r} {fallback[g]:g} ({fallback_source[g]}) -> {sigmas[g]:.4g}"
+                for e in estimates if e.fitted for g in e.nodes
+                if fallback_source[g] != "sigma_fallback"]
+    if replaced:
+        notices.append(Notice("sigma_fitted_over_given", f"sigma_fit replaces the sigmas given "
+                              f"for {len(replaced)} group(s) by their fits (the given values "
+                              f"serve only where a fit cannot be had): {'; '.join(replaced)}."))
     return SigmaFits(method, tuple(estimates), tuple(data), sigmas, tuple(notices))
 
 
