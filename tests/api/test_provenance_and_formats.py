@@ -210,6 +210,7 @@ def test_every_example_gets_the_digest_of_its_body(client: TestClient, name: str
             "fitAndCompare": "/v1/fitted-comparisons",
             "householdIndices": "/v1/household-indices", "uprating": "/v1/uprating",
             "indexTree": "/v1/index-tree",
+            "upratingFromIndexTree": "/v1/uprating/index-tree",
             "revealedPreference": "/v1/revealed-preference",
             "sensitivity": "/v1/sensitivity",
             "fittedSensitivity": "/v1/fitted-sensitivity"}[operation]
@@ -423,6 +424,10 @@ def _requests(client: TestClient) -> dict[str, tuple[str, str, dict[str, Any]]]:
         "indexTree": ("POST", "/v1/index-tree",
                       {"json": load_example("indexTree.wrenmouth_coicop.json")}),
         "sheetIndexTree": ("GET", "/v1/sheet/index-tree?node=07%20transport&period=2026-03", {}),
+        "indexTreeFromCsv": ("POST", f"/v1/index-tree/csv?{tree_csv_query()}",
+                             {"content": tree_csv().encode(), **csv_upload}),
+        "upratingFromIndexTree": ("POST", "/v1/uprating/index-tree", {"json": load_example(
+            "upratingFromIndexTree.wrenmouth_pension_from_the_tree.json")}),
         "sheetSweep": ("GET", f"/v1/sheet/sweep?{SHEET_QUERY}&values=0.2,1", {}),
         "revealedPreference": ("POST", "/v1/revealed-preference", {"json": load_example(
             "revealedPreference.wrenmouth_household_diary.json")}),
@@ -431,6 +436,21 @@ def _requests(client: TestClient) -> dict[str, tuple[str, str, dict[str, Any]]]:
         "fittedSensitivity": ("POST", "/v1/fitted-sensitivity", {"json": load_example(
             "fittedSensitivity.wrenmouth_quarterly_three_families.json")}),
     }
+
+
+def tree_csv() -> str:
+    """The Wrenmouth demo tree's quotes as a long CSV table (tests/api/test_index_tree_csv.py)."""
+    from tests.api.test_index_tree_csv import as_csv, demo, records
+
+    return as_csv(records(demo()))
+
+
+def tree_csv_query() -> str:
+    from urllib.parse import urlencode
+
+    from tests.api.test_index_tree_csv import demo, query
+
+    return urlencode(query(demo()))
 
 
 def test_every_operation_is_covered(client: TestClient) -> None:
@@ -452,7 +472,8 @@ def test_every_operation_is_covered(client: TestClient) -> None:
      "householdIndicesFromCsv", "getHouseholdJob", "listPreferenceFamilies", "listIndexFormulas",
      "demo", "sheetValue", "sheetComparison", "sheetSeries", "uprating", "sheetUprating",
      "indexTree", "sheetIndexTree", "sheetSweep", "revealedPreference", "sensitivity",
-     "getHouseholdJobResults", "getRun", "listRuns", "rerunRun", "fittedSensitivity"]))
+     "getHouseholdJobResults", "getRun", "listRuns", "rerunRun", "fittedSensitivity",
+     "upratingFromIndexTree", "indexTreeFromCsv"]))
 def test_an_accept_header_that_admits_nothing_gets_406(client: TestClient, operation: str) -> None:
     method, path, kwargs = _requests(client)[operation]
     headers = {**kwargs.pop("headers", {}), "accept": "image/png"}

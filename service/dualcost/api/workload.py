@@ -194,3 +194,15 @@ def groups_of_nodes(tree: Any) -> int:
 
 def of_index_tree(arguments: Mapping[str, Any]) -> float:
     return index_tree(arguments["body"])
+
+
+def index_tree_csv(text: str, tree: Any) -> float:
+    """An index tree over quotes uploaded as CSV: every record a quote cell, and every node
+    (counted by its names in the tree's JSON text) in as many periods as there could be."""
+    records = text.count("\n") + 1
+    nodes = tree.count('"name"') if isinstance(tree, str) else 0
+    return PER_QUOTE_CELL * records + PER_GROUP * nodes * min(records, 1_000)
+
+
+def of_index_tree_csv(arguments: Mapping[str, Any]) -> float:
+    return index_tree_csv(arguments["text"], arguments.get("tree"))
