@@ -357,7 +357,7 @@ function renderForm() {
     } })));
   if (view.extras) parts.push(...view.extras(body));
   // Any operation can keep its run (save=true): off by default, on for this tab once ticked.
-  const keep = view.saves === false ? null : el("label", { class: "check", for: "save-run" },
+  const keep = view.saves === false ? null : el("label", { class: "keep-run", for: "save-run" },
     el("input", { type: "checkbox", id: "save-run", checked: sessionStorage.getItem("dualcost-save") === "1",
       onchange: (e) => sessionStorage.setItem("dualcost-save", e.target.checked ? "1" : "0") }),
     " Keep this run (save=true): the input, answer and version, to open or re-run later under Saved runs");
