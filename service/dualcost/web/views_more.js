@@ -263,18 +263,29 @@
   const familyName = (a, k) => a.families[k].comparison.family;
   const bandOf = (a, m) => a.band.find((b) => b.measure === m);
   const formulasOf = (a) => a.families[0].comparison.formulas.map((f) => f.formula);
+  // Per measure (a row): each family's interval as a bar with its estimate as a black tick in the
+  // same slot (one stack per family), the band across the families shaded behind them.
   function intervalChart(a, measures, labels, scale, xTitle) {
-    const n = a.families.length;
-    const datasets = a.families.map((_, k) => ({ label: `${familyName(a, k)}: 95% interval`,
-      data: measures.map((m) => { const i = (bandOf(a, m) || { intervals: [] }).intervals.find((x) => x.family === k); return i ? [scale(i.low), scale(i.high)] : null; }) }));
+    const pick = (m, k) => (bandOf(a, m) || { intervals: [] }).intervals.find((x) => x.family === k);
+    const all = measures.flatMap((m) => (bandOf(a, m) || { intervals: [] }).intervals.flatMap((i) => [scale(i.low), scale(i.high)]));
+    const tick = Math.max((Math.max(...all) - Math.min(...all)) / 250, 1e-9);
+    const datasets = a.families.flatMap((_, k) => [
+      { label: `${familyName(a, k)}: 95% interval`, stack: `f${k}`, barPercentage: 0.8, backgroundColor: C.colour(k), borderColor: C.colour(k),
+        data: measures.map((m) => { const i = pick(m, k); return i ? [scale(i.low), scale(i.high)] : null; }) },
+      { label: "estimate (black tick)", stack: `f${k}`, barPercentage: 0.8, backgroundColor: "#000", borderColor: "#000",
+        data: measures.map((m) => { const i = pick(m, k); return i ? [scale(i.estimate) - tick, scale(i.estimate) + tick] : null; }) }]);
     datasets.push({ label: "band across the families (estimates)", data: measures.map((m) => { const b = bandOf(a, m); return b ? [scale(b.low), scale(b.high)] : null; }),
       backgroundColor: "rgba(0,0,0,0.14)", borderColor: "rgba(0,0,0,0.4)", borderWidth: 1, grouped: false, barPercentage: 1, categoryPercentage: 1, order: 10 });
     const config = C.barConfig({ labels, datasets, xTitle: "", yTitle: xTitle });
     config.options.scales.x.beginAtZero = false;
-    config.options.plugins.tooltip.callbacks = { label: (ctx) => `${ctx.dataset.label}: ${fmt(ctx.raw[0], 4)} to ${fmt(ctx.raw[1], 4)}` };
-    config.data.datasets.forEach((d, i) => { if (i < n) d.barPercentage = 0.8; });
+    // One legend entry for the estimate ticks; the tooltip gives each interval and estimate.
+    config.options.plugins.legend.labels.filter = (item) => item.text !== "estimate (black tick)" || item.datasetIndex === 1;
+    config.options.plugins.tooltip.callbacks = { label: (ctx) => (ctx.dataset.label.startsWith("estimate")
+      ? `${familyName(a, Math.floor(ctx.datasetIndex / 2))} estimate: ${fmt((ctx.raw[0] + ctx.raw[1]) / 2, 4)}`
+      : `${ctx.dataset.label}: ${fmt(ctx.raw[0], 4)} to ${fmt(ctx.raw[1], 4)}`) };
     return config;
   }
+  const formulaTitles = (a) => a.families[0].comparison.formulas.map((f) => f.title);
   const fitted = {
     id: "fitted-sensitivity",
     title: "Fitted sensitivity",
@@ -312,7 +323,7 @@
         { id: "fs-band-high", label: "band across families: high", value: bandOf(a, "konus_base").high }] },
       { kind: "chart", id: "fs-bias-chart", title: "Each formula's bias by family (95% bootstrap interval), the band across families shaded",
         height: (a) => 120 + formulasOf(a).length * (30 + 16 * a.families.length),
-        chart: (a) => intervalChart(a, formulasOf(a).map((f) => `${f}_bias_points`), formulasOf(a), (x) => x, "bias, index points on base 100 (0 = no bias)") },
+        chart: (a) => intervalChart(a, formulasOf(a).map((f) => `${f}_bias_points`), formulaTitles(a), (x) => x, "bias, index points on base 100 (0 = no bias)") },
       { kind: "chart", id: "fs-konus-chart", title: "The Konüs index by family (95% bootstrap interval), the band shaded",
         height: (a) => 140 + a.families.length * 40,
         chart: (a) => intervalChart(a, ["konus_base", "konus_current"], ["base living standard", "current living standard"], (x) => 100 * x, "Konüs index, base = 100") },
@@ -376,7 +387,7 @@
       { kind: "chart", id: "up-money-chart", title: (a) => `Money paid each period (${a.frequency}), starting from ${fmt(a.amount, 2)}`,
         chart: (a) => C.lineConfig({ labels: a.periods, xTitle: "period", yTitle: "amount paid per period",
           datasets: a.clauses.flatMap((c) => c.money.map((m) => ({ label: `${c.clause.name}: under ${m.index}`, data: m.paid,
-            borderDash: m.index === "konus" ? [6, 3] : [] }))) }) },
+            borderDash: m.index === "konus" ? [6, 3] : [], stepped: "before" }))) }) },
       { kind: "table", id: "up-table", title: "Upratings", rows: upratingRows, columns: [
         { title: "clause", get: (r) => r.clause }, { title: "measured in", get: (r) => r.measured_in },
         { title: "from", get: (r) => r.measured_from }, { title: "paid from", get: (r) => r.paid_from },
