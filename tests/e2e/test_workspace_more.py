@@ -198,3 +198,22 @@ def test_saved_runs_filter_by_operation_and_name_a_bad_time(
     assert since.get_attribute("aria-invalid") == "true"
     _screen_width_kept(browser)
     tw.screenshot(browser, "saved-runs-error")
+
+
+@pytest.mark.parametrize("view", ["runs", "household-jobs", "fitted-sensitivity", "uprating-tree"])
+def test_every_control_of_the_new_views_is_labelled(
+        live_url: str, browser: Any, view: str) -> None:  # noqa: F811
+    """Every input, menu and text box has a label (or an aria-label), the result's too, and the
+    Compute button is reached and pressed from the keyboard."""
+    from selenium.webdriver.common.keys import Keys
+
+    browser.get("about:blank")
+    browser.get(f"{live_url}/#{view}")
+    tw.wait(browser, 20).until(lambda d: d.find_elements(By.ID, "compute"))
+    browser.execute_script("document.getElementById('compute').focus()")
+    browser.switch_to.active_element.send_keys(Keys.ENTER)
+    tw.wait(browser, 90).until(lambda d: d.find_element(By.ID, "result").is_displayed())
+    unlabelled = browser.execute_script("""
+        return [...document.querySelectorAll('input, select, textarea, progress')].filter(i =>
+          !(i.labels && i.labels.length) && !i.getAttribute('aria-label')).map(i => i.outerHTML)""")
+    assert unlabelled == []
