@@ -78,11 +78,11 @@
   function runList(section, page) {
     const detail = el("section", { class: "block run-detail", id: "run-detail", hidden: true });
     const rows = page.runs.map((r) => el("tr", { "data-run": r.id },
-      el("td", { text: r.created.replace("T", " ").replace(/\.\d+Z$/, "Z") }), el("td", { text: r.operation }),
-      el("td", { text: r.version }), el("td", { text: r.id.slice(0, 12) + "…" }),
-      el("td", {}, el("button", { type: "button", text: "Open", "aria-label": `open run ${r.id}`, onclick: () => openRun(detail, r.id).catch((e) => W.showError([String(e)])) }))));
+      el("td", {}, el("button", { type: "button", text: "Open", "aria-label": `open run ${r.id}`, onclick: () => openRun(detail, r.id).catch((e) => W.showError([String(e)])) })),
+      el("td", { text: r.operation }), el("td", { text: r.created.replace("T", " ").replace(/\.\d+Z$/, "Z") }),
+      el("td", { text: r.version }), el("td", { text: r.id.slice(0, 12) + "…" })));
     section.append(page.runs.length ? scroll("saved runs", el("table", { id: "runs-table" },
-      el("thead", {}, el("tr", {}, ...["saved (UTC)", "operation", "version", "run", ""].map((h) => el("th", { scope: "col", text: h })))),
+      el("thead", {}, el("tr", {}, ...["", "operation", "saved (UTC)", "version", "run"].map((h) => el("th", { scope: "col", text: h })))),
       el("tbody", {}, ...rows))) : el("p", { text: "No saved runs match. Tick 'Keep this run' under any view's Compute button to keep one." }));
     if (page.next) {
       section.append(el("button", { type: "button", id: "runs-older", text: "Older runs", onclick: async () => {
@@ -113,7 +113,7 @@
     downloads: ["json"],
     start: { title: "All my runs", body: () => ({}) },
     fields: [
-      { pointer: "/operation", label: "Operation", kind: "select", optional: true,
+      { pointer: "/operation", label: "Operation", kind: "select", optional: true, empty: "(all operations)",
         options: (cat) => Object.keys(cat.examples).sort().map((o) => [o, o]) },
       { pointer: "/since", label: "Saved since (ISO 8601, UTC)", kind: "text", optional: true, hint: "e.g. 2026-12-02 or 2026-12-02T13:00:00Z" },
       { pointer: "/until", label: "Saved before", kind: "text", optional: true },
@@ -213,7 +213,7 @@
     fields: [
       { kind: "model", pointer: "/model", label: "Preference model", families: ["cobb_douglas", "ces", "stone_geary", "translog", "quadratic"] },
       { kind: "formulas", pointer: "/formulas", label: "Formulas", scope: "households" },
-      { pointer: "/bad_rows", label: "Bad rows", kind: "select", optional: true, options: [["skip", "skip and list them"], ["reject", "refuse the file"]] },
+      { pointer: "/bad_rows", label: "Bad rows", kind: "select", optional: true, empty: "(service default: skip)", options: [["skip", "skip and list them"], ["reject", "refuse the file"]] },
     ],
     grids: [{ title: "Prices", rows: { pointer: "/items", title: "item" }, columns: [
       { title: "base price", pointer: "/base_prices/{row}" }, { title: "current price", pointer: "/current_prices/{row}" }] }],

@@ -161,7 +161,7 @@ function fieldInput(field, body, prefix) {
   if (field.kind === "select") {
     input = el("select", { id });
     const options = typeof field.options === "function" ? field.options(state.catalogue, body) : field.options;
-    if (field.optional) input.append(el("option", { value: "", text: "(service default)" }));
+    if (field.optional) input.append(el("option", { value: "", text: field.empty || "(service default)" }));
     for (const [v, label] of options) input.append(el("option", { value: v, text: label, selected: v === value }));
   } else {
     input = el("input", { id, type: "text", inputmode: field.kind === "number" ? "decimal" : null,
