@@ -122,6 +122,8 @@ async function loadCatalogue() {
 function scenarios(view) {
   const out = [];
   if (view.demo) out.push({ id: "demo", title: "Wrenmouth demo (GET /v1/demo)" });
+  // A view whose operation has no example of its own starts from what it builds (view.start).
+  if (view.start) out.push({ id: "start", title: view.start.title });
   const found = state.catalogue.examples[view.operationId] || {};
   for (const [name, ex] of Object.entries(found)) {
     out.push({ id: `example:${name}`, title: `Example: ${ex.summary || name}` });
@@ -133,6 +135,7 @@ async function loadScenario(id) {
   const view = state.view;
   let body;
   if (id === "demo") body = (await getJson(view.demo)).request;
+  else if (id === "start") body = await view.start.body(state.catalogue);
   else body = state.catalogue.examples[view.operationId][id.slice("example:".length)].value;
   state.body = clone(body);
   state.scenario = id;
@@ -158,7 +161,7 @@ function fieldInput(field, body, prefix) {
   if (field.kind === "select") {
     input = el("select", { id });
     const options = typeof field.options === "function" ? field.options(state.catalogue, body) : field.options;
-    if (field.optional) input.append(el("option", { value: "", text: "(service default)" }));
+    if (field.optional) input.append(el("option", { value: "", text: field.empty || "(service default)" }));
     for (const [v, label] of options) input.append(el("option", { value: v, text: label, selected: v === value }));
   } else {
     input = el("input", { id, type: "text", inputmode: field.kind === "number" ? "decimal" : null,
@@ -334,7 +337,7 @@ function renderForm() {
     el("div", { class: "row" },
       el("div", { class: "field" }, el("label", { for: "scenario", text: "Start from" }), picker),
       el("button", { type: "button", id: "load", text: "Load", onclick: () => loadScenario(picker.value).catch(showFailure) }),
-      el("div", { class: "field" }, el("label", { for: "upload", text: `Upload CSV (${view.csv.columns})` }), file)),
+      view.csv ? el("div", { class: "field" }, el("label", { for: "upload", text: `Upload CSV (${view.csv.columns})` }), file) : null),
     view.note ? el("p", { class: "hint", text: view.note }) : null,
   ];
   const fields = el("div", { class: "fields" });
@@ -352,8 +355,14 @@ function renderForm() {
     json, el("button", { type: "button", text: "Use this JSON", onclick: () => {
       try { state.body = JSON.parse(json.value); renderForm(); } catch (e) { showError([`The request JSON: ${e.message}`]); }
     } })));
+  if (view.extras) parts.push(...view.extras(body));
+  // Any operation can keep its run (save=true): off by default, on for this tab once ticked.
+  const keep = view.saves === false ? null : el("label", { class: "keep-run", for: "save-run" },
+    el("input", { type: "checkbox", id: "save-run", checked: sessionStorage.getItem("dualcost-save") === "1",
+      onchange: (e) => sessionStorage.setItem("dualcost-save", e.target.checked ? "1" : "0") }),
+    " Keep this run (save=true): the input, answer and version, to open or re-run later under Saved runs");
   parts.push(el("div", { class: "row actions" },
-    el("button", { type: "submit", id: "compute", class: "primary", text: view.action || "Compute" })));
+    el("button", { type: "submit", id: "compute", class: "primary", text: view.action || "Compute" }), keep));
   form.replaceChildren(...parts.filter(Boolean));
 }
 
@@ -420,17 +429,45 @@ async function compute() {
     return;
   }
   say("Computing…");
-  const response = await fetch(state.view.path, { method: "POST",
-    headers: headers("application/json", true), body: JSON.stringify(body) });
-  const answer = await response.json();
+  const save = $("save-run") && $("save-run").checked;
+  // A view that is more than one POST (a job, a listing) says how it is answered: view.submit.
+  const { ok, answer, run } = state.view.submit ? await state.view.submit(body, { save, headers })
+    : await post(state.view.path + (save ? "?save=true" : ""), body);
   $("status").textContent = "";
-  if (!response.ok) {
+  if (!ok) {
     showProblem(answer);
     return;
   }
   state.answer = answer;
   state.sent = body;
+  state.run = run || null;
   renderAnswer(answer);
+}
+
+async function post(path, body) {
+  const response = await fetch(path, { method: "POST",
+    headers: headers("application/json", true), body: JSON.stringify(body) });
+  return { ok: response.ok, answer: await response.json(), run: response.headers.get("Dualcost-Run") };
+}
+
+// The run kept (save=true): its id, a link to its record and a way to open it in Saved runs.
+function runLine() {
+  if (!state.run) return null;
+  const runs = state.views.find((v) => v.id === "runs");
+  return el("p", { id: "run-saved", class: "saved", role: "note" }, "Kept as run ",
+    el("a", { href: `/v1/runs/${state.run}`, id: "run-link", text: state.run }), ". ",
+    runs ? el("button", { type: "button", id: "open-run", text: "Open it in Saved runs", onclick: () => {
+      state.pendingRun = state.run; history.replaceState(null, "", "#runs"); showView("runs").catch(showFailure); } }) : null);
+}
+
+// Open a view with a request already made (a saved run's input, say): as if it had been typed.
+async function openWith(id, body) {
+  history.replaceState(null, "", `#${id}`);
+  await showView(id);
+  state.body = clone(body);
+  state.scenario = "";
+  renderForm();
+  $("form").scrollIntoView({ block: "start" });
 }
 
 // A problem's JSON pointers become the rows, columns and fields the person typed into.
@@ -520,6 +557,11 @@ const BLOCKS = {
   text(section, block, answer) {
     section.append(el("p", { text: block.text(answer) }));
   },
+  // A view's own drawing (a list with buttons, a panel that fetches more): it fills the section
+  // and may return a function to run once the section is on the page.
+  custom(section, block, answer) {
+    return block.render(section, answer);
+  },
 };
 
 // A block's section: its title, the notices that change its meaning, then what its kind draws.
@@ -551,7 +593,7 @@ function renderAnswer(answer) {
   const downloads = el("div", { class: "row" }, ...offered.map((kind) => el("button", { type: "button",
     id: `download-${kind}`, text: `Download ${kind.toUpperCase()}`, onclick: () => download(kind).catch(showFailure) })));
   const sens = state.view.sensitivity ? sensitivityBlock(state.view.sensitivity) : null;
-  out.replaceChildren(...[el("h2", { text: "Result", tabindex: "-1", id: "result-title" }), downloads, ...blocks, sens].filter(Boolean));
+  out.replaceChildren(...[el("h2", { text: "Result", tabindex: "-1", id: "result-title" }), runLine(), downloads, ...blocks, sens].filter(Boolean));
   out.hidden = false;
   for (const b of blocks) if (b._draw) b._draw();
   $("result-title").focus({ preventScroll: true });
@@ -564,8 +606,9 @@ async function download(kind) {
   if (kind === "json") {
     blob = new Blob([JSON.stringify(state.answer, null, 1)], { type: "application/json" });
   } else {
-    const response = await fetch(state.view.path, { method: "POST",
-      headers: headers("text/csv", true), body: JSON.stringify(state.sent) });
+    // A view whose CSV is elsewhere (a job's results) names it: view.csvUrl(answer).
+    const response = state.view.csvUrl ? await fetch(state.view.csvUrl(state.answer), { headers: headers("text/csv") })
+      : await fetch(state.view.path, { method: "POST", headers: headers("text/csv", true), body: JSON.stringify(state.sent) });
     if (!response.ok) throw new Error(`The CSV answer was refused (${response.status}).`);
     blob = new Blob([await response.text()], { type: "text/csv" });
   }
@@ -669,6 +712,8 @@ async function showView(id) {
   const first = scenarios(view)[0];
   if (first) await loadScenario(first.id);
   else { state.body = {}; renderForm(); }
+  // A view that only reads (a listing) answers as soon as it is opened.
+  if (view.computeOnOpen) await compute();
 }
 
 async function boot(views) {
@@ -701,4 +746,4 @@ async function boot(views) {
 // A plain line under the form about something the page did (not an error).
 const say = (text) => { $("status").textContent = text; };
 
-window.dualcost = { boot, fmt, el, getAt, WITHHELD, state, say };
+window.dualcost = { boot, fmt, el, getAt, WITHHELD, state, say, headers, showError, showProblem, showView, openWith, Located };

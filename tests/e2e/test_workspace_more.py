@@ -1,0 +1,219 @@
+"""The page's further views end to end (service/dualcost/web/views_more.js): saved runs, household
+jobs for large files, fitted sensitivity across families and uprating on a tree's node.
+
+Same set-up as tests/e2e/test_workspace.py (its browser fixture, at 1366x900 and 390x844, and its
+checks, reused): each view starts from the service's own example, computes, and shows the numbers
+the JSON API answers to the same request; a bad cell is named by its row and column; the page is
+never wider than the screen; nothing is fetched from another host; screenshots go to
+test-artifacts/workspace/. The reference numbers are the service's own JSON answers: this checks
+the page against the API, not the economics (tests/api and tests/core do that).
+"""
+
+from __future__ import annotations
+
+import time
+from typing import Any
+from urllib.parse import urlsplit
+
+import httpx
+import pytest
+
+from tests.conftest import load_example
+from tests.e2e import test_workspace as tw
+from tests.e2e.test_api_docs import assert_nothing_left_the_machine, console_errors, requests_made
+from tests.e2e.test_workspace import ViewCase, browser  # noqa: F401  (the fixture, reused)
+
+webdriver = pytest.importorskip("selenium.webdriver")
+from selenium.webdriver.common.by import By  # noqa: E402
+
+
+def _band(answer: dict[str, Any], measure: str) -> dict[str, Any]:
+    return next(b for b in answer["band"] if b["measure"] == measure)
+
+
+def _uprating(answer: dict[str, Any], index: str) -> float:
+    first = answer["clauses"][0]["upratings"][0]
+    return float(next(b["factor"] for b in first["by_index"] if b["index"] == index))
+
+
+CASES = [
+    ViewCase("fitted-sensitivity", "/v1/fitted-sensitivity",
+             "fittedSensitivity.wrenmouth_quarterly_three_families.json", (
+                 ("fs-konus-0", lambda a: a["families"][0]["comparison"]["konus"]["base"], 4),
+                 ("fs-konus-2", lambda a: a["families"][2]["comparison"]["konus"]["base"], 4),
+                 ("fs-band-low", lambda a: _band(a, "konus_base")["low"], 4),
+                 ("fs-band-high", lambda a: _band(a, "konus_base")["high"], 4)), 1, 1, "current price"),
+    ViewCase("uprating-tree", "/v1/uprating/index-tree",
+             "upratingFromIndexTree.wrenmouth_pension_from_the_tree.json", (
+                 ("up-factor-published", lambda a: _uprating(a, a["upper_formula"]), 4),
+                 ("up-factor-konus", lambda a: _uprating(a, "konus"), 4),
+                 ("up-total-diff", lambda a: next(
+                     m["difference_vs_konus_total"] for m in a["clauses"][0]["money"]
+                     if m["index"] == a["upper_formula"]), 2)), 1, 0, "2024-01"),
+]
+IDS = [c.view for c in CASES]
+
+
+@pytest.mark.parametrize("case", CASES, ids=IDS)
+def test_each_new_view_computes_its_example_and_shows_the_apis_numbers(
+        live_url: str, browser: Any, case: ViewCase) -> None:  # noqa: F811
+    tw.test_each_view_computes_its_example_and_shows_the_apis_numbers(live_url, browser, case)
+    _screen_width_kept(browser)
+
+
+@pytest.mark.parametrize("case", CASES, ids=IDS)
+def test_each_new_view_names_the_row_and_column_of_a_bad_cell(
+        live_url: str, browser: Any, case: ViewCase) -> None:  # noqa: F811
+    tw.test_each_view_names_the_row_and_column_of_a_bad_cell(live_url, browser, case)
+    _screen_width_kept(browser)
+
+
+def _screen_width_kept(browser: Any) -> None:  # noqa: F811
+    """The layout is as wide as the screen: under a phone's emulation a page wider than the
+    screen widens the layout viewport itself (innerWidth), so scrollWidth <= innerWidth alone
+    would not see it."""
+    width, viewport = tw.page_width(browser)
+    screen = tw.SIZES[browser.size_name][0]
+    assert width <= screen and viewport == screen, f"{width}px of page, {viewport}px of viewport"
+
+
+def _no_foreign_fetches_and_fits(browser: Any, live_url: str) -> None:  # noqa: F811
+    _screen_width_kept(browser)
+    assert_nothing_left_the_machine(requests_made(browser), live_url)
+    host = urlsplit(live_url).netloc
+    entries = browser.execute_script(
+        "return performance.getEntries().map(e => e.name).filter(n => /^https?:/.test(n))")
+    assert entries and all(urlsplit(n).netloc == host for n in entries), entries
+    assert not console_errors(browser)
+
+
+def _job_csv(example: dict[str, Any], extra: str = "") -> str:
+    ids = [i["id"] for i in example["items"]]
+    lines = [",".join(["household", "expenditure", "weight", *ids])]
+    for h in example["households"]:
+        lines.append(",".join([h["id"], str(h["expenditure"]), str(h["weight"]),
+                               *(str(h["shares"][i]) for i in ids)]))
+    return "\n".join(lines + ([extra] if extra else []))
+
+
+def _job_by_api(live_url: str, spec: dict[str, Any], csv: str) -> dict[str, Any]:
+    job = httpx.post(live_url + "/v1/household-jobs", json=spec, timeout=60).json()
+    httpx.post(live_url + job["links"]["households"], content=csv, timeout=60,
+               headers={"content-type": "text/csv", "accept": "text/csv"})
+    return httpx.get(live_url + job["links"]["self"], timeout=60).json()
+
+
+def test_a_household_job_runs_a_file_and_shows_the_apis_summaries(
+        live_url: str, browser: Any, tmp_path: Any) -> None:  # noqa: F811
+    """The example's deciles as a file with one bad row: the job skips it and lists its file line
+    and column; the summaries are the job's as the API answers the same spec and file; the
+    results download is the job's CSV."""
+    example = load_example("householdIndices.wrenmouth_deciles_ces.json")
+    csv = _job_csv(example, "bad_row,abc,1," + ",".join(["0.1"] * len(example["items"])))
+    tw.open_view(browser, live_url, "household-jobs")
+    path = tmp_path / "deciles.csv"
+    path.write_text(csv, encoding="utf-8")
+    browser.find_element(By.ID, "households-file").send_keys(str(path))
+    tw.compute(browser)
+    sent = browser.execute_script("return window.dualcost.state.sent")
+    spec = {k: v for k, v in example.items() if k not in ("households", "band_models")}
+    assert sent == spec
+    job = _job_by_api(live_url, spec, csv)
+    konus = next(i for i in job["summary"][0]["indices"] if i["index"] == "konus")
+    assert browser.find_element(By.ID, "job-konus-democratic").text == f"{konus['democratic']:.4f}"
+    assert browser.find_element(By.ID, "job-konus-plutocratic").text == f"{konus['plutocratic']:.4f}"
+    assert browser.find_element(By.ID, "job-households").text == str(len(example["households"]))
+    assert browser.find_element(By.ID, "job-skipped").text == "1"
+    skipped = browser.find_element(By.CSS_SELECTOR, "#job-skipped-rows tbody tr").text
+    assert "12" in skipped and "expenditure" in skipped and "not_a_number" in skipped, skipped
+    assert "done" in browser.find_element(By.ID, "job-progress").text
+    _no_foreign_fetches_and_fits(browser, live_url)
+    tw.screenshot(browser, "household-jobs")
+    target = browser.downloads / "household-jobs.csv"
+    target.unlink(missing_ok=True)
+    browser.find_element(By.ID, "download-csv").click()
+    deadline = time.monotonic() + 20
+    while not target.exists() or not target.read_text(encoding="utf-8"):
+        assert time.monotonic() < deadline, "no CSV download"
+        time.sleep(0.1)
+    rows = target.read_text(encoding="utf-8").splitlines()
+    assert rows[0].startswith("household,row,record") and len(rows) == 1 + len(example["households"])
+
+
+def test_a_household_job_names_a_bad_price_by_its_row_and_column(
+        live_url: str, browser: Any) -> None:  # noqa: F811
+    tw.test_each_view_names_the_row_and_column_of_a_bad_cell(live_url, browser, ViewCase(
+        "household-jobs", "/v1/household-jobs", "", (), 0, 1, "current price"))
+
+
+def test_a_saved_comparison_is_listed_opened_and_rerun_with_no_differences(
+        live_url: str, browser: Any) -> None:  # noqa: F811
+    """'Keep this run' saves the comparison (save=true); Saved runs lists it, opens its input and
+    answer, and re-running it on this version reproduces every figure."""
+    tw.open_view(browser, live_url, "comparison")
+    keep = browser.find_element(By.ID, "save-run")
+    if not keep.is_selected():
+        keep.click()
+    tw.compute(browser)
+    run_id = browser.find_element(By.ID, "run-link").text
+    saved = httpx.get(f"{live_url}/v1/runs/{run_id}", timeout=30).json()
+    assert saved["operation"] == "compare"
+    assert saved["input"] == httpx.get(live_url + "/v1/demo").json()["request"]
+    browser.find_element(By.ID, "save-run").click()  # off again for the other tests
+    browser.find_element(By.ID, "open-run").click()
+    tw.wait(browser, 30).until(lambda d: d.find_elements(By.CSS_SELECTOR, f"tr[data-run='{run_id}']"))
+    tw.wait(browser, 30).until(lambda d: d.find_element(By.ID, "run-detail").is_displayed())
+    facts = browser.find_element(By.ID, "run-facts").text
+    assert "compare" in facts and saved["version"] in facts and saved["input_digest"] in facts
+    browser.find_element(By.ID, "rerun").click()
+    tw.wait(browser, 60).until(lambda d: d.find_elements(By.ID, "rerun-identical"))
+    rerun = httpx.post(f"{live_url}/v1/runs/{run_id}/rerun", timeout=60).json()
+    assert browser.find_element(By.ID, "rerun-identical").text == "yes"
+    assert browser.find_element(By.ID, "rerun-differing").text == "0"
+    assert browser.find_element(By.ID, "rerun-compared").text == str(rerun["figures_compared"])
+    _no_foreign_fetches_and_fits(browser, live_url)
+    tw.screenshot(browser, "saved-runs")
+
+
+def test_saved_runs_filter_by_operation_and_name_a_bad_time(
+        live_url: str, browser: Any) -> None:  # noqa: F811
+    httpx.post(live_url + "/v1/index-series?save=true", timeout=60,
+               json=load_example("indexSeries.wrenmouth_monthly_ces.json"))
+    browser.get("about:blank")
+    browser.get(f"{live_url}/#runs")
+    tw.wait(browser, 20).until(lambda d: d.find_elements(By.ID, "runs-count"))
+    from selenium.webdriver.support.ui import Select
+
+    Select(browser.find_element(By.ID, "runs-_operation")).select_by_value("indexSeries")
+    tw.compute(browser)
+    ops = {r.find_elements(By.TAG_NAME, "td")[1].text
+           for r in browser.find_elements(By.CSS_SELECTOR, "#runs-table tbody tr")}
+    assert ops == {"indexSeries"}
+    since = browser.find_element(By.ID, "runs-_since")
+    since.send_keys("yesterday")
+    browser.find_element(By.ID, "compute").click()
+    error = tw.wait(browser, 20).until(lambda d: d.find_element(By.ID, "error")
+                                       if d.find_element(By.ID, "error").is_displayed() else None)
+    assert "Saved since" in error.text and "ISO 8601" in error.text, error.text
+    assert since.get_attribute("aria-invalid") == "true"
+    _screen_width_kept(browser)
+    tw.screenshot(browser, "saved-runs-error")
+
+
+@pytest.mark.parametrize("view", ["runs", "household-jobs", "fitted-sensitivity", "uprating-tree"])
+def test_every_control_of_the_new_views_is_labelled(
+        live_url: str, browser: Any, view: str) -> None:  # noqa: F811
+    """Every input, menu and text box has a label (or an aria-label), the result's too, and the
+    Compute button is reached and pressed from the keyboard."""
+    from selenium.webdriver.common.keys import Keys
+
+    browser.get("about:blank")
+    browser.get(f"{live_url}/#{view}")
+    tw.wait(browser, 20).until(lambda d: d.find_elements(By.ID, "compute"))
+    browser.execute_script("document.getElementById('compute').focus()")
+    browser.switch_to.active_element.send_keys(Keys.ENTER)
+    tw.wait(browser, 90).until(lambda d: d.find_element(By.ID, "result").is_displayed())
+    unlabelled = browser.execute_script("""
+        return [...document.querySelectorAll('input, select, textarea, progress')].filter(i =>
+          !(i.labels && i.labels.length) && !i.getAttribute('aria-label')).map(i => i.outerHTML)""")
+    assert unlabelled == []
