@@ -71,6 +71,16 @@ def _konus_summary(answer: dict[str, Any]) -> dict[str, Any]:
     return next(i for i in answer["summary"][0]["indices"] if i["index"] == "konus")
 
 
+def _applied(answer: dict[str, Any], index: str) -> float:
+    """The first clause's last uprating, as applied under `index`."""
+    last = answer["clauses"][0]["upratings"][-1]
+    return float(next(b["applied_percent"] for b in last["by_index"] if b["index"] == index))
+
+
+def _range(ranges: list[dict[str, Any]], measure: str) -> dict[str, Any]:
+    return next(r for r in ranges if r["measure"] == measure)
+
+
 def _annual(answer: dict[str, Any]) -> float:
     return next(s["bias_pp_per_year"] for s in answer["annual_bias"]["by_series"]
                 if s["series"] == "laspeyres" and s["kind"] == "fixed_base")
@@ -105,8 +115,29 @@ CASES = [
     ViewCase("audits", "/v1/audits", "auditPublishedSeries.wrenmouth_monthly_bulletin.json", (
         ("audit-checked", lambda a: a["checked"], 0),
         ("audit-failed", lambda a: a["failed"], 0)), 1, 0, "Rye loaf, 800 g"),
+    ViewCase("uprating", "/v1/uprating", "uprating.wrenmouth_pensions_april.json", (
+        ("up-konus-applied", lambda a: _applied(a, "konus"), 2),
+        ("up-laspeyres-applied", lambda a: _applied(a, "laspeyres"), 2),
+        ("up-laspeyres-difference", lambda a: next(
+            m for m in a["clauses"][0]["money"] if m["index"] == "laspeyres")["difference_vs_konus_total"],
+         2)), 1, 0, "Rye loaf, 800 g"),
+    ViewCase("index-tree", "/v1/index-tree", "indexTree.wrenmouth_coicop.json", (
+        ("tree-index-last", lambda a: a["nodes"][0]["index"][-1], 3),
+        ("tree-konus-last", lambda a: a["nodes"][0]["konus"][-1], 3),
+        ("tree-bias-last", lambda a: a["nodes"][0]["bias_points"][-1], 3)), 0, 0, "2024-01"),
+    ViewCase("revealed", "/v1/revealed-preference", "revealedPreference.wrenmouth_household_diary.json", (
+        ("rp-efficiency", lambda a: a["consistency"]["efficiency_index"], 4),
+        ("rp-level", lambda a: a["bounds"]["efficiency_level"], 4)), 0, 0, "rye_loaf"),
+    ViewCase("sensitivity", "/v1/sensitivity", "sensitivity.stone_geary_pensioner_frisch.json", (
+        ("sens-band-low", lambda a: _range(a["band"], "konus_base")["low"], 4),
+        ("sens-band-high", lambda a: _range(a["band"], "konus_base")["high"], 4),
+        ("sens-grid-low", lambda a: _range(a["grid"]["range"], "konus_base")["low"], 4),
+        ("sens-grid-high", lambda a: _range(a["grid"]["range"], "konus_base")["high"], 4)), 0, 1,
+        "current price"),
 ]
 IDS = [c.view for c in CASES]
+#: The views added for uprating, the index tree, revealed preference and sensitivity.
+NEW_VIEWS = ("uprating", "index-tree", "revealed", "sensitivity")
 
 
 @pytest.fixture(scope="module", params=list(SIZES))
@@ -568,7 +599,10 @@ def test_a_rule_about_a_whole_row_names_the_row(live_url: str, browser: Any) -> 
 VIEW_OF = {"compare": ("comparison", "/v1/comparisons"), "indexSeries": ("series", "/v1/index-series"),
            "householdIndices": ("households", "/v1/household-indices"),
            "fitModel": ("fits", "/v1/fits"), "auditPublishedSeries": ("audits", "/v1/audits"),
-           "fitAndCompare": ("fitted", "/v1/fitted-comparisons")}
+           "fitAndCompare": ("fitted", "/v1/fitted-comparisons"),
+           "uprating": ("uprating", "/v1/uprating"), "indexTree": ("index-tree", "/v1/index-tree"),
+           "revealedPreference": ("revealed", "/v1/revealed-preference"),
+           "sensitivity": ("sensitivity", "/v1/sensitivity")}
 EXAMPLES = sorted(p.name for p in (ROOT / "openapi_examples").glob("*.json")
                   if p.name.split(".")[0] in VIEW_OF)
 
