@@ -696,3 +696,169 @@ def test_a_warning_that_changes_a_figure_sits_beside_it(live_url: str, browser: 
     expected = next(n["message"] for n in demo["notices"]
                     if n["code"] == "current_quantities_from_model")
     assert any(expected in w for w in warnings), warnings
+
+
+def choose(browser: Any, select_id: str, text: str) -> None:
+    from selenium.webdriver.support.ui import Select
+
+    Select(browser.find_element(By.ID, select_id)).select_by_visible_text(text)
+
+
+def table_cells(browser: Any, table_id: str) -> list[list[str]]:
+    return browser.execute_script(
+        "return [...document.querySelectorAll('#' + arguments[0] + ' tbody tr')].map("
+        "r => [...r.querySelectorAll('th, td')].map(c => c.textContent.trim()))", table_id)
+
+
+def test_the_sensitivity_control_asks_the_sweep_operation_once(live_url: str, browser: Any) -> None:
+    """The comparison's σ control sends one POST /v1/sensitivity for all its points (no
+    comparison per point), and its point ×1 is the demo's own figures."""
+    open_view(browser, live_url, "comparison")
+    compute(browser)
+    browser.execute_script("performance.clearResourceTimings()")
+    browser.find_element(By.ID, "sweep").click()
+    wait(browser, 120).until(lambda d: d.find_elements(By.CSS_SELECTOR, "#sweep-values tbody tr"))
+    asked = browser.execute_script(
+        "return performance.getEntriesByType('resource').map(e => new URL(e.name).pathname)")
+    assert asked.count("/v1/sensitivity") == 1 and "/v1/comparisons" not in asked, asked
+
+
+def test_the_series_change_measures_follow_the_chosen_measure(live_url: str, browser: Any) -> None:
+    """The change-measure selector redraws the table from the answer's changes: 12-month
+    first, then the annual average changes, each the JSON answer's number."""
+    open_view(browser, live_url, "series")
+    compute(browser)
+    sent, answer = sent_and_answer(browser, live_url, "/v1/index-series")
+    rows = {(r["series"], r["kind"], r["standard"]): r for r in answer["changes"]["by_series"]}
+    lasp = rows[("laspeyres", "fixed_base", None)]
+    cells = table_cells(browser, "changes-chart-table")
+    header = browser.execute_script(
+        "return [...document.querySelectorAll('#changes-chart-table thead th')].map(c => c.textContent)")
+    col = header.index("Laspeyres")
+    assert cells[-1][col] == f"{lasp['twelve_month_percent'][-1]:.3f}"
+    assert header[-1] == "Konüs (base standard)"
+    konus = rows[("konus", "fixed_base", "base")]
+    assert cells[-1][-1] == f"{konus['twelve_month_percent'][-1]:.3f}"
+    choose(browser, "changes-chart-choice", "annual average over the previous year's, %")
+    wait(browser, 10).until(lambda d: table_cells(d, "changes-chart-table")[0][0].isdigit())
+    years = table_cells(browser, "changes-chart-table")
+    first = lasp["annual"][0]
+    assert years[0][0] == str(first["year"])
+    shown = years[0][col]
+    assert shown == ("" if first["change_percent"] is None else f"{first['change_percent']:.3f}")
+    assert page_width(browser)[0] <= page_width(browser)[1]
+    screenshot(browser, "series-changes")
+
+
+def test_the_revealed_bounds_checkbox_shows_the_bracket_beside_the_model(
+        live_url: str, browser: Any) -> None:
+    """Ticked, the comparison asks for revealed_bounds and shows the model-free bracket and the
+    model's K(u0) inside it; the series shows each period's bracket with the Konüs series."""
+    open_view(browser, live_url, "comparison")
+    choose(browser, "scenario", "Example: " + next(
+        e["summary"] for n, e in httpx.get(live_url + "/openapi.json").json()["paths"][
+            "/v1/comparisons"]["post"]["requestBody"]["content"]["application/json"][
+            "examples"].items() if n == "wrenmouth_nested_ces_with_revealed_bounds"))
+    browser.find_element(By.ID, "load").click()
+    box = wait(browser, 10).until(lambda d: d.find_element(By.ID, "comparison-_revealed_bounds"))
+    assert box.is_selected()
+    compute(browser)
+    sent, answer = sent_and_answer(browser, live_url, "/v1/comparisons")
+    assert sent["revealed_bounds"] is True
+    bracket = answer["revealed_bounds"]
+    assert browser.find_element(By.ID, "rb-lower").text == f"{bracket['lower']:.4f}"
+    assert browser.find_element(By.ID, "rb-upper").text == f"{bracket['upper']:.4f}"
+    assert browser.find_element(By.ID, "rb-konus").text == f"{bracket['konus_base']:.4f}"
+    assert browser.find_element(By.ID, "rb-inside").text == ("yes" if bracket["konus_inside"] else "NO")
+    assert browser.find_elements(By.XPATH, "//section[@data-chart='bracket-chart']")
+    screenshot(browser, "comparison-revealed-bounds")
+
+    open_view(browser, live_url, "series")
+    browser.find_element(By.ID, "series-_revealed_bounds").click()
+    compute(browser)
+    sent, answer = sent_and_answer(browser, live_url, "/v1/index-series")
+    assert sent["revealed_bounds"] is True
+    rows = table_cells(browser, "series-bounds-table")
+    last = answer["revealed_bounds"]["rows"][-1]
+    assert rows[-1][:3] == [last["period"], f"{last['lower']:.4f}", f"{last['upper']:.4f}"]
+    assert rows[-1][5] == f"{last['konus_base']:.4f}"
+    assert page_width(browser)[0] <= page_width(browser)[1]
+    screenshot(browser, "series-revealed-bounds")
+
+
+def test_a_clause_added_in_the_editor_is_computed_and_chosen(live_url: str, browser: Any) -> None:
+    """'Add a clause' starts a twelve-month clause; the one typed (a cap of 2%) is sent and the
+    clause chooser shows its upratings, capped, as the API answers them."""
+    open_view(browser, live_url, "uprating")
+    browser.find_element(By.XPATH, "//button[text()='Add a clause']").click()
+    name = wait(browser, 10).until(lambda d: d.find_element(
+        By.CSS_SELECTOR, "input[aria-label='Clauses: clause 3, name']"))
+    name.send_keys("capped allowance")
+    cap = browser.find_element(By.CSS_SELECTOR, "input[aria-label='Clauses: clause 3, cap %']")
+    cap.send_keys("2")
+    compute(browser)
+    sent, answer = sent_and_answer(browser, live_url, "/v1/uprating")
+    assert sent["clauses"][2] == {"name": "capped allowance", "measure": "twelve_month",
+                                  "period_of_year": 9, "lag": 7, "cap": 2}
+    choose(browser, "uprating-chart-choice", "capped allowance")
+    wait(browser, 10).until(lambda d: len(table_cells(d, "uprating-chart-table")) == len(
+        answer["clauses"][2]["upratings"]) * len(answer["indices"]))
+    rows = table_cells(browser, "uprating-chart-table")
+    first = answer["clauses"][2]["upratings"][0]["by_index"][0]
+    assert rows[0][3] == f"{first['applied_percent']:.2f}" and first["applied_percent"] <= 2
+    assert browser.find_element(By.ID, "uprating-caution").text.startswith("Caution.")
+    # A bad lag is named by its clause row and column.
+    lag = browser.find_element(By.CSS_SELECTOR, "input[aria-label='Clauses: clause 3, lag']")
+    lag.clear()
+    lag.send_keys("-1")
+    browser.find_element(By.ID, "compute").click()
+    error = wait(browser, 20).until(lambda d: d.find_element(By.ID, "error")
+                                    if d.find_element(By.ID, "error").is_displayed() else None)
+    assert "Clauses, row 3 (clause 3), column 'lag'" in error.text, error.text
+    assert lag.get_attribute("aria-invalid") == "true"
+
+
+def test_the_index_tree_folds_and_charts_a_chosen_node(live_url: str, browser: Any) -> None:
+    """The tree table opens at the top groups and unfolds a group on request; the node chooser
+    draws that node's index beside its Konüs index, as the API answers them."""
+    open_view(browser, live_url, "index-tree")
+    compute(browser)
+    sent, answer = sent_and_answer(browser, live_url, "/v1/index-tree")
+    visible = lambda d: [r.get_attribute("data-node") for r in d.find_elements(  # noqa: E731
+        By.CSS_SELECTOR, "#tree-table tbody tr") if r.is_displayed()]
+    top = [n["path"] for n in answer["nodes"] if n["depth"] <= 1]
+    assert visible(browser) == top
+    food = next(n for n in answer["nodes"] if n["depth"] == 1)
+    button = browser.find_element(By.CSS_SELECTOR, f"button[aria-label='unfold {food['name']}']")
+    button.send_keys(Keys.ENTER)
+    children = [n["path"] for n in answer["nodes"] if n["parent"] == food["name"]]
+    wait(browser, 5).until(lambda d: set(children) <= set(visible(d)))
+    assert button.get_attribute("aria-expanded") == "true"
+    choose(browser, "tree-node-chart-choice", f"· {food['name']}")
+    wait(browser, 10).until(lambda d: table_cells(d, "tree-node-chart-table")[-1][1]
+                            == f"{food['index'][-1]:.3f}")
+    assert table_cells(browser, "tree-node-chart-table")[-1][2] == f"{food['konus'][-1]:.3f}"
+    screenshot(browser, "index-tree-unfolded")
+
+
+def test_the_revealed_view_lists_each_violation_with_its_cycle(live_url: str, browser: Any) -> None:
+    """The household diary fails GARP: each violation's cycle of periods is listed, as the API
+    gives it, and the verdict cards say FAILS."""
+    open_view(browser, live_url, "revealed")
+    compute(browser)
+    sent, answer = sent_and_answer(browser, live_url, "/v1/revealed-preference")
+    assert browser.find_element(By.ID, "rp-garp").text == "FAILS"
+    rows = table_cells(browser, "rp-violations")
+    assert [r[3] for r in rows] == [" → ".join(v["periods"]) for v in answer["consistency"]["violations"]]
+
+
+@pytest.mark.parametrize("view", NEW_VIEWS)
+def test_every_control_of_the_new_views_is_labelled(live_url: str, browser: Any, view: str) -> None:
+    """The form's controls and the answer's choosers each carry a label."""
+    open_view(browser, live_url, view)
+    compute(browser)
+    unlabelled = browser.execute_script("""
+        return [...document.querySelectorAll('input, select, textarea, button')].filter(i =>
+          !(i.labels && i.labels.length) && !i.getAttribute('aria-label')
+          && !(i.tagName === 'BUTTON' && i.textContent.trim())).map(i => i.outerHTML)""")
+    assert unlabelled == []
