@@ -862,3 +862,72 @@ def test_every_control_of_the_new_views_is_labelled(live_url: str, browser: Any,
           !(i.labels && i.labels.length) && !i.getAttribute('aria-label')
           && !(i.tagName === 'BUTTON' && i.textContent.trim())).map(i => i.outerHTML)""")
     assert unlabelled == []
+
+
+def _downloaded(browser: Any, name: str) -> str:
+    target = browser.downloads / name
+    target.unlink(missing_ok=True)
+    browser.find_element(By.ID, f"download-{name.rsplit('.', 1)[1]}").click()
+    deadline = time.monotonic() + 20
+    while not target.exists() or not target.stat().st_size:
+        assert time.monotonic() < deadline, f"no {name} download"
+        time.sleep(0.1)
+    time.sleep(0.2)
+    return target.read_text(encoding="utf-8")
+
+
+@pytest.mark.parametrize("case", [c for c in CASES if c.view in NEW_VIEWS], ids=NEW_VIEWS)
+def test_the_new_views_download_json_and_the_services_csv(
+        live_url: str, browser: Any, case: ViewCase) -> None:
+    """JSON is the answer shown; CSV is the service's own CSV answer to the same request."""
+    open_view(browser, live_url, case.view)
+    compute(browser)
+    body = load_example(case.example)
+    shown = json.loads(_downloaded(browser, f"{case.view}.json"))
+    assert shown == browser.execute_script("return window.dualcost.state.answer")
+    csv = httpx.post(live_url + case.path, json=body, headers={"accept": "text/csv"}, timeout=60)
+    assert _downloaded(browser, f"{case.view}.csv").splitlines() == csv.text.splitlines()
+
+
+def test_a_quotes_csv_fills_the_index_tree(live_url: str, browser: Any, tmp_path: Path) -> None:
+    """Quotes in long form (quote,aggregate,period,price; an empty price: not priced) rebuild
+    the example's quotes; the tree, links and weights stay as they were."""
+    example = load_example("indexTree.wrenmouth_coicop.json")
+    lines = ["quote,aggregate,period,price"]
+    for q in example["quotes"]:
+        for t, p in enumerate(example["periods"]):
+            price = q["prices"][t]
+            lines.append(f"{q['id']},{q['aggregate']},{p},{'' if price is None else price}")
+    open_view(browser, live_url, "index-tree")
+    upload(browser, tmp_path, "quotes.csv", "\n".join(lines))
+    wait(browser, 10).until(lambda d: d.execute_script("return window.dualcost.state.scenario") == "")
+    compute(browser)
+    sent, answer = sent_and_answer(browser, live_url, "/v1/index-tree")
+    assert [(q["id"], q["aggregate"], q["prices"]) for q in sent["quotes"]] == [
+        (q["id"], q["aggregate"], q["prices"]) for q in example["quotes"]]
+    assert sent["tree"] == example["tree"] and sent["links"] == example["links"]
+    assert browser.find_element(By.ID, "tree-index-last").text == f"{answer['nodes'][0]['index'][-1]:.3f}"
+
+
+def test_a_panel_csv_fills_the_revealed_view(live_url: str, browser: Any, tmp_path: Path) -> None:
+    """The monthly basket in long form (period,item,price,quantity) gives the example's panel;
+    a decimal comma in it is named by the file's row."""
+    example = load_example("revealedPreference.wrenmouth_monthly_basket.json")
+    ids = [i["id"] for i in example["items"]]
+    lines = ["period,item,price,quantity"]
+    for t, p in enumerate(example["periods"]):
+        lines += [f"{p},{i},{example['prices'][t][i]},{example['quantities'][t][i]}" for i in ids]
+    open_view(browser, live_url, "revealed")
+    upload(browser, tmp_path, "basket.csv", "\n".join(lines))
+    wait(browser, 10).until(lambda d: d.execute_script("return window.dualcost.state.scenario") == "")
+    compute(browser)
+    sent, answer = sent_and_answer(browser, live_url, "/v1/revealed-preference")
+    assert sent["prices"] == example["prices"] and sent["quantities"] == example["quantities"]
+    assert browser.find_element(By.ID, "rp-garp").text == "passes"
+    assert browser.find_element(By.ID, "rp-efficiency").text == (
+        f"{answer['consistency']['efficiency_index']:.4f}")
+    lines[3] = lines[3].rsplit(",", 1)[0] + ",41;5"
+    upload(browser, tmp_path, "basket2.csv", "\n".join(lines))
+    error = wait(browser, 10).until(lambda d: d.find_element(By.ID, "error")
+                                    if d.find_element(By.ID, "error").is_displayed() else None)
+    assert "basket2.csv, row 4, column 'quantity'" in error.text, error.text
