@@ -145,6 +145,24 @@
           { id: "ev", label: "Equivalent variation (a loss if positive)", value: a.compensation.equivalent_variation, digits: 2, withheld },
         ];
       } },
+      // The model-free bracket, when asked for, right under the model's figures.
+      { kind: "cards", when: (a) => a.revealed_bounds, cards: (a) => [
+        { id: "rb-lower", label: "Model-free bracket, lower", value: a.revealed_bounds.lower },
+        { id: "rb-upper", label: "Model-free bracket, upper", value: a.revealed_bounds.upper },
+        { id: "rb-konus", label: "the model's Konüs index, base standard", value: a.revealed_bounds.konus_base, withheld: a.revealed_bounds.konus_base === null },
+        { id: "rb-inside", label: "inside the bracket?", value: a.revealed_bounds.konus_inside === null ? "" : a.revealed_bounds.konus_inside ? "yes" : "NO" }] },
+      { kind: "chart", id: "bracket-chart", title: "The model's Konüs index inside the model-free bracket",
+        when: (a) => a.revealed_bounds, height: () => 170, notices: ["garp_failed"],
+        text: (a) => `${a.revealed_bounds.garp ? "The two bundles pass GARP." : `The two bundles fail GARP (Afriat's index ${fmt(a.revealed_bounds.efficiency_index)}); the bracket holds at efficiency ${fmt(a.revealed_bounds.efficiency_level)}.`} ${a.revealed_bounds.method}`,
+        chart: (a) => {
+          const b = a.revealed_bounds;
+          const dot = (label, v, colour) => ({ type: "line", indexAxis: "y", showLine: false, label, data: [h(v)],
+            pointStyle: "rectRot", pointRadius: 7, borderColor: colour, backgroundColor: colour, order: 1 });
+          return loose(C.barConfig({ labels: ["K(u0)"], xTitle: "", yTitle: "index, base = 100", zeroAt: null, datasets: [
+            { label: "model-free bracket", data: [[h(b.lower), h(b.upper)]], backgroundColor: "rgba(0,0,0,0.15)", order: 2 },
+            dot("Laspeyres", b.laspeyres, C.PALETTE[0]), dot("Paasche", b.paasche, C.PALETTE[1]),
+            ...(b.konus_base === null ? [] : [dot("the model's Konüs index", b.konus_base, "#000")])] }));
+        } },
       { kind: "chart", id: "bias-chart", title: "How much each formula overstates the Konüs index",
         notices: ["current_quantities_from_model", "quantities_from_model", "current_income_assumed"],
         when: (a) => a.validity.regular,
@@ -179,23 +197,6 @@
           { title: "substitution", get: (i) => i.substitution_effect, digits: 3, model: true },
           { title: "income", get: (i) => i.income_effect, digits: 3, model: true },
           { title: "gap (points)", get: (i) => i.laspeyres_gap_points, digits: 3, model: true }] },
-      { kind: "cards", when: (a) => a.revealed_bounds, cards: (a) => [
-        { id: "rb-lower", label: "Model-free bracket, lower", value: a.revealed_bounds.lower },
-        { id: "rb-upper", label: "Model-free bracket, upper", value: a.revealed_bounds.upper },
-        { id: "rb-konus", label: "the model's Konüs index, base standard", value: a.revealed_bounds.konus_base, withheld: a.revealed_bounds.konus_base === null },
-        { id: "rb-inside", label: "inside the bracket?", value: a.revealed_bounds.konus_inside === null ? "" : a.revealed_bounds.konus_inside ? "yes" : "NO" }] },
-      { kind: "chart", id: "bracket-chart", title: "The model's Konüs index inside the model-free bracket",
-        when: (a) => a.revealed_bounds, height: () => 170, notices: ["garp_failed"],
-        text: (a) => `${a.revealed_bounds.garp ? "The two bundles pass GARP." : `The two bundles fail GARP (Afriat's index ${fmt(a.revealed_bounds.efficiency_index)}); the bracket holds at efficiency ${fmt(a.revealed_bounds.efficiency_level)}.`} ${a.revealed_bounds.method}`,
-        chart: (a) => {
-          const b = a.revealed_bounds;
-          const dot = (label, v, colour) => ({ type: "line", indexAxis: "y", showLine: false, label, data: [h(v)],
-            pointStyle: "rectRot", pointRadius: 7, borderColor: colour, backgroundColor: colour, order: 1 });
-          return loose(C.barConfig({ labels: ["K(u0)"], xTitle: "", yTitle: "index, base = 100", zeroAt: null, datasets: [
-            { label: "model-free bracket", data: [[h(b.lower), h(b.upper)]], backgroundColor: "rgba(0,0,0,0.15)", order: 2 },
-            dot("Laspeyres", b.laspeyres, C.PALETTE[0]), dot("Paasche", b.paasche, C.PALETTE[1]),
-            ...(b.konus_base === null ? [] : [dot("the model's Konüs index", b.konus_base, "#000")])] }));
-        } },
     ],
     sensitivity: {
       source: "bySweep",
@@ -222,28 +223,28 @@
 
   // The Konüs index and each bias along a sweep's points ({label, ok, answer} rows).
   function sweepChart(rows, xTitle) {
-        const ok = rows.filter((r) => r.ok);
-        const formulas = ok.length ? ok[0].answer.formulas.map((f) => f.formula) : [];
-        const series = ["laspeyres", "paasche", "fisher", "tornqvist", "lowe", "young"].filter((f) => formulas.includes(f));
-        const labels = rows.map((r) => r.label);
-        const bias = (r, f) => (r.ok ? num((r.answer.formulas.find((x) => x.formula === f) || {}).bias_points) : null);
-        const config = C.lineConfig({ labels, xTitle,
-          yTitle: "bias, index points (0 = no bias)", zeroAt: 0,
-          datasets: [{ label: "Konüs index, base = 100 (right axis)", yAxisID: "y2", colour: "#000", borderWidth: 3,
-            data: rows.map((r) => (r.ok && r.answer.konus.base !== null ? 100 * r.answer.konus.base : null)) },
-          ...series.map((f) => ({ label: `${titleOf(ok[0].answer, f)} bias`, data: rows.map((r) => bias(r, f)) }))] });
-        config.options.scales.y2 = { position: "right", grid: { drawOnChartArea: false },
-          title: { display: true, text: "Konüs index, base = 100", font: { size: 12 } }, ticks: { font: { size: 11 } } };
-        return config;
+    const ok = rows.filter((r) => r.ok);
+    const formulas = ok.length ? ok[0].answer.formulas.map((f) => f.formula) : [];
+    const series = ["laspeyres", "paasche", "fisher", "tornqvist", "lowe", "young"].filter((f) => formulas.includes(f));
+    const labels = rows.map((r) => r.label);
+    const bias = (r, f) => (r.ok ? num((r.answer.formulas.find((x) => x.formula === f) || {}).bias_points) : null);
+    const config = C.lineConfig({ labels, xTitle,
+      yTitle: "bias, index points (0 = no bias)", zeroAt: 0,
+      datasets: [{ label: "Konüs index, base = 100 (right axis)", yAxisID: "y2", colour: "#000", borderWidth: 3,
+        data: rows.map((r) => (r.ok && r.answer.konus.base !== null ? 100 * r.answer.konus.base : null)) },
+      ...series.map((f) => ({ label: `${titleOf(ok[0].answer, f)} bias`, data: rows.map((r) => bias(r, f)) }))] });
+    config.options.scales.y2 = { position: "right", grid: { drawOnChartArea: false },
+      title: { display: true, text: "Konüs index, base = 100", font: { size: 12 } }, ticks: { font: { size: 11 } } };
+    return config;
   }
   function sweepTable(rows) {
-        const el = window.dualcost.el;
-        return el("div", { class: "scroll", tabindex: "0", role: "region", "aria-label": "sensitivity table" },
-          el("table", { id: "sweep-values" }, el("thead", {}, el("tr", {}, el("th", { text: "point" }), el("th", { text: "Konüs (base)" }), el("th", { text: "Laspeyres bias (points)" }), el("th", { text: "note" }))),
-            el("tbody", {}, ...rows.map((r) => el("tr", {}, el("td", { text: r.label }),
-              el("td", { text: r.ok ? (r.answer.konus.base === null ? "not a result" : fmt(r.answer.konus.base)) : "" }),
-              el("td", { text: r.ok ? (r.answer.laspeyres_gap_points === null ? "not a result" : fmt(r.answer.laspeyres_gap_points, 3)) : "" }),
-              el("td", { text: r.ok ? (r.answer.validity.regular ? "" : "outside the regular region") : (r.answer.title || "refused") }))))));
+    const el = window.dualcost.el;
+    return el("div", { class: "scroll", tabindex: "0", role: "region", "aria-label": "sensitivity table" },
+      el("table", { id: "sweep-values" }, el("thead", {}, el("tr", {}, el("th", { text: "point" }), el("th", { text: "Konüs (base)" }), el("th", { text: "Laspeyres bias (points)" }), el("th", { text: "note" }))),
+        el("tbody", {}, ...rows.map((r) => el("tr", {}, el("td", { text: r.label }),
+          el("td", { text: r.ok ? (r.answer.konus.base === null ? "not a result" : fmt(r.answer.konus.base)) : "" }),
+          el("td", { text: r.ok ? (r.answer.laspeyres_gap_points === null ? "not a result" : fmt(r.answer.laspeyres_gap_points, 3)) : "" }),
+          el("td", { text: r.ok ? (r.answer.validity.regular ? "" : "outside the regular region") : (r.answer.title || "refused") }))))));
   }
   // A floating-bar chart's value axis starts where the values are, not at zero.
   const loose = (config) => { config.options.scales[config.options.indexAxis === "y" ? "x" : "y"].beginAtZero = false; return config; };
@@ -743,7 +744,7 @@
       { kind: "chart", id: "uprating-chart", title: "Each uprating under each index (percent applied, after rounding, floor and cap)",
         choose: clauseChoice, notices: ["reference_period_assumed", "series_kind_assumed", "konus_standard_assumed"],
         height: (a) => 110 + Math.max(...a.clauses.map((c) => c.upratings.length)) * a.indices.length * 18,
-        text: (a) => a.clauses.map((c) => `${c.clause.name || "Clause"}: ${c.definition}${c.not_computed.map((n) => ` Not computed in ${n.measured_in}: ${n.reason}.`).join("")}`).join(" "),
+        text: (a, k) => { const c = clauseOf(a, k); return `${c.definition}${c.not_computed.map((n) => ` Not computed in ${n.measured_in}: ${n.reason}.`).join("")}`; },
         chart: (a, k) => C.barConfig({ labels: clauseOf(a, k).upratings.map((u) => [`measured ${u.measured_in}`, `paid from ${u.paid_from}`]),
           datasets: a.indices.map((i) => ({ label: indexTitle(i), data: clauseOf(a, k).upratings.map((u) => applied(u, i)), ...konusStyle(i) })),
           xTitle: "uprating", yTitle: "uprating applied, percent" }),

@@ -560,18 +560,19 @@ const BLOCKS = {
   chart(section, block, answer, title) {
     const canvas = el("canvas", { role: "img", "aria-label": title });
     const table = el("div", { class: "chosen-table" });
+    const note = el("p", { class: "hint" });
     const draw = (choice) => {
       window.dualcostCharts.drawChart(canvas, block.chart(answer, choice));
+      note.textContent = block.text ? block.text(answer, choice) : "";
+      note.hidden = !note.textContent;
       if (block.table) {
         const t = block.table(answer, choice);
         table.replaceChildren(tableOf(`${block.id}-table`, title, t.columns, t.rows));
       }
     };
     const first = chooser(section, block, answer, draw);
-    section.append(el("div", { class: "chart", style: `height:${block.height ? block.height(answer) : 320}px` }, canvas), table);
+    section.append(el("div", { class: "chart", style: `height:${block.height ? block.height(answer) : 320}px` }, canvas), note, table);
     section.dataset.chart = block.id;
-    const note = block.text ? block.text(answer) : "";
-    if (note) section.append(el("p", { class: "hint", text: note }));
     return () => draw(first);
   },
   table(section, block, answer, title) {
