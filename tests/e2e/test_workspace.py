@@ -124,7 +124,7 @@ CASES = [
     ViewCase("index-tree", "/v1/index-tree", "indexTree.wrenmouth_coicop.json", (
         ("tree-index-last", lambda a: a["nodes"][0]["index"][-1], 3),
         ("tree-konus-last", lambda a: a["nodes"][0]["konus"][-1], 3),
-        ("tree-bias-last", lambda a: a["nodes"][0]["bias_points"][-1], 3)), 0, 0, "2024-01"),
+        ("tree-bias-last", lambda a: a["nodes"][0]["bias_points"][-1], 3)), 1, 0, "2024-01"),
     ViewCase("revealed", "/v1/revealed-preference", "revealedPreference.wrenmouth_household_diary.json", (
         ("rp-efficiency", lambda a: a["consistency"]["efficiency_index"], 4),
         ("rp-level", lambda a: a["bounds"]["efficiency_level"], 4)), 0, 0, "rye_loaf"),
@@ -931,3 +931,28 @@ def test_a_panel_csv_fills_the_revealed_view(live_url: str, browser: Any, tmp_pa
     error = wait(browser, 10).until(lambda d: d.find_element(By.ID, "error")
                                     if d.find_element(By.ID, "error").is_displayed() else None)
     assert "basket2.csv, row 4, column 'quantity'" in error.text, error.text
+
+
+def test_a_nodes_sigma_is_typed_in_the_classification_grid(live_url: str, browser: Any) -> None:
+    """The classification grid writes a node's σ into the nested tree and the answer's node
+    carries it; a negative σ is named by the node's row."""
+    open_view(browser, live_url, "index-tree")
+    food = load_example("indexTree.wrenmouth_coicop.json")["tree"]["children"][0]["name"]
+    label = f"Classification: σ and elementary formula by node: · {food}, σ"
+    cell = browser.find_element(By.CSS_SELECTOR, f"input[aria-label='{label}']")
+    cell.clear()
+    cell.send_keys("1.2")
+    compute(browser)
+    sent, answer = sent_and_answer(browser, live_url, "/v1/index-tree")
+    assert sent["tree"]["children"][0]["sigma"] == 1.2
+    node = next(n for n in answer["nodes"] if n["name"] == food)
+    assert node["sigma"] == 1.2
+    assert browser.find_element(By.ID, "tree-konus-last").text == f"{answer['nodes'][0]['konus'][-1]:.3f}"
+    cell = browser.find_element(By.CSS_SELECTOR, f"input[aria-label='{label}']")
+    cell.clear()
+    cell.send_keys("-1")
+    browser.find_element(By.ID, "compute").click()
+    error = wait(browser, 20).until(lambda d: d.find_element(By.ID, "error")
+                                    if d.find_element(By.ID, "error").is_displayed() else None)
+    assert f"row 2 (· {food}), column 'σ'" in error.text, error.text
+    assert cell.get_attribute("aria-invalid") == "true"

@@ -766,6 +766,12 @@
   const nodeAt = (a, t) => a.nodes.map((n) => ({ key: n.path, parent: n.parent === null ? null : n.path.slice(0, n.path.lastIndexOf(" > ")),
     depth: n.depth, label: n.name, n, t }));
   const lastT = (a) => a.periods.length - 1;
+  // The request's tree (nested, or a flat list naming parents) as rows, each with its pointer.
+  const treeNodes = (body) => {
+    if (Array.isArray(body.tree)) return body.tree.map((node, k) => ({ node, at: `/tree/${k}`, depth: node.parent ? 1 : 0 }));
+    const walk = (node, at, depth) => [{ node, at, depth }, ...(node.children || []).flatMap((c, k) => walk(c, `${at}/children/${k}`, depth + 1))];
+    return body.tree ? walk(body.tree, "/tree", 0) : [];
+  };
   const indexTree = {
     id: "index-tree",
     title: "Index as built",
@@ -791,9 +797,13 @@
         options: [["jevons", "Jevons"], ["carli", "Carli"], ["dutot", "Dutot"]] },
       { pointer: "/upper_formula", label: "Upper levels", kind: "select", optional: true, options: [["lowe", "Lowe"], ["young", "Young"]] },
       { pointer: "/sigma_by_level", label: "σ by level (root first), for nodes without their own", kind: "numbers", optional: true },
-      { pointer: "/tree", label: "The classification (JSON: name, sigma, formula, children)", kind: "json", rows: 6 },
     ],
     grids: [
+      { title: "Classification: σ and elementary formula by node", rows: { title: "node", list: treeNodes,
+        key: (n) => n.at, label: (n) => `${"· ".repeat(n.depth)}${n.node.name}` },
+        hint: "Groups and subgroups as in the request JSON below (its 'tree'); σ empty: the level's σ above; formula empty: the elementary formula above.",
+        columns: [{ title: "σ", pointer: (n) => `${n.at}/sigma`, keep: true },
+          { title: "formula", pointer: (n) => `${n.at}/formula`, kind: "select", options: ["jevons", "carli", "dutot"], keep: true }] },
       { title: "Quote prices by period", rows: { pointer: "/quotes", title: "quote" },
         columnsFrom: { pointer: "/periods", cell: "/quotes/{r}/prices/{c}" }, hint: "An empty cell: not priced that period." },
       { title: "Weights by link", rows: { pointer: "/links", title: "link", label: (l) => l.period },

@@ -201,7 +201,8 @@ function formulasField(field, body) {
 
 // A grid: rows from a list in the body, columns fixed or from another list; each cell a pointer.
 function gridBlock(grid, body) {
-  const rows = getAt(body, grid.rows.pointer) || [];
+  // Rows from a list in the request, or from the declaration's own reading of it (a tree's nodes).
+  const rows = (grid.rows.list ? grid.rows.list(body) : getAt(body, grid.rows.pointer)) || [];
   const rowKey = grid.rows.key || ((x) => (typeof x === "object" ? x.id : x));
   const rowLabel = grid.rows.label || ((x) => (typeof x === "object" ? x.label || x.id : x));
   let columns = grid.columns || [];
@@ -217,7 +218,8 @@ function gridBlock(grid, body) {
     const key = rowKey(row, r);
     const tr = el("tr", {}, el("th", { scope: "row", text: rowLabel(row, r) }));
     for (const col of columns) {
-      const pointer = cellPointer(col.pointer, { row: key, r, col: col.key, c: col.c }, body);
+      const pointer = typeof col.pointer === "function" ? col.pointer(row, r)
+        : cellPointer(col.pointer, { row: key, r, col: col.key, c: col.c }, body);
       const value = getAt(body, pointer);
       const aria = `${grid.title}: ${rowLabel(row, r)}, ${col.title}`;
       let input;
