@@ -1,6 +1,6 @@
 # dualcost service image: slim Python, non-root user, health check on /health.
-# Household jobs live in the memory of one worker process: set DUALCOST_WORKERS=1 (or route a
-# job's requests to one instance) when you use them; every other operation is stateless.
+# Household jobs and saved runs are kept in SQLite under DUALCOST_DATA_DIR (mount a volume there
+# to keep them), or in PostgreSQL with DUALCOST_DATABASE_URL for several containers.
 FROM python:3.11-slim
 
 ENV PYTHONDONTWRITEBYTECODE=1 \
@@ -9,13 +9,16 @@ ENV PYTHONDONTWRITEBYTECODE=1 \
     DUALCOST_HOST=0.0.0.0 \
     DUALCOST_PORT=8000 \
     DUALCOST_WORKERS=2 \
-    DUALCOST_EXAMPLES_DIR=/app/openapi_examples
+    DUALCOST_EXAMPLES_DIR=/app/openapi_examples \
+    DUALCOST_DATA_DIR=/data
 
 WORKDIR /app
 COPY pyproject.toml README.md ./
 COPY service ./service
 COPY openapi_examples ./openapi_examples
-RUN pip install . && useradd --create-home --uid 10001 dualcost
+RUN pip install . && useradd --create-home --uid 10001 dualcost \
+    && mkdir /data && chown dualcost /data
+VOLUME /data
 
 USER dualcost
 EXPOSE 8000

@@ -2,8 +2,12 @@
 
 from __future__ import annotations
 
+import atexit
 import json
+import os
+import shutil
 import socket
+import tempfile
 import threading
 import time
 from collections.abc import Iterator
@@ -18,9 +22,15 @@ from fastapi.testclient import TestClient
 from dualcost.api.app import create_app
 from dualcost.api.transport import protocol_for
 from dualcost.config import Settings
+from tests.databases import database_url, postgres_server  # noqa: F401 (fixtures)
 
 ROOT = Path(__file__).resolve().parents[1]
 EXAMPLES = ROOT / "openapi_examples"
+# The tests' household jobs and saved runs go to a database of their own, never the user's
+# (tests that need one of their own give data_dir or database_url; see tests/storage.py).
+os.environ["DUALCOST_DATA_DIR"] = tempfile.mkdtemp(prefix="dualcost-tests-")
+atexit.register(shutil.rmtree, os.environ["DUALCOST_DATA_DIR"], True)
+os.environ.pop("DUALCOST_DATABASE_URL", None)
 
 
 @pytest.fixture(scope="session")

@@ -70,6 +70,9 @@ def serve(host: str, port: int, workers: int, log_level: str) -> int:
     from .api.transport import BoundedHttpToolsProtocol
 
     keys = load_keys(settings.api_keys, str(settings.api_keys_file) if settings.api_keys_file else None)
+    stored = _open_database(settings)
+    if stored is None:
+        return 2
     print(f"dualcost {__version__}: http://{host}:{port}/ (API docs /docs, demo /v1/demo), "
           f"{workers} worker(s)", flush=True)
     if keys:
@@ -79,12 +82,29 @@ def serve(host: str, port: int, workers: int, log_level: str) -> int:
         print("access control: OFF (no API keys configured): anyone who can reach this address "
               "can use the service; set DUALCOST_API_KEYS or DUALCOST_API_KEYS_FILE to require keys",
               flush=True)
+    print(f"database: {stored} (household jobs and saved runs)", flush=True)
     # The request head is bounded as it arrives (dualcost.api.transport), before uvicorn keeps it.
     uvicorn.run("dualcost.api.app:create_app", factory=True, host=host, port=port,
                 workers=workers, log_level=log_level, access_log=False,
                 http=BoundedHttpToolsProtocol,
                 log_config=logging_config(log_level, json_lines=settings.log_json))
     return 0
+
+
+def _open_database(settings: Settings) -> str | None:
+    """Open and migrate the database once, before any worker starts; its printable URL, or
+    None after saying on standard error why it cannot be used (the service does not start)."""
+    from .core.errors import StorageUnavailable
+    from .storage import database_of, describe_url
+
+    try:
+        database_of(settings)
+    except StorageUnavailable as exc:
+        print(f"dualcost: not starting: {exc}. Check DUALCOST_DATABASE_URL (or "
+              "DUALCOST_DATA_DIR) and that the database server is reachable.", file=sys.stderr,
+              flush=True)
+        return None
+    return describe_url(settings.database())
 
 
 def main(argv: Sequence[str] | None = None) -> int:

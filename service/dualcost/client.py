@@ -424,6 +424,23 @@ class Client:
         Konüs index; ``format="csv"``: one row per period and node."""
         return self._post_json("/v1/index-tree", request, format)
 
+    def index_tree_csv(self, data: CsvBody, *, tree: Any, links: Sequence[Mapping[str, Any]],
+                       format: Format = "json", sigma_by_level: Sequence[float] | None = None,
+                       **options: Any) -> dict[str, Any] | Table:
+        """POST /v1/index-tree/csv: ``data`` the quotes as a long CSV table
+        (``quote,aggregate,period,price``), the ``tree`` and ``links`` as the JSON form's
+        fields; the other options (``upper_formula``, ``sigma_fit``...) as keywords."""
+        query = dict(options, tree=json.dumps(tree), links=json.dumps(list(links)),
+                     sigma_by_level=sigma_by_level, format=format)
+        return self._post_csv("/v1/index-tree/csv", data, query)
+
+    def uprating_from_index_tree(self, request: Mapping[str, Any], *,
+                                 format: Format = "json") -> dict[str, Any] | Table:
+        """POST /v1/uprating/index-tree: uprating clauses on a node of an index tree, under its
+        published index and the Konüs index (model-based: for indexation, defer to official
+        statistics and the applicable law or agreement)."""
+        return self._post_json("/v1/uprating/index-tree", request, format)
+
     def audit(self, request: Mapping[str, Any]) -> dict[str, Any]:
         """POST /v1/audits: published values against a recomputation from their panel."""
         return self._post_json("/v1/audits", request)
@@ -454,6 +471,20 @@ class Client:
         """POST /v1/sensitivity: the Konüs index and bias across models and along a grid;
         ``format="csv"``: one row a model or grid value."""
         return self._post_json("/v1/sensitivity", request, format)
+
+    @overload
+    def fitted_sensitivity(self, request: Mapping[str, Any], *,
+                           format: Literal["json"] = ...) -> dict[str, Any]: ...
+    @overload
+    def fitted_sensitivity(self, request: Mapping[str, Any], *,
+                           format: Literal["csv"]) -> Table: ...
+
+    def fitted_sensitivity(self, request: Mapping[str, Any], *,
+                           format: Format = "json") -> dict[str, Any] | Table:
+        """POST /v1/fitted-sensitivity: several families fitted to the same data, the band
+        across them beside each fit's intervals; ``format="csv"``: one row a family and
+        measure, and the band's."""
+        return self._post_json("/v1/fitted-sensitivity", request, format)
 
     # -- households ----------------------------------------------------------------------------
 

@@ -7,6 +7,7 @@ from __future__ import annotations
 import copy
 import csv
 import io
+import math
 from typing import Any
 
 import pytest
@@ -321,3 +322,70 @@ def test_the_client_sends_the_tree_and_reads_the_csv_answer(client: TestClient) 
         answer = dc.index_tree(body())
     assert isinstance(table, Table) and table.header[:2] == ("period", "node")
     assert len(table.rows) == len(answer["periods"]) * len(answer["nodes"])
+
+
+def test_fitted_sigmas_come_with_their_standard_errors_data_and_notices(
+        client: TestClient) -> None:
+    """sigma_fit by_group on the demo tree: each group's estimate equals scipy.stats.linregress
+    of the change of the children's log shares on the change of their log price levels (two
+    links, one link pair: the CES share equation in differences, Arrow, Chenery, Minhas and
+    Solow 1961), with its stderr; groups with one child are named in a notice with the
+    fallback they take, and the Konüs index at every node is the model's under the sigmas
+    used."""
+    from scipy import stats
+
+    r = client.post("/v1/index-tree", json=load_example("indexTree.wrenmouth_fitted_sigma.json"))
+    assert r.status_code == 200, r.text
+    answer = IndexTreeResponse.model_validate(r.json())
+    fit = answer.sigma_fit
+    assert fit is not None and fit.method == "by_group"
+    data = {d.node: d for d in fit.data}
+    food = next(e for e in fit.estimates if e.nodes == ["01 food and non-alcoholic beverages"])
+    d = data[food.nodes[0]]
+    ys = [math.log(b / a) for a, b in zip(d.shares[0], d.shares[1], strict=True)]
+    xs = [math.log(b / a) for a, b in zip(d.price_levels[0], d.price_levels[1], strict=True)]
+    reference = stats.linregress(xs, ys)
+    assert food.sigma == pytest.approx(1.0 - reference.slope, rel=1e-9)
+    assert food.standard_error == pytest.approx(reference.stderr, rel=1e-9)
+    assert (food.observations, food.degrees_of_freedom) == (5, 3)
+    by_node = {n.name: n for n in answer.nodes}
+    assert by_node[food.nodes[0]].sigma == pytest.approx(food.sigma)
+    notices = [n.message for n in answer.notices if n.code == "sigma_not_fitted"]
+    assert any("'all items > 09 recreation and culture'" in m and "one child only" in m
+               and "1.5 (its own sigma)" in m for m in notices)
+    assert any("'all items > 07 transport'" in m and "below 0" in m for m in notices)
+    assert by_node["07 transport"].sigma == 0.5  # its own sigma, as the notice says
+    [over] = [n.message for n in answer.notices if n.code == "sigma_fitted_over_given"]
+    assert "'01 food and non-alcoholic beverages' 0.9 (its own sigma) -> 0.9002" in over
+
+
+@pytest.mark.parametrize(("change", "pointer"), [
+    ({"sigma_fit": "by_item"}, "/sigma_fit"),
+    ({"sigma_fit": "by_group", "sigma_fallback": -1}, "/sigma_fallback"),
+])
+def test_bad_fit_options_are_named_by_field(client: TestClient, change: dict[str, Any],
+                                            pointer: str) -> None:
+    b = body() | change
+    found = errors(client.post("/v1/index-tree", json=b))
+    assert found[0]["pointer"] == pointer
+
+
+def test_the_readme_states_the_fitted_examples_figures(client: TestClient) -> None:
+    import re
+
+    from tests.conftest import ROOT
+
+    readme = re.sub(r"\s+", " ", (ROOT / "README.md").read_text(encoding="utf-8"))
+    found = re.search(r"give food a sigma of ([\d.]+) \(standard error ([\d.]+), three degrees "
+                      r"of freedom\), and in 2026-06 all items stand at ([\d.]+) against a Konüs "
+                      r"index of ([\d.]+) under the fitted sigmas", readme)
+    assert found is not None
+    answer = client.post("/v1/index-tree",
+                         json=load_example("indexTree.wrenmouth_fitted_sigma.json")).json()
+    food = next(e for e in answer["sigma_fit"]["estimates"]
+                if e["nodes"] == ["01 food and non-alcoholic beverages"])
+    root = answer["nodes"][0]
+    values = (food["sigma"], food["standard_error"], root["index"][-1], root["konus"][-1])
+    for text, value in zip(found.groups(), values, strict=True):
+        assert text == f"{value:.2f}"
+    assert food["degrees_of_freedom"] == 3

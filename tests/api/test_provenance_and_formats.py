@@ -210,8 +210,10 @@ def test_every_example_gets_the_digest_of_its_body(client: TestClient, name: str
             "fitAndCompare": "/v1/fitted-comparisons",
             "householdIndices": "/v1/household-indices", "uprating": "/v1/uprating",
             "indexTree": "/v1/index-tree",
+            "upratingFromIndexTree": "/v1/uprating/index-tree",
             "revealedPreference": "/v1/revealed-preference",
-            "sensitivity": "/v1/sensitivity"}[operation]
+            "sensitivity": "/v1/sensitivity",
+            "fittedSensitivity": "/v1/fitted-sensitivity"}[operation]
     body = load_example(name)
     r = client.post(path, json=body)
     assert r.status_code == 200, r.text
@@ -381,8 +383,11 @@ def _requests(client: TestClient) -> dict[str, tuple[str, str, dict[str, Any]]]:
     """A valid request for every operation under /v1 that answers with a body."""
     households = copy.deepcopy(load_example(HOUSEHOLDS))
     fit = load_example(FIT)
-    job = _job(client)
+    job, done = _job(client), _job(client)
     csv_upload = {"headers": {"content-type": "text/csv"}}
+    assert client.post(done["links"]["households"], content=household_csv(households).encode(),
+                       **csv_upload).status_code == 200
+    run = client.post("/v1/comparisons?save=true", json=BASKET).headers["dualcost-run"]
     return {
         "compare": ("POST", "/v1/comparisons", {"json": BASKET}),
         "indexSeries": ("POST", "/v1/index-series",
@@ -404,6 +409,10 @@ def _requests(client: TestClient) -> dict[str, tuple[str, str, dict[str, Any]]]:
                                     {"content": household_csv(households).encode(),
                                      **csv_upload}),
         "getHouseholdJob": ("GET", job["links"]["self"], {}),
+        "getHouseholdJobResults": ("GET", done["links"]["results"], {}),
+        "getRun": ("GET", f"/v1/runs/{run}", {}),
+        "listRuns": ("GET", "/v1/runs", {}),
+        "rerunRun": ("POST", f"/v1/runs/{run}/rerun", {}),
         "listPreferenceFamilies": ("GET", "/v1/preference-families", {}),
         "listIndexFormulas": ("GET", "/v1/index-formulas", {}),
         "demo": ("GET", "/v1/demo", {}),
@@ -415,12 +424,33 @@ def _requests(client: TestClient) -> dict[str, tuple[str, str, dict[str, Any]]]:
         "indexTree": ("POST", "/v1/index-tree",
                       {"json": load_example("indexTree.wrenmouth_coicop.json")}),
         "sheetIndexTree": ("GET", "/v1/sheet/index-tree?node=07%20transport&period=2026-03", {}),
+        "indexTreeFromCsv": ("POST", f"/v1/index-tree/csv?{tree_csv_query()}",
+                             {"content": tree_csv().encode(), **csv_upload}),
+        "upratingFromIndexTree": ("POST", "/v1/uprating/index-tree", {"json": load_example(
+            "upratingFromIndexTree.wrenmouth_pension_from_the_tree.json")}),
         "sheetSweep": ("GET", f"/v1/sheet/sweep?{SHEET_QUERY}&values=0.2,1", {}),
         "revealedPreference": ("POST", "/v1/revealed-preference", {"json": load_example(
             "revealedPreference.wrenmouth_household_diary.json")}),
         "sensitivity": ("POST", "/v1/sensitivity", {"json": load_example(
             "sensitivity.stone_geary_pensioner_frisch.json")}),
+        "fittedSensitivity": ("POST", "/v1/fitted-sensitivity", {"json": load_example(
+            "fittedSensitivity.wrenmouth_quarterly_three_families.json")}),
     }
+
+
+def tree_csv() -> str:
+    """The Wrenmouth demo tree's quotes as a long CSV table (tests/api/test_index_tree_csv.py)."""
+    from tests.api.test_index_tree_csv import as_csv, demo, records
+
+    return as_csv(records(demo()))
+
+
+def tree_csv_query() -> str:
+    from urllib.parse import urlencode
+
+    from tests.api.test_index_tree_csv import demo, query
+
+    return urlencode(query(demo()))
 
 
 def test_every_operation_is_covered(client: TestClient) -> None:
@@ -441,7 +471,9 @@ def test_every_operation_is_covered(client: TestClient) -> None:
      "fitModelCsv", "fitAndCompare", "householdIndices", "createHouseholdJob",
      "householdIndicesFromCsv", "getHouseholdJob", "listPreferenceFamilies", "listIndexFormulas",
      "demo", "sheetValue", "sheetComparison", "sheetSeries", "uprating", "sheetUprating",
-     "indexTree", "sheetIndexTree", "sheetSweep", "revealedPreference", "sensitivity"]))
+     "indexTree", "sheetIndexTree", "sheetSweep", "revealedPreference", "sensitivity",
+     "getHouseholdJobResults", "getRun", "listRuns", "rerunRun", "fittedSensitivity",
+     "upratingFromIndexTree", "indexTreeFromCsv"]))
 def test_an_accept_header_that_admits_nothing_gets_406(client: TestClient, operation: str) -> None:
     method, path, kwargs = _requests(client)[operation]
     headers = {**kwargs.pop("headers", {}), "accept": "image/png"}

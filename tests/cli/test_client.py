@@ -285,6 +285,10 @@ def test_client_reads_the_answers_that_do_not_hang_on_one_model(live_url) -> Non
         answer = dc.sensitivity(sweep)
         assert len(answer["grid"]["points"]) == len(sweep["grid"]["values"])
         assert dc.sensitivity(sweep, format="csv").column("kind")[-1] == "grid"
+        fitted = load_example("fittedSensitivity.wrenmouth_quarterly_three_families.json")
+        answer = dc.fitted_sensitivity(fitted)
+        assert len(answer["families"]) == len(fitted["families"])
+        assert dc.fitted_sensitivity(fitted, format="csv").column("kind")[-1] == "band"
 
 
 def test_client_raises_the_problem_with_its_pointer(live_url) -> None:

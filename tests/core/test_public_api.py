@@ -13,6 +13,10 @@ def test_public_names_are_frozen() -> None:
         "FAMILIES", "FORMULAS", "BaseBudget", "Comparison", "DualcostError", "IndexData",
         "InvalidInput", "Notice", "NumericalFailure", "Preferences", "WeightReference",
         "__version__", "calibrate", "compare",
+        # Answers that do not hang on one model (issue 18): the model-free bounds of a panel,
+        # a sweep over models and a grid, and the band across models' arrays.
+        "RevealedPreference", "revealed_preference", "Grid", "Sensitivity", "sweep", "Band",
+        "band_of",
     ])
     for name in dualcost.__all__:
         assert hasattr(dualcost, name)

@@ -95,3 +95,24 @@ def test_a_bad_grid_is_refused_by_name(grid: sv.Grid, name: str, index: int | No
     with pytest.raises(InvalidInput) as caught:
         sv.sweep(BASE, P1, grid=grid)
     assert (caught.value.parameter, caught.value.index) == (name, index)
+
+
+def test_band_of_is_the_range_over_the_values_that_are_results() -> None:
+    """band_of against numpy's nanmin/nanmax (reference library) where some model's value is a
+    result, NaN where none is, and the count of results; seeded."""
+    import numpy as np
+
+    from dualcost.core.sensitivity import band_of
+
+    rng = np.random.default_rng(18)
+    values = [rng.uniform(0.9, 1.2, (3, 5)) for _ in range(4)]
+    for v in values:
+        v[rng.uniform(size=v.shape) < 0.3] = np.nan
+    values[0][0, 0] = values[1][0, 0] = values[2][0, 0] = values[3][0, 0] = np.nan
+    band = band_of(values)
+    stack = np.stack(values)
+    some = np.isfinite(stack).any(axis=0)
+    assert np.array_equal(band.count, np.isfinite(stack).sum(axis=0))
+    assert np.array_equal(band.low[some], np.nanmin(stack[:, some], axis=0))
+    assert np.array_equal(band.high[some], np.nanmax(stack[:, some], axis=0))
+    assert np.isnan(band.low[0, 0]) and np.isnan(band.high[0, 0]) and band.count[0, 0] == 0

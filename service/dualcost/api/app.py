@@ -15,13 +15,16 @@ from fastapi.staticfiles import StaticFiles
 
 from .. import __version__
 from ..config import Settings
+from ..storage import database_of
 from . import docs, problems
 from .access import AccessControlMiddleware, RateLimiter, load_keys
+from .keeper import Keeper
 from .limits import BodyLimitMiddleware, HeaderLimitMiddleware
 from .observability import RequestContextMiddleware
 from .openapi import problem_openapi
 from .operations import jobs
 from .routes import ROUTERS
+from .runs import RunStore
 
 WEB_DIR = Path(__file__).resolve().parents[1] / "web"
 #: The page's scripts and styles come from the service (inline style attributes: chart sizes),
@@ -59,7 +62,7 @@ text answers carry the caution in `Dualcost-Caution`. Every operation under /v1 
 #: came from, how its numbers are written, and the rows a household batch left out.
 EXPOSED_HEADERS = ["Dualcost-Version", "Dualcost-Input-Digest", "Dualcost-Caution",
                    "Dualcost-Decimal", "Dualcost-Separator", "Dualcost-Skipped-Rows", "Location",
-                   "Content-Location", "Link"]
+                   "Content-Location", "Link", "Dualcost-Run"]
 
 
 @asynccontextmanager
@@ -78,10 +81,15 @@ async def _lifespan(app: FastAPI) -> AsyncIterator[None]:
     # request's reading) waits for it once per handoff: at most 1 ms instead of Python's 5 ms.
     switch = sys.getswitchinterval()
     sys.setswitchinterval(min(switch, GIL_SWITCH_SECONDS))
+    keeper = Keeper(app.state.jobs, app.state.runs, app.state.settings)
+    keeper.start()
     app.state.ready = True
-    yield
-    app.state.ready = False
-    sys.setswitchinterval(switch)
+    try:
+        yield
+    finally:
+        app.state.ready = False
+        await anyio.to_thread.run_sync(keeper.stop)
+        sys.setswitchinterval(switch)
 
 
 def create_app(settings: Settings | None = None) -> FastAPI:
@@ -99,6 +107,8 @@ def create_app(settings: Settings | None = None) -> FastAPI:
             {"name": "catalogue", "description": "Preference families and index formulas."},
             {"name": "demo", "description": "The invented demo scenario."},
             {"name": "service", "description": "Health and problem types."},
+            {"name": "runs", "description": "Saved runs (save=true): read them, list them, "
+                                            "run them again on this version."},
         ],
     )
     app.state.settings = settings
@@ -107,7 +117,12 @@ def create_app(settings: Settings | None = None) -> FastAPI:
     # With keys, each key's share of the job table; without, every job is everyone's.
     per_key = (settings.max_household_jobs_per_key or max(1, settings.max_household_jobs // len(keys))
                if keys else None)
-    app.state.jobs = jobs.JobStore(settings.max_household_jobs, per_key)
+    # The database of jobs and runs, opened and migrated now: a service that cannot keep them
+    # does not start (StorageUnavailable says why).
+    app.state.db = database_of(settings)
+    app.state.jobs = jobs.JobStore(app.state.db, settings.max_household_jobs, per_key,
+                                   settings.job_lease_seconds)
+    app.state.runs = RunStore(app.state.db)
     app.state.rate_limiter = (RateLimiter(settings.rate_limit_per_minute,
                                           settings.rate_limit_max_clients)
                               if settings.rate_limit_per_minute else None)

@@ -16,6 +16,7 @@ from pydantic import BaseModel, Field
 
 from .examples import add_examples
 from .problems import PROBLEM_MEDIA_TYPE
+from .runs import SAVE_TEXT, saves
 
 
 class FieldErrorOut(BaseModel):
@@ -57,6 +58,11 @@ _COMPUTING = {"503": "The computation ran past the service's compute deadline."}
 _NEGOTIATED = {"406": "The Accept header admits none of the media types this operation "
                       "answers (listed in `acceptable`)."}
 _JSON_BODY = "The body was sent with a Content-Type other than JSON (application/json)."
+_STORAGE = {"503": "The computation ran past the service's compute deadline, or (with save=true) "
+                   "the database that keeps runs cannot be reached (see Retry-After)."}
+#: The ``save`` query parameter, handled for every operation by dualcost.api.runs.
+_SAVE = {"name": "save", "in": "query", "required": False, "description": SAVE_TEXT,
+         "schema": {"type": "boolean", "default": False}}
 
 
 def problem_openapi(app: FastAPI) -> dict[str, Any]:
@@ -73,6 +79,9 @@ def problem_openapi(app: FastAPI) -> dict[str, Any]:
     problem = {PROBLEM_MEDIA_TYPE: {"schema": {"$ref": "#/components/schemas/Problem"}}}
     for path, item in doc.get("paths", {}).items():
         for method, op in item.items():
+            if saves(path, method):
+                op.setdefault("parameters", []).append(dict(_SAVE))
+                op.setdefault("responses", {}).setdefault("503", {"description": _STORAGE["503"]})
             responses = op.setdefault("responses", {})
             extra = dict(_ALWAYS)
             if path.startswith("/v1/"):

@@ -9,10 +9,12 @@ The web layer's exceptions join the core's tree (:mod:`dualcost.core.errors`)::
 
     DualcostError
      ├── InvalidInput, NumericalFailure, EngineUnavailable   the core's (see core.errors)
+     ├── StorageUnavailable   the database of jobs and runs is out of reach: 503, Retry-After
      ├── RequestProblem       bad input the web layer found, or a core error located in the
      │                        request (422, or the slug it carries: 400, 413, 415)
      └── ServiceProblem       the service's state refuses the request
           ├── JobNotFound     404
+          ├── RunNotFound     404: no saved run with this id for this key
           ├── JobConflict     409
           ├── NotAcceptable   406: no answer format of the operation suits the Accept header
           └── JobTableFull    503, with Retry-After
@@ -52,6 +54,7 @@ from ..core.errors import (
     EngineUnavailable,
     InvalidInput,
     NumericalFailure,
+    StorageUnavailable,
 )
 from .inputs import json_text
 
@@ -115,12 +118,17 @@ PROBLEM_TYPES: dict[str, ProblemType] = {
                     "symmetric, ...): the figure is not a result. The detail names the reason and "
                     "the items; the formula indices remain available."),
         ProblemType("job-table-full", 503, "No room for another household job",
-                    "The household-job table of this process is full of jobs that may not be "
+                    "The household-job table (one for every worker) is full of jobs that may not be "
                     "removed (running jobs, and jobs of other API keys that have not finished), "
                     "or this API key holds its share of the table "
                     "(DUALCOST_MAX_HOUSEHOLD_JOBS_PER_KEY) and all of its jobs are running. Retry "
                     "after the number of seconds in the Retry-After header, or delete a job of "
                     "yours that you no longer need."),
+        ProblemType("storage-unavailable", 503, "The service's database cannot be reached",
+                    "The database that keeps household jobs and saved runs did not answer, or "
+                    "refused the change; nothing of this request was written (each change is "
+                    "one transaction). Retry after the number of seconds in the Retry-After "
+                    "header; /ready answers 503 until the database is back."),
         ProblemType("not-found", 404, "Nothing here", "No resource at this address."),
         ProblemType("not-acceptable", 406, "No acceptable answer format",
                     "The Accept header admits none of the media types this operation answers "
@@ -189,6 +197,10 @@ class ServiceProblem(DualcostError):
 
 
 class JobNotFound(ServiceProblem):
+    slug, status = "not-found", 404
+
+
+class RunNotFound(ServiceProblem):
     slug, status = "not-found", 404
 
 
@@ -414,6 +426,12 @@ async def _on_engine_unavailable(request: Request, exc: EngineUnavailable) -> JS
                             instance=request.url.path)
 
 
+async def _on_storage_unavailable(request: Request, exc: StorageUnavailable) -> JSONResponse:
+    response = problem_response("storage-unavailable", str(exc), instance=request.url.path)
+    response.headers["retry-after"] = str(request.app.state.settings.storage_retry_seconds)
+    return response
+
+
 async def _on_numerical_failure(request: Request, exc: NumericalFailure) -> JSONResponse:
     if isinstance(exc, DeadlineExceeded):
         return problem_response("deadline-exceeded", str(exc), instance=request.url.path)
@@ -521,6 +539,7 @@ def install(app: FastAPI) -> None:
     app.add_exception_handler(NumericalFailure, _on_numerical_failure)  # type: ignore[arg-type]
     app.add_exception_handler(ServiceProblem, _on_service_problem)  # type: ignore[arg-type]
     app.add_exception_handler(EngineUnavailable, _on_engine_unavailable)  # type: ignore[arg-type]
+    app.add_exception_handler(StorageUnavailable, _on_storage_unavailable)  # type: ignore[arg-type]
     app.add_exception_handler(StarletteHTTPException, _on_http_error)  # type: ignore[arg-type]
     app.add_exception_handler(Exception, _on_unexpected)
     app.add_middleware(UnexpectedErrorMiddleware)

@@ -48,7 +48,7 @@ import importlib.metadata
 import re
 import unicodedata
 from collections.abc import Iterable, Mapping
-from dataclasses import dataclass
+from dataclasses import dataclass, field
 from functools import cache
 from pathlib import Path
 from typing import Annotated, Any
@@ -138,6 +138,8 @@ class Provenance:
 
     input_digest: str
     version: str = ""
+    #: The canonical input itself (RFC 8785 bytes), where it is known: what a saved run keeps.
+    input: bytes | None = field(default=None, compare=False, repr=False)
 
     def __post_init__(self) -> None:
         if not self.version:
@@ -153,26 +155,39 @@ class Provenance:
 
 def of_body(model: BaseModel) -> Provenance:
     """A JSON body's (or a spreadsheet form's body's) provenance."""
-    return Provenance(_digest(given(model)))
+    return _of(given(model))
 
 
-def _digest(value: Any) -> str:
+def _of(value: Any) -> Provenance:
+    """The provenance of a canonical input given as JSON values."""
     try:
-        return digest_of(value)
+        text = canonical_json(value)
     except (ValueError, OverflowError) as exc:  # only what validation let through: model extras
         raise RequestProblem.at("", f"the request has no canonical form: {exc}") from None
+    return Provenance("sha256:" + hashlib.sha256(text).hexdigest(), input=text)
 
 
 def of_upload(csv_sha256: str, query: Mapping[str, Any]) -> Provenance:
     """A CSV upload's: the hash of its bytes and its query parameters (:func:`query_of`)."""
-    return Provenance(digest_of({"csv_sha256": csv_sha256, "query": dict(query)}))
+    return _of({"csv_sha256": csv_sha256, "query": dict(query)})
 
 
 def of_job(spec: BaseModel, households_sha256: str | None) -> Provenance:
     """A household job's: its body, and once uploaded the hash of its households' CSV."""
     if households_sha256 is None:
         return of_body(spec)
-    return Provenance(_digest({"job": given(spec), "households_csv_sha256": households_sha256}))
+    return _of({"job": given(spec), "households_csv_sha256": households_sha256})
+
+
+def attach(response: Any, provenance: Provenance) -> None:
+    """Remember on an answer the provenance it was written with (for a saved run)."""
+    response._dualcost_provenance = provenance
+
+
+def attached(response: Any) -> Provenance | None:
+    """The provenance an answer was written with, if it was (:func:`attach`)."""
+    found = getattr(response, "_dualcost_provenance", None)
+    return found if isinstance(found, Provenance) else None
 
 
 # -- header values ----------------------------------------------------------------------------

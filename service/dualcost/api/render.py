@@ -42,7 +42,7 @@ from fastapi.responses import PlainTextResponse, Response, StreamingResponse
 
 from ..core.errors import NumericalFailure
 from .problems import NotAcceptable, RequestProblem
-from .provenance import CAUTION_HEADER, Provenance, header_text
+from .provenance import CAUTION_HEADER, Provenance, attach, header_text
 from .schemas.common import CAUTION, DecimalMark
 
 T = TypeVar("T")
@@ -159,9 +159,11 @@ def json_response(document: Any, *, provenance: Provenance | None = None, status
     if provenance is not None:
         document = {**document, "provenance": provenance.json()}
         headers = {**(headers or {}), **provenance.headers()}
-    return Response(orjson.dumps(document, option=orjson.OPT_SERIALIZE_NUMPY),
-                    status_code=status_code,
-                    media_type=JSON_MEDIA_TYPE, headers=headers)
+    response = Response(orjson.dumps(document, option=orjson.OPT_SERIALIZE_NUMPY),
+                        status_code=status_code, media_type=JSON_MEDIA_TYPE, headers=headers)
+    if provenance is not None:
+        attach(response, provenance)
+    return response
 
 
 def all_finite(value: Any) -> bool:
@@ -254,7 +256,9 @@ def csv_response(header: Sequence[str], rows: Iterable[Sequence[Any]], *,
     text = csv_text(header, rows)
     if trailer:
         text += csv_lines(trailer_rows(provenance, len(header)))
-    return Response(text, media_type=CSV_CONTENT_TYPE, headers=headers)
+    response = Response(text, media_type=CSV_CONTENT_TYPE, headers=headers)
+    attach(response, provenance)
+    return response
 
 
 def csv_stream(pieces: Iterator[str], *, provenance: Provenance, trailer: bool = False,
@@ -264,8 +268,10 @@ def csv_stream(pieces: Iterator[str], *, provenance: Provenance, trailer: bool =
     :func:`trailer_rows` after the last piece."""
     if trailer:
         pieces = trailed(pieces, provenance)
-    return StreamingResponse(pieces, media_type=CSV_CONTENT_TYPE,
-                             headers={**(headers or {}), **provenance_headers(provenance)})
+    response = StreamingResponse(pieces, media_type=CSV_CONTENT_TYPE,
+                                 headers={**(headers or {}), **provenance_headers(provenance)})
+    attach(response, provenance)
+    return response
 
 
 def trailed(pieces: Iterator[str], provenance: Provenance, delimiter: str = ",") -> Iterator[str]:
@@ -316,7 +322,10 @@ def trailer_rows(provenance: Provenance, width: int) -> list[list[str]]:
 def text_response(text: str, *, provenance: Provenance,
                   headers: dict[str, str] | None = None) -> Response:
     """One value as ``text/plain``, with the provenance and caution headers."""
-    return PlainTextResponse(text, headers={**(headers or {}), **provenance_headers(provenance)})
+    response = PlainTextResponse(text, headers={**(headers or {}),
+                                                **provenance_headers(provenance)})
+    attach(response, provenance)
+    return response
 
 
 def fixed_point(value: float, digits: int | None) -> str:
@@ -402,8 +411,10 @@ class SheetNumbers:
         """A spreadsheet answer (``text``: a number or a :meth:`table`) with the headers that
         say how its numbers are written, and the provenance and caution headers."""
         headers = self.headers(table=media_type.startswith(CSV_MEDIA_TYPE))
-        return Response(text, media_type=media_type,
-                        headers=headers | provenance_headers(provenance))
+        response = Response(text, media_type=media_type,
+                            headers=headers | provenance_headers(provenance))
+        attach(response, provenance)
+        return response
 
 
 #: A number's text that another convention reads as a whole number with a thousands separator:

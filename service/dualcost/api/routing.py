@@ -49,6 +49,7 @@ from pydantic_core import from_json
 from starlette.concurrency import run_in_threadpool
 from starlette.types import Receive, Scope
 
+from . import runs
 from .inputs import json_text
 from .problems import FieldError, RequestProblem
 
@@ -185,21 +186,27 @@ async def check_json_body(request: Request) -> None:
 class JsonRoute(APIRoute):
     """A route whose handler receives a :class:`JsonRequest` whose body met
     :func:`check_json_body`, and knows how much work its request may do on the event loop (for
-    :func:`inline_when_cheap`)."""
+    :func:`inline_when_cheap`). An operation's route also takes ``save=true``, and then keeps
+    its run (:mod:`dualcost.api.runs`), whatever the operation."""
 
     def get_route_handler(self) -> Callable[[Request], Coroutine[Any, Any, Response]]:
         handler = super().get_route_handler()
         model = _body_model(self)
         takes_json = self.body_field is not None and not isinstance(self.body_field.field_info,
                                                                     params.Form)
+        saving = runs.offers_save(self)
 
         async def parse_with_pydantic_core(request: Request) -> Response:
+            save = saving and runs.asked_to_save(request)
             token = _INLINE_BUDGET.set(_inline_budget(request))
             try:
                 json_request = JsonRequest(request.scope, request.receive, model)
                 if takes_json:
                     await check_json_body(json_request)
-                return await handler(json_request)
+                response = await handler(json_request)
+                if save:
+                    response = await runs.keep(json_request, self, response)
+                return response
             finally:
                 _INLINE_BUDGET.reset(token)
 

@@ -100,8 +100,11 @@ def _model_of(spec: Any) -> tuple[Any, Mapping[str, Any]]:
 def comparison(body: Any) -> float:
     """A comparison (:class:`~dualcost.api.schemas.comparison.ComparisonRequest`)."""
     n = len(body.items)
-    family, parameters = _model_of(body.model)
-    return PER_ITEM * n + model(family, parameters, n)
+    work = 0.0
+    for spec in (body.model, *(getattr(body, "band_models", None) or ())):  # each compared
+        family, parameters = _model_of(spec)
+        work += PER_ITEM * n + model(family, parameters, n)
+    return work
 
 
 def series_shape(periods: int, items: int, spec: Any) -> float:
@@ -113,7 +116,9 @@ def series_shape(periods: int, items: int, spec: Any) -> float:
 
 def series(body: Any) -> float:
     """An index series or an audit, from its JSON body."""
-    work = series_shape(len(body.periods), len(body.items), body.model)
+    work = 0.0
+    for spec in (body.model, *(getattr(body, "band_models", None) or ())):  # each a series
+        work += series_shape(len(body.periods), len(body.items), spec)
     return work + PER_ITEM * len(getattr(body, "published", ()))
 
 
@@ -189,3 +194,15 @@ def groups_of_nodes(tree: Any) -> int:
 
 def of_index_tree(arguments: Mapping[str, Any]) -> float:
     return index_tree(arguments["body"])
+
+
+def index_tree_csv(text: str, tree: Any) -> float:
+    """An index tree over quotes uploaded as CSV: every record a quote cell, and every node
+    (counted by its names in the tree's JSON text) in as many periods as there could be."""
+    records = text.count("\n") + 1
+    nodes = tree.count('"name"') if isinstance(tree, str) else 0
+    return PER_QUOTE_CELL * records + PER_GROUP * nodes * min(records, 1_000)
+
+
+def of_index_tree_csv(arguments: Mapping[str, Any]) -> float:
+    return index_tree_csv(arguments["text"], arguments.get("tree"))

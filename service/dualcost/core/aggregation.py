@@ -54,7 +54,7 @@ so no Konüs figure is withheld (:mod:`dualcost.core.validity`).
 from __future__ import annotations
 
 from collections.abc import Sequence
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 
 import numpy as np
 import numpy.typing as npt
@@ -349,13 +349,22 @@ class Segment:
     index: Array
     konus: Array | None
     quotes_matched: Array
+    #: Every node's index in the weight reference period on the link (the mean over its
+    #: periods): elementary aggregates by their formula, groups by the upper formula.
+    at_reference: Array | None = None
+    #: The model's elementary indices in the weight reference period and the covered periods,
+    #: kept when the Konüs index waits for fitted sigmas (:func:`segment_konus`).
+    model_reference: Array | None = None
+    model_covered: Array | None = None
+    leaf_shares: Array | None = None
 
 
 def compute_segment(h: Hierarchy, quotes: Quotes, link: Link, covered: Sequence[int], *,
                     upper: str, sigmas: Array | None, weights: Weights,
-                    names: Sequence[str]) -> Segment:
+                    names: Sequence[str], konus: bool = True) -> Segment:
     """One segment: elementary indices on the link period, the weights price-updated (Lowe) or
-    not (Young), the upper levels, and the model's Konüs index at every node."""
+    not (Young), the upper levels, and the model's Konüs index at every node (``konus``
+    False: left for :func:`segment_konus`, with the model's elementary indices kept)."""
     reference = list(link.weight_reference) or [link.period]
     span = list(covered) + reference
     index, counts, model = elementary_indices(h, quotes, link.period, span, names, sigmas)
@@ -363,12 +372,25 @@ def compute_segment(h: Hierarchy, quotes: Quotes, link: Link, covered: Sequence[
     given = group_shares(h, weights.shares)
     used = price_updated(h, weights.shares, at_b) if upper == "lowe" else given
     levels = upper_indices(h, index[:, : len(covered)], used)
-    konus = None
-    if model is not None and sigmas is not None:
-        model_b = np.mean(model[:, len(covered):], axis=1)
-        konus = konus_indices(h, sigmas, weights.shares, model_b, model[:, : len(covered)])
-    return Segment(link.period, tuple(covered), tuple(link.weight_reference), given, used,
-                   levels, konus, counts[:, : len(covered)])
+    at_reference = np.mean(upper_indices(h, index[:, len(covered):], used), axis=1)
+    model_b = model_t = None
+    if model is not None:
+        model_b, model_t = np.mean(model[:, len(covered):], axis=1), model[:, : len(covered)]
+    segment = Segment(link.period, tuple(covered), tuple(link.weight_reference), given, used,
+                      levels, None, counts[:, : len(covered)], at_reference, model_b, model_t,
+                      weights.shares)
+    if konus and sigmas is not None:
+        return segment_konus(h, segment, sigmas)
+    return segment
+
+
+def segment_konus(h: Hierarchy, segment: Segment, sigmas: Array) -> Segment:
+    """The segment with the model's Konüs index at every node under ``sigmas``."""
+    assert segment.model_reference is not None and segment.model_covered is not None
+    assert segment.leaf_shares is not None
+    konus = konus_indices(h, sigmas, segment.leaf_shares, segment.model_reference,
+                          segment.model_covered)
+    return replace(segment, konus=konus)
 
 
 def chain(segments: Sequence[Segment], attr: str) -> Array:

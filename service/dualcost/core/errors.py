@@ -8,8 +8,10 @@
      ├── NumericalFailure         valid inputs, but the evaluation left the finite floating-point range
      │    │                       or an iterative step did not converge
      │    └── DeadlineExceeded    an iterative solve ran past the compute deadline it was given
-     └── EngineUnavailable        an engine of dualcost.engines cannot run: its library is not
-                                  installed or its cluster cannot be reached
+     ├── EngineUnavailable        an engine of dualcost.engines cannot run: its library is not
+     │                            installed or its cluster cannot be reached
+     └── StorageUnavailable       the database of jobs and saved runs (dualcost.storage) cannot
+                                  be reached or used; nothing was written
 
 The core never knows an HTTP status; ``dualcost.api.problems`` is the one place that maps these
 classes to problem responses.
@@ -119,3 +121,8 @@ class DeadlineExceeded(NumericalFailure):
 class EngineUnavailable(DualcostError):
     """An engine of :mod:`dualcost.engines` cannot run here: its library is not installed, or
     the cluster it sends work to cannot be reached."""
+
+
+class StorageUnavailable(DualcostError):
+    """The database of household jobs and saved runs (:mod:`dualcost.storage`) cannot be
+    reached or used: the transaction in progress was rolled back, nothing was written."""

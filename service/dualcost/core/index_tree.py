@@ -15,10 +15,20 @@ from dataclasses import dataclass
 import numpy as np
 from numpy.typing import NDArray
 
-from .aggregation import Link, Quotes, Segment, chain, compute_segment, group_sigmas, unit_notices
+from .aggregation import (
+    Link,
+    Quotes,
+    Segment,
+    chain,
+    compute_segment,
+    group_sigmas,
+    segment_konus,
+    unit_notices,
+)
 from .errors import InvalidInput
 from .hierarchy import UPPER_FORMULAS, Hierarchy, check_weights
 from .preferences.base import Notice
+from .sigma_fit import FIT_METHODS, SigmaFits, fit_sigmas
 
 Array = NDArray[np.float64]
 
@@ -29,7 +39,8 @@ class IndexTree:
     the first link on (``periods``, positions among the periods given): ``index`` the chained
     index and ``konus`` the chained Konüs index (ratios on the first link period; ``None``
     without a model), ``bias_points`` ``100 (index - konus)``; ``segment_of`` the segment of
-    each period; ``segments`` as computed; ``notices`` what was done or assumed."""
+    each period; ``segments`` as computed; ``notices`` what was done or assumed; ``fits``
+    the fitted sigmas, their standard errors and data (with ``sigma_fit``)."""
 
     hierarchy: Hierarchy
     periods: tuple[int, ...]
@@ -41,21 +52,33 @@ class IndexTree:
     segments: tuple[Segment, ...]
     sigmas: Array | None
     notices: tuple[Notice, ...]
+    fits: SigmaFits | None = None
 
 
 def index_tree(h: Hierarchy, quotes: Quotes, links: Sequence[Link], periods: Sequence[str], *,
                upper: str = "lowe", sigma_by_level: Sequence[float] | None = None,
-               tolerance: float = 1e-6, normalise_weights: bool = False) -> IndexTree:
+               tolerance: float = 1e-6, normalise_weights: bool = False,
+               sigma_fit: str | None = None, sigma_fallback: float = 1.0) -> IndexTree:
     """Compute the tree's index and its model's Konüs index, segment by segment, and chain them.
 
     ``periods`` names the periods (their positions index ``quotes.prices``' columns); each link
-    starts a segment at its period, the links in time order. Errors name the argument
-    (``links``, ``weights``, ``quotes``, ``sigma``, ``upper``) and the node or link.
+    starts a segment at its period, the links in time order. With ``sigma_fit`` (``by_group``
+    or ``by_level``) every group's sigma is fitted from the links' weights and the tree's own
+    indices (:mod:`dualcost.core.sigma_fit`); a group it cannot identify keeps its own or its
+    level's sigma, else ``sigma_fallback``. Errors name the argument (``links``, ``weights``,
+    ``quotes``, ``sigma``, ``upper``, ``sigma_fit``, ``sigma_fallback``) and the node or link.
     """
     if upper not in UPPER_FORMULAS:
         raise InvalidInput("upper", f"is {upper!r}; choose one of {', '.join(UPPER_FORMULAS)}")
+    if sigma_fit is not None and sigma_fit not in FIT_METHODS:
+        raise InvalidInput("sigma_fit", f"is {sigma_fit!r}; choose one of "
+                           f"{', '.join(FIT_METHODS)}")
     _check_links(links, periods)
-    sigmas = group_sigmas(h, sigma_by_level)
+    sources: list[str] = []
+    if sigma_fit is None:
+        sigmas = group_sigmas(h, sigma_by_level)
+    else:
+        sigmas, sources = fallback_sigmas(h, sigma_by_level, sigma_fallback)
     notices = _assumptions(h, quotes, links, sigmas, periods, sigma_by_level)
     segments = []
     for k, link in enumerate(links):
@@ -69,13 +92,54 @@ def index_tree(h: Hierarchy, quotes: Quotes, links: Sequence[Link], periods: Seq
         notices += weights.notices
         segments.append(compute_segment(h, quotes, link, range(link.period, end + 1),
                                         upper=upper, sigmas=sigmas, weights=weights,
-                                        names=periods))
+                                        names=periods, konus=sigma_fit is None))
     index = chain(segments, "index")
+    fits = None
+    if sigma_fit is not None and sigmas is not None:
+        fits = fit_sigmas(h, [s.shares for s in segments], _reference_levels(segments, index),
+                          sigmas, sources, method=sigma_fit)
+        sigmas = fits.sigmas
+        notices += fits.notices
+        segments = [segment_konus(h, s, sigmas) for s in segments]
     konus = None if sigmas is None else chain(segments, "konus")
     bias = None if konus is None else 100.0 * (index - konus)
     segment_of = [0] + [k for k, s in enumerate(segments) for _ in s.periods[1:]]
     return IndexTree(h, tuple(range(links[0].period, len(periods))), upper, index, konus, bias,
-                     tuple(segment_of), tuple(segments), sigmas, tuple(notices))
+                     tuple(segment_of), tuple(segments), sigmas, tuple(notices), fits)
+
+
+def fallback_sigmas(h: Hierarchy, sigma_by_level: Sequence[float] | None,
+                    fallback: float) -> tuple[Array, list[str]]:
+    """Each node's sigma where a fit cannot be had: its own, else its level's, else
+    ``fallback``; and where each came from, in words."""
+    if not (np.isfinite(fallback) and fallback >= 0.0):
+        raise InvalidInput("sigma_fallback", f"is {fallback:g}; an elasticity of substitution "
+                           "is 0 or more")
+    levels = list(sigma_by_level or [])
+    for depth, sigma in enumerate(levels):
+        if not (np.isfinite(sigma) and sigma >= 0.0):
+            raise InvalidInput("sigma_by_level", f"level {depth} has sigma {sigma:g}; an "
+                               "elasticity of substitution is 0 or more", index=depth)
+    out, sources = np.full(h.size, fallback), ["sigma_fallback"] * h.size
+    for k in range(h.size):
+        if h.sigmas[k] is not None:
+            out[k], sources[k] = float(h.sigmas[k] or 0.0), "its own sigma"
+        elif h.depths[k] < len(levels):
+            out[k], sources[k] = levels[h.depths[k]], f"sigma_by_level[{h.depths[k]}]"
+        elif not h.children[k]:
+            out[k], sources[k] = 1.0, "1, the Jevons model of an elementary aggregate"
+    return out, sources
+
+
+def _reference_levels(segments: Sequence[Segment], index: Array) -> list[Array]:
+    """Every node's price level in each link's weight reference period on the first link:
+    the chained index at the link times the index of the weight reference period on it."""
+    first = segments[0].link
+    out = []
+    for s in segments:
+        assert s.at_reference is not None
+        out.append(index[:, s.link - first] * s.at_reference)
+    return out
 
 
 def _tuple(index: object) -> tuple[int, ...]:

@@ -208,3 +208,26 @@ def ranges(results: Sequence[Comparison]) -> tuple[Range, ...]:
             measures[f"{name}_bias_points"].append(f.bias_points)
     return tuple(Range(name, min(v) if v else None, max(v) if v else None, len(v), left_out)
                  for name, v in measures.items())
+
+
+@dataclass(frozen=True)
+class Band:
+    """Element by element, the least and greatest of several models' values and how many of
+    them are results (NaN: withheld or not computed; ``low`` and ``high`` are NaN where none
+    is)."""
+
+    low: npt.NDArray[np.float64]
+    high: npt.NDArray[np.float64]
+    count: npt.NDArray[np.int64]
+
+
+def band_of(values: Sequence[npt.ArrayLike]) -> Band:
+    """The band across models of arrays of one shape (one per model, e.g. periods by
+    households), leaving out NaN: ``low = min_j v_j`` and ``high = max_j v_j`` over the models
+    whose value is a result."""
+    if not values:
+        raise InvalidInput("models", "give at least one model")
+    stack = np.stack([np.asarray(v, dtype=np.float64) for v in values])
+    # fmin/fmax skip NaN unless every value is NaN, without nanmin's warning for that case.
+    return Band(np.fmin.reduce(stack, axis=0), np.fmax.reduce(stack, axis=0),
+                np.isfinite(stack).sum(axis=0).astype(np.int64))

@@ -40,7 +40,7 @@ from .changes import Calendar
 from .errors import InvalidInput
 from .preferences import Notice
 from .series import IndexSeries, LabelledSeries, series_by_label
-from .series_panel import Array, Panel
+from .series_panel import Array
 
 Measure = Literal["twelve_month", "annual_average", "cumulative"]
 Rounding = Literal["half_up", "half_even", "down", "up"]
@@ -342,7 +342,7 @@ def uprating_by_label(
                            f"{konus_standard!r}")
     calendar = labelled.result.calendar
     assert calendar is not None
-    read = [_clause(c, labelled.panel, i) for i, c in enumerate(clauses)]
+    read = [read_clause(c, labelled.panel.periods, i) for i, c in enumerate(clauses)]
     indices = indices_of(labelled.result, series_kind, konus_standard)
     results = uprate(read, indices, calendar, amount)
     if any(not np.all(np.isfinite(f.factors)) for r in results for f in r.by_series.values()):
@@ -353,13 +353,14 @@ def uprating_by_label(
                     notices)
 
 
-def _clause(given: Mapping[str, Any], panel: Panel, i: int) -> Clause:
+def read_clause(given: Mapping[str, Any], periods: Sequence[str], i: int) -> Clause:
+    """A clause from a mapping of :class:`Clause`'s fields, ``since`` a label of ``periods``."""
     fields = dict(given)
     since = fields.pop("since", None)
     if since is not None:
-        if str(since) not in panel.periods:
+        if str(since) not in periods:
             raise InvalidInput("clauses", f"period {str(since)!r} is not in the series (its "
-                               f"periods run from {panel.periods[0]!r} to "
-                               f"{panel.periods[-1]!r})", (i, "since"))
-        fields["since"] = panel.periods.index(str(since))
+                               f"periods run from {periods[0]!r} to "
+                               f"{periods[-1]!r})", (i, "since"))
+        fields["since"] = list(periods).index(str(since))
     return Clause(**fields)

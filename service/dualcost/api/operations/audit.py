@@ -35,6 +35,9 @@ def run(request: AuditRequest, settings: Settings) -> Audit:
     if request.revealed_bounds:  # the audit's answer has no place for them
         raise loc.problem("revealed_bounds", "is not part of an audit: ask POST "
                           "/v1/index-series or POST /v1/revealed-preference for the bounds")
+    if request.band_models is not None:  # nor for the band
+        raise RequestProblem.at("/band_models", "is not part of an audit: ask POST "
+                                "/v1/index-series for the band across models")
     if request.tolerance is None:  # each value's tolerance comes from its decimals
         loc.add("tolerance", PLACES["published"])
     panel = panel_from_json(request.periods, request.items, {

@@ -16,6 +16,7 @@ from ...core.comparison import Comparison, compare_budgets
 from ...core.errors import NumericalFailure
 from ...core.indices import REGISTRY, formulas_for
 from ...core.preferences import Preferences
+from ...core.sensitivity import Calibrator, Sensitivity, sweep_budgets
 from ..inputs.items import ItemAxis
 from ..inputs.locator import Form, Locator, Place
 from ..inputs.model import core_parameters
@@ -30,6 +31,7 @@ from ..schemas.comparison import (
     WeightReferenceIn,
 )
 from ..schemas.revealed import BOUNDS_METHOD
+from . import bands
 from .answers import SCALE_RATIO, notices_json, validity_json
 
 #: Where each core argument of a comparison is, in the JSON body and in the spreadsheet forms'
@@ -69,6 +71,8 @@ class Outcome:
     result: Comparison
     model: Preferences
     axis: ItemAxis
+    #: On request (band_models): the comparisons under those models and the band across them.
+    band: Sensitivity | None = None
 
 
 def locator(form: Form = "json") -> Locator:
@@ -83,10 +87,31 @@ def run(request: ComparisonRequest, settings: Settings, loc: Locator | None = No
     parameters = core_parameters(request.model, axis, loc, max_tree_depth=settings.max_tree_depth,
                                  deadline_seconds=settings.compute_deadline_seconds)
     arguments |= current_arguments(request, axis, loc, request.share_unit)
+    band_models = [bands.calibrator(f"/band_models/{j}", spec, axis, loc, settings)[0]
+                   for j, spec in enumerate(request.band_models or ())]
     with computing("compare", settings), loc.translating():
         result, model = compare_budgets(request.model.family, parameters, **arguments,
                                         revealed_bounds=request.revealed_bounds)
-    return Outcome(result, model, axis)
+        band = _band(arguments, band_models, request.formulas)
+    return Outcome(result, model, axis, band)
+
+
+#: The arguments of a comparison that a sweep across models reads too.
+_SWEPT = ("base_prices", "base_quantities", "base_shares", "base_expenditure",
+          "normalise_shares", "share_unit", "current_prices", "current_income",
+          "current_quantities")
+
+
+def _band(arguments: dict[str, Any], models: list[Calibrator],
+          formulas: list[str] | None) -> Sensitivity | None:
+    """The comparisons under ``models`` at the same budget and prices, as POST /v1/sensitivity
+    makes them, over the formulas that need no weight-reference period."""
+    if not models:
+        return None
+    kept = None if formulas is None else [
+        f for f in formulas if not {"weight_quantities", "weight_shares"} & set(REGISTRY[f].needs)]
+    return sweep_budgets(**{k: v for k, v in arguments.items() if k in _SWEPT}, models=models,
+                         formulas=kept)
 
 
 class BudgetRequest(Protocol):
@@ -217,7 +242,30 @@ def document(outcome: Outcome) -> dict[str, Any]:
         "notices": notices_json(r.notices, axis.ids, axis.labels),
         "caution": CAUTION,
         "revealed_bounds": _revealed(r),
+        "band": _band_json(outcome),
     }
+
+
+def _band_json(outcome: Outcome) -> dict[str, Any] | None:
+    """The band across band_models beside this comparison's K(u0), when it was asked for."""
+    found = outcome.band
+    if found is None:
+        return None
+    models = []
+    for e in found.models:
+        c, ok = e.comparison, e.comparison.validity.regular
+        models.append({"family": c.family, "regular": ok,
+                       **{f"konus_{k}": getattr(c.konus, k) if ok else None
+                          for k in ("base", "current", "midpoint")}})
+    base = next(x for x in found.band if x.measure == "konus_base")
+    r = outcome.result
+    k = r.konus.base if r.validity.regular else None
+    inside = None if k is None or base.low is None or base.high is None else bool(
+        base.low * (1 - 1e-9) <= k <= base.high * (1 + 1e-9))
+    return {"models": models,
+            "ranges": [{"measure": x.measure, "low": x.low, "high": x.high, "count": x.count,
+                        "left_out": x.left_out} for x in found.band],
+            "konus_inside": inside}
 
 
 def _revealed(r: Comparison) -> dict[str, Any] | None:
@@ -296,6 +344,10 @@ def measures(outcome: Outcome) -> list[Row]:
         bracket = r.revealed.bounds[1]
         rows += [("revealed_bounds_lower", bracket.lower, "base", None, None),
                  ("revealed_bounds_upper", bracket.upper, "base", None, None)]
+    if outcome.band is not None:  # on request: the band of K across band_models
+        rows += [(f"band_{x.measure}_{end}", getattr(x, end), x.measure.removeprefix("konus_"),
+                  None, None) for x in outcome.band.band if x.measure.startswith("konus_")
+                 for end in ("low", "high")]
     return rows
 
 

@@ -35,7 +35,8 @@ from ...core.households import (
     reasons_of,
 )
 from ...core.preferences import Notice
-from ..inputs.households import ROW_PLACES, job_of, labels_of, rows_of
+from ...core.sensitivity import Band, band_of
+from ..inputs.households import ROW_PLACES, HouseholdRows, job_of, labels_of, rows_of
 from ..inputs.items import ItemAxis
 from ..inputs.locator import Locator, Place
 from ..observability import computing
@@ -43,6 +44,7 @@ from ..problems import RequestProblem
 from ..render import csv_line, csv_lines, finite
 from ..schemas.common import CAUTION, SIGN_CONVENTION
 from ..schemas.households import HouseholdIndicesRequest
+from . import bands
 from .answers import SCALE_RATIO, notices_json
 
 #: Where each core argument of a household batch or job is in the request.
@@ -85,6 +87,8 @@ class Outcome:
     locator: Locator
     #: What the web layer filled in (weights not given).
     notices: tuple[Notice, ...] = ()
+    #: On request (band_models): K(u0) across those models, periods by households.
+    band: Band | None = None
 
 
 def locator() -> Locator:
@@ -146,14 +150,68 @@ def run(request: HouseholdIndicesRequest, settings: Settings) -> Outcome:
                                 "model is not homothetic and needs each household's income "
                                 "(expenditure)")
     scheduler = scheduler_for(request.engine, len(request.households), settings, loc)
+    band_jobs = _band_jobs(request, rows, loc, settings)
     with computing("householdIndices", settings), loc.translating():
         chunks = chunks_of(job, rows.shares, expenditure=rows.incomes, weights=rows.weights,
                            ids=rows.ids, rows=np.arange(1, len(request.households) + 1))
         result = collect(job, evaluate(job, chunks, scheduler, settings),
                          on_bad_rows=request.bad_rows or "reject", quantiles=quantiles,
                          engine="local" if scheduler is None else "cluster")
-    extra = () if not rows.weights_assumed else (weights_notice(rows.weights_assumed),)
-    return Outcome(result, axis, labels_of(request), request, loc, extra)
+        band, left_out = _band(band_jobs, rows, result, scheduler, settings)
+    extra: tuple[Notice, ...] = () if not rows.weights_assumed else (
+        weights_notice(rows.weights_assumed),)
+    if left_out:
+        extra += (Notice("band_households_left_out", f"{left_out} household(s) were refused by "
+                         "one or more of band_models (a model's own rule for a household): "
+                         "their band is over the other models (see band.models)."),)
+    return Outcome(result, axis, labels_of(request), request, loc, extra, band)
+
+
+def _band_jobs(request: HouseholdIndicesRequest, rows: HouseholdRows, loc: Locator,
+               settings: Settings) -> list[HouseholdJob]:
+    """The household job under each model of band_models (errors at /band_models/<j>)."""
+    models = request.band_models or []
+    n = len(request.households)
+    if n * (1 + len(models)) > settings.max_households:
+        raise RequestProblem.at("/band_models", f"{n} households under {1 + len(models)} models "
+                                f"are more than max_households ({settings.max_households}) "
+                                "household evaluations; send fewer households or models")
+    jobs = []
+    for j, spec in enumerate(models):
+        own = bands.locator_at(f"/band_models/{j}", loc, [])
+        job = job_of(request.model_copy(update={"model": spec}), own,
+                     max_items=settings.max_items, max_tree_depth=settings.max_tree_depth,
+                     chunk_rows=settings.household_chunk_rows)[0]
+        if rows.incomes is None and job.needs_income:
+            raise RequestProblem.at(f"/band_models/{j}", f"the {job.family} model is not "
+                                    "homothetic and needs each household's income "
+                                    "(expenditure)")
+        jobs.append(job)
+    return jobs
+
+
+def _band(jobs: list[HouseholdJob], rows: HouseholdRows, result: HouseholdResults,
+          scheduler: Any, settings: Settings) -> tuple[Band | None, int]:
+    """K(u0) of the households of ``result`` across ``jobs``, and how many of those
+    households some job refused (the band leaves that model out for them)."""
+    if not jobs:
+        return None, 0
+    numbers = np.arange(1, rows.shares.shape[0] + 1)
+    values, refused = [], np.zeros(result.rows.size, dtype=bool)
+    for job in jobs:
+        chunks = chunks_of(job, rows.shares, expenditure=rows.incomes, weights=rows.weights,
+                           ids=rows.ids, rows=numbers)
+        own = collect(job, evaluate(job, chunks, scheduler, settings), on_bad_rows="skip",
+                      quantiles=(0.5,))
+        found = np.zeros(result.rows.size, dtype=bool)
+        konus = np.full((len(job.current_prices), result.rows.size), np.nan)
+        if own.rows.size:  # both in row order: each kept household's place among own's
+            at = np.minimum(np.searchsorted(own.rows, result.rows), own.rows.size - 1)
+            found = own.rows[at] == result.rows
+            konus[:, found] = own.values["konus"][:, at[found]]
+        values.append(konus)
+        refused |= ~found
+    return band_of(values), int(refused.sum())
 
 
 def weights_notice(count: int | None) -> Notice:
@@ -203,7 +261,7 @@ def document(outcome: Outcome) -> dict[str, Any]:
     return finite({
         "family": job.family, "items": axis.ids, "scale": SCALE_RATIO,
         "formulas": list(job.formulas), "periods": list(labels),
-        "households": _households(res, labels, axis.ids),
+        "households": _with_band(_households(res, labels, axis.ids), outcome.band),
         "summary": summary_json(res.summary, labels),
         "skipped": skipped_json(res.skipped, outcome.locator),
         "engine": res.engine, "chunks": res.chunks, "definitions": DEFINITIONS,
@@ -211,6 +269,20 @@ def document(outcome: Outcome) -> dict[str, Any]:
         "notices": notices_json((*res.notices, *outcome.notices), axis.ids, axis.labels),
         "caution": CAUTION,
     }, "households")
+
+
+def _with_band(households: list[dict[str, Any]], band: Band | None) -> list[dict[str, Any]]:
+    """Each household-period with its band beside its own K(u0) (None without band_models)."""
+    if band is None:
+        return households
+    low, high, count = (_listed(band.low), _listed(band.high), band.count.tolist())
+    for j, h in enumerate(households):
+        for t, period in enumerate(h["periods"]):
+            lo, hi, k = low[t][j], high[t][j], period["konus"]
+            period["band"] = {"konus_low": lo, "konus_high": hi, "models": count[t][j],
+                              "konus_inside": None if k is None or lo is None or hi is None
+                              else bool(lo * (1 - 1e-9) <= k <= hi * (1 + 1e-9))}
+    return households
 
 
 def _listed(column: Any) -> list[list[float | None]]:
@@ -266,13 +338,18 @@ def csv_header(job: HouseholdJob, with_income: bool, *, records: bool = False) -
             "expenditure", *FLAG_COLUMNS, *job.output_columns(with_income)]
 
 
+#: The columns band_models adds to the CSV answer of a JSON batch, after the others.
+BAND_COLUMNS = ("band_konus_low", "band_konus_high", "band_models")
+
+
 def csv_rows(result: ChunkResult, job: HouseholdJob, labels: Sequence[str],
-             with_income: bool, items: Sequence[str], *, records: bool = False) -> str:
+             with_income: bool, items: Sequence[str], *, records: bool = False,
+             extra: Sequence[Any] = ()) -> str:
     """One CSV line per household and period, in the order of :func:`csv_header`: empty cells
     for the figures withheld (``model_regular`` false) or left out; the reasons and the items'
     ids joined by semicolons."""
     names = job.output_columns(with_income)
-    cols = [result.values[n].tolist() for n in names]
+    cols = [result.values[n].tolist() for n in names] + [x.tolist() for x in extra]
     weights = result.weights.tolist()
     incomes = None if result.expenditure is None else result.expenditure.tolist()
     flags, named = _flags(result.irregular_or_zeros(len(labels)), result.irregular_items, items)
@@ -298,10 +375,13 @@ def csv_pieces(outcome: Outcome, rows: int = 4096) -> Iterator[str]:
     res = outcome.result
     job = res.job
     with_income = res.expenditure is not None
-    yield csv_line(csv_header(job, with_income))
+    band = outcome.band
+    yield csv_line(csv_header(job, with_income) + ([] if band is None else list(BAND_COLUMNS)))
+    extra = () if band is None else (band.low, band.high, band.count)
     whole = ChunkResult(rows=res.rows, ids=res.ids, weights=res.weights,
                         expenditure=res.expenditure, values=res.values, problems=(),
                         irregular=res.irregular, irregular_items=res.irregular_items)
     for start in range(0, res.rows.size, rows):
-        yield csv_rows(whole.block(slice(start, start + rows)), job, outcome.labels,
-                       with_income, outcome.axis.ids)
+        part = slice(start, start + rows)
+        yield csv_rows(whole.block(part), job, outcome.labels, with_income, outcome.axis.ids,
+                       extra=[x[:, part] for x in extra])

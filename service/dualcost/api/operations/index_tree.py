@@ -25,8 +25,12 @@ from ...core.aggregation import Link, Quotes
 from ...core.errors import InvalidInput
 from ...core.hierarchy import Hierarchy, build_hierarchy
 from ...core.index_tree import IndexTree, index_tree
+from ..inputs.csv import parse_number
 from ..inputs.locator import Form, Locator, Place
+from ..inputs.query import json_parameter, validated
+from ..inputs.quotes import QuoteTable
 from ..observability import computing
+from ..problems import RequestProblem
 from ..render import finite
 from ..schemas.common import CAUTION
 from ..schemas.index_tree import IndexTreeRequest, NodeIn
@@ -40,6 +44,17 @@ PLACES: dict[str, Place] = {
     "periods": Place("/periods", "periods", "list"),
     "sigma_by_level": Place("/sigma_by_level", "sigma_by_level", "list"),
     "upper": Place("/upper_formula", "upper_formula"),
+    "sigma_fit": Place("/sigma_fit", "sigma_fit"),
+    "sigma_fallback": Place("/sigma_fallback", "sigma_fallback"),
+}
+#: The places of the CSV upload: the tree and the links as JSON text in query parameters, the
+#: quotes in the CSV (an error about a quote at its first record's aggregate cell).
+CSV_PLACES: dict[str, Place] = {
+    **PLACES,
+    "tree": Place("/tree", "tree", "path", json_text=True),
+    "links": Place("/links", "links", "path", json_text=True),
+    "quotes": Place("/quotes", None, "path", column="aggregate"),
+    "sigma_by_level": Place("/sigma_by_level", "sigma_by_level", "scalar"),
 }
 #: The core's node-level arguments, and the field of a flat node each is about.
 _NODE_FIELDS = {"name": "name", "parent": "parent", "formula": "formula", "sigma": "sigma",
@@ -67,7 +82,41 @@ class Outcome:
 
 
 def locator(form: Form = "json") -> Locator:
-    return Locator(PLACES, form)
+    return Locator(CSV_PLACES if form == "csv" else PLACES, form)
+
+
+#: The query parameters of the CSV upload that are options of the JSON form, as they are.
+CSV_OPTIONS = ("elementary_formula", "upper_formula", "sigma_fit", "sigma_fallback",
+               "weight_tolerance", "normalise_weights", "reference_value")
+
+
+def csv_request(query: dict[str, Any], quotes: QuoteTable, loc: Locator) -> IndexTreeRequest:
+    """The request of a CSV upload: the quotes from the CSV, the tree and links from their
+    query parameters' JSON text, the options as given; errors name the query parameter."""
+    body: dict[str, Any] = {"periods": quotes.periods, "quotes": quotes.quotes,
+                            "tree": json_parameter("tree", query["tree"], TREE_EXAMPLE),
+                            "links": json_parameter("links", query["links"], LINKS_EXAMPLE)}
+    body |= {k: query[k] for k in CSV_OPTIONS if query.get(k) is not None}
+    if query.get("sigma_by_level"):
+        body["sigma_by_level"] = numbers_of(query["sigma_by_level"], "sigma_by_level")
+    request: IndexTreeRequest = validated(IndexTreeRequest, body, loc)
+    return request
+
+
+TREE_EXAMPLE = '{"name": "all items", "children": [{"name": "bread"}, {"name": "fish"}]}'
+LINKS_EXAMPLE = '[{"period": "2024-12", "weights": {"bread": 60, "fish": 40}}]'
+
+
+def numbers_of(text: str, name: str) -> list[float]:
+    """Comma-separated numbers of a query parameter (``0.3,0.7,1``)."""
+    out = []
+    for k, part in enumerate(text.split(",")):
+        value = parse_number(part.strip())
+        if value is None:
+            raise RequestProblem.at(f"#/query/{name}/{k}", f"{part.strip()!r} is not a number; "
+                                    f"give comma-separated numbers such as 0.3,0.7,1")
+        out.append(value)
+    return out
 
 
 def flatten(tree: NodeIn | list[Any]) -> Nodes:
@@ -89,13 +138,32 @@ def flatten(tree: NodeIn | list[Any]) -> Nodes:
     return out
 
 
+@dataclass(frozen=True)
+class Translated:
+    """The request in the core's terms: the checked tree, the quotes, the links, the nodes."""
+
+    hierarchy: Hierarchy
+    quotes: Quotes
+    links: list[Link]
+    nodes: Nodes
+
+
 def run(request: IndexTreeRequest, settings: Settings, loc: Locator | None = None) -> Outcome:
     """Translate the request, compute the tree's index and its Konüs index, point any error
     at the request."""
     loc = loc or locator()
+    t = translate(request, settings, loc)
+    with computing("index_tree", settings), pointing(loc, t.nodes, request):
+        result = index_tree(t.hierarchy, t.quotes, t.links, request.periods,
+                            **tree_options(request))
+    return Outcome(result, request, t.nodes)
+
+
+def translate(request: IndexTreeRequest, settings: Settings, loc: Locator) -> Translated:
+    """The tree, quotes and links of the request, each error pointed at its place."""
     nodes = flatten(request.tree)
     periods = _periods(request, loc)
-    with _pointing(loc, nodes, request):
+    with pointing(loc, nodes, request):
         h = build_hierarchy(nodes.names, nodes.parents, formulas=nodes.formulas,
                             sigmas=nodes.sigmas, default_formula=request.elementary_formula,
                             max_depth=settings.max_tree_depth)
@@ -104,13 +172,15 @@ def run(request: IndexTreeRequest, settings: Settings, loc: Locator | None = Non
                           f"{len(h.names) + len(request.quotes)}; the limit is "
                           f"{settings.max_items}")
     quotes = _quotes(request, h, periods, loc, nodes)
-    links = _links(request, h, periods, loc)
-    with computing("index_tree", settings), _pointing(loc, nodes, request):
-        result = index_tree(h, quotes, links, request.periods, upper=request.upper_formula,
-                            sigma_by_level=request.sigma_by_level,
-                            tolerance=request.weight_tolerance,
-                            normalise_weights=request.normalise_weights)
-    return Outcome(result, request, nodes)
+    return Translated(h, quotes, _links(request, h, periods, loc), nodes)
+
+
+def tree_options(request: IndexTreeRequest) -> dict[str, Any]:
+    """The options of :func:`dualcost.core.index_tree.index_tree` the request sets."""
+    return {"upper": request.upper_formula, "sigma_by_level": request.sigma_by_level,
+            "tolerance": request.weight_tolerance,
+            "normalise_weights": request.normalise_weights, "sigma_fit": request.sigma_fit,
+            "sigma_fallback": request.sigma_fallback}
 
 
 def _periods(request: IndexTreeRequest, loc: Locator) -> dict[str, int]:
@@ -187,16 +257,16 @@ def _links(request: IndexTreeRequest, h: Hierarchy, periods: dict[str, int],
 
 
 @contextmanager
-def _pointing(loc: Locator, nodes: Nodes, request: IndexTreeRequest) -> Iterator[None]:
+def pointing(loc: Locator, nodes: Nodes, request: IndexTreeRequest) -> Iterator[None]:
     """The core's errors about a node, a link's weights or a quote, at their place."""
     try:
         yield
     except InvalidInput as exc:
-        raise loc.problem(*_place(exc, nodes, request)) from exc
+        raise loc.problem(*_place(exc, nodes, request, loc.places)) from exc
 
 
 def _place(exc: InvalidInput, nodes: Nodes, request: IndexTreeRequest,
-           ) -> tuple[str, str, Any]:
+           places: dict[str, Place]) -> tuple[str, str, Any]:
     """(argument, rule, index) in the request's terms."""
     index = exc.index
     if exc.parameter in _NODE_FIELDS and isinstance(index, int) and index < len(nodes.places):
@@ -212,7 +282,7 @@ def _place(exc: InvalidInput, nodes: Nodes, request: IndexTreeRequest,
         return "links", exc.rule, (link, "weights", name) if given else (link, "weights")
     if exc.parameter == "quotes" and isinstance(index, tuple) and index:
         return "tree", exc.rule, nodes.places[int(index[0])]
-    if exc.parameter in PLACES:
+    if exc.parameter in places:
         return exc.parameter, exc.rule, index
     return "tree", f"{exc.parameter}: {exc.rule}", None
 
@@ -241,10 +311,34 @@ def document(outcome: Outcome) -> dict[str, Any]:
                    "weight_reference": [request.periods[t] for t in s.weight_reference],
                    "periods": [request.periods[t] for t in s.periods]} for s in r.segments],
         "nodes": [_node(r, k, scale, counts) for k in range(h.size)],
+        "sigma_fit": _fits(r),
         "notices": notices_json(r.notices, ids, labels),
         "scale": _scale(periods[0], scale),
         "caution": CAUTION,
     }, "index tree")
+
+
+EQUATION = ("D ln s_c = a_{g,k} + (1 - sigma_g) D ln P_c: the change of each child's share of its "
+            "group between consecutive links against the change of its price level, one effect "
+            "per group and link pair, least squares (CES share equation, Arrow, Chenery, Minhas "
+            "and Solow 1961; sigma the Allen elasticity, Allen 1938)")
+
+
+def _fits(r: IndexTree) -> dict[str, Any] | None:
+    if r.fits is None:
+        return None
+    names = r.hierarchy.names
+    return {
+        "method": r.fits.method, "equation": EQUATION,
+        "estimates": [{"nodes": [names[g] for g in e.nodes], "level": e.level,
+                       "sigma": e.sigma, "standard_error": e.standard_error,
+                       "observations": e.observations,
+                       "degrees_of_freedom": e.degrees_of_freedom, "used": list(e.used),
+                       "fitted": e.fitted, "reason": e.reason} for e in r.fits.estimates],
+        "data": [{"node": names[d.node], "children": [names[c] for c in d.children],
+                  "shares": d.shares.tolist(), "price_levels": d.prices.tolist()}
+                 for d in r.fits.data],
+    }
 
 
 def scale_of(outcome: Outcome) -> dict[str, str | None]:
@@ -312,5 +406,5 @@ def value(outcome: Outcome, node: str, period: str, measure: str) -> float | Non
     return (scale if measure == "konus" else 1.0) * float(source[k, column])
 
 
-__all__ = ["Outcome", "PLACES", "document", "flatten", "locator", "run", "scale_of", "table",
-           "value"]
+__all__ = ["CSV_PLACES", "Outcome", "PLACES", "Translated", "csv_request", "document", "flatten",
+           "locator", "pointing", "run", "scale_of", "table", "translate", "tree_options", "value"]

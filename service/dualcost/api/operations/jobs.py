@@ -2,21 +2,19 @@
 households, upload the households as CSV and read the results back as CSV while they are
 computed; the job reports its progress and, at the end, the summaries and the rows skipped.
 
-Jobs live in the memory of the process that created them (:class:`JobStore`, one per app): with
-several worker processes a client must reach the same process for all of a job's requests. The
-upload is spooled to a temporary file (in memory up to 8 MiB, then on disk) and read back chunk
-by chunk, so the households are never held twice.
+Jobs are kept in the database (:class:`~.job_store.JobStore`, :mod:`dualcost.storage`): any
+worker of any instance answers for any job, and a job outlives a restart. The worker that
+receives the households computes them and writes, chunk by chunk and each in one transaction,
+the answer's rows and the job's progress; at the end the summaries. The upload is spooled to a
+temporary file (in memory up to 8 MiB, then on disk) and read back chunk by chunk, so the
+households are never held twice.
 
 **Slots.** A job takes a slot of the table, one that newer jobs may not take from it, only
 once its households have fully arrived and it runs: while an upload is on its way the job is
 still waiting (and a stalled upload is ended by the body's read time, 408). **Owners.** With
-access control on, a job belongs to the API key that created it (:func:`owner_of`): other keys
-are told there is no such job (404, which does not reveal that it exists). When the table is
-full, a new job takes the place of, in this order, the oldest finished job of its own key, its
-own oldest waiting job (one without an upload on its way first), the oldest finished job of any
-key; never a running job, never another key's waiting one. A key holding its share of the table
-(``max_household_jobs_per_key``) can only replace its own jobs. No room: 503 ``job-table-full``
-with Retry-After.
+access control on, a job belongs to the API key that created it (:func:`owner_of`, the key's
+SHA-256): other keys are told there is no such job (404, which does not reveal that it
+exists). Which job a new one replaces when the table is full: :mod:`.job_store`.
 
 The CSV answer numbers households from 1 (``row``: the record after the header) and gives the
 line each household's record starts on (``record``); ``model_regular``, ``irregular_reasons``
@@ -32,13 +30,12 @@ import io
 import tempfile
 import threading
 import uuid
-from collections import OrderedDict
 from collections.abc import Generator, Iterator
-from contextlib import contextmanager
 from dataclasses import replace
 from datetime import datetime, timezone
 from typing import Any
 
+import orjson
 from fastapi import Request
 
 from ...config import Settings
@@ -54,38 +51,31 @@ from ..inputs.csv import (
 from ..inputs.households import CsvLayout, csv_chunks, csv_layout, job_of, labels_of
 from ..inputs.items import ItemAxis
 from ..inputs.locator import Locator
-from ..problems import JobConflict, JobNotFound, JobTableFull, RequestProblem
+from ..problems import RequestProblem
 from ..provenance import Provenance, of_job
 from ..render import csv_line
 from ..schemas.common import CAUTION
 from ..schemas.households import HouseholdJobSpec
 from . import households
 from .answers import SCALE_RATIO, notices_json
+from .job_store import FINISHED, JobStore, already_received, owner_of
 
 SPOOL_MEMORY_BYTES = 8 * 1024 * 1024
-#: Seconds a client is asked to wait (Retry-After) when the job table has no room.
-TABLE_FULL_RETRY_SECONDS = 30
-FINISHED = ("done", "failed", "cancelled")
 
-
-def owner_of(request: Request) -> str | None:
-    """The owner id of a request's jobs: its verified API key's id with access control on,
-    else None (every job is everyone's)."""
-    if not request.app.state.access_control:
-        return None
-    owner = request.scope.get("state", {}).get("key_id")
-    return str(owner) if owner else None
+__all__ = ["FINISHED", "JobState", "JobStore", "create", "owner_of", "restore", "state_of"]
 
 
 class JobState:
-    """One job's spec, progress and outcome; read by GET while a stream writes to it."""
+    """One job's spec, progress and outcome while a worker receives and computes it: built
+    from the job's stored specification by whichever worker the upload reaches, and written
+    back to the database (:class:`~.job_store.JobStore`) as the job goes on."""
 
     def __init__(self, spec: HouseholdJobSpec, job: HouseholdJob, axis: ItemAxis,
-                 quantiles: tuple[float, ...], owner: str | None = None) -> None:
-        self.id = uuid.uuid4().hex
+                 quantiles: tuple[float, ...], owner: str | None = None, *,
+                 job_id: str | None = None, created: str | None = None) -> None:
+        self.id = job_id or uuid.uuid4().hex
         self.owner = owner
-        self.uploads = 0  # uploads on their way (the job waits meanwhile)
-        self.created = datetime.now(timezone.utc).isoformat(timespec="seconds")
+        self.created = created or datetime.now(timezone.utc).isoformat(timespec="seconds")
         self.spec, self.job, self.axis, self.quantiles = spec, job, axis, quantiles
         self.labels = labels_of(spec)
         self.bad_rows = spec.bad_rows or "skip"
@@ -103,34 +93,11 @@ class JobState:
         #: What the web layer filled in for the upload (no weight column).
         self.defaults: tuple[Notice, ...] = ()
         self.lock = threading.Lock()
+        #: Where the job is kept (set by the store that holds it).
+        self.store: JobStore | None = None
+        self.pieces = 0  # pieces of the CSV answer written to the store
 
-    def expect_households(self) -> None:
-        """Refuse at once an upload to a job that has had its households (409)."""
-        with self.lock:
-            self._check_waiting()
-
-    def _check_waiting(self) -> None:
-        if self.status != "waiting_for_households":
-            raise JobConflict(f"household job {self.id} has already received its households "
-                              f"(status {self.status}); create a new job")
-
-    @contextmanager
-    def receiving(self) -> Iterator[None]:
-        """An upload on its way to this job (counted, for the choice of a job to replace)."""
-        with self.lock:
-            self.uploads += 1
-        try:
-            yield
-        finally:
-            with self.lock:
-                self.uploads -= 1
-
-    def claim(self) -> None:
-        with self.lock:
-            self._check_waiting()
-            self.status = "running"
-
-    def release(self) -> None:
+    def reset(self) -> None:
         """The upload was refused before any work: the job waits for a corrected one."""
         with self.lock:
             self.status = "waiting_for_households"
@@ -141,9 +108,21 @@ class JobState:
             self.defaults = ()
             self.acc = Accumulator(self.job)
             self.provenance = of_job(self.spec, None)
+            self.pieces = 0
+
+    def release(self) -> None:
+        """The upload was refused before any work: the job waits again, in the store too."""
+        self.reset()
+        if self.store is not None:
+            self.store.release(self)
 
     def count(self, n: int) -> None:
         self.rows_read += n
+
+    def written(self, piece: str | None) -> None:
+        """Progress made (and a piece of the answer, if any): into the store."""
+        if self.store is not None:
+            self.store.progress(self, piece)
 
     def finish(self) -> None:
         summary = households.summary_json(self.acc.summary(self.quantiles), self.labels)
@@ -152,12 +131,17 @@ class JobState:
             self.status = "done"
             # The per-household columns served the summaries; the job keeps only counts now.
             self.acc.parts = []
+        if self.store is not None:
+            self.store.finish(self)
 
     def fail(self, status: str, message: str) -> None:
         with self.lock:
-            if self.status == "running":
-                self.status = status
-                self.error = message
+            if self.status != "running":
+                return
+            self.status = status
+            self.error = message
+        if self.store is not None:
+            self.store.fail(self, status, message)
 
     def snapshot(self) -> dict[str, Any]:
         """The job as GET answers it (its provenance: :meth:`view`)."""
@@ -183,99 +167,46 @@ class JobState:
                 "notices": self.input_notices()
                 + notices_json(notices, self.axis.ids, self.axis.labels),
                 "links": {"self": f"/v1/household-jobs/{self.id}",
-                          "households": f"/v1/household-jobs/{self.id}/households"},
+                          "households": f"/v1/household-jobs/{self.id}/households",
+                          "results": f"/v1/household-jobs/{self.id}/results"},
                 "caution": CAUTION,
             }, self.provenance
-
 
     def input_notices(self) -> list[dict[str, str]]:
         """What was done in reading the upload (its dialect, when detected)."""
         return dialect_notices(None if self.layout is None else self.layout.dialect)
 
 
-class JobStore:
-    """The jobs of this process, oldest first, at most ``limit`` of them and ``per_owner`` of
-    one owner's; which job a new one replaces is in the module's notes."""
-
-    def __init__(self, limit: int, per_owner: int | None = None) -> None:
-        self.limit = limit
-        self.per_owner = min(per_owner or limit, limit)
-        self.jobs: OrderedDict[str, JobState] = OrderedDict()
-        self.lock = threading.Lock()
-
-    def add(self, state: JobState) -> None:
-        with self.lock:
-            own = [j for j in self.jobs.values() if j.owner == state.owner]
-            if len(own) >= self.per_owner:
-                victim = self._replaceable(own)
-                if victim is None:
-                    raise JobTableFull(f"this key holds {len(own)} household jobs, its share of "
-                                       "the table, and all of them are running; try again when "
-                                       "one has finished", TABLE_FULL_RETRY_SECONDS)
-                del self.jobs[victim.id]
-            elif len(self.jobs) >= self.limit:
-                others = [j for j in self.jobs.values() if j.owner != state.owner]
-                victim = self._replaceable(own) or next(
-                    (j for j in others if j.status in FINISHED), None)
-                if victim is None:
-                    raise JobTableFull(f"the table of {self.limit} household jobs is full of jobs "
-                                       "that are running or belong to other keys; try again "
-                                       "later", TABLE_FULL_RETRY_SECONDS)
-                del self.jobs[victim.id]
-            self.jobs[state.id] = state
-
-    @staticmethod
-    def _replaceable(own: list[JobState]) -> JobState | None:
-        """Of one owner's jobs (oldest first), the one a new job of theirs replaces: finished
-        first, then waiting without an upload on its way, then waiting; never a running one."""
-        def rank(job: JobState) -> int:
-            if job.status in FINISHED:
-                return 0
-            if job.status == "waiting_for_households":
-                return 2 if job.uploads else 1
-            return 3  # running
-
-        ranked = [(rank(j), i, j) for i, j in enumerate(own)]
-        best = min(ranked, default=None, key=lambda r: r[:2])
-        return best[2] if best is not None and best[0] < 3 else None
-
-    def get(self, job_id: str, owner: str | None = None) -> JobState:
-        """The job, if ``owner`` may see it; another owner's job is 'not found' as well."""
-        state = self.jobs.get(job_id)
-        if state is None or state.owner != owner:
-            raise JobNotFound(f"no household job {job_id!r} in this process (jobs live in the "
-                              "memory of the worker that created them)")
-        return state
-
-    def claim(self, state: JobState) -> None:
-        """The upload has arrived: the job runs, unless it was replaced meanwhile (404) or
-        another upload got there first (409)."""
-        with self.lock:
-            if self.jobs.get(state.id) is not state:
-                raise JobNotFound(f"household job {state.id} was replaced by newer jobs (the "
-                                  "table was full) while its households were arriving; create "
-                                  "a new job")
-            state.claim()
-
-    def remove(self, job_id: str, owner: str | None = None) -> None:
-        with self.lock:
-            state = self.get(job_id, owner)
-            if state.status == "running":
-                raise JobConflict("the job is running; delete it when it has finished")
-            del self.jobs[job_id]
-
-
-def create(spec: HouseholdJobSpec, settings: Settings, store: JobStore,
-           owner: str | None = None) -> JobState:
+def state_of(spec: HouseholdJobSpec, settings: Settings, owner: str | None = None, *,
+             job_id: str | None = None, created: str | None = None) -> JobState:
     """A job waiting for its households; the same checks as a batch's, before any upload."""
     loc = Locator(households.PLACES)
     job, axis, quantiles = job_of(spec, loc, max_items=settings.max_items,
                                   max_tree_depth=settings.max_tree_depth,
                                   chunk_rows=settings.household_chunk_rows)
+    return JobState(spec, job, axis, quantiles, owner, job_id=job_id, created=created)
+
+
+def create(spec: HouseholdJobSpec, settings: Settings, store: JobStore,
+           owner: str | None = None) -> JobState:
+    """A new job, checked as a batch would be, in the store."""
+    state = state_of(spec, settings, owner)
     if spec.engine == "cluster":
-        households.scheduler_for("cluster", None, settings, loc)
-    state = JobState(spec, job, axis, quantiles, owner)
+        households.scheduler_for("cluster", None, settings, Locator(households.PLACES))
     store.add(state)
+    return state
+
+
+def restore(store: JobStore, job_id: str, owner: str | None, settings: Settings) -> JobState:
+    """A stored job that waits for its households, rebuilt from its specification in this
+    worker to receive them (409 at once when it has had them)."""
+    row = store.record(job_id, owner)
+    if row.status != "waiting_for_households":
+        raise already_received(job_id, row.status)
+    spec = HouseholdJobSpec.model_validate_json(row.spec)
+    created = orjson.loads(row.document).get("created")
+    state = state_of(spec, settings, row.owner, job_id=row.id, created=created)
+    state.store = store
     return state
 
 
@@ -339,6 +270,7 @@ def open_upload(state: JobState, file: Any, lines: int, settings: Settings,
     state.engine = "local" if address is None else "cluster"
     with state.lock:
         state.provenance = of_job(state.spec, households_sha256)
+    state.written(None)
     return text, reader, address
 
 
@@ -353,13 +285,18 @@ def stream(state: JobState, reader: Iterator[list[str]], text: io.TextIOWrapper 
     assert state.layout is not None
     with_income = state.layout.expenditure_column is not None
     try:
-        yield csv_line(households.csv_header(job, with_income, records=True))
+        header = csv_line(households.csv_header(job, with_income, records=True))
+        state.written(header)
+        yield header
         chunks = csv_chunks(reader, state.layout, job.chunk_rows, state.count)
         for result in households.evaluate(job, chunks, scheduler, settings):
             state.acc.add(result)
-            if result.size:
-                yield households.csv_rows(result, job, state.labels, with_income,
-                                          state.axis.ids, records=True)
+            rows = (households.csv_rows(result, job, state.labels, with_income,
+                                        state.axis.ids, records=True) if result.size else None)
+            # The rows and the progress are stored (one transaction) before they are sent.
+            state.written(rows)
+            if rows is not None:
+                yield rows
         if reject and state.acc.skipped.count:
             state.fail("failed", f"{state.acc.skipped.count} row(s) break a rule and bad_rows "
                        "is reject: no result was given")

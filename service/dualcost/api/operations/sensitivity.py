@@ -15,17 +15,15 @@ from typing import Any
 from ...config import Settings
 from ...core.comparison import Comparison
 from ...core.indices import REGISTRY
-from ...core.preferences import BaseBudget, Preferences, calibrate
 from ...core.sensitivity import Calibrator, Evaluated, Grid, Range, Sensitivity, sweep_budgets
 from ..inputs.items import ItemAxis
 from ..inputs.locator import Form, Locator, Place
-from ..inputs.model import core_parameters
 from ..observability import computing
 from ..render import all_finite
 from ..schemas.common import CAUTION
 from ..schemas.model import ModelSpec
 from ..schemas.sensitivity import SensitivityRequest
-from . import compare
+from . import bands, compare
 from .answers import SCALE_RATIO, notices_json, validity_json
 
 #: Where each core argument is: the comparison's places for the budget and the options, the
@@ -92,19 +90,8 @@ def _model(j: int, spec: ModelSpec, axis: ItemAxis, loc: Locator, settings: Sett
            ) -> tuple[Calibrator, dict[str, Any]]:
     """Model j's calibration callback, and its parameters in core form; its errors point below
     ``/models/j``."""
-    own = Locator(dict(loc.places), loc.form, items=axis.ids)
-    own.model_root = f"/models/{j}"
-    own.add("model", Place(f"/models/{j}", loc.places["family"].query if j == 0 else None))
-    own.add("family", Place(f"/models/{j}/family", loc.places["family"].query if j == 0
-                            else None))
-    parameters = core_parameters(spec, axis, own, max_tree_depth=settings.max_tree_depth,
-                                 deadline_seconds=settings.compute_deadline_seconds)
-
-    def calibrated(budget: BaseBudget) -> Preferences:
-        with own.translating():
-            return calibrate(spec.family, budget, parameters)
-
-    return calibrated, parameters
+    return bands.calibrator(f"/models/{j}", spec, axis, loc, settings,
+                            query=loc.places["family"].query if j == 0 else None)
 
 
 def _grid(request: SensitivityRequest, models: list[tuple[Calibrator, dict[str, Any]]],

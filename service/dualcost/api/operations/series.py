@@ -18,6 +18,7 @@ import numpy as np
 from ...config import Settings
 from ...core.preferences import BaseBudget, Preferences
 from ...core.revealed_bounds import RevealedPreference
+from ...core.sensitivity import Band, band_of
 from ...core.series import MODEL_RULE, IndexSeries, LabelledSeries, describe_treatment, series_by_label
 from ..inputs.csv import Dialect, dialect_notices
 from ..inputs.items import ItemAxis
@@ -26,10 +27,12 @@ from ..inputs.model import calibrated
 from ..inputs.panels import Limits, PanelArrays
 from ..inputs.query import json_parameter, names
 from ..observability import computing
+from ..problems import RequestProblem
 from ..schemas.common import CAUTION
+from ..schemas.model import ModelSpec
 from ..schemas.revealed import BOUNDS_METHOD
 from ..schemas.series import SeriesOptions
-from . import changes
+from . import bands, changes
 from .answers import SCALE_RATIO, notices_json
 from .revealed import consistency_json, rows_json
 
@@ -97,6 +100,10 @@ class Outcome:
     #: On request: the model-free reading of the panel, and the items it used.
     revealed: RevealedPreference | None = None
     revealed_items: tuple[int, ...] = ()
+    #: On request (band_models): each model's family and fixed-base Konüs series at base
+    #: utility, and the band across them.
+    band_series: tuple[tuple[str, np.ndarray], ...] = ()
+    band: Band | None = None
 
 
 def locator(form: Form = "json") -> Locator:
@@ -111,9 +118,37 @@ def run(options: SeriesOptions, panel: PanelArrays, settings: Settings, loc: Loc
         operation: str = "indexSeries") -> Outcome:
     """Check the panel, calibrate the model to the base period and compute the series."""
     arguments = core_arguments(options, panel, settings, loc)
+    specs = getattr(options, "band_models", None) or []
+    cells = panel.prices.size * (1 + len(specs))
+    if specs and cells > settings.max_panel_cells:
+        raise RequestProblem.at("/band_models", f"{panel.prices.size} cells under "
+                                f"{1 + len(specs)} models are more than max_panel_cells "
+                                f"({settings.max_panel_cells}); ask for fewer models")
     with computing(operation, settings), loc.translating():
         labelled = series_by_label(**arguments)
-    return replace(_outcome(labelled, panel.axis), dialect=panel.dialect)
+        band = tuple(_band_series(j, spec, arguments, panel.axis, loc, settings)
+                     for j, spec in enumerate(specs))
+    outcome = replace(_outcome(labelled, panel.axis), dialect=panel.dialect, band_series=band)
+    return replace(outcome, band=band_of([v for _, v in band])) if band else outcome
+
+
+def _band_series(j: int, spec: ModelSpec, arguments: dict[str, Any], axis: ItemAxis,
+                 loc: Locator, settings: Settings) -> tuple[str, np.ndarray]:
+    """Band model j's fixed-base Konüs series at base utility, the rest of the request as
+    given; its errors point below ``/band_models/j``."""
+    own = bands.locator_at(f"/band_models/{j}", loc, axis.ids)
+
+    def model(budget: BaseBudget, items: tuple[int, ...]) -> Preferences:
+        sub = own.with_items([axis.ids[i] for i in items])
+        sub.model_root = own.model_root
+        return calibrated(spec, budget, axis.subset(items), sub,
+                          max_tree_depth=settings.max_tree_depth,
+                          deadline_seconds=settings.compute_deadline_seconds)
+
+    konus = series_by_label(**(arguments | {"model": model, "revealed_bounds": False})
+                            ).result.konus
+    assert konus is not None  # a model was given
+    return spec.family, konus.fixed_base["base"]
 
 
 def core_arguments(options: SeriesOptions, panel: PanelArrays, settings: Settings,
@@ -222,7 +257,30 @@ def document(outcome: Outcome) -> dict[str, Any]:
         "scale": scale(outcome),
         "caution": CAUTION,
         "revealed_bounds": _revealed(outcome, labels),
+        "band": _band_json(outcome, labels),
     }
+
+
+BAND_MEASURE = ("The fixed-base Konüs index at base utility of each model of band_models, on "
+                "the series' scale; the band is its least and greatest value in each period "
+                "over the models whose value is a result there.")
+
+
+def _band_json(outcome: Outcome, labels: list[str]) -> dict[str, Any] | None:
+    """The band across band_models beside the series' own fixed-base Konüs index."""
+    band = outcome.band
+    if band is None:
+        return None
+    k = outcome.result.konus
+    own = [None] * len(labels) if k is None else _values(k.fixed_base["base"])
+    low, high = _values(band.low), _values(band.high)
+    rows = [{"period": label, "konus_low": lo, "konus_high": hi, "models": int(n), "konus": x,
+             "konus_inside": None if x is None or lo is None or hi is None
+             else bool(lo * (1 - 1e-9) <= x <= hi * (1 + 1e-9))}
+            for label, lo, hi, n, x in zip(labels, low, high, band.count.tolist(), own,
+                                           strict=True)]
+    return {"measure": BAND_MEASURE, "rows": rows,
+            "models": [{"family": f, "fixed_base": _values(v)} for f, v in outcome.band_series]}
 
 
 def _revealed(outcome: Outcome, labels: list[str]) -> dict[str, Any] | None:
@@ -318,11 +376,44 @@ def _num(x: float) -> float | None:
     return None if not np.isfinite(x) else float(x)
 
 
+#: The columns the model-free brackets add to the CSV table (revealed_bounds: true), after
+#: the others: the JSON block's rows, one per period.
+REVEALED_COLUMNS = ("lower", "upper", "laspeyres", "paasche", "konus_base", "konus_inside")
+
+
+def _revealed_columns(outcome: Outcome) -> list[tuple[str, list[Any]]]:
+    block = _revealed(outcome, list(outcome.result.periods))
+    if block is None:
+        return []
+    return [(f"revealed_{name}", [row[name] for row in block["rows"]])
+            for name in REVEALED_COLUMNS]
+
+
+def _band_columns(outcome: Outcome) -> list[tuple[str, list[Any]]]:
+    band = outcome.band
+    if band is None:
+        return []
+    return [("band_konus_low", band.low.tolist()), ("band_konus_high", band.high.tolist()),
+            ("band_models", band.count.tolist())]
+
+
+def revealed_headers(outcome: Outcome) -> dict[str, str]:
+    """The verdicts and the efficiency level of the brackets, as a CSV answer states them
+    (none without revealed_bounds)."""
+    found = outcome.revealed
+    if found is None:
+        return {}
+    return {"Dualcost-Garp": "pass" if found.consistency.garp else "fail",
+            "Dualcost-Efficiency-Index": repr(found.efficiency),
+            "Dualcost-Revealed-Items": " ".join(outcome.axis.ids[i]
+                                                for i in outcome.revealed_items)}
+
+
 def table(outcome: Outcome) -> tuple[list[str], list[list[Any]]]:
     """The per-period table: one row per period, one column per series."""
     r = outcome.result
     columns = (_konus_columns(r) + _formula_columns(r) + _treatment_columns(r, outcome.axis.ids)
-               + changes.columns(r))
+               + changes.columns(r) + _revealed_columns(outcome) + _band_columns(outcome))
     header = ["period"] + [name for name, _ in columns]
     rows = [[r.periods[t]] + [values[t] for _, values in columns]
             for t in range(len(r.periods))]

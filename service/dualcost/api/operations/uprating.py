@@ -9,6 +9,7 @@ the cumulative difference, with the indexation caution first.
 
 from __future__ import annotations
 
+from collections.abc import Sequence
 from dataclasses import dataclass
 from typing import Any
 
@@ -54,7 +55,7 @@ def run(body: UpratingRequest, panel: PanelArrays, settings: Settings, loc: Loca
         operation: str = "uprating") -> Outcome:
     """Compute the series and run every clause under each of its indices: one core call."""
     arguments = series.core_arguments(body, panel, settings, loc)
-    clauses = [_clause(c) for c in body.clauses]
+    clauses = [clause_arguments(c) for c in body.clauses]
     with computing(operation, settings), loc.translating():
         result = uprating_by_label(clauses=clauses, amount=body.amount,
                                    series_kind=body.series_kind,
@@ -62,7 +63,8 @@ def run(body: UpratingRequest, panel: PanelArrays, settings: Settings, loc: Loca
     return Outcome(result, panel.axis, body.clauses)
 
 
-def _clause(c: ClauseIn) -> dict[str, Any]:
+def clause_arguments(c: ClauseIn) -> dict[str, Any]:
+    """A clause as the core reads it (:class:`dualcost.core.uprating.Clause`'s fields)."""
     out: dict[str, Any] = {"measure": c.measure, "lag": c.lag,
                            "period_of_year": c.period_of_year,
                            "since": None if c.since is None else str(c.since),
@@ -104,16 +106,17 @@ def document(outcome: Outcome) -> dict[str, Any]:
         "periods": list(r.periods), "frequency": frequency,
         "series_kind": u.kind, "konus_standard": u.standard, "indices": list(u.indices),
         "amount": u.amount,
-        "clauses": [_clause_out(c, given, outcome, frequency)
+        "clauses": [clause_out(c, given, r.periods, u.amount is not None, frequency)
                     for c, given in zip(u.clauses, outcome.clauses, strict=True)],
         "notices": notices_json(u.notices + r.notices, outcome.axis.ids, outcome.axis.labels),
         "scale": series.scale(series.Outcome(r, outcome.axis, None, frequency)),
     }
 
 
-def _clause_out(c: ClauseResult, given: ClauseIn, outcome: Outcome,
-                frequency: str | None) -> dict[str, Any]:
-    labels = outcome.result.labelled.result.periods
+def clause_out(c: ClauseResult, given: ClauseIn, labels: Sequence[str], paid: bool,
+               frequency: str | None) -> dict[str, Any]:
+    """One clause's part of the answer (``ClauseOut``); ``labels`` the series' periods,
+    ``paid`` whether an amount was given."""
     upratings = [{
         "measured_in": labels[s.measured_at], "measured_from": labels[s.measured_from],
         "paid_from": s.paid_from_label, "paid_within_series": s.paid_within,
@@ -125,7 +128,7 @@ def _clause_out(c: ClauseResult, given: ClauseIn, outcome: Outcome,
         "clause": given.model_dump(mode="json"), "definition": definition(given, frequency),
         "upratings": upratings,
         "not_computed": [{"measured_in": labels[t], "reason": why} for t, why in c.not_computed],
-        "money": _money(c) if outcome.result.amount is not None else None,
+        "money": _money(c) if paid else None,
     }
 
 
@@ -145,11 +148,19 @@ def _money(c: ClauseResult) -> list[dict[str, Any]]:
 def table(outcome: Outcome) -> tuple[list[str], list[list[Any]]]:
     """One row per clause, uprating and index: the change, as applied, the factor, and the
     money paid by the end of the series under that index and its difference to Konüs."""
-    header = ["clause", "measured_in", "measured_from", "paid_from", "index", "change_percent",
-              "applied_percent", "factor", "total_paid", "difference_vs_konus_total"]
-    labels = outcome.result.labelled.result.periods
+    return TABLE_HEADER, table_rows(outcome.result.clauses, outcome.clauses,
+                                    outcome.result.labelled.result.periods)
+
+
+TABLE_HEADER = ["clause", "measured_in", "measured_from", "paid_from", "index", "change_percent",
+                "applied_percent", "factor", "total_paid", "difference_vs_konus_total"]
+
+
+def table_rows(results: Sequence[ClauseResult], clauses: Sequence[ClauseIn],
+               labels: Sequence[str]) -> list[list[Any]]:
+    """The CSV rows of :data:`TABLE_HEADER`: one per clause, uprating and index."""
     rows: list[list[Any]] = []
-    for i, (c, given) in enumerate(zip(outcome.result.clauses, outcome.clauses, strict=True)):
+    for i, (c, given) in enumerate(zip(results, clauses, strict=True)):
         for j, s in enumerate(c.steps):
             for name, f in c.by_series.items():
                 total = f.total
@@ -158,7 +169,7 @@ def table(outcome: Outcome) -> tuple[list[str], list[list[Any]]]:
                              labels[s.measured_from], s.paid_from_label, name,
                              float(f.change_percent[j]), float(f.applied_percent[j]),
                              float(f.factors[j]), total, diff])
-    return header, rows
+    return rows
 
 
 def factor(outcome: Outcome, index: str, paid_from: str | None) -> tuple[float, str]:

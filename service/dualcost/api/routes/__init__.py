@@ -10,6 +10,7 @@ from . import (
     households,
     index_tree,
     revealed,
+    runs,
     sensitivity,
     series,
     service,
@@ -19,4 +20,4 @@ from . import (
 
 ROUTERS = [comparisons.router, series.router, audit.router, catalogue.router, service.router,
            sheets.router, households.router, fits.router, uprating.router, index_tree.router,
-           revealed.router, sensitivity.router]
+           revealed.router, sensitivity.router, runs.router]

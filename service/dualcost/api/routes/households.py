@@ -26,7 +26,7 @@ from ..deps import settings_of
 from ..inputs.csv import CSV_REQUEST_BODY, DecimalParam, DeclaredDialect, SeparatorParam
 from ..operations import households, jobs
 from ..operations.answers import SCALE_RATIO, scale_headers
-from ..problems import PROBLEM_MEDIA_TYPE
+from ..problems import PROBLEM_MEDIA_TYPE, JobConflict
 from ..provenance import Provenance, of_body
 from ..render import (
     CSV_ANSWER,
@@ -60,7 +60,7 @@ PROBLEM_RESPONSES: dict[int | str, dict[str, Any]] = {
 }
 OFFERS: tuple[Format, ...] = ("json", "csv")
 FormatParam = Annotated[Literal["json", "csv"] | None, format_query(OFFERS)]
-NO_JOB = {"description": "No such job in this process (or it belongs to another API key)."}
+NO_JOB = {"description": "No such job (or it belongs to another API key)."}
 
 
 #: The scale of a CSV answer's figures, in a header (a JSON answer has it as ``scale``).
@@ -97,7 +97,8 @@ class _JobAnswer(StreamingResponse):
             await super().__call__(scope, receive, send)
         finally:
             with anyio.CancelScope(shield=True):
-                self.state.fail("cancelled", "the client stopped reading the answer")
+                await run_in_threadpool(self.state.fail, "cancelled",
+                                        "the client stopped reading the answer")
                 while inspect.getgeneratorstate(self.pieces) == inspect.GEN_RUNNING:
                     # a chunk is computing in a thread
                     await anyio.sleep(0.01)
@@ -139,9 +140,9 @@ def household_indices(body: HouseholdIndicesRequest, request: Request,
 def create_household_job(body: HouseholdJobSpec, request: Request) -> Response:
     """The same fields as householdIndices without the households. The answer is the job
     (status waiting_for_households); send its households as CSV to the households link.
-    Bad rows are skipped and reported unless bad_rows is reject. Jobs live in this process's
-    memory (see the service documentation); with API keys, a job is seen only with the key
-    that created it."""
+    Bad rows are skipped and reported unless bad_rows is reject. Jobs are kept in the
+    service's database: any worker answers for them, and they outlive a restart; with API
+    keys, a job is seen only with the key that created it."""
     negotiate(request, ("json",))
     state = jobs.create(body, settings_of(request), _store(request), jobs.owner_of(request))
     document, origin = state.view()
@@ -175,14 +176,17 @@ async def household_indices_from_csv(job_id: str, request: Request,
     negotiate(request, ("csv",))
     settings = settings_of(request)
     store = _store(request)
-    state = store.get(job_id, jobs.owner_of(request))
-    state.expect_households()
+    state = await run_in_threadpool(jobs.restore, store, job_id, jobs.owner_of(request),
+                                    settings)
     # The job takes its slot only once its households have arrived: a stalled upload holds
     # none (and is ended by the body's read time).
-    with state.receiving():
-        file, lines, households_sha256 = await jobs.spool(request)
+    await run_in_threadpool(store.upload_started, job_id)
     try:
-        store.claim(state)
+        file, lines, households_sha256 = await jobs.spool(request)
+    finally:
+        await run_in_threadpool(store.upload_ended, job_id)
+    try:
+        await run_in_threadpool(store.claim, state)
     except BaseException:
         file.close()
         raise
@@ -200,7 +204,7 @@ async def household_indices_from_csv(job_id: str, request: Request,
             text.close()
         else:
             file.close()
-        state.release()
+        await run_in_threadpool(state.release)
         raise
     headers = {"Link": f'</v1/household-jobs/{state.id}>; rel="monitor"',
                "Content-Location": f"/v1/household-jobs/{state.id}"} | SCALE_HEADERS
@@ -208,8 +212,10 @@ async def household_indices_from_csv(job_id: str, request: Request,
     if state.layout is not None:
         headers |= state.layout.dialect.headers()
     if state.bad_rows == "skip":
-        return _JobAnswer(state, jobs.stream(state, reader, text, scheduler, settings), headers,
-                          state.provenance, trailer)
+        # The answer's first piece is written to the database: off the event loop too.
+        return await run_in_threadpool(
+            _JobAnswer, state, jobs.stream(state, reader, text, scheduler, settings), headers,
+            state.provenance, trailer)
     try:
         out = await run_in_threadpool(jobs.run_to_file, state, reader, scheduler, settings)
     finally:
@@ -227,8 +233,28 @@ def get_household_job(job_id: str, request: Request) -> Response:
     done, rows skipped by reason with the first 100 named by CSV record and column, and when
     done the democratic and plutocratic aggregates, quantiles and shares above them."""
     negotiate(request, ("json",))
-    document, origin = _store(request).get(job_id, jobs.owner_of(request)).view()
+    document, origin = _store(request).view(job_id, jobs.owner_of(request))
     return json_response(document, provenance=origin)
+
+
+@router.get("/household-jobs/{job_id}/results", operation_id="getHouseholdJobResults",
+            summary="A finished household job's results as CSV, from any worker",
+            responses={200: CSV_ANSWER, 404: NO_JOB,
+                       409: {"description": "The job has not finished (status is not done)."}})
+def get_household_job_results(job_id: str, request: Request,
+                              provenance: ProvenanceQuery = "headers") -> Response:
+    """The CSV answer of a job that is done, as its upload streamed it (the same rows and
+    columns), read back from the service's database: any worker of any instance answers it,
+    after a restart too. A job that is still waiting or running, or that failed or was
+    cancelled (whose partial answer is not kept), is a 409."""
+    negotiate(request, ("csv",))
+    store = _store(request)
+    row = store.record(job_id, jobs.owner_of(request))
+    if row.status != "done":
+        raise JobConflict(f"household job {job_id} is {row.status}: its results are given "
+                          "once it is done")
+    return csv_stream(store.pieces(job_id), provenance=Provenance(row.input_digest),
+                      trailer=provenance == "trailer", headers=dict(SCALE_HEADERS))
 
 
 @router.delete("/household-jobs/{job_id}", operation_id="deleteHouseholdJob", status_code=204,

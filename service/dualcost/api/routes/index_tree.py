@@ -10,15 +10,26 @@ from functools import cache
 from pathlib import Path
 from typing import Annotated, Any, Literal
 
-from fastapi import APIRouter, Query, Request
+from fastapi import APIRouter, Depends, Query, Request
 from fastapi.responses import PlainTextResponse, Response
+from pydantic import BeforeValidator
 
 from .. import workload
 from ..deps import settings_of
+from ..inputs.csv import (
+    CSV_REQUEST_BODY,
+    DecimalParam,
+    DeclaredDialect,
+    SeparatorParam,
+    csv_body,
+    dialect_notices,
+)
+from ..inputs.json_text import in_float_range
+from ..inputs.quotes import quotes_from_csv
 from ..operations import index_tree
 from ..operations.answers import scale_headers
 from ..problems import RequestProblem
-from ..provenance import Provenance, of_body
+from ..provenance import Provenance, UploadSha256, of_body, of_upload, query_of
 from ..render import (
     CSV_ANSWER,
     TEXT_CONTENT_TYPE,
@@ -53,7 +64,13 @@ price-updated from the weight reference period to the link) or **Young** (the sh
 **chain-linked** at each link's period (e.g. December, with annual re-weighting), published on
 the first link = 100. Beside it, at every node, the **Konüs index** of a nested CES model on the
 same tree (sigma per node, or per level in `sigma_by_level`) calibrated to the same weights, and
-the **bias** in index points. A group's weight must equal its children's sum (within
+the **bias** in index points. With `sigma_fit` (`by_group` or `by_level`) each group's sigma is
+**fitted** from the tree's own data: the change of each child's share of its group between
+consecutive links against the change of its price level (the CES share equation, least squares
+with one effect per group and link pair), with standard errors and the data used in
+`sigma_fit`; a group that cannot be fitted (one child, one link, no relative price change, or a
+fit below 0) keeps its given sigma or `sigma_fallback`, and a notice names it. A group's weight
+must equal its children's sum (within
 `weight_tolerance`; `normalise_weights` scales them instead, with a notice). Errors name the
 field and the node.
 """
@@ -77,6 +94,76 @@ def index_tree_answer(body: IndexTreeRequest, request: Request,
                             trailer=provenance == "trailer", filename="index-tree.csv",
                             headers=scale_headers(scale))
     return json_response(index_tree.document(outcome), provenance=of_body(body))
+
+
+CSV_DESCRIPTION = """\
+The **price quotes as a long CSV table** (as spreadsheets and statistical offices keep them), the
+tree and the links as JSON text in the query parameters `tree` and `links` (the same JSON as the
+fields of `POST /v1/index-tree`), the options as query parameters. The body is `text/csv` with
+columns `quote`, `aggregate`, `period` and `price`, and optionally `item`, `outlet` and `unit`:
+one record per quote and period it is priced in (a quote missing in a period is not priced
+there), in any order; the periods are put in time order when their labels are dates, else in the
+order they first appear (a notice says so). Fields separated by `,`, `;` or a tab, numbers with
+`.` or `,` as decimal mark, declared by `separator` and `decimal` or detected (stated in
+`notices`, code `csv_dialect_detected`); no grouping of thousands. Errors in the CSV name the row
+and column (`#cell=row,column`, RFC 7111); errors in the tree or links name the query parameter
+and the place inside its JSON (`#/query/links/1/weights/07 transport`). For a classification
+too large for a query string, use `POST /v1/index-tree`.
+
+""" + DESCRIPTION
+
+
+@router.post("/index-tree/csv", operation_id="indexTreeFromCsv",
+             summary="The index of a classification tree from price quotes uploaded as CSV",
+             description=CSV_DESCRIPTION, response_model=IndexTreeResponse, responses=RESPONSES,
+             openapi_extra=CSV_REQUEST_BODY)
+@inline_when_cheap(workload.of_index_tree_csv)
+def index_tree_from_csv(
+    text: Annotated[str, Depends(csv_body)],
+    csv_sha256: UploadSha256,
+    request: Request,
+    tree: Annotated[str, Query(description="The classification as JSON: a root node with "
+                               "nested children, or a list of nodes naming their parents.")],
+    links: Annotated[str, Query(description="The links as JSON: a list of {period, weights, "
+                                "weight_reference}.")],
+    elementary_formula: Literal["jevons", "carli", "dutot"] | None = None,
+    upper_formula: Literal["lowe", "young"] | None = None,
+    sigma_by_level: Annotated[str | None, Query(description="Comma-separated sigmas by level, "
+                                                "the root first (0.3,0.7,1).")] = None,
+    sigma_fit: Literal["by_group", "by_level"] | None = None,
+    sigma_fallback: Annotated[float | None, BeforeValidator(in_float_range),
+                              Query(allow_inf_nan=False)] = None,
+    weight_tolerance: Annotated[float | None, BeforeValidator(in_float_range),
+                                Query(allow_inf_nan=False)] = None,
+    normalise_weights: bool | None = None,
+    reference_value: Annotated[int | None, Query(description="1 or 100 (default 100).")] = None,
+    separator: SeparatorParam = None,
+    decimal: DecimalParam = None,
+    format: Annotated[Literal["json", "csv"] | None, format_query(OFFERS)] = None,
+    provenance: ProvenanceQuery = "headers",
+) -> Response:
+    """The index of the tree over the uploaded quotes, as POST /v1/index-tree computes it."""
+    query = dict(locals())
+    fmt = negotiate(request, OFFERS, format)
+    settings = settings_of(request)
+    loc = index_tree.locator("csv")
+    quotes = quotes_from_csv(text, loc, max_rows=settings.max_panel_cells,
+                             declared=DeclaredDialect(separator, decimal))
+    body = index_tree.csv_request(query, quotes, loc)
+    outcome = index_tree.run(body, settings, loc)
+    origin = of_upload(csv_sha256, query_of(request.query_params.multi_items(), query))
+    read = dialect_notices(quotes.dialect) + ([] if quotes.period_order is None else [
+        {"code": "periods_in_order_of_appearance", "message": quotes.period_order,
+         "items": []}])
+    if fmt == "csv":
+        header, rows = index_tree.table(outcome)
+        scale = {k: v for k, v in index_tree.scale_of(outcome).items() if v}
+        return csv_response(header, rows, provenance=origin, trailer=provenance == "trailer",
+                            filename="index-tree.csv",
+                            headers=scale_headers(scale) | quotes.dialect.headers())
+    document = index_tree.document(outcome)
+    document["notices"] = read + document["notices"]
+    return json_response(document, provenance=origin)
 
 
 # -- the spreadsheet form -----------------------------------------------------------------------

@@ -86,7 +86,7 @@ def _answer(outcome: series.Outcome, fmt: str, provenance: Provenance, place: st
     if fmt == "csv":
         header, rows = series.table(outcome)
         dialect = outcome.dialect
-        headers = scale_headers(series.scale(outcome))
+        headers = scale_headers(series.scale(outcome)) | series.revealed_headers(outcome)
         if dialect is not None:
             headers |= dialect.headers()
         return csv_response(header, rows, provenance=provenance, trailer=place == "trailer",

@@ -39,11 +39,16 @@ async def live() -> HealthOut:
 
 
 @router.get("/ready", operation_id="ready", response_model=HealthOut, tags=["service"],
-            responses={503: {"description": "Not ready yet (or shutting down)."}})
+            responses={503: {"description": "Not ready yet (or shutting down), or the database "
+                                            "cannot be reached."}})
 async def ready(request: Request) -> Response:
-    """Readiness: start-up (including a warm-up comparison) has finished."""
+    """Readiness: start-up (including a warm-up comparison) has finished, and the database of
+    jobs and runs answered when last used (the keeper asks it every few seconds)."""
     if not getattr(request.app.state, "ready", False):
         return JSONResponse({"status": "starting", "version": __version__}, status_code=503)
+    if not request.app.state.db.healthy:
+        return JSONResponse({"status": "database-unreachable", "version": __version__},
+                            status_code=503)
     return JSONResponse({"status": "ready", "version": __version__})
 
 

@@ -11,7 +11,7 @@ from fastapi.responses import Response
 from .. import workload
 from ..deps import settings_of
 from ..inputs.panels import panel_from_json
-from ..operations import series, uprating
+from ..operations import series, tree_uprating, uprating
 from ..operations.answers import scale_headers
 from ..provenance import CAUTION_HEADER, header_text, of_body
 from ..render import (
@@ -25,6 +25,7 @@ from ..render import (
 )
 from ..routing import JsonRoute, inline_when_cheap
 from ..schemas.common import CAUTION
+from ..schemas.tree_uprating import TreeUpratingRequest, TreeUpratingResponse
 from ..schemas.uprating import UpratingRequest, UpratingResponse
 
 router = APIRouter(route_class=JsonRoute, prefix="/v1", tags=["uprating"])
@@ -79,4 +80,39 @@ def uprate(body: UpratingRequest, request: Request, format: FormatParam = None,
                             filename="uprating.csv", headers=scale_headers(scale))
     # The caution goes in the headers of the JSON answer too: an indexation answer says it twice.
     return json_response(uprating.document(outcome), provenance=origin,
+                         headers={CAUTION_HEADER: header_text(CAUTION)})
+
+
+TREE_DESCRIPTION = """\
+**Caution: these are model-based figures. For wage, pension or benefit indexation, defer to
+official statistics and to the applicable law or agreement.**
+
+"This is how our index is built" and "this is how our pensions are uprated" in one request: an
+index-tree request (`POST /v1/index-tree`: the classification, the quotes, the links, the
+formulas, the sigmas given or fitted) with a `node` (default: the root) and uprating `clauses`
+as in `POST /v1/uprating`. The clauses read the node's published index (chained, from the first
+link on; named by its upper formula, `lowe` or `young`) and the nested CES model's Konüs index
+at the node, and the answer gives every uprating's change, applied change and factor under
+each, and with an `amount` the money paid under each and the running difference to the Konüs
+index; `Accept: text/csv` gives one row per clause, uprating and index.
+"""
+
+
+@router.post("/uprating/index-tree", operation_id="upratingFromIndexTree",
+             summary="Uprating clauses on a node of an index tree, published and Konüs",
+             description=TREE_DESCRIPTION, response_model=TreeUpratingResponse,
+             responses=RESPONSES)
+@inline_when_cheap(workload.of_index_tree)
+def uprate_from_tree(body: TreeUpratingRequest, request: Request, format: FormatParam = None,
+                     provenance: ProvenanceQuery = "headers") -> Response:
+    """The clauses under the published index and the Konüs index at one node of the tree."""
+    fmt = negotiate(request, OFFERS, format)
+    outcome = tree_uprating.run(body, settings_of(request))
+    origin = of_body(body)
+    if fmt == "csv":
+        header, rows = tree_uprating.table(outcome)
+        scale = tree_uprating.document(outcome)["scale"]
+        return csv_response(header, rows, provenance=origin, trailer=provenance == "trailer",
+                            filename="uprating.csv", headers=scale_headers(scale))
+    return json_response(tree_uprating.document(outcome), provenance=origin,
                          headers={CAUTION_HEADER: header_text(CAUTION)})

@@ -23,6 +23,9 @@ from .common import (
 )
 from .model import ModelSpec
 
+#: The most models of a comparison's band (as of a sensitivity request).
+MAX_BAND_MODELS = 12
+
 FormulaName = Literal[formulas_for("comparison")]  # type: ignore[valid-type]
 
 
@@ -87,6 +90,12 @@ class ComparisonRequest(StrictModel):
         False, description="Also bracket the Konüs index at base utility by the two observed "
         "bundles alone (Varian 1982; needs current.quantities): the answer's revealed_bounds "
         "block, with whether the model's index lies inside.")
+    band_models: list[ModelSpec] | None = Field(
+        None, min_length=1, max_length=MAX_BAND_MODELS, description="Also compare under each of "
+        "these models, as POST /v1/sensitivity would with them as its models: the answer's "
+        "band block, the least and greatest Konüs index and bias across them, with whether this "
+        "model's K(u0) lies inside. Formulas that need a weight-reference period are left out "
+        "of the band.")
 
 
 # -- response ---------------------------------------------------------------------------------
@@ -176,6 +185,35 @@ class RevealedBoundsOut(StrictModel):
     method: str
 
 
+class RangeOut(StrictModel):
+    measure: str = Field(description="konus_base, konus_current, konus_midpoint or "
+                                     "<formula>_bias_points.")
+    low: float | None
+    high: float | None
+    count: int = Field(description="The comparisons the range is over.")
+    left_out: int = Field(description="Comparisons left out: the model outside its regular "
+                                      "region.")
+
+
+class BandModelOut(StrictModel):
+    family: str
+    regular: bool = Field(description="Whether the model is regular at these prices (outside "
+                                      "its regular region it is left out of the band).")
+    konus_base: float | None
+    konus_current: float | None
+    konus_midpoint: float | None
+
+
+class BandOut(StrictModel):
+    """The band across the models of band_models (on request)."""
+
+    models: list[BandModelOut] = Field(description="Each model of band_models, in order.")
+    ranges: list[RangeOut] = Field(description="Least and greatest across the models.")
+    konus_inside: bool | None = Field(description="Whether this comparison's K(u0) lies in the "
+                                      "band's konus_base range (relative 1e-9); null when it or "
+                                      "the range is not a result.")
+
+
 class ComparisonOut(StrictModel):
     """A comparison's figures (inside a fitted comparison's answer, too)."""
 
@@ -196,6 +234,8 @@ class ComparisonOut(StrictModel):
     caution: str
     revealed_bounds: RevealedBoundsOut | None = Field(
         None, description="On request (revealed_bounds: true): the model-free bracket.")
+    band: BandOut | None = Field(None, description="On request (band_models): the band across "
+                                 "those models.")
 
 
 class ComparisonResponse(ComparisonOut):

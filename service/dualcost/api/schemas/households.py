@@ -96,6 +96,12 @@ class HouseholdIndicesRequest(HouseholdJobSpec):
     """The job and its households."""
 
     households: list[HouseholdIn] = Field(min_length=1, description="One entry per household.")
+    band_models: list[ModelSpec] | None = Field(
+        None, min_length=1, max_length=12, description="Also evaluate every household under "
+        "each of these models (same prices, shares and incomes): each household-period's band, "
+        "the least and greatest K(u0) across them. Households have one bundle each, so the "
+        "model-free bracket of two observed bundles does not apply; the band is what is "
+        "carried. Households times (1 + models) at most max_households.")
 
 
 # -- response models, for the OpenAPI document -------------------------------------------------
@@ -158,6 +164,20 @@ class HouseholdPeriodOut(StrictModel):
     cv_percent: float | None = Field(description="100 CV / income.")
     bias_points: dict[str, float | None] = Field(
         description="100 (formula - the Konüs index it targets): index points on base 100.")
+    band: HouseholdBandOut | None = Field(None, description="On request (band_models).")
+
+
+class HouseholdBandOut(StrictModel):
+    """On request (band_models): K(u0) of this household-period across those models."""
+
+    konus_low: float | None = Field(description="The least K(u0) among the band's models.")
+    konus_high: float | None = Field(description="The greatest.")
+    models: int = Field(description="The band's models whose K(u0) is a result here (a model "
+                        "outside its regular region, or that refused the household, is left "
+                        "out).")
+    konus_inside: bool | None = Field(description="Whether this model's K(u0) lies in "
+                                      "[konus_low, konus_high] (relative 1e-9); null when either "
+                                      "is not a result.")
 
 
 class HouseholdOut(StrictModel):

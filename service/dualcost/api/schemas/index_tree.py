@@ -89,6 +89,13 @@ class IndexTreeRequest(StrictModel):
                             "to the link); young: its shares as they are.")
     sigma_by_level: list[Sigma] | None = Field(None, description="Sigma of each level (the root "
                                                "0) for nodes without their own.")
+    sigma_fit: Literal["by_group", "by_level"] | None = Field(
+        None, description="Fit each group's sigma (by_group) or each level's (by_level) from "
+                          "the links' weights and the children's indices, by least squares on "
+                          "the CES share equation; given sigmas then serve as fallbacks.")
+    sigma_fallback: FiniteFloat = Field(1.0, ge=0.0, description="With sigma_fit: the sigma of "
+                                        "a group that cannot be fitted and has none given (a "
+                                        "notice names each).")
     weight_tolerance: FiniteFloat = Field(1e-6, gt=0.0, le=0.1, description="Relative "
                                           "tolerance of a group's weight against its "
                                           "children's sum.")
@@ -115,6 +122,35 @@ class NodeOut(StrictModel):
     quotes: int = Field(description="Quotes in an elementary aggregate (0 for a group).")
 
 
+class SigmaEstimateOut(StrictModel):
+    nodes: list[str] = Field(description="The group, or (by_level) every group of the level.")
+    level: int | None
+    sigma: float | None = Field(description="The fitted sigma; null where not identified.")
+    standard_error: float | None = Field(description="Its OLS standard error; null without "
+                                         "degrees of freedom.")
+    observations: int
+    degrees_of_freedom: int
+    used: list[float] = Field(description="The sigma the model takes at each of `nodes`.")
+    fitted: bool = Field(description="Whether the model uses the fit (else the fallback).")
+    reason: str | None
+
+
+class SigmaDataOut(StrictModel):
+    node: str
+    children: list[str]
+    shares: list[list[float]] = Field(description="Per link: each child's share of the group's "
+                                      "weight.")
+    price_levels: list[list[float]] = Field(description="Per link: each child's index in the "
+                                            "weight reference period, first link = 1.")
+
+
+class SigmaFitOut(StrictModel):
+    method: str
+    equation: str
+    estimates: list[SigmaEstimateOut]
+    data: list[SigmaDataOut]
+
+
 class LinkOut(StrictModel):
     period: str
     weight_reference: list[str]
@@ -128,6 +164,7 @@ class IndexTreeResponse(StrictModel):
     upper_formula: str
     links: list[LinkOut]
     nodes: list[NodeOut]
+    sigma_fit: SigmaFitOut | None = None
     notices: list[NoticeOut]
     scale: ScaleOut
     caution: str

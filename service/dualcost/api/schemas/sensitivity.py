@@ -20,10 +20,10 @@ from .common import (
     StrictModel,
     ValidityOut,
 )
-from .comparison import BaseIn, CurrentIn, FormulaName, FormulaOut
+from .comparison import MAX_BAND_MODELS, BaseIn, CurrentIn, FormulaName, FormulaOut, RangeOut
 from .model import ModelSpec
 
-MAX_MODELS = 12
+MAX_MODELS = MAX_BAND_MODELS
 
 
 class GridIn(StrictModel):
@@ -75,16 +75,6 @@ class PointOut(StrictModel):
     notices: list[NoticeOut]
 
 
-class RangeOut(StrictModel):
-    measure: str = Field(description="konus_base, konus_current, konus_midpoint or "
-                                     "<formula>_bias_points.")
-    low: float | None
-    high: float | None
-    count: int = Field(description="The comparisons the range is over.")
-    left_out: int = Field(description="Comparisons left out: the model outside its regular "
-                                      "region.")
-
-
 class GridOut(StrictModel):
     model: int
     family: str
@@ -104,4 +94,4 @@ class SensitivityResponse(StrictModel):
     caution: str
     provenance: ProvenanceOut
 
-__all__ = ["CAUTION", "MAX_MODELS", "SensitivityRequest", "SensitivityResponse"]
+__all__ = ["CAUTION", "MAX_MODELS", "RangeOut", "SensitivityRequest", "SensitivityResponse"]

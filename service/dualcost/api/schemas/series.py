@@ -118,7 +118,9 @@ class SeriesOptions(StrictModel):
         False, description="Also test the panel's choices for GARP (Varian 1982) and bracket "
         "each period's Konüs index against the base at base utility without a model, over the "
         "items priced in every period (needs quantities or expenditures in every period); the "
-        "answer's revealed_bounds block. JSON body only.")
+        "answer's revealed_bounds block; in the CSV answer, its rows as revealed_* columns "
+        "and the verdicts in the headers Dualcost-Garp and Dualcost-Efficiency-Index. JSON body "
+        "only.")
 
 
 class SeriesRequest(SeriesOptions):
@@ -131,6 +133,11 @@ class SeriesRequest(SeriesOptions):
         None, description="One row per period (null for a period with prices only).")
     expenditures: list[Row | None] | None = Field(
         None, description="As quantities, in money; quantity = expenditure / price.")
+    band_models: list[ModelSpec] | None = Field(
+        None, min_length=1, max_length=12, description="Also compute the model's fixed-base "
+        "Konüs series at base utility under each of these models (calibrated to the same base "
+        "period): the answer's band block, the least and greatest of them in every period. "
+        "Periods times items times (1 + models) at most max_panel_cells. JSON body only.")
 
 
 # -- response ------------------------------------------------------------------------------------
@@ -326,6 +333,31 @@ class RevealedSeriesOut(StrictModel):
     rows: list[RevealedRowOut]
 
 
+class BandSeriesModelOut(StrictModel):
+    family: str
+    fixed_base: list[float | None] = Field(description="Its fixed-base Konüs series at base "
+                                           "utility, scaled as the series (null where the "
+                                           "model is outside its regular region).")
+
+
+class BandSeriesRowOut(StrictModel):
+    period: str
+    konus_low: float | None
+    konus_high: float | None
+    models: int = Field(description="The models whose value is a result in this period.")
+    konus: float | None = Field(description="The series' own model's value.")
+    konus_inside: bool | None = Field(description="Whether konus lies in [konus_low, "
+                                      "konus_high] (relative 1e-9).")
+
+
+class BandSeriesOut(StrictModel):
+    """The band across band_models (on request)."""
+
+    measure: str
+    models: list[BandSeriesModelOut]
+    rows: list[BandSeriesRowOut]
+
+
 class SeriesResponse(StrictModel):
     periods: list[str]
     items: list[str]
@@ -352,6 +384,8 @@ class SeriesResponse(StrictModel):
     revealed_bounds: RevealedSeriesOut | None = Field(
         None, description="On request (revealed_bounds: true): the model-free brackets, as "
                           "ratios to the base period.")
+    band: BandSeriesOut | None = Field(None, description="On request (band_models): the band "
+                                       "across those models.")
     provenance: ProvenanceOut
 
 

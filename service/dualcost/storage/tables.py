@@ -1,0 +1,81 @@
+"""The tables of household jobs and saved runs (SQLAlchemy 2 declarative models).
+
+The schema is created and changed only by the migrations in ``migrations/versions`` (Alembic),
+applied at start-up; these classes say how the code reads and writes it, and a test checks
+that the two agree. Times are UTC, stored without a zone (every database keeps them alike).
+Texts of JSON are written by orjson, so no database's JSON type is relied on.
+"""
+
+from __future__ import annotations
+
+from datetime import datetime
+
+from sqlalchemy import DateTime, Integer, LargeBinary, String, Text
+from sqlalchemy.orm import DeclarativeBase, Mapped, mapped_column
+
+
+class Base(DeclarativeBase):
+    pass
+
+
+class JobTable(Base):
+    """One row (id 1): updating it first serialises the changes to the job table's membership
+    (which job a new one replaces) across workers and instances, on any database."""
+
+    __tablename__ = "job_table"
+    id: Mapped[int] = mapped_column(Integer, primary_key=True)
+    generation: Mapped[int] = mapped_column(Integer, default=0)
+
+
+class JobRecord(Base):
+    """A household job: its specification (the JSON body that created it), its state, and its
+    status document as ``GET /v1/household-jobs/{id}`` answers it (progress, summaries, skipped
+    rows), written as the job runs. ``status`` and ``error`` here decide over the document's."""
+
+    __tablename__ = "household_jobs"
+    serial: Mapped[int] = mapped_column(Integer, primary_key=True, autoincrement=True)
+    id: Mapped[str] = mapped_column(String(32), unique=True, index=True)
+    owner: Mapped[str | None] = mapped_column(String(64), index=True)
+    status: Mapped[str] = mapped_column(String(32))
+    error: Mapped[str | None] = mapped_column(Text)
+    uploads: Mapped[int] = mapped_column(Integer, default=0)
+    created: Mapped[datetime] = mapped_column(DateTime)
+    updated: Mapped[datetime] = mapped_column(DateTime)
+    spec: Mapped[str] = mapped_column(Text)
+    document: Mapped[str] = mapped_column(Text)
+    input_digest: Mapped[str] = mapped_column(String(80))
+    runner: Mapped[str | None] = mapped_column(String(120))
+    heartbeat: Mapped[datetime | None] = mapped_column(DateTime)
+
+
+class JobResultPiece(Base):
+    """A piece of a job's CSV answer (the header row, then each chunk's rows), in order."""
+
+    __tablename__ = "household_job_results"
+    job_id: Mapped[str] = mapped_column(String(32), primary_key=True)
+    piece: Mapped[int] = mapped_column(Integer, primary_key=True)
+    text: Mapped[str] = mapped_column(Text)
+
+
+class RunRecord(Base):
+    """A saved run: what was asked (the canonical input, and the request as sent, to run it
+    again), what was answered, by which version, when, and for which key (its SHA-256 only)."""
+
+    __tablename__ = "runs"
+    serial: Mapped[int] = mapped_column(Integer, primary_key=True, autoincrement=True)
+    id: Mapped[str] = mapped_column(String(32), unique=True, index=True)
+    owner: Mapped[str | None] = mapped_column(String(64), index=True)
+    operation: Mapped[str] = mapped_column(String(120), index=True)
+    created: Mapped[datetime] = mapped_column(DateTime, index=True)
+    version: Mapped[str] = mapped_column(String(64))
+    input_digest: Mapped[str] = mapped_column(String(80), index=True)
+    input: Mapped[str] = mapped_column(Text)
+    method: Mapped[str] = mapped_column(String(10))
+    path: Mapped[str] = mapped_column(Text)
+    query: Mapped[str] = mapped_column(Text)
+    content_type: Mapped[str | None] = mapped_column(String(200))
+    accept: Mapped[str | None] = mapped_column(Text)
+    request_body: Mapped[bytes] = mapped_column(LargeBinary)
+    status_code: Mapped[int] = mapped_column(Integer)
+    answer_type: Mapped[str] = mapped_column(String(200))
+    answer: Mapped[bytes] = mapped_column(LargeBinary)

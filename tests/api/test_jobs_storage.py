@@ -1,0 +1,194 @@
+"""Household jobs kept in a database: answered by any worker, read back after the stream, failed
+with the reason when their worker stops, and a lost database answered 503 with Retry-After and
+nothing half-written. Each test runs on a new SQLite and a new PostgreSQL database
+(tests/databases.py); two apps on one database stand for two workers (the test with two real
+server processes is tests/cli/test_storage_processes.py)."""
+
+from __future__ import annotations
+
+from datetime import timedelta
+from typing import Any
+
+import pytest
+from fastapi.testclient import TestClient
+from sqlalchemy import select, update
+
+from dualcost.api.app import create_app
+from dualcost.api.operations.job_store import utcnow
+from dualcost.config import Settings
+from dualcost.core.errors import StorageUnavailable
+from dualcost.storage import database_of
+from dualcost.storage.tables import JobRecord, JobResultPiece
+from tests.api.test_households import create_job, example, household_csv, upload
+from tests.conftest import EXAMPLES
+
+
+def worker(url: str, **settings: Any) -> TestClient:
+    return TestClient(create_app(Settings(examples_dir=EXAMPLES, database_url=url,
+                                          **settings)))
+
+
+def test_a_job_created_by_one_worker_is_answered_by_another(database_url: str) -> None:
+    one, two = worker(database_url), worker(database_url)
+    assert one.app.state.jobs.runner != two.app.state.jobs.runner  # type: ignore[attr-defined]
+    job = create_job(one, example())
+    assert two.get(job["links"]["self"]).json()["status"] == "waiting_for_households"
+    streamed = upload(two, job, household_csv(example()))
+    assert streamed.status_code == 200, streamed.text
+    status = one.get(job["links"]["self"]).json()
+    assert status["status"] == "done" and status["summary"]
+    assert status["progress"]["households_done"] == len(example()["households"])
+    # The answer read back from the database, by the worker that did not compute it.
+    stored = one.get(f"/v1/household-jobs/{job['id']}/results")
+    assert stored.status_code == 200
+    assert stored.text == streamed.text
+    assert stored.headers["dualcost-input-digest"] == streamed.headers["dualcost-input-digest"]
+    assert one.delete(job["links"]["self"]).status_code == 204
+    assert two.get(job["links"]["self"]).status_code == 404
+    with one.app.state.db.transaction() as s:  # type: ignore[attr-defined]
+        assert s.scalars(select(JobResultPiece.piece)
+                         .where(JobResultPiece.job_id == job["id"])).all() == []
+
+
+def test_results_are_given_only_for_a_job_that_is_done(database_url: str) -> None:
+    client = worker(database_url)
+    job = create_job(client, example())
+    r = client.get(f"/v1/household-jobs/{job['id']}/results")
+    assert r.status_code == 409
+    assert "waiting_for_households" in r.json()["detail"]
+    assert client.get("/v1/household-jobs/nothing/results").status_code == 404
+    assert client.get(f"/v1/household-jobs/{job['id']}/results",
+                      headers={"accept": "application/json"}).status_code == 406
+
+
+def test_a_running_job_whose_worker_stopped_is_failed_with_the_reason(database_url: str) -> None:
+    client = worker(database_url, job_lease_seconds=5)
+    job = create_job(client, example())
+    with client.app.state.db.transaction() as s:  # type: ignore[attr-defined]
+        s.execute(update(JobRecord).where(JobRecord.id == job["id"])
+                  .values(status="running", runner="gone:1:x",
+                          heartbeat=utcnow() - timedelta(seconds=6)))
+    status = client.get(job["links"]["self"]).json()
+    assert status["status"] == "failed"
+    assert "worker computing this job stopped" in status["error"]
+    # A job whose worker is alive (a fresh heartbeat) stays running.
+    other = create_job(client, example())
+    with client.app.state.db.transaction() as s:  # type: ignore[attr-defined]
+        s.execute(update(JobRecord).where(JobRecord.id == other["id"])
+                  .values(status="running", runner="alive:1:x", heartbeat=utcnow()))
+    assert client.get(other["links"]["self"]).json()["status"] == "running"
+
+
+def test_a_worker_shutting_down_fails_its_running_jobs(database_url: str) -> None:
+    from dualcost.api.operations.jobs import restore
+
+    client = worker(database_url)
+    store = client.app.state.jobs  # type: ignore[attr-defined]
+    job = create_job(client, example())
+    state = restore(store, job["id"], None, client.app.state.settings)  # type: ignore[attr-defined]
+    store.claim(state)
+    assert client.get(job["links"]["self"]).json()["status"] == "running"
+    store.stop()
+    status = client.get(job["links"]["self"]).json()
+    assert status["status"] == "failed"
+    assert status["error"].startswith("the service stopped while the job was running")
+
+
+def test_a_change_that_fails_halfway_writes_nothing(database_url: str) -> None:
+    """A transaction is all or nothing (common practice: ACID)."""
+    client = worker(database_url)
+    job = create_job(client, example())
+    db = client.app.state.db  # type: ignore[attr-defined]
+    with pytest.raises(RuntimeError), db.transaction() as s:
+        s.add(JobResultPiece(job_id=job["id"], piece=0, text="half"))
+        s.flush()
+        raise RuntimeError("the worker fails here")
+    with db.transaction() as s:
+        assert s.scalars(select(JobResultPiece)).all() == []
+
+
+def _lose(url: str, client: TestClient) -> None:
+    """Take the database away under the service: the SQLite file (and the connections open
+    on it), or the PostgreSQL database (its connections ended)."""
+    if url.startswith("sqlite"):
+        import os
+
+        os.remove(url.removeprefix("sqlite:///"))
+        client.app.state.db.engine.dispose()  # type: ignore[attr-defined]
+        return
+    import psycopg
+
+    server, name = url.rsplit("/", 1)
+    plain = server.replace("postgresql+psycopg://", "postgresql://")
+    with psycopg.connect(f"{plain}/postgres", autocommit=True) as connection:
+        connection.execute(f"DROP DATABASE {name} WITH (FORCE)")
+
+
+def test_a_lost_database_is_503_with_retry_after_and_ready_false(
+        database_url: str) -> None:
+    with worker(database_url, storage_retry_seconds=7) as client:
+        job = create_job(client, example())
+        assert client.get("/ready").status_code == 200
+        _lose(database_url, client)
+        for r in (client.get(job["links"]["self"]),
+                  client.post("/v1/household-jobs",
+                              json={k: v for k, v in example().items() if k != "households"}),
+                  client.post("/v1/comparisons?save=true",
+                              json={"items": ["a", "b"], "base": {"prices": [1, 2],
+                                                                  "quantities": [1, 1]},
+                                    "current": {"prices": [1.1, 2]},
+                                    "model": {"family": "ces", "sigma": 0.5}})):
+            assert r.status_code == 503, r.text
+            assert r.json()["type"] == "/problems/storage-unavailable"
+            assert r.headers["retry-after"] == "7"
+        ready = client.get("/ready")
+        assert ready.status_code == 503 and ready.json()["status"] == "database-unreachable"
+        # What needs no database still answers.
+        assert client.post("/v1/comparisons", json={
+            "items": ["a", "b"], "base": {"prices": [1, 2], "quantities": [1, 1]},
+            "current": {"prices": [1.1, 2]},
+            "model": {"family": "ces", "sigma": 0.5}}).status_code == 200
+
+
+def test_an_unreachable_database_stops_the_app_from_being_made(tmp_path: Any) -> None:
+    settings = Settings(examples_dir=EXAMPLES,
+                        database_url="postgresql+psycopg://nobody@127.0.0.1:9/none")
+    with pytest.raises(StorageUnavailable, match="cannot open the database"):
+        create_app(settings)
+    not_a_folder = tmp_path / "file"
+    not_a_folder.touch()
+    with pytest.raises(StorageUnavailable, match="cannot open the database"):
+        database_of(Settings(data_dir=not_a_folder))
+
+
+def test_the_migrations_make_the_tables_the_code_uses(database_url: str) -> None:
+    """Alembic's comparison of the migrated database with the models finds no difference."""
+    from alembic.autogenerate import compare_metadata
+    from alembic.runtime.migration import MigrationContext
+
+    from dualcost.storage.tables import Base
+
+    db = database_of(Settings(database_url=database_url))
+    with db.engine.connect() as connection:
+        assert compare_metadata(MigrationContext.configure(connection), Base.metadata) == []
+
+
+def test_the_migrations_are_shipped_with_the_package() -> None:
+    """Every file Alembic needs is matched by the package data of pyproject.toml, so that an
+    installed service (pip install, not a source tree) can migrate its database."""
+    import fnmatch
+
+    import tomllib
+
+    from tests.conftest import ROOT
+
+    patterns = tomllib.loads((ROOT / "pyproject.toml").read_text())["tool"]["setuptools"][
+        "package-data"]["dualcost"]
+    package = ROOT / "service" / "dualcost"
+    needed = [p.relative_to(package).as_posix()
+              for p in (package / "storage" / "migrations").rglob("*")
+              if p.is_file() and "__pycache__" not in p.parts]
+    assert "storage/migrations/env.py" in needed
+    assert any(n.startswith("storage/migrations/versions/") for n in needed)
+    for name in needed:
+        assert any(fnmatch.fnmatch(name, pattern) for pattern in patterns), name
