@@ -956,3 +956,46 @@ def test_a_nodes_sigma_is_typed_in_the_classification_grid(live_url: str, browse
                                     if d.find_element(By.ID, "error").is_displayed() else None)
     assert f"row 2 (· {food}), column 'σ'" in error.text, error.text
     assert cell.get_attribute("aria-invalid") == "true"
+
+
+def load_named_example(browser: Any, name: str) -> None:
+    choose(browser, "scenario", next(
+        o.text for o in browser.find_elements(By.CSS_SELECTOR, "#scenario option")
+        if o.get_attribute("value") == f"example:{name}"))
+    browser.find_element(By.ID, "load").click()
+    wait(browser, 10).until(lambda d: d.execute_script(
+        "return window.dualcost.state.scenario") == f"example:{name}")
+
+
+def test_the_band_across_models_and_fitted_sigmas_are_shown_as_answered(
+        live_url: str, browser: Any) -> None:
+    """The comparison's band across band_models beside its bracket, the series' band per
+    period, and the index tree's fitted σ, each the JSON answer's numbers."""
+    open_view(browser, live_url, "comparison")
+    load_named_example(browser, "wrenmouth_nested_ces_inside_bracket_and_band")
+    compute(browser)
+    sent, answer = sent_and_answer(browser, live_url, "/v1/comparisons")
+    assert sent == load_example("compare.wrenmouth_nested_ces_inside_bracket_and_band.json")
+    k = _range(answer["band"]["ranges"], "konus_base")
+    assert browser.find_element(By.ID, "band-low").text == f"{k['low']:.4f}"
+    assert browser.find_element(By.ID, "band-high").text == f"{k['high']:.4f}"
+    assert browser.find_element(By.ID, "rb-lower").text == f"{answer['revealed_bounds']['lower']:.4f}"
+    screenshot(browser, "comparison-bracket-and-band")
+
+    open_view(browser, live_url, "series")
+    load_named_example(browser, "wrenmouth_monthly_ces_bracket_and_band")
+    compute(browser)
+    sent, answer = sent_and_answer(browser, live_url, "/v1/index-series")
+    last = answer["band"]["rows"][-1]
+    assert table_cells(browser, "series-band-chart-table")[-1][:3] == [
+        last["period"], f"{last['konus_low']:.3f}", f"{last['konus_high']:.3f}"]
+
+    open_view(browser, live_url, "index-tree")
+    load_named_example(browser, "wrenmouth_fitted_sigma")
+    compute(browser)
+    sent, answer = sent_and_answer(browser, live_url, "/v1/index-tree")
+    first = answer["sigma_fit"]["estimates"][0]
+    assert table_cells(browser, "tree-sigma-chart-table")[0][:2] == [
+        ", ".join(first["nodes"]), f"{first['sigma']:.3f}"]
+    assert page_width(browser)[0] <= page_width(browser)[1]
+    screenshot(browser, "index-tree-fitted-sigma")

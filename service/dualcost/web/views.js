@@ -74,6 +74,7 @@
   // The model-free bracket (lower, upper) per period with Laspeyres, Paasche and, where the
   // answer has it, the model's Konüs index; ratios drawn on base 100.
   const h = (x) => (x === null || x === undefined ? null : 100 * x);
+  const bandOf = (ranges, m) => ranges.find((r) => r.measure === m) || {};
   const boundsChart = (rows, base) => C.lineConfig({ labels: rows.map((r) => r.period), xTitle: "period",
     yTitle: `index, ${base} = 100`, datasets: [
       ...C.bandDatasets(rows.map((r) => h(r.lower)), rows.map((r) => h(r.upper)), "model-free bracket (lower to upper)"),
@@ -129,6 +130,7 @@
       { pointer: "/reference_income", label: "Reference income (at base prices)", kind: "number", optional: true },
       { pointer: "/lloyd_moulton_sigma", label: "σ for Lloyd-Moulton", kind: "number", optional: true },
       revealedField("Needs observed current quantities: the two bundles alone bracket K(u0)."),
+      { pointer: "/band_models", label: "Band across these models (JSON list, as the sensitivity's models)", kind: "json", rows: 2, optional: true },
     ],
     grids: [basketGrid],
     validity: validityBox,
@@ -146,22 +148,31 @@
         ];
       } },
       // The model-free bracket, when asked for, right under the model's figures.
+      { kind: "cards", when: (a) => a.band, cards: (a) => [
+        { id: "band-low", label: `K(u0) across ${a.band.models.length} other models: lowest`, value: bandOf(a.band.ranges, "konus_base").low },
+        { id: "band-high", label: "highest", value: bandOf(a.band.ranges, "konus_base").high },
+        { id: "band-inside", label: "the model's K(u0) inside the band?", value: a.band.konus_inside === null ? "" : a.band.konus_inside ? "yes" : "NO" }] },
       { kind: "cards", when: (a) => a.revealed_bounds, cards: (a) => [
         { id: "rb-lower", label: "Model-free bracket, lower", value: a.revealed_bounds.lower },
         { id: "rb-upper", label: "Model-free bracket, upper", value: a.revealed_bounds.upper },
         { id: "rb-konus", label: "the model's Konüs index, base standard", value: a.revealed_bounds.konus_base, withheld: a.revealed_bounds.konus_base === null },
         { id: "rb-inside", label: "inside the bracket?", value: a.revealed_bounds.konus_inside === null ? "" : a.revealed_bounds.konus_inside ? "yes" : "NO" }] },
-      { kind: "chart", id: "bracket-chart", title: "The model's Konüs index inside the model-free bracket",
-        when: (a) => a.revealed_bounds, height: () => 170, notices: ["garp_failed"],
-        text: (a) => `${a.revealed_bounds.garp ? "The two bundles pass GARP." : `The two bundles fail GARP (Afriat's index ${fmt(a.revealed_bounds.efficiency_index)}); the bracket holds at efficiency ${fmt(a.revealed_bounds.efficiency_level)}.`} ${a.revealed_bounds.method}`,
+      { kind: "chart", id: "bracket-chart", title: "The model's Konüs index inside the model-free bracket and the band across models",
+        when: (a) => a.revealed_bounds || a.band, height: () => 220, notices: ["garp_failed"],
+        text: (a) => (a.revealed_bounds ? `${a.revealed_bounds.garp ? "The two bundles pass GARP." : `The two bundles fail GARP (Afriat's index ${fmt(a.revealed_bounds.efficiency_index)}); the bracket holds at efficiency ${fmt(a.revealed_bounds.efficiency_level)}.`} ${a.revealed_bounds.method}` : ""),
         chart: (a) => {
           const b = a.revealed_bounds;
-          const dot = (label, v, colour) => ({ type: "line", indexAxis: "y", showLine: false, label, data: [h(v)],
+          const band = a.band ? bandOf(a.band.ranges, "konus_base") : null;
+          const labels = [...(b ? ["model-free bracket"] : []), ...(band ? [`band across ${a.band.models.length} models`] : [])];
+          const at = (v, which) => labels.map((l) => (l.startsWith(which) ? h(v) : null));
+          const dot = (label, data, colour) => ({ type: "line", indexAxis: "y", showLine: false, label, data,
             pointStyle: "rectRot", pointRadius: 7, borderColor: colour, backgroundColor: colour, order: 1 });
-          return loose(C.barConfig({ labels: ["K(u0)"], xTitle: "", yTitle: "index, base = 100", zeroAt: null, datasets: [
-            { label: "model-free bracket", data: [[h(b.lower), h(b.upper)]], backgroundColor: "rgba(0,0,0,0.15)", order: 2 },
-            dot("Laspeyres", b.laspeyres, C.PALETTE[0]), dot("Paasche", b.paasche, C.PALETTE[1]),
-            ...(b.konus_base === null ? [] : [dot("the model's Konüs index", b.konus_base, "#000")])] }));
+          const k = a.validity.regular ? a.konus.base : null;
+          return loose(C.barConfig({ labels, xTitle: "", yTitle: "index, base = 100", zeroAt: null, datasets: [
+            { label: "lowest to highest", order: 2, backgroundColor: "rgba(0,0,0,0.15)",
+              data: labels.map((l) => (l.startsWith("model-free") ? [h(b.lower), h(b.upper)] : [h(band.low), h(band.high)])) },
+            ...(b ? [dot("Laspeyres", at(b.laspeyres, "model-free"), C.PALETTE[0]), dot("Paasche", at(b.paasche, "model-free"), C.PALETTE[1])] : []),
+            ...(k === null ? [] : [dot("the model's Konüs index K(u0)", labels.map(() => h(k)), "#000")])] }));
         } },
       { kind: "chart", id: "bias-chart", title: "How much each formula overstates the Konüs index",
         notices: ["current_quantities_from_model", "quantities_from_model", "current_income_assumed"],
@@ -275,6 +286,7 @@
       { pointer: "/rebase/period", label: "Rebase the change measures to period", kind: "select", optional: true, prune: true,
         options: (_, body) => (body.periods || []).map((p) => [p, p]) },
       revealedField("Needs quantities in every period: GARP and each period's bracket, over the items priced throughout."),
+      { pointer: "/band_models", label: "Band across these models (JSON list of models)", kind: "json", rows: 2, optional: true },
     ],
     grids: panelGrids,
     validity: (a) => (a.konus && a.konus.validity && a.konus.validity.periods_outside_regular_region.length ? {
@@ -351,6 +363,15 @@
         when: (a) => a.revealed_bounds, notices: ["revealed_bounds_items", "garp_failed"],
         text: (a) => `${a.revealed_bounds.consistency.garp ? "The panel passes GARP." : `The panel fails GARP; the brackets hold at efficiency ${fmt(a.revealed_bounds.efficiency_level)}.`} Items: ${a.revealed_bounds.items.join(", ")}.`,
         chart: (a) => boundsChart(a.revealed_bounds.rows, a.revealed_bounds.base_period) },
+      { kind: "chart", id: "series-band-chart", title: "The Konüs series and the band across other models", when: (a) => a.band,
+        text: (a) => a.band.measure,
+        chart: (a) => C.lineConfig({ labels: a.periods, xTitle: "period", yTitle: `Konüs index at base utility (${a.scale.indices})`, datasets: [
+          ...C.bandDatasets(a.band.rows.map((r) => r.konus_low), a.band.rows.map((r) => r.konus_high), `band across ${a.band.models.length} models`),
+          { label: "this series' model", colour: "#000", borderWidth: 3, data: a.band.rows.map((r) => r.konus) },
+          ...a.band.models.map((m) => ({ label: m.family, data: m.fixed_base, borderDash: [4, 3], pointRadius: 0 }))] }),
+        table: (a) => ({ rows: a.band.rows, columns: [{ title: "period", get: (r) => r.period }, { title: "low", get: (r) => r.konus_low, digits: 3 },
+          { title: "high", get: (r) => r.konus_high, digits: 3 }, { title: "this model", get: (r) => r.konus, digits: 3, model: true },
+          { title: "inside?", get: (r) => (r.konus_inside === null ? "" : r.konus_inside ? "yes" : "NO") }] }) },
       { kind: "table", id: "series-bounds-table", title: "Model-free brackets by period (ratios to the base period)",
         when: (a) => a.revealed_bounds, rows: (a) => a.revealed_bounds.rows, columns: withKonus },
       { kind: "table", id: "annual-bias-table", title: "Average annual bias by series",
@@ -797,6 +818,9 @@
         options: [["jevons", "Jevons"], ["carli", "Carli"], ["dutot", "Dutot"]] },
       { pointer: "/upper_formula", label: "Upper levels", kind: "select", optional: true, options: [["lowe", "Lowe"], ["young", "Young"]] },
       { pointer: "/sigma_by_level", label: "σ by level (root first), for nodes without their own", kind: "numbers", optional: true },
+      { pointer: "/sigma_fit", label: "Fit σ from the links' weights", kind: "select", optional: true,
+        options: [["by_group", "by group"], ["by_level", "by level"]], hint: "Empty: the σ given. Fitted, the given σ serve as fallbacks." },
+      { pointer: "/sigma_fallback", label: "σ where no fit is possible", kind: "number", optional: true },
     ],
     grids: [
       { title: "Classification: σ and elementary formula by node", rows: { title: "node", list: treeNodes,
@@ -838,6 +862,17 @@
         table: (a, k) => ({ rows: a.periods.map((p, t) => ({ p, t })), columns: [{ title: "period", get: (r) => r.p },
           { title: "index", get: (r) => a.nodes[k].index[r.t], digits: 3 }, { title: "Konüs", get: (r) => (a.nodes[k].konus || [])[r.t], digits: 3, model: true },
           { title: "bias (points)", get: (r) => (a.nodes[k].bias_points || [])[r.t], digits: 3, model: true }] }) },
+      { kind: "chart", id: "tree-sigma-chart", title: "Fitted σ by group, with ±2 standard errors", when: (a) => a.sigma_fit,
+        notices: ["sigma_fitted_over_given", "sigma_not_fitted", "sigma_exact_fit"], height: (a) => 80 + a.sigma_fit.estimates.length * 30,
+        text: (a) => `${a.sigma_fit.equation}. Groups not fitted take the σ in the last column.`,
+        chart: (a) => { const e = a.sigma_fit.estimates; return C.barConfig({ labels: e.map((x) => x.nodes.join(", ")), xTitle: "group", yTitle: "σ (elasticity of substitution)",
+          datasets: [{ label: "estimate ± 2 s.e.", order: 2, data: e.map((x) => (x.sigma === null || x.standard_error === null ? null : [x.sigma - 2 * x.standard_error, x.sigma + 2 * x.standard_error])) },
+            { type: "line", indexAxis: "y", showLine: false, label: "σ the model uses", order: 1, pointStyle: "rectRot", pointRadius: 6,
+              borderColor: "#000", backgroundColor: "#000", data: e.map((x) => x.used[0]) }] }); },
+        table: (a) => ({ rows: a.sigma_fit.estimates, columns: [{ title: "group", get: (x) => x.nodes.join(", ") },
+          { title: "σ fitted", get: (x) => x.sigma, digits: 3 }, { title: "s.e.", get: (x) => x.standard_error, digits: 3 },
+          { title: "obs.", get: (x) => x.observations, digits: 0 }, { title: "used", get: (x) => x.used[0], digits: 3 },
+          { title: "why not fitted", get: (x) => x.reason || "" }] }) },
       { kind: "text", title: "Links", text: (a) => a.links.map((l) => `Linked in ${l.period} (weights of ${l.weight_reference[0]}`
         + `${l.weight_reference.length > 1 ? ` to ${l.weight_reference[l.weight_reference.length - 1]}` : ""}): ${l.periods[0]} to ${l.periods[l.periods.length - 1]}.`).join(" ") },
     ],
@@ -887,7 +922,6 @@
 
   // ---- sensitivity: the Konüs index and each bias along a grid and across models -------------
   const gridRows = (a) => a.grid.points.map((p) => ({ label: String(p.value), x: p.value, ok: true, answer: window.dualcost.asComparison(p) }));
-  const bandOf = (ranges, m) => ranges.find((r) => r.measure === m) || {};
   const modelLabel = (p, k) => `${k + 1}: ${p.family}${p.model_parameters && typeof p.model_parameters.sigma === "number" ? ` σ ${p.model_parameters.sigma}` : ""}`;
   // The band's bias measures of the weighted formulas (the registry says which).
   const bandBias = (a) => {
