@@ -77,6 +77,12 @@ def _applied(answer: dict[str, Any], index: str) -> float:
     return float(next(b["applied_percent"] for b in last["by_index"] if b["index"] == index))
 
 
+def _paid_minus_konus(answer: dict[str, Any], index: str) -> float:
+    """The first clause's money paid under `index` minus under the Konüs index, in all."""
+    return float(next(m for m in answer["clauses"][0]["money"]
+                      if m["index"] == index)["difference_vs_konus_total"])
+
+
 def _range(ranges: list[dict[str, Any]], measure: str) -> dict[str, Any]:
     return next(r for r in ranges if r["measure"] == measure)
 
@@ -117,10 +123,14 @@ CASES = [
         ("audit-failed", lambda a: a["failed"], 0)), 1, 0, "Rye loaf, 800 g"),
     ViewCase("uprating", "/v1/uprating", "uprating.wrenmouth_pensions_april.json", (
         ("up-konus-applied", lambda a: _applied(a, "konus"), 2),
-        ("up-laspeyres-applied", lambda a: _applied(a, "laspeyres"), 2),
-        ("up-laspeyres-difference", lambda a: next(
-            m for m in a["clauses"][0]["money"] if m["index"] == "laspeyres")["difference_vs_konus_total"],
-         2)), 1, 0, "Rye loaf, 800 g"),
+        ("up-index-applied", lambda a: _applied(a, "laspeyres"), 2),
+        ("up-index-difference", lambda a: _paid_minus_konus(a, "laspeyres"), 2)), 1, 0,
+        "Rye loaf, 800 g"),
+    ViewCase("tree-uprating", "/v1/uprating/index-tree",
+             "upratingFromIndexTree.wrenmouth_pension_from_the_tree.json", (
+                 ("up-konus-applied", lambda a: _applied(a, "konus"), 2),
+                 ("up-index-applied", lambda a: _applied(a, "lowe"), 2),
+                 ("up-index-difference", lambda a: _paid_minus_konus(a, "lowe"), 2)), 2, 0, "2024-01"),
     ViewCase("index-tree", "/v1/index-tree", "indexTree.wrenmouth_coicop.json", (
         ("tree-index-last", lambda a: a["nodes"][0]["index"][-1], 3),
         ("tree-konus-last", lambda a: a["nodes"][0]["konus"][-1], 3),
@@ -137,7 +147,7 @@ CASES = [
 ]
 IDS = [c.view for c in CASES]
 #: The views added for uprating, the index tree, revealed preference and sensitivity.
-NEW_VIEWS = ("uprating", "index-tree", "revealed", "sensitivity")
+NEW_VIEWS = ("uprating", "index-tree", "tree-uprating", "revealed", "sensitivity")
 
 
 @pytest.fixture(scope="module", params=list(SIZES))
@@ -602,7 +612,8 @@ VIEW_OF = {"compare": ("comparison", "/v1/comparisons"), "indexSeries": ("series
            "fitAndCompare": ("fitted", "/v1/fitted-comparisons"),
            "uprating": ("uprating", "/v1/uprating"), "indexTree": ("index-tree", "/v1/index-tree"),
            "revealedPreference": ("revealed", "/v1/revealed-preference"),
-           "sensitivity": ("sensitivity", "/v1/sensitivity")}
+           "sensitivity": ("sensitivity", "/v1/sensitivity"),
+           "upratingFromIndexTree": ("tree-uprating", "/v1/uprating/index-tree")}
 EXAMPLES = sorted(p.name for p in (ROOT / "openapi_examples").glob("*.json")
                   if p.name.split(".")[0] in VIEW_OF)
 

@@ -715,6 +715,8 @@
   const applied = (u, i) => num((u.by_index.find((x) => x.index === i) || {}).applied_percent);
   const lastUprating = (a) => clauseOf(a).upratings[clauseOf(a).upratings.length - 1];
   const moneyOf = (a, i) => (clauseOf(a).money || []).find((m) => m.index === i);
+  // The index the cards set beside the Konüs index: Laspeyres where computed, else the first.
+  const published = (a) => (a.indices.includes("laspeyres") ? "laspeyres" : a.indices.find((i) => i !== "konus"));
   const uprating = {
     id: "uprating",
     title: "Uprating clauses",
@@ -755,11 +757,12 @@
       { kind: "warning", id: "uprating-caution", text: (a) => `Caution. ${a.caution}` },
       { kind: "cards", cards: (a) => {
         const u = lastUprating(a);
-        const lasp = moneyOf(a, "laspeyres");
+        const i = published(a);
+        const money = moneyOf(a, i);
         return [
           { id: "up-konus-applied", label: `Konüs uprating, %, paid from ${u ? u.paid_from : "-"} (${clauseOf(a).clause.name || "clause 1"})`, value: u ? applied(u, "konus") : null, digits: 2 },
-          { id: "up-laspeyres-applied", label: "Laspeyres uprating, %", value: u ? applied(u, "laspeyres") : null, digits: 2 },
-          { id: "up-laspeyres-difference", label: "paid under Laspeyres minus under Konüs, whole series", value: lasp ? lasp.difference_vs_konus_total : null, digits: 2 },
+          { id: "up-index-applied", label: `${indexTitle(i)} uprating, %`, value: u ? applied(u, i) : null, digits: 2 },
+          { id: "up-index-difference", label: `paid under ${indexTitle(i)} minus under Konüs, whole series`, value: money ? money.difference_vs_konus_total : null, digits: 2 },
         ];
       } },
       { kind: "chart", id: "uprating-chart", title: "Each uprating under each index (percent applied, after rounding, floor and cap)",
@@ -878,6 +881,26 @@
     ],
   };
 
+  // ---- uprating on a node of the index tree: the tree's fields, the clauses, the uprating's answer
+  const treeUprating = {
+    id: "tree-uprating",
+    title: "Uprating on the tree",
+    intro: "Uprating clauses read on any node of an index tree: what the index as built, and the nested CES Konüs "
+      + "index on the same tree, would pay.",
+    path: "/v1/uprating/index-tree",
+    operationId: "upratingFromIndexTree",
+    csv: indexTree.csv,
+    note: indexTree.note,
+    fields: [
+      { pointer: "/node", label: "Node whose index the clauses read", kind: "select",
+        options: (_, body) => treeNodes(body).map((n) => [n.node.name, `${"· ".repeat(n.depth)}${n.node.name}`]) },
+      { pointer: "/amount", label: "Amount paid each period before uprating", kind: "number", optional: true },
+      ...indexTree.fields,
+    ],
+    grids: [uprating.grids[0], ...indexTree.grids],
+    results: uprating.results,
+  };
+
   // ---- revealed preference: what the choices alone say ---------------------------------------
   const verdict = (ok) => (ok ? "passes" : "FAILS");
   const revealed = {
@@ -988,7 +1011,7 @@
     ],
   };
 
-  window.dualcostViews = [comparison, series, uprating, indexTree, households, fits, fitted, revealed, sensitivity, audits];
+  window.dualcostViews = [comparison, series, uprating, indexTree, treeUprating, households, fits, fitted, revealed, sensitivity, audits];
   window.dualcost.boot(window.dualcostViews).catch((e) => {
     const box = document.getElementById("error");
     box.textContent = String(e);
