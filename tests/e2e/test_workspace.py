@@ -135,6 +135,13 @@ CASES = [
         ("tree-index-last", lambda a: a["nodes"][0]["index"][-1], 3),
         ("tree-konus-last", lambda a: a["nodes"][0]["konus"][-1], 3),
         ("tree-bias-last", lambda a: a["nodes"][0]["bias_points"][-1], 3)), 1, 0, "2024-01"),
+    ViewCase("fitted-families", "/v1/fitted-sensitivity",
+             "fittedSensitivity.wrenmouth_quarterly_three_families.json", (
+                 ("ff-konus-low", lambda a: _range(a["band"], "konus_base")["low"], 4),
+                 ("ff-konus-high", lambda a: _range(a["band"], "konus_base")["high"], 4),
+                 ("ff-laspeyres-low", lambda a: _range(a["band"], "laspeyres_bias_points")["low"], 3),
+                 ("ff-laspeyres-high", lambda a: _range(a["band"], "laspeyres_bias_points")["high"], 3)),
+             0, 1, "current price"),
     ViewCase("revealed", "/v1/revealed-preference", "revealedPreference.wrenmouth_household_diary.json", (
         ("rp-efficiency", lambda a: a["consistency"]["efficiency_index"], 4),
         ("rp-level", lambda a: a["bounds"]["efficiency_level"], 4)), 0, 0, "rye_loaf"),
@@ -147,7 +154,7 @@ CASES = [
 ]
 IDS = [c.view for c in CASES]
 #: The views added for uprating, the index tree, revealed preference and sensitivity.
-NEW_VIEWS = ("uprating", "index-tree", "tree-uprating", "revealed", "sensitivity")
+NEW_VIEWS = ("uprating", "index-tree", "tree-uprating", "fitted-families", "revealed", "sensitivity")
 
 
 @pytest.fixture(scope="module", params=list(SIZES))
@@ -613,7 +620,8 @@ VIEW_OF = {"compare": ("comparison", "/v1/comparisons"), "indexSeries": ("series
            "uprating": ("uprating", "/v1/uprating"), "indexTree": ("index-tree", "/v1/index-tree"),
            "revealedPreference": ("revealed", "/v1/revealed-preference"),
            "sensitivity": ("sensitivity", "/v1/sensitivity"),
-           "upratingFromIndexTree": ("tree-uprating", "/v1/uprating/index-tree")}
+           "upratingFromIndexTree": ("tree-uprating", "/v1/uprating/index-tree"),
+           "fittedSensitivity": ("fitted-families", "/v1/fitted-sensitivity")}
 EXAMPLES = sorted(p.name for p in (ROOT / "openapi_examples").glob("*.json")
                   if p.name.split(".")[0] in VIEW_OF)
 

@@ -1011,7 +1011,54 @@
     ],
   };
 
-  window.dualcostViews = [comparison, series, uprating, indexTree, treeUprating, households, fits, fitted, revealed, sensitivity, audits];
+  // ---- several families fitted to the same budgets: the band across them, each with its interval
+  const famName = (a, k) => a.families[k].comparison.family;
+  const fittedFamilies = {
+    id: "fitted-families",
+    title: "Fitted families",
+    intro: "Several preference families fitted to the same budget data, each then comparing the same two price situations: "
+      + "the band across the families beside each family's interval from its estimate's uncertainty.",
+    path: "/v1/fitted-sensitivity",
+    operationId: "fittedSensitivity",
+    action: "Fit and compare",
+    csv: fits.csv,
+    fields: [
+      { pointer: "/families", label: "Families fitted (JSON list: family and its fit options)", kind: "json", rows: 2 },
+      { pointer: "/comparison/base/expenditure", label: "Base income for the comparison", kind: "number", optional: true },
+      { pointer: "/uncertainty/draws", label: "Draws for the intervals", kind: "number", optional: true },
+    ],
+    grids: fitted.grids,
+    results: [
+      { kind: "cards", cards: (a) => [
+        { id: "ff-konus-low", label: `Konüs index (base standard) across ${a.families.length} fitted families: lowest`, value: bandOf(a.band, "konus_base").low },
+        { id: "ff-konus-high", label: "highest", value: bandOf(a.band, "konus_base").high },
+        { id: "ff-laspeyres-low", label: "Laspeyres bias across them, index points: lowest", value: bandOf(a.band, "laspeyres_bias_points").low, digits: 3 },
+        { id: "ff-laspeyres-high", label: "highest", value: bandOf(a.band, "laspeyres_bias_points").high, digits: 3 }] },
+      { kind: "chart", id: "ff-band-chart", title: "Each family's interval and the band across the families",
+        choose: { label: "Measure", options: (a) => a.band.map((r) => [r.measure, r.measure.replace(/_bias_points$/, " bias, index points").replace(/^konus_/, "Konüs index, ")]) },
+        height: (a) => 110 + a.families.length * 40,
+        chart: (a, m) => {
+          const r = bandOf(a.band, m);
+          return loose(C.barConfig({ labels: [...a.families.map((_, k) => famName(a, k)), "band across the families"],
+            xTitle: "family", yTitle: m.endsWith("_bias_points") ? "bias, index points on base 100" : "Konüs index (ratio, 1 = no change)", zeroAt: m.endsWith("_bias_points") ? 0 : null,
+            datasets: [{ label: `${Math.round(100 * a.families[0].intervals.confidence_level)}% interval; the band: lowest to highest estimate`, order: 2,
+              data: [...r.intervals.map((i) => (i.low === null ? null : [i.low, i.high])), [r.low, r.high]],
+              backgroundColor: [...r.intervals.map(() => C.PALETTE[0]), "rgba(0,0,0,0.3)"] },
+            { type: "line", indexAxis: "y", showLine: false, label: "estimate", order: 1, pointStyle: "rectRot", pointRadius: 6,
+              borderColor: "#000", backgroundColor: "#000", data: [...r.intervals.map((i) => i.estimate), null] }] }));
+        },
+        table: (a, m) => ({ rows: bandOf(a.band, m).intervals, columns: [{ title: "family", get: (i) => famName(a, i.family) },
+          { title: "estimate", get: (i) => i.estimate, model: true }, { title: "low", get: (i) => i.low }, { title: "high", get: (i) => i.high }] }) },
+      { kind: "table", id: "ff-families", title: "Each family's fit", rows: (a) => a.families, columns: [
+        { title: "family", get: (f) => f.comparison.family }, { title: "observations", get: (f) => f.fit.fit.observations, digits: 0 },
+        { title: "converged", get: (f) => (f.fit.fit.converged ? "yes" : "NO") },
+        { title: "Konüs (base)", get: (f) => f.comparison.konus.base, model: true },
+        { title: "Laspeyres bias (points)", get: (f) => f.comparison.laspeyres_gap_points, digits: 3, model: true },
+        { title: "draws failed", get: (f) => f.intervals.draws_failed, digits: 0 }] },
+    ],
+  };
+
+  window.dualcostViews = [comparison, series, uprating, indexTree, treeUprating, households, fits, fitted, fittedFamilies, revealed, sensitivity, audits];
   window.dualcost.boot(window.dualcostViews).catch((e) => {
     const box = document.getElementById("error");
     box.textContent = String(e);
