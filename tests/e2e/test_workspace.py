@@ -71,6 +71,22 @@ def _konus_summary(answer: dict[str, Any]) -> dict[str, Any]:
     return next(i for i in answer["summary"][0]["indices"] if i["index"] == "konus")
 
 
+def _applied(answer: dict[str, Any], index: str) -> float:
+    """The first clause's last uprating, as applied under `index`."""
+    last = answer["clauses"][0]["upratings"][-1]
+    return float(next(b["applied_percent"] for b in last["by_index"] if b["index"] == index))
+
+
+def _paid_minus_konus(answer: dict[str, Any], index: str) -> float:
+    """The first clause's money paid under `index` minus under the Konüs index, in all."""
+    return float(next(m for m in answer["clauses"][0]["money"]
+                      if m["index"] == index)["difference_vs_konus_total"])
+
+
+def _range(ranges: list[dict[str, Any]], measure: str) -> dict[str, Any]:
+    return next(r for r in ranges if r["measure"] == measure)
+
+
 def _annual(answer: dict[str, Any]) -> float:
     return next(s["bias_pp_per_year"] for s in answer["annual_bias"]["by_series"]
                 if s["series"] == "laspeyres" and s["kind"] == "fixed_base")
@@ -105,8 +121,40 @@ CASES = [
     ViewCase("audits", "/v1/audits", "auditPublishedSeries.wrenmouth_monthly_bulletin.json", (
         ("audit-checked", lambda a: a["checked"], 0),
         ("audit-failed", lambda a: a["failed"], 0)), 1, 0, "Rye loaf, 800 g"),
+    ViewCase("uprating", "/v1/uprating", "uprating.wrenmouth_pensions_april.json", (
+        ("up-konus-applied", lambda a: _applied(a, "konus"), 2),
+        ("up-index-applied", lambda a: _applied(a, "laspeyres"), 2),
+        ("up-index-difference", lambda a: _paid_minus_konus(a, "laspeyres"), 2)), 1, 0,
+        "Rye loaf, 800 g"),
+    ViewCase("tree-uprating", "/v1/uprating/index-tree",
+             "upratingFromIndexTree.wrenmouth_pension_from_the_tree.json", (
+                 ("up-konus-applied", lambda a: _applied(a, "konus"), 2),
+                 ("up-index-applied", lambda a: _applied(a, "lowe"), 2),
+                 ("up-index-difference", lambda a: _paid_minus_konus(a, "lowe"), 2)), 2, 0, "2024-01"),
+    ViewCase("index-tree", "/v1/index-tree", "indexTree.wrenmouth_coicop.json", (
+        ("tree-index-last", lambda a: a["nodes"][0]["index"][-1], 3),
+        ("tree-konus-last", lambda a: a["nodes"][0]["konus"][-1], 3),
+        ("tree-bias-last", lambda a: a["nodes"][0]["bias_points"][-1], 3)), 1, 0, "2024-01"),
+    ViewCase("fitted-families", "/v1/fitted-sensitivity",
+             "fittedSensitivity.wrenmouth_quarterly_three_families.json", (
+                 ("ff-konus-low", lambda a: _range(a["band"], "konus_base")["low"], 4),
+                 ("ff-konus-high", lambda a: _range(a["band"], "konus_base")["high"], 4),
+                 ("ff-laspeyres-low", lambda a: _range(a["band"], "laspeyres_bias_points")["low"], 3),
+                 ("ff-laspeyres-high", lambda a: _range(a["band"], "laspeyres_bias_points")["high"], 3)),
+             0, 1, "current price"),
+    ViewCase("revealed", "/v1/revealed-preference", "revealedPreference.wrenmouth_household_diary.json", (
+        ("rp-efficiency", lambda a: a["consistency"]["efficiency_index"], 4),
+        ("rp-level", lambda a: a["bounds"]["efficiency_level"], 4)), 0, 0, "rye_loaf"),
+    ViewCase("sensitivity", "/v1/sensitivity", "sensitivity.stone_geary_pensioner_frisch.json", (
+        ("sens-band-low", lambda a: _range(a["band"], "konus_base")["low"], 4),
+        ("sens-band-high", lambda a: _range(a["band"], "konus_base")["high"], 4),
+        ("sens-grid-low", lambda a: _range(a["grid"]["range"], "konus_base")["low"], 4),
+        ("sens-grid-high", lambda a: _range(a["grid"]["range"], "konus_base")["high"], 4)), 0, 1,
+        "current price"),
 ]
 IDS = [c.view for c in CASES]
+#: The views added for uprating, the index tree, revealed preference and sensitivity.
+NEW_VIEWS = ("uprating", "index-tree", "tree-uprating", "fitted-families", "revealed", "sensitivity")
 
 
 @pytest.fixture(scope="module", params=list(SIZES))
@@ -162,6 +210,16 @@ def page_width(browser: Any) -> tuple[int, int]:
         "return [document.documentElement.scrollWidth, window.innerWidth]")
 
 
+def assert_fits_the_screen(browser: Any) -> None:
+    """No sideways scrolling: the page is no wider than the screen. Under a phone's emulation a
+    page wider than the screen widens the layout viewport itself (innerWidth grew to 707 px on
+    a 390 px screen), so the page is held to the screen's width, and the viewport too."""
+    width, viewport = page_width(browser)
+    screen = SIZES[browser.size_name][0]
+    assert width <= screen and viewport == screen, (
+        f"the page is {width}px wide in a {viewport}px viewport on a {screen}px screen")
+
+
 def in_view(browser: Any, element_id: str) -> bool:
     return bool(browser.execute_script("""
         const r = document.getElementById(arguments[0]).getBoundingClientRect();
@@ -204,8 +262,7 @@ def test_each_view_computes_its_example_and_shows_the_apis_numbers(
         "return [...document.querySelectorAll('#result canvas')].filter("
         "c => window.Chart.getChart(c)).length")
     assert charts >= 1
-    width, viewport = page_width(browser)
-    assert width <= viewport, f"the page is {width}px wide in a {viewport}px viewport"
+    assert_fits_the_screen(browser)
     assert_nothing_left_the_machine(requests_made(browser), live_url)
     entries = browser.execute_script(
         "return performance.getEntries().map(e => e.name).filter(n => /^https?:/.test(n))")
@@ -246,8 +303,7 @@ def test_each_view_names_the_row_and_column_of_a_bad_cell(
     assert "greater than" in text or "positive" in text, text
     assert cell.get_attribute("aria-invalid") == "true"
     assert not browser.find_element(By.ID, "result").is_displayed()
-    width, viewport = page_width(browser)
-    assert width <= viewport
+    assert_fits_the_screen(browser)
     screenshot(browser, f"{case.view}-error")
 
 
@@ -274,7 +330,7 @@ def test_the_sensitivity_comes_from_the_service(live_url: str, browser: Any) -> 
     cells = by_point["×1"].find_elements(By.TAG_NAME, "td")
     assert cells[1].text == f"{demo['konus']['base']:.4f}"
     assert cells[2].text == f"{demo['laspeyres_gap_points']:.3f}"
-    assert page_width(browser)[0] <= page_width(browser)[1]
+    assert_fits_the_screen(browser)
     screenshot(browser, "comparison-sensitivity")
 
 
@@ -568,7 +624,12 @@ def test_a_rule_about_a_whole_row_names_the_row(live_url: str, browser: Any) -> 
 VIEW_OF = {"compare": ("comparison", "/v1/comparisons"), "indexSeries": ("series", "/v1/index-series"),
            "householdIndices": ("households", "/v1/household-indices"),
            "fitModel": ("fits", "/v1/fits"), "auditPublishedSeries": ("audits", "/v1/audits"),
-           "fitAndCompare": ("fitted", "/v1/fitted-comparisons")}
+           "fitAndCompare": ("fitted", "/v1/fitted-comparisons"),
+           "uprating": ("uprating", "/v1/uprating"), "indexTree": ("index-tree", "/v1/index-tree"),
+           "revealedPreference": ("revealed", "/v1/revealed-preference"),
+           "sensitivity": ("sensitivity", "/v1/sensitivity"),
+           "upratingFromIndexTree": ("tree-uprating", "/v1/uprating/index-tree"),
+           "fittedSensitivity": ("fitted-families", "/v1/fitted-sensitivity")}
 EXAMPLES = sorted(p.name for p in (ROOT / "openapi_examples").glob("*.json")
                   if p.name.split(".")[0] in VIEW_OF)
 
@@ -662,3 +723,306 @@ def test_a_warning_that_changes_a_figure_sits_beside_it(live_url: str, browser: 
     expected = next(n["message"] for n in demo["notices"]
                     if n["code"] == "current_quantities_from_model")
     assert any(expected in w for w in warnings), warnings
+
+
+def choose(browser: Any, select_id: str, text: str) -> None:
+    from selenium.webdriver.support.ui import Select
+
+    Select(browser.find_element(By.ID, select_id)).select_by_visible_text(text)
+
+
+def table_cells(browser: Any, table_id: str) -> list[list[str]]:
+    return browser.execute_script(
+        "return [...document.querySelectorAll('#' + arguments[0] + ' tbody tr')].map("
+        "r => [...r.querySelectorAll('th, td')].map(c => c.textContent.trim()))", table_id)
+
+
+def test_the_sensitivity_control_asks_the_sweep_operation_once(live_url: str, browser: Any) -> None:
+    """The comparison's σ control sends one POST /v1/sensitivity for all its points (no
+    comparison per point), and its point ×1 is the demo's own figures."""
+    open_view(browser, live_url, "comparison")
+    compute(browser)
+    browser.execute_script("performance.clearResourceTimings()")
+    browser.find_element(By.ID, "sweep").click()
+    wait(browser, 120).until(lambda d: d.find_elements(By.CSS_SELECTOR, "#sweep-values tbody tr"))
+    asked = browser.execute_script(
+        "return performance.getEntriesByType('resource').map(e => new URL(e.name).pathname)")
+    assert asked.count("/v1/sensitivity") == 1 and "/v1/comparisons" not in asked, asked
+
+
+def test_the_series_change_measures_follow_the_chosen_measure(live_url: str, browser: Any) -> None:
+    """The change-measure selector redraws the table from the answer's changes: 12-month
+    first, then the annual average changes, each the JSON answer's number."""
+    open_view(browser, live_url, "series")
+    compute(browser)
+    sent, answer = sent_and_answer(browser, live_url, "/v1/index-series")
+    rows = {(r["series"], r["kind"], r["standard"]): r for r in answer["changes"]["by_series"]}
+    lasp = rows[("laspeyres", "fixed_base", None)]
+    cells = table_cells(browser, "changes-chart-table")
+    header = browser.execute_script(
+        "return [...document.querySelectorAll('#changes-chart-table thead th')].map(c => c.textContent)")
+    col = header.index("Laspeyres")
+    assert cells[-1][col] == f"{lasp['twelve_month_percent'][-1]:.3f}"
+    assert header[-1] == "Konüs (base standard)"
+    konus = rows[("konus", "fixed_base", "base")]
+    assert cells[-1][-1] == f"{konus['twelve_month_percent'][-1]:.3f}"
+    choose(browser, "changes-chart-choice", "annual average over the previous year's, %")
+    wait(browser, 10).until(lambda d: table_cells(d, "changes-chart-table")[0][0].isdigit())
+    years = table_cells(browser, "changes-chart-table")
+    first = lasp["annual"][0]
+    assert years[0][0] == str(first["year"])
+    shown = years[0][col]
+    assert shown == ("" if first["change_percent"] is None else f"{first['change_percent']:.3f}")
+    assert_fits_the_screen(browser)
+    screenshot(browser, "series-changes")
+
+
+def test_the_revealed_bounds_checkbox_shows_the_bracket_beside_the_model(
+        live_url: str, browser: Any) -> None:
+    """Ticked, the comparison asks for revealed_bounds and shows the model-free bracket and the
+    model's K(u0) inside it; the series shows each period's bracket with the Konüs series."""
+    open_view(browser, live_url, "comparison")
+    choose(browser, "scenario", "Example: " + next(
+        e["summary"] for n, e in httpx.get(live_url + "/openapi.json").json()["paths"][
+            "/v1/comparisons"]["post"]["requestBody"]["content"]["application/json"][
+            "examples"].items() if n == "wrenmouth_nested_ces_with_revealed_bounds"))
+    browser.find_element(By.ID, "load").click()
+    box = wait(browser, 10).until(lambda d: d.find_element(By.ID, "comparison-_revealed_bounds"))
+    assert box.is_selected()
+    compute(browser)
+    sent, answer = sent_and_answer(browser, live_url, "/v1/comparisons")
+    assert sent["revealed_bounds"] is True
+    bracket = answer["revealed_bounds"]
+    assert browser.find_element(By.ID, "rb-lower").text == f"{bracket['lower']:.4f}"
+    assert browser.find_element(By.ID, "rb-upper").text == f"{bracket['upper']:.4f}"
+    assert browser.find_element(By.ID, "rb-konus").text == f"{bracket['konus_base']:.4f}"
+    assert browser.find_element(By.ID, "rb-inside").text == ("yes" if bracket["konus_inside"] else "NO")
+    assert browser.find_elements(By.XPATH, "//section[@data-chart='bracket-chart']")
+    screenshot(browser, "comparison-revealed-bounds")
+
+    open_view(browser, live_url, "series")
+    browser.find_element(By.ID, "series-_revealed_bounds").click()
+    compute(browser)
+    sent, answer = sent_and_answer(browser, live_url, "/v1/index-series")
+    assert sent["revealed_bounds"] is True
+    rows = table_cells(browser, "series-bounds-table")
+    last = answer["revealed_bounds"]["rows"][-1]
+    assert rows[-1][:3] == [last["period"], f"{last['lower']:.4f}", f"{last['upper']:.4f}"]
+    assert rows[-1][5] == f"{last['konus_base']:.4f}"
+    assert_fits_the_screen(browser)
+    screenshot(browser, "series-revealed-bounds")
+
+
+def test_a_clause_added_in_the_editor_is_computed_and_chosen(live_url: str, browser: Any) -> None:
+    """'Add a clause' starts a twelve-month clause; the one typed (a cap of 2%) is sent and the
+    clause chooser shows its upratings, capped, as the API answers them."""
+    open_view(browser, live_url, "uprating")
+    browser.find_element(By.XPATH, "//button[text()='Add a clause']").click()
+    name = wait(browser, 10).until(lambda d: d.find_element(
+        By.CSS_SELECTOR, "input[aria-label='Clauses: clause 3, name']"))
+    name.send_keys("capped allowance")
+    cap = browser.find_element(By.CSS_SELECTOR, "input[aria-label='Clauses: clause 3, cap %']")
+    cap.send_keys("2")
+    compute(browser)
+    sent, answer = sent_and_answer(browser, live_url, "/v1/uprating")
+    assert sent["clauses"][2] == {"name": "capped allowance", "measure": "twelve_month",
+                                  "period_of_year": 9, "lag": 7, "cap": 2}
+    choose(browser, "uprating-chart-choice", "capped allowance")
+    wait(browser, 10).until(lambda d: len(table_cells(d, "uprating-chart-table")) == len(
+        answer["clauses"][2]["upratings"]) * len(answer["indices"]))
+    rows = table_cells(browser, "uprating-chart-table")
+    first = answer["clauses"][2]["upratings"][0]["by_index"][0]
+    assert rows[0][3] == f"{first['applied_percent']:.2f}" and first["applied_percent"] <= 2
+    assert browser.find_element(By.ID, "uprating-caution").text.startswith("Caution.")
+    # A bad lag is named by its clause row and column.
+    lag = browser.find_element(By.CSS_SELECTOR, "input[aria-label='Clauses: clause 3, lag']")
+    lag.clear()
+    lag.send_keys("-1")
+    browser.find_element(By.ID, "compute").click()
+    error = wait(browser, 20).until(lambda d: d.find_element(By.ID, "error")
+                                    if d.find_element(By.ID, "error").is_displayed() else None)
+    assert "Clauses, row 3 (clause 3), column 'lag'" in error.text, error.text
+    assert lag.get_attribute("aria-invalid") == "true"
+
+
+def test_the_index_tree_folds_and_charts_a_chosen_node(live_url: str, browser: Any) -> None:
+    """The tree table opens at the top groups and unfolds a group on request; the node chooser
+    draws that node's index beside its Konüs index, as the API answers them."""
+    open_view(browser, live_url, "index-tree")
+    compute(browser)
+    sent, answer = sent_and_answer(browser, live_url, "/v1/index-tree")
+    visible = lambda d: [r.get_attribute("data-node") for r in d.find_elements(  # noqa: E731
+        By.CSS_SELECTOR, "#tree-table tbody tr") if r.is_displayed()]
+    top = [n["path"] for n in answer["nodes"] if n["depth"] <= 1]
+    assert visible(browser) == top
+    food = next(n for n in answer["nodes"] if n["depth"] == 1)
+    button = browser.find_element(By.CSS_SELECTOR, f"button[aria-label='unfold {food['name']}']")
+    button.send_keys(Keys.ENTER)
+    children = [n["path"] for n in answer["nodes"] if n["parent"] == food["name"]]
+    wait(browser, 5).until(lambda d: set(children) <= set(visible(d)))
+    assert button.get_attribute("aria-expanded") == "true"
+    choose(browser, "tree-node-chart-choice", f"· {food['name']}")
+    wait(browser, 10).until(lambda d: table_cells(d, "tree-node-chart-table")[-1][1]
+                            == f"{food['index'][-1]:.3f}")
+    assert table_cells(browser, "tree-node-chart-table")[-1][2] == f"{food['konus'][-1]:.3f}"
+    screenshot(browser, "index-tree-unfolded")
+
+
+def test_the_revealed_view_lists_each_violation_with_its_cycle(live_url: str, browser: Any) -> None:
+    """The household diary fails GARP: each violation's cycle of periods is listed, as the API
+    gives it, and the verdict cards say FAILS."""
+    open_view(browser, live_url, "revealed")
+    compute(browser)
+    sent, answer = sent_and_answer(browser, live_url, "/v1/revealed-preference")
+    assert browser.find_element(By.ID, "rp-garp").text == "FAILS"
+    rows = table_cells(browser, "rp-violations")
+    assert [r[3] for r in rows] == [" → ".join(v["periods"]) for v in answer["consistency"]["violations"]]
+
+
+@pytest.mark.parametrize("view", NEW_VIEWS)
+def test_every_control_of_the_new_views_is_labelled(live_url: str, browser: Any, view: str) -> None:
+    """The form's controls and the answer's choosers each carry a label."""
+    open_view(browser, live_url, view)
+    compute(browser)
+    unlabelled = browser.execute_script("""
+        return [...document.querySelectorAll('input, select, textarea, button')].filter(i =>
+          !(i.labels && i.labels.length) && !i.getAttribute('aria-label')
+          && !(i.tagName === 'BUTTON' && i.textContent.trim())).map(i => i.outerHTML)""")
+    assert unlabelled == []
+
+
+def _downloaded(browser: Any, name: str) -> str:
+    target = browser.downloads / name
+    target.unlink(missing_ok=True)
+    browser.find_element(By.ID, f"download-{name.rsplit('.', 1)[1]}").click()
+    deadline = time.monotonic() + 20
+    while not target.exists() or not target.stat().st_size:
+        assert time.monotonic() < deadline, f"no {name} download"
+        time.sleep(0.1)
+    time.sleep(0.2)
+    return target.read_text(encoding="utf-8")
+
+
+@pytest.mark.parametrize("case", [c for c in CASES if c.view in NEW_VIEWS], ids=NEW_VIEWS)
+def test_the_new_views_download_json_and_the_services_csv(
+        live_url: str, browser: Any, case: ViewCase) -> None:
+    """JSON is the answer shown; CSV is the service's own CSV answer to the same request."""
+    open_view(browser, live_url, case.view)
+    compute(browser)
+    body = load_example(case.example)
+    shown = json.loads(_downloaded(browser, f"{case.view}.json"))
+    assert shown == browser.execute_script("return window.dualcost.state.answer")
+    csv = httpx.post(live_url + case.path, json=body, headers={"accept": "text/csv"}, timeout=60)
+    assert _downloaded(browser, f"{case.view}.csv").splitlines() == csv.text.splitlines()
+
+
+def test_a_quotes_csv_fills_the_index_tree(live_url: str, browser: Any, tmp_path: Path) -> None:
+    """Quotes in long form (quote,aggregate,period,price; an empty price: not priced) rebuild
+    the example's quotes; the tree, links and weights stay as they were."""
+    example = load_example("indexTree.wrenmouth_coicop.json")
+    lines = ["quote,aggregate,period,price"]
+    for q in example["quotes"]:
+        for t, p in enumerate(example["periods"]):
+            price = q["prices"][t]
+            lines.append(f"{q['id']},{q['aggregate']},{p},{'' if price is None else price}")
+    open_view(browser, live_url, "index-tree")
+    upload(browser, tmp_path, "quotes.csv", "\n".join(lines))
+    wait(browser, 10).until(lambda d: d.execute_script("return window.dualcost.state.scenario") == "")
+    compute(browser)
+    sent, answer = sent_and_answer(browser, live_url, "/v1/index-tree")
+    assert [(q["id"], q["aggregate"], q["prices"]) for q in sent["quotes"]] == [
+        (q["id"], q["aggregate"], q["prices"]) for q in example["quotes"]]
+    assert sent["tree"] == example["tree"] and sent["links"] == example["links"]
+    assert browser.find_element(By.ID, "tree-index-last").text == f"{answer['nodes'][0]['index'][-1]:.3f}"
+
+
+def test_a_panel_csv_fills_the_revealed_view(live_url: str, browser: Any, tmp_path: Path) -> None:
+    """The monthly basket in long form (period,item,price,quantity) gives the example's panel;
+    a decimal comma in it is named by the file's row."""
+    example = load_example("revealedPreference.wrenmouth_monthly_basket.json")
+    ids = [i["id"] for i in example["items"]]
+    lines = ["period,item,price,quantity"]
+    for t, p in enumerate(example["periods"]):
+        lines += [f"{p},{i},{example['prices'][t][i]},{example['quantities'][t][i]}" for i in ids]
+    open_view(browser, live_url, "revealed")
+    upload(browser, tmp_path, "basket.csv", "\n".join(lines))
+    wait(browser, 10).until(lambda d: d.execute_script("return window.dualcost.state.scenario") == "")
+    compute(browser)
+    sent, answer = sent_and_answer(browser, live_url, "/v1/revealed-preference")
+    assert sent["prices"] == example["prices"] and sent["quantities"] == example["quantities"]
+    assert browser.find_element(By.ID, "rp-garp").text == "passes"
+    assert browser.find_element(By.ID, "rp-efficiency").text == (
+        f"{answer['consistency']['efficiency_index']:.4f}")
+    lines[3] = lines[3].rsplit(",", 1)[0] + ",41;5"
+    upload(browser, tmp_path, "basket2.csv", "\n".join(lines))
+    error = wait(browser, 10).until(lambda d: d.find_element(By.ID, "error")
+                                    if d.find_element(By.ID, "error").is_displayed() else None)
+    assert "basket2.csv, row 4, column 'quantity'" in error.text, error.text
+
+
+def test_a_nodes_sigma_is_typed_in_the_classification_grid(live_url: str, browser: Any) -> None:
+    """The classification grid writes a node's σ into the nested tree and the answer's node
+    carries it; a negative σ is named by the node's row."""
+    open_view(browser, live_url, "index-tree")
+    food = load_example("indexTree.wrenmouth_coicop.json")["tree"]["children"][0]["name"]
+    label = f"Classification: σ and elementary formula by node: · {food}, σ"
+    cell = browser.find_element(By.CSS_SELECTOR, f"input[aria-label='{label}']")
+    cell.clear()
+    cell.send_keys("1.2")
+    compute(browser)
+    sent, answer = sent_and_answer(browser, live_url, "/v1/index-tree")
+    assert sent["tree"]["children"][0]["sigma"] == 1.2
+    node = next(n for n in answer["nodes"] if n["name"] == food)
+    assert node["sigma"] == 1.2
+    assert browser.find_element(By.ID, "tree-konus-last").text == f"{answer['nodes'][0]['konus'][-1]:.3f}"
+    cell = browser.find_element(By.CSS_SELECTOR, f"input[aria-label='{label}']")
+    cell.clear()
+    cell.send_keys("-1")
+    browser.find_element(By.ID, "compute").click()
+    error = wait(browser, 20).until(lambda d: d.find_element(By.ID, "error")
+                                    if d.find_element(By.ID, "error").is_displayed() else None)
+    assert f"row 2 (· {food}), column 'σ'" in error.text, error.text
+    assert cell.get_attribute("aria-invalid") == "true"
+
+
+def load_named_example(browser: Any, name: str) -> None:
+    choose(browser, "scenario", next(
+        o.text for o in browser.find_elements(By.CSS_SELECTOR, "#scenario option")
+        if o.get_attribute("value") == f"example:{name}"))
+    browser.find_element(By.ID, "load").click()
+    wait(browser, 10).until(lambda d: d.execute_script(
+        "return window.dualcost.state.scenario") == f"example:{name}")
+
+
+def test_the_band_across_models_and_fitted_sigmas_are_shown_as_answered(
+        live_url: str, browser: Any) -> None:
+    """The comparison's band across band_models beside its bracket, the series' band per
+    period, and the index tree's fitted σ, each the JSON answer's numbers."""
+    open_view(browser, live_url, "comparison")
+    load_named_example(browser, "wrenmouth_nested_ces_inside_bracket_and_band")
+    compute(browser)
+    sent, answer = sent_and_answer(browser, live_url, "/v1/comparisons")
+    assert sent == load_example("compare.wrenmouth_nested_ces_inside_bracket_and_band.json")
+    k = _range(answer["band"]["ranges"], "konus_base")
+    assert browser.find_element(By.ID, "band-low").text == f"{k['low']:.4f}"
+    assert browser.find_element(By.ID, "band-high").text == f"{k['high']:.4f}"
+    assert browser.find_element(By.ID, "rb-lower").text == f"{answer['revealed_bounds']['lower']:.4f}"
+    screenshot(browser, "comparison-bracket-and-band")
+
+    open_view(browser, live_url, "series")
+    load_named_example(browser, "wrenmouth_monthly_ces_bracket_and_band")
+    compute(browser)
+    sent, answer = sent_and_answer(browser, live_url, "/v1/index-series")
+    last = answer["band"]["rows"][-1]
+    assert table_cells(browser, "series-band-chart-table")[-1][:3] == [
+        last["period"], f"{last['konus_low']:.3f}", f"{last['konus_high']:.3f}"]
+
+    open_view(browser, live_url, "index-tree")
+    load_named_example(browser, "wrenmouth_fitted_sigma")
+    compute(browser)
+    sent, answer = sent_and_answer(browser, live_url, "/v1/index-tree")
+    first = answer["sigma_fit"]["estimates"][0]
+    assert table_cells(browser, "tree-sigma-chart-table")[0][:2] == [
+        ", ".join(first["nodes"]), f"{first['sigma']:.3f}"]
+    assert_fits_the_screen(browser)
+    screenshot(browser, "index-tree-fitted-sigma")

@@ -36,45 +36,13 @@ def _uprating(answer: dict[str, Any], index: str) -> float:
     return float(next(b["factor"] for b in first["by_index"] if b["index"] == index))
 
 
-CASES = [
-    ViewCase("fitted-sensitivity", "/v1/fitted-sensitivity",
-             "fittedSensitivity.wrenmouth_quarterly_three_families.json", (
-                 ("fs-konus-0", lambda a: a["families"][0]["comparison"]["konus"]["base"], 4),
-                 ("fs-konus-2", lambda a: a["families"][2]["comparison"]["konus"]["base"], 4),
-                 ("fs-band-low", lambda a: _band(a, "konus_base")["low"], 4),
-                 ("fs-band-high", lambda a: _band(a, "konus_base")["high"], 4)), 1, 1, "current price"),
-    ViewCase("uprating-tree", "/v1/uprating/index-tree",
-             "upratingFromIndexTree.wrenmouth_pension_from_the_tree.json", (
-                 ("up-factor-published", lambda a: _uprating(a, a["upper_formula"]), 4),
-                 ("up-factor-konus", lambda a: _uprating(a, "konus"), 4),
-                 ("up-total-diff", lambda a: next(
-                     m["difference_vs_konus_total"] for m in a["clauses"][0]["money"]
-                     if m["index"] == a["upper_formula"]), 2)), 1, 0, "2024-01"),
-]
-IDS = [c.view for c in CASES]
-
-
-@pytest.mark.parametrize("case", CASES, ids=IDS)
-def test_each_new_view_computes_its_example_and_shows_the_apis_numbers(
-        live_url: str, browser: Any, case: ViewCase) -> None:  # noqa: F811
-    tw.test_each_view_computes_its_example_and_shows_the_apis_numbers(live_url, browser, case)
-    _screen_width_kept(browser)
-
-
-@pytest.mark.parametrize("case", CASES, ids=IDS)
-def test_each_new_view_names_the_row_and_column_of_a_bad_cell(
-        live_url: str, browser: Any, case: ViewCase) -> None:  # noqa: F811
-    tw.test_each_view_names_the_row_and_column_of_a_bad_cell(live_url, browser, case)
-    _screen_width_kept(browser)
 
 
 def _screen_width_kept(browser: Any) -> None:  # noqa: F811
     """The layout is as wide as the screen: under a phone's emulation a page wider than the
     screen widens the layout viewport itself (innerWidth), so scrollWidth <= innerWidth alone
     would not see it."""
-    width, viewport = tw.page_width(browser)
-    screen = tw.SIZES[browser.size_name][0]
-    assert width <= screen and viewport == screen, f"{width}px of page, {viewport}px of viewport"
+    tw.assert_fits_the_screen(browser)
 
 
 def _no_foreign_fetches_and_fits(browser: Any, live_url: str) -> None:  # noqa: F811
@@ -200,7 +168,7 @@ def test_saved_runs_filter_by_operation_and_name_a_bad_time(
     tw.screenshot(browser, "saved-runs-error")
 
 
-@pytest.mark.parametrize("view", ["runs", "household-jobs", "fitted-sensitivity", "uprating-tree"])
+@pytest.mark.parametrize("view", ["runs", "household-jobs"])
 def test_every_control_of_the_new_views_is_labelled(
         live_url: str, browser: Any, view: str) -> None:  # noqa: F811
     """Every input, menu and text box has a label (or an aria-label), the result's too, and the

@@ -46,6 +46,49 @@
     return body;
   }
 
+  // A two-period basket (item,base_price,current_price,base_quantity|base_share[,current_quantity]).
+  function readBasket(records, body, n) {
+    const keyed = (col, at) => Object.fromEntries(records.filter((r) => r[col] && r[col].text !== "")
+      .map((r) => [r.item.text, n(r[col], `${at}/${esc(r.item.text)}`)]));
+    body.items = records.map((r) => (r.label ? { id: r.item.text, label: r.label.text } : r.item.text));
+    const income = body.base && body.base.expenditure;
+    body.base = { prices: keyed("base_price", "/base/prices") };
+    if (records[0].base_share) {
+      body.base.shares = keyed("base_share", "/base/shares");
+      body.base.expenditure = income || 1000;
+    } else body.base.quantities = keyed("base_quantity", "/base/quantities");
+    body.current = { prices: keyed("current_price", "/current/prices") };
+    if (records[0].current_quantity) body.current.quantities = keyed("current_quantity", "/current/quantities");
+    return body;
+  }
+  const leaves = (g) => (typeof g === "string" ? [g] : (g.children || []).flatMap(leaves));
+  const basketCsv = { columns: "item,base_price,current_price,base_quantity or base_share[,current_quantity]",
+    required: ["item", "base_price", "current_price"] };
+  const basketGrid = { title: "Items", rows: { pointer: "/items", title: "item" }, columns: [
+    { title: "base price", pointer: "/base/prices/{row}" },
+    { title: "current price", pointer: "/current/prices/{row}" },
+    { title: "base quantity", pointer: "/base/quantities/{row}" },
+    { title: "base share", pointer: "/base/shares/{row}" },
+    { title: "current quantity (observed)", pointer: "/current/quantities/{row}" }] };
+
+  // The model-free bracket (lower, upper) per period with Laspeyres, Paasche and, where the
+  // answer has it, the model's Konüs index; ratios drawn on base 100.
+  const h = (x) => (x === null || x === undefined ? null : 100 * x);
+  const bandOf = (ranges, m) => ranges.find((r) => r.measure === m) || {};
+  const boundsChart = (rows, base) => C.lineConfig({ labels: rows.map((r) => r.period), xTitle: "period",
+    yTitle: `index, ${base} = 100`, datasets: [
+      ...C.bandDatasets(rows.map((r) => h(r.lower)), rows.map((r) => h(r.upper)), "model-free bracket (lower to upper)"),
+      { label: "Laspeyres (bounds K at the base standard from above)", colour: C.PALETTE[0], data: rows.map((r) => h(r.laspeyres)) },
+      { label: "Paasche (bounds K at each period's standard from below)", colour: C.PALETTE[1], data: rows.map((r) => h(r.paasche)) },
+      ...(rows.some((r) => r.konus_base !== undefined && r.konus_base !== null)
+        ? [{ label: "the model's Konüs index (base standard)", colour: "#000", borderWidth: 3, data: rows.map((r) => h(r.konus_base)) }] : [])] });
+  const boundsColumns = [{ title: "period", get: (r) => r.period }, { title: "lower", get: (r) => r.lower },
+    { title: "upper", get: (r) => r.upper }, { title: "Laspeyres", get: (r) => r.laspeyres }, { title: "Paasche", get: (r) => r.paasche }];
+  const withKonus = [...boundsColumns, { title: "model Konüs", get: (r) => r.konus_base, model: true },
+    { title: "inside?", get: (r) => (r.konus_inside === null ? "" : r.konus_inside ? "yes" : "NO") }];
+  const revealedField = (needs) => ({ kind: "checkbox", pointer: "/revealed_bounds",
+    label: "Also the model-free bracket (revealed preference)", hint: needs });
+
   const panelGrids = [
     { title: "Prices by period", rows: { pointer: "/periods", title: "period" },
       columnsFrom: { pointer: "/items", cell: "/prices/{r}/{col}" },
@@ -66,23 +109,11 @@
     demo: "/v1/demo",
     note: "'Wrenmouth demo' is exactly the request of GET /v1/demo (nested CES, reference income "
       + "700), so its figures are the demo's. The other starts are the service's own examples.",
-    csv: { columns: "item,base_price,current_price,base_quantity or base_share[,current_quantity]",
-      required: ["item", "base_price", "current_price"],
+    csv: { ...basketCsv,
       read(records, body, n) {
-        const keyed = (col, at) => Object.fromEntries(records.filter((r) => r[col] && r[col].text !== "")
-          .map((r) => [r.item.text, n(r[col], `${at}/${esc(r.item.text)}`)]));
-        body.items = records.map((r) => (r.label ? { id: r.item.text, label: r.label.text } : r.item.text));
-        const income = body.base && body.base.expenditure;
-        body.base = { prices: keyed("base_price", "/base/prices") };
-        if (records[0].base_share) {
-          body.base.shares = keyed("base_share", "/base/shares");
-          body.base.expenditure = income || 1000;
-        } else body.base.quantities = keyed("base_quantity", "/base/quantities");
-        body.current = { prices: keyed("current_price", "/current/prices") };
-        if (records[0].current_quantity) body.current.quantities = keyed("current_quantity", "/current/quantities");
+        readBasket(records, body, n);
         const ids = records.map((r) => r.item.text);
         const tree = body.model && body.model.tree;
-        const leaves = (g) => (typeof g === "string" ? [g] : (g.children || []).flatMap(leaves));
         if (!body.model || (tree && leaves(tree).sort().join() !== ids.slice().sort().join())) {
           body.model = { family: "ces", sigma: 0.7 };
           window.dualcost.say("The file's items are not the tree's: the model is now CES with σ 0.7. "
@@ -98,13 +129,10 @@
         hint: "Empty: base income, or the cost of observed current quantities." },
       { pointer: "/reference_income", label: "Reference income (at base prices)", kind: "number", optional: true },
       { pointer: "/lloyd_moulton_sigma", label: "σ for Lloyd-Moulton", kind: "number", optional: true },
+      revealedField("Needs observed current quantities: the two bundles alone bracket K(u0)."),
+      { pointer: "/band_models", label: "Band across these models (JSON list, as the sensitivity's models)", kind: "json", rows: 2, optional: true },
     ],
-    grids: [{ title: "Items", rows: { pointer: "/items", title: "item" }, columns: [
-      { title: "base price", pointer: "/base/prices/{row}" },
-      { title: "current price", pointer: "/current/prices/{row}" },
-      { title: "base quantity", pointer: "/base/quantities/{row}" },
-      { title: "base share", pointer: "/base/shares/{row}" },
-      { title: "current quantity (observed)", pointer: "/current/quantities/{row}" }] }],
+    grids: [basketGrid],
     validity: validityBox,
     results: [
       { kind: "cards", cards: (a) => {
@@ -119,6 +147,33 @@
           { id: "ev", label: "Equivalent variation (a loss if positive)", value: a.compensation.equivalent_variation, digits: 2, withheld },
         ];
       } },
+      // The model-free bracket, when asked for, right under the model's figures.
+      { kind: "cards", when: (a) => a.band, cards: (a) => [
+        { id: "band-low", label: `K(u0) across ${a.band.models.length} other models: lowest`, value: bandOf(a.band.ranges, "konus_base").low },
+        { id: "band-high", label: "highest", value: bandOf(a.band.ranges, "konus_base").high },
+        { id: "band-inside", label: "the model's K(u0) inside the band?", value: a.band.konus_inside === null ? "" : a.band.konus_inside ? "yes" : "NO" }] },
+      { kind: "cards", when: (a) => a.revealed_bounds, cards: (a) => [
+        { id: "rb-lower", label: "Model-free bracket, lower", value: a.revealed_bounds.lower },
+        { id: "rb-upper", label: "Model-free bracket, upper", value: a.revealed_bounds.upper },
+        { id: "rb-konus", label: "the model's Konüs index, base standard", value: a.revealed_bounds.konus_base, withheld: a.revealed_bounds.konus_base === null },
+        { id: "rb-inside", label: "inside the bracket?", value: a.revealed_bounds.konus_inside === null ? "" : a.revealed_bounds.konus_inside ? "yes" : "NO" }] },
+      { kind: "chart", id: "bracket-chart", title: "The model's Konüs index inside the model-free bracket and the band across models",
+        when: (a) => a.revealed_bounds || a.band, height: () => 220, notices: ["garp_failed"],
+        text: (a) => (a.revealed_bounds ? `${a.revealed_bounds.garp ? "The two bundles pass GARP." : `The two bundles fail GARP (Afriat's index ${fmt(a.revealed_bounds.efficiency_index)}); the bracket holds at efficiency ${fmt(a.revealed_bounds.efficiency_level)}.`} ${a.revealed_bounds.method}` : ""),
+        chart: (a) => {
+          const b = a.revealed_bounds;
+          const band = a.band ? bandOf(a.band.ranges, "konus_base") : null;
+          const labels = [...(b ? ["model-free bracket"] : []), ...(band ? [`band across ${a.band.models.length} models`] : [])];
+          const at = (v, which) => labels.map((l) => (l.startsWith(which) ? h(v) : null));
+          const dot = (label, data, colour) => ({ type: "line", indexAxis: "y", showLine: false, label, data,
+            pointStyle: "rectRot", pointRadius: 7, borderColor: colour, backgroundColor: colour, order: 1 });
+          const k = a.validity.regular ? a.konus.base : null;
+          return loose(C.barConfig({ labels, xTitle: "", yTitle: "index, base = 100", zeroAt: null, datasets: [
+            { label: "lowest to highest", order: 2, backgroundColor: "rgba(0,0,0,0.15)",
+              data: labels.map((l) => (l.startsWith("model-free") ? [h(b.lower), h(b.upper)] : [h(band.low), h(band.high)])) },
+            ...(b ? [dot("Laspeyres", at(b.laspeyres, "model-free"), C.PALETTE[0]), dot("Paasche", at(b.paasche, "model-free"), C.PALETTE[1])] : []),
+            ...(k === null ? [] : [dot("the model's Konüs index K(u0)", labels.map(() => h(k)), "#000")])] }));
+        } },
       { kind: "chart", id: "bias-chart", title: "How much each formula overstates the Konüs index",
         notices: ["current_quantities_from_model", "quantities_from_model", "current_income_assumed"],
         when: (a) => a.validity.regular,
@@ -155,6 +210,7 @@
           { title: "gap (points)", get: (i) => i.laspeyres_gap_points, digits: 3, model: true }] },
     ],
     sensitivity: {
+      source: "bySweep",
       points(body, kind) {
         if (kind === "family") {
           const sigma = typeof body.model.sigma === "number" ? body.model.sigma : 0.7;
@@ -171,32 +227,38 @@
         }
         return [];
       },
-      chart(rows, kind) {
-        const ok = rows.filter((r) => r.ok);
-        const formulas = ok.length ? ok[0].answer.formulas.map((f) => f.formula) : [];
-        const series = ["laspeyres", "paasche", "fisher", "tornqvist", "lowe", "young"].filter((f) => formulas.includes(f));
-        const labels = rows.map((r) => r.label);
-        const bias = (r, f) => (r.ok ? num((r.answer.formulas.find((x) => x.formula === f) || {}).bias_points) : null);
-        const config = C.lineConfig({ labels, xTitle: kind === "family" ? "preference family" : "σ (or the tree's σ scaled)",
-          yTitle: "bias, index points (0 = no bias)", zeroAt: 0,
-          datasets: [{ label: "Konüs index, base = 100 (right axis)", yAxisID: "y2", colour: "#000", borderWidth: 3,
-            data: rows.map((r) => (r.ok && r.answer.konus.base !== null ? 100 * r.answer.konus.base : null)) },
-          ...series.map((f) => ({ label: `${titleOf(ok[0].answer, f)} bias`, data: rows.map((r) => bias(r, f)) }))] });
-        config.options.scales.y2 = { position: "right", grid: { drawOnChartArea: false },
-          title: { display: true, text: "Konüs index, base = 100", font: { size: 12 } }, ticks: { font: { size: 11 } } };
-        return config;
-      },
-      table(rows) {
-        const el = window.dualcost.el;
-        return el("div", { class: "scroll", tabindex: "0", role: "region", "aria-label": "sensitivity table" },
-          el("table", { id: "sweep-values" }, el("thead", {}, el("tr", {}, el("th", { text: "point" }), el("th", { text: "Konüs (base)" }), el("th", { text: "Laspeyres bias (points)" }), el("th", { text: "note" }))),
-            el("tbody", {}, ...rows.map((r) => el("tr", {}, el("td", { text: r.label }),
-              el("td", { text: r.ok ? (r.answer.konus.base === null ? "not a result" : fmt(r.answer.konus.base)) : "" }),
-              el("td", { text: r.ok ? (r.answer.laspeyres_gap_points === null ? "not a result" : fmt(r.answer.laspeyres_gap_points, 3)) : "" }),
-              el("td", { text: r.ok ? (r.answer.validity.regular ? "" : "outside the regular region") : (r.answer.title || "refused") }))))));
-      },
+      chart: (rows, kind) => sweepChart(rows, kind === "family" ? "preference family" : "σ (or the tree's σ scaled)"),
+      table: (rows) => sweepTable(rows),
     },
   };
+
+  // The Konüs index and each bias along a sweep's points ({label, ok, answer} rows).
+  function sweepChart(rows, xTitle) {
+    const ok = rows.filter((r) => r.ok);
+    const formulas = ok.length ? ok[0].answer.formulas.map((f) => f.formula) : [];
+    const series = ["laspeyres", "paasche", "fisher", "tornqvist", "lowe", "young"].filter((f) => formulas.includes(f));
+    const labels = rows.map((r) => r.label);
+    const bias = (r, f) => (r.ok ? num((r.answer.formulas.find((x) => x.formula === f) || {}).bias_points) : null);
+    const config = C.lineConfig({ labels, xTitle,
+      yTitle: "bias, index points (0 = no bias)", zeroAt: 0,
+      datasets: [{ label: "Konüs index, base = 100 (right axis)", yAxisID: "y2", colour: "#000", borderWidth: 3,
+        data: rows.map((r) => (r.ok && r.answer.konus.base !== null ? 100 * r.answer.konus.base : null)) },
+      ...series.map((f) => ({ label: `${titleOf(ok[0].answer, f)} bias`, data: rows.map((r) => bias(r, f)) }))] });
+    config.options.scales.y2 = { position: "right", grid: { drawOnChartArea: false },
+      title: { display: true, text: "Konüs index, base = 100", font: { size: 12 } }, ticks: { font: { size: 11 } } };
+    return config;
+  }
+  function sweepTable(rows) {
+    const el = window.dualcost.el;
+    return el("div", { class: "scroll", tabindex: "0", role: "region", "aria-label": "sensitivity table" },
+      el("table", { id: "sweep-values" }, el("thead", {}, el("tr", {}, el("th", { text: "point" }), el("th", { text: "Konüs (base)" }), el("th", { text: "Laspeyres bias (points)" }), el("th", { text: "note" }))),
+        el("tbody", {}, ...rows.map((r) => el("tr", {}, el("td", { text: r.label }),
+          el("td", { text: r.ok ? (r.answer.konus.base === null ? "not a result" : fmt(r.answer.konus.base)) : "" }),
+          el("td", { text: r.ok ? (r.answer.laspeyres_gap_points === null ? "not a result" : fmt(r.answer.laspeyres_gap_points, 3)) : "" }),
+          el("td", { text: r.ok ? (r.answer.validity.regular ? "" : "outside the regular region") : (r.answer.title || "refused") }))))));
+  }
+  // A floating-bar chart's value axis starts where the values are, not at zero.
+  const loose = (config) => { config.options.scales[config.options.indexAxis === "y" ? "x" : "y"].beginAtZero = false; return config; };
 
   // Seven lines stay readable (the palette's size): the formulas ticked, else the usual ones.
   const USUAL = ["laspeyres", "paasche", "fisher", "tornqvist", "lowe", "young", "geometric_laspeyres"];
@@ -221,6 +283,10 @@
       { pointer: "/base_period", label: "Base period", kind: "select", optional: true,
         options: (_, body) => (body.periods || []).map((p) => [p, p]) },
       { pointer: "/reference_value", label: "Reference value (1 or 100)", kind: "number", optional: true },
+      { pointer: "/rebase/period", label: "Rebase the change measures to period", kind: "select", optional: true, prune: true,
+        options: (_, body) => (body.periods || []).map((p) => [p, p]) },
+      revealedField("Needs quantities in every period: GARP and each period's bracket, over the items priced throughout."),
+      { pointer: "/band_models", label: "Band across these models (JSON list of models)", kind: "json", rows: 2, optional: true },
     ],
     grids: panelGrids,
     validity: (a) => (a.konus && a.konus.validity && a.konus.validity.periods_outside_regular_region.length ? {
@@ -267,6 +333,47 @@
       { kind: "chart", id: "drift-chart", title: "Chain drift: chained against direct (percent)",
         chart: (a) => C.lineConfig({ labels: a.periods, xTitle: "period", yTitle: "chain drift, percent", zeroAt: 0,
           datasets: seriesOf(a).map((f) => ({ label: f.title, data: f.chain_drift_percent })) }) },
+      { kind: "chart", id: "changes-chart", title: "Change measures of the fixed-base series and the Konüs series",
+        choose: { label: "Measure", options: (a) => changeMeasures(a) },
+        height: () => 340, text: (a) => a.changes.definitions.twelve_month_percent,
+        chart: (a, m) => {
+          const rows = changeSeries(a);
+          if (m === "annual") {
+            const years = [...new Set(rows.flatMap((r) => r.annual.map((y) => y.year)))];
+            return C.barConfig({ labels: years.map(String), horizontal: false, xTitle: "year", yTitle: "annual average over the previous year's, %",
+              datasets: rows.map((r) => ({ label: changeLabel(a, r), data: years.map((y) => num((r.annual.find((x) => x.year === y) || {}).change_percent)),
+                ...(r.series === "konus" ? { backgroundColor: "#000", borderColor: "#000" } : {}) })) });
+          }
+          return C.lineConfig({ labels: a.periods, xTitle: "period", zeroAt: m === "rebased" ? null : 0,
+            yTitle: m === "rebased" ? `level, ${rebasedTo(a)} = ${a.reference_value}` : "change, percent",
+            datasets: rows.map((r) => ({ label: changeLabel(a, r), data: r[m],
+              ...(r.series === "konus" ? { colour: "#000", borderWidth: 3 } : {}) })) });
+        },
+        table: (a, m) => {
+          const rows = changeSeries(a);
+          if (m === "annual") {
+            const years = [...new Set(rows.flatMap((r) => r.annual.map((y) => y.year)))];
+            return { rows: years, columns: [{ title: "year", get: (y) => String(y) }, ...rows.map((r) => ({ title: changeLabel(a, r), digits: 3,
+              get: (y) => (r.annual.find((x) => x.year === y) || {}).change_percent }))] };
+          }
+          return { rows: a.periods.map((p, t) => ({ p, t })), columns: [{ title: "period", get: (x) => x.p },
+            ...rows.map((r) => ({ title: changeLabel(a, r), get: (x) => r[m][x.t], digits: 3 }))] };
+        } },
+      { kind: "chart", id: "series-bounds-chart", title: "The Konüs series inside the model-free bracket",
+        when: (a) => a.revealed_bounds, notices: ["revealed_bounds_items", "garp_failed"],
+        text: (a) => `${a.revealed_bounds.consistency.garp ? "The panel passes GARP." : `The panel fails GARP; the brackets hold at efficiency ${fmt(a.revealed_bounds.efficiency_level)}.`} Items: ${a.revealed_bounds.items.join(", ")}.`,
+        chart: (a) => boundsChart(a.revealed_bounds.rows, a.revealed_bounds.base_period) },
+      { kind: "chart", id: "series-band-chart", title: "The Konüs series and the band across other models", when: (a) => a.band,
+        text: (a) => a.band.measure,
+        chart: (a) => C.lineConfig({ labels: a.periods, xTitle: "period", yTitle: `Konüs index at base utility (${a.scale.indices})`, datasets: [
+          ...C.bandDatasets(a.band.rows.map((r) => r.konus_low), a.band.rows.map((r) => r.konus_high), `band across ${a.band.models.length} models`),
+          { label: "this series' model", colour: "#000", borderWidth: 3, data: a.band.rows.map((r) => r.konus) },
+          ...a.band.models.map((m) => ({ label: m.family, data: m.fixed_base, borderDash: [4, 3], pointRadius: 0 }))] }),
+        table: (a) => ({ rows: a.band.rows, columns: [{ title: "period", get: (r) => r.period }, { title: "low", get: (r) => r.konus_low, digits: 3 },
+          { title: "high", get: (r) => r.konus_high, digits: 3 }, { title: "this model", get: (r) => r.konus, digits: 3, model: true },
+          { title: "inside?", get: (r) => (r.konus_inside === null ? "" : r.konus_inside ? "yes" : "NO") }] }) },
+      { kind: "table", id: "series-bounds-table", title: "Model-free brackets by period (ratios to the base period)",
+        when: (a) => a.revealed_bounds, rows: (a) => a.revealed_bounds.rows, columns: withKonus },
       { kind: "table", id: "annual-bias-table", title: "Average annual bias by series",
         when: (a) => a.annual_bias, rows: (a) => a.annual_bias.by_series, columns: [
           { title: "series", get: (b) => titleOf(a0(), b.series) }, { title: "kind", get: (b) => b.kind },
@@ -281,6 +388,16 @@
           ...(a.konus ? [{ title: "Konüs (base)", get: (r) => r.a.konus.fixed_base.base[r.t], digits: 3, model: true }] : [])] },
     ],
   };
+  // The change measures shown: the charted formulas' fixed-base series and the Konüs series at
+  // the base standard (answer.changes.by_series).
+  const changeSeries = (a) => {
+    const shown = new Set(seriesOf(a).map((f) => f.formula));
+    return a.changes.by_series.filter((r) => r.kind === "fixed_base" && (shown.has(r.series) || (r.series === "konus" && r.standard === "base")));
+  };
+  const changeLabel = (a, r) => (r.series === "konus" ? "Konüs (base standard)" : titleOf(a, r.series));
+  const rebasedTo = (a) => (a.changes.rebased_to ? a.changes.rebased_to.period || a.changes.rebased_to.year : "");
+  const changeMeasures = (a) => [["twelve_month_percent", "12-month change, %"], ["period_on_period_percent", "period-on-period change, %"],
+    ["annual", "annual average over the previous year's, %"], ...(a.changes.rebased_to ? [["rebased", `levels rebased to ${rebasedTo(a)}`]] : [])];
   const a0 = () => window.dualcost.state.answer;
   const last = (a) => a.summary[a.summary.length - 1];
 
@@ -590,7 +707,358 @@
     ],
   };
 
-  window.dualcostViews = [comparison, series, households, fits, fitted, audits];
+  // ---- uprating clauses: what each index, and the Konüs index, would pay --------------------
+  const clauseOf = (a, k) => a.clauses[k ?? 0];
+  const indexTitle = (i) => (i === "konus" ? "Konüs" : (window.dualcost.state.catalogue.formulas.find((f) => f.formula === i) || {}).title || i);
+  const konusStyle = (i) => (i === "konus" ? { backgroundColor: "#000", borderColor: "#000", colour: "#000", borderWidth: 3 } : {});
+  const clauseChoice = { label: "Clause", options: (a) => a.clauses.map((c, k) => [k, c.clause.name || c.definition]) };
+  const applied = (u, i) => num((u.by_index.find((x) => x.index === i) || {}).applied_percent);
+  const lastUprating = (a) => clauseOf(a).upratings[clauseOf(a).upratings.length - 1];
+  const moneyOf = (a, i) => (clauseOf(a).money || []).find((m) => m.index === i);
+  // The index the cards set beside the Konüs index: Laspeyres where computed, else the first.
+  const published = (a) => (a.indices.includes("laspeyres") ? "laspeyres" : a.indices.find((i) => i !== "konus"));
+  const uprating = {
+    id: "uprating",
+    title: "Uprating clauses",
+    intro: "An uprating clause (the measure, rounding, floor, cap and lag) run under each formula index and the "
+      + "Konüs index of a series: each uprating, and what an amount paid under each would come to.",
+    path: "/v1/uprating",
+    operationId: "uprating",
+    csv: { columns: "period,item,price[,quantity]", required: ["period", "item", "price"], read: readPanel },
+    note: "A panel file replaces the prices and quantities and keeps the clauses.",
+    fields: [
+      modelField(),
+      { kind: "formulas", pointer: "/formulas", label: "Formulas", scope: "series" },
+      { pointer: "/amount", label: "Amount paid each period before uprating", kind: "number", optional: true },
+      { pointer: "/series_kind", label: "Series the clauses read", kind: "select", optional: true,
+        options: [["fixed_base", "fixed base"], ["chained", "chained"]] },
+      { pointer: "/konus_standard", label: "Konüs living standard", kind: "select", optional: true,
+        options: [["base", "base"], ["current", "current"], ["midpoint", "midpoint"]] },
+      { pointer: "/base_period", label: "Base period", kind: "select", optional: true,
+        options: (_, body) => (body.periods || []).map((p) => [p, p]) },
+    ],
+    grids: [
+      { title: "Clauses", rows: { pointer: "/clauses", title: "clause", label: (c, r) => c.name || `clause ${r + 1}` },
+        hint: "Measure: twelve_month (month or quarter of the year read), annual_average, or cumulative since a period. "
+          + "Floor and cap in percent, after rounding; lag in periods from the measure to the first payment.",
+        add: { text: "Add a clause", row: () => ({ measure: "twelve_month", period_of_year: 9, lag: 7 }) },
+        columns: [{ title: "name", pointer: "/clauses/{r}/name", kind: "text", keep: true },
+          { title: "measure", pointer: "/clauses/{r}/measure", kind: "select", options: ["twelve_month", "annual_average", "cumulative"], keep: true },
+          { title: "month/quarter", pointer: "/clauses/{r}/period_of_year", keep: true },
+          { title: "since", pointer: "/clauses/{r}/since", kind: "text", keep: true },
+          { title: "decimals", pointer: "/clauses/{r}/rounding/decimals" },
+          { title: "rounding", pointer: "/clauses/{r}/rounding/method", kind: "select", options: ["half_up", "half_even", "down", "up"] },
+          { title: "floor %", pointer: "/clauses/{r}/floor", keep: true },
+          { title: "cap %", pointer: "/clauses/{r}/cap", keep: true },
+          { title: "lag", pointer: "/clauses/{r}/lag", keep: true }] },
+      ...panelGrids,
+    ],
+    results: [
+      { kind: "warning", id: "uprating-caution", text: (a) => `Caution. ${a.caution}` },
+      { kind: "cards", cards: (a) => {
+        const u = lastUprating(a);
+        const i = published(a);
+        const money = moneyOf(a, i);
+        return [
+          { id: "up-konus-applied", label: `Konüs uprating, %, paid from ${u ? u.paid_from : "-"} (${clauseOf(a).clause.name || "clause 1"})`, value: u ? applied(u, "konus") : null, digits: 2 },
+          { id: "up-index-applied", label: `${indexTitle(i)} uprating, %`, value: u ? applied(u, i) : null, digits: 2 },
+          { id: "up-index-difference", label: `paid under ${indexTitle(i)} minus under Konüs, whole series`, value: money ? money.difference_vs_konus_total : null, digits: 2 },
+        ];
+      } },
+      { kind: "chart", id: "uprating-chart", title: "Each uprating under each index (percent applied, after rounding, floor and cap)",
+        choose: clauseChoice, notices: ["reference_period_assumed", "series_kind_assumed", "konus_standard_assumed"],
+        height: (a) => 110 + Math.max(...a.clauses.map((c) => c.upratings.length)) * a.indices.length * 18,
+        text: (a, k) => { const c = clauseOf(a, k); return `${c.definition}${c.not_computed.map((n) => ` Not computed in ${n.measured_in}: ${n.reason}.`).join("")}`; },
+        chart: (a, k) => C.barConfig({ labels: clauseOf(a, k).upratings.map((u) => [`measured ${u.measured_in}`, `paid from ${u.paid_from}`]),
+          datasets: a.indices.map((i) => ({ label: indexTitle(i), data: clauseOf(a, k).upratings.map((u) => applied(u, i)), ...konusStyle(i) })),
+          xTitle: "uprating", yTitle: "uprating applied, percent" }),
+        table: (a, k) => ({ rows: clauseOf(a, k).upratings.flatMap((u) => u.by_index.map((b) => ({ u, b }))), columns: [
+          { title: "paid from", get: (r) => r.u.paid_from }, { title: "index", get: (r) => indexTitle(r.b.index) },
+          { title: "change %", get: (r) => r.b.change_percent, digits: 3 }, { title: "applied %", get: (r) => r.b.applied_percent, digits: 2 },
+          { title: "factor", get: (r) => r.b.factor, digits: 4, model: true }] }) },
+      { kind: "chart", id: "money-chart", title: "Money paid: running total under each index minus under the Konüs index",
+        when: (a) => a.amount !== null, choose: clauseChoice,
+        chart: (a, k) => C.lineConfig({ labels: a.periods, xTitle: "period", zeroAt: 0, yTitle: "cumulative difference, money (0 = as Konüs)",
+          datasets: (clauseOf(a, k).money || []).filter((m) => m.index !== "konus").map((m) => ({ label: indexTitle(m.index), data: m.cumulative_difference_vs_konus })) }),
+        table: (a, k) => ({ rows: clauseOf(a, k).money || [], columns: [{ title: "index", get: (m) => indexTitle(m.index) },
+          { title: "total paid", get: (m) => m.total, digits: 2 }, { title: "minus Konüs", get: (m) => m.difference_vs_konus_total, digits: 2 },
+          ...clauseOf(a, k).money[0].by_year.map((y, j) => ({ title: String(y.year), get: (m) => m.by_year[j].paid, digits: 2 }))] }) },
+    ],
+  };
+
+  // ---- the index as built: a classification tree beside the nested CES Konüs index ---------
+  const nodeAt = (a, t) => a.nodes.map((n) => ({ key: n.path, parent: n.parent === null ? null : n.path.slice(0, n.path.lastIndexOf(" > ")),
+    depth: n.depth, label: n.name, n, t }));
+  const lastT = (a) => a.periods.length - 1;
+  // The request's tree (nested, or a flat list naming parents) as rows, each with its pointer.
+  const treeNodes = (body) => {
+    if (Array.isArray(body.tree)) return body.tree.map((node, k) => ({ node, at: `/tree/${k}`, depth: node.parent ? 1 : 0 }));
+    const walk = (node, at, depth) => [{ node, at, depth }, ...(node.children || []).flatMap((c, k) => walk(c, `${at}/children/${k}`, depth + 1))];
+    return body.tree ? walk(body.tree, "/tree", 0) : [];
+  };
+  const indexTree = {
+    id: "index-tree",
+    title: "Index as built",
+    intro: "The index as a statistical office builds it: elementary aggregates over price quotes, upper levels by "
+      + "Lowe or Young, chain-linked; beside it the Konüs index of a nested CES model on the same tree, and the bias at every node.",
+    path: "/v1/index-tree",
+    operationId: "indexTree",
+    csv: { columns: "quote,aggregate,period,price", required: ["quote", "aggregate", "period", "price"],
+      read(records, body, n) {
+        const periods = [...new Set(records.map((r) => r.period.text))];
+        const quotes = [];
+        for (const r of records) {
+          let q = quotes.find((x) => x.id === r.quote.text);
+          if (!q) { q = { id: r.quote.text, aggregate: r.aggregate.text, prices: periods.map(() => null) }; quotes.push(q); }
+          const t = periods.indexOf(r.period.text);
+          q.prices[t] = r.price.text === "" ? null : n(r.price, `/quotes/${quotes.indexOf(q)}/prices/${t}`);
+        }
+        return Object.assign(body, { periods, quotes });
+      } },
+    note: "A quotes file replaces the periods and quotes and keeps the tree, the links and their weights (edit those in the weights grid or the request JSON).",
+    fields: [
+      { pointer: "/elementary_formula", label: "Elementary aggregates", kind: "select", optional: true,
+        options: [["jevons", "Jevons"], ["carli", "Carli"], ["dutot", "Dutot"]] },
+      { pointer: "/upper_formula", label: "Upper levels", kind: "select", optional: true, options: [["lowe", "Lowe"], ["young", "Young"]] },
+      { pointer: "/sigma_by_level", label: "σ by level (root first), for nodes without their own", kind: "numbers", optional: true },
+      { pointer: "/sigma_fit", label: "Fit σ from the links' weights", kind: "select", optional: true,
+        options: [["by_group", "by group"], ["by_level", "by level"]], hint: "Empty: the σ given. Fitted, the given σ serve as fallbacks." },
+      { pointer: "/sigma_fallback", label: "σ where no fit is possible", kind: "number", optional: true },
+    ],
+    grids: [
+      { title: "Classification: σ and elementary formula by node", rows: { title: "node", list: treeNodes,
+        key: (n) => n.at, label: (n) => `${"· ".repeat(n.depth)}${n.node.name}` },
+        hint: "Groups and subgroups as in the request JSON below (its 'tree'); σ empty: the level's σ above; formula empty: the elementary formula above.",
+        columns: [{ title: "σ", pointer: (n) => `${n.at}/sigma`, keep: true },
+          { title: "formula", pointer: (n) => `${n.at}/formula`, kind: "select", options: ["jevons", "carli", "dutot"], keep: true }] },
+      { title: "Quote prices by period", rows: { pointer: "/quotes", title: "quote" },
+        columnsFrom: { pointer: "/periods", cell: "/quotes/{r}/prices/{c}" }, hint: "An empty cell: not priced that period." },
+      { title: "Weights by link", rows: { pointer: "/links", title: "link", label: (l) => l.period },
+        columnsFrom: { list: (b) => [...new Set((b.links || []).flatMap((l) => Object.keys(l.weights || {})))], cell: "/links/{r}/weights/{col}" } },
+    ],
+    results: [
+      { kind: "cards", cards: (a) => {
+        const root = a.nodes[0];
+        const t = lastT(a);
+        return [
+          { id: "tree-index-last", label: `${root.name}, ${a.periods[t]} (index as built)`, value: root.index[t], digits: 3 },
+          { id: "tree-konus-last", label: "Konüs index, nested CES", value: root.konus ? root.konus[t] : null, digits: 3 },
+          { id: "tree-bias-last", label: "bias, index points", value: root.bias_points ? root.bias_points[t] : null, digits: 3 }];
+      } },
+      { kind: "tree", id: "tree-table", title: (a) => `The tree in ${a.periods[lastT(a)]} (${a.scale.indices})`, nodeTitle: "node",
+        nodes: (a) => nodeAt(a, lastT(a)), notices: ["quotes_not_priced"], columns: [
+          { title: "index", get: (x) => x.n.index[x.t], digits: 3 }, { title: "Konüs", get: (x) => (x.n.konus ? x.n.konus[x.t] : null), digits: 3, model: true },
+          { title: "bias (points)", get: (x) => (x.n.bias_points ? x.n.bias_points[x.t] : null), digits: 3, model: true },
+          { title: "weight", get: (x) => x.n.weights_used[x.n.weights_used.length - 1], digits: 4 },
+          { title: "formula", get: (x) => x.n.formula }, { title: "σ", get: (x) => x.n.sigma, digits: 2 }, { title: "quotes", get: (x) => (x.n.quotes || "") }] },
+      { kind: "chart", id: "tree-bias-chart", title: "Bias at each node (index points, index as built minus Konüs)",
+        choose: { label: "Period", options: (a) => a.periods.map((p, t) => [t, p]), initial: lastT },
+        height: (a) => 80 + a.nodes.length * 26,
+        chart: (a, t) => C.barConfig({ labels: a.nodes.map((n) => `${"· ".repeat(n.depth)}${n.name}`),
+          datasets: [{ label: `bias, index points, ${a.periods[t]}`, data: a.nodes.map((n) => (n.bias_points ? n.bias_points[t] : null)) }],
+          xTitle: "node", yTitle: "bias, index points (0 = no bias)" }) },
+      { kind: "chart", id: "tree-node-chart", title: "A node over time: the index as built and the Konüs index",
+        choose: { label: "Node", options: (a) => a.nodes.map((n, k) => [k, `${"· ".repeat(n.depth)}${n.name}`]) },
+        chart: (a, k) => C.lineConfig({ labels: a.periods, xTitle: "period", yTitle: `index (${a.scale.indices})`, datasets: [
+          { label: `${a.nodes[k].name}: index as built (${a.nodes[k].formula})`, data: a.nodes[k].index },
+          ...(a.nodes[k].konus ? [{ label: "Konüs index, nested CES", colour: "#000", borderWidth: 3, data: a.nodes[k].konus }] : [])] }),
+        table: (a, k) => ({ rows: a.periods.map((p, t) => ({ p, t })), columns: [{ title: "period", get: (r) => r.p },
+          { title: "index", get: (r) => a.nodes[k].index[r.t], digits: 3 }, { title: "Konüs", get: (r) => (a.nodes[k].konus || [])[r.t], digits: 3, model: true },
+          { title: "bias (points)", get: (r) => (a.nodes[k].bias_points || [])[r.t], digits: 3, model: true }] }) },
+      { kind: "chart", id: "tree-sigma-chart", title: "Fitted σ by group, with ±2 standard errors", when: (a) => a.sigma_fit,
+        notices: ["sigma_fitted_over_given", "sigma_not_fitted", "sigma_exact_fit"], height: (a) => 80 + a.sigma_fit.estimates.length * 30,
+        text: (a) => `${a.sigma_fit.equation}. Groups not fitted take the σ in the last column.`,
+        chart: (a) => { const e = a.sigma_fit.estimates; return C.barConfig({ labels: e.map((x) => x.nodes.join(", ")), xTitle: "group", yTitle: "σ (elasticity of substitution)",
+          datasets: [{ label: "estimate ± 2 s.e.", order: 2, data: e.map((x) => (x.sigma === null || x.standard_error === null ? null : [x.sigma - 2 * x.standard_error, x.sigma + 2 * x.standard_error])) },
+            { type: "line", indexAxis: "y", showLine: false, label: "σ the model uses", order: 1, pointStyle: "rectRot", pointRadius: 6,
+              borderColor: "#000", backgroundColor: "#000", data: e.map((x) => x.used[0]) }] }); },
+        table: (a) => ({ rows: a.sigma_fit.estimates, columns: [{ title: "group", get: (x) => x.nodes.join(", ") },
+          { title: "σ fitted", get: (x) => x.sigma, digits: 3 }, { title: "s.e.", get: (x) => x.standard_error, digits: 3 },
+          { title: "obs.", get: (x) => x.observations, digits: 0 }, { title: "used", get: (x) => x.used[0], digits: 3 },
+          { title: "why not fitted", get: (x) => x.reason || "" }] }) },
+      { kind: "text", title: "Links", text: (a) => a.links.map((l) => `Linked in ${l.period} (weights of ${l.weight_reference[0]}`
+        + `${l.weight_reference.length > 1 ? ` to ${l.weight_reference[l.weight_reference.length - 1]}` : ""}): ${l.periods[0]} to ${l.periods[l.periods.length - 1]}.`).join(" ") },
+    ],
+  };
+
+  // ---- uprating on a node of the index tree: the tree's fields, the clauses, the uprating's answer
+  const treeUprating = {
+    id: "tree-uprating",
+    title: "Uprating on the tree",
+    intro: "Uprating clauses read on any node of an index tree: what the index as built, and the nested CES Konüs "
+      + "index on the same tree, would pay.",
+    path: "/v1/uprating/index-tree",
+    operationId: "upratingFromIndexTree",
+    csv: indexTree.csv,
+    note: indexTree.note,
+    fields: [
+      { pointer: "/node", label: "Node whose index the clauses read", kind: "select",
+        options: (_, body) => treeNodes(body).map((n) => [n.node.name, `${"· ".repeat(n.depth)}${n.node.name}`]) },
+      { pointer: "/amount", label: "Amount paid each period before uprating", kind: "number", optional: true },
+      ...indexTree.fields,
+    ],
+    grids: [uprating.grids[0], ...indexTree.grids],
+    results: uprating.results,
+  };
+
+  // ---- revealed preference: what the choices alone say ---------------------------------------
+  const verdict = (ok) => (ok ? "passes" : "FAILS");
+  const revealed = {
+    id: "revealed",
+    title: "Revealed preference",
+    intro: "From observed prices and quantities alone, without a model: whether one utility function can explain "
+      + "the choices (GARP, WARP, SARP), every violation, Afriat's efficiency index, and the bracket on the Konüs index each period.",
+    path: "/v1/revealed-preference",
+    operationId: "revealedPreference",
+    csv: { columns: "period,item,price,quantity", required: ["period", "item", "price", "quantity"],
+      read(records, body, n) {
+        readPanel(records, body, n);
+        if (!body.periods.includes(body.utility_period)) delete body.utility_period;
+        return body;
+      } },
+    fields: [
+      { pointer: "/base_period", label: "Base period", kind: "select", optional: true,
+        options: (_, body) => (body.periods || []).map((p) => [p, p]) },
+      { pointer: "/utility_period", label: "Living standard of period", kind: "select", optional: true,
+        options: (_, body) => (body.periods || []).map((p) => [p, p]) },
+    ],
+    grids: panelGrids,
+    results: [
+      { kind: "cards", cards: (a) => [
+        { id: "rp-garp", label: "GARP", value: verdict(a.consistency.garp) },
+        { id: "rp-warp", label: "WARP", value: verdict(a.consistency.warp) },
+        { id: "rp-sarp", label: "SARP", value: verdict(a.consistency.sarp) },
+        { id: "rp-efficiency", label: "Afriat's efficiency index (1: consistent)", value: a.consistency.efficiency_index },
+        { id: "rp-level", label: "bounds computed at efficiency", value: a.bounds.efficiency_level }] },
+      { kind: "chart", id: "rp-bounds-chart", notices: ["garp_failed", "varian_bounds_only"],
+        title: (a) => `Bracket on the Konüs index from ${a.bounds.base_period}, at the living standard of ${a.bounds.utility_period}`,
+        chart: (a) => boundsChart(a.bounds.rows, a.bounds.base_period) },
+      { kind: "table", id: "rp-bounds-table", title: "Bounds by period (ratios to the base period)", rows: (a) => a.bounds.rows, columns: boundsColumns },
+      { kind: "table", id: "rp-violations", title: "Violations, with the cycle of periods revealing each",
+        when: (a) => a.consistency.violations.length, rows: (a) => a.consistency.violations, columns: [
+          { title: "axiom", get: (v) => v.axiom }, { title: "first", get: (v) => v.first }, { title: "second", get: (v) => v.second },
+          { title: "cycle", get: (v) => v.periods.join(" → ") }] },
+      { kind: "text", when: (a) => !a.consistency.violations.length, text: () => "No violation of GARP, WARP or SARP: the choices are consistent with one utility function." },
+      { kind: "text", title: "Method", text: (a) => a.bounds.method },
+    ],
+  };
+
+  // ---- sensitivity: the Konüs index and each bias along a grid and across models -------------
+  const gridRows = (a) => a.grid.points.map((p) => ({ label: String(p.value), x: p.value, ok: true, answer: window.dualcost.asComparison(p) }));
+  const modelLabel = (p, k) => `${k + 1}: ${p.family}${p.model_parameters && typeof p.model_parameters.sigma === "number" ? ` σ ${p.model_parameters.sigma}` : ""}`;
+  // The band's bias measures of the weighted formulas (the registry says which).
+  const bandBias = (a) => {
+    const keep = new Set(weighted(a.models[0]).map((f) => `${f.formula}_bias_points`));
+    return a.band.filter((r) => keep.has(r.measure));
+  };
+  const sensitivity = {
+    id: "sensitivity",
+    title: "Sensitivity",
+    intro: "One basket compared under a set of models and along a grid of one model's parameter: how far the Konüs "
+      + "index and each formula's bias depend on the model chosen.",
+    path: "/v1/sensitivity",
+    operationId: "sensitivity",
+    csv: { ...basketCsv, read: readBasket },
+    note: "A basket file keeps the models: their parameters keyed by item must name the file's items.",
+    fields: [
+      { pointer: "/models", label: "Models compared (JSON list: family and parameters, as in a comparison's model)", kind: "json", rows: 4 },
+      { pointer: "/grid/model", label: "Grid: model number (0 = first)", kind: "number", optional: true, prune: true },
+      { pointer: "/grid/parameter", label: "Grid: parameter (sigma, frisch, gamma_scale)", kind: "text", optional: true, prune: true },
+      { pointer: "/grid/group", label: "Grid: nested CES group", kind: "text", optional: true, prune: true },
+      { pointer: "/grid/values", label: "Grid: values (separated by commas)", kind: "numbers", optional: true, prune: true },
+      { kind: "formulas", pointer: "/formulas", label: "Formulas", scope: "comparison" },
+      { pointer: "/base/expenditure", label: "Base income m0 (with shares)", kind: "number", optional: true },
+    ],
+    grids: [basketGrid],
+    validity: (a) => {
+      const bad = [...a.models, ...(a.grid ? a.grid.points : [])].filter((p) => !p.validity.regular);
+      return bad.length ? { title: "Some models or grid points are outside their regular region: their Konüs figures are not results and are left out of the ranges.",
+        reasons: bad.map((p) => `${p.family}${p.value === null ? "" : ` at ${p.value}`}: ${p.validity.reasons.map((r) => r.message).join("; ")}`) } : null;
+    },
+    results: [
+      { kind: "cards", cards: (a) => [
+        { id: "sens-band-low", label: "Konüs index (base standard) across the models: lowest", value: bandOf(a.band, "konus_base").low },
+        { id: "sens-band-high", label: "highest", value: bandOf(a.band, "konus_base").high },
+        ...(a.grid ? [{ id: "sens-grid-low", label: `along the grid of ${a.grid.parameter}${a.grid.group ? ` (${a.grid.group})` : ""}: lowest`, value: bandOf(a.grid.range, "konus_base").low },
+          { id: "sens-grid-high", label: "highest", value: bandOf(a.grid.range, "konus_base").high }] : [])] },
+      { kind: "chart", id: "sens-grid-chart", when: (a) => a.grid,
+        title: (a) => `Along the grid: ${a.grid.family} ${a.grid.parameter}${a.grid.group ? ` of '${a.grid.group}'` : ""}`,
+        chart: (a) => sweepChart(gridRows(a), `${a.grid.parameter}${a.grid.group ? ` of ${a.grid.group}` : ""}`),
+        table: (a) => ({ rows: a.grid.points, columns: [{ title: a.grid.parameter, get: (p) => String(p.value) },
+          { title: "Konüs (base)", get: (p) => p.konus.base, model: true },
+          ...a.grid.points[0].formulas.slice(0, 6).map((f) => ({ title: `${f.title} bias`, digits: 3, model: true,
+            get: (p) => (p.formulas.find((x) => x.formula === f.formula) || {}).bias_points }))] }) },
+      { kind: "chart", id: "sens-band-chart", title: "The band across the models: each formula's bias, lowest to highest (index points)",
+        height: (a) => 90 + bandBias(a).length * 30,
+        text: (a) => (bandBias(a).length < a.band.filter((r) => r.measure.endsWith("_bias_points")).length
+          ? "Unweighted formulas (Carli, Jevons, Dutot) are in the ranges table below: their gaps, of another order, would flatten this chart." : ""),
+        chart: (a) => {
+          const rows = bandBias(a);
+          return C.barConfig({ labels: rows.map((r) => titleOf(a.models[0], r.measure.replace(/_bias_points$/, ""))),
+            datasets: [{ label: `bias across ${a.models.length} models, lowest to highest`, data: rows.map((r) => (r.low === null ? null : [r.low, r.high])) },
+              ...a.models.map((m, k) => ({ type: "line", indexAxis: "y", showLine: false, label: modelLabel(m, k), pointRadius: 5,
+                pointStyle: ["circle", "rectRot", "triangle", "rect"][k % 4], borderColor: "#000", backgroundColor: C.PALETTE[(k + 1) % 8],
+                data: rows.map((r) => num((m.formulas.find((f) => `${f.formula}_bias_points` === r.measure) || {}).bias_points)) }))],
+            xTitle: "formula", yTitle: "bias, index points on base 100 (0 = no bias)" });
+        } },
+      { kind: "table", id: "sens-models", title: "Each model of the set", rows: (a) => a.models.map((m, k) => ({ m, k })), columns: [
+        { title: "model", get: (r) => modelLabel(r.m, r.k) }, { title: "Konüs (base)", get: (r) => r.m.konus.base, model: true },
+        { title: "Laspeyres bias (points)", get: (r) => window.dualcost.asComparison(r.m).laspeyres_gap_points, digits: 3, model: true },
+        { title: "regular", get: (r) => (r.m.validity.regular ? "yes" : "NO") }] },
+      { kind: "table", id: "sens-band", title: "Ranges across the models", rows: (a) => a.band, columns: [
+        { title: "measure", get: (r) => r.measure }, { title: "low", get: (r) => r.low }, { title: "high", get: (r) => r.high },
+        { title: "models", get: (r) => r.count, digits: 0 }, { title: "left out", get: (r) => r.left_out, digits: 0 }] },
+    ],
+  };
+
+  // ---- several families fitted to the same budgets: the band across them, each with its interval
+  const famName = (a, k) => a.families[k].comparison.family;
+  const fittedFamilies = {
+    id: "fitted-families",
+    title: "Fitted families",
+    intro: "Several preference families fitted to the same budget data, each then comparing the same two price situations: "
+      + "the band across the families beside each family's interval from its estimate's uncertainty.",
+    path: "/v1/fitted-sensitivity",
+    operationId: "fittedSensitivity",
+    action: "Fit and compare",
+    csv: fits.csv,
+    fields: [
+      { pointer: "/families", label: "Families fitted (JSON list: family and its fit options)", kind: "json", rows: 2 },
+      { pointer: "/comparison/base/expenditure", label: "Base income for the comparison", kind: "number", optional: true },
+      { pointer: "/uncertainty/draws", label: "Draws for the intervals", kind: "number", optional: true },
+    ],
+    grids: fitted.grids,
+    results: [
+      { kind: "cards", cards: (a) => [
+        { id: "ff-konus-low", label: `Konüs index (base standard) across ${a.families.length} fitted families: lowest`, value: bandOf(a.band, "konus_base").low },
+        { id: "ff-konus-high", label: "highest", value: bandOf(a.band, "konus_base").high },
+        { id: "ff-laspeyres-low", label: "Laspeyres bias across them, index points: lowest", value: bandOf(a.band, "laspeyres_bias_points").low, digits: 3 },
+        { id: "ff-laspeyres-high", label: "highest", value: bandOf(a.band, "laspeyres_bias_points").high, digits: 3 }] },
+      { kind: "chart", id: "ff-band-chart", title: "Each family's interval and the band across the families",
+        choose: { label: "Measure", options: (a) => a.band.map((r) => [r.measure, r.measure.replace(/_bias_points$/, " bias, index points").replace(/^konus_/, "Konüs index, ")]) },
+        height: (a) => 110 + a.families.length * 40,
+        chart: (a, m) => {
+          const r = bandOf(a.band, m);
+          return loose(C.barConfig({ labels: [...a.families.map((_, k) => famName(a, k)), "band across the families"],
+            xTitle: "family", yTitle: m.endsWith("_bias_points") ? "bias, index points on base 100" : "Konüs index (ratio, 1 = no change)", zeroAt: m.endsWith("_bias_points") ? 0 : null,
+            datasets: [{ label: `${Math.round(100 * a.families[0].intervals.confidence_level)}% interval; the band: lowest to highest estimate`, order: 2,
+              data: [...r.intervals.map((i) => (i.low === null ? null : [i.low, i.high])), [r.low, r.high]],
+              backgroundColor: [...r.intervals.map(() => C.PALETTE[0]), "rgba(0,0,0,0.3)"] },
+            { type: "line", indexAxis: "y", showLine: false, label: "estimate", order: 1, pointStyle: "rectRot", pointRadius: 6,
+              borderColor: "#000", backgroundColor: "#000", data: [...r.intervals.map((i) => i.estimate), null] }] }));
+        },
+        table: (a, m) => ({ rows: bandOf(a.band, m).intervals, columns: [{ title: "family", get: (i) => famName(a, i.family) },
+          { title: "estimate", get: (i) => i.estimate, model: true }, { title: "low", get: (i) => i.low }, { title: "high", get: (i) => i.high }] }) },
+      { kind: "table", id: "ff-families", title: "Each family's fit", rows: (a) => a.families, columns: [
+        { title: "family", get: (f) => f.comparison.family }, { title: "observations", get: (f) => f.fit.fit.observations, digits: 0 },
+        { title: "converged", get: (f) => (f.fit.fit.converged ? "yes" : "NO") },
+        { title: "Konüs (base)", get: (f) => f.comparison.konus.base, model: true },
+        { title: "Laspeyres bias (points)", get: (f) => f.comparison.laspeyres_gap_points, digits: 3, model: true },
+        { title: "draws failed", get: (f) => f.intervals.draws_failed, digits: 0 }] },
+    ],
+  };
+
+  window.dualcostViews = [comparison, series, uprating, indexTree, treeUprating, households, fits, fitted, fittedFamilies, revealed, sensitivity, audits];
   window.dualcost.boot(window.dualcostViews).catch((e) => {
     const box = document.getElementById("error");
     box.textContent = String(e);

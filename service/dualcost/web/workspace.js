@@ -158,19 +158,31 @@ function fieldInput(field, body, prefix) {
   const value = getAt(body, field.pointer);
   const id = `${prefix}-${field.pointer.replace(/[^a-z0-9]/gi, "_")}`;
   let input;
-  if (field.kind === "select") {
+  if (field.kind === "checkbox") {
+    input = el("input", { id, type: "checkbox", checked: value === true });
+    const wrap = el("div", { class: "field check" }, el("label", { class: "check", for: id }, input, ` ${field.label}`),
+      field.hint ? el("small", { text: field.hint }) : null);
+    place({ pointer: field.pointer, kind: "checkbox", optional: true, input, where: field.label });
+    return wrap;
+  }
+  if (field.kind === "json") {
+    input = el("textarea", { id, rows: field.rows || 4, spellcheck: "false" });
+    input.value = value === undefined ? "" : JSON.stringify(value);
+  } else if (field.kind === "select") {
     input = el("select", { id });
     const options = typeof field.options === "function" ? field.options(state.catalogue, body) : field.options;
     if (field.optional) input.append(el("option", { value: "", text: field.empty || "(service default)" }));
     for (const [v, label] of options) input.append(el("option", { value: v, text: label, selected: v === value }));
   } else {
     input = el("input", { id, type: "text", inputmode: field.kind === "number" ? "decimal" : null,
-      value: value === undefined || value === null ? "" : String(value), spellcheck: "false" });
+      value: value === undefined || value === null ? "" : (Array.isArray(value) ? value.join(", ") : String(value)),
+      spellcheck: "false" });
   }
   const label = el("label", { for: id, text: field.label });
-  const wrap = el("div", { class: "field" }, label, input,
+  const wrap = el("div", { class: field.kind === "json" ? "field wide" : "field" }, label, input,
     field.hint ? el("small", { text: field.hint }) : null);
-  place({ pointer: field.pointer, kind: field.kind, optional: field.optional, input, where: field.label });
+  place({ pointer: field.pointer, kind: field.kind, optional: field.optional, input, where: field.label,
+    pruneParent: field.prune });
   return wrap;
 }
 
@@ -192,38 +204,54 @@ function formulasField(field, body) {
 
 // A grid: rows from a list in the body, columns fixed or from another list; each cell a pointer.
 function gridBlock(grid, body) {
-  const rows = getAt(body, grid.rows.pointer) || [];
+  // Rows from a list in the request, or from the declaration's own reading of it (a tree's nodes).
+  const rows = (grid.rows.list ? grid.rows.list(body) : getAt(body, grid.rows.pointer)) || [];
   const rowKey = grid.rows.key || ((x) => (typeof x === "object" ? x.id : x));
   const rowLabel = grid.rows.label || ((x) => (typeof x === "object" ? x.label || x.id : x));
   let columns = grid.columns || [];
   if (grid.columnsFrom) {
-    const list = getAt(body, grid.columnsFrom.pointer) || [];
+    const list = (grid.columnsFrom.list ? grid.columnsFrom.list(body) : getAt(body, grid.columnsFrom.pointer)) || [];
     columns = columns.concat(list.map((x, c) => ({ title: typeof x === "object" ? x.label || x.id : x,
       key: typeof x === "object" ? x.id : x, c, pointer: grid.columnsFrom.cell })));
   }
   const head = el("tr", {}, el("th", { scope: "col", text: grid.rows.title }),
-    ...columns.map((c) => el("th", { scope: "col", text: c.title })));
+    ...columns.map((c) => el("th", { scope: "col", text: c.title })), grid.add ? el("th", { scope: "col", text: "" }) : null);
   const tbody = el("tbody");
   rows.forEach((row, r) => {
     const key = rowKey(row, r);
     const tr = el("tr", {}, el("th", { scope: "row", text: rowLabel(row, r) }));
     for (const col of columns) {
-      const pointer = cellPointer(col.pointer, { row: key, r, col: col.key, c: col.c }, body);
+      const pointer = typeof col.pointer === "function" ? col.pointer(row, r)
+        : cellPointer(col.pointer, { row: key, r, col: col.key, c: col.c }, body);
       const value = getAt(body, pointer);
-      const input = el("input", { type: "text", inputmode: col.kind === "text" ? null : "decimal",
-        value: value === undefined || value === null ? "" : String(value),
-        "aria-label": `${grid.title}: ${rowLabel(row, r)}, ${col.title}`, size: 7 });
+      const aria = `${grid.title}: ${rowLabel(row, r)}, ${col.title}`;
+      let input;
+      if (col.kind === "select") {
+        input = el("select", { "aria-label": aria }, el("option", { value: "", text: "(none)" }),
+          ...col.options.map((o) => el("option", { value: o, text: o, selected: o === value })));
+      } else {
+        input = el("input", { type: "text", inputmode: col.kind === "text" ? null : "decimal",
+          value: value === undefined || value === null ? "" : String(value), "aria-label": aria, size: 7 });
+      }
       const rowWhere = `${grid.title}, row ${r + 1} (${rowLabel(row, r)})`;
-      place({ pointer, kind: col.kind || "number", optional: true, input, pruneParent: !col.keep,
-        rowWhere, where: `${rowWhere}, column '${col.title}'` });
+      place({ pointer, kind: col.kind === "select" ? "text" : col.kind || "number", optional: true, input,
+        pruneParent: !col.keep, rowWhere, where: `${rowWhere}, column '${col.title}'` });
       tr.append(el("td", {}, input));
+    }
+    if (grid.add) {
+      tr.append(el("td", {}, el("button", { type: "button", text: "remove", "aria-label": `remove ${rowLabel(row, r)}`,
+        onclick: () => { commit(); getAt(state.body, grid.rows.pointer).splice(r, 1); renderForm(); } })));
     }
     tbody.append(tr);
   });
+  // A grid of records (clauses) can gain a row, started from the declaration's template.
+  const add = grid.add ? el("button", { type: "button", text: grid.add.text, onclick: () => {
+    commit(); const list = getAt(state.body, grid.rows.pointer) || [];
+    list.push(grid.add.row(list)); setAt(state.body, grid.rows.pointer, list); renderForm(); } }) : null;
   return el("section", { class: "grid" }, el("h3", { text: grid.title }),
     grid.hint ? el("p", { class: "hint", text: grid.hint }) : null,
     el("div", { class: "scroll", tabindex: "0", role: "region", "aria-label": grid.title },
-      el("table", {}, el("thead", {}, head), tbody)));
+      el("table", {}, el("thead", {}, head), tbody)), add);
 }
 
 // The nested-CES tree: each group's name and σ, its items and subgroups; groups can be added or
@@ -401,9 +429,14 @@ function readPlace(p, body) {
     const ticked = p.inputs.filter((i) => i.checked).map((i) => i.value);
     return ticked.length ? ticked : undefined;
   }
+  if (p.kind === "checkbox") return p.input.checked ? true : undefined;
   const text = p.input.value.trim();
   if (text === "" && p.optional) return undefined;
   if (p.kind === "number") return readNumber(text, p.where);
+  // A list of numbers separated by commas (a decimal comma cannot be told apart here: say so).
+  if (p.kind === "numbers") {
+    return text.split(/\s*,\s*|\s+/).filter(Boolean).map((t, k) => readNumber(t, `${p.where}, number ${k + 1}`));
+  }
   if (p.kind === "json") {
     try { return JSON.parse(text); } catch (e) { throw new Located(`${p.where}: not valid JSON (${e.message}).`); }
   }
@@ -532,27 +565,58 @@ const cellText = (v, c) => (typeof v === "number" ? fmt(v, c.digits ?? 4)
 
 // One drawer per kind of result block; each fills its section and may return a function to
 // run once the section is on the page (a chart needs its size). A new kind is one more entry.
+function tableOf(id, title, cols, rows, flag) {
+  const head = el("thead", {}, el("tr", {}, ...cols.map((c) => el("th", { scope: "col", text: c.title }))));
+  const body = el("tbody", {}, ...rows.map((r) => el("tr",
+    { class: flag && flag(r) ? "flagged" : null }, ...cols.map((c) => el("td", { text: cellText(c.get(r), c) })))));
+  return el("div", { class: "scroll", tabindex: "0", role: "region", "aria-label": title },
+    el("table", { id }, head, body));
+}
+
+// A block may let the reader choose what it shows (a clause, a period, a node, a change
+// measure): `choose: {label, options(answer) -> [[value, text]]}`; its chart(answer, choice)
+// and table(answer, choice) -> {columns, rows} are drawn again on each choice.
+function chooser(section, block, answer, redraw) {
+  if (!block.choose) return null;
+  const options = block.choose.options(answer);
+  const id = `${block.id}-choice`;
+  const select = el("select", { id }, ...options.map(([v, t], k) => el("option", { value: String(k), text: t,
+    selected: block.choose.initial ? block.choose.initial(answer) === v : k === 0 })));
+  select.addEventListener("change", () => redraw(options[Number(select.value)][0]));
+  section.append(el("div", { class: "field" }, el("label", { for: id, text: block.choose.label }), select));
+  return options.length ? options[Number(select.value)][0] : null;
+}
+
+// One drawer per kind of result block; each fills its section and may return a function to
+// run once the section is on the page (a chart needs its size). A new kind is one more entry.
 const BLOCKS = {
   cards(section, block, answer) {
     section.append(el("div", { class: "cards" }, ...block.cards(answer).map((c) =>
       el("div", { class: "card" }, el("span", { text: c.label }), el("strong", { id: c.id,
-        class: c.withheld ? "withheld" : null, text: c.withheld ? WITHHELD : fmt(c.value, c.digits ?? 4) })))));
+        class: c.withheld ? "withheld" : null,
+        text: c.withheld ? WITHHELD : typeof c.value === "string" ? c.value : fmt(c.value, c.digits ?? 4) })))));
   },
   chart(section, block, answer, title) {
     const canvas = el("canvas", { role: "img", "aria-label": title });
-    section.append(el("div", { class: "chart", style: `height:${block.height ? block.height(answer) : 320}px` }, canvas));
+    const table = el("div", { class: "chosen-table" });
+    const note = el("p", { class: "hint" });
+    const draw = (choice) => {
+      window.dualcostCharts.drawChart(canvas, block.chart(answer, choice));
+      note.textContent = block.text ? block.text(answer, choice) : "";
+      note.hidden = !note.textContent;
+      if (block.table) {
+        const t = block.table(answer, choice);
+        table.replaceChildren(tableOf(`${block.id}-table`, title, t.columns, t.rows));
+      }
+    };
+    const first = chooser(section, block, answer, draw);
+    section.append(el("div", { class: "chart", style: `height:${block.height ? block.height(answer) : 320}px` }, canvas), note, table);
     section.dataset.chart = block.id;
-    const note = block.text ? block.text(answer) : "";
-    if (note) section.append(el("p", { class: "hint", text: note }));
-    return () => window.dualcostCharts.drawChart(canvas, block.chart(answer));
+    return () => draw(first);
   },
   table(section, block, answer, title) {
     const cols = typeof block.columns === "function" ? block.columns(answer) : block.columns;
-    const head = el("thead", {}, el("tr", {}, ...cols.map((c) => el("th", { scope: "col", text: c.title }))));
-    const body = el("tbody", {}, ...block.rows(answer).map((r) => el("tr",
-      { class: block.flag && block.flag(r) ? "flagged" : null }, ...cols.map((c) => el("td", { text: cellText(c.get(r), c) })))));
-    section.append(el("div", { class: "scroll", tabindex: "0", role: "region", "aria-label": title },
-      el("table", { id: block.id }, head, body)));
+    section.append(tableOf(block.id, title, cols, block.rows(answer), block.flag));
   },
   text(section, block, answer) {
     section.append(el("p", { text: block.text(answer) }));
@@ -561,6 +625,45 @@ const BLOCKS = {
   // and may return a function to run once the section is on the page.
   custom(section, block, answer) {
     return block.render(section, answer);
+  },
+  // A prominent box (the indexation caution): `text(answer)`.
+  warning(section, block, answer) {
+    section.append(el("p", { class: "caution", role: "note", id: block.id }, el("strong", { text: block.text(answer) })));
+  },
+  // A tree as a table whose groups fold: `nodes(answer)` in depth-first order, each with `key`,
+  // `parent` (a key or null), `depth`, `label`; `columns` read each node.
+  tree(section, block, answer, title) {
+    const nodes = block.nodes(answer);
+    const cols = block.columns;
+    const hasChildren = new Set(nodes.map((n) => n.parent).filter((k) => k !== null));
+    const rows = new Map();
+    const open = new Map(nodes.map((n) => [n.key, n.depth < (block.openDepth ?? 1)]));
+    const shown = (n) => n.parent === null || (open.get(n.parent) && shown(nodes.find((m) => m.key === n.parent)));
+    const refresh = () => nodes.forEach((n) => { rows.get(n.key).hidden = !shown(n); });
+    const body = el("tbody", {}, ...nodes.map((n) => {
+      const toggle = hasChildren.has(n.key) ? el("button", { type: "button", class: "fold",
+        "aria-expanded": String(open.get(n.key)), "aria-label": `${open.get(n.key) ? "fold" : "unfold"} ${n.label}`,
+        text: open.get(n.key) ? "▾" : "▸" }) : el("span", { class: "fold-space" });
+      if (toggle.tagName === "BUTTON") {
+        toggle.addEventListener("click", () => {
+          open.set(n.key, !open.get(n.key));
+          toggle.setAttribute("aria-expanded", String(open.get(n.key)));
+          toggle.setAttribute("aria-label", `${open.get(n.key) ? "fold" : "unfold"} ${n.label}`);
+          toggle.textContent = open.get(n.key) ? "▾" : "▸";
+          refresh();
+        });
+      }
+      const tr = el("tr", { "data-node": n.key }, el("th", { scope: "row", class: "tree-label",
+        style: `padding-left:${0.3 + 0.9 * n.depth}rem` }, toggle, ` ${n.label}`),
+        ...cols.map((c) => el("td", { text: cellText(c.get(n), c) })));
+      rows.set(n.key, tr);
+      return tr;
+    }));
+    refresh();
+    const head = el("thead", {}, el("tr", {}, el("th", { scope: "col", text: block.nodeTitle || "node" }),
+      ...cols.map((c) => el("th", { scope: "col", text: c.title }))));
+    section.append(el("div", { class: "scroll", tabindex: "0", role: "region", "aria-label": title },
+      el("table", { id: block.id, class: "tree-table" }, head, body)));
   },
 };
 
@@ -663,6 +766,18 @@ async function uploadCsv(input) {
 // Computed by the service: today by one comparison per point (SWEEP.byComparisons); a sweep
 // operation can take its place by providing the same function (body, points) -> rows.
 const SWEEP = {
+  // One request to POST /v1/sensitivity with every point as a model of its set: the answer's
+  // models come back in the order sent, each a comparison's figures.
+  async bySweep(path, body, points) {
+    const keep = ["items", "base", "current", "formulas", "normalise_shares", "share_unit"];
+    const request = Object.fromEntries(keep.filter((k) => body[k] !== undefined).map((k) => [k, body[k]]));
+    request.models = points.map((pt) => pt.model);
+    const r = await fetch("/v1/sensitivity", { method: "POST", headers: headers("application/json", true),
+      body: JSON.stringify(request) });
+    const a = await r.json();
+    if (!r.ok) return points.map((pt) => ({ label: pt.label, x: pt.x, ok: false, answer: a }));
+    return points.map((pt, k) => ({ label: pt.label, x: pt.x, ok: true, answer: asComparison(a.models[k]) }));
+  },
   async byComparisons(path, body, points) {
     const rows = [];
     for (const pt of points) {
@@ -676,6 +791,12 @@ const SWEEP = {
     return rows;
   },
 };
+
+// A point of a sweep read as a comparison's answer (the figures the sensitivity control shows).
+function asComparison(point) {
+  const lasp = point.formulas.find((f) => f.formula === "laspeyres");
+  return { ...point, laspeyres_gap_points: lasp ? lasp.bias_points : null };
+}
 
 function sensitivityBlock(spec) {
   const kind = el("select", { id: "sweep-kind" },
@@ -746,4 +867,4 @@ async function boot(views) {
 // A plain line under the form about something the page did (not an error).
 const say = (text) => { $("status").textContent = text; };
 
-window.dualcost = { boot, fmt, el, getAt, WITHHELD, state, say, headers, showError, showProblem, showView, openWith, Located };
+window.dualcost = { boot, fmt, el, getAt, WITHHELD, state, say, headers, showError, showProblem, showView, openWith, Located, asComparison };
