@@ -157,8 +157,8 @@ def of_body(model: BaseModel) -> Provenance:
 
 
 def _digest(value: Any) -> str:
-    try:
-        return digest_of(value)
+    try:  # model_dump(mode="json") gives JSON's own types only
+        return digest_of(value, json_values=True)
     except (ValueError, OverflowError) as exc:  # only what validation let through: model extras
         raise RequestProblem.at("", f"the request has no canonical form: {exc}") from None
 
