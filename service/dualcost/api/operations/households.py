@@ -14,6 +14,7 @@ household-period's model figures are null (empty CSV cells), ``model_regular`` i
 
 from __future__ import annotations
 
+import io
 from collections.abc import Iterable, Iterator, Sequence
 from dataclasses import dataclass
 from typing import Any
@@ -305,3 +306,138 @@ def csv_pieces(outcome: Outcome, rows: int = 4096) -> Iterator[str]:
     for start in range(0, res.rows.size, rows):
         yield csv_rows(whole.block(slice(start, start + rows)), job, outcome.labels,
                        with_income, outcome.axis.ids)
+
+
+# -- the rows of a job's answer, as CSV or Parquet ------------------------------------------------
+
+
+class CsvAnswer:
+    """A job's answer as CSV text, piece by piece; an error after the header ends it with an
+    error record (``#dualcost-error`` and the reason), so that a cut table says it is cut."""
+
+    media = "csv"
+
+    def __init__(self, job: HouseholdJob, labels: Sequence[str], with_income: bool,
+                 items: Sequence[str]) -> None:
+        self.job, self.labels, self.with_income, self.items = job, labels, with_income, items
+
+    def head(self) -> str:
+        return csv_line(csv_header(self.job, self.with_income, records=True))
+
+    def rows(self, result: ChunkResult) -> str:
+        return csv_rows(result, self.job, self.labels, self.with_income, self.items,
+                        records=True)
+
+    def end(self) -> str:
+        return ""
+
+    def error(self, message: str) -> str:
+        return csv_line([ERROR_KEY, message])
+
+
+#: The first cell of the record that ends a CSV answer cut by an error.
+ERROR_KEY = "#dualcost-error"
+
+
+class ParquetAnswer:
+    """A job's answer as a Parquet file, one row group per chunk, its bytes given as each row
+    group is written; the provenance and the caution in the file's key-value metadata. An
+    error after the first row group closes the file with ``dualcost-error`` in its metadata
+    (the file stays readable and says that it is cut)."""
+
+    media = "parquet"
+
+    def __init__(self, job: HouseholdJob, labels: Sequence[str], with_income: bool,
+                 items: Sequence[str], metadata: dict[str, str]) -> None:
+        import pyarrow as pa
+        import pyarrow.parquet as pq
+
+        self.job, self.labels, self.with_income, self.items = job, labels, with_income, items
+        values = job.output_columns(with_income)
+        self.schema = pa.schema(
+            [("household", pa.string()), ("row", pa.int64()), ("record", pa.int64()),
+             ("period", pa.string()), ("weight", pa.float64()), ("expenditure", pa.float64()),
+             ("model_regular", pa.bool_()), ("irregular_reasons", pa.string()),
+             ("irregular_items", pa.string()), *((name, pa.float64()) for name in values)],
+            metadata=metadata)
+        self.sink = _Pieces()
+        self.writer = pq.ParquetWriter(pa.PythonFile(self.sink, mode="w"), self.schema)
+
+    def _drain(self) -> bytes:
+        return self.sink.take()
+
+    def head(self) -> bytes:
+        return b""
+
+    def rows(self, result: ChunkResult) -> bytes:
+        self.writer.write_table(arrow_table(result, self.job, self.labels, self.with_income,
+                                            self.items, self.schema))
+        return self._drain()
+
+    def end(self) -> bytes:
+        self.writer.close()
+        return self._drain()
+
+    def error(self, message: str) -> bytes:
+        self.writer.add_key_value_metadata({"dualcost-error": message})
+        return self.end()
+
+
+class _Pieces(io.RawIOBase):
+    """A write-only file that keeps what is written until it is taken (so that a streamed
+    file is never held whole)."""
+
+    def __init__(self) -> None:
+        super().__init__()
+        self.pieces: list[bytes] = []
+        self.position = 0
+
+    def writable(self) -> bool:
+        return True
+
+    def write(self, data: Any) -> int:
+        piece = bytes(data)
+        self.pieces.append(piece)
+        self.position += len(piece)
+        return len(piece)
+
+    def tell(self) -> int:
+        return self.position
+
+    def take(self) -> bytes:
+        out, self.pieces = b"".join(self.pieces), []
+        return out
+
+
+def arrow_table(result: ChunkResult, job: HouseholdJob, labels: Sequence[str],
+                with_income: bool, items: Sequence[str], schema: Any) -> Any:
+    """One chunk's rows (household by household, period by period, as the CSV answer) as an
+    Arrow table, written from the arrays: a figure withheld or left out (NaN) is null."""
+    import pyarrow as pa
+
+    n, periods = result.size, len(labels)
+    house = np.repeat(np.arange(n), periods)
+    period = np.tile(np.arange(periods), n)
+    flags = result.irregular_or_zeros(periods)[period, house]
+    reasons: list[str | None] = [None] * flags.size
+    named: list[str | None] = [None] * flags.size
+    for k in map(int, np.flatnonzero(flags)):
+        t, j = int(period[k]), int(house[k])
+        reasons[k] = ";".join(reasons_of(int(flags[k])))
+        named[k] = ";".join(items[i] for i in result.irregular_items.get((t, j), ()))
+    ids = None if result.ids is None else [result.ids[j] for j in house.tolist()]
+    income = (result.expenditure[house] if result.expenditure is not None and with_income
+              else np.full(house.size, np.nan))
+    columns = [pa.array(ids, type=pa.string()) if ids is not None else
+               pa.nulls(house.size, pa.string()),
+               pa.array(result.rows[house]),
+               pa.array(result.records[house] if result.records is not None else
+                        result.rows[house] + 1),
+               pa.DictionaryArray.from_arrays(pa.array(period.astype(np.int32)),
+                                              pa.array(list(labels))).cast(pa.string()),
+               pa.array(result.weights[house]), pa.array(income, from_pandas=True),
+               pa.array(flags == 0), pa.array(reasons, type=pa.string()),
+               pa.array(named, type=pa.string())]
+    for name in job.output_columns(with_income):
+        columns.append(pa.array(result.values[name][period, house], from_pandas=True))
+    return pa.Table.from_arrays(columns, schema=schema)
