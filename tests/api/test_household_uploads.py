@@ -12,6 +12,7 @@ from __future__ import annotations
 
 import copy
 import csv
+import dataclasses
 import io
 from typing import Any
 
@@ -271,13 +272,13 @@ def test_the_scan_keeps_uploads_pyarrow_would_read_otherwise() -> None:
     """Quotes, blank lines, runs of zeros and exponents below -299 leave the upload to the
     reference reader; a pattern split between two pieces of the upload is still seen."""
     for pieces in ([b'a,b\n"x",1\n'], [b"a,b\n1,2\n\n3,4\n"], [b"a\n1e-3", b"00\n"],
-                   [b"a\n0.00000", b"000001\n"], [b"a\n1\r\n", b"\r\n2\n"]):
+                   [b"a\n0.0000000000", b"00000000001e-299\n"], [b"a\n1\r\n", b"\r\n2\n"]):
         scan = columnar.UploadScan()
         for piece in pieces:
             scan.feed(piece)
         assert not scan.columnar, pieces
     scan = columnar.UploadScan()
-    scan.feed(b"a,b\n1e-5,0.25\n")
+    scan.feed(b"a,b\n1e-5,0.25\n0.004500000000000001,1000000000000.5\n")
     assert scan.columnar
 
 
@@ -310,3 +311,63 @@ def test_an_error_after_the_answer_began_ends_it_with_an_error_record(
         assert table.num_rows == 256
         meta = file_metadata(r.content)
         assert "#row=301" in meta["dualcost-error"]
+
+
+def _rows_by_cell(result: Any, job: Any, labels: list[str], items: list[str]) -> str:
+    """The CSV rows as the csv module writes them cell by cell (the earlier writer)."""
+    from dualcost.api.render import csv_lines
+    from dualcost.core.households import reasons_of
+
+    names = job.output_columns(True)
+    cols = [result.values[n].tolist() for n in names]
+    flags = result.irregular_or_zeros(len(labels)).tolist()
+    named = {key: [items[i] for i in at] for key, at in result.irregular_items.items()}
+    out = []
+    for j, row in enumerate(result.rows.tolist()):
+        hid = None if result.ids is None else result.ids[j]
+        for t, label in enumerate(labels):
+            flag = flags[t][j]
+            why = ("true", "", "") if not flag else (
+                "false", ";".join(reasons_of(flag)), ";".join(named.get((t, j), ())))
+            out.append([hid or "", row, int(result.records[j]), label,
+                        float(result.weights[j]), float(result.expenditure[j]), *why,
+                        *(c[t][j] for c in cols)])
+    return csv_lines(out)
+
+
+def test_the_column_wise_csv_writer_writes_what_the_csv_module_writes() -> None:
+    """Two periods, ids with a comma, a quote and none, weights from 1.5e-5 to 1.5e10, item ids
+    with a comma, household-periods outside the regular region (figures withheld: empty
+    cells, the reasons and items named): the same text, byte for byte, as the csv module's."""
+    from dualcost.api.operations.households import csv_rows
+    from dualcost.core.households import HouseholdChunk, HouseholdJob, evaluate_chunk
+
+    rng = np.random.default_rng(7)
+    items = ["rye_loaf", "peat, briquettes", "ferry_pass"]
+    p0 = np.array([2.4, 9.0, 38.0])
+    p1 = np.array([[2.5, 10.5, 38.0], [2.7, 30.0, 41.0]])
+    job = HouseholdJob.checked("stone_geary", {"subsistence_quantities": [1.0, 2.0, 0.2]}, p0,
+                               p1, formulas=["laspeyres", "fisher"])
+    n = 40
+    shares = rng.dirichlet(np.ones(3), size=n)
+    income = np.where(np.arange(n) % 7 == 0, 40.0, rng.uniform(200, 900, n))
+    weights = 10.0 ** np.arange(-5, 11).repeat(3)[:n] * 1.5  # weights are at most 1e12
+    ids = tuple([None, 'h "2"', "h,3", "h4"] * 10)
+    chunk = HouseholdChunk(rows=np.arange(1, n + 1), shares=shares, expenditure=income,
+                           weights=weights, ids=ids, records=np.arange(2, n + 2))
+    result = evaluate_chunk(job, chunk)
+    labels = ["2025-01", "2025-02"]
+    assert result.size >= 20
+    # Household-periods outside the model's regular region, as the validity checks mark them:
+    # a code, the items named, the model's figures withheld (NaN).
+    irregular = np.zeros((2, result.size), dtype=np.uint32)
+    irregular[1, ::5] = 1
+    irregular[0, 3] = 3
+    values = {k: v.copy() for k, v in result.values.items()}
+    for name in ("konus", "bias_laspeyres"):
+        values[name][irregular != 0] = np.nan
+    result = dataclasses.replace(result, irregular=irregular, values=values,
+                                 irregular_items={(1, 0): (0, 1), (0, 3): (2,)})
+    text = csv_rows(result, job, labels, True, items, records=True)
+    assert text == _rows_by_cell(result, job, labels, items)
+    assert ",false," in text and ",true," in text and '"h ""2"""' in text and "e-05" in text
