@@ -268,17 +268,37 @@ def test_a_bad_cell_in_a_later_block_hands_the_rest_to_the_reference_reader(
     assert [s["pointer"] for s in skipped] == ["#cell=301,2"]
 
 
+@pytest.mark.parametrize("blank", [b"\n", b"\r\n", b" , \n", b",,,,,,,\n"])
+def test_a_blank_line_keeps_its_row_number_on_both_readers(
+        client: TestClient, monkeypatch: pytest.MonkeyPatch, blank: bytes) -> None:
+    """A blank record after row 250 (empty, or only separators and spaces) is row 251 holding
+    no household, on the columnar path as on the reference reader's."""
+    monkeypatch.setattr(columnar, "BLOCK_BYTES", 4096)
+    items = [f"item_{k}" for k in range(6)]
+    data = big_csv(400, items)
+    at = data.index(b"\nh250,") + 1
+    fast = send(client, ces_job(client, items), "csv", data[:at] + blank + data[at:])
+    quoted = big_csv(400, items, quote_at=1)
+    at = quoted.index(b"\nh250,") + 1
+    slow = send(client, ces_job(client, items), "csv", quoted[:at] + blank + quoted[at:])
+    a, b = rows_of(fast), rows_of(slow)
+    assert [x["row"] for x in a] == [x["row"] for x in b] == [
+        str(r) for r in range(1, 402) if r != 251]
+    assert [x["konus"] for x in a] == [x["konus"] for x in b]
+
+
 def test_the_scan_keeps_uploads_pyarrow_would_read_otherwise() -> None:
-    """Quotes, blank lines, runs of zeros and exponents below -299 leave the upload to the
-    reference reader; a pattern split between two pieces of the upload is still seen."""
-    for pieces in ([b'a,b\n"x",1\n'], [b"a,b\n1,2\n\n3,4\n"], [b"a\n1e-3", b"00\n"],
-                   [b"a\n0.0000000000", b"00000000001e-299\n"], [b"a\n1\r\n", b"\r\n2\n"]):
+    """Quotes, a decimal mark followed by twenty zeros and exponents below -299 leave the upload
+    to the reference reader; a pattern split between two pieces of the upload is still seen.
+    Exponents from -1 to -299 and long mantissas do not."""
+    for pieces in ([b'a,b\n"x",1\n'], [b"a\n1e-3", b"00\n"], [b"a\n1E-00", b"0400\n"],
+                   [b"a\n0.0000000000", b"00000000001e-299\n"], [b"a\n5e-1000\n"]):
         scan = columnar.UploadScan()
         for piece in pieces:
             scan.feed(piece)
         assert not scan.columnar, pieces
     scan = columnar.UploadScan()
-    scan.feed(b"a,b\n1e-5,0.25\n0.004500000000000001,1000000000000.5\n")
+    scan.feed(b"a,b\n1e-5,0.25\n0.004500000000000001,1000000000000.5\n2.5e-299,1E-120\n")
     assert scan.columnar
 
 

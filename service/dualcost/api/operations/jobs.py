@@ -338,7 +338,9 @@ async def spool(request: Request) -> Upload:
                 continue
             if not parquet:
                 try:
-                    decoder.decode(piece)
+                    # ASCII with nothing pending is UTF-8 (a check in C; decoding makes text)
+                    if not (piece.isascii() and not decoder.getstate()[0]):
+                        decoder.decode(piece)
                 except UnicodeDecodeError as exc:
                     raise RequestProblem.at("", f"the CSV body is not UTF-8 text (byte "
                                             f"{size + exc.start})") from None
