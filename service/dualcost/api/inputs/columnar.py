@@ -50,9 +50,6 @@ _EXPONENTS = (re.compile(rb"e-0*([1-9]\d\d+)"), re.compile(rb"E-0*([1-9]\d\d+)")
 #: A decimal mark and 20 zeros: with an exponent of -299 or above, the only way for a number to
 #: come near the end of the floating-point range (0.0000000000000000000001e-299 is 1e-321).
 _ZEROS = (b"." + b"0" * 20, b"," + b"0" * 20)
-#: Rows of a Parquet file read at a time (then cut into the job's chunks): 16,384 rows of 200
-#: items are 26 MB of numbers.
-PARQUET_BLOCK_ROWS = 16_384
 #: Bytes pyarrow reads of a CSV at a time (a block's rows are then cut into the job's chunks).
 BLOCK_BYTES = 4 << 20
 
@@ -274,23 +271,20 @@ def parquet_chunks(pf: Any, columns: Columns, chunk_rows: int, size: int,
     names = [schema_names[j] for j in wanted]
     at = {j: k for k, j in enumerate(wanted)}
     row = 1
-    # Blocks of at least PARQUET_BLOCK_ROWS rows (fewer conversions per number), cut into chunks.
-    batches = pf.iter_batches(batch_size=max(chunk_rows, PARQUET_BLOCK_ROWS), columns=names)
-    while True:
+    for group in range(pf.num_row_groups):
+        # A row group at a time, read by Arrow's threads and let go before the next: memory
+        # follows the file's row groups, not its length (pyarrow's batch iterator kept more).
         try:
-            batch = next(batches)
-        except StopIteration:
-            return
+            table = pf.read_row_group(group, columns=names, use_threads=True)
         except (pa.ArrowInvalid, pa.ArrowException, OSError) as exc:
             raise parquet_problem(exc, size) from None
-        # Each chunk's matrix is filled from its slice of the block: a chunk's rows stay in the
-        # processor's cache while its columns are written in.
-        for start in range(0, batch.num_rows, chunk_rows):
-            part = batch.slice(start, chunk_rows)
-            yield _parquet_chunk(part, columns, at, row)
-            row += part.num_rows
-            if progress is not None:
-                progress(part.num_rows)
+        for batch in table.to_batches(max_chunksize=chunk_rows):
+            chunk = _parquet_chunk(batch, columns, at, row)
+            row += batch.num_rows
+            if progress is not None:  # read before it is done: rows read >= households done
+                progress(batch.num_rows)
+            yield chunk
+        del table
 
 
 def _column(batch: Any, k: int) -> np.ndarray[Any, Any]:
