@@ -38,21 +38,13 @@ from contextlib import contextmanager
 from dataclasses import dataclass, replace
 from datetime import datetime, timezone
 from itertools import islice
-from typing import Any
+from typing import TYPE_CHECKING, Any
 
 from fastapi import Request
 
 from ...config import Settings
 from ...core.households import Accumulator, HouseholdChunk, HouseholdJob
 from ...core.preferences import Notice
-from ..inputs.columnar import (
-    Columns,
-    UploadScan,
-    csv_household_chunks,
-    parquet_chunks,
-    parquet_columns,
-    parquet_file,
-)
 from ..inputs.csv import (
     CSV_MEDIA_TYPE,
     DeclaredDialect,
@@ -77,6 +69,9 @@ from ..schemas.common import CAUTION
 from ..schemas.households import HouseholdJobSpec
 from . import households
 from .answers import SCALE_RATIO, notices_json
+
+if TYPE_CHECKING:
+    from ..inputs.columnar import UploadScan
 
 SPOOL_MEMORY_BYTES = 8 * 1024 * 1024
 #: Seconds a client is asked to wait (Retry-After) when the job table has no room.
@@ -326,6 +321,10 @@ def upload_media(request: Request) -> bool:
 async def spool(request: Request) -> Upload:
     """The request body in a temporary file; a CSV checked to be UTF-8 (and scanned for what
     only the reference reader reads), its number of lines; the SHA-256 of the bytes."""
+    # pyarrow is imported with the first upload, not with the service: the other operations
+    # never need it.
+    from ..inputs.columnar import UploadScan
+
     parquet = upload_media(request)
     file = tempfile.SpooledTemporaryFile(max_size=SPOOL_MEMORY_BYTES)
     decoder = codecs.getincrementaldecoder("utf-8")()
@@ -391,6 +390,7 @@ def _csv_chunks(state: JobState, upload: Upload, declared: DeclaredDialect
                 ) -> tuple[io.TextIOWrapper, Iterator[HouseholdChunk]]:
     """A CSV upload's text and chunks: read by pyarrow where the scan allows, else (and from
     the first block pyarrow does not read by the rules) by the reference reader."""
+    from ..inputs.columnar import Columns, csv_household_chunks
     text = io.TextIOWrapper(upload.file, encoding="utf-8-sig", newline="")
     header, records, separator, reason = stream_header(iter(text), declared)
     layout = csv_layout(header, state.axis, state.locator, needs_income=state.job.needs_income)
@@ -421,6 +421,7 @@ def _csv_chunks(state: JobState, upload: Upload, declared: DeclaredDialect
 
 def _parquet_chunks(state: JobState, upload: Upload) -> Iterator[HouseholdChunk]:
     """A Parquet upload's chunks; its columns checked at once (``#column=<name>``)."""
+    from ..inputs.columnar import parquet_chunks, parquet_columns, parquet_file
     pf = parquet_file(upload.file, upload.size)
     columns, unused = parquet_columns(pf.schema_arrow, state.axis.ids,
                                       needs_income=state.job.needs_income,
