@@ -198,24 +198,31 @@ _FLOAT, _STR = {float}, {str}
 # -- the quickest road ------------------------------------------------------------------------
 #
 # For a value made of JSON's own types only (what a JSON parser or pydantic's
-# ``model_dump(mode="json")`` gives), orjson's sorted text *is* RFC 8785's unless it holds a token
-# whose writing may differ: a whole float ('1.0', '-0.0'), an exponent ('1e-7', '1e+16'), an
-# integer of 16 digits or more (beyond 2**53 RFC 8785 writes the nearest double), a character
-# beyond U+FFFF (keys are then ordered by UTF-16 code units, not code points) or null (orjson
-# writes NaN and infinity as null). :func:`_risky` looks for those in the text, in C; where it
-# finds one (a string that merely looks like one counts too) the value takes the quicker road
-# above. orjson refuses integers beyond 64 bits and lone surrogates, which also go that way.
+# ``model_dump(mode="json")`` gives), orjson's sorted text is RFC 8785's unless it holds a token
+# that RFC 8785 writes otherwise, each found by a search in C: a whole float (orjson writes
+# '12.0' and '-0.0', RFC 8785 '12' and '0'), an exponent (orjson writes 'e-7' and 'e+16', always
+# with a sign), an integer beyond 2**53 (refused by OPT_STRICT_INTEGER), a character beyond
+# U+FFFF (keys are then ordered by UTF-16 code units, not code points) or null (orjson writes
+# NaN and infinity as null). Such a value takes the quicker road above (a string that merely
+# looks like such a token counts too). Every search starts with a literal, which the regular
+# expression engine finds quickly: one pattern whose alternatives started with a digit cost
+# 5 ms for a 25 kB request here; these cost 0.02 ms. Rewriting whole floats in the text instead
+# (outside the strings) cost more than the quicker road.
 
-_RISKY = re.compile(rb"\d\.0(?!\d)|\d[eE]|(?<![.\d])\d{16,}(?![.\deE])|[\xf0-\xf4]|null")
+_WHOLE = re.compile(rb"\.0(?![0-9])")
+_BEYOND_BMP = re.compile(rb"[\xf0-\xf4]")
 
 
 def _quickest(value: Any) -> bytes | None:
     """RFC 8785's bytes of a value of JSON types, or None where orjson's text may differ."""
     try:
-        text = orjson.dumps(value, option=orjson.OPT_SORT_KEYS)
+        text = orjson.dumps(value, option=orjson.OPT_SORT_KEYS | orjson.OPT_STRICT_INTEGER)
     except orjson.JSONEncodeError:
         return None
-    return None if _RISKY.search(text) else text
+    if (b"null" in text or b"e-" in text or b"e+" in text or _WHOLE.search(text)
+            or (not text.isascii() and _BEYOND_BMP.search(text))):
+        return None
+    return text
 
 
 def canonical_json(value: Any, *, json_values: bool = False) -> bytes:

@@ -173,15 +173,21 @@ def test_the_quickest_road_writes_what_the_scheme_writes(value: Any) -> None:
                                                                           "surrogatepass")
 
 
-def test_the_quickest_road_is_taken_for_a_plain_request() -> None:
-    """The 300-item comparison of the benchmarks (prices, quantities, a tree) needs no token
-    rewritten: orjson's text is the canonical text."""
+def test_the_quickest_road_is_taken_where_orjson_writes_the_scheme_s_text() -> None:
+    """A request of prices and ids without whole floats takes orjson's text as it is; a whole
+    float anywhere (12.0, or a string that looks like one) sends it down the quicker road, to
+    the same text."""
     from dualcost.canonical import _quickest
 
-    value = {"base": {"prices": {f"item_{i}": 1.25 + i / 7 for i in range(300)}},
+    value = {"base": {"prices": {f"item_{i}": 1.25 + i / 7 for i in range(300)},
+                      "quantities": [12.5, 0.25, 3.75] * 60},
              "model": {"family": "ces", "sigma": 0.7}, "ids": ["a", "b"], "n": 12}
-    assert _quickest(value) is not None
-    assert _quickest(value) == canonical_json(value)
+    out: list[str] = []
+    _write(value, out)
+    assert _quickest(value) == "".join(out).encode()
+    for whole in ({"q": [12.0]}, {"q": -0.0}, {"name": "group 1.0"}):
+        assert _quickest(value | whole) is None
+        assert canonical_json(value | whole, json_values=True) == canonical_json(value | whole)
 
 
 def test_orjson_writes_the_digits_python_s_repr_writes() -> None:
