@@ -325,21 +325,25 @@ def test_an_error_after_the_answer_began_ends_it_with_an_error_record(
     if accept is None:
         last = list(csv.reader(io.StringIO(r.text)))[-1]
         assert last[0] == ERROR_KEY and "#row=301" in last[1]
+        assert last[1] == status["error"]  # the record and the stored job give one reason
         assert len(rows_of(r)) == 256 + 1  # the rows answered, and the error record
     else:
         table = pq.read_table(io.BytesIO(r.content))
         assert table.num_rows == 256
         meta = file_metadata(r.content)
         assert "#row=301" in meta["dualcost-error"]
+        assert meta["dualcost-error"] == status["error"]
 
 
-def _rows_by_cell(result: Any, job: Any, labels: list[str], items: list[str]) -> str:
-    """The CSV rows as the csv module writes them cell by cell (the earlier writer)."""
+def _rows_by_cell(result: Any, job: Any, labels: list[str], items: list[str],
+                  extra: tuple[Any, ...] = ()) -> str:
+    """The CSV rows as the csv module writes them cell by cell (the earlier writer), with the
+    ``extra`` columns (periods by households) after the others."""
     from dualcost.api.render import csv_lines
     from dualcost.core.households import reasons_of
 
     names = job.output_columns(True)
-    cols = [result.values[n].tolist() for n in names]
+    cols = [result.values[n].tolist() for n in names] + [x.tolist() for x in extra]
     flags = result.irregular_or_zeros(len(labels)).tolist()
     named = {key: [items[i] for i in at] for key, at in result.irregular_items.items()}
     out = []
@@ -391,3 +395,10 @@ def test_the_column_wise_csv_writer_writes_what_the_csv_module_writes() -> None:
     text = csv_rows(result, job, labels, True, items, records=True)
     assert text == _rows_by_cell(result, job, labels, items)
     assert ",false," in text and ",true," in text and '"h ""2"""' in text and "e-05" in text
+    # With band_models' columns after the others (floats with gaps, and a count): the same.
+    low = values["konus"] * 0.99
+    low[0, ::4] = 1.5e-5
+    band = (low, values["konus"] * 1.01, np.where(np.isnan(low), 0, 3).astype(np.int64))
+    banded = csv_rows(result, job, labels, True, items, records=True, extra=band)
+    assert banded == _rows_by_cell(result, job, labels, items, band)
+    assert banded.count(",,0\r\n") == int(np.isnan(low).sum()) > 0
