@@ -23,6 +23,7 @@ The machine is shared and noisy, so the ratios are the figures to compare betwee
 from __future__ import annotations
 
 import resource
+import tempfile
 import time
 import tracemalloc
 import warnings
@@ -145,7 +146,9 @@ def over_http(s: dict[str, Any]) -> dict[str, float]:
         from dualcost.api.app import create_app
         from dualcost.config import Settings
 
-        client = TestClient(create_app(Settings(max_body_bytes=1 << 30)))
+        # The jobs (and each chunk's rows) go to a new SQLite database, removed at the end.
+        data = tempfile.TemporaryDirectory()
+        client = TestClient(create_app(Settings(max_body_bytes=1 << 30, data_dir=data.name)))
     ids = [f"item_{i:03d}" for i in range(ITEMS)]
     lines = [",".join(["household", "expenditure", *ids])]
     lines += [",".join([f"h{h}", repr(float(s["m"][h])), *map(repr, s["w"][h].tolist())])

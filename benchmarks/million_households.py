@@ -219,6 +219,8 @@ def main() -> int:
                DUALCOST_COMPUTE_THREADS="2")
     with tempfile.TemporaryDirectory() as tmp:
         folder = Path(tmp)
+        # The service keeps its jobs (and each chunk's rows) in a new SQLite database here.
+        env["DUALCOST_DATA_DIR"] = str(folder)
         upload = folder / "households.parquet"
         start = time.perf_counter()
         write_households(upload, args.households, ITEMS)
