@@ -7,7 +7,9 @@ then drives each with the same number of concurrent connections for the same tim
 300-item nested CES comparison of benchmarks/comparison_speed.py. The time is taken in turns
 (three by default), so that a shared machine's changes of speed fall on every target alike. It
 prints throughput, p50 and p99 latency and errors for each, and the ratio of the throughputs
-(the figure to watch: target at least 0.5, with zero errors). A third target, the service with
+against the echo endpoint, target at least 0.5, with zero errors). A second echo endpoint in
+the same app parses and writes with orjson, the fastest a bare endpoint can do: the ratio to it
+is the honest floor (target at least 0.35). A fourth target, the service with
 DUALCOST_INLINE_COMPUTE_MAX_BYTES=0, computes every request in its compute threads (the trade:
 less throughput, a shorter latency tail under overload). Traffic goes to 127.0.0.1 only, and
 every run is bounded in time.
@@ -93,8 +95,9 @@ def drive(url: str, script: str, seconds: int, clients: int) -> dict[str, float]
     return {"rps": rps, "p50": p50, "p99": p99, "requests": total, "errors": errors}
 
 
-TARGETS = ("dualcost", "echo", "threads")
-LABELS = {"dualcost": "dualcost", "echo": "echo", "threads": "dualcost, compute threads only"}
+TARGETS = ("dualcost", "echo", "floor", "threads")
+LABELS = {"dualcost": "dualcost", "echo": "echo (std json)", "floor": "echo (orjson both ways)",
+          "threads": "dualcost, compute threads only"}
 
 
 def server(name: str, port: int) -> tuple[list[str], dict[str, str], str, str]:
@@ -102,10 +105,11 @@ def server(name: str, port: int) -> tuple[list[str], dict[str, str], str, str]:
     # benchmarks/ first, then any path given (a worktree's service/ rather than the installed one)
     env = dict(os.environ, PYTHONPATH=os.pathsep.join(
         p for p in (str(HERE), os.environ.get("PYTHONPATH", "")) if p))
-    if name == "echo":
+    if name in ("echo", "floor"):
         cmd = [sys.executable, "-m", "uvicorn", "echo_app:app", "--port", str(port),
                "--workers", "2", "--log-level", "warning", "--no-access-log"]
-        return cmd, env, f"http://127.0.0.1:{port}/echo", f"http://127.0.0.1:{port}/docs"
+        path = "/echo" if name == "echo" else "/echo-orjson"
+        return cmd, env, f"http://127.0.0.1:{port}{path}", f"http://127.0.0.1:{port}/docs"
     if name == "threads":
         env["DUALCOST_INLINE_COMPUTE_MAX_BYTES"] = "0"
     cmd = [sys.executable, "-m", "dualcost.cli", "serve", "--port", str(port), "--workers", "2"]
@@ -163,8 +167,13 @@ def main() -> int:
     print("  (p50: the median turn's; p99: the worst turn's)")
     per_turn = [d["requests"] / e["requests"] for d, e in zip(runs["dualcost"], runs["echo"],
                                                               strict=True)]
+    per_floor = [d["requests"] / e["requests"] for d, e in zip(runs["dualcost"], runs["floor"],
+                                                               strict=True)]
     print(f"  throughput ratio dualcost / echo: {total['dualcost'] / total['echo']:.2f} (target at "
           f"least 0.5); by turn: {', '.join(f'{x:.2f}' for x in per_turn)}")
+    print(f"  throughput ratio dualcost / orjson floor: {total['dualcost'] / total['floor']:.2f} "
+          f"(target at least 0.35); by turn: {', '.join(f'{x:.2f}' for x in per_floor)}")
+    print(f"  echo (std json) / orjson floor: {total['echo'] / total['floor']:.2f}")
     print(f"  compute threads only / echo: {total['threads'] / total['echo']:.2f}")
     return 0
 

@@ -14,6 +14,7 @@ from __future__ import annotations
 import hashlib
 import json
 import math
+import re
 from collections.abc import Callable, Mapping
 from typing import Any
 
@@ -194,19 +195,58 @@ _MANY = 8
 _FLOAT, _STR = {float}, {str}
 
 
-def canonical_json(value: Any) -> bytes:
+# -- the quickest road ------------------------------------------------------------------------
+#
+# For a value made of JSON's own types only (what a JSON parser or pydantic's
+# ``model_dump(mode="json")`` gives), orjson's sorted text is RFC 8785's unless it holds a token
+# that RFC 8785 writes otherwise, each found by a search in C: a whole float (orjson writes
+# '12.0' and '-0.0', RFC 8785 '12' and '0'), an exponent (orjson writes 'e-7' and 'e+16', always
+# with a sign), an integer beyond 2**53 (refused by OPT_STRICT_INTEGER), a character beyond
+# U+FFFF (keys are then ordered by UTF-16 code units, not code points) or null (orjson writes
+# NaN and infinity as null). Such a value takes the quicker road above (a string that merely
+# looks like such a token counts too). Every search starts with a literal, which the regular
+# expression engine finds quickly: one pattern whose alternatives started with a digit cost
+# 5 ms for a 25 kB request here; these cost 0.02 ms. Rewriting whole floats in the text instead
+# (outside the strings) cost more than the quicker road.
+
+_WHOLE = re.compile(rb"\.0(?![0-9])")
+_BEYOND_BMP = re.compile(rb"[\xf0-\xf4]")
+
+
+def _quickest(value: Any) -> bytes | None:
+    """RFC 8785's bytes of a value of JSON types, or None where orjson's text may differ."""
+    try:
+        text = orjson.dumps(value, option=orjson.OPT_SORT_KEYS | orjson.OPT_STRICT_INTEGER)
+    except orjson.JSONEncodeError:
+        return None
+    if (b"null" in text or b"e-" in text or b"e+" in text or _WHOLE.search(text)
+            or (not text.isascii() and _BEYOND_BMP.search(text))):
+        return None
+    return text
+
+
+def canonical_json(value: Any, *, json_values: bool = False) -> bytes:
     """``value`` (JSON-ready: dicts with text keys, lists, text, numbers, booleans, None) in
     the JSON Canonicalization Scheme (RFC 8785), as UTF-8 bytes. ValueError for what JSON
-    cannot hold (NaN, infinity, a number beyond doubles, other types)."""
+    cannot hold (NaN, infinity, a number beyond doubles, other types).
+
+    ``json_values=True`` promises that ``value`` holds JSON's own types only (dict, list, str,
+    int, float, bool, None, as a JSON parser or ``model_dump(mode="json")`` gives them), which
+    lets the quickest road be taken; the bytes are the same."""
+    if json_values:
+        quick = _quickest(value)
+        if quick is not None:
+            return quick
     try:
         text = _encode(_prepared(value))
-    except _Slow:
+    except (_Slow, orjson.JSONEncodeError):  # JSONEncodeError: a lone surrogate
         out: list[str] = []
         _write(value, out)
         text = "".join(out)
     return text.encode("utf-8", "surrogatepass")
 
 
-def digest_of(value: Any) -> str:
-    """``sha256:`` and the SHA-256 of ``value``'s canonical form, in lowercase hexadecimal."""
-    return "sha256:" + hashlib.sha256(canonical_json(value)).hexdigest()
+def digest_of(value: Any, *, json_values: bool = False) -> str:
+    """``sha256:`` and the SHA-256 of ``value``'s canonical form, in lowercase hexadecimal
+    (``json_values`` as for :func:`canonical_json`)."""
+    return "sha256:" + hashlib.sha256(canonical_json(value, json_values=json_values)).hexdigest()

@@ -192,3 +192,47 @@ def test_the_migrations_are_shipped_with_the_package() -> None:
     assert any(n.startswith("storage/migrations/versions/") for n in needed)
     for name in needed:
         assert any(fnmatch.fnmatch(name, pattern) for pattern in patterns), name
+
+
+def test_a_job_s_answer_is_given_again_by_another_worker_as_csv_or_parquet(
+        database_url: str) -> None:
+    """The rows are kept as CSV whichever format the upload answered in: another worker gives
+    them back as that CSV, and as the Parquet file the upload gives with Accept Parquet (the
+    same table, nulls and metadata), read with pyarrow, Apache Arrow's reference library for
+    the format. The panel has household-periods outside the model's regular region (figures
+    null, reasons named), an id with a line break, and a skipped row."""
+    import io
+
+    import pyarrow.parquet as pq
+
+    from tests.api.test_households_validity import job_csv, panel
+
+    parquet = "application/vnd.apache.parquet"
+    one, two = worker(database_url), worker(database_url)
+    spec = {k: v for k, v in panel().items() if k != "households"}
+    data = job_csv(bad_income_row=True).encode()
+    answered = {}
+    for accept in ("text/csv", parquet):
+        job = create_job(one, spec)
+        r = two.post(job["links"]["households"], content=data,
+                     headers={"content-type": "text/csv", "accept": accept})
+        assert r.status_code == 200 and r.headers["content-type"].startswith(accept), r.text
+        answered[accept] = (job, r)
+    streamed_csv, streamed = answered["text/csv"][1], answered[parquet][1]
+    table = pq.read_table(io.BytesIO(streamed.content))
+    meta = pq.ParquetFile(io.BytesIO(streamed.content)).metadata.metadata
+    for job, r in answered.values():
+        url = f"/v1/household-jobs/{job['id']}/results"
+        assert one.get(url).text == streamed_csv.text
+        again = one.get(url, headers={"accept": parquet})
+        assert again.status_code == 200 and again.headers["content-type"] == parquet
+        assert again.headers["dualcost-input-digest"] == r.headers["dualcost-input-digest"]
+        assert pq.read_table(io.BytesIO(again.content)).equals(table)
+        assert pq.ParquetFile(io.BytesIO(again.content)).metadata.metadata == meta
+    rows = table.to_pylist()
+    assert len(rows) == 10 and rows[6]["household"] == "pensioners\n(harbour ward)"
+    irregular = [x for x in rows if not x["model_regular"]]
+    assert [x["irregular_items"] for x in irregular] == ["transit", "transit"]
+    assert all(x["konus"] is None for x in irregular)
+    assert all(x["irregular_reasons"] is None and x["konus"] is not None
+               for x in rows if x["model_regular"])

@@ -146,7 +146,53 @@ def test_the_quick_road_writes_what_the_scheme_writes(value: Any) -> None:
     writer."""
     out: list[str] = []
     _write(value, out)
-    assert canonical_json(value) == "".join(out).encode("utf-8", "surrogatepass")
+    expected = "".join(out).encode("utf-8", "surrogatepass")
+    assert canonical_json(value) == expected
+    assert canonical_json(value, json_values=True) == expected
+
+
+_TOKENS = st.sampled_from([1.0, -0.0, 0.5, 1e-5, 1e-7, 1e16, 1e21, 2.0 ** 53, 9007199254740993,
+                           2 ** 63 - 1, -(2 ** 63), 2 ** 64, 123456789012345678, 1e-4, 0.1,
+                           0.30000000000000004, 5e-324, "\U0001f600", "\ufb33", "\x1f\x7f",
+                           "\u2028", "\ud800", "1.0", "e5", None, True])
+_RISKY_JSON = st.recursive(_SCALARS | _TOKENS, lambda inner: st.lists(inner, max_size=6)
+                           | st.dictionaries(st.text(max_size=3) | _TOKENS.filter(
+                               lambda t: isinstance(t, str)), inner, max_size=6), max_leaves=30)
+
+
+@settings(max_examples=500, deadline=None, derandomize=True)
+@given(_RISKY_JSON)
+def test_the_quickest_road_writes_what_the_scheme_writes(value: Any) -> None:
+    """canonical_json(json_values=True) takes orjson's sorted text as it is unless a token in it
+    may be written otherwise (whole floats, exponents, long integers, characters beyond U+FFFF,
+    null): on random JSON values dense in such tokens (and in strings that only look like
+    them) it must equal the value-by-value writer of RFC 8785."""
+    out: list[str] = []
+    try:
+        _write(value, out)
+    except ValueError:
+        with pytest.raises(ValueError):
+            canonical_json(value, json_values=True)
+        return
+    assert canonical_json(value, json_values=True) == "".join(out).encode("utf-8",
+                                                                          "surrogatepass")
+
+
+def test_the_quickest_road_is_taken_where_orjson_writes_the_scheme_s_text() -> None:
+    """A request of prices and ids without whole floats takes orjson's text as it is; a whole
+    float anywhere (12.0, or a string that looks like one) sends it down the quicker road, to
+    the same text."""
+    from dualcost.canonical import _quickest
+
+    value = {"base": {"prices": {f"item_{i}": 1.25 + i / 7 for i in range(300)},
+                      "quantities": [12.5, 0.25, 3.75] * 60},
+             "model": {"family": "ces", "sigma": 0.7}, "ids": ["a", "b"], "n": 12}
+    out: list[str] = []
+    _write(value, out)
+    assert _quickest(value) == "".join(out).encode()
+    for whole in ({"q": [12.0]}, {"q": -0.0}, {"name": "group 1.0"}):
+        assert _quickest(value | whole) is None
+        assert canonical_json(value | whole, json_values=True) == canonical_json(value | whole)
 
 
 def test_orjson_writes_the_digits_python_s_repr_writes() -> None:
@@ -180,6 +226,8 @@ def test_long_vectors_keyed_or_not_take_the_quick_road_to_the_same_text(vector) 
 def test_nan_and_infinity_have_no_canonical_form(value: Any) -> None:
     with pytest.raises(ValueError, match="NaN and infinity"):
         canonical_json(value)
+    with pytest.raises(ValueError, match="NaN and infinity"):
+        canonical_json(value, json_values=True)
 
 
 def test_key_order_whitespace_and_number_spelling_leave_the_digest(client: TestClient) -> None:
@@ -583,5 +631,7 @@ def test_whole_floats_from_two_to_the_53rd_are_written_without_a_fraction(value,
     """RFC 8785, 3.2.2.3: numbers as ECMAScript's Number.prototype.toString writes them, which
     writes a whole double below 1e21 without '.0' (found by the hypothesis test above: orjson
     wrote 9007199254740992.0)."""
-    assert canonical_json(value) == text.encode()
-    assert canonical_json([value] * 10) == ("[" + ",".join([text] * 10) + "]").encode()
+    for quickest in (False, True):
+        assert canonical_json(value, json_values=quickest) == text.encode()
+        assert canonical_json([value] * 10, json_values=quickest) == (
+            "[" + ",".join([text] * 10) + "]").encode()

@@ -16,7 +16,8 @@ the head may take is bounded by the server's protocol (:mod:`dualcost.api.transp
 
 from __future__ import annotations
 
-import anyio
+import asyncio
+
 from starlette.types import ASGIApp, Message, Receive, Scope, Send
 
 from .problems import BodyTimedOut, BodyTooLarge, send_problem
@@ -24,6 +25,32 @@ from .problems import BodyTimedOut, BodyTooLarge, send_problem
 #: Sent with refusals made while a body may still be on its way: the rest of the request is not
 #: read, so the connection cannot carry another request.
 CLOSE = [(b"connection", b"close")]
+
+
+async def _within(receive: Receive, seconds: float) -> Message:
+    """``receive()``, or BodyTimedOut once ``seconds`` have passed: one timer handle that
+    cancels the waiting task when it fires. A cancel scope per receive (anyio.move_on_after)
+    cost about 9 µs a call here against about 1 µs; the servers that run the service (uvicorn)
+    and its tests run on asyncio."""
+    task = asyncio.current_task()
+    assert task is not None
+    fired = False
+
+    def expire() -> None:
+        nonlocal fired
+        fired = True
+        task.cancel()
+
+    handle = asyncio.get_running_loop().call_later(seconds, expire)
+    try:
+        return await receive()
+    except asyncio.CancelledError:
+        uncancel = getattr(task, "uncancel", None)  # Python 3.11 counts cancellations
+        if fired and (uncancel is None or uncancel() == 0):  # ours, and no one else's
+            raise BodyTimedOut from None
+        raise
+    finally:
+        handle.cancel()
 
 
 class BodyLimitMiddleware:
@@ -45,19 +72,17 @@ class BodyLimitMiddleware:
         seen = 0
         started = False
         arrived = False
-        start = anyio.current_time()
+        loop = asyncio.get_running_loop()
+        start = loop.time()
 
         async def limited_receive() -> Message:
             nonlocal seen, arrived
             if arrived or started:
                 return await receive()
-            remaining = start + self.timeout + seen / self.rate - anyio.current_time()
-            message: Message | None = None
-            if remaining > 0:
-                with anyio.move_on_after(remaining):
-                    message = await receive()
-            if message is None:
+            remaining = start + self.timeout + seen / self.rate - loop.time()
+            if remaining <= 0:
                 raise BodyTimedOut
+            message = await _within(receive, remaining)
             if message["type"] == "http.request":
                 seen += len(message.get("body", b""))
                 if seen > self.limit:

@@ -7,6 +7,9 @@
 - CSV: ``text/csv; charset=utf-8``, a header row, numbers in Python's shortest round-trip form
   with '.' as the decimal point, empty cells for missing values, lines ending CRLF (RFC 4180).
 - Plain text: one value, for a spreadsheet cell.
+- Parquet (``application/vnd.apache.parquet``): a household job's rows, one row group per chunk,
+  nulls where the CSV has empty cells, the provenance and the caution in the file's key-value
+  metadata as well as in the headers.
 - Provenance (:mod:`dualcost.api.provenance`): a JSON answer ends with a ``provenance`` member
   (service, version, input digest); every answer, JSON or not, carries ``Dualcost-Version`` and
   ``Dualcost-Input-Digest`` headers, and every CSV or text answer the indexation caution in
@@ -49,15 +52,17 @@ T = TypeVar("T")
 JSON_MEDIA_TYPE = "application/json"
 CSV_MEDIA_TYPE = "text/csv"
 TEXT_MEDIA_TYPE = "text/plain"
+PARQUET_MEDIA_TYPE = "application/vnd.apache.parquet"
 CSV_CONTENT_TYPE = "text/csv; charset=utf-8"
 TEXT_CONTENT_TYPE = "text/plain; charset=utf-8"
-Format = Literal["json", "csv", "text"]
+Format = Literal["json", "csv", "text", "parquet"]
 
 
 # -- content negotiation ----------------------------------------------------------------------
 
 #: The media type of each answer format.
-MEDIA_TYPES: dict[str, str] = {"json": JSON_MEDIA_TYPE, "csv": CSV_MEDIA_TYPE, "text": TEXT_MEDIA_TYPE}
+MEDIA_TYPES: dict[str, str] = {"json": JSON_MEDIA_TYPE, "csv": CSV_MEDIA_TYPE, "text": TEXT_MEDIA_TYPE,
+                               "parquet": PARQUET_MEDIA_TYPE}
 
 
 @dataclass(frozen=True)
@@ -272,6 +277,14 @@ def csv_stream(pieces: Iterator[str], *, provenance: Provenance, trailer: bool =
                                  headers={**(headers or {}), **provenance_headers(provenance)})
     attach(response, provenance)
     return response
+
+
+def parquet_stream(pieces: Iterator[bytes], *, provenance: Provenance,
+                   headers: dict[str, str] | None = None) -> StreamingResponse:
+    """A Parquet answer written row group by row group as it is computed, with the provenance
+    and caution headers (the file's key-value metadata carries them too)."""
+    return StreamingResponse(pieces, media_type=PARQUET_MEDIA_TYPE,
+                             headers={**(headers or {}), **provenance_headers(provenance)})
 
 
 def trailed(pieces: Iterator[str], provenance: Provenance, delimiter: str = ",") -> Iterator[str]:

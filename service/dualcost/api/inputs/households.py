@@ -276,7 +276,8 @@ def _number(cell: str, dialect: Dialect) -> float:
 
 
 def csv_chunks(records: Iterator[list[str]], layout: CsvLayout, chunk_rows: int,
-               progress: Callable[[int], Any] | None = None) -> Iterator[HouseholdChunk]:
+               progress: Callable[[int], Any] | None = None, *, first_row: int = 1
+               ) -> Iterator[HouseholdChunk]:
     """Household chunks from CSV records after the header: rows numbered from 1, the first
     record after the header being row 1 (a blank record keeps its number but holds no
     household), and the line each record starts on, where ``records`` tells it (a
@@ -284,8 +285,10 @@ def csv_chunks(records: Iterator[list[str]], layout: CsvLayout, chunk_rows: int,
 
     A cell that is not a number, or a record of the wrong length, becomes a refused row carried
     with the chunk; the good rows of the chunk go on. ``progress(n)`` is told of each record.
+    ``first_row``: the row number of the first of ``records`` (the columnar reader hands the
+    rest of an upload over so).
     """
-    record = 0
+    record = first_row - 1
     last_line: int | None = getattr(records, "line_num", None)
     while True:
         reader = _ChunkReader(layout)

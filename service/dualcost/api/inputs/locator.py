@@ -78,6 +78,8 @@ class CsvRows:
     #: names the column (``#col=3``) rather than the header.
     default_record: int = 2
     whole_column: bool = False
+    #: A Parquet upload (no header record): a cell is ``#row=<row>&column=<name>``.
+    parquet: bool = False
 
     def cell(self, column: str | None, t: int | None, i: int | None) -> str:
         record = self.record(t, i)
@@ -251,6 +253,10 @@ class Locator:
         place = self.places.get(f"row:{problem.field}")
         if self.form == "csv" and self.csv is not None:
             column, name = self._row_column(place, problem)
+            if self.csv.parquet:
+                where = f"#row={problem.row}" + (f"&column={name}" if name else "")
+                named = f"column {name!r}: " if name else ""
+                return FieldError(where, f"row {problem.row}: {named}{problem.rule}")
             record = problem.row + 1
             where = f"#cell={record},{column}" if column else f"#row={record}"
             named = f"column {name!r}: " if name else ""

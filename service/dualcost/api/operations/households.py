@@ -14,11 +14,15 @@ household-period's model figures are null (empty CSV cells), ``model_regular`` i
 
 from __future__ import annotations
 
+import csv
+import io
+import math
 from collections.abc import Iterable, Iterator, Sequence
 from dataclasses import dataclass
 from typing import Any
 
 import numpy as np
+import orjson
 
 from ...config import Settings
 from ...core.households import (
@@ -41,7 +45,7 @@ from ..inputs.items import ItemAxis
 from ..inputs.locator import Locator, Place
 from ..observability import computing
 from ..problems import RequestProblem
-from ..render import csv_line, csv_lines, finite
+from ..render import csv_line, finite
 from ..schemas.common import CAUTION, SIGN_CONVENTION
 from ..schemas.households import HouseholdIndicesRequest
 from . import bands
@@ -347,27 +351,80 @@ def csv_rows(result: ChunkResult, job: HouseholdJob, labels: Sequence[str],
              extra: Sequence[Any] = ()) -> str:
     """One CSV line per household and period, in the order of :func:`csv_header`: empty cells
     for the figures withheld (``model_regular`` false) or left out; the reasons and the items'
-    ids joined by semicolons."""
-    names = job.output_columns(with_income)
-    cols = [result.values[n].tolist() for n in names] + [x.tolist() for x in extra]
-    weights = result.weights.tolist()
-    incomes = None if result.expenditure is None else result.expenditure.tolist()
-    flags, named = _flags(result.irregular_or_zeros(len(labels)), result.irregular_items, items)
-    lines_of = (result.records.tolist() if records and result.records is not None
-                else [None] * result.size)
+    ids joined by semicolons; then the ``extra`` columns (periods by households, as the
+    values: the band of band_models), integers as integers. Written column by column
+    (:func:`_number_texts`), the same text as :func:`dualcost.api.render.csv_lines` writes row
+    by row, several times as fast."""
+    periods = len(labels)
+    n = result.size
+    flags = result.irregular_or_zeros(periods)  # (periods, households)
+    named = {key: ";".join(items[i] for i in at) for key, at in result.irregular_items.items()}
+    per_house = [
+        _text_cells([] if result.ids is None else result.ids, n),
+        list(map(str, result.rows.tolist())),
+        *([list(map(str, (result.records if result.records is not None else
+                          result.rows + 1).tolist()))] if records else []),
+    ]
+    weights = _number_texts(result.weights)
+    income = (_number_texts(result.expenditure) if result.expenditure is not None and with_income
+              else [""] * n)
+    columns = [_by_period(c, periods) for c in per_house]
+    columns.append(_text_cells(list(labels), periods) * n)
+    columns += [_by_period(weights, periods), _by_period(income, periods)]
+    order = flags.T.reshape(-1)  # household by household, period by period
+    columns.append(["true" if f == 0 else "false" for f in order.tolist()])
+    reasons = [""] * order.size
+    listed = [""] * order.size
+    for k in map(int, np.flatnonzero(order)):
+        j, t = divmod(k, periods)
+        reasons[k] = ";".join(reasons_of(int(order[k])))
+        listed[k] = named.get((t, j), "")
+    columns += [_text_cells(reasons, order.size), _text_cells(listed, order.size)]
+    for name in job.output_columns(with_income):
+        columns.append(_number_texts(result.values[name].T.reshape(-1)))
+    for column in extra:  # periods by households, as the values
+        by_line = np.asarray(column).T.reshape(-1)
+        columns.append(list(map(str, by_line.tolist())) if by_line.dtype.kind in "iu"
+                       else _number_texts(by_line))
+    if not order.size:
+        return ""
+    return "\r\n".join(map(",".join, zip(*columns, strict=True))) + "\r\n"
 
-    def lines() -> Iterator[list[Any]]:
-        for j, row in enumerate(result.rows.tolist()):
-            hid = "" if result.ids is None or result.ids[j] is None else result.ids[j]
-            m = None if incomes is None or not with_income else incomes[j]
-            where = [row, lines_of[j]] if records else [row]
-            for t, label in enumerate(labels):
-                flag = flags[t][j]
-                why = ("true", "", "") if not flag else (
-                    "false", ";".join(reasons_of(flag)), ";".join(named.get((t, j), ())))
-                yield [hid, *where, label, weights[j], m, *why, *(c[t][j] for c in cols)]
 
-    return csv_lines(lines())
+def _by_period(cells: list[str], periods: int) -> list[str]:
+    """A household's cell repeated on each of its period lines."""
+    return cells if periods == 1 else [c for c in cells for _ in range(periods)]
+
+
+def _number_texts(values: Any) -> list[str]:
+    """Floats as render.format_cell writes them: repr's shortest round-trip text, empty where not
+    finite. orjson writes the same digits as repr, some ten times as fast, for every finite
+    float in [1e-4, 1e16) by magnitude, and 0 (tests/api/test_provenance_and_formats.py checks
+    the digits); the others (exponent forms differ: 1e-05 against 1e-5) are written by repr."""
+    array = np.asarray(values, dtype=np.float64)
+    if not array.size:
+        return []
+    text = orjson.dumps(array, option=orjson.OPT_SERIALIZE_NUMPY).decode()
+    texts = text[1:-1].split(",")
+    magnitude = np.abs(array)
+    odd = ~np.isfinite(array) | ((magnitude < 1e-4) & (array != 0.0)) | (magnitude >= 1e16)
+    for k in map(int, np.flatnonzero(odd)):
+        v = float(array[k])
+        texts[k] = repr(v) if math.isfinite(v) else ""
+    return texts
+
+
+def _text_cells(values: Sequence[str | None], n: int) -> list[str]:
+    """Text cells quoted as the csv module quotes them (a separator, quote or line break
+    inside); None as empty; ``n`` empty cells when there are no values."""
+    if not values:
+        return [""] * n
+    cells = ["" if v is None else v for v in values]
+    joined = "".join(cells)
+    if any(c in joined for c in ',"\r\n'):
+        cells = [('"' + c.replace('"', '""') + '"') if any(x in c for x in ',"\r\n') else c
+                 for c in cells]
+    return cells
 
 
 def csv_pieces(outcome: Outcome, rows: int = 4096) -> Iterator[str]:
@@ -385,3 +442,191 @@ def csv_pieces(outcome: Outcome, rows: int = 4096) -> Iterator[str]:
         part = slice(start, start + rows)
         yield csv_rows(whole.block(part), job, outcome.labels, with_income, outcome.axis.ids,
                        extra=[x[:, part] for x in extra])
+
+
+# -- the rows of a job's answer, as CSV or Parquet ------------------------------------------------
+
+
+class CsvAnswer:
+    """A job's answer as CSV text, piece by piece; an error after the header ends it with an
+    error record (``#dualcost-error`` and the reason), so that a cut table says it is cut."""
+
+    media = "csv"
+
+    def __init__(self, job: HouseholdJob, labels: Sequence[str], with_income: bool,
+                 items: Sequence[str]) -> None:
+        self.job, self.labels, self.with_income, self.items = job, labels, with_income, items
+
+    def head(self) -> str:
+        return csv_line(csv_header(self.job, self.with_income, records=True))
+
+    def rows(self, result: ChunkResult) -> str:
+        return csv_rows(result, self.job, self.labels, self.with_income, self.items,
+                        records=True)
+
+    def end(self) -> str:
+        return ""
+
+    def error(self, message: str) -> str:
+        return csv_line([ERROR_KEY, message])
+
+
+#: The first cell of the record that ends a CSV answer cut by an error.
+ERROR_KEY = "#dualcost-error"
+
+
+class ParquetAnswer:
+    """A job's answer as a Parquet file, one row group per chunk, its bytes given as each row
+    group is written; the provenance and the caution in the file's key-value metadata. An
+    error after the first row group closes the file with ``dualcost-error`` in its metadata
+    (the file stays readable and says that it is cut)."""
+
+    media = "parquet"
+
+    def __init__(self, job: HouseholdJob, labels: Sequence[str], with_income: bool,
+                 items: Sequence[str], metadata: dict[str, str]) -> None:
+        import pyarrow as pa
+        import pyarrow.parquet as pq
+
+        self.job, self.labels, self.with_income, self.items = job, labels, with_income, items
+        self.schema = answer_schema(csv_header(job, with_income, records=True), metadata)
+        self.sink = _Pieces()
+        self.writer = pq.ParquetWriter(pa.PythonFile(self.sink, mode="w"), self.schema)
+
+    def _drain(self) -> bytes:
+        return self.sink.take()
+
+    def head(self) -> bytes:
+        return b""
+
+    def rows(self, result: ChunkResult) -> bytes:
+        self.writer.write_table(arrow_table(result, self.job, self.labels, self.with_income,
+                                            self.items, self.schema))
+        return self._drain()
+
+    def end(self) -> bytes:
+        self.writer.close()
+        return self._drain()
+
+    def error(self, message: str) -> bytes:
+        self.writer.add_key_value_metadata({"dualcost-error": message})
+        return self.end()
+
+
+class _Pieces(io.RawIOBase):
+    """A write-only file that keeps what is written until it is taken (so that a streamed
+    file is never held whole)."""
+
+    def __init__(self) -> None:
+        super().__init__()
+        self.pieces: list[bytes] = []
+        self.position = 0
+
+    def writable(self) -> bool:
+        return True
+
+    def write(self, data: Any) -> int:
+        piece = bytes(data)
+        self.pieces.append(piece)
+        self.position += len(piece)
+        return len(piece)
+
+    def tell(self) -> int:
+        return self.position
+
+    def take(self) -> bytes:
+        out, self.pieces = b"".join(self.pieces), []
+        return out
+
+
+def arrow_table(result: ChunkResult, job: HouseholdJob, labels: Sequence[str],
+                with_income: bool, items: Sequence[str], schema: Any) -> Any:
+    """One chunk's rows (household by household, period by period, as the CSV answer) as an
+    Arrow table, written from the arrays: a figure withheld or left out (NaN) is null."""
+    import pyarrow as pa
+
+    n, periods = result.size, len(labels)
+    house = np.repeat(np.arange(n), periods)
+    period = np.tile(np.arange(periods), n)
+    flags = result.irregular_or_zeros(periods)[period, house]
+    reasons: list[str | None] = [None] * flags.size
+    named: list[str | None] = [None] * flags.size
+    for k in map(int, np.flatnonzero(flags)):
+        t, j = int(period[k]), int(house[k])
+        reasons[k] = ";".join(reasons_of(int(flags[k])))
+        named[k] = ";".join(items[i] for i in result.irregular_items.get((t, j), ()))
+    ids = None if result.ids is None else [result.ids[j] for j in house.tolist()]
+    income = (result.expenditure[house] if result.expenditure is not None and with_income
+              else np.full(house.size, np.nan))
+    columns = [pa.array(ids, type=pa.string()) if ids is not None else
+               pa.nulls(house.size, pa.string()),
+               pa.array(result.rows[house]),
+               pa.array(result.records[house] if result.records is not None else
+                        result.rows[house] + 1),
+               pa.DictionaryArray.from_arrays(pa.array(period.astype(np.int32)),
+                                              pa.array(list(labels))).cast(pa.string()),
+               pa.array(result.weights[house]), pa.array(income, from_pandas=True),
+               pa.array(flags == 0), pa.array(reasons, type=pa.string()),
+               pa.array(named, type=pa.string())]
+    for name in job.output_columns(with_income):
+        columns.append(pa.array(result.values[name][period, house], from_pandas=True))
+    return pa.Table.from_arrays(columns, schema=schema)
+
+
+#: The types of a job answer's columns that are not figures (those are float64).
+_ANSWER_TYPES = {"household": "string", "row": "int64", "record": "int64", "period": "string",
+                 "model_regular": "bool", "irregular_reasons": "string",
+                 "irregular_items": "string"}
+
+
+def answer_schema(names: Sequence[str], metadata: dict[str, str]) -> Any:
+    """The Arrow schema of a job's Parquet answer with the columns ``names`` (its CSV header):
+    the figures float64, a figure withheld or left out null."""
+    import pyarrow as pa
+
+    return pa.schema([(name, pa.type_for_alias(_ANSWER_TYPES.get(name, "float64")))
+                      for name in names], metadata=metadata)
+
+
+def parquet_of_csv(pieces: Iterator[str], metadata: dict[str, str]) -> Iterator[bytes]:
+    """A job's answer kept as CSV pieces (the header, then a chunk's rows a piece) as the
+    Parquet file :class:`ParquetAnswer` writes: a row group per piece, the same columns, types
+    and nulls (an empty household id; the reasons and items of a regular household-period),
+    its bytes given as each row group is written. The CSV's numbers are shortest round-trip
+    text, so the floats read back are the ones computed."""
+    import pyarrow as pa
+    import pyarrow.csv as pv
+    import pyarrow.parquet as pq
+
+    header = next(pieces, "")
+    names = next(csv.reader(io.StringIO(header))) if header else []
+    schema = answer_schema(names, metadata)
+    sink = _Pieces()
+    writer = pq.ParquetWriter(pa.PythonFile(sink, mode="w"), schema)
+    read = pv.ReadOptions(column_names=names)
+    parse = pv.ParseOptions(newlines_in_values=True)
+    convert = pv.ConvertOptions(column_types=schema, strings_can_be_null=False,
+                                quoted_strings_can_be_null=False, null_values=[""],
+                                true_values=["true"], false_values=["false"])
+    for piece in pieces:
+        table = pv.read_csv(io.BytesIO(piece.encode("utf-8")), read_options=read,
+                            parse_options=parse, convert_options=convert)
+        writer.write_table(_answer_nulls(table).cast(schema))
+        yield sink.take()
+    writer.close()
+    yield sink.take()
+
+
+def _answer_nulls(table: Any) -> Any:
+    """The nulls of a Parquet answer where its CSV has empty text: no household id, and no
+    reasons or items where the model is regular."""
+    import pyarrow as pa
+    import pyarrow.compute as pc
+
+    regular = table.column("model_regular")
+    for name in ("household", "irregular_reasons", "irregular_items"):
+        column = table.column(name)
+        empty = (pc.equal(column, "") if name == "household" else regular)
+        table = table.set_column(table.schema.get_field_index(name), name,
+                                 pc.if_else(empty, pa.scalar(None, pa.string()), column))
+    return table

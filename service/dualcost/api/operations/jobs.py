@@ -1,11 +1,15 @@
-"""Household jobs, for large CSV files: create a job with the JSON of a household batch less its
-households, upload the households as CSV and read the results back as CSV while they are
-computed; the job reports its progress and, at the end, the summaries and the rows skipped.
+"""Household jobs, for large files: create a job with the JSON of a household batch less its
+households, upload the households as CSV or Parquet and read the results back as CSV or Parquet
+while they are computed; the job reports its progress and, at the end, the summaries and the rows skipped.
 
 Jobs are kept in the database (:class:`~.job_store.JobStore`, :mod:`dualcost.storage`): any
 worker of any instance answers for any job, and a job outlives a restart. The worker that
 receives the households computes them and writes, chunk by chunk and each in one transaction,
-the answer's rows and the job's progress; at the end the summaries. The upload is spooled to a
+the answer's rows and the job's progress; at the end the summaries. The rows are kept as CSV
+text whatever format the upload answers in: GET .../results gives them back as CSV, or as
+Parquet converted from them (:func:`~.households.parquet_of_csv`), so that any worker can give
+either. A job that fails after its answer has begun ends that answer with an error record whose
+reason is the job's ``error``. The upload is spooled to a
 temporary file (in memory up to 8 MiB, then on disk) and read back chunk by chunk, so the
 households are never held twice.
 
@@ -31,34 +35,45 @@ import tempfile
 import threading
 import uuid
 from collections.abc import Generator, Iterator
-from dataclasses import replace
+from dataclasses import dataclass, replace
 from datetime import datetime, timezone
-from typing import Any
+from itertools import islice
+from typing import TYPE_CHECKING, Any
 
 import orjson
 from fastapi import Request
 
 from ...config import Settings
-from ...core.households import Accumulator, HouseholdJob
+from ...core.households import Accumulator, HouseholdChunk, HouseholdJob
 from ...core.preferences import Notice
 from ..inputs.csv import (
+    CSV_MEDIA_TYPE,
     DeclaredDialect,
-    check_media_type,
     dialect_notices,
     stream_dialect,
     stream_header,
 )
-from ..inputs.households import CsvLayout, csv_chunks, csv_layout, job_of, labels_of
+from ..inputs.households import (
+    RESERVED_COLUMNS,
+    CsvLayout,
+    csv_chunks,
+    csv_layout,
+    job_of,
+    labels_of,
+)
 from ..inputs.items import ItemAxis
-from ..inputs.locator import Locator
+from ..inputs.locator import CsvRows, Locator
 from ..problems import RequestProblem
 from ..provenance import Provenance, of_job
-from ..render import csv_line
+from ..render import PARQUET_MEDIA_TYPE
 from ..schemas.common import CAUTION
 from ..schemas.households import HouseholdJobSpec
 from . import households
 from .answers import SCALE_RATIO, notices_json
 from .job_store import FINISHED, JobStore, already_received, owner_of
+
+if TYPE_CHECKING:
+    from ..inputs.columnar import UploadScan
 
 SPOOL_MEMORY_BYTES = 8 * 1024 * 1024
 
@@ -213,29 +228,64 @@ def restore(store: JobStore, job_id: str, owner: str | None, settings: Settings)
 # -- the upload -------------------------------------------------------------------------------
 
 
-async def spool(request: Request) -> tuple[Any, int, str]:
-    """The request body in a temporary file, checked to be UTF-8; its number of lines, and the
-    SHA-256 (hex) of its bytes."""
-    check_media_type(request)
+@dataclass
+class Upload:
+    """A job's households as they arrived: spooled, hashed, and what the reading needs."""
+
+    file: Any
+    lines: int
+    sha256: str
+    size: int
+    parquet: bool
+    #: For a CSV: whether pyarrow may read it (inputs/columnar.py).
+    scan: UploadScan
+
+
+def upload_media(request: Request) -> bool:
+    """Whether the upload is Parquet (else CSV); any other media type is refused, named."""
+    media = request.headers.get("content-type", "").split(";")[0].strip().lower()
+    if media == PARQUET_MEDIA_TYPE:
+        return True
+    if media != CSV_MEDIA_TYPE:
+        raise RequestProblem.at("#/header/content-type", f"must be {CSV_MEDIA_TYPE} or "
+                                f"{PARQUET_MEDIA_TYPE} for this operation, got "
+                                f"{media or 'nothing'!r}")
+    return False
+
+
+async def spool(request: Request) -> Upload:
+    """The request body in a temporary file; a CSV checked to be UTF-8 (and scanned for what
+    only the reference reader reads), its number of lines; the SHA-256 of the bytes."""
+    # pyarrow is imported with the first upload, not with the service: the other operations
+    # never need it.
+    from ..inputs.columnar import UploadScan
+
+    parquet = upload_media(request)
     file = tempfile.SpooledTemporaryFile(max_size=SPOOL_MEMORY_BYTES)
     decoder = codecs.getincrementaldecoder("utf-8")()
     lines, size, last = 0, 0, b"\n"
     digest = hashlib.sha256()
+    scan = UploadScan()
     try:
         async for piece in request.stream():
             if not piece:
                 continue
-            try:
-                decoder.decode(piece)
-            except UnicodeDecodeError as exc:
-                raise RequestProblem.at("", f"the CSV body is not UTF-8 text (byte "
-                                        f"{size + exc.start})") from None
+            if not parquet:
+                try:
+                    # ASCII with nothing pending is UTF-8 (a check in C; decoding makes text)
+                    if not (piece.isascii() and not decoder.getstate()[0]):
+                        decoder.decode(piece)
+                except UnicodeDecodeError as exc:
+                    raise RequestProblem.at("", f"the CSV body is not UTF-8 text (byte "
+                                            f"{size + exc.start})") from None
+                scan.feed(piece)
+                lines += piece.count(b"\n")
             file.write(piece)
             digest.update(piece)
             size += len(piece)
-            lines += piece.count(b"\n")
             last = piece[-1:]
-        decoder.decode(b"", final=True)
+        if not parquet:
+            decoder.decode(b"", final=True)
     except UnicodeDecodeError:
         file.close()
         raise RequestProblem.at("", "the CSV body ends inside a UTF-8 character") from None
@@ -245,85 +295,174 @@ async def spool(request: Request) -> tuple[Any, int, str]:
     if last != b"\n":
         lines += 1
     file.seek(0)
-    return file, lines, digest.hexdigest()
+    return Upload(file, lines, digest.hexdigest(), size, parquet, scan)
 
 
-def open_upload(state: JobState, file: Any, lines: int, settings: Settings,
-                households_sha256: str, declared: DeclaredDialect | None = None
-                ) -> tuple[io.TextIOWrapper, Iterator[list[str]], str | None]:
-    """The upload's text, its record reader (past the header) and the scheduler's address;
-    a header without an item's column is refused at once, and so is a dialect that cannot be
-    told from the header and the first records (see inputs/csv.py). From here on the job's
-    provenance is of its body and these households together."""
-    text = io.TextIOWrapper(file, encoding="utf-8-sig", newline="")
-    declared = declared or DeclaredDialect()
-    header, records, separator, reason = stream_header(iter(text), declared)
-    layout = csv_layout(header, state.axis, state.locator, needs_income=state.job.needs_income)
-    dialect, reader = stream_dialect(records, separator, reason, declared,
-                                     layout.numeric_columns)
-    state.layout = replace(layout, dialect=dialect)
+def open_upload(state: JobState, upload: Upload, settings: Settings,
+                declared: DeclaredDialect | None = None
+                ) -> tuple[Any, Iterator[HouseholdChunk], str | None]:
+    """What to close at the end, the upload's household chunks (read as they are asked for)
+    and the scheduler's address. A header (or Parquet schema) without an item's column is
+    refused at once, and so is a CSV dialect that cannot be told from the header and the first
+    records (see inputs/csv.py). From here on the job's provenance is of its body and these
+    households together."""
+    if upload.parquet:
+        closer, chunks = upload.file, _parquet_chunks(state, upload)
+    else:
+        closer, chunks = _csv_chunks(state, upload, declared or DeclaredDialect())
+    assert state.layout is not None
     if state.layout.weight_column is None:
         state.defaults = (households.weights_notice(None),)
-    state.rows_total = max(0, lines - 1)
     address = households.scheduler_for(state.spec.engine, state.rows_total, settings,
                                        state.locator)
     state.engine = "local" if address is None else "cluster"
     with state.lock:
-        state.provenance = of_job(state.spec, households_sha256)
+        state.provenance = of_job(state.spec, upload.sha256)
     state.written(None)
-    return text, reader, address
+    return closer, chunks, address
 
 
-def stream(state: JobState, reader: Iterator[list[str]], text: io.TextIOWrapper | None,
-           scheduler: Any, settings: Settings, *, reject: bool = False
-           ) -> Generator[str, None, None]:
-    """The CSV answer of a job, chunk by chunk; progress goes to the job as it is made.
+def _csv_chunks(state: JobState, upload: Upload, declared: DeclaredDialect
+                ) -> tuple[io.TextIOWrapper, Iterator[HouseholdChunk]]:
+    """A CSV upload's text and chunks: read by pyarrow where the scan allows, else (and from
+    the first block pyarrow does not read by the rules) by the reference reader."""
+    from ..inputs.columnar import Columns, csv_household_chunks
+    text = io.TextIOWrapper(upload.file, encoding="utf-8-sig", newline="")
+    header, records, separator, reason = stream_header(iter(text), declared)
+    layout = csv_layout(header, state.axis, state.locator, needs_income=state.job.needs_income)
+    dialect, reader = stream_dialect(records, separator, reason, declared,
+                                     layout.numeric_columns)
+    state.layout = layout = replace(layout, dialect=dialect)
+    state.rows_total = max(0, upload.lines - 1)
+    rows = state.job.chunk_rows
+    if not upload.scan.columnar:
+        return text, csv_chunks(reader, layout, rows, state.count)
+
+    def reference(done: int) -> Iterator[HouseholdChunk]:
+        """The reference reader from the row after ``done`` (the upload read again)."""
+        text.seek(0)
+        again = DeclaredDialect(dialect.separator, dialect.decimal)
+        records = stream_header(iter(text), again)[1]
+        for _ in islice(records, done):
+            pass
+        return csv_chunks(records, layout, rows, state.count, first_row=done + 1)
+
+    upload.file.seek(0)
+    columns = Columns(layout.items, layout.id_column, layout.expenditure_column,
+                      layout.weight_column)
+    return text, csv_household_chunks(upload.file, columns, len(layout.header),
+                                      dialect.delimiter, dialect.mark, rows, reference,
+                                      state.count)
+
+
+def _parquet_chunks(state: JobState, upload: Upload) -> Iterator[HouseholdChunk]:
+    """A Parquet upload's chunks; its columns checked at once (``#column=<name>``)."""
+    from ..inputs.columnar import parquet_chunks, parquet_columns, parquet_file
+    pf = parquet_file(upload.file, upload.size)
+    columns, unused = parquet_columns(pf.schema_arrow, state.axis.ids,
+                                      needs_income=state.job.needs_income,
+                                      reserved=RESERVED_COLUMNS)
+    names = list(pf.schema_arrow.names)
+    state.locator.csv = CsvRows(columns={n: j + 1 for j, n in enumerate(names)},
+                                item_columns=[j + 1 for j in columns.items], parquet=True)
+    state.layout = CsvLayout(header=names, items=columns.items, id_column=columns.id_column,
+                             expenditure_column=columns.expenditure_column,
+                             weight_column=columns.weight_column, unused=unused)
+    state.rows_total = int(pf.metadata.num_rows)
+    return parquet_chunks(pf, columns, state.job.chunk_rows, upload.size, state.count)
+
+
+def answer_for(state: JobState, media: str) -> households.CsvAnswer | households.ParquetAnswer:
+    """The writer of a job's answer in the negotiated format."""
+    assert state.layout is not None
+    args = (state.job, state.labels, state.layout.expenditure_column is not None,
+            state.axis.ids)
+    if media == "parquet":
+        return households.ParquetAnswer(*args, metadata=parquet_metadata(state.provenance))
+    return households.CsvAnswer(*args)
+
+
+def stored_form(state: JobState, answer: households.CsvAnswer | households.ParquetAnswer
+                ) -> households.CsvAnswer:
+    """The form a job's answer is kept in, in the database: CSV rows (the answer itself when
+    it is CSV), which GET .../results gives back as CSV or as Parquet converted from them."""
+    if isinstance(answer, households.CsvAnswer):
+        return answer
+    return households.CsvAnswer(answer.job, answer.labels, answer.with_income, answer.items)
+
+
+def stream(state: JobState, chunks: Iterator[HouseholdChunk], closer: Any, scheduler: Any,
+           settings: Settings, answer: households.CsvAnswer | households.ParquetAnswer, *,
+           reject: bool = False) -> Generator[str | bytes, None, None]:
+    """The answer of a job, chunk by chunk; progress goes to the job as it is made. Whatever
+    the answer's format, each chunk's rows are stored as CSV text (:func:`stored_form`) with
+    the job's progress, in one transaction, before they are sent. An error once the answer has
+    begun ends it with the writer's error record and fails the job with the same reason (the
+    job's ``error``) rather than cutting it; before that, or with ``reject`` (nothing sent
+    yet), the error is raised (a lost database is then a 503).
 
     ``scheduler`` is None (this process) or a connected Dask client, closed at the end.
     """
     job = state.job
-    assert state.layout is not None
-    with_income = state.layout.expenditure_column is not None
+    stored = stored_form(state, answer)
+    begun = False
     try:
-        header = csv_line(households.csv_header(job, with_income, records=True))
-        state.written(header)
-        yield header
-        chunks = csv_chunks(reader, state.layout, job.chunk_rows, state.count)
+        head = stored.head()
+        # The rows and the progress are stored (one transaction) before they are sent.
+        state.written(head)
+        begun = True
+        yield head if answer is stored else answer.head()
         for result in households.evaluate(job, chunks, scheduler, settings):
             state.acc.add(result)
-            rows = (households.csv_rows(result, job, state.labels, with_income,
-                                        state.axis.ids, records=True) if result.size else None)
-            # The rows and the progress are stored (one transaction) before they are sent.
+            rows = stored.rows(result) if result.size else None
             state.written(rows)
             if rows is not None:
-                yield rows
+                yield rows if answer is stored else answer.rows(result)
         if reject and state.acc.skipped.count:
             state.fail("failed", f"{state.acc.skipped.count} row(s) break a rule and bad_rows "
                        "is reject: no result was given")
         else:
             state.finish()
+        yield answer.end()
     except GeneratorExit:
         state.fail("cancelled", "the client stopped reading the answer")
         raise
     except Exception as exc:
-        state.fail("failed", f"{type(exc).__name__}: {exc}")
-        raise
+        message = _failure(exc)
+        state.fail("failed", message)
+        if reject or not begun:
+            raise
+        yield answer.error(message)
     finally:
         state.fail("cancelled", "the answer was not read to the end")
-        if text is not None:
-            text.close()
+        if closer is not None:
+            closer.close()
         if scheduler is not None:
             scheduler.close()
 
 
-def run_to_file(state: JobState, reader: Iterator[list[str]], scheduler: Any,
-                settings: Settings) -> Any:
+def _failure(exc: Exception) -> str:
+    """What ended a job: a located problem's first error, or the exception."""
+    if isinstance(exc, RequestProblem) and exc.errors:
+        first = exc.errors[0]
+        return f"{first.pointer}: {first.detail}" if first.pointer else first.detail
+    return f"{type(exc).__name__}: {exc}"
+
+
+def parquet_metadata(provenance: Provenance) -> dict[str, str]:
+    """The provenance and the caution, as a Parquet answer's key-value metadata."""
+    return {"dualcost-version": provenance.version,
+            "dualcost-input-digest": provenance.input_digest, "dualcost-caution": CAUTION}
+
+
+def run_to_file(state: JobState, chunks: Iterator[HouseholdChunk], scheduler: Any,
+                settings: Settings, answer: households.CsvAnswer | households.ParquetAnswer
+                ) -> Any:
     """All or nothing (bad_rows=reject): the whole answer into a temporary file first; a bad
     row refuses the upload, each named by its cell."""
-    out = tempfile.SpooledTemporaryFile(max_size=SPOOL_MEMORY_BYTES, mode="w+", encoding="utf-8",
-                                        newline="")
-    for piece in stream(state, reader, None, scheduler, settings, reject=True):
-        out.write(piece)
+    out = tempfile.SpooledTemporaryFile(max_size=SPOOL_MEMORY_BYTES)
+    for piece in stream(state, chunks, None, scheduler, settings, answer, reject=True):
+        out.write(piece.encode("utf-8") if isinstance(piece, str) else piece)
     if state.acc.skipped.count:
         out.close()
         raise RequestProblem([state.locator.row_error(p) for p in state.acc.skipped.listed[:20]])
@@ -331,10 +470,11 @@ def run_to_file(state: JobState, reader: Iterator[list[str]], scheduler: Any,
     return out
 
 
-def file_pieces(out: Any) -> Iterator[str]:
+def file_pieces(out: Any, *, text: bool) -> Iterator[str | bytes]:
+    """A finished answer's file, 64 KiB at a time (as text for CSV)."""
+    source = io.TextIOWrapper(out, encoding="utf-8", newline="") if text else out
     try:
-        while piece := out.read(1 << 16):
+        while piece := source.read(1 << 16):
             yield piece
     finally:
-        out.close()
-
+        source.close()

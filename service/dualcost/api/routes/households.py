@@ -4,9 +4,11 @@
   ``?format=csv`` or ``Accept: text/csv``. Bad rows fail the request by default, naming them.
 - Household jobs, for large CSV files: ``POST /v1/household-jobs`` (createHouseholdJob) takes the
   same JSON without households and answers 201 with the job; ``POST
-  /v1/household-jobs/{id}/households`` (householdIndicesFromCsv) takes the CSV and streams the
-  results back as CSV, chunk by chunk, while ``GET /v1/household-jobs/{id}`` (getHouseholdJob)
-  reports progress and, at the end, the distribution summaries and the rows skipped and why.
+  /v1/household-jobs/{id}/households`` (householdIndicesFromCsv) takes the CSV (or Parquet) and
+  streams the results back as CSV (or Parquet), chunk by chunk, while ``GET
+  /v1/household-jobs/{id}`` (getHouseholdJob) reports progress and, at the end, the distribution
+  summaries and the rows skipped and why; ``GET /v1/household-jobs/{id}/results``
+  (getHouseholdJobResults) gives a finished job's answer again, from any worker.
 """
 
 from __future__ import annotations
@@ -31,12 +33,14 @@ from ..provenance import Provenance, of_body
 from ..render import (
     CSV_ANSWER,
     CSV_CONTENT_TYPE,
+    PARQUET_MEDIA_TYPE,
     Format,
     ProvenanceQuery,
     csv_stream,
     format_query,
     json_response,
     negotiate,
+    parquet_stream,
     provenance_headers,
     trailed,
 )
@@ -60,6 +64,8 @@ PROBLEM_RESPONSES: dict[int | str, dict[str, Any]] = {
 }
 OFFERS: tuple[Format, ...] = ("json", "csv")
 FormatParam = Annotated[Literal["json", "csv"] | None, format_query(OFFERS)]
+#: A job's answer: CSV (the default) or Parquet.
+JOB_OFFERS: tuple[Format, ...] = ("csv", "parquet")
 NO_JOB = {"description": "No such job (or it belongs to another API key)."}
 
 
@@ -72,7 +78,8 @@ def _store(request: Request) -> jobs.JobStore:
 
 
 class _JobAnswer(StreamingResponse):
-    """A job's streamed CSV answer that ends the job's stream as soon as the answer ends.
+    """A job's streamed answer (CSV or Parquet) that ends the job's stream as soon as the
+    answer ends.
 
     When the client goes away, Starlette stops sending but leaves the stream (a generator
     that computes in the compute threads) to be collected whenever that happens; until then
@@ -82,13 +89,15 @@ class _JobAnswer(StreamingResponse):
     header) before: closing a generator that has not started would skip its clean-up.
     """
 
-    def __init__(self, state: jobs.JobState, pieces: Generator[str, None, None],
-                 headers: dict[str, str], provenance: Provenance, trailer: bool) -> None:
+    def __init__(self, state: jobs.JobState, pieces: Generator[Any, None, None],
+                 headers: dict[str, str], provenance: Provenance, trailer: bool,
+                 fmt: Format) -> None:
         first = next(pieces)
-        body: Iterator[str] = itertools.chain([first], pieces)
-        if trailer:
+        body: Iterator[Any] = itertools.chain([first], pieces)
+        if trailer and fmt == "csv":
             body = trailed(body, provenance)
-        super().__init__(body, media_type=CSV_CONTENT_TYPE,
+        media = CSV_CONTENT_TYPE if fmt == "csv" else PARQUET_MEDIA_TYPE
+        super().__init__(body, media_type=media,
                          headers={**headers, **provenance_headers(provenance)})
         self.state, self.pieces = state, pieces
 
@@ -150,11 +159,20 @@ def create_household_job(body: HouseholdJobSpec, request: Request) -> Response:
                          headers={"Location": f"/v1/household-jobs/{state.id}"})
 
 
+#: A job's upload and answer: CSV or Parquet.
+_BINARY = {"schema": {"type": "string", "format": "binary"}}
+JOB_UPLOAD: dict[str, Any] = {"requestBody": {
+    "required": True, "content": CSV_REQUEST_BODY["requestBody"]["content"]
+    | {PARQUET_MEDIA_TYPE: _BINARY}}}
+JOB_ANSWER: dict[str, Any] = {"content": CSV_ANSWER["content"] | {PARQUET_MEDIA_TYPE: _BINARY}}
+
+
 @router.post("/household-jobs/{job_id}/households", operation_id="householdIndicesFromCsv",
-             summary="Upload a job's households as CSV; the results stream back as CSV",
-             responses={**PROBLEM_RESPONSES, 200: CSV_ANSWER, 404: NO_JOB,
+             summary="Upload a job's households as CSV or Parquet; the results stream back as "
+                     "CSV or Parquet",
+             responses={**PROBLEM_RESPONSES, 200: JOB_ANSWER, 404: NO_JOB,
                         409: {"description": "The job already has its households."}},
-             openapi_extra=CSV_REQUEST_BODY)
+             openapi_extra=JOB_UPLOAD)
 async def household_indices_from_csv(job_id: str, request: Request,
                                      provenance: ProvenanceQuery = "headers",
                                      separator: SeparatorParam = None,
@@ -171,9 +189,14 @@ async def household_indices_from_csv(job_id: str, request: Request,
     Fields may be quoted (RFC 4180); the separator (comma, semicolon or tab) and the decimal
     mark are declared with separator and decimal, or detected from the header and the first
     1000 rows: the answer's Dualcost-Input-Separator and Dualcost-Input-Decimal headers, and
-    the job's notices, say which. The answer's Dualcost-Input-Digest is the job's: of its body
+    the job's notices, say which. The same columns may come as a Parquet file
+    (Content-Type application/vnd.apache.parquet; a cell is named #row=<row>&column=<name>,
+    a column #column=<name>), and the answer is Parquet with Accept:
+    application/vnd.apache.parquet. An error once the answer has begun ends it with an error
+    record (a last CSV row #dualcost-error, or dualcost-error in the Parquet file's
+    metadata) and fails the job. The answer's Dualcost-Input-Digest is the job's: of its body
     and these households together."""
-    negotiate(request, ("csv",))
+    fmt = negotiate(request, JOB_OFFERS)
     settings = settings_of(request)
     store = _store(request)
     state = await run_in_threadpool(jobs.restore, store, job_id, jobs.owner_of(request),
@@ -182,46 +205,48 @@ async def household_indices_from_csv(job_id: str, request: Request,
     # none (and is ended by the body's read time).
     await run_in_threadpool(store.upload_started, job_id)
     try:
-        file, lines, households_sha256 = await jobs.spool(request)
+        upload = await jobs.spool(request)
     finally:
         await run_in_threadpool(store.upload_ended, job_id)
     try:
         await run_in_threadpool(store.claim, state)
     except BaseException:
-        file.close()
+        upload.file.close()
         raise
-    text = None
+    closer = None
     try:
-        # The header and, for a dialect to detect, the first records: off the event loop.
-        text, reader, address = await run_in_threadpool(
-            jobs.open_upload, state, file, lines, settings, households_sha256,
-            DeclaredDialect(separator, decimal))
+        # The header or schema and, for a dialect to detect, the first records: off the event
+        # loop.
+        closer, chunks, address = await run_in_threadpool(
+            jobs.open_upload, state, upload, settings, DeclaredDialect(separator, decimal))
         # Connect before answering, so that an unreachable cluster is a 503, not a cut stream.
         scheduler = None if address is None else await run_in_threadpool(households.connect,
                                                                           address)
     except BaseException:
-        if text is not None:
-            text.close()
-        else:
-            file.close()
+        (upload.file if closer is None else closer).close()
         await run_in_threadpool(state.release)
         raise
     headers = {"Link": f'</v1/household-jobs/{state.id}>; rel="monitor"',
                "Content-Location": f"/v1/household-jobs/{state.id}"} | SCALE_HEADERS
     trailer = provenance == "trailer"
-    if state.layout is not None:
+    if state.layout is not None and not upload.parquet:
         headers |= state.layout.dialect.headers()
+    answer = jobs.answer_for(state, fmt)
     if state.bad_rows == "skip":
         # The answer's first piece is written to the database: off the event loop too.
         return await run_in_threadpool(
-            _JobAnswer, state, jobs.stream(state, reader, text, scheduler, settings), headers,
-            state.provenance, trailer)
+            _JobAnswer, state, jobs.stream(state, chunks, closer, scheduler, settings, answer),
+            headers, state.provenance, trailer, fmt)
     try:
-        out = await run_in_threadpool(jobs.run_to_file, state, reader, scheduler, settings)
+        out = await run_in_threadpool(jobs.run_to_file, state, chunks, scheduler, settings,
+                                      answer)
     finally:
-        text.close()
-    return csv_stream(jobs.file_pieces(out), provenance=state.provenance, trailer=trailer,
-                      headers=headers)
+        closer.close()
+    if fmt == "parquet":
+        return parquet_stream(jobs.file_pieces(out, text=False),  # type: ignore[arg-type]
+                              provenance=state.provenance, headers=headers)
+    return csv_stream(jobs.file_pieces(out, text=True),  # type: ignore[arg-type]
+                      provenance=state.provenance, trailer=trailer, headers=headers)
 
 
 @router.get("/household-jobs/{job_id}", operation_id="getHouseholdJob",
@@ -238,22 +263,30 @@ def get_household_job(job_id: str, request: Request) -> Response:
 
 
 @router.get("/household-jobs/{job_id}/results", operation_id="getHouseholdJobResults",
-            summary="A finished household job's results as CSV, from any worker",
-            responses={200: CSV_ANSWER, 404: NO_JOB,
+            summary="A finished household job's results as CSV or Parquet, from any worker",
+            responses={200: JOB_ANSWER, 404: NO_JOB,
                        409: {"description": "The job has not finished (status is not done)."}})
 def get_household_job_results(job_id: str, request: Request,
                               provenance: ProvenanceQuery = "headers") -> Response:
-    """The CSV answer of a job that is done, as its upload streamed it (the same rows and
+    """The answer of a job that is done, as its upload streamed it (the same rows and
     columns), read back from the service's database: any worker of any instance answers it,
-    after a restart too. A job that is still waiting or running, or that failed or was
-    cancelled (whose partial answer is not kept), is a 409."""
-    negotiate(request, ("csv",))
+    after a restart too. The rows are kept as CSV; with Accept: application/vnd.apache.parquet
+    they come as the Parquet file the upload gives (a row group per chunk, the provenance
+    and caution in its metadata), converted from them, whichever format the upload answered
+    in. A job that is still waiting or running, or that failed or was cancelled (whose
+    partial answer is not kept; its error says why it ended), is a 409."""
+    fmt = negotiate(request, JOB_OFFERS)
     store = _store(request)
     row = store.record(job_id, jobs.owner_of(request))
     if row.status != "done":
         raise JobConflict(f"household job {job_id} is {row.status}: its results are given "
                           "once it is done")
-    return csv_stream(store.pieces(job_id), provenance=Provenance(row.input_digest),
+    origin = Provenance(row.input_digest)
+    if fmt == "parquet":
+        return parquet_stream(households.parquet_of_csv(store.pieces(job_id),
+                                                        jobs.parquet_metadata(origin)),
+                              provenance=origin, headers=dict(SCALE_HEADERS))
+    return csv_stream(store.pieces(job_id), provenance=origin,
                       trailer=provenance == "trailer", headers=dict(SCALE_HEADERS))
 
 
