@@ -28,10 +28,11 @@ import uuid
 from collections.abc import Iterator
 from dataclasses import dataclass
 from datetime import datetime, timedelta, timezone
-from typing import TYPE_CHECKING, Any
+from typing import Any, Protocol
 
 import orjson
 from fastapi import Request
+from pydantic import BaseModel
 from sqlalchemy import delete, select, update
 from sqlalchemy.orm import Session
 
@@ -41,8 +42,28 @@ from ...storage.tables import JobRecord, JobResultPiece, JobTable
 from ..problems import JobConflict, JobNotFound, JobTableFull
 from ..provenance import Provenance
 
-if TYPE_CHECKING:
-    from .jobs import JobState
+
+class JobState(Protocol):
+    """What the store reads and writes of a job in a worker (:class:`.jobs.JobState`), named
+    here so that the store does not import the module of the jobs it keeps."""
+
+    status: str
+    pieces: int
+    store: JobStore | None
+
+    @property
+    def id(self) -> str: ...
+
+    @property
+    def owner(self) -> str | None: ...
+
+    @property
+    def spec(self) -> BaseModel: ...
+
+    def view(self) -> tuple[dict[str, Any], Provenance]: ...
+
+    def fail(self, status: str, message: str) -> None: ...
+
 
 #: Seconds a client is asked to wait (Retry-After) when the job table has no room.
 TABLE_FULL_RETRY_SECONDS = 30
