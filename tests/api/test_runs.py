@@ -267,3 +267,25 @@ def test_runs_saved_before_contents_were_shared_are_moved_by_the_migration(
         assert run["input"] == {"x": 1} and run["answer"] == {"konus": {"base": 1.25}}
     assert contents(client) == {digest_of({"x": 1}),
                                 "sha256:" + hashlib.sha256(answer).hexdigest()}
+
+
+def test_a_batch_of_runs_that_cannot_be_stored_leaves_nothing_behind(
+        database_url: str) -> None:
+    """The writer's transaction is all or nothing: a batch whose second run cannot be stored
+    (its id is taken) stores neither run, nor the new input and answer the first had stored
+    in the same transaction, after the attempts a concurrent writer would be given."""
+    from sqlalchemy.exc import IntegrityError
+
+    client = service(database_url)
+    taken = client.post("/v1/comparisons?save=true",
+                        json=small_request()).headers["dualcost-run"]
+    before_rows, before_contents = len(rows(client)), contents(client)
+    (row,) = rows(client)
+    fresh = {c.name: getattr(row, c.name) for c in RunRecord.__table__.columns
+             if c.name not in ("serial", "input_ref", "answer_ref")}
+    batch = [fresh | {"id": "f" * 32, "input": '{"new":1}', "answer": b'{"new":2}'},
+             fresh | {"id": taken, "input": '{"new":3}', "answer": b'{"new":4}'}]
+    with pytest.raises(IntegrityError):
+        client.app.state.runs._commit(batch)  # type: ignore[attr-defined]
+    assert len(rows(client)) == before_rows and contents(client) == before_contents
+    assert client.app.state.db.healthy  # type: ignore[attr-defined]  # refused, not lost

@@ -26,7 +26,10 @@ import hashlib
 import logging
 import queue
 import threading
+import time
 import uuid
+from collections.abc import Iterator
+from contextlib import contextmanager
 from dataclasses import dataclass
 from datetime import datetime, timedelta
 from typing import Any
@@ -52,6 +55,11 @@ NOT_SAVED = ("/v1/household-jobs", "/v1/runs")
 RUN_HEADER = "Dualcost-Run"
 #: Runs written in one transaction at most.
 BATCH = 256
+#: How long the writer waits at most, after a run arrives, for the runs still being computed
+#: in this process to share its commit (seconds): under load a commit then carries many runs
+#: instead of one, each commit's own work (a transaction, the look-up of the contents already
+#: stored) shared between them. With nothing else coming, a run is committed at once.
+LINGER = 0.025
 #: Times a batch is tried when another writer stored one of its contents at the same moment.
 ATTEMPTS = 3
 SAVE_TEXT = ("Keep a record of this run (true; default false): the canonical input, the "
@@ -98,6 +106,8 @@ class RunStore:
         self._queue: queue.SimpleQueue[_Pending] = queue.SimpleQueue()
         self._writer: threading.Thread | None = None
         self._lock = threading.Lock()
+        #: Requests of this process that asked for save and are computing (event loop only).
+        self.coming = 0
 
     # -- writing ------------------------------------------------------------------------------
 
@@ -119,12 +129,7 @@ class RunStore:
 
     def _write(self) -> None:
         while True:
-            batch = [self._queue.get()]
-            while len(batch) < BATCH:
-                try:
-                    batch.append(self._queue.get_nowait())
-                except queue.Empty:
-                    break
+            batch = self._gather()
             outcome: BaseException | None = None
             try:
                 self._commit([p.record for p in batch])
@@ -135,6 +140,27 @@ class RunStore:
                     pending.loop.call_soon_threadsafe(_settle, pending.done, outcome)
                 except RuntimeError:  # its event loop has closed: nobody waits any more
                     pass
+
+    def _gather(self) -> list[_Pending]:
+        """The next runs to commit: the first to come, those already waiting, and, while
+        requests that will save are still computing, those that come within :data:`LINGER`
+        of it (at most :data:`BATCH`)."""
+        batch = [self._queue.get()]
+        until = time.monotonic() + LINGER
+        while len(batch) < BATCH:
+            try:
+                batch.append(self._queue.get_nowait())
+                continue
+            except queue.Empty:
+                pass
+            left = until - time.monotonic()
+            if self.coming <= 0 or left <= 0:
+                break
+            try:
+                batch.append(self._queue.get(timeout=min(left, 0.002)))
+            except queue.Empty:
+                continue
+        return batch
 
     def _commit(self, records: list[dict[str, Any]]) -> None:
         """Store ``records`` (each with its ``input`` text and ``answer`` bytes) in one
@@ -224,6 +250,17 @@ def _settle(done: asyncio.Future[None], outcome: BaseException | None) -> None:
 
 
 # -- the hook ---------------------------------------------------------------------------------
+
+
+@contextmanager
+def coming(request: Request) -> Iterator[None]:
+    """While a request that asked for save computes: the writer may wait for its run."""
+    store: RunStore = request.app.state.runs
+    store.coming += 1
+    try:
+        yield
+    finally:
+        store.coming -= 1
 
 
 async def keep(request: Request, route: APIRoute, response: Response) -> Response:
