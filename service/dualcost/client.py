@@ -58,7 +58,7 @@ import os
 import re
 from collections.abc import Iterator, Mapping, Sequence
 from dataclasses import dataclass, field
-from datetime import UTC, datetime
+from datetime import datetime, timezone
 from pathlib import Path
 from typing import IO, Any, Literal, TypeAlias, overload
 
@@ -170,7 +170,7 @@ def _when(value: str | datetime | None) -> str | None:
     if value is None or isinstance(value, str):
         return value
     if value.tzinfo is not None:
-        value = value.astimezone(UTC).replace(tzinfo=None)
+        value = value.astimezone(timezone.utc).replace(tzinfo=None)
     return value.isoformat() + "Z"
 
 

@@ -106,7 +106,8 @@ class RunStore:
         self._queue: queue.SimpleQueue[_Pending] = queue.SimpleQueue()
         self._writer: threading.Thread | None = None
         self._lock = threading.Lock()
-        #: Requests of this process that asked for save and are computing (event loop only).
+        #: Requests of this process that asked for save and are computing (counted on the
+        #: event loop, read by the writer thread).
         self.coming = 0
 
     # -- writing ------------------------------------------------------------------------------
