@@ -25,6 +25,15 @@ JSON body's digest here, to compare with the service's::
     answer = dc.compare(body)
     assert provenance_of(answer).input_digest == input_digest(body)
 
+Saved runs: :meth:`Client.save` sends any operation with ``save=true`` and gives back a
+:class:`Saved`, the answer and the id the service kept it under; :meth:`Client.get_run`,
+:meth:`Client.list_runs` (one page), :meth:`Client.iter_runs` (every page) and
+:meth:`Client.rerun` (a reproducibility check) read them::
+
+    saved = dc.save("POST", "/v1/comparisons", json=body)
+    assert dc.get_run(saved.run_id)["answer"] == saved.answer
+    assert dc.rerun(saved.run_id)["identical"]
+
 ``api_key`` is sent in the ``X-API-Key`` header of every request. Options of an operation are
 keyword-only arguments; options sent as query parameters take Python values (a list is sent
 comma-separated, a mapping as JSON text, ``True``/``False`` as ``true``/``false``).
@@ -47,8 +56,9 @@ import io
 import json
 import os
 import re
-from collections.abc import Mapping, Sequence
+from collections.abc import Iterator, Mapping, Sequence
 from dataclasses import dataclass, field
+from datetime import datetime, timezone
 from pathlib import Path
 from typing import IO, Any, Literal, TypeAlias, overload
 
@@ -57,7 +67,7 @@ import httpx
 from .canonical import digest_of
 from .core.errors import DualcostError
 
-__all__ = ["Cell", "Client", "ClientError", "CsvBody", "ProblemError", "Provenance",
+__all__ = ["Cell", "Client", "ClientError", "CsvBody", "ProblemError", "Provenance", "Saved",
            "ServiceUnreachable", "Table", "UnreadableAnswer", "input_digest", "parse_cell",
            "provenance_of"]
 
@@ -142,6 +152,26 @@ class Provenance:
         if version is None or digest is None:
             return None
         return cls(version, digest, headers.get("dualcost-caution"))
+
+
+@dataclass(frozen=True)
+class Saved:
+    """An answer the service kept as a run (``save=true``): ``run_id``, from its
+    ``Dualcost-Run`` header, for :meth:`Client.get_run` and :meth:`Client.rerun`, and the
+    ``answer``, decoded as every answer is."""
+
+    run_id: str
+    answer: Any
+
+
+def _when(value: str | datetime | None) -> str | None:
+    """A time for the runs' listing: text as given; a datetime in UTC (a naive one is taken
+    to be UTC, as the service keeps its times)."""
+    if value is None or isinstance(value, str):
+        return value
+    if value.tzinfo is not None:
+        value = value.astimezone(timezone.utc).replace(tzinfo=None)
+    return value.isoformat() + "Z"
 
 
 def provenance_of(answer: Any) -> Provenance | None:
@@ -343,11 +373,13 @@ class Client:
     def request(self, method: str, path: str, **kwargs: Any) -> Any:
         """Any operation, by method and path (``kwargs`` as httpx takes them), decoded by
         :func:`_decode`; an unreachable service raises :class:`ServiceUnreachable`."""
+        return _decode(self._send(method, path, **kwargs))
+
+    def _send(self, method: str, path: str, **kwargs: Any) -> httpx.Response:
         try:
-            response = self._http.request(method, path, **kwargs)
+            return self._http.request(method, path, **kwargs)
         except httpx.TransportError as exc:
             raise ServiceUnreachable(self.base_url, _reason(exc, self.timeout)) from exc
-        return _decode(response)
 
     def _post_json(self, path: str, body: Mapping[str, Any], fmt: Format = "json") -> Any:
         params = {"format": "csv"} if fmt == "csv" else None
@@ -550,3 +582,58 @@ class Client:
     def fit_and_compare(self, request: Mapping[str, Any]) -> dict[str, Any]:
         """POST /v1/fitted-comparisons: fit, compare under the fit, with intervals."""
         return self._post_json("/v1/fitted-comparisons", request)
+
+    # -- saved runs ----------------------------------------------------------------------------
+
+    def save(self, method: str, path: str, **kwargs: Any) -> Saved:
+        """Any operation under /v1/ (as :meth:`request` takes it) with ``save=true``: the
+        answer, sent by the service only once its run is stored, and the run's id. A service
+        whose database cannot take the run answers 503 (a :class:`ProblemError`)."""
+        params = httpx.QueryParams(kwargs.pop("params", None)).set("save", "true")
+        response = self._send(method, path, params=params, **kwargs)
+        answer = _decode(response)
+        run_id = response.headers.get("dualcost-run")
+        if run_id is None:
+            raise UnreadableAnswer(f"{method} {path} with save=true answered without a "
+                                   "Dualcost-Run header: the service did not keep the run")
+        return Saved(run_id, answer)
+
+    def get_run(self, run_id: str) -> dict[str, Any]:
+        """GET /v1/runs/{id}: the saved run (input, answer, version, created, key)."""
+        return self.request("GET", f"/v1/runs/{run_id}")
+
+    def list_runs(self, *, operation: str | None = None, since: str | datetime | None = None,
+                  until: str | datetime | None = None, limit: int | None = None,
+                  before: int | None = None) -> dict[str, Any]:
+        """GET /v1/runs: one page of the caller's runs, newest first (``runs``, and ``next``
+        for the older ones); times as ISO 8601 text or datetimes (naive ones in UTC)."""
+        query = {"operation": operation, "since": _when(since), "until": _when(until),
+                 "limit": limit, "before": before}
+        return self.request("GET", "/v1/runs", params=_query(
+            {k: v for k, v in query.items() if v is not None}))
+
+    def iter_runs(self, *, operation: str | None = None, since: str | datetime | None = None,
+                  until: str | datetime | None = None) -> Iterator[dict[str, Any]]:
+        """Every run :meth:`list_runs` would list, newest first, page after page."""
+        page = self.list_runs(operation=operation, since=since, until=until)
+        while True:
+            yield from page["runs"]
+            if not page.get("next"):
+                return
+            page = self.request("GET", page["next"])
+
+    @overload
+    def rerun(self, run_id: str, *, format: Literal["json"] = ...) -> dict[str, Any]: ...
+    @overload
+    def rerun(self, run_id: str, *, format: Literal["csv"]) -> Table: ...
+
+    def rerun(self, run_id: str, *, format: Format = "json") -> dict[str, Any] | Table:
+        """POST /v1/runs/{id}/rerun: the saved request answered by the running version and
+        compared figure by figure (``identical``, ``differences``); CSV: the differences."""
+        params = {"format": "csv"} if format == "csv" else None
+        return self.request("POST", f"/v1/runs/{run_id}/rerun", params=params)
+
+    def household_job_results(self, job_id: str) -> Table:
+        """GET /v1/household-jobs/{id}/results: a finished job's CSV answer, from any worker
+        (a job not done yet is a 409 :class:`ProblemError`)."""
+        return self.request("GET", f"/v1/household-jobs/{job_id}/results")

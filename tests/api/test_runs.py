@@ -18,10 +18,11 @@ from sqlalchemy import select, update
 from dualcost.api.app import create_app
 from dualcost.api.keeper import Keeper
 from dualcost.api.operations.job_store import utcnow
+from dualcost.api.runs import content_digest
 from dualcost.api.schemas.runs import RerunOut, RunOut, RunPageOut
 from dualcost.canonical import digest_of
 from dualcost.config import Settings
-from dualcost.storage.tables import RunRecord
+from dualcost.storage.tables import RunContent, RunRecord
 from tests.api.test_comparisons import small_request
 from tests.conftest import EXAMPLES, ROOT
 
@@ -32,6 +33,19 @@ B = "wrenmouth-harbour-key-9876543210"
 def service(url: str, **settings: Any) -> TestClient:
     return TestClient(create_app(Settings(examples_dir=EXAMPLES, database_url=url,
                                           **settings)))
+
+
+def replace_content(client: TestClient, run_id: str, field: str, data: bytes,
+                    **values: Any) -> None:
+    """Make the run's input or answer (``field``) ``data``, as an older version might have
+    stored it: a new content under its digest, named by the run."""
+    digest = content_digest(data)
+    with client.app.state.db.transaction() as s:  # type: ignore[attr-defined]
+        if s.get(RunContent, digest) is None:
+            s.add(RunContent(digest=digest, data=data))
+            s.flush()
+        s.execute(update(RunRecord).where(RunRecord.id == run_id)
+                  .values({f"{field}_ref": digest, **values}))
 
 
 def rows(client: TestClient) -> list[RunRecord]:
@@ -102,9 +116,7 @@ def test_a_rerun_gives_the_differences_figure_by_figure(database_url: str) -> No
     # The saved answer as an older version might have written it: one figure otherwise.
     answer = r.json()
     answer["konus"]["base"] += 0.001
-    with client.app.state.db.transaction() as s:  # type: ignore[attr-defined]
-        s.execute(update(RunRecord).where(RunRecord.id == run_id)
-                  .values(answer=orjson.dumps(answer), version="0.0.9"))
+    replace_content(client, run_id, "answer", orjson.dumps(answer), version="0.0.9")
     found = client.post(f"/v1/runs/{run_id}/rerun").json()
     assert not found["identical"] and found["figures_differing"] == 1
     (diff,) = found["differences"]
@@ -124,9 +136,7 @@ def test_a_rerun_whose_input_is_refused_now_reports_the_problem(database_url: st
     run_id = client.post("/v1/comparisons?save=true",
                          json=small_request()).headers["dualcost-run"]
     refused = small_request() | {"model": {"family": "ces", "sigma": -1}}
-    with client.app.state.db.transaction() as s:  # type: ignore[attr-defined]
-        s.execute(update(RunRecord).where(RunRecord.id == run_id)
-                  .values(input=orjson.dumps(refused).decode()))
+    replace_content(client, run_id, "input", orjson.dumps(refused))
     found = client.post(f"/v1/runs/{run_id}/rerun").json()
     assert found["current"]["status"] == 422 and not found["identical"]
     assert found["current"]["problem"]["errors"][0]["pointer"] == "/model/sigma"
@@ -192,3 +202,90 @@ def test_every_operation_offers_save_in_the_openapi_document(database_url: str) 
             offered = (path.startswith("/v1/") and method in ("get", "post")
                        and not path.startswith(("/v1/household-jobs", "/v1/runs")))
             assert ("save" in names) == offered, (method, path)
+
+
+def contents(client: TestClient) -> set[str]:
+    with client.app.state.db.transaction() as s:  # type: ignore[attr-defined]
+        return set(s.scalars(select(RunContent.digest)).all())
+
+
+def test_an_input_and_an_answer_are_stored_once_however_often_asked(database_url: str) -> None:
+    """The same request saved three times: three runs naming one input and one answer, each
+    stored under the SHA-256 of its bytes (hashlib); a new input adds its own two. Once the
+    runs that name a content are removed by the retention period, the content goes too."""
+    client = service(database_url, run_retention_days=30)
+    body = small_request()
+    answers = [client.post("/v1/comparisons?save=true", json=body) for _ in range(3)]
+    assert len({r.headers["dualcost-run"] for r in answers}) == 3
+    answer_digest = "sha256:" + hashlib.sha256(answers[0].content).hexdigest()
+    input_digest = answers[0].headers["dualcost-input-digest"]  # the canonical input's
+    assert contents(client) == {input_digest, answer_digest}
+    assert {(r.input_ref, r.answer_ref) for r in rows(client)} == {(input_digest,
+                                                                    answer_digest)}
+    other = small_request() | {"model": {"family": "ces", "sigma": 0.25}}
+    newer = client.post("/v1/comparisons?save=true", json=other).headers["dualcost-run"]
+    assert len(contents(client)) == 4
+    for r in answers:
+        assert client.get(f"/v1/runs/{r.headers['dualcost-run']}").json()["answer"] == r.json()
+    with client.app.state.db.transaction() as s:  # type: ignore[attr-defined]
+        s.execute(update(RunRecord).where(RunRecord.id != newer)
+                  .values(created=utcnow() - timedelta(days=31)))
+    client.app.state.runs.purge(30)  # type: ignore[attr-defined]
+    (kept,) = rows(client)
+    assert contents(client) == {kept.input_ref, kept.answer_ref}
+    assert client.get(f"/v1/runs/{newer}").json()["input"] == other
+
+
+def test_runs_saved_before_contents_were_shared_are_moved_by_the_migration(
+        database_url: str) -> None:
+    """A database at revision 0001 (input and answer in each run's row), migrated: each run
+    reads as it was saved, its input and answer stored once under their SHA-256 (hashlib)."""
+    from alembic import command
+    from sqlalchemy import column, create_engine, insert, table
+
+    from dualcost.storage import _alembic_config
+
+    engine = create_engine(database_url)
+    answer = orjson.dumps({"konus": {"base": 1.25}})
+    runs = table("runs", *(column(n) for n in (
+        "id", "owner", "operation", "created", "version", "input_digest", "input", "method",
+        "path", "query", "content_type", "accept", "request_body", "status_code",
+        "answer_type", "answer")))
+    with engine.begin() as connection:
+        command.upgrade(_alembic_config(connection), "0001")
+        for run_id in ("a" * 32, "b" * 32):
+            connection.execute(insert(runs).values(
+                id=run_id, owner=None, operation="compare", created=utcnow(), version="0.9",
+                input_digest=digest_of({"x": 1}), input='{"x":1}', method="POST",
+                path="/v1/comparisons", query="", content_type="application/json",
+                accept=None, request_body=b"", status_code=200,
+                answer_type="application/json", answer=answer))
+    engine.dispose()
+    client = service(database_url)
+    for run_id in ("a" * 32, "b" * 32):
+        run = client.get(f"/v1/runs/{run_id}").json()
+        assert run["input"] == {"x": 1} and run["answer"] == {"konus": {"base": 1.25}}
+    assert contents(client) == {digest_of({"x": 1}),
+                                "sha256:" + hashlib.sha256(answer).hexdigest()}
+
+
+def test_a_batch_of_runs_that_cannot_be_stored_leaves_nothing_behind(
+        database_url: str) -> None:
+    """The writer's transaction is all or nothing: a batch whose second run cannot be stored
+    (its id is taken) stores neither run, nor the new input and answer the first had stored
+    in the same transaction, after the attempts a concurrent writer would be given."""
+    from sqlalchemy.exc import IntegrityError
+
+    client = service(database_url)
+    taken = client.post("/v1/comparisons?save=true",
+                        json=small_request()).headers["dualcost-run"]
+    before_rows, before_contents = len(rows(client)), contents(client)
+    (row,) = rows(client)
+    fresh = {c.name: getattr(row, c.name) for c in RunRecord.__table__.columns
+             if c.name not in ("serial", "input_ref", "answer_ref")}
+    batch = [fresh | {"id": "f" * 32, "input": '{"new":1}', "answer": b'{"new":2}'},
+             fresh | {"id": taken, "input": '{"new":3}', "answer": b'{"new":4}'}]
+    with pytest.raises(IntegrityError):
+        client.app.state.runs._commit(batch)  # type: ignore[attr-defined]
+    assert len(rows(client)) == before_rows and contents(client) == before_contents
+    assert client.app.state.db.healthy  # type: ignore[attr-defined]  # refused, not lost

@@ -7,6 +7,7 @@ from __future__ import annotations
 import inspect
 import json
 from collections.abc import Callable
+from datetime import datetime, timedelta, timezone
 from pathlib import Path
 from typing import Any
 
@@ -21,6 +22,7 @@ from dualcost.client import (
     ClientError,
     ProblemError,
     Provenance,
+    Saved,
     ServiceUnreachable,
     Table,
     UnreadableAnswer,
@@ -55,14 +57,14 @@ def answering(response: httpx.Response) -> tuple[Client, list[httpx.Request]]:
 
 def test_the_public_names_are_frozen() -> None:
     assert sorted(dualcost.client.__all__) == [
-        "Cell", "Client", "ClientError", "CsvBody", "ProblemError", "Provenance",
+        "Cell", "Client", "ClientError", "CsvBody", "ProblemError", "Provenance", "Saved",
         "ServiceUnreachable", "Table", "UnreadableAnswer", "input_digest", "parse_cell",
         "provenance_of"]
 
 
 def test_options_are_keyword_only() -> None:
     """After the request (and a job id or a CSV body), every parameter is keyword-only."""
-    leading = {"self", "request", "spec", "job_id", "households", "panel", "data", "method",
+    leading = {"self", "request", "spec", "job_id", "run_id", "households", "panel", "data", "method",
                "path", "base_url"}
     for name, method in inspect.getmembers(Client, inspect.isfunction):
         if name.startswith("_") and name != "__init__":
@@ -394,3 +396,70 @@ def test_a_path_is_read_and_text_is_not_taken_for_a_path(tmp_path: Path) -> None
     client.index_series_csv(str(file))
     assert sent[0].content == b"period,item,price\n1,a,2\n"
     assert sent[1].content == str(file).encode()
+
+
+# -- saved runs -------------------------------------------------------------------------------
+
+
+def test_save_adds_save_true_to_the_query_and_gives_the_run_id() -> None:
+    client, sent = answering(httpx.Response(200, json={"konus": {}},
+                                            headers={"dualcost-run": "ab" * 16}))
+    saved = client.save("GET", "/v1/sheet/value", params={"items": "a,b"})
+    assert saved == Saved("ab" * 16, {"konus": {}})
+    assert dict(sent[0].url.params) == {"items": "a,b", "save": "true"}
+    unsaved, _ = answering(httpx.Response(200, json={}))
+    with pytest.raises(UnreadableAnswer, match="Dualcost-Run"):
+        unsaved.save("POST", "/v1/comparisons", json={})
+
+
+def test_the_runs_listing_takes_times_in_utc_and_follows_its_pages() -> None:
+    pages = {None: {"runs": [{"id": "1"}, {"id": "2"}], "next": "/v1/runs?limit=2&before=7"},
+             "7": {"runs": [{"id": "3"}], "next": None}}
+    sent: list[httpx.Request] = []
+
+    def handler(request: httpx.Request) -> httpx.Response:
+        sent.append(request)
+        return httpx.Response(200, json=pages[request.url.params.get("before")])
+
+    client = mock(handler)
+    since = datetime(2026, 12, 2, 13, 30, tzinfo=timezone(timedelta(hours=1)))
+    assert [r["id"] for r in client.iter_runs(operation="compare", since=since)] == \
+        ["1", "2", "3"]
+    assert dict(sent[0].url.params) == {"operation": "compare",
+                                        "since": "2026-12-02T12:30:00Z"}
+    assert client.list_runs(until="2026-12-02", limit=2)["next"]
+    assert dict(sent[-1].url.params) == {"until": "2026-12-02", "limit": "2"}
+
+
+def test_client_saves_reads_lists_and_reruns_a_run(live_url) -> None:
+    """A saved comparison read back equal to the answer, listed first, and re-run on the
+    same version: identical (JSON), no difference rows (CSV)."""
+    with Client(live_url) as dc:
+        saved = dc.save("POST", "/v1/comparisons", json=small_request())
+        run = dc.get_run(saved.run_id)
+        newest = dc.list_runs(operation="compare", limit=1)["runs"]
+        check = dc.rerun(saved.run_id)
+        table = dc.rerun(saved.run_id, format="csv")
+        with pytest.raises(ProblemError) as missing:
+            dc.get_run("0" * 32)
+    assert run["answer"] == saved.answer and run["input"] == small_request()
+    assert [r["id"] for r in newest] == [saved.run_id]
+    assert check["identical"] and check["figures_differing"] == 0
+    assert table.header[0] == "where" and len(table) == 0
+    assert missing.value.status == 404
+
+
+def test_client_reads_a_finished_household_jobs_results(live_url) -> None:
+    """The results read back later are the rows the upload streamed."""
+    body = load_example("householdIndices.wrenmouth_deciles_ces.json")
+    spec = {k: v for k, v in body.items() if k != "households"}
+    items = [i["id"] for i in body["items"]]
+    lines = [",".join(["household", *items, "expenditure", "weight"])]
+    lines += [",".join([h["id"], *(str(h["shares"][i]) for i in items), str(h["expenditure"]),
+                        str(h["weight"])]) for h in body["households"]]
+    with Client(live_url) as dc:
+        job = dc.create_household_job(spec)
+        streamed = dc.upload_households(job["id"], "\n".join(lines) + "\n")
+        later = dc.household_job_results(job["id"])
+    assert later.header == streamed.header and later.rows == streamed.rows
+    assert later.provenance is not None

@@ -35,6 +35,7 @@ the spreadsheet forms); model fits and household batches always use the threads.
 
 from __future__ import annotations
 
+import contextlib
 import contextvars
 import functools
 import json
@@ -199,11 +200,13 @@ class JsonRoute(APIRoute):
         async def parse_with_pydantic_core(request: Request) -> Response:
             save = saving and runs.asked_to_save(request)
             token = _INLINE_BUDGET.set(_inline_budget(request))
+            coming = runs.coming(request) if save else contextlib.nullcontext()
             try:
-                json_request = JsonRequest(request.scope, request.receive, model)
-                if takes_json:
-                    await check_json_body(json_request)
-                response = await handler(json_request)
+                with coming:
+                    json_request = JsonRequest(request.scope, request.receive, model)
+                    if takes_json:
+                        await check_json_body(json_request)
+                    response = await handler(json_request)
                 if save:
                     response = await runs.keep(json_request, self, response)
                 return response

@@ -13,17 +13,23 @@ The answer is sent only once its run is committed, and says where it is kept in 
 ``Dualcost-Run`` (its id) and ``Link: </v1/runs/{id}>; rel="related"``; a streamed (CSV) answer
 is gathered first. If the database cannot take it, the answer is a 503 problem (with
 Retry-After): a caller that asked for a record never gets an answer without one. Saves are
-written by one thread per process, several to a transaction (:class:`RunWriter`): each request
-waits for its own commit, none waits for a compute thread.
+written by one thread per process, several to a transaction (:class:`RunStore`), off the
+event loop: each request waits for its own commit, none waits for a compute thread. An input or
+an answer is stored once, under the SHA-256 of its bytes (:class:`~dualcost.storage.tables.
+RunContent`), so a request asked again with the same input adds only a small row.
 """
 
 from __future__ import annotations
 
 import asyncio
+import hashlib
 import logging
 import queue
 import threading
+import time
 import uuid
+from collections.abc import Iterator
+from contextlib import contextmanager
 from dataclasses import dataclass
 from datetime import datetime, timedelta
 from typing import Any
@@ -31,12 +37,14 @@ from typing import Any
 import orjson
 from fastapi import Request, Response
 from fastapi.routing import APIRoute
-from sqlalchemy import delete, insert, select
+from sqlalchemy import delete, insert, select, union
+from sqlalchemy.exc import IntegrityError
+from sqlalchemy.orm import joinedload
 from starlette.responses import StreamingResponse
 
 from ..canonical import canonical_json
 from ..storage import Database
-from ..storage.tables import RunRecord
+from ..storage.tables import RunContent, RunRecord
 from .operations.job_store import owner_of, utcnow
 from .problems import RequestProblem, RunNotFound
 from .provenance import PRESENTATION, Provenance, attached, service_version
@@ -47,6 +55,13 @@ NOT_SAVED = ("/v1/household-jobs", "/v1/runs")
 RUN_HEADER = "Dualcost-Run"
 #: Runs written in one transaction at most.
 BATCH = 256
+#: How long the writer waits at most, after a run arrives, for the runs still being computed
+#: in this process to share its commit (seconds): under load a commit then carries many runs
+#: instead of one, each commit's own work (a transaction, the look-up of the contents already
+#: stored) shared between them. With nothing else coming, a run is committed at once.
+LINGER = 0.025
+#: Times a batch is tried when another writer stored one of its contents at the same moment.
+ATTEMPTS = 3
 SAVE_TEXT = ("Keep a record of this run (true; default false): the canonical input, the "
              "answer, the service version, the time and the API key's SHA-256, under the id "
              "in the Dualcost-Run header, for GET /v1/runs/{id} and POST "
@@ -91,6 +106,9 @@ class RunStore:
         self._queue: queue.SimpleQueue[_Pending] = queue.SimpleQueue()
         self._writer: threading.Thread | None = None
         self._lock = threading.Lock()
+        #: Requests of this process that asked for save and are computing (counted on the
+        #: event loop, read by the writer thread).
+        self.coming = 0
 
     # -- writing ------------------------------------------------------------------------------
 
@@ -112,16 +130,10 @@ class RunStore:
 
     def _write(self) -> None:
         while True:
-            batch = [self._queue.get()]
-            while len(batch) < BATCH:
-                try:
-                    batch.append(self._queue.get_nowait())
-                except queue.Empty:
-                    break
+            batch = self._gather()
             outcome: BaseException | None = None
             try:
-                with self.db.transaction() as s:
-                    s.execute(insert(RunRecord), [p.record for p in batch])
+                self._commit([p.record for p in batch])
             except Exception as exc:
                 outcome = exc
             for pending in batch:
@@ -130,20 +142,77 @@ class RunStore:
                 except RuntimeError:  # its event loop has closed: nobody waits any more
                     pass
 
+    def _gather(self) -> list[_Pending]:
+        """The next runs to commit: the first to come, those already waiting, and, while
+        requests that will save are still computing, those that come within :data:`LINGER`
+        of it (at most :data:`BATCH`)."""
+        batch = [self._queue.get()]
+        until = time.monotonic() + LINGER
+        while len(batch) < BATCH:
+            try:
+                batch.append(self._queue.get_nowait())
+                continue
+            except queue.Empty:
+                pass
+            left = until - time.monotonic()
+            if self.coming <= 0 or left <= 0:
+                break
+            try:
+                batch.append(self._queue.get(timeout=min(left, 0.002)))
+            except queue.Empty:
+                continue
+        return batch
+
+    def _commit(self, records: list[dict[str, Any]]) -> None:
+        """Store ``records`` (each with its ``input`` text and ``answer`` bytes) in one
+        transaction: the contents not yet stored, then the runs naming them."""
+        contents: dict[str, bytes] = {}
+        rows = []
+        for record in records:
+            row = {k: v for k, v in record.items() if k not in ("input", "answer")}
+            for name, data in (("input_ref", record["input"].encode()),
+                               ("answer_ref", record["answer"])):
+                row[name] = content_digest(data)
+                contents[row[name]] = data
+            rows.append(row)
+        for attempt in range(ATTEMPTS):
+            try:
+                with self.db.transaction() as s:
+                    known = set(s.scalars(select(RunContent.digest)
+                                          .where(RunContent.digest.in_(contents))))
+                    new = [{"digest": d, "data": v} for d, v in contents.items()
+                           if d not in known]
+                    if new:
+                        s.execute(insert(RunContent), new)
+                    s.execute(insert(RunRecord), rows)
+                return
+            except IntegrityError:  # another worker stored one of these contents meanwhile
+                if attempt == ATTEMPTS - 1:
+                    raise
+
     def purge(self, days: float | None) -> int:
-        """Remove the runs older than ``days`` (none when None); how many went."""
+        """Remove the runs older than ``days`` (none when None), then the inputs and answers
+        no run names any more; how many runs went."""
         if days is None:
             return 0
         with self.db.transaction() as s:
             result = s.execute(delete(RunRecord)
                                .where(RunRecord.created < utcnow() - timedelta(days=days)))
+        named = union(select(RunRecord.input_ref), select(RunRecord.answer_ref))
+        try:
+            with self.db.transaction() as s:
+                s.execute(delete(RunContent).where(RunContent.digest.not_in(named)))
+        except IntegrityError:  # a run just saved names one of them: they go next time
+            log.info("unnamed run contents left for the next round (a run was being saved)")
         return int(getattr(result, "rowcount", 0) or 0)
 
     # -- reading ------------------------------------------------------------------------------
 
     def get(self, run_id: str, owner: str | None) -> RunRecord:
         with self.db.transaction() as s:
-            row = s.scalar(select(RunRecord).where(RunRecord.id == run_id))
+            row = s.scalar(select(RunRecord).where(RunRecord.id == run_id)
+                           .options(joinedload(RunRecord.input_content),
+                                    joinedload(RunRecord.answer_content)))
         if row is None or row.owner != owner:
             raise RunNotFound(f"no saved run {run_id!r} (none was saved with this id, it was "
                               "removed by the retention period, or it was saved with another "
@@ -167,6 +236,11 @@ class RunStore:
             return list(s.scalars(query.order_by(RunRecord.serial.desc()).limit(limit)).all())
 
 
+def content_digest(data: bytes) -> str:
+    """The name a run's input or answer is stored under: ``sha256:`` and the hex digest."""
+    return "sha256:" + hashlib.sha256(data).hexdigest()
+
+
 def _settle(done: asyncio.Future[None], outcome: BaseException | None) -> None:
     if done.done():
         return
@@ -177,6 +251,17 @@ def _settle(done: asyncio.Future[None], outcome: BaseException | None) -> None:
 
 
 # -- the hook ---------------------------------------------------------------------------------
+
+
+@contextmanager
+def coming(request: Request) -> Iterator[None]:
+    """While a request that asked for save computes: the writer may wait for its run."""
+    store: RunStore = request.app.state.runs
+    store.coming += 1
+    try:
+        yield
+    finally:
+        store.coming -= 1
 
 
 async def keep(request: Request, route: APIRoute, response: Response) -> Response:

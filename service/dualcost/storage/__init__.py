@@ -12,6 +12,12 @@ the web layer answers 503 with Retry-After. ``/ready`` reads :attr:`Database.hea
 a probe (a read of its smallest table) sets after such a failure, and each keeper round sets:
 false while the database cannot be reached, true again once it can (a database that is only
 busy stays healthy).
+
+SQLite is opened in write-ahead-log mode with ``synchronous=NORMAL`` and its foreign keys
+enforced (:func:`_sqlite_pragmas`): a commit is not flushed to the disk each time, only at
+checkpoints, so a committed change survives a crash of the process but the last ones may be
+lost to a power failure or a crash of the operating system (the database stays consistent).
+PostgreSQL keeps its own settings (``synchronous_commit``).
 """
 
 from __future__ import annotations
@@ -20,12 +26,13 @@ import threading
 from collections.abc import Iterator
 from contextlib import contextmanager
 from pathlib import Path
+from typing import Any
 
 from alembic import command
 from alembic.config import Config
 from alembic.runtime.migration import MigrationContext
 from alembic.script import ScriptDirectory
-from sqlalchemy import Engine, create_engine, select
+from sqlalchemy import Engine, create_engine, event, select
 from sqlalchemy.exc import DBAPIError, InterfaceError, OperationalError
 from sqlalchemy.exc import TimeoutError as PoolTimeout
 from sqlalchemy.orm import Session, sessionmaker
@@ -63,6 +70,8 @@ class Database:
     def __init__(self, url: str) -> None:
         self.url = url
         self.engine: Engine = create_engine(url, pool_pre_ping=True)
+        if self.engine.dialect.name == "sqlite":
+            event.listen(self.engine, "connect", _sqlite_pragmas)
         self.sessions = sessionmaker(self.engine, expire_on_commit=False)
         self.healthy = True
         self._migrated = False
@@ -112,6 +121,20 @@ class Database:
         else:
             self.healthy = True
         return self.healthy
+
+
+def _sqlite_pragmas(connection: Any, _record: object) -> None:
+    """Each new SQLite connection: the write-ahead log, with a flush to the disk at each
+    checkpoint rather than at each commit (committed runs survive a crash of the process; a
+    power failure may lose the last ones), readers never waiting for the writer, and foreign
+    keys enforced (SQLite leaves them off unless asked)."""
+    cursor = connection.cursor()
+    try:
+        cursor.execute("PRAGMA journal_mode=WAL")
+        cursor.execute("PRAGMA synchronous=NORMAL")
+        cursor.execute("PRAGMA foreign_keys=ON")
+    finally:
+        cursor.close()
 
 
 def _reason(exc: Exception) -> str:

@@ -3,15 +3,17 @@
 The schema is created and changed only by the migrations in ``migrations/versions`` (Alembic),
 applied at start-up; these classes say how the code reads and writes it, and a test checks
 that the two agree. Times are UTC, stored without a zone (every database keeps them alike).
-Texts of JSON are written by orjson, so no database's JSON type is relied on.
+Texts of JSON are written by orjson, so no database's JSON type is relied on. A run's input
+and answer are kept once per distinct content (:class:`RunContent`, by the SHA-256 of its
+bytes), so a run asked again with the same input adds only its own small row.
 """
 
 from __future__ import annotations
 
 from datetime import datetime
 
-from sqlalchemy import DateTime, Integer, LargeBinary, String, Text
-from sqlalchemy.orm import DeclarativeBase, Mapped, mapped_column
+from sqlalchemy import DateTime, ForeignKey, Integer, LargeBinary, String, Text
+from sqlalchemy.orm import DeclarativeBase, Mapped, mapped_column, relationship
 
 
 class Base(DeclarativeBase):
@@ -57,9 +59,22 @@ class JobResultPiece(Base):
     text: Mapped[str] = mapped_column(Text)
 
 
+class RunContent(Base):
+    """An input or an answer of saved runs, kept once: its bytes under ``sha256:<hex>`` of them.
+    Removed with the last run that names it (the retention); a foreign key from each run keeps
+    one from going while a run names it."""
+
+    __tablename__ = "run_contents"
+    digest: Mapped[str] = mapped_column(String(80), primary_key=True)
+    data: Mapped[bytes] = mapped_column(LargeBinary)
+
+
 class RunRecord(Base):
     """A saved run: what was asked (the canonical input, and the request as sent, to run it
-    again), what was answered, by which version, when, and for which key (its SHA-256 only)."""
+    again), what was answered, by which version, when, and for which key (its SHA-256 only).
+    The input (canonical JSON, UTF-8) and the answer (its bytes as sent) are
+    :class:`RunContent` rows, named by their digests; :attr:`input` and :attr:`answer` read
+    them (loaded with the run by :meth:`~dualcost.api.runs.RunStore.get`)."""
 
     __tablename__ = "runs"
     serial: Mapped[int] = mapped_column(Integer, primary_key=True, autoincrement=True)
@@ -69,7 +84,8 @@ class RunRecord(Base):
     created: Mapped[datetime] = mapped_column(DateTime, index=True)
     version: Mapped[str] = mapped_column(String(64))
     input_digest: Mapped[str] = mapped_column(String(80), index=True)
-    input: Mapped[str] = mapped_column(Text)
+    input_ref: Mapped[str] = mapped_column(
+        ForeignKey("run_contents.digest", name="fk_runs_input_ref"), index=True)
     method: Mapped[str] = mapped_column(String(10))
     path: Mapped[str] = mapped_column(Text)
     query: Mapped[str] = mapped_column(Text)
@@ -78,4 +94,17 @@ class RunRecord(Base):
     request_body: Mapped[bytes] = mapped_column(LargeBinary)
     status_code: Mapped[int] = mapped_column(Integer)
     answer_type: Mapped[str] = mapped_column(String(200))
-    answer: Mapped[bytes] = mapped_column(LargeBinary)
+    answer_ref: Mapped[str] = mapped_column(
+        ForeignKey("run_contents.digest", name="fk_runs_answer_ref"), index=True)
+    input_content: Mapped[RunContent] = relationship(foreign_keys=[input_ref], lazy="raise")
+    answer_content: Mapped[RunContent] = relationship(foreign_keys=[answer_ref], lazy="raise")
+
+    @property
+    def input(self) -> str:
+        """The canonical input, as text."""
+        return self.input_content.data.decode()
+
+    @property
+    def answer(self) -> bytes:
+        """The answer's bytes, as sent."""
+        return self.answer_content.data
