@@ -20,4 +20,4 @@ from . import (
 
 ROUTERS = [comparisons.router, series.router, audit.router, catalogue.router, service.router,
            sheets.router, households.router, fits.router, uprating.router, index_tree.router,
-           revealed.router, sensitivity.router, runs.router]
+           index_tree.sheet_router, revealed.router, sensitivity.router, runs.router]
