@@ -13,6 +13,7 @@ from __future__ import annotations
 from typing import Annotated, Any, Literal
 
 from pydantic import Field, model_validator
+from typing_extensions import Self
 
 from .common import (
     SHARE_UNIT_TEXT,
@@ -67,8 +68,10 @@ class PointIn(StrictModel):
     expenditure: FiniteFloat = Field(description="Total expenditure m.")
 
 
-class FitRequest(StrictModel):
-    """Budget data of T observations and the model to fit."""
+class BudgetData(StrictModel):
+    """Budget data of T observations of the same items: prices, and the spending as exactly
+    one of shares (with total expenditure), expenditures or quantities (POST /v1/fits and POST
+    /v1/fitted-sensitivity)."""
 
     items: list[ItemIn] = Field(min_length=2, description="The items, in a fixed order.")
     observations: list[ObservationLabel] | None = Field(
@@ -86,6 +89,22 @@ class FitRequest(StrictModel):
         None, description="A survey weight per observation, above zero (default: all 1).")
     normalise_shares: bool = Field(
         False, description="Divide shares that do not sum to 1 by their sum; the answer says so.")
+    share_unit: ShareUnit = Field("fraction", description=SHARE_UNIT_TEXT)
+
+    @model_validator(mode="after")
+    def _one_kind_of_spending(self) -> Self:
+        given = [k for k in ("shares", "expenditures", "quantities") if getattr(self, k) is not None]
+        if len(given) != 1:
+            raise ValueError("give the spending as exactly one of shares (with total_expenditure), "
+                             f"expenditures or quantities; got {', '.join(given) or 'none'}")
+        if (self.shares is None) != (self.total_expenditure is None):
+            raise ValueError("total_expenditure goes with shares, and shares need it")
+        return self
+
+
+class FitRequest(BudgetData):
+    """Budget data of T observations and the model to fit."""
+
     share_unit: ShareUnit = Field(
         "fraction", description=SHARE_UNIT_TEXT + " It applies to shares (and, in a fitted "
         "comparison, to comparison.base.shares and comparison.weight_reference.shares).")
@@ -97,17 +116,6 @@ class FitRequest(StrictModel):
     max_iterations: StrictInt = Field(200, ge=1, le=1000, description="Of the iterated least squares.")
     residuals: bool = Field(True, description="Include each observation's fitted shares and "
                             "residuals.")
-
-    @model_validator(mode="after")
-    def _one_kind_of_spending(self) -> FitRequest:
-        given = [k for k in ("shares", "expenditures", "quantities") if getattr(self, k) is not None]
-        if len(given) != 1:
-            raise ValueError("give the spending as exactly one of shares (with total_expenditure), "
-                             f"expenditures or quantities; got {', '.join(given) or 'none'}")
-        if (self.shares is None) != (self.total_expenditure is None):
-            raise ValueError("total_expenditure goes with shares, and shares need it")
-        return self
-
 
 class FitBaseIn(StrictModel):
     """Base-period prices and total expenditure; the bundle, as quantities or shares, is optional:

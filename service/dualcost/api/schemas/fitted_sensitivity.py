@@ -8,28 +8,24 @@ families to fit to them, each as POST /v1/fits takes its ``model``; ``comparison
 
 from __future__ import annotations
 
-from pydantic import Field, model_validator
+from pydantic import Field
 
 from .common import (
     CAUTION,
-    SHARE_UNIT_TEXT,
     FiniteFloat,
-    ItemIn,
     NoticeOut,
     ProvenanceOut,
     ScaleOut,
-    ShareUnit,
     StrictInt,
     StrictModel,
 )
 from .comparison import ComparisonOut
 from .estimation import (
+    BudgetData,
     FitComparisonIn,
     FitModelIn,
     FitOut,
     IntervalsOut,
-    ObservationLabel,
-    Row,
     UncertaintyIn,
 )
 
@@ -37,26 +33,9 @@ from .estimation import (
 MAX_FAMILIES = 8
 
 
-class FittedSensitivityRequest(StrictModel):
+class FittedSensitivityRequest(BudgetData):
     """Budget data, the families to fit to them, and one price change compared under each."""
 
-    items: list[ItemIn] = Field(min_length=2, description="The items, in a fixed order.")
-    observations: list[ObservationLabel] | None = Field(
-        None, description="A label per observation (default: 1, 2, ...).")
-    prices: list[Row] = Field(min_length=1, description="One row of prices per observation.")
-    shares: list[Row] | None = Field(None, description="Budget shares, one row per observation, "
-                                     "each in [0, 1] and summing to 1 (with total_expenditure).")
-    total_expenditure: list[FiniteFloat] | None = Field(
-        None, description="Total expenditure of each observation (with shares).")
-    expenditures: list[Row] | None = Field(
-        None, description="Money spent on each item, one row per observation (instead of shares).")
-    quantities: list[Row] | None = Field(
-        None, description="Quantities bought, one row per observation (instead of shares).")
-    weights: list[FiniteFloat] | None = Field(
-        None, description="A survey weight per observation, above zero (default: all 1).")
-    normalise_shares: bool = Field(
-        False, description="Divide shares that do not sum to 1 by their sum; the answer says so.")
-    share_unit: ShareUnit = Field("fraction", description=SHARE_UNIT_TEXT)
     families: list[FitModelIn] = Field(
         min_length=1, max_length=MAX_FAMILIES, description="The families to fit to the same "
         "data, each as POST /v1/fits takes its `model` (the band runs across them).")
@@ -65,16 +44,6 @@ class FittedSensitivityRequest(StrictModel):
                                       "least squares.")
     comparison: FitComparisonIn
     uncertainty: UncertaintyIn = Field(default_factory=UncertaintyIn)
-
-    @model_validator(mode="after")
-    def _one_kind_of_spending(self) -> FittedSensitivityRequest:
-        given = [k for k in ("shares", "expenditures", "quantities") if getattr(self, k) is not None]
-        if len(given) != 1:
-            raise ValueError("give the spending as exactly one of shares (with total_expenditure), "
-                             f"expenditures or quantities; got {', '.join(given) or 'none'}")
-        if (self.shares is None) != (self.total_expenditure is None):
-            raise ValueError("total_expenditure goes with shares, and shares need it")
-        return self
 
 
 class FittedFamilyOut(StrictModel):
