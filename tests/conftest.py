@@ -31,6 +31,11 @@ EXAMPLES = ROOT / "openapi_examples"
 os.environ["DUALCOST_DATA_DIR"] = tempfile.mkdtemp(prefix="dualcost-tests-")
 atexit.register(shutil.rmtree, os.environ["DUALCOST_DATA_DIR"], True)
 os.environ.pop("DUALCOST_DATABASE_URL", None)
+# All the session's apps (and the live server) share that one job table. With the default of 32
+# jobs, the jobs other tests created and never uploaded to filled it, so a test's own finished
+# job was the one replaced by its next job (the replacement policy takes finished jobs first)
+# and read back as 404. The policy itself is tested on tables of its own (test_job_owners.py).
+os.environ["DUALCOST_MAX_HOUSEHOLD_JOBS"] = "100000"
 
 
 @pytest.fixture(scope="session")
