@@ -57,6 +57,13 @@ Decimal = Annotated[DecimalMark, Query(
     description="The decimal mark of the numbers in the query and in the answer. comma: read "
                 "'2,40' as 2.4 (vectors then separated by ';'), write decimal commas, and "
                 "separate a CSV answer's fields by ';'.")]
+#: The panel of the series forms (series and uprating): items, then each period's prices (and
+#: quantities) as repeated parameters in period order.
+ItemsQuery = Annotated[str, Query(description="Item ids, comma-separated: the order of every row.")]
+PricesQuery = Annotated[list[str], Query(description="Repeated once per period, in period "
+                                                     "order: that period's prices in item order.")]
+QuantitiesQuery = Annotated[list[str] | None, Query(description="Repeated once per period, like "
+                                                                 "prices (optional).")]
 Vector = Annotated[str | None, Query(description="Numbers in the order of items, separated by "
                                      "commas (or all by semicolons), '.' as decimal point; "
                                      "with decimal=comma, ',' as decimal mark and separated by "
@@ -188,12 +195,10 @@ def sheet_value(params: ComparisonQuery, request: Request,
 @inline_when_cheap(workload.of_sheet_series)
 def sheet_series(
     request: Request,
-    items: Annotated[str, Query(description="Item ids, comma-separated: the order of every row.")],
+    items: ItemsQuery,
     periods: Annotated[str, Query(description="Period labels, comma-separated, in time order.")],
-    prices: Annotated[list[str], Query(description="Repeated once per period, in period order: "
-                                                   "that period's prices in item order.")],
-    quantities: Annotated[list[str] | None, Query(description="Repeated once per period, like "
-                                                               "prices (optional).")] = None,
+    prices: PricesQuery,
+    quantities: QuantitiesQuery = None,
     base_period: str | None = None,
     reference_period: str | None = None,
     reference_value: Annotated[int | None, Query(description="1 or 100 (default 100).")] = None,
@@ -255,16 +260,14 @@ CLAUSE_PLACES = {
 @inline_when_cheap(workload.of_sheet_series)
 def sheet_uprating(
     request: Request,
-    items: Annotated[str, Query(description="Item ids, comma-separated: the order of every row.")],
+    items: ItemsQuery,
     periods: Annotated[str, Query(description="Period labels (dates), comma-separated.")],
-    prices: Annotated[list[str], Query(description="Repeated once per period, in period order: "
-                                                   "that period's prices in item order.")],
+    prices: PricesQuery,
     measure: Annotated[str, Query(description="twelve_month, annual_average or cumulative.")],
     lag: Annotated[int, Query(description="Periods from the measure period to the payment.")],
     index: Annotated[str, Query(description="The index whose factor to give: a formula name, "
                                             "or konus (needs family).")],
-    quantities: Annotated[list[str] | None, Query(description="Repeated once per period, like "
-                                                               "prices (optional).")] = None,
+    quantities: QuantitiesQuery = None,
     period_of_year: Annotated[int | None, Query(description="Month or quarter the change is "
                                                             "read in.")] = None,
     since: Annotated[str | None, Query(description="cumulative: the period it counts "
