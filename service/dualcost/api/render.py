@@ -8,7 +8,8 @@
   with '.' as the decimal point, empty cells for missing values, lines ending CRLF (RFC 4180).
 - Plain text: one value, for a spreadsheet cell.
 - Parquet (``application/vnd.apache.parquet``): a household job's rows, one row group per chunk,
-  nulls where the CSV has empty cells, the provenance and the caution in the file's key-value
+  and the table of any other answer that has a CSV table (:func:`parquet_response`): nulls
+  where the CSV has empty cells, the provenance and the caution in the file's key-value
   metadata as well as in the headers.
 - Provenance (:mod:`dualcost.api.provenance`): a JSON answer ends with a ``provenance`` member
   (service, version, input digest); every answer, JSON or not, carries ``Dualcost-Version`` and
@@ -287,6 +288,53 @@ def parquet_stream(pieces: Iterator[bytes], *, provenance: Provenance,
                              headers={**(headers or {}), **provenance_headers(provenance)})
 
 
+def parquet_metadata(provenance: Provenance) -> dict[str, str]:
+    """The provenance and the caution, as a Parquet answer's key-value metadata."""
+    return {"dualcost-version": provenance.version,
+            "dualcost-input-digest": provenance.input_digest, "dualcost-caution": CAUTION}
+
+
+def parquet_response(header: Sequence[str], rows: Iterable[Sequence[Any]], *,
+                     provenance: Provenance, filename: str | None = None,
+                     headers: dict[str, str] | None = None) -> Response:
+    """The table a CSV answer writes (:func:`csv_response`), as a Parquet file: a column of
+    numbers as float64 (int64 where all are whole ``int``), of booleans as bool, any other as
+    text; null where the CSV has an empty cell (None, or a number that is not finite). The
+    provenance and the caution are in the headers and the file's key-value metadata."""
+    import pyarrow as pa
+    import pyarrow.parquet as pq
+
+    columns = list(zip(*rows, strict=True)) or [() for _ in header]
+    table = pa.Table.from_arrays([_arrow_column(c) for c in columns], names=list(header))
+    sink = pa.BufferOutputStream()
+    pq.write_table(table.replace_schema_metadata(parquet_metadata(provenance)), sink)
+    headers = {**(headers or {}), **provenance_headers(provenance)}
+    if filename:
+        headers["content-disposition"] = f'inline; filename="{filename}"'
+    response = Response(sink.getvalue().to_pybytes(), media_type=PARQUET_MEDIA_TYPE,
+                        headers=headers)
+    attach(response, provenance)
+    return response
+
+
+def _arrow_column(values: Sequence[Any]) -> Any:
+    """One column of a table as Arrow: see :func:`parquet_response`."""
+    import pyarrow as pa
+
+    given = [v for v in values if v is not None]
+    if not given:  # a column of figures none of which is given (an annual average)
+        return pa.nulls(len(values), pa.float64())
+    if all(isinstance(v, bool) for v in given):
+        return pa.array(values, type=pa.bool_())
+    if all(type(v) is int for v in given):
+        return pa.array(values, type=pa.int64())
+    if all(isinstance(v, (int, float)) and not isinstance(v, bool) for v in given):
+        return pa.array([v if v is not None and math.isfinite(v) else None for v in values],
+                        type=pa.float64())
+    return pa.array([None if v is None or format_cell(v) == "" else format_cell(v)
+                     for v in values], type=pa.string())
+
+
 def trailed(pieces: Iterator[str], provenance: Provenance, delimiter: str = ",") -> Iterator[str]:
     """``pieces`` of a CSV answer, then its :func:`trailer_rows`."""
     width = None
@@ -347,6 +395,9 @@ def fixed_point(value: float, digits: int | None) -> str:
 
 
 CSV_ANSWER: dict[str, Any] = {"content": {CSV_MEDIA_TYPE: {"schema": {"type": "string"}}}}
+#: An answer that is JSON, a CSV table or the same table as a Parquet file.
+PARQUET_ANSWER: dict[str, Any] = {"content": {
+    **CSV_ANSWER["content"], PARQUET_MEDIA_TYPE: {"schema": {"type": "string", "format": "binary"}}}}
 
 
 def format_query(offers: Sequence[Format]) -> Any:

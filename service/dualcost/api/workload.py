@@ -162,7 +162,10 @@ def of_series(arguments: Mapping[str, Any]) -> float:
 
 
 def of_series_csv(arguments: Mapping[str, Any]) -> float:
-    return series_csv(arguments["text"], arguments.get("model"))
+    upload = arguments["upload"]
+    if upload.text is None:  # a Parquet file: pyarrow reads it in a compute thread
+        return math.inf
+    return series_csv(upload.text, arguments.get("model"))
 
 
 def of_sheet_comparison(arguments: Mapping[str, Any]) -> float:

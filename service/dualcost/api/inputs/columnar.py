@@ -228,6 +228,20 @@ def parquet_problem(exc: Exception, size: int) -> RequestProblem:
 _NUMERIC = (pa.types.is_integer, pa.types.is_floating, pa.types.is_decimal)
 
 
+def numeric_type_errors(schema: Any, names: Sequence[str]) -> list[FieldError]:
+    """A problem for each of the columns ``names`` that the file has and that does not hold
+    numbers (``#column=<name>``)."""
+    errors = []
+    for name in names:
+        j = schema.get_field_index(name) if name in schema.names else -1
+        if j >= 0:
+            kind = schema.field(j).type
+            if not any(test(kind) for test in _NUMERIC):
+                errors.append(FieldError(f"#column={name}", f"column {name!r} holds {kind}, not "
+                                         "numbers (give integers, floats or decimals)"))
+    return errors
+
+
 def parquet_columns(schema: Any, item_ids: Sequence[str], *, needs_income: bool,
                     reserved: tuple[str, str, str]) -> tuple[Columns, list[str]]:
     """The columns of a household Parquet file by name, and the names not used; a missing
@@ -245,12 +259,7 @@ def parquet_columns(schema: Any, item_ids: Sequence[str], *, needs_income: bool,
         ": give one column per item holding each household's base share" if name != income_name
         else ": this model is not homothetic and needs each household's income"))
         for name in wanted if name not in seen][:20]
-    for name in [*item_ids, income_name, weight_name]:
-        if name in seen:
-            kind = schema.field(seen[name]).type
-            if not any(test(kind) for test in _NUMERIC):
-                errors.append(FieldError(f"#column={name}", f"column {name!r} holds {kind}, not "
-                                         "numbers (give integers, floats or decimals)"))
+    errors += numeric_type_errors(schema, [*item_ids, income_name, weight_name])
     if errors:
         raise RequestProblem(errors[:20])
     used = set(item_ids) | set(reserved)

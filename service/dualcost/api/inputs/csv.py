@@ -327,6 +327,9 @@ class Table:
     columns: dict[str, list[Any]]
     records: list[int]
     dialect: Dialect
+    #: Read from a Parquet file (:mod:`.parquet_tables`): ``records`` are its rows, from 1,
+    #: and the dialect says nothing.
+    parquet: bool = False
 
     def __len__(self) -> int:
         return len(self.records)
@@ -465,6 +468,49 @@ def _order(error: FieldError) -> tuple[int, int]:
     """Errors in the order of the file: by row, then by column."""
     found = re.match(r"#(?:cell|row)=(\d+)(?:,(\d+))?", error.pointer)
     return (int(found.group(1)), int(found.group(2) or 0)) if found else (0, 0)
+
+
+# -- any table, as the page loads it -------------------------------------------------------------
+
+#: A cell that looks like a number under either decimal mark (the columns that decide the mark).
+_NUMBERISH = re.compile(r"[+-]?(?:\d+(?:[.,]\d*)?|[.,]\d+)(?:[eE][+-]?\d+)?")
+#: A whole number with a leading zero (an id such as 007): its column stays text.
+_LEADING_ZERO = re.compile(r"[+-]?0\d")
+
+
+def read_cells(text: str, *, max_cells: int, declared: DeclaredDialect | None = None
+               ) -> tuple[Table, set[str]]:
+    """Every column of a CSV text, in the declared or detected dialect (:func:`read_table`'s
+    rules for the records), and the names of its numeric columns: a column is numeric when
+    every cell that is not empty is a number in the dialect and none is written with a leading
+    zero (an id such as ``007`` stays text); its empty cells are ``None``. The decimal mark is
+    detected from the cells that look like numbers. More than ``max_cells`` cells (rows times
+    columns) is refused."""
+    declared = (declared or DeclaredDialect()).checked()
+    raw = read_table(text, required=(), declared=DeclaredDialect(declared.separator, "point"))
+    width = max(1, len(raw.header))
+    if len(raw) * width > max_cells:
+        raise RequestProblem.at(f"#row={raw.records[max_cells // width]}", f"the CSV has "
+                                f"{len(raw)} rows of {width} columns, more than {max_cells} "
+                                "cells, the limit")
+    looks = [name for name, cells in raw.columns.items()
+             if all(not c or _NUMBERISH.fullmatch(c) for c in cells)]
+    head = [[raw.columns[name][k] for name in looks] for k in range(min(len(raw),
+                                                                         DETECTION_ROWS))]
+    decimal, reason = decimal_of(raw.dialect.separator, declared, head, range(len(looks)))
+    detected = {k: v for k, v in raw.dialect.detected.items() if k == "separator"}
+    if reason:
+        detected["decimal"] = reason
+    dialect = Dialect(raw.dialect.separator, decimal, detected)
+    numeric = set()
+    for name in looks:
+        cells = raw.columns[name]
+        values = [dialect.parse(c) if c else None for c in cells]
+        if all(v is not None for v, c in zip(values, cells, strict=True) if c) and not any(
+                _LEADING_ZERO.match(c) and "." not in c and "," not in c for c in cells):
+            raw.columns[name] = values
+            numeric.add(name)
+    return Table(raw.header, raw.columns, raw.records, dialect), numeric
 
 
 # -- a stream of records (household jobs) -------------------------------------------------------

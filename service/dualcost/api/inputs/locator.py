@@ -82,9 +82,23 @@ class CsvRows:
     parquet: bool = False
 
     def cell(self, column: str | None, t: int | None, i: int | None) -> str:
-        record = self.record(t, i)
+        return self.at(self.record(t, i), column)
+
+    def at(self, record: int, column: str | None = None) -> str:
+        """The place of ``record`` (a CSV record, the header being 1; a Parquet row, from 1) and
+        ``column``: ``#cell=<record>,<number>`` or ``#row=<row>&column=<name>``; the record
+        alone where the column is not known."""
+        if self.parquet:
+            return f"#row={record}" + (f"&column={column}" if column in self.columns else "")
         number = self.columns.get(column or "")
         return f"#cell={record},{number}" if number else f"#row={record}"
+
+    def header(self, column: str | None = None) -> str:
+        """The place of a column as a whole: the CSV header row, a Parquet file's column (the
+        whole file where no column is named)."""
+        if self.parquet:
+            return f"#column={column}" if column else ""
+        return "#row=1"
 
     def record(self, t: int | None, i: int | None) -> int:
         if t is None:
@@ -193,8 +207,10 @@ class Locator:
     def _csv_pointer(self, place: Place, index: Any) -> str:
         assert self.csv is not None
         if place.column is not None and place.column.startswith("#"):  # a fixed fragment
-            return place.column
+            return self.csv.header() if place.column == "#row=1" else place.column
         parts = index if isinstance(index, tuple) else (() if index is None else (index,))
+        if not parts and self.csv.parquet:  # a Parquet file's column, by name
+            return self.csv.header(place.column if place.column in self.csv.columns else None)
         if not parts:  # the whole column of a value per row, or the header
             column = self.csv.columns.get(place.column or "")
             whole = self.csv.whole_column and place.column not in ("item", "period")

@@ -19,7 +19,15 @@ import numpy as np
 from numpy.typing import NDArray
 
 from ..problems import FieldError, RequestProblem
-from .csv import SEPARATORS, DeclaredDialect, Dialect, read_table, records_of, separator_of
+from .csv import (
+    SEPARATORS,
+    DeclaredDialect,
+    Dialect,
+    Table,
+    read_table,
+    records_of,
+    separator_of,
+)
 from .items import ItemAxis
 from .locator import CsvRows, Locator, Place
 
@@ -37,6 +45,14 @@ CSV_DESCRIPTION = (
     "by `separator` and `decimal` or detected (stated in `notices`, code "
     "`csv_dialect_detected`); no grouping of thousands. Errors name the row and column "
     "(`#cell=row,column`, RFC 7111)."
+)
+PARQUET_DESCRIPTION = (
+    "The same columns may come as a Parquet file (Content-Type "
+    "`application/vnd.apache.parquet`), found by name: `price`, the spending column, "
+    "`total_expenditure` and `weight` hold numbers (integers, floats or decimals), the others "
+    "text (or integers, dates); a null `weight` is an empty cell. Errors name the column "
+    "(`#column=price`) or the cell (`#row=3&column=price`, rows from 1), or the byte where a "
+    "file that cannot be read breaks."
 )
 #: The spending a request gives: its JSON field, its CSV column, and the total's field and column.
 SPENDING = {
@@ -147,17 +163,31 @@ def _labels(given: Sequence[str | int] | None, n_obs: int) -> list[str]:
     return labels
 
 
-def _csv_kind(columns: dict[str, int]) -> tuple[list[str], str]:
+def _csv_kind(where: CsvRows) -> tuple[list[str], str]:
+    columns = where.columns
     keys: list[str] = [c for c in ("observation", "period") if c in columns]
     if not keys:
-        raise RequestProblem.at("#row=1", "the header needs a column 'observation' (a household "
-                                "id) or 'period', or both")
+        raise RequestProblem.at(where.header(), "the upload needs a column 'observation' (a "
+                                "household id) or 'period', or both")
     kinds: list[str] = [c for c in ("share", "expenditure", "quantity") if c in columns]
     if len(kinds) != 1:
-        raise RequestProblem.at("#row=1", "the header needs exactly one spending column: 'share' "
-                                "(with 'total_expenditure'), 'expenditure' or 'quantity'; it has "
-                                f"{', '.join(kinds) or 'none'}")
+        raise RequestProblem.at(where.header(), "the upload needs exactly one spending column: "
+                                "'share' (with 'total_expenditure'), 'expenditure' or "
+                                f"'quantity'; it has {', '.join(kinds) or 'none'}")
     return keys, kinds[0]
+
+
+def _columns(header: list[str], loc: Locator, *, parquet: bool = False
+             ) -> tuple[CsvRows, list[str], str, list[str]]:
+    """Where the upload's columns are; its key columns, its spending column and its numeric
+    columns (the locator bound to the kind of spending)."""
+    where = CsvRows(columns={h: j + 1 for j, h in enumerate(header)}, default_record=1,
+                    whole_column=True, parquet=parquet)
+    loc.csv = where
+    keys, column = _csv_kind(where)
+    bind(loc, {"share": "shares", "expenditure": "expenditures", "quantity": "quantities"}[column])
+    numeric = ["price", column] + (["total_expenditure"] if column == "share" else [])
+    return where, keys, column, numeric
 
 
 def from_csv(text: str, loc: Locator, *, max_rows: int,
@@ -167,18 +197,29 @@ def from_csv(text: str, loc: Locator, *, max_rows: int,
     (:mod:`dualcost.api.inputs.csv`)."""
     declared = (declared or DeclaredDialect()).checked()
     text = text.lstrip("\ufeff")
-    header = _header_names(text, declared)
-    where = CsvRows(columns={h: j + 1 for j, h in enumerate(header)}, default_record=1,
-                    whole_column=True)
-    loc.csv = where
-    keys, column = _csv_kind(where.columns)
-    kind = {"share": "shares", "expenditure": "expenditures", "quantity": "quantities"}[column]
-    bind(loc, kind)
-    numeric = ["price", column] + (["total_expenditure"] if column == "share" else [])
+    where, keys, column, numeric = _columns(_header_names(text, declared), loc)
     table = read_table(text, required=keys + ["item"] + numeric, numeric=numeric,
                        optional_numeric=["weight"], max_rows=max_rows, declared=declared)
+    return replace(_from_table(table, where, keys, column, loc), dialect=table.dialect)
+
+
+def from_parquet(data: bytes, loc: Locator, *, max_rows: int) -> Observations:
+    """The long form of :func:`from_csv` as a Parquet file: the same columns, by name
+    (:mod:`dualcost.api.inputs.parquet_tables`)."""
+    from .parquet_tables import opened, parquet_table  # pyarrow only for Parquet uploads
+
+    header = list(opened(data).schema_arrow.names)
+    where, keys, column, numeric = _columns(header, loc, parquet=True)
+    table = parquet_table(data, required=keys + ["item"] + numeric, numeric=numeric,
+                          optional_numeric=["weight"], text=["label"], max_rows=max_rows)
+    return _from_table(table, where, keys, column, loc)
+
+
+def _from_table(table: Table, where: CsvRows, keys: list[str], column: str,
+                loc: Locator) -> Observations:
     if not len(table):
-        raise RequestProblem.at("#row=2", "the CSV has a header but no rows")
+        raise RequestProblem.at(where.at(2 - table.parquet), "the upload has column names but "
+                                "no rows")
     csv_table = _CsvTable(keys, column, where)
     for record, row in zip(table.records, table.rows(), strict=True):
         csv_table.add(row, record)
@@ -186,7 +227,7 @@ def from_csv(text: str, loc: Locator, *, max_rows: int,
             break
     if csv_table.errors:
         raise RequestProblem(csv_table.errors)
-    return replace(csv_table.observations(loc), dialect=table.dialect)
+    return csv_table.observations(loc)
 
 
 def _header_names(text: str, declared: DeclaredDialect) -> list[str]:
@@ -218,7 +259,7 @@ class _CsvTable:
         t, item = self.obs[key], row["item"]
         if item not in self.items:
             if t != 0:
-                self._stop(FieldError(f"#cell={record},{self.where.columns['item']}", f"item "
+                self._stop(FieldError(self.where.at(record, "item"), f"item "
                                       f"{item!r} is not among the items of the first observation: "
                                       "every observation must list the same items"))
                 return
@@ -227,7 +268,7 @@ class _CsvTable:
             self.labels[item] = row.get("label") or None
         i = self.items[item]
         if (t, i) in self.where.cells:
-            self._stop(FieldError(f"#row={record}", f"observation {' '.join(key)!r} lists item "
+            self._stop(FieldError(self.where.at(record), f"observation {' '.join(key)!r} lists item "
                                   f"{item!r} twice (rows {self.where.cells[(t, i)]} and {record})"))
             return
         self.where.cells[(t, i)] = record
@@ -243,14 +284,13 @@ class _CsvTable:
             if name not in self.where.columns:
                 continue
             value = row[name]
-            column = self.where.columns[name]
+            at = self.where.at(record, name)
             if value is None:
-                self.errors.append(FieldError(f"#cell={record},{column}", f"column {name!r} is "
-                                              "empty"))
+                self.errors.append(FieldError(at, f"column {name!r} is empty"))
                 continue
             seen = self.per_obs[name].setdefault(t, (value, record))
             if seen[0] != value:
-                self.errors.append(FieldError(f"#cell={record},{column}", f"column {name!r} is "
+                self.errors.append(FieldError(at, f"column {name!r} is "
                                               f"{value!r} here but {seen[0]!r} on row {seen[1]}: "
                                               "it is one number per observation"))
 
@@ -259,7 +299,7 @@ class _CsvTable:
         for key, t in self.obs.items():
             missing = [it for it, i in self.items.items() if (t, i) not in self.where.cells]
             if missing:
-                raise RequestProblem.at(f"#row={self.where.first[t]}", f"observation "
+                raise RequestProblem.at(self.where.at(self.where.first[t]), f"observation "
                                         f"{' '.join(key)!r} has no row for item(s) "
                                         f"{', '.join(map(repr, missing[:5]))}: every observation "
                                         "must list the same items")

@@ -25,6 +25,7 @@ from .locator import CsvRows, Locator
 Array = NDArray[np.float64]
 
 CSV_COLUMNS = ("period", "item", "price")
+OPTIONAL_NUMBERS = ("quantity", "expenditure")
 #: The panel's vectors: the core argument, the JSON field and the CSV column are one name here.
 PANEL_FIELDS = ("prices", "quantities", "expenditures")
 
@@ -121,12 +122,30 @@ def panel_from_csv(text: str, limits: Limits, loc: Locator,
     """Long form: one record per period and item; records grouped by period, in time order.
     The dialect is as declared, or detected (:mod:`dualcost.api.inputs.csv`)."""
     table = read_table(text, required=CSV_COLUMNS, numeric=("price",),
-                       optional_numeric=("quantity", "expenditure"), max_rows=limits.cells,
+                       optional_numeric=OPTIONAL_NUMBERS, max_rows=limits.cells,
                        declared=declared)
-    where = CsvRows(columns={h: j + 1 for j, h in enumerate(table.header)})
+    return panel_from_table(table, limits, loc)
+
+
+def panel_from_parquet(data: bytes, limits: Limits, loc: Locator) -> PanelArrays:
+    """The long form of :func:`panel_from_csv` as a Parquet file: the same columns, by name
+    (:mod:`dualcost.api.inputs.parquet_tables`)."""
+    from .parquet_tables import parquet_table  # pyarrow only for Parquet uploads
+
+    table = parquet_table(data, required=CSV_COLUMNS, numeric=("price",),
+                          optional_numeric=OPTIONAL_NUMBERS, text=("label",),
+                          max_rows=limits.cells)
+    return panel_from_table(table, limits, loc)
+
+
+def panel_from_table(table: Table, limits: Limits, loc: Locator) -> PanelArrays:
+    """The panel of a long table read from a CSV or a Parquet upload."""
+    where = CsvRows(columns={h: j + 1 for j, h in enumerate(table.header)},
+                    parquet=table.parquet)
     loc.csv = where
     if not len(table):
-        raise RequestProblem([FieldError("#row=2", "the CSV has a header but no rows")])
+        raise RequestProblem([FieldError(where.at(2 - table.parquet),
+                                         "the upload has column names but no rows")])
     periods, ids, labels, t_at, i_at = _read_records(table, where)
     loc.items = ids
     _check_limits(len(periods), len(ids), limits, loc)
@@ -136,7 +155,8 @@ def panel_from_csv(text: str, limits: Limits, loc: Locator,
     prices[t_at, i_at] = table.columns["price"]
     quantities = _optional(table, "quantity", shape, t_at, i_at)
     expenditures = _optional(table, "expenditure", shape, t_at, i_at)
-    return PanelArrays(periods, axis, prices, quantities, expenditures, table.dialect)
+    return PanelArrays(periods, axis, prices, quantities, expenditures,
+                       None if table.parquet else table.dialect)
 
 
 def _optional(table: Table, column: str, shape: tuple[int, int], t_at: NDArray[np.intp],
@@ -168,7 +188,7 @@ def _read_records(table: Table, where: CsvRows
         k = int(back[0]) + 1
         earlier = int(np.flatnonzero(t_at[:k] == t_at[k])[-1])
         raise RequestProblem([FieldError(
-            f"#cell={records[k]},{where.columns['period']}", f"period {period_column[k]!r} "
+            where.at(int(records[k]), "period"), f"period {period_column[k]!r} "
             f"appears again after period {period_column[earlier + 1]!r} began: rows must be "
             "grouped by period, in time order")])
     n_items = len(item_pos)
@@ -179,7 +199,7 @@ def _read_records(table: Table, where: CsvRows
         second = order[twice + 1]
         j = int(np.argmin(second))
         k, first = int(second[j]), int(order[twice[j]])
-        raise RequestProblem([FieldError(f"#row={records[k]}", f"period {period_column[k]!r} and "
+        raise RequestProblem([FieldError(where.at(int(records[k])), f"period {period_column[k]!r} and "
                                          f"item {item_column[k]!r} were already given in row "
                                          f"{records[first]}")])
     _, first_of_period = np.unique(t_at, return_index=True)

@@ -65,7 +65,7 @@ from ..inputs.items import ItemAxis
 from ..inputs.locator import CsvRows, Locator
 from ..problems import RequestProblem
 from ..provenance import Provenance, of_job
-from ..render import PARQUET_MEDIA_TYPE
+from ..render import PARQUET_MEDIA_TYPE, parquet_metadata
 from ..schemas.common import CAUTION
 from ..schemas.households import HouseholdJobSpec
 from . import households
@@ -447,12 +447,6 @@ def _failure(exc: Exception) -> str:
         first = exc.errors[0]
         return f"{first.pointer}: {first.detail}" if first.pointer else first.detail
     return f"{type(exc).__name__}: {exc}"
-
-
-def parquet_metadata(provenance: Provenance) -> dict[str, str]:
-    """The provenance and the caution, as a Parquet answer's key-value metadata."""
-    return {"dualcost-version": provenance.version,
-            "dualcost-input-digest": provenance.input_digest, "dualcost-caution": CAUTION}
 
 
 def run_to_file(state: JobState, chunks: Iterator[HouseholdChunk], scheduler: Any,

@@ -11,18 +11,20 @@ from pydantic import BeforeValidator
 
 from ..deps import settings_of
 from ..inputs import observations
-from ..inputs.csv import CSV_REQUEST_BODY, DecimalParam, DeclaredDialect, SeparatorParam, csv_body
+from ..inputs.csv import DecimalParam, DeclaredDialect, SeparatorParam
 from ..inputs.json_text import in_float_range
+from ..inputs.uploads import TABLE_REQUEST_BODY, TableUpload, table_upload
 from ..operations import fits, fitted
 from ..provenance import Provenance, UploadSha256, of_body, of_upload, query_of
 from ..render import (
-    CSV_ANSWER,
+    PARQUET_ANSWER,
     Format,
     ProvenanceQuery,
     csv_response,
     format_query,
     json_response,
     negotiate,
+    parquet_response,
 )
 from ..routing import JsonRoute
 from ..schemas.common import SHARE_UNIT_TEXT, ShareUnit
@@ -31,13 +33,14 @@ from ..schemas.estimation import FitAndCompareRequest, FitAndCompareResponse, Fi
 router = APIRouter(route_class=JsonRoute, prefix="/v1", tags=["estimation"])
 
 RESPONSES: dict[int | str, dict[str, Any]] = {
-    200: {"description": "The fit; as CSV (the parameter table) when asked (Accept: text/csv, "
-                         "or format=csv).", **CSV_ANSWER},
+    200: {"description": "The fit; its parameter table when asked: CSV (Accept: text/csv, or "
+                         "format=csv) or Parquet (Accept: application/vnd.apache.parquet, or "
+                         "format=parquet).", **PARQUET_ANSWER},
     422: {"description": "The request breaks a rule, or the fit does not converge (RFC 9457 "
                          "problem details)."},
 }
-OFFERS: tuple[Format, ...] = ("json", "csv")
-FormatParam = Annotated[Literal["json", "csv"] | None, format_query(OFFERS)]
+OFFERS: tuple[Format, ...] = ("json", "csv", "parquet")
+FormatParam = Annotated[Literal["json", "csv", "parquet"] | None, format_query(OFFERS)]
 
 DESCRIPTION = """\
 Fits a preference family to budget data of T observations (households, periods, or households in
@@ -64,6 +67,9 @@ Slutsky matrix that is not negative semidefinite. `model` in the answer is the f
 
 
 def _answer(outcome: fits.Outcome, fmt: str, provenance: Provenance, place: str) -> Response:
+    if fmt == "parquet":
+        return parquet_response(fits.PARAMETER_COLUMNS, fits.parameter_rows(outcome),
+                                provenance=provenance, filename="fit-parameters.parquet")
     if fmt == "csv":
         dialect = outcome.data.dialect
         return csv_response(fits.PARAMETER_COLUMNS, fits.parameter_rows(outcome),
@@ -87,12 +93,14 @@ def fit_model(body: FitRequest, request: Request, format: FormatParam = None,
 
 
 @router.post("/fits/csv", operation_id="fitModelCsv", response_model=FitResponse,
-             responses=RESPONSES, openapi_extra=CSV_REQUEST_BODY,
-             summary="Fit a preference model to budget data uploaded as CSV in long form",
-             description=observations.CSV_DESCRIPTION + " Options are query parameters (`tree` "
+             responses=RESPONSES, openapi_extra=TABLE_REQUEST_BODY,
+             summary="Fit a preference model to budget data uploaded as CSV (or Parquet) in "
+                     "long form",
+             description=observations.CSV_DESCRIPTION + " " + observations.PARQUET_DESCRIPTION
+             + " Options are query parameters (`tree` "
              "as JSON text); elasticities are at the sample's geometric means.\n\n" + DESCRIPTION)
 def fit_model_csv(
-    text: Annotated[str, Depends(csv_body)],
+    upload: Annotated[TableUpload, Depends(table_upload)],
     csv_sha256: UploadSha256,
     request: Request,
     family: Annotated[Literal["ces", "nested_ces", "stone_geary", "aids", "quaids"], Query()],
@@ -122,8 +130,11 @@ def fit_model_csv(
     spec = fits.model_from_query(dict(family=family, estimator=estimator,
                                       restrictions=restrictions, quadratic=quadratic,
                                       price_terms=price_terms, alpha0=alpha0, tree=tree), loc)
-    data = observations.from_csv(text, loc, max_rows=settings.max_fit_cells,
-                                 declared=DeclaredDialect(separator, decimal))
+    declared = upload.dialect(DeclaredDialect(separator, decimal))
+    data = (observations.from_parquet(upload.data, loc, max_rows=settings.max_fit_cells)
+            if upload.data is not None else
+            observations.from_csv(upload.text or "", loc, max_rows=settings.max_fit_cells,
+                                  declared=declared))
     options = fits.Options(confidence_level, max_iterations, normalise_shares, residuals,
                            share_unit=share_unit)
     outcome = fits.run(data, spec, options, settings, loc, "fitModelCsv")

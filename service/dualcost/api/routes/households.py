@@ -40,6 +40,7 @@ from ..render import (
     format_query,
     json_response,
     negotiate,
+    parquet_metadata,
     parquet_stream,
     provenance_headers,
     trailed,
@@ -284,7 +285,7 @@ def get_household_job_results(job_id: str, request: Request,
     origin = Provenance(row.input_digest)
     if fmt == "parquet":
         return parquet_stream(households.parquet_of_csv(store.pieces(job_id),
-                                                        jobs.parquet_metadata(origin)),
+                                                        parquet_metadata(origin)),
                               provenance=origin, headers=dict(SCALE_HEADERS))
     return csv_stream(store.pieces(job_id), provenance=origin,
                       trailer=provenance == "trailer", headers=dict(SCALE_HEADERS))

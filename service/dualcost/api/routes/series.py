@@ -11,21 +11,23 @@ from pydantic import BeforeValidator
 
 from .. import workload
 from ..deps import settings_of
-from ..inputs.csv import CSV_REQUEST_BODY, DecimalParam, DeclaredDialect, SeparatorParam, csv_body
+from ..inputs.csv import DecimalParam, DeclaredDialect, SeparatorParam
 from ..inputs.json_text import in_float_range
-from ..inputs.panels import panel_from_csv, panel_from_json
+from ..inputs.panels import panel_from_csv, panel_from_json, panel_from_parquet
 from ..inputs.query import validated
+from ..inputs.uploads import TABLE_REQUEST_BODY, TableUpload, table_upload
 from ..operations import series
 from ..operations.answers import scale_headers
 from ..provenance import Provenance, UploadSha256, of_body, of_upload, query_of
 from ..render import (
-    CSV_ANSWER,
+    PARQUET_ANSWER,
     Format,
     ProvenanceQuery,
     csv_response,
     format_query,
     json_response,
     negotiate,
+    parquet_response,
 )
 from ..routing import JsonRoute, inline_when_cheap
 from ..schemas.series import SeriesOptions, SeriesRequest, SeriesResponse
@@ -33,11 +35,12 @@ from ..schemas.series import SeriesOptions, SeriesRequest, SeriesResponse
 router = APIRouter(route_class=JsonRoute, prefix="/v1", tags=["series"])
 
 RESPONSES: dict[int | str, dict[str, Any]] = {
-    200: {"description": "The series as JSON, or as a CSV table with one row per period when "
-                         "asked (Accept: text/csv, or format=csv).", **CSV_ANSWER},
+    200: {"description": "The series as JSON, or as a table with one row per period when "
+                         "asked: CSV (Accept: text/csv, or format=csv) or Parquet (Accept: "
+                         "application/vnd.apache.parquet, or format=parquet).", **PARQUET_ANSWER},
 }
-OFFERS: tuple[Format, ...] = ("json", "csv")
-FormatParam = Annotated[Literal["json", "csv"] | None, format_query(OFFERS)]
+OFFERS: tuple[Format, ...] = ("json", "csv", "parquet")
+FormatParam = Annotated[Literal["json", "csv", "parquet"] | None, format_query(OFFERS)]
 
 DESCRIPTION = """\
 For every formula, the **fixed-base** series (direct comparisons with the base period) and the
@@ -79,16 +82,25 @@ CSV_DESCRIPTION = (
     "Fields may be quoted (RFC 4180); fields separated by `,`, `;` or a tab and numbers with "
     "`.` or `,` as decimal mark, declared by `separator` and `decimal` or detected (stated in "
     "`notices`, code `csv_dialect_detected`); no grouping of thousands. "
-    "Errors name the row and column (`#cell=row,column`, RFC 7111).\n\n")
+    "Errors name the row and column (`#cell=row,column`, RFC 7111).\n\n"
+    "The same columns may come as a Parquet file (Content-Type "
+    "`application/vnd.apache.parquet`), found by name: `price`, `quantity` and `expenditure` "
+    "hold numbers (integers, floats or decimals), `period`, `item` and `label` text (or "
+    "integers, dates); a null `quantity` or `expenditure` is an empty cell. Errors name the "
+    "column (`#column=price`) or the cell (`#row=3&column=price`, rows from 1), or the byte "
+    "where a file that cannot be read breaks.\n\n")
 
 
 def _answer(outcome: series.Outcome, fmt: str, provenance: Provenance, place: str) -> Response:
-    if fmt == "csv":
+    if fmt in ("csv", "parquet"):
         header, rows = series.table(outcome)
         dialect = outcome.dialect
         headers = scale_headers(series.scale(outcome)) | series.revealed_headers(outcome)
         if dialect is not None:
             headers |= dialect.headers()
+        if fmt == "parquet":
+            return parquet_response(header, rows, provenance=provenance,
+                                    filename="index-series.parquet", headers=headers)
         return csv_response(header, rows, provenance=provenance, trailer=place == "trailer",
                             filename="index-series.csv", headers=headers)
     return json_response(series.document(outcome), provenance=provenance)
@@ -110,12 +122,13 @@ def index_series(body: SeriesRequest, request: Request, format: FormatParam = No
 
 
 @router.post("/index-series/csv", operation_id="indexSeriesFromCsv",
-             summary="Index series from a CSV panel in long form (one row per period and item)",
+             summary="Index series from a CSV (or Parquet) panel in long form (one row per "
+                     "period and item)",
              description=CSV_DESCRIPTION + DESCRIPTION, response_model=SeriesResponse,
-             responses=RESPONSES, openapi_extra=CSV_REQUEST_BODY)
+             responses=RESPONSES, openapi_extra=TABLE_REQUEST_BODY)
 @inline_when_cheap(workload.of_series_csv)
 def index_series_from_csv(
-    text: Annotated[str, Depends(csv_body)],
+    upload: Annotated[TableUpload, Depends(table_upload)],
     csv_sha256: UploadSha256,
     request: Request,
     base_period: Annotated[str | None, Query(description="Base (price-reference) period.")] = None,
@@ -149,7 +162,10 @@ def index_series_from_csv(
     settings = settings_of(request)
     loc = series.locator("csv")
     options = validated(SeriesOptions, series.options_body(query), loc)
-    panel = panel_from_csv(text, series.limits(settings), loc, DeclaredDialect(separator, decimal))
+    declared = upload.dialect(DeclaredDialect(separator, decimal))
+    panel = (panel_from_parquet(upload.data, series.limits(settings), loc)
+             if upload.data is not None else
+             panel_from_csv(upload.text or "", series.limits(settings), loc, declared))
     origin = of_upload(csv_sha256, query_of(request.query_params.multi_items(), query))
     return _answer(series.run(options, panel, settings, loc, "indexSeriesFromCsv"), fmt, origin,
                    provenance)
