@@ -15,9 +15,11 @@ from . import (
     series,
     service,
     sheets,
+    tables,
     uprating,
 )
 
 ROUTERS = [comparisons.router, series.router, audit.router, catalogue.router, service.router,
            sheets.router, households.router, fits.router, uprating.router, index_tree.router,
-           index_tree.sheet_router, revealed.router, sensitivity.router, runs.router]
+           index_tree.sheet_router, revealed.router, sensitivity.router, runs.router,
+           tables.router]
