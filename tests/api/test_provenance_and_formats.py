@@ -483,6 +483,8 @@ def _requests(client: TestClient) -> dict[str, tuple[str, str, dict[str, Any]]]:
             "sensitivity.stone_geary_pensioner_frisch.json")}),
         "fittedSensitivity": ("POST", "/v1/fitted-sensitivity", {"json": load_example(
             "fittedSensitivity.wrenmouth_quarterly_three_families.json")}),
+        "readTable": ("POST", "/v1/tables", {"content": six_commodity_csv().encode(),
+                                             **csv_upload}),
     }
 
 
@@ -521,7 +523,7 @@ def test_every_operation_is_covered(client: TestClient) -> None:
      "demo", "sheetValue", "sheetComparison", "sheetSeries", "uprating", "sheetUprating",
      "indexTree", "sheetIndexTree", "sheetSweep", "revealedPreference", "sensitivity",
      "getHouseholdJobResults", "getRun", "listRuns", "rerunRun", "fittedSensitivity",
-     "upratingFromIndexTree", "indexTreeFromCsv"]))
+     "upratingFromIndexTree", "indexTreeFromCsv", "readTable"]))
 def test_an_accept_header_that_admits_nothing_gets_406(client: TestClient, operation: str) -> None:
     method, path, kwargs = _requests(client)[operation]
     headers = {**kwargs.pop("headers", {}), "accept": "image/png"}

@@ -359,7 +359,7 @@ function renderForm() {
   const form = $("form");
   const picker = el("select", { id: "scenario" });
   for (const s of scenarios(view)) picker.append(el("option", { value: s.id, text: s.title, selected: s.id === state.scenario }));
-  const file = el("input", { id: "upload", type: "file", accept: ".csv,text/csv" });
+  const file = el("input", { id: "upload", type: "file", accept: ".csv,text/csv,.parquet,application/vnd.apache.parquet" });
   file.addEventListener("change", () => uploadCsv(file).catch(showFailure));
   const parts = [
     el("div", { class: "row" },
@@ -728,19 +728,48 @@ function splitCsv(text) {
   return lines.map((l) => l.split(sep).map((c) => c.trim().replace(/^"(.*)"$/, "$1")));
 }
 
+// A file the page cannot read as text (a Parquet file) is read by the service (POST /v1/tables)
+// into the same header and rows, each row named by its place in the file as the service names it.
+async function readsAsText(file) {
+  if (/\.parquet$/i.test(file.name)) return false;
+  const head = new Uint8Array(await file.slice(0, 4096).arrayBuffer());
+  return !(String.fromCharCode(...head.slice(0, 4)) === "PAR1" || head.includes(0));
+}
+
+// "#row=3&column=price", "#column=price", "#cell=3,2", "#row=3" as the person reads them.
+function filePlace(pointer) {
+  const p = new URLSearchParams(String(pointer || "").replace(/^#/, ""));
+  const cell = p.has("cell") ? p.get("cell").split(",") : [];
+  return [cell[0] || p.get("row"), cell[1] || p.get("column")].map((v, k) => (!v ? null
+    : k === 0 ? `row ${v}` : /^\d+$/.test(v) ? `column ${v}` : `column '${v}'`)).filter(Boolean).join(", ");
+}
+
+async function readByService(file) {
+  const r = await fetch("/v1/tables", { method: "POST", body: file,
+    headers: { ...headers("application/json"), "content-type": "application/vnd.apache.parquet" } });
+  const a = await r.json();
+  if (!r.ok) {
+    const errors = a.errors && a.errors.length ? a.errors : [{ pointer: "", detail: a.detail }];
+    throw new Located(errors.map((e) => `${[file.name, filePlace(e.pointer)].filter(Boolean).join(", ")}: ${e.detail}`).join(" "));
+  }
+  return { rows: [a.columns, ...a.rows.map((cells) => cells.map((c) => (c === null ? "" : String(c))))],
+    rowAt: (i) => a.row_numbers[i] };
+}
+
 async function uploadCsv(input) {
   const file = input.files[0];
   if (!file) return;
-  const rows = splitCsv(await file.text());
+  const { rows, rowAt } = (await readsAsText(file)) ? { rows: splitCsv(await file.text()), rowAt: (i) => i + 2 }
+    : await readByService(file);
   if (rows.length < 2) throw new Located(`${file.name}: give a header row and at least one row.`);
   const header = rows[0];
   const records = rows.slice(1).map((cells, i) => {
     if (cells.length !== header.length) {
       const comma = cells.length > header.length && cells.some((c) => /^\d+$/.test(c));
-      throw new Located(`${file.name}, row ${i + 2}: ${cells.length} cells, but the header has ${header.length}`
+      throw new Located(`${file.name}, row ${rowAt(i)}: ${cells.length} cells, but the header has ${header.length}`
         + (comma ? ". A decimal comma splits a number in two: write 2.52, not 2,52 (or separate the cells with ';')." : "."));
     }
-    return Object.fromEntries(header.map((h, c) => [h, { text: cells[c], where: `${file.name}, row ${i + 2}, column '${h}'` }]));
+    return Object.fromEntries(header.map((h, c) => [h, { text: cells[c], where: `${file.name}, row ${rowAt(i)}, column '${h}'` }]));
   });
   const need = state.view.csv.required || [];
   for (const col of need) {

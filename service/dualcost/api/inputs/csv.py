@@ -478,12 +478,25 @@ _NUMBERISH = re.compile(r"[+-]?(?:\d+(?:[.,]\d*)?|[.,]\d+)(?:[eE][+-]?\d+)?")
 _LEADING_ZERO = re.compile(r"[+-]?0\d")
 
 
+#: A whole number of at most 15 digits: an int in JSON (exactly a double too).
+_WHOLE = re.compile(r"[+-]?\d{1,15}")
+
+
+def _cell_number(cell: str, dialect: Dialect) -> int | float | None:
+    """A cell of a numeric column: a whole number as an int, any other as a float (None: not a
+    number, or empty)."""
+    if not cell:
+        return None
+    return int(cell) if _WHOLE.fullmatch(cell) else dialect.parse(cell)
+
+
 def read_cells(text: str, *, max_cells: int, declared: DeclaredDialect | None = None
                ) -> tuple[Table, set[str]]:
     """Every column of a CSV text, in the declared or detected dialect (:func:`read_table`'s
     rules for the records), and the names of its numeric columns: a column is numeric when
     every cell that is not empty is a number in the dialect and none is written with a leading
-    zero (an id such as ``007`` stays text); its empty cells are ``None``. The decimal mark is
+    zero (an id such as ``007`` stays text); its empty cells are ``None``, its whole numbers (of
+    up to 15 digits) ints. The decimal mark is
     detected from the cells that look like numbers. More than ``max_cells`` cells (rows times
     columns) is refused."""
     declared = (declared or DeclaredDialect()).checked()
@@ -505,7 +518,7 @@ def read_cells(text: str, *, max_cells: int, declared: DeclaredDialect | None = 
     numeric = set()
     for name in looks:
         cells = raw.columns[name]
-        values = [dialect.parse(c) if c else None for c in cells]
+        values = [_cell_number(c, dialect) for c in cells]
         if all(v is not None for v, c in zip(values, cells, strict=True) if c) and not any(
                 _LEADING_ZERO.match(c) and "." not in c and "," not in c for c in cells):
             raw.columns[name] = values
