@@ -105,7 +105,7 @@ def answer_json(answers: dict[str, tuple[int, str]], path: str) -> Any:
 
 def test_the_readme_shows_a_command_for_each_worked_example(answers) -> None:
     assert set(answers) == {"/v1/comparisons", "/v1/index-series/csv", "/v1/fits",
-                            "/v1/fitted-comparisons"}
+                            "/v1/fitted-comparisons", "/v1/tables"}
 
 
 def test_every_curl_command_answers_2xx(answers) -> None:
@@ -139,6 +139,12 @@ def test_the_csv_series_example_uses_a_shipped_file_and_states_its_last_row(answ
     assert as_written(float(last["laspeyres_fixed_base"]), laspeyres) == laspeyres
     assert as_written(float(last["fisher_fixed_base"]), fisher) == fisher
     assert next(r for r in rows if r["period"] == "2025-01")["laspeyres_fixed_base"] == "100.0"
+
+
+def test_the_parquet_panel_gives_the_csv_panel_s_series_row_for_row(answers) -> None:
+    """The shipped panel, turned into Parquet by POST /v1/tables and uploaded as Parquet, gives
+    the CSV upload's series table, byte for byte."""
+    assert answers["/v1/tables"][1] == answers["/v1/index-series/csv"][1]
 
 
 def test_the_fit_example_states_its_figures(answers) -> None:

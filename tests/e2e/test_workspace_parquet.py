@@ -15,13 +15,10 @@ import pyarrow.parquet as pq
 import pytest
 
 from tests.conftest import ROOT, load_example
-from tests.e2e.test_workspace import (  # noqa: F401  (the fixture, reused)
-    browser,
-    compute,
-    open_view,
-    sent_and_answer,
-    wait,
-)
+from tests.e2e import test_workspace as tw
+from tests.e2e.test_workspace import compute, open_view, sent_and_answer, wait
+
+browser = tw.browser  # the fixture, reused
 
 webdriver = pytest.importorskip("selenium.webdriver")
 from selenium.webdriver.common.by import By  # noqa: E402

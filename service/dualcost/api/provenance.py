@@ -17,7 +17,8 @@ number). The canonical input is:
   ``24e-1``) have the same digest; any changed value changes it, and so does a field given
   explicitly with its default value. A pipeline recomputes it from the body it sent with any
   RFC 8785 implementation and SHA-256 (:func:`canonical_json`, :func:`digest_of`).
-- **a CSV upload** (``/v1/index-series/csv``, ``/v1/fits/csv``): the object
+- **a CSV or Parquet upload** (``/v1/index-series/csv``, ``/v1/fits/csv``, ``/v1/tables``): the
+  object
   ``{"csv_sha256": <SHA-256 of the body's bytes, hex>, "query": {<parameter>: <text>}}`` with
   the operation's query parameters as sent (percent-decoded text; a repeated one as a list),
   leaving out ``format`` and ``provenance``. The bytes are hashed as sent, before any parsing,
