@@ -343,3 +343,16 @@ def test_the_operations_document_both_upload_forms_and_answers(client: Any) -> N
         assert PARQUET in op["responses"]["200"]["content"], path
     for path in ("/v1/index-series", "/v1/fits"):
         assert PARQUET in doc["paths"][path]["post"]["responses"]["200"]["content"], path
+
+
+def test_a_parquet_upload_and_answer_are_kept_and_rerun_figure_by_figure(client: Any) -> None:
+    data = as_parquet(panel_records())
+    r = client.post(SERIES, content=data, params={"reference_value": 1, "save": "true",
+                                                  "format": "parquet"},
+                    headers={"content-type": PARQUET})
+    assert r.status_code == 200, r.text
+    kept = client.get(f"/v1/runs/{r.headers['dualcost-run']}").json()
+    assert kept["answer_type"] == PARQUET
+    again = client.post(f"/v1/runs/{kept['id']}/rerun").json()
+    names, rows, _ = read_back(r)
+    assert again["identical"] and again["figures_compared"] == len(names) * (len(rows) + 1)

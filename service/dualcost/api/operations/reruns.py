@@ -8,7 +8,8 @@ the new answer is compared with the saved one:
   other value (text, true/false, null) by equality; a member present in one answer only is a
   difference. The ``provenance`` member is left out (its version may differ by design);
 - a CSV answer cell by cell (``#cell=row,column``, RFC 7111, the header row is 1), numbers as
-  numbers, and the provenance trailer rows left out; a plain-text answer as one value.
+  numbers, and the provenance trailer rows left out; a Parquet answer (the table of a CSV
+  answer) the same way, its column names as row 1; a plain-text answer as one value.
 
 A figure is the same when it is equal, bit for bit; otherwise its difference (current − saved)
 and relative difference are given. A new answer that is a problem (the input is refused on
@@ -32,7 +33,7 @@ from starlette.types import Message
 from ...storage.tables import RunRecord
 from ..problems import RunNotFound
 from ..provenance import service_version
-from ..render import TRAILER_KEYS
+from ..render import PARQUET_MEDIA_TYPE, TRAILER_KEYS, format_cell
 
 #: Differences listed at most (all are counted).
 MAX_LISTED = 1000
@@ -143,8 +144,9 @@ def differences(row: RunRecord, new: Rerun) -> Differences:
             saved.pop("provenance", None)
             current.pop("provenance", None)
         _walk(found, "", saved, current)
-    elif row.answer_type.startswith("text/csv"):
-        old_rows, new_rows = _rows(row.answer), _rows(new.body)
+    elif row.answer_type.startswith(("text/csv", PARQUET_MEDIA_TYPE)):
+        read = _parquet_rows if row.answer_type.startswith(PARQUET_MEDIA_TYPE) else _rows
+        old_rows, new_rows = read(row.answer), read(new.body)
         for r in range(max(len(old_rows), len(new_rows))):
             a = old_rows[r] if r < len(old_rows) else []
             b = new_rows[r] if r < len(new_rows) else []
@@ -186,6 +188,20 @@ def _rows(data: bytes) -> list[list[str]]:
         else ","
     return [r for r in csv.reader(io.StringIO(text), delimiter=delimiter)
             if not (r and r[0] in TRAILER_KEYS)]
+
+
+def _parquet_rows(data: bytes) -> list[list[str]]:
+    """A Parquet answer's column names and rows as the cells its CSV answer would have."""
+    import pyarrow as pa
+    import pyarrow.parquet as pq
+
+    try:
+        table = pq.read_table(pa.BufferReader(data))
+    except (pa.ArrowException, OSError):  # not a table (a problem): one cell of text
+        return [[data.decode("utf-8", errors="replace")]]
+    columns = [[format_cell(v) for v in table.column(j).to_pylist()]
+               for j in range(table.num_columns)]
+    return [list(table.column_names), *map(list, zip(*columns, strict=True))]
 
 
 def _cell(row: list[str], c: int) -> Any:
