@@ -356,3 +356,21 @@ def test_a_parquet_upload_and_answer_are_kept_and_rerun_figure_by_figure(client:
     again = client.post(f"/v1/runs/{kept['id']}/rerun").json()
     names, rows, _ = read_back(r)
     assert again["identical"] and again["figures_compared"] == len(names) * (len(rows) + 1)
+
+
+@pytest.mark.parametrize("path", [SERIES, FITS])
+@pytest.mark.parametrize("value", [0.0, -1.0, 5e-324, 1e-300, 1e308, -0.0])
+def test_one_parquet_number_mutated_gives_an_answer_or_a_located_problem(
+        client: Any, path: str, value: float) -> None:
+    """The house rule for every input form (common practice in fuzzing): a valid upload with
+    one number changed to 0, a negative, a subnormal, a tiny or a huge value is answered or
+    refused at its cell, never a 5xx."""
+    records = panel_records() if path == SERIES else fit_records()
+    records[3]["price"] = value
+    r = post(client, path, records, "parquet", **({"family": "aids"} if path == FITS else {}))
+    assert r.status_code in (200, 422), r.text
+    if r.status_code == 422:  # at the cell, or at the row of the period it made undefined
+        pointers = list(problem(r))
+        assert pointers and all(p.startswith("#row=") for p in pointers), pointers
+    if value in (0.0, -1.0, 5e-324):
+        assert r.status_code == 422 and "#row=4&column=price" in problem(r)
