@@ -5,6 +5,7 @@ format) as the CSV answer's table."""
 
 from __future__ import annotations
 
+import base64
 import copy
 import csv
 import io
@@ -352,7 +353,8 @@ def test_a_parquet_upload_and_answer_are_kept_and_rerun_figure_by_figure(client:
                     headers={"content-type": PARQUET})
     assert r.status_code == 200, r.text
     kept = client.get(f"/v1/runs/{r.headers['dualcost-run']}").json()
-    assert kept["answer_type"] == PARQUET
+    assert kept["answer_type"] == PARQUET and kept["answer_encoding"] == "base64"
+    assert base64.b64decode(kept["answer"]) == r.content  # RFC 4648: the bytes as sent
     again = client.post(f"/v1/runs/{kept['id']}/rerun").json()
     names, rows, _ = read_back(r)
     assert again["identical"] and again["figures_compared"] == len(names) * (len(rows) + 1)

@@ -22,6 +22,7 @@ RunContent`), so a request asked again with the same input adds only a small row
 from __future__ import annotations
 
 import asyncio
+import base64
 import hashlib
 import logging
 import queue
@@ -337,15 +338,26 @@ def _query_string(request: Request) -> str:
 
 def run_json(row: RunRecord) -> dict[str, Any]:
     """A saved run as ``GET /v1/runs/{id}`` answers it (without its provenance)."""
-    answer: Any
-    if row.answer_type.startswith("application/json"):
-        answer = orjson.loads(row.answer)
-    else:
-        answer = row.answer.decode("utf-8", errors="replace")
+    answer, encoding = _answer_of(row.answer_type, row.answer)
     return {**run_summary(row), "input": orjson.loads(row.input),
             "request": {"method": row.method, "path": row.path, "query": row.query,
                         "content_type": row.content_type},
-            "status": row.status_code, "answer_type": row.answer_type, "answer": answer}
+            "status": row.status_code, "answer_type": row.answer_type,
+            "answer_encoding": encoding, "answer": answer}
+
+
+def _answer_of(media: str, data: bytes) -> tuple[Any, str]:
+    """A saved answer for a JSON document, with how it is written there: JSON answers as JSON
+    (``json``), text answers (CSV, plain text) as their text (``text``), and anything else, a
+    Parquet file, as base64 (RFC 4648 section 4; ``base64``) so its bytes come back as sent."""
+    if media.startswith("application/json") or media.split(";", 1)[0].endswith("+json"):
+        return orjson.loads(data), "json"
+    if media.startswith("text/"):
+        try:
+            return data.decode("utf-8"), "text"
+        except UnicodeDecodeError:
+            pass
+    return base64.b64encode(data).decode("ascii"), "base64"
 
 
 def run_summary(row: RunRecord) -> dict[str, Any]:

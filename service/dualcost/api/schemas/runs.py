@@ -2,7 +2,7 @@
 
 from __future__ import annotations
 
-from typing import Any
+from typing import Any, Literal
 
 from pydantic import Field
 
@@ -38,7 +38,10 @@ class RunOut(RunSummaryOut):
     request: RunRequestOut
     status: int = Field(description="The HTTP status of the saved answer.")
     answer_type: str = Field(description="The media type of the saved answer.")
-    answer: Any = Field(description="The saved answer: JSON as JSON, any other as its text.")
+    answer_encoding: Literal["json", "text", "base64"] = Field(
+        description="How `answer` holds the saved answer: JSON as JSON, text (CSV, plain text) "
+                    "as its text, anything else (a Parquet file) as base64 (RFC 4648).")
+    answer: Any = Field(description="The saved answer, written as answer_encoding says.")
     provenance: ProvenanceOut
 
 
