@@ -185,3 +185,47 @@ def test_every_control_of_the_new_views_is_labelled(
         return [...document.querySelectorAll('input, select, textarea, progress')].filter(i =>
           !(i.labels && i.labels.length) && !i.getAttribute('aria-label')).map(i => i.outerHTML)""")
     assert unlabelled == []
+
+
+def test_the_households_view_draws_each_households_band_across_models(live_url: str, browser: Any) -> None:  # noqa: F811
+    """band_models in the households view: each household's K(u0) and its band (lowest to highest
+    K(u0) across the other models) charted per household, with the JSON answer's numbers in the
+    chosen period's table and cards; the page stays within the screen at both sizes."""
+    tw.open_view(browser, live_url, "households")
+    tw.load_named_example(browser, "wrenmouth_household_types_band")
+    field = browser.find_element(By.ID, "households-_band_models")
+    assert "cobb_douglas" in field.get_attribute("value")
+    tw.compute(browser)
+    sent, answer = tw.sent_and_answer(browser, live_url, "/v1/household-indices")
+    assert sent == load_example("householdIndices.wrenmouth_household_types_band.json")
+    last = len(answer["summary"]) - 1
+    rows = [h for h in answer["households"] if h["periods"][last]["band"]]
+    assert len(rows) == len(answer["households"]) > 1
+    cells = tw.table_cells(browser, "hh-band-chart-table")
+    assert [c[:4] for c in cells] == [[
+        h["household"], f"{h['periods'][last]['band']['konus_low']:.4f}",
+        f"{h['periods'][last]['band']['konus_high']:.4f}", f"{h['periods'][last]['konus']:.4f}"]
+        for h in rows]
+    outside = sum(h["periods"][last]["band"]["konus_inside"] is False for h in rows)
+    assert browser.find_element(By.ID, "hh-band-outside").text == str(outside)
+    assert browser.find_element(By.ID, "hh-band-models").text == str(len(sent["band_models"]))
+    # The chart: one floating bar per household (base 100) and the batch model's K(u0) beside it.
+    drawn = browser.execute_script("""
+        const c = window.Chart.getChart(document.querySelector('[data-chart="hh-band-chart"] canvas'));
+        return {labels: c.data.labels, bars: c.data.datasets[0].data, dots: c.data.datasets[1].data,
+                axis: c.options.scales.x.title.text, legend: c.options.plugins.legend.position,
+                colour: c.data.datasets[0].backgroundColor};""")
+    assert drawn["labels"] == [h["household"] for h in rows]
+    for (low, high), dot, h in zip(drawn["bars"], drawn["dots"], rows, strict=True):
+        band = h["periods"][last]["band"]
+        assert low == pytest.approx(100 * band["konus_low"], rel=1e-12)
+        assert high == pytest.approx(100 * band["konus_high"], rel=1e-12)
+        assert dot == pytest.approx(100 * h["periods"][last]["konus"], rel=1e-12)
+    assert drawn["axis"] == "Konüs index K(u0), base = 100" and drawn["legend"] == "bottom"
+    assert drawn["colour"] == "#0072B2"  # Okabe-Ito blue
+    # Another period chosen: the table follows it.
+    tw.choose(browser, "hh-band-chart-choice", answer["summary"][0]["period"])
+    first = tw.table_cells(browser, "hh-band-chart-table")[0]
+    assert first[1] == f"{rows[0]['periods'][0]['band']['konus_low']:.4f}"
+    _no_foreign_fetches_and_fits(browser, live_url)
+    tw.screenshot(browser, "households-band")

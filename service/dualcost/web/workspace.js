@@ -606,7 +606,7 @@ const BLOCKS = {
       note.hidden = !note.textContent;
       if (block.table) {
         const t = block.table(answer, choice);
-        table.replaceChildren(tableOf(`${block.id}-table`, title, t.columns, t.rows));
+        table.replaceChildren(tableOf(`${block.id}-table`, title, t.columns, t.rows, t.flag));
       }
     };
     const first = chooser(section, block, answer, draw);
