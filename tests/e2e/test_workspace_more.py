@@ -16,6 +16,7 @@ from typing import Any
 from urllib.parse import urlsplit
 
 import httpx
+import numpy as np
 import pytest
 
 from tests.conftest import load_example
@@ -229,3 +230,108 @@ def test_the_households_view_draws_each_households_band_across_models(live_url: 
     assert first[1] == f"{rows[0]['periods'][0]['band']['konus_low']:.4f}"
     _no_foreign_fetches_and_fits(browser, live_url)
     tw.screenshot(browser, "households-band")
+
+
+#: Families the comparison starts from generated values, and how close the Konüs index comes to
+#: the Cobb-Douglas one (numerical optimisation for a utility formula, path integration for demands).
+GENERATED = {"aids": 1e-9, "quaids": 1e-9, "utility_formula": 1e-6, "demand_system": 1e-8}
+
+
+def _cobb_douglas_start(body: dict[str, Any]) -> tuple[list[str], list[float]]:
+    """The items and the base budget shares p0 q0 / m0, rounded to 6 decimals, the largest
+    taking the remainder (the page's rule)."""
+    ids = [i["id"] if isinstance(i, dict) else i for i in body["items"]]
+    spend = [body["base"]["prices"][i] * body["base"]["quantities"][i] for i in ids]
+    w = [round(x / sum(spend), 6) for x in spend]
+    top = w.index(max(w))
+    w[top] = round(w[top] + 1 - sum(w), 6)
+    return ids, w
+
+
+@pytest.mark.parametrize("family", list(GENERATED))
+def test_aids_quaids_and_the_formula_families_start_from_the_grids_items(
+        live_url: str, browser: Any, family: str) -> None:  # noqa: F811
+    """Choosing AIDS, QUAIDS, a utility formula or demand formulas in the comparison fills the
+    model from the grid's items (α = the base shares, β = γ = 0 and λ = 0; the Cobb-Douglas
+    utility and demands with those shares), says beside the model that these are starting values
+    to edit, and computes the figures the JSON API gives for the same body. Outside check: with
+    β = γ = 0 (λ = 0) AIDS and QUAIDS are Cobb-Douglas, whose Konüs index is the geometric mean
+    of the price relatives weighted by the shares, prod (p1/p0)^w (Deaton and Muellbauer 1980;
+    Banks, Blundell and Lewbel 1997; the Cobb-Douglas case is a textbook result)."""
+    from selenium.webdriver.support.ui import Select
+
+    tw.open_view(browser, live_url, "comparison")
+    Select(browser.find_element(By.ID, "family")).select_by_value(family)
+    note = tw.wait(browser, 10).until(lambda d: d.find_element(By.ID, "model-start-note"))
+    assert note.text.startswith("Starting values, to be edited") and note.is_displayed()
+    tw.compute(browser)
+    sent, answer = tw.sent_and_answer(browser, live_url, "/v1/comparisons")
+    ids, w = _cobb_douglas_start(sent)
+    model = sent["model"]
+    assert model["family"] == family
+    if family in ("aids", "quaids"):
+        assert model["alpha"] == pytest.approx(dict(zip(ids, w, strict=True)), abs=1e-12)
+        assert model["beta"] == dict.fromkeys(ids, 0) and model["gamma"] == {} and model["alpha0"] == 0
+        assert "translog" in note.text and "Deaton and Muellbauer 1980" in note.text
+        assert family == "aids" or model["lambda"] == dict.fromkeys(ids, 0)
+    elif family == "utility_formula":
+        assert model["utility_formula"] == " + ".join(f"{x}*log({i})" for i, x in zip(ids, w, strict=True))
+    else:
+        assert model["demand_formulas"] == {i: f"{x}*income/{i}" for i, x in zip(ids, w, strict=True)}
+    assert answer["validity"]["regular"] is True
+    for card, value, digits in (("konus-base", answer["konus"]["base"], 4),
+                                ("konus-current", answer["konus"]["current"], 4),
+                                ("bias", answer["laspeyres_gap_points"], 3),
+                                ("cv", answer["compensation"]["compensating_variation"], 2)):
+        assert browser.find_element(By.ID, card).text == f"{value:.{digits}f}", card
+    relatives = [sent["current"]["prices"][i] / sent["base"]["prices"][i] for i in ids]
+    geometric = float(np.prod(np.power(relatives, w)))
+    assert answer["konus"]["base"] == pytest.approx(geometric, rel=GENERATED[family])
+    _no_foreign_fetches_and_fits(browser, live_url)
+    if family == "aids":
+        tw.screenshot(browser, "comparison-aids-start")
+
+
+def test_households_start_aids_with_alpha_calibrated_to_each_household(live_url: str, browser: Any) -> None:  # noqa: F811
+    """In the households view (one base budget per household) AIDS starts with β = γ = 0 and α
+    left to the service's calibration, and computes the JSON API's figures."""
+    from selenium.webdriver.support.ui import Select
+
+    tw.open_view(browser, live_url, "households")
+    Select(browser.find_element(By.ID, "family")).select_by_value("aids")
+    note = tw.wait(browser, 10).until(lambda d: d.find_element(By.ID, "model-start-note"))
+    assert "α left out" in note.text
+    tw.compute(browser)
+    sent, answer = tw.sent_and_answer(browser, live_url, "/v1/household-indices")
+    assert "alpha" not in sent["model"] and sent["model"]["gamma"] == {}
+    konus = next(i for i in answer["summary"][-1]["indices"] if i["index"] == "konus")
+    assert browser.find_element(By.ID, "hh-konus-democratic").text == f"{konus['democratic']:.4f}"
+
+
+def test_the_series_starts_aids_from_its_base_periods_budget(live_url: str, browser: Any) -> None:  # noqa: F811
+    """In the series view AIDS starts from the base period's budget shares over the items priced
+    then (the items the series' model is over), and computes the JSON API's figures; with β = γ = 0
+    its Konüs series is the share-weighted geometric mean of the price relatives (Deaton and
+    Muellbauer 1980, the Cobb-Douglas case)."""
+    from selenium.webdriver.support.ui import Select
+
+    tw.open_view(browser, live_url, "series")
+    Select(browser.find_element(By.ID, "family")).select_by_value("aids")
+    tw.wait(browser, 10).until(lambda d: d.find_element(By.ID, "model-start-note"))
+    tw.compute(browser)
+    sent, answer = tw.sent_and_answer(browser, live_url, "/v1/index-series")
+    t = sent["periods"].index(sent["base_period"])
+    alpha = sent["model"]["alpha"]
+    base = sent["prices"][t]
+    assert set(alpha) == {i for i, p in base.items() if p is not None}
+    spend = {i: base[i] * (sent["quantities"][t].get(i) or 0) for i in alpha}
+    shares = {i: x / sum(spend.values()) for i, x in spend.items()}
+    assert alpha == pytest.approx(shares, abs=len(alpha) * 1e-6)  # rounded to 6 decimals
+    k = answer["konus"]["fixed_base"]["base"][-1]
+    assert browser.find_element(By.ID, "series-konus-last").text == f"{k:.3f}"
+    # The last period with every one of those items priced (an item gone later is imputed).
+    s = max(s for s, row in enumerate(sent["prices"]) if all(row.get(i) is not None for i in alpha))
+    assert s > t
+    relatives = np.array([sent["prices"][s][i] / base[i] for i in alpha])
+    geometric = 100 * float(np.prod(relatives ** np.array(list(alpha.values()))))
+    assert answer["konus"]["fixed_base"]["base"][s] == pytest.approx(geometric, rel=1e-9)

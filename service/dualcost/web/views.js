@@ -97,7 +97,28 @@
       columnsFrom: { pointer: "/items", cell: "/quantities/{r}/{col}" } },
   ];
 
-  const modelField = (families) => ({ kind: "model", pointer: "/model", label: "Preference model", families });
+  // `shares(body)`: the base budget shares the view observes by item id (null: none), from which
+  // AIDS, QUAIDS and the formula families get starting values when chosen (workspace.js, GENERATED).
+  const modelField = (families, shares) => ({ kind: "model", pointer: "/model", label: "Preference model", families, shares });
+  const at = (v, id, k) => (v === null || v === undefined ? undefined : Array.isArray(v) ? v[k] : v[id]);
+  const ids = (body) => (body.items || []).map(itemId);
+  // A two-period basket: its base shares, or the base prices times the base quantities.
+  const basketShares = (body) => {
+    const b = body.base || {};
+    if (b.shares) return Object.fromEntries(ids(body).map((id, k) => [id, at(b.shares, id, k)]));
+    if (!b.prices || !b.quantities) return null;
+    return Object.fromEntries(ids(body).map((id, k) => [id, at(b.prices, id, k) * at(b.quantities, id, k)]));
+  };
+  // A panel: the base period's prices times its quantities, where it has quantities, over the
+  // items priced in the base period (the series' model is over those; one not bought spends nothing).
+  const panelShares = (body) => {
+    const t = Math.max(0, (body.periods || []).indexOf(body.base_period));
+    const p = (body.prices || [])[t];
+    const q = (body.quantities || [])[t];
+    if (!p || !q) return null;
+    const priced = ids(body).map((id, k) => [id, k]).filter(([id, k]) => at(p, id, k) !== null && at(p, id, k) !== undefined);
+    return Object.fromEntries(priced.map(([id, k]) => [id, at(p, id, k) * (at(q, id, k) ?? 0)]));
+  };
 
   const comparison = {
     id: "comparison",
@@ -122,7 +143,7 @@
         return body;
       } },
     fields: [
-      modelField(),
+      modelField(undefined, basketShares),
       { kind: "formulas", pointer: "/formulas", label: "Formulas", scope: "comparison" },
       { pointer: "/base/expenditure", label: "Base income m0 (with shares)", kind: "number", optional: true },
       { pointer: "/current/expenditure", label: "Current income m1", kind: "number", optional: true,
@@ -278,7 +299,7 @@
     operationId: "indexSeries",
     csv: { columns: "period,item,price[,quantity]", required: ["period", "item", "price"], read: readPanel },
     fields: [
-      modelField(),
+      modelField(undefined, panelShares),
       { kind: "formulas", pointer: "/formulas", label: "Formulas", scope: "series" },
       { pointer: "/base_period", label: "Base period", kind: "select", optional: true,
         options: (_, body) => (body.periods || []).map((p) => [p, p]) },
@@ -429,7 +450,7 @@
       } },
     note: "Household CSV: the items and prices stay as in the form; each row gives a household's shares of the items by their ids.",
     fields: [
-      modelField(["cobb_douglas", "ces", "stone_geary", "translog", "quadratic", "nested_ces", "aids", "quaids"]),
+      modelField(["cobb_douglas", "ces", "stone_geary", "translog", "quadratic", "nested_ces", "aids", "quaids"], () => null),
       { kind: "formulas", pointer: "/formulas", label: "Formulas", scope: "households" },
       { pointer: "/band_models", label: "Band across these models (JSON list of models, as the comparison's)", kind: "json", rows: 2, optional: true,
         hint: "Each household is also evaluated under each of these models: its band is the least and greatest K(u0) among them." },
@@ -764,7 +785,7 @@
     csv: { columns: "period,item,price[,quantity]", required: ["period", "item", "price"], read: readPanel },
     note: "A panel file replaces the prices and quantities and keeps the clauses.",
     fields: [
-      modelField(),
+      modelField(undefined, panelShares),
       { kind: "formulas", pointer: "/formulas", label: "Formulas", scope: "series" },
       { pointer: "/amount", label: "Amount paid each period before uprating", kind: "number", optional: true },
       { pointer: "/series_kind", label: "Series the clauses read", kind: "select", optional: true,
