@@ -9,13 +9,11 @@ ENV PYTHONDONTWRITEBYTECODE=1 \
     DUALCOST_HOST=0.0.0.0 \
     DUALCOST_PORT=8000 \
     DUALCOST_WORKERS=2 \
-    DUALCOST_EXAMPLES_DIR=/app/openapi_examples \
     DUALCOST_DATA_DIR=/data
 
 WORKDIR /app
 COPY pyproject.toml README.md ./
 COPY service ./service
-COPY openapi_examples ./openapi_examples
 RUN pip install . && useradd --create-home --uid 10001 dualcost \
     && mkdir /data && chown dualcost /data
 VOLUME /data

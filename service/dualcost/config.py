@@ -8,7 +8,9 @@ from pathlib import Path
 from pydantic import Field
 from pydantic_settings import BaseSettings, SettingsConfigDict
 
-_REPO_EXAMPLES = Path(__file__).resolve().parents[2] / "openapi_examples"
+#: The example request bodies, shipped inside the package so that any install has them (the
+#: repository's top-level openapi_examples/ is a link to this folder).
+_EXAMPLES = Path(__file__).resolve().parent / "examples"
 
 
 def _default_data_dir() -> Path:
@@ -38,8 +40,9 @@ class Settings(BaseSettings):
         "event loop; utility formulas and demand systems integrated along a path always use "
         "the compute threads (0: every request does).")
     examples_dir: Path = Field(
-        _REPO_EXAMPLES,
-        description="Folder of example request bodies shown in the OpenAPI document.",
+        _EXAMPLES,
+        description="Folder of example request bodies shown in the OpenAPI document and offered "
+        "as starts by the page (default: the ones shipped in the package).",
     )
     cors_origins: tuple[str, ...] = Field(
         (), description="Origins allowed to call the API from a browser (CORS), e.g. "

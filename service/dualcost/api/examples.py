@@ -1,4 +1,5 @@
-"""Example request bodies from ``openapi_examples/``, shown in the OpenAPI document.
+"""Example request bodies from ``dualcost/examples/`` (the repository's ``openapi_examples/``),
+shown in the OpenAPI document and offered by the page as starts.
 
 One file per example, named ``<operationId>.<example>.json``. An operation whose body is another
 operation's without some fields shows that operation's examples without them (a household job

@@ -97,7 +97,28 @@
       columnsFrom: { pointer: "/items", cell: "/quantities/{r}/{col}" } },
   ];
 
-  const modelField = (families) => ({ kind: "model", pointer: "/model", label: "Preference model", families });
+  // `shares(body)`: the base budget shares the view observes by item id (null: none), from which
+  // AIDS, QUAIDS and the formula families get starting values when chosen (workspace.js, GENERATED).
+  const modelField = (families, shares) => ({ kind: "model", pointer: "/model", label: "Preference model", families, shares });
+  const at = (v, id, k) => (v === null || v === undefined ? undefined : Array.isArray(v) ? v[k] : v[id]);
+  const ids = (body) => (body.items || []).map(itemId);
+  // A two-period basket: its base shares, or the base prices times the base quantities.
+  const basketShares = (body) => {
+    const b = body.base || {};
+    if (b.shares) return Object.fromEntries(ids(body).map((id, k) => [id, at(b.shares, id, k)]));
+    if (!b.prices || !b.quantities) return null;
+    return Object.fromEntries(ids(body).map((id, k) => [id, at(b.prices, id, k) * at(b.quantities, id, k)]));
+  };
+  // A panel: the base period's prices times its quantities, where it has quantities, over the
+  // items priced in the base period (the series' model is over those; one not bought spends nothing).
+  const panelShares = (body) => {
+    const t = Math.max(0, (body.periods || []).indexOf(body.base_period));
+    const p = (body.prices || [])[t];
+    const q = (body.quantities || [])[t];
+    if (!p || !q) return null;
+    const priced = ids(body).map((id, k) => [id, k]).filter(([id, k]) => at(p, id, k) !== null && at(p, id, k) !== undefined);
+    return Object.fromEntries(priced.map(([id, k]) => [id, at(p, id, k) * (at(q, id, k) ?? 0)]));
+  };
 
   const comparison = {
     id: "comparison",
@@ -122,7 +143,7 @@
         return body;
       } },
     fields: [
-      modelField(),
+      modelField(undefined, basketShares),
       { kind: "formulas", pointer: "/formulas", label: "Formulas", scope: "comparison" },
       { pointer: "/base/expenditure", label: "Base income m0 (with shares)", kind: "number", optional: true },
       { pointer: "/current/expenditure", label: "Current income m1", kind: "number", optional: true,
@@ -278,7 +299,7 @@
     operationId: "indexSeries",
     csv: { columns: "period,item,price[,quantity]", required: ["period", "item", "price"], read: readPanel },
     fields: [
-      modelField(),
+      modelField(undefined, panelShares),
       { kind: "formulas", pointer: "/formulas", label: "Formulas", scope: "series" },
       { pointer: "/base_period", label: "Base period", kind: "select", optional: true,
         options: (_, body) => (body.periods || []).map((p) => [p, p]) },
@@ -401,6 +422,16 @@
   const a0 = () => window.dualcost.state.answer;
   const last = (a) => a.summary[a.summary.length - 1];
 
+  // The band across band_models, per household at period t (the households' own K(u0) beside it).
+  const BAND_SHOWN = 40;
+  const hasBand = (a) => a.households.some((x) => x.periods.some((p) => p.band));
+  const bandRows = (a, t) => a.households.filter((x) => x.periods[t] && x.periods[t].band)
+    .map((x) => ({ household: x.household ?? `row ${x.row}`, konus: x.periods[t].konus, band: x.periods[t].band }));
+  // The models asked for (each household's band counts those whose K(u0) is a result there).
+  const bandModels = (a) => {
+    const asked = (window.dualcost.state.sent || {}).band_models;
+    return asked ? asked.length : Math.max(...a.households.flatMap((x) => x.periods.map((p) => (p.band ? p.band.models : 0))));
+  };
   const households = {
     id: "households",
     title: "Households",
@@ -419,8 +450,10 @@
       } },
     note: "Household CSV: the items and prices stay as in the form; each row gives a household's shares of the items by their ids.",
     fields: [
-      modelField(["cobb_douglas", "ces", "stone_geary", "translog", "quadratic", "nested_ces", "aids", "quaids"]),
+      modelField(["cobb_douglas", "ces", "stone_geary", "translog", "quadratic", "nested_ces", "aids", "quaids"], () => null),
       { kind: "formulas", pointer: "/formulas", label: "Formulas", scope: "households" },
+      { pointer: "/band_models", label: "Band across these models (JSON list of models, as the comparison's)", kind: "json", rows: 2, optional: true,
+        hint: "Each household is also evaluated under each of these models: its band is the least and greatest K(u0) among them." },
     ],
     grids: [
       { title: "Prices", rows: { pointer: "/items", title: "item" }, columns: [
@@ -476,6 +509,31 @@
           return C.barConfig({ labels: h.labels.map((l) => Number(l).toFixed(3)), datasets: [{ label: "households", data: h.counts }],
             xTitle: "Laspeyres bias, index points (bin middle)", yTitle: "households", horizontal: false, zeroAt: null });
         } },
+      { kind: "cards", when: hasBand, cards: (a) => {
+        const rows = bandRows(a, a.summary.length - 1);
+        return [
+          { id: "hh-band-models", label: "models in the band", value: String(bandModels(a)) },
+          { id: "hh-band-outside", label: `households whose K(u0) lies outside the band, ${last(a).period}`, value: String(rows.filter((r) => r.band.konus_inside === false).length) },
+          { id: "hh-band-inside", label: "inside the band", value: String(rows.filter((r) => r.band.konus_inside === true).length) }];
+      } },
+      { kind: "chart", id: "hh-band-chart", title: "Each household's Konüs index K(u0) and its band across the other models",
+        when: hasBand, notices: ["band_households_left_out"],
+        choose: { label: "Period", options: (a) => a.summary.map((s, t) => [t, s.period]), initial: (a) => a.summary.length - 1 },
+        height: (a) => 110 + Math.min(a.households.length, BAND_SHOWN) * 28,
+        text: (a) => `The band: the lowest to the highest K(u0) of the household under the ${bandModels(a)} models of band_models (same prices, shares and income); flagged rows of the table: this batch's K(u0) lies outside it. `
+          + (a.households.length > BAND_SHOWN ? `The chart shows the first ${BAND_SHOWN} of ${a.households.length} households; the table has them all.` : ""),
+        chart: (a, t) => {
+          const rows = bandRows(a, t).slice(0, BAND_SHOWN);
+          return loose(C.barConfig({ labels: rows.map((r) => r.household), xTitle: "household", yTitle: "Konüs index K(u0), base = 100", zeroAt: null,
+            datasets: [{ label: "band across the models: lowest to highest K(u0)", order: 2,
+              data: rows.map((r) => (r.band.konus_low === null ? null : [h(r.band.konus_low), h(r.band.konus_high)])) },
+            { type: "line", indexAxis: "y", showLine: false, label: "K(u0) of this batch's model", order: 1, pointStyle: "rectRot", pointRadius: 6,
+              borderColor: "#000", backgroundColor: "#000", data: rows.map((r) => h(r.konus)) }] }));
+        },
+        table: (a, t) => ({ rows: bandRows(a, t), flag: (r) => r.band.konus_inside === false, columns: [{ title: "household", get: (r) => r.household },
+          { title: "band low", get: (r) => r.band.konus_low }, { title: "band high", get: (r) => r.band.konus_high },
+          { title: "this model", get: (r) => r.konus, model: true }, { title: "models counted", get: (r) => r.band.models, digits: 0 },
+          { title: "inside?", get: (r) => (r.band.konus_inside === null ? "" : r.band.konus_inside ? "yes" : "NO") }] }) },
       { kind: "chart", id: "hh-aggregate-chart", title: (a) => `Democratic and plutocratic aggregates, ${last(a).period}`,
         height: (a) => 80 + last(a).indices.length * 40,
         chart: (a) => {
@@ -727,7 +785,7 @@
     csv: { columns: "period,item,price[,quantity]", required: ["period", "item", "price"], read: readPanel },
     note: "A panel file replaces the prices and quantities and keeps the clauses.",
     fields: [
-      modelField(),
+      modelField(undefined, panelShares),
       { kind: "formulas", pointer: "/formulas", label: "Formulas", scope: "series" },
       { pointer: "/amount", label: "Amount paid each period before uprating", kind: "number", optional: true },
       { pointer: "/series_kind", label: "Series the clauses read", kind: "select", optional: true,

@@ -84,7 +84,7 @@ function readNumber(text, where) {
 
 // ---- the state: one view, its scenario (the request body) and the places of its inputs --------
 const state = { views: [], view: null, body: null, places: [], answer: null, catalogue: null,
-  scenario: "", origin: new Map() };
+  scenario: "", origin: new Map(), started: null };
 
 // Where the service asks for an API key, the one typed in the header goes with every /v1 request
 // (kept for this tab only, in sessionStorage).
@@ -140,6 +140,7 @@ async function loadScenario(id) {
   state.body = clone(body);
   state.scenario = id;
   state.origin = new Map();
+  state.started = null;
   renderForm();
 }
 
@@ -307,14 +308,19 @@ function modelBlock(field, body) {
   }
   select.addEventListener("change", () => {
     commit();
+    const generated = field.shares && GENERATED[select.value];
     const start = STARTS[select.value];
-    setAt(state.body, field.pointer, start ? start(state.body) : { family: select.value });
+    const made = generated ? generated(startShares(state.body, field)) : null;
+    setAt(state.body, field.pointer, made ? made.model : start ? start(state.body) : { family: select.value });
+    state.started = made ? { family: select.value, note: made.note } : null;
     renderForm();
   });
   const spec = families.find((f) => f.family === family);
+  const started = state.started && state.started.family === family ? state.started.note : null;
   const wrap = el("fieldset", { class: "model" }, el("legend", { text: field.label }),
     el("div", { class: "field" }, el("label", { for: "family", text: "Preference family" }), select,
-      spec ? el("small", { text: `${spec.title}. ${spec.source}.` }) : null));
+      spec ? el("small", { text: `${spec.title}. ${spec.source}.` }) : null),
+    started ? el("p", { class: "start-note", id: "model-start-note", role: "note", text: started }) : null);
   for (const p of spec ? spec.parameters : []) {
     if (["service", "python"].includes(p.shape)) continue;
     const pointer = `${field.pointer}/${p.name}`;
@@ -350,6 +356,60 @@ const STARTS = {
       { name: "first group", sigma: 1.2, children: ids.slice(0, half) },
       { name: "second group", sigma: 1.2, children: ids.slice(half) }] } };
   },
+};
+
+// Generated starts for the families with no plain default (AIDS, QUAIDS, a utility formula, demand
+// formulas), from the items of the grid: a view's model field gives `shares(body)`, the base
+// budget shares it observes by item id (null: none). Each start is the Cobb-Douglas special case
+// of its family with those shares, valid and regular at every price; the note says so.
+const ROUND = 1e6;
+function startShares(body, field) {
+  const given = field.shares(body);
+  // The items the shares name (a series' model is over the items priced in its base period), else all.
+  const ids = given ? Object.keys(given) : (body.items || []).map((x) => (typeof x === "object" ? x.id : x));
+  const raw = given ? ids.map((id) => Number(given[id])) : [];
+  const total = raw.reduce((a, b) => a + b, 0);
+  const observed = raw.length > 0 && raw.every((x) => Number.isFinite(x) && x >= 0) && total > 0;
+  const w = ids.map((_, k) => Math.round(ROUND * (observed ? raw[k] / total : 1 / ids.length)) / ROUND);
+  // Rounded to 6 decimals, the largest takes the remainder: they sum to 1 (adding-up).
+  const top = w.indexOf(Math.max(...w));
+  if (top >= 0) w[top] = Math.round(ROUND * (w[top] + 1 - w.reduce((a, b) => a + b, 0))) / ROUND;
+  return { ids, w, observed, given: Boolean(given) };
+}
+const sharesSaid = (s) => (s.observed ? "the base budget shares observed in the grid (rounded to 6 decimals)"
+  : "equal shares (the grid gives no base quantities or shares to take them from)");
+const RESERVED = new Set(["exp", "log", "sqrt", "min", "max", "income"]);
+const nameOf = (id) => (/^[A-Za-z_][A-Za-z0-9_]*$/.test(id) && !RESERVED.has(id) ? id : `'${id}'`);
+const keyed = (ids, f) => Object.fromEntries(ids.map((id, k) => [id, f(id, k)]));
+function demandSystemStart(s, quadratic) {
+  const model = { family: quadratic ? "quaids" : "aids" };
+  // A view without one base bundle (households: one per household) leaves α to the service,
+  // which calibrates it to each base budget's own shares.
+  if (s.given) model.alpha = keyed(s.ids, (_, k) => s.w[k]);
+  Object.assign(model, { alpha0: 0, beta: keyed(s.ids, () => 0), gamma: {} });
+  if (quadratic) model.lambda = keyed(s.ids, () => 0);
+  const alpha = s.given ? `α = ${sharesSaid(s)}` : "α left out: the service calibrates it to each base budget's own shares";
+  return { model, note: `Starting values, to be edited: ${alpha}; β = 0${quadratic ? ", λ = 0" : ""}; γ = 0 ({}: every γij left out is 0); `
+    + "α0 = 0 and β0 = 1 (its default). The price index a(p) is the model's own translog one, ln a(p) = α0 + Σ αk ln pk "
+    + "+ ½ ΣΣ γkj ln pk ln pj (not Stone's approximation). With β = γ = 0"
+    + `${quadratic ? " and λ = 0 (Banks, Blundell and Lewbel 1997)" : ""} the shares are α at every price and income: `
+    + "a Cobb-Douglas model, valid and regular everywhere (Deaton and Muellbauer 1980). Give γ (symmetric, rows and columns "
+    + `summing to 0) and β${quadratic ? " and λ" : ""} (summing to 0) for substitution and income effects.` };
+}
+const GENERATED = {
+  aids: (s) => demandSystemStart(s, false),
+  quaids: (s) => demandSystemStart(s, true),
+  utility_formula: (s) => ({
+    model: { family: "utility_formula", utility_formula: s.ids.map((id, k) => [s.w[k], id]).filter(([w]) => w > 0)
+      .map(([w, id]) => `${w}*log(${nameOf(id)})`).join(" + ") },
+    note: `Starting values, to be edited: the Cobb-Douglas utility Σ wi log(xi), wi = ${sharesSaid(s)}, each item id standing `
+      + "for its quantity: the simplest formula the family accepts, quasi-concave, spending the shares w at any prices. "
+      + "Write your own utility over the items' ids (quote an id that is not a plain name: 'my item')." }),
+  demand_system: (s) => ({
+    model: { family: "demand_system", form: "formula", demand_formulas: keyed(s.ids, (id, k) => `${s.w[k]}*income/${nameOf(id)}`) },
+    note: `Starting values, to be edited: the Cobb-Douglas demands xi = wi · income / pi, wi = ${sharesSaid(s)}, each item id `
+      + "standing for its price: they spend the income exactly and are integrable (a symmetric, negative semidefinite Slutsky "
+      + "matrix), so the expenditure function found along the price path is the Cobb-Douglas one. Write your own demands." }),
 };
 
 function renderForm() {
@@ -499,6 +559,7 @@ async function openWith(id, body) {
   await showView(id);
   state.body = clone(body);
   state.scenario = "";
+  state.started = null;
   renderForm();
   $("form").scrollIntoView({ block: "start" });
 }
@@ -606,7 +667,7 @@ const BLOCKS = {
       note.hidden = !note.textContent;
       if (block.table) {
         const t = block.table(answer, choice);
-        table.replaceChildren(tableOf(`${block.id}-table`, title, t.columns, t.rows));
+        table.replaceChildren(tableOf(`${block.id}-table`, title, t.columns, t.rows, t.flag));
       }
     };
     const first = chooser(section, block, answer, draw);
