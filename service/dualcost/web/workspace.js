@@ -425,7 +425,7 @@ function renderForm() {
     el("div", { class: "row" },
       el("div", { class: "field" }, el("label", { for: "scenario", text: "Start from" }), picker),
       el("button", { type: "button", id: "load", text: "Load", onclick: () => loadScenario(picker.value).catch(showFailure) }),
-      view.csv ? el("div", { class: "field" }, el("label", { for: "upload", text: `Upload CSV (${view.csv.columns})` }), file) : null),
+      view.csv ? el("div", { class: "field" }, el("label", { for: "upload", text: `Upload CSV or Parquet (${view.csv.columns})` }), file) : null),
     view.note ? el("p", { class: "hint", text: view.note }) : null,
   ];
   const fields = el("div", { class: "fields" });
