@@ -17,9 +17,9 @@ It prints, measured in the same run:
   as CSV in and out, Parquet in and out, and CSV in with a Parquet answer, in households per
   second and as a ratio to the core batch's households per second, the core batch timed
   again beside each (one after the other, five times each: on a shared machine whose load
-  changes from minute to minute, a baseline timed a minute earlier says little); beside them, Apache
-  Arrow's readers alone (the upload's bytes to float columns, nothing checked or computed),
-  a floor under each path's reading, in the same ratio.
+  changes from minute to minute, a baseline timed a minute earlier says little); beside
+  them, Apache Arrow's readers alone (the upload's bytes to float columns, nothing checked
+  or computed), a floor under each path's reading, in the same ratio.
 
 The machine is shared and noisy, so the ratios are the figures to compare between runs.
 """
