@@ -15,7 +15,11 @@ It prints, measured in the same run:
   in-process batch, and whether the two results are identical bit for bit;
 - the HTTP path of a household job in process: the upload parsed, evaluated and streamed back,
   as CSV in and out, Parquet in and out, and CSV in with a Parquet answer, in households per
-  second and as a ratio to the core batch's households per second.
+  second and as a ratio to the core batch's households per second, the core batch timed
+  again beside each (one after the other, five times each: on a shared machine whose load
+  changes from minute to minute, a baseline timed a minute earlier says little); beside
+  them, Apache Arrow's readers alone (the upload's bytes to float columns, nothing checked
+  or computed), a floor under each path's reading, in the same ratio.
 
 The machine is shared and noisy, so the ratios are the figures to compare between runs.
 """
@@ -131,9 +135,25 @@ def on_cluster(s: dict[str, Any], job: HouseholdJob, local: Any) -> list[str]:
 PARQUET = "application/vnd.apache.parquet"
 
 
-def over_http(s: dict[str, Any]) -> dict[str, float]:
+def beside(fn: Callable[[], object], core: Callable[[], object], repeat: int = 5
+           ) -> tuple[float, float]:
+    """Median seconds of ``fn`` and of the core batch, timed one after the other."""
+    fn()
+    core()
+    times: list[list[float]] = [[], []]
+    for _ in range(repeat):
+        for k, f in enumerate((fn, core)):
+            start = time.perf_counter()
+            f()
+            times[k].append(time.perf_counter() - start)
+    return float(np.median(times[0])), float(np.median(times[1]))
+
+
+def over_http(s: dict[str, Any], core: Callable[[], object]
+              ) -> dict[str, tuple[float, float]]:
     """Seconds of the HTTP job path in process (create, upload, read the whole answer), by
-    upload and answer format: CSV in and out, Parquet in and out, CSV in and Parquet out."""
+    upload and answer format: CSV in and out, Parquet in and out, CSV in and Parquet out;
+    each with the seconds of the core batch timed beside it."""
     import io
 
     import pyarrow as pa
@@ -176,7 +196,27 @@ def over_http(s: dict[str, Any]) -> dict[str, float]:
     cases = {"CSV in, CSV out": (text, "text/csv", "text/csv"),
              "Parquet in, Parquet out": (parquet, PARQUET, PARQUET),
              "CSV in, Parquet out": (text, "text/csv", PARQUET)}
-    return {name: median_seconds(lambda c=c: run(*c), 3) for name, c in cases.items()}
+    timings = {name: beside(lambda c=c: run(*c), core) for name, c in cases.items()}
+    return timings | readers_alone(text, parquet, core)
+
+
+def readers_alone(text: bytes, parquet: bytes, core: Callable[[], object]
+                  ) -> dict[str, tuple[float, float]]:
+    """Seconds of Apache Arrow's readers alone on the same uploads: the CSV's text to float
+    columns (multi-threaded, the household ids as text), and the Parquet file's columns."""
+    import io
+
+    import pyarrow as pa
+    import pyarrow.csv as pacsv
+    import pyarrow.parquet as pq
+
+    types = {"household": pa.string()} | {f"item_{i:03d}": pa.float64() for i in range(ITEMS)}
+    convert = pacsv.ConvertOptions(column_types=types | {"expenditure": pa.float64()})
+    return {
+        "(Arrow's CSV reader alone)": beside(
+            lambda: pacsv.read_csv(io.BytesIO(text), convert_options=convert), core),
+        "(Arrow's Parquet reader alone)": beside(
+            lambda: pq.read_table(io.BytesIO(parquet)), core)}
 
 
 def main() -> None:
@@ -211,10 +251,12 @@ def main() -> None:
     for line in on_cluster(s, job, local):
         print(line)
     print("  HTTP household job in process (create, upload, whole answer), against the core "
-          "batch's households/s (targets: CSV at least 0.5, Parquet at least 0.7):")
-    for name, t_http in over_http(s).items():
-        print(f"    {name:24s} {t_http * 1e3:8.1f} ms   {HOUSEHOLDS / t_http:10,.0f} "
-              f"households/s   ratio to the core {t_batch / t_http:5.2f}")
+          "batch's households/s timed beside it (targets: CSV at least 0.5, Parquet at least "
+          "0.7):")
+    for name, (t_http, t_core) in over_http(s, batch).items():
+        print(f"    {name:31s} {t_http * 1e3:8.1f} ms   {HOUSEHOLDS / t_http:10,.0f} "
+              f"households/s   core beside it {t_core * 1e3:6.1f} ms   ratio to the core "
+              f"{t_core / t_http:5.2f}")
 
 
 if __name__ == "__main__":

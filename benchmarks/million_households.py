@@ -20,8 +20,9 @@ machine); ``--households 20000`` for a quick run; ``--no-cluster`` to leave out 
    identical (every column, bit for bit).
 
 Memory stays bounded because the upload is spooled to disk as it arrives, read back one block
-of rows (16,384) at a time, evaluated chunk by chunk, and written back one row group per chunk;
-only the per-household figures that the distribution summaries need (a few numbers per
+of rows (16,384) at a time, evaluated chunk by chunk, kept in the database as Arrow columns a
+few chunks at a time (at most 16,384 households held), and written back one row group per
+chunk; only the per-household figures that the distribution summaries need (a few numbers per
 household and period) are kept until the end. A Parquet file whose row groups are much larger
 than this script's is read a row group at a time: the memory then follows its row groups.
 """
@@ -219,7 +220,8 @@ def main() -> int:
                DUALCOST_COMPUTE_THREADS="2")
     with tempfile.TemporaryDirectory() as tmp:
         folder = Path(tmp)
-        # The service keeps its jobs (and each chunk's rows) in a new SQLite database here.
+        # The service keeps its jobs (and each chunk's results, as Arrow columns) in a new
+        # SQLite database here.
         env["DUALCOST_DATA_DIR"] = str(folder)
         upload = folder / "households.parquet"
         start = time.perf_counter()

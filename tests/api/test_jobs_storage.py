@@ -196,11 +196,12 @@ def test_the_migrations_are_shipped_with_the_package() -> None:
 
 def test_a_job_s_answer_is_given_again_by_another_worker_as_csv_or_parquet(
         database_url: str) -> None:
-    """The rows are kept as CSV whichever format the upload answered in: another worker gives
-    them back as that CSV, and as the Parquet file the upload gives with Accept Parquet (the
-    same table, nulls and metadata), read with pyarrow, Apache Arrow's reference library for
-    the format. The panel has household-periods outside the model's regular region (figures
-    null, reasons named), an id with a line break, and a skipped row."""
+    """The results are kept as columns whichever format the upload answered in: another
+    worker gives them back as the CSV the upload gave, and as the Parquet file the upload gives
+    with Accept Parquet, byte for byte (the same table, nulls and metadata, read with pyarrow,
+    Apache Arrow's reference library for the format). The panel has household-periods
+    outside the model's regular region (figures null, reasons named), an id with a line
+    break, and a skipped row."""
     import io
 
     import pyarrow.parquet as pq
@@ -228,6 +229,7 @@ def test_a_job_s_answer_is_given_again_by_another_worker_as_csv_or_parquet(
         assert again.status_code == 200 and again.headers["content-type"] == parquet
         assert again.headers["dualcost-input-digest"] == r.headers["dualcost-input-digest"]
         assert pq.read_table(io.BytesIO(again.content)).equals(table)
+        assert again.content == streamed.content
         assert pq.ParquetFile(io.BytesIO(again.content)).metadata.metadata == meta
     rows = table.to_pylist()
     assert len(rows) == 10 and rows[6]["household"] == "pensioners\n(harbour ward)"
@@ -248,3 +250,87 @@ def test_sqlite_keeps_a_write_ahead_log_and_enforces_foreign_keys(tmp_path: Any)
         assert connection.execute(text("PRAGMA journal_mode")).scalar() == "wal"
         assert connection.execute(text("PRAGMA synchronous")).scalar() == 1
         assert connection.execute(text("PRAGMA foreign_keys")).scalar() == 1
+
+
+def test_a_job_s_results_are_stored_a_few_chunks_to_a_transaction_each_chunk_a_piece(
+        database_url: str, monkeypatch: pytest.MonkeyPatch) -> None:
+    """Each chunk's results are one piece of columns (Arrow IPC, read back by pyarrow into the
+    chunk's figures), after a first piece with the CSV header; the pieces and the progress go
+    to the database a few chunks to a transaction (here two: STORE_ROWS is 4 households,
+    chunks are 2), each before its rows are sent."""
+    from dualcost.api.operations import job_results, jobs
+    from dualcost.api.operations.job_store import JobStore
+
+    monkeypatch.setattr(jobs, "STORE_ROWS", 4)
+    calls: list[int] = []
+    progress = JobStore.progress
+
+    def counted(self: JobStore, state: Any, pieces: Any = ()) -> None:
+        calls.append(len(pieces))
+        progress(self, state, pieces)
+
+    monkeypatch.setattr(JobStore, "progress", counted)
+    client = worker(database_url, household_chunk_rows=2)
+    body = example()
+    job = create_job(client, body)
+    streamed = upload(client, job, household_csv(body))
+    assert streamed.status_code == 200, streamed.text
+    n = len(body["households"])
+    chunks = -(-n // 2)
+    # The upload opened (no piece), the header, then the chunks two at a time.
+    assert calls == [0, 1, *([2] * (chunks // 2)), *([1] if chunks % 2 else [])]
+    with client.app.state.db.transaction() as s:  # type: ignore[attr-defined]
+        kept = s.execute(select(JobResultPiece.piece, JobResultPiece.text, JobResultPiece.data)
+                         .where(JobResultPiece.job_id == job["id"])
+                         .order_by(JobResultPiece.piece)).all()
+    assert [k.piece for k in kept] == list(range(chunks + 1))
+    assert kept[0].text == streamed.text.split("\r\n")[0] + "\r\n"
+    assert all(k.text is None for k in kept[1:])
+    rows = [job_results.decode(k.data).rows.tolist() for k in kept[1:]]
+    assert sum(rows, []) == list(range(1, n + 1))
+
+
+def test_results_kept_as_csv_before_revision_0003_are_still_given(database_url: str,
+                                                                  tmp_path: Any) -> None:
+    """A database at revision 0002, where a job's answer is kept as CSV pieces (the header,
+    then the rows), migrated: the job's answer is given as that CSV, and as Parquet converted
+    from it (the same table and metadata as the upload's Parquet answer, read with pyarrow)."""
+    import io
+
+    import pyarrow.parquet as pq
+    from alembic import command
+    from sqlalchemy import column, create_engine, insert, table
+
+    from dualcost.storage import _alembic_config
+    from tests.api.test_households_validity import job_csv, panel
+
+    elsewhere = worker(f"sqlite:///{tmp_path}/elsewhere.sqlite3")
+    spec = {k: v for k, v in panel().items() if k != "households"}
+    answers = {}
+    for accept in ("text/csv", "application/vnd.apache.parquet"):
+        job = create_job(elsewhere, spec)
+        answers[accept] = elsewhere.post(job["links"]["households"], content=job_csv().encode(),
+                                         headers={"content-type": "text/csv", "accept": accept})
+    with elsewhere.app.state.db.transaction() as s:  # type: ignore[attr-defined]
+        record = s.scalar(select(JobRecord).where(JobRecord.id == job["id"]))
+        assert record is not None
+        fields = {c.name: getattr(record, c.name) for c in JobRecord.__table__.columns
+                  if c.name != "serial"}
+    header, rows = answers["text/csv"].text.split("\r\n", 1)
+    engine = create_engine(database_url)
+    with engine.begin() as connection:
+        command.upgrade(_alembic_config(connection), "0002")
+        connection.execute(insert(table("household_jobs", *map(column, fields))).values(fields))
+        connection.execute(insert(table("household_job_results", *map(column, (
+            "job_id", "piece", "text")))), [
+            {"job_id": job["id"], "piece": 0, "text": header + "\r\n"},
+            {"job_id": job["id"], "piece": 1, "text": rows}])
+    engine.dispose()
+    client = worker(database_url)
+    url = f"/v1/household-jobs/{job['id']}/results"
+    assert client.get(url).text == answers["text/csv"].text
+    parquet = client.get(url, headers={"accept": "application/vnd.apache.parquet"}).content
+    streamed = answers["application/vnd.apache.parquet"].content
+    assert pq.read_table(io.BytesIO(parquet)).equals(pq.read_table(io.BytesIO(streamed)))
+    assert (pq.ParquetFile(io.BytesIO(parquet)).metadata.metadata
+            == pq.ParquetFile(io.BytesIO(streamed)).metadata.metadata)

@@ -51,12 +51,16 @@ class JobRecord(Base):
 
 
 class JobResultPiece(Base):
-    """A piece of a job's CSV answer (the header row, then each chunk's rows), in order."""
+    """A piece of a job's answer, in order: first the CSV header (``text``) with what the
+    answer's writers need (``data``, JSON), then one chunk's result columns a piece (``data``,
+    an Arrow IPC stream: :mod:`dualcost.api.operations.job_results`). Pieces written before
+    revision 0003 are CSV text (the header, then each chunk's rows) with ``data`` null."""
 
     __tablename__ = "household_job_results"
     job_id: Mapped[str] = mapped_column(String(32), primary_key=True)
     piece: Mapped[int] = mapped_column(Integer, primary_key=True)
-    text: Mapped[str] = mapped_column(Text)
+    text: Mapped[str | None] = mapped_column(Text)
+    data: Mapped[bytes | None] = mapped_column(LargeBinary)
 
 
 class RunContent(Base):

@@ -306,15 +306,16 @@ def _column(batch: Any, k: int) -> np.ndarray[Any, Any]:
 
 def _shares(batch: Any, columns: Sequence[int]) -> np.ndarray[Any, Any]:
     """The item columns of a batch as a (rows, items) matrix, NaN where null, in one conversion
-    by Arrow (about four times as fast as column by column)."""
-    arrays = [batch.column(k) for k in columns]
-    arrays = [a if a.type == pa.float64() else a.cast(pa.float64(), safe=False) for a in arrays]
-    names = [f"i{k}" for k in range(len(arrays))]
-    if not arrays or batch.num_rows == 0:
-        return np.empty((batch.num_rows, len(arrays)), dtype=np.float64)
-    tensor = pa.RecordBatch.from_arrays(arrays, names=names).to_tensor(null_to_nan=True,
-                                                                       row_major=True)
-    return np.asarray(tensor)
+    by Arrow (about four times as fast as column by column); chosen by Arrow too, in one call
+    (twice as fast again as one Python call per column), when every one holds float64."""
+    if not columns or batch.num_rows == 0:
+        return np.empty((batch.num_rows, len(columns)), dtype=np.float64)
+    chosen = batch.select(list(columns))
+    if any(kind != pa.float64() for kind in chosen.schema.types):
+        arrays = [a if a.type == pa.float64() else a.cast(pa.float64(), safe=False)
+                  for a in chosen.columns]
+        chosen = pa.RecordBatch.from_arrays(arrays, names=[f"i{k}" for k in range(len(arrays))])
+    return np.asarray(chosen.to_tensor(null_to_nan=True, row_major=True))
 
 
 def _parquet_chunk(batch: Any, columns: Columns, at: dict[int, int], row: int) -> HouseholdChunk:

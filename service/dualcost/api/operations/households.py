@@ -555,10 +555,11 @@ def arrow_table(result: ChunkResult, job: HouseholdJob, labels: Sequence[str],
         t, j = int(period[k]), int(house[k])
         reasons[k] = ";".join(reasons_of(int(flags[k])))
         named[k] = ";".join(items[i] for i in result.irregular_items.get((t, j), ()))
-    ids = None if result.ids is None else [result.ids[j] for j in house.tolist()]
+    # Each household's id on each of its period lines: repeated by Arrow, not in Python.
+    ids = None if result.ids is None else pa.array(result.ids, type=pa.string())
     income = (result.expenditure[house] if result.expenditure is not None and with_income
               else np.full(house.size, np.nan))
-    columns = [pa.array(ids, type=pa.string()) if ids is not None else
+    columns = [(ids if periods == 1 else ids.take(pa.array(house))) if ids is not None else
                pa.nulls(house.size, pa.string()),
                pa.array(result.rows[house]),
                pa.array(result.records[house] if result.records is not None else

@@ -25,15 +25,15 @@ import os
 import socket
 import threading
 import uuid
-from collections.abc import Iterator
+from collections.abc import Iterator, Sequence
 from dataclasses import dataclass
 from datetime import datetime, timedelta, timezone
-from typing import Any, Protocol
+from typing import Any, NamedTuple, Protocol
 
 import orjson
 from fastapi import Request
 from pydantic import BaseModel
-from sqlalchemy import delete, select, update
+from sqlalchemy import delete, insert, select, update
 from sqlalchemy.orm import Session
 
 from ...core.errors import StorageUnavailable
@@ -71,6 +71,15 @@ FINISHED = ("done", "failed", "cancelled")
 WAITING = "waiting_for_households"
 #: Pieces of a job's answer read from the database at once.
 PIECES_PER_READ = 16
+
+
+class Piece(NamedTuple):
+    """A piece of a job's answer as kept (:class:`~dualcost.storage.tables.JobResultPiece`):
+    CSV text, or columns (bytes), or both (the first piece: the header and what the writers
+    need)."""
+
+    text: str | None
+    data: bytes | None
 log = logging.getLogger("dualcost.api")
 
 
@@ -237,19 +246,19 @@ class JobStore:
         document["status"], document["error"] = row.status, row.error
         return document, Provenance(row.input_digest)
 
-    def pieces(self, job_id: str) -> Iterator[str]:
-        """The pieces of a job's stored CSV answer, in order, read a few at a time."""
+    def pieces(self, job_id: str) -> Iterator[Piece]:
+        """The pieces of a job's stored answer, in order, read a few at a time."""
         n = 0
         while True:
             with self.db.transaction() as s:
-                texts = s.scalars(select(JobResultPiece.text)
+                found = s.execute(select(JobResultPiece.text, JobResultPiece.data)
                                   .where(JobResultPiece.job_id == job_id,
                                          JobResultPiece.piece >= n)
                                   .order_by(JobResultPiece.piece).limit(PIECES_PER_READ)).all()
-            yield from texts
-            if len(texts) < PIECES_PER_READ:
+            yield from (Piece(text, data) for text, data in found)
+            if len(found) < PIECES_PER_READ:
                 return
-            n += len(texts)
+            n += len(found)
 
     # -- a job's upload and computation --------------------------------------------------------
 
@@ -286,18 +295,19 @@ class JobStore:
         with self.lock:
             self.local[state.id] = state
 
-    def progress(self, state: JobState, piece: str | None) -> None:
-        """The job's progress, and a piece of its answer, in one transaction."""
+    def progress(self, state: JobState, pieces: Sequence[Piece] = ()) -> None:
+        """The job's progress, and pieces of its answer, in one transaction."""
         document, origin = state.view()
         with self.db.transaction() as s:
-            if piece is not None:
-                s.add(JobResultPiece(job_id=state.id, piece=state.pieces, text=piece))
+            if pieces:
+                s.execute(insert(JobResultPiece), [
+                    {"job_id": state.id, "piece": state.pieces + k, "text": p.text,
+                     "data": p.data} for k, p in enumerate(pieces)])
             s.execute(update(JobRecord)
                       .where(JobRecord.id == state.id, JobRecord.runner == self.runner)
                       .values(document=_json(document), input_digest=origin.input_digest,
                               heartbeat=utcnow(), updated=utcnow()))
-        if piece is not None:
-            state.pieces += 1
+        state.pieces += len(pieces)
 
     def finish(self, state: JobState) -> None:
         document, _ = state.view()

@@ -4,12 +4,13 @@ while they are computed; the job reports its progress and, at the end, the summa
 
 Jobs are kept in the database (:class:`~.job_store.JobStore`, :mod:`dualcost.storage`): any
 worker of any instance answers for any job, and a job outlives a restart. The worker that
-receives the households computes them and writes, chunk by chunk and each in one transaction,
-the answer's rows and the job's progress; at the end the summaries. The rows are kept as CSV
-text whatever format the upload answers in: GET .../results gives them back as CSV, or as
-Parquet converted from them (:func:`~.households.parquet_of_csv`), so that any worker can give
-either. A job that fails after its answer has begun ends that answer with an error record whose
-reason is the job's ``error``. The upload is spooled to a
+receives the households computes them and writes, a few chunks at a time and each time in one
+transaction, the chunks' results and the job's progress; at the end the summaries. The results
+are kept as columns whatever format the upload answers in (each chunk's as an Arrow IPC
+stream: :mod:`.job_results`): GET .../results writes them again as CSV or Parquet with the
+writers that wrote the upload's answer (:func:`stored_answer`), so that any worker gives
+either, the same bytes. A job that fails after its answer has begun ends that answer with an
+error record whose reason is the job's ``error``. The upload is spooled to a
 temporary file (in memory up to 8 MiB, then on disk) and read back chunk by chunk, so the
 households are never held twice.
 
@@ -33,18 +34,19 @@ import hashlib
 import io
 import tempfile
 import threading
+import time
 import uuid
-from collections.abc import Generator, Iterator
+from collections.abc import Generator, Iterator, Sequence
 from dataclasses import dataclass, replace
 from datetime import datetime, timezone
-from itertools import islice
+from itertools import chain, islice
 from typing import TYPE_CHECKING, Any
 
 import orjson
 from fastapi import Request
 
 from ...config import Settings
-from ...core.households import Accumulator, HouseholdChunk, HouseholdJob
+from ...core.households import Accumulator, ChunkResult, HouseholdChunk, HouseholdJob
 from ...core.preferences import Notice
 from ..inputs.csv import (
     CSV_MEDIA_TYPE,
@@ -68,14 +70,19 @@ from ..provenance import Provenance, of_job
 from ..render import PARQUET_MEDIA_TYPE, parquet_metadata
 from ..schemas.common import CAUTION
 from ..schemas.households import HouseholdJobSpec
-from . import households
+from . import households, job_results
 from .answers import SCALE_RATIO, notices_json
-from .job_store import FINISHED, JobStore, already_received, owner_of
+from .job_store import FINISHED, JobStore, Piece, already_received, owner_of
 
 if TYPE_CHECKING:
     from ..inputs.columnar import UploadScan
 
 SPOOL_MEMORY_BYTES = 8 * 1024 * 1024
+#: Households whose results are held before they are stored (with the progress, in one
+#: transaction) and then sent; and the longest they are held, in seconds. A transaction per
+#: chunk cost as much time as the chunks' computation (households_speed.py).
+STORE_ROWS = 16_384
+STORE_SECONDS = 1.0
 
 __all__ = ["FINISHED", "JobState", "JobStore", "create", "owner_of", "restore", "state_of"]
 
@@ -110,7 +117,7 @@ class JobState:
         self.lock = threading.Lock()
         #: Where the job is kept (set by the store that holds it).
         self.store: JobStore | None = None
-        self.pieces = 0  # pieces of the CSV answer written to the store
+        self.pieces = 0  # pieces of the answer written to the store
 
     def reset(self) -> None:
         """The upload was refused before any work: the job waits for a corrected one."""
@@ -134,10 +141,10 @@ class JobState:
     def count(self, n: int) -> None:
         self.rows_read += n
 
-    def written(self, piece: str | None) -> None:
-        """Progress made (and a piece of the answer, if any): into the store."""
+    def written(self, pieces: Sequence[Piece] = ()) -> None:
+        """Progress made (and pieces of the answer, if any): into the store."""
         if self.store is not None:
-            self.store.progress(self, piece)
+            self.store.progress(self, pieces)
 
     def finish(self) -> None:
         summary = households.summary_json(self.acc.summary(self.quantiles), self.labels)
@@ -318,7 +325,7 @@ def open_upload(state: JobState, upload: Upload, settings: Settings,
     state.engine = "local" if address is None else "cluster"
     with state.lock:
         state.provenance = of_job(state.spec, upload.sha256)
-    state.written(None)
+    state.written()
     return closer, chunks, address
 
 
@@ -382,42 +389,40 @@ def answer_for(state: JobState, media: str) -> households.CsvAnswer | households
     return households.CsvAnswer(*args)
 
 
-def stored_form(state: JobState, answer: households.CsvAnswer | households.ParquetAnswer
-                ) -> households.CsvAnswer:
-    """The form a job's answer is kept in, in the database: CSV rows (the answer itself when
-    it is CSV), which GET .../results gives back as CSV or as Parquet converted from them."""
-    if isinstance(answer, households.CsvAnswer):
-        return answer
-    return households.CsvAnswer(answer.job, answer.labels, answer.with_income, answer.items)
+def head_piece(state: JobState, answer: households.CsvAnswer | households.ParquetAnswer
+               ) -> Piece:
+    """The first piece kept of a job's answer: its CSV header, and what the answer's writers
+    need to write it again from the stored columns (JSON)."""
+    csv_head = households.CsvAnswer(answer.job, answer.labels, answer.with_income, answer.items)
+    return Piece(csv_head.head(), orjson.dumps({"with_income": answer.with_income}))
 
 
 def stream(state: JobState, chunks: Iterator[HouseholdChunk], closer: Any, scheduler: Any,
            settings: Settings, answer: households.CsvAnswer | households.ParquetAnswer, *,
            reject: bool = False) -> Generator[str | bytes, None, None]:
     """The answer of a job, chunk by chunk; progress goes to the job as it is made. Whatever
-    the answer's format, each chunk's rows are stored as CSV text (:func:`stored_form`) with
-    the job's progress, in one transaction, before they are sent. An error once the answer has
-    begun ends it with the writer's error record and fails the job with the same reason (the
-    job's ``error``) rather than cutting it; before that, or with ``reject`` (nothing sent
-    yet), the error is raised (a lost database is then a 503).
+    the answer's format, the chunks' results are stored as columns (:mod:`.job_results`) with
+    the job's progress, a few chunks to a transaction (:class:`_Held`), before their rows are
+    sent. An error once the answer has begun ends it with the writer's error record and
+    fails the job with the same reason (the job's ``error``) rather than cutting it; before
+    that, or with ``reject`` (nothing sent yet), the error is raised (a lost database is then
+    a 503).
 
     ``scheduler`` is None (this process) or a connected Dask client, closed at the end.
     """
-    job = state.job
-    stored = stored_form(state, answer)
     begun = False
+    held = _Held()
     try:
-        head = stored.head()
-        # The rows and the progress are stored (one transaction) before they are sent.
-        state.written(head)
+        # The header and the progress are stored (one transaction) before anything is sent.
+        state.written([head_piece(state, answer)])
         begun = True
-        yield head if answer is stored else answer.head()
-        for result in households.evaluate(job, chunks, scheduler, settings):
+        yield answer.head()
+        for result in households.evaluate(state.job, chunks, scheduler, settings):
             state.acc.add(result)
-            rows = stored.rows(result) if result.size else None
-            state.written(rows)
-            if rows is not None:
-                yield rows if answer is stored else answer.rows(result)
+            if held.add(result):
+                yield from _stored_and_sent(state, held.take(), answer)
+        if held.results:  # the job's end writes the progress
+            yield from _stored_and_sent(state, held.take(), answer)
         if reject and state.acc.skipped.count:
             state.fail("failed", f"{state.acc.skipped.count} row(s) break a rule and bad_rows "
                        "is reject: no result was given")
@@ -432,6 +437,9 @@ def stream(state: JobState, chunks: Iterator[HouseholdChunk], closer: Any, sched
         state.fail("failed", message)
         if reject or not begun:
             raise
+        # The rows computed before the error are answered (not kept: the job has failed).
+        for result in held.take():
+            yield answer.rows(result)
         yield answer.error(message)
     finally:
         state.fail("cancelled", "the answer was not read to the end")
@@ -439,6 +447,66 @@ def stream(state: JobState, chunks: Iterator[HouseholdChunk], closer: Any, sched
             closer.close()
         if scheduler is not None:
             scheduler.close()
+
+
+class _Held:
+    """The chunks' results held to be stored together: until STORE_ROWS households are held
+    or STORE_SECONDS have passed (then possibly none: the progress alone is stored)."""
+
+    def __init__(self) -> None:
+        self.results: list[ChunkResult] = []
+        self.rows, self.since = 0, time.monotonic()
+
+    def add(self, result: ChunkResult) -> bool:
+        """Hold a result; whether the held ones are to be stored now."""
+        if result.size:
+            self.results.append(result)
+            self.rows += result.size
+        return self.rows >= STORE_ROWS or time.monotonic() - self.since >= STORE_SECONDS
+
+    def take(self) -> list[ChunkResult]:
+        out, self.results = self.results, []
+        self.rows, self.since = 0, time.monotonic()
+        return out
+
+
+def _stored_and_sent(state: JobState, results: list[ChunkResult],
+                     answer: households.CsvAnswer | households.ParquetAnswer
+                     ) -> Iterator[str | bytes]:
+    """Results stored as columns with the job's progress (one transaction), then their rows."""
+    periods = state.job.n_periods
+    state.written([Piece(None, job_results.encode(r, periods)) for r in results])
+    for result in results:
+        yield answer.rows(result)
+
+
+def stored_answer(store: JobStore, job_id: str, input_digest: str, spec: str, media: str,
+                  settings: Settings) -> Iterator[str | bytes]:
+    """A finished job's answer read back from the database, as CSV or Parquet: written from
+    the stored columns by the writer of the upload's answer, rebuilt from the job's
+    specification (the same bytes as the upload's answer). A job kept before its results were
+    kept as columns (CSV pieces) is given as that CSV, or as Parquet converted from it."""
+    pieces = store.pieces(job_id)
+    head = next(pieces, None)
+    metadata = parquet_metadata(Provenance(input_digest))
+    if head is None or head.data is None:  # CSV pieces (before revision 0003)
+        texts = (p.text or "" for p in chain([] if head is None else [head], pieces))
+        return households.parquet_of_csv(texts, metadata) if media == "parquet" else texts
+    state = state_of(HouseholdJobSpec.model_validate_json(spec), settings)
+    with_income = bool(orjson.loads(head.data)["with_income"])
+    args = (state.job, state.labels, with_income, state.axis.ids)
+    answer: households.CsvAnswer | households.ParquetAnswer = (
+        households.ParquetAnswer(*args, metadata=metadata) if media == "parquet"
+        else households.CsvAnswer(*args))
+
+    def written() -> Iterator[str | bytes]:
+        yield answer.head()
+        for piece in pieces:
+            assert piece.data is not None
+            yield answer.rows(job_results.decode(piece.data))
+        yield answer.end()
+
+    return written()
 
 
 def _failure(exc: Exception) -> str:

@@ -40,7 +40,6 @@ from ..render import (
     format_query,
     json_response,
     negotiate,
-    parquet_metadata,
     parquet_stream,
     provenance_headers,
     trailed,
@@ -271,11 +270,12 @@ def get_household_job_results(job_id: str, request: Request,
                               provenance: ProvenanceQuery = "headers") -> Response:
     """The answer of a job that is done, as its upload streamed it (the same rows and
     columns), read back from the service's database: any worker of any instance answers it,
-    after a restart too. The rows are kept as CSV; with Accept: application/vnd.apache.parquet
-    they come as the Parquet file the upload gives (a row group per chunk, the provenance
-    and caution in its metadata), converted from them, whichever format the upload answered
-    in. A job that is still waiting or running, or that failed or was cancelled (whose
-    partial answer is not kept; its error says why it ended), is a 409."""
+    after a restart too. The results are kept as columns (Arrow IPC), whichever format the
+    upload answered in, and written as CSV, or with Accept: application/vnd.apache.parquet as
+    the Parquet file the upload gives (a row group per chunk, the provenance and caution in
+    its metadata), by the same writers: the same bytes. A job that is still waiting or
+    running, or that failed or was cancelled (whose partial answer is not kept; its error says
+    why it ended), is a 409."""
     fmt = negotiate(request, JOB_OFFERS)
     store = _store(request)
     row = store.record(job_id, jobs.owner_of(request))
@@ -283,11 +283,12 @@ def get_household_job_results(job_id: str, request: Request,
         raise JobConflict(f"household job {job_id} is {row.status}: its results are given "
                           "once it is done")
     origin = Provenance(row.input_digest)
+    pieces = jobs.stored_answer(store, job_id, row.input_digest, row.spec, fmt,
+                                settings_of(request))
     if fmt == "parquet":
-        return parquet_stream(households.parquet_of_csv(store.pieces(job_id),
-                                                        parquet_metadata(origin)),
+        return parquet_stream(pieces,  # type: ignore[arg-type]
                               provenance=origin, headers=dict(SCALE_HEADERS))
-    return csv_stream(store.pieces(job_id), provenance=origin,
+    return csv_stream(pieces, provenance=origin,  # type: ignore[arg-type]
                       trailer=provenance == "trailer", headers=dict(SCALE_HEADERS))
 
 
