@@ -24,18 +24,19 @@ __all__ = ["json_records"]
 def _texts(column: Sequence[Any]) -> list[bytes]:
     """Each value of ``column`` as orjson writes it, from one ``orjson.dumps`` of the column
     (a call per value would cost about 1 us each, for the buffer orjson allocates per call)."""
+    text = orjson.dumps(column)
+    if b'"' not in text:  # numbers, null and booleans, none of which holds a comma
+        return text[1:-1].split(b",")
     kinds = set(map(type, column))
-    if str not in kinds:  # numbers, null and booleans, none of which holds a comma
-        return orjson.dumps(column)[1:-1].split(b",")
     if kinds == _TEXT:
         # Within a string every quote is escaped, so '","' is only ever between two strings;
         # a NUL byte is only ever written escaped, so it marks the cuts.
-        return orjson.dumps(column)[1:-1].replace(b'","', b'"\0"').split(b"\0")
+        return text[1:-1].replace(b'","', b'"\0"').split(b"\0")
     if kinds == _TEXT_OR_NONE:  # text where given (labels), null elsewhere
         given = [i for i, v in enumerate(column) if v is not None]
         texts = [b"null"] * len(column)
-        for i, text in zip(given, _texts([column[i] for i in given]), strict=True):
-            texts[i] = text
+        for i, piece in zip(given, _texts([column[i] for i in given]), strict=True):
+            texts[i] = piece
         return texts
     return list(map(orjson.dumps, column))
 
