@@ -11,8 +11,10 @@ against the echo endpoint, target at least 0.5, with zero errors). A second echo
 the same app parses and writes with orjson, the fastest a bare endpoint can do: the ratio to it
 is the honest floor (target at least 0.35). A fourth target, the service with
 DUALCOST_INLINE_COMPUTE_MAX_BYTES=0, computes every request in its compute threads (the trade:
-less throughput, a shorter latency tail under overload). Traffic goes to 127.0.0.1 only, and
-every run is bounded in time.
+less throughput, a shorter latency tail under overload). ``--before PATH`` adds a fifth target:
+the service run from another source tree (PATH is its ``service/`` folder, e.g. an export of an
+earlier commit), so that a change is measured against the code before it in the same run.
+Traffic goes to 127.0.0.1 only, and every run is bounded in time.
 """
 
 from __future__ import annotations
@@ -97,14 +99,16 @@ def drive(url: str, script: str, seconds: int, clients: int) -> dict[str, float]
 
 TARGETS = ("dualcost", "echo", "floor", "threads")
 LABELS = {"dualcost": "dualcost", "echo": "echo (std json)", "floor": "echo (orjson both ways)",
-          "threads": "dualcost, compute threads only"}
+          "threads": "dualcost, compute threads only", "before": "dualcost, code before (--before)"}
 
 
-def server(name: str, port: int) -> tuple[list[str], dict[str, str], str, str]:
+def server(name: str, port: int, before: str | None = None
+           ) -> tuple[list[str], dict[str, str], str, str]:
     """Command, environment, load URL and readiness URL of one target."""
-    # benchmarks/ first, then any path given (a worktree's service/ rather than the installed one)
-    env = dict(os.environ, PYTHONPATH=os.pathsep.join(
-        p for p in (str(HERE), os.environ.get("PYTHONPATH", "")) if p))
+    # benchmarks/ first, then any path given (a worktree's service/ rather than the installed
+    # one); the code before a change from its own source tree
+    source = before if name == "before" else os.environ.get("PYTHONPATH", "")
+    env = dict(os.environ, PYTHONPATH=os.pathsep.join(p for p in (str(HERE), source) if p))
     if name in ("echo", "floor"):
         cmd = [sys.executable, "-m", "uvicorn", "echo_app:app", "--port", str(port),
                "--workers", "2", "--log-level", "warning", "--no-access-log"]
@@ -122,14 +126,17 @@ def main() -> int:
     parser.add_argument("--rounds", type=int, default=3,
                         help="the load time is split into this many turns, taken in rotation")
     parser.add_argument("--clients", type=int, default=64)
+    parser.add_argument("--before", metavar="PATH", help="also run the service from this source "
+                        "folder (another commit's service/), in the same turns")
     args = parser.parse_args()
+    targets = TARGETS + (("before",) if args.before else ())
     if not shutil.which("wrk"):
         print("wrk is needed: apt-get install wrk", file=sys.stderr)
         return 2
 
     body = json.dumps(scenario()).encode()
     turn = max(1, round(args.seconds / args.rounds))
-    runs: dict[str, list[dict[str, float]]] = {name: [] for name in TARGETS}
+    runs: dict[str, list[dict[str, float]]] = {name: [] for name in targets}
     with tempfile.TemporaryDirectory() as tmp:
         body_path = Path(tmp) / "body.json"
         body_path.write_bytes(body)
@@ -139,15 +146,15 @@ def main() -> int:
         try:
             # All targets run side by side, idle unless driven, and take turns: a shared machine
             # changes speed over minutes, and turns spread that over every target alike.
-            for name in TARGETS:
-                cmd, env, url, probe = server(name, free_port())
+            for name in targets:
+                cmd, env, url, probe = server(name, free_port(), args.before)
                 procs.append(start(cmd, env))
                 wait_until_up(probe)
                 urls[name] = url
-            for name in TARGETS:
+            for name in targets:
                 drive(urls[name], str(script), 3, args.clients)  # warm-up
             for _ in range(args.rounds):
-                for name in TARGETS:
+                for name in targets:
                     runs[name].append(drive(urls[name], str(script), turn, args.clients))
         finally:
             for proc in procs:
@@ -156,7 +163,7 @@ def main() -> int:
     print(f"load: {args.clients} connections, 2 workers per target, {args.rounds} turns of "
           f"{turn} s per target, 300-item nested CES comparison ({len(body)} bytes)")
     total = {}
-    for name in TARGETS:
+    for name in targets:
         r = runs[name]
         total[name] = sum(x["requests"] for x in r) / (turn * len(r))
         p50 = sorted(x["p50"] for x in r)[len(r) // 2]
@@ -175,6 +182,12 @@ def main() -> int:
           f"(target at least 0.35); by turn: {', '.join(f'{x:.2f}' for x in per_floor)}")
     print(f"  echo (std json) / orjson floor: {total['echo'] / total['floor']:.2f}")
     print(f"  compute threads only / echo: {total['threads'] / total['echo']:.2f}")
+    if args.before:
+        by_turn = [d["requests"] / b["requests"] for d, b in zip(runs["dualcost"], runs["before"],
+                                                                  strict=True)]
+        print(f"  dualcost / code before: {total['dualcost'] / total['before']:.2f}; by turn: "
+              f"{', '.join(f'{x:.2f}' for x in by_turn)}; the code before / orjson floor: "
+              f"{total['before'] / total['floor']:.2f}")
     return 0
 
 

@@ -154,7 +154,9 @@ def test_the_quick_road_writes_what_the_scheme_writes(value: Any) -> None:
 _TOKENS = st.sampled_from([1.0, -0.0, 0.5, 1e-5, 1e-7, 1e16, 1e21, 2.0 ** 53, 9007199254740993,
                            2 ** 63 - 1, -(2 ** 63), 2 ** 64, 123456789012345678, 1e-4, 0.1,
                            0.30000000000000004, 5e-324, "\U0001f600", "\ufb33", "\x1f\x7f",
-                           "\u2028", "\ud800", "1.0", "e5", None, True])
+                           "\u2028", "\ud800", "1.0", "e5", None, True,
+                           # strings that hold what a whole float ends with, and quotes
+                           "1.0,", "[2.0]", "x.0}", '"', '".0,', '\\".0]', "-0.0,"])
 _RISKY_JSON = st.recursive(_SCALARS | _TOKENS, lambda inner: st.lists(inner, max_size=6)
                            | st.dictionaries(st.text(max_size=3) | _TOKENS.filter(
                                lambda t: isinstance(t, str)), inner, max_size=6), max_leaves=30)
@@ -179,9 +181,10 @@ def test_the_quickest_road_writes_what_the_scheme_writes(value: Any) -> None:
 
 
 def test_the_quickest_road_is_taken_where_orjson_writes_the_scheme_s_text() -> None:
-    """A request of prices and ids without whole floats takes orjson's text as it is; a whole
-    float anywhere (12.0, or a string that looks like one) sends it down the quicker road, to
-    the same text."""
+    """A request of prices and ids takes orjson's text, with whole floats mended (12.0 written
+    12, outside strings only: "group 1.0,2.0]" stays as it is); a negative zero or a backslash
+    in a string (where quotes cannot simply be counted) sends it down the quicker road, to the
+    same text."""
     from dualcost.canonical import _quickest
 
     value = {"base": {"prices": {f"item_{i}": 1.25 + i / 7 for i in range(300)},
@@ -190,9 +193,15 @@ def test_the_quickest_road_is_taken_where_orjson_writes_the_scheme_s_text() -> N
     out: list[str] = []
     _write(value, out)
     assert _quickest(value) == "".join(out).encode()
-    for whole in ({"q": [12.0]}, {"q": -0.0}, {"name": "group 1.0"}):
-        assert _quickest(value | whole) is None
-        assert canonical_json(value | whole, json_values=True) == canonical_json(value | whole)
+    for whole in ({"q": [12.0, 0.0, 2.0 ** 53]}, {"name": "group 1.0"},
+                  {"tree": {"name": "group 1.0,2.0]", "sigma": 2.0, "children": ["a.0}"]}}):
+        out = []
+        _write(value | whole, out)
+        assert _quickest(value | whole) == "".join(out).encode()
+    for declined in ({"q": -0.0}, {"q": 12.0, "name": 'say "1.0,"'}):
+        assert _quickest(value | declined) is None
+        assert canonical_json(value | declined, json_values=True) == canonical_json(
+            value | declined)
 
 
 def test_orjson_writes_the_digits_python_s_repr_writes() -> None:

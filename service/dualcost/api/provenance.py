@@ -163,10 +163,9 @@ def _of(value: Any) -> Provenance:
     """The provenance of a canonical input given as JSON values."""
     try:
         # The text is canonical_json's (digest_of is the SHA-256 of the same bytes), kept because a
-        # saved run stores it. Not json_values=True: the benchmarks' 300-item request holds whole
-        # floats and tree names like "group 1.0", for which orjson's text cannot be taken as it
-        # is, and the try cost more than it saved there (canonical.py, the quickest road).
-        text = canonical_json(value)
+        # saved run stores it. Every value here is of JSON's own types (model_dump(mode="json"),
+        # query text, hex digests), so the quickest road may be taken (canonical.py).
+        text = canonical_json(value, json_values=True)
     except (ValueError, OverflowError) as exc:  # only what validation let through: model extras
         raise RequestProblem.at("", f"the request has no canonical form: {exc}") from None
     return Provenance("sha256:" + hashlib.sha256(text).hexdigest(), input=text)

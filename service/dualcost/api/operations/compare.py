@@ -21,6 +21,7 @@ from ..inputs.items import ItemAxis
 from ..inputs.locator import Form, Locator, Place
 from ..inputs.model import core_parameters
 from ..observability import computing
+from ..records import json_records
 from ..render import all_finite
 from ..schemas.comparison import (
     CAUTION,
@@ -189,13 +190,16 @@ def current_arguments(request: ComparedPeriod, axis: ItemAxis, loc: Locator,
 # -- the answer -------------------------------------------------------------------------------
 
 
-def document(outcome: Outcome) -> dict[str, Any]:
+def document(outcome: Outcome, *, rows_as_text: bool = False) -> dict[str, Any]:
     """The answer as plain JSON-ready values, in the shape of ``ComparisonResponse``.
 
     Written in one step from the core's arrays: validating one response object per item would
     cost more than the computation for large baskets (the tests validate answers against the
     response model). Every number the core computed it checked finite; the calibrated
-    parameters are checked here.
+    parameters are checked here. ``rows_as_text``: ``by_item`` as its JSON text, written
+    column by column (:func:`dualcost.api.records.json_records`, the same bytes once the answer
+    is written), for an answer that goes straight to orjson; most of a large basket's answer
+    is that table, and its rows cost more to build as dicts than to write.
     """
     r, axis = outcome.result, outcome.axis
     parameters = dict(outcome.model.parameters())
@@ -233,7 +237,7 @@ def document(outcome: Outcome) -> dict[str, Any]:
         "laspeyres_gap_points": gap if regular else None,
         "compensation": (compensation if regular else _withheld(compensation))
         | {"sign_convention": SIGN_CONVENTION},
-        "by_item": _items(r, axis),
+        "by_item": (json_records(_item_columns(r, axis)) if rows_as_text else _items(r, axis)),
         "lloyd_moulton_sigma": r.lloyd_moulton_sigma,
         "model_parameters": parameters,
         "diagnostics": {"duality_residual": r.diagnostics.duality_residual,
@@ -289,9 +293,8 @@ def _withheld(figures: dict[str, Any], keep: tuple[str, ...] = ()) -> dict[str, 
     return {k: (v if k in keep else None) for k, v in figures.items()}
 
 
-def _items(r: Comparison, axis: ItemAxis) -> list[dict[str, Any]]:
-    """One record per item, written out as a dict display: about twice as fast as zipping
-    names with rows, for baskets of hundreds of items."""
+def _item_columns(r: Comparison, axis: ItemAxis) -> dict[str, list[Any]]:
+    """The per-item table by column, in the order of an ``ItemOut`` record's members."""
     d = r.demands
     gap = r.laspeyres_gap_contributions
     none = [None] * len(axis.ids)
@@ -301,16 +304,18 @@ def _items(r: Comparison, axis: ItemAxis) -> list[dict[str, Any]]:
     model = [d.current, d.compensated, d.substitution_effect, d.income_effect]
     current, compensated, substitution, income = (
         [v.tolist() for v in model] if r.validity.regular else [none] * 4)
-    return [
-        {"item": item, "label": label, "base_price": p0, "current_price": p1,
-         "price_relative": rel, "base_quantity": q0, "current_quantity": q1,
-         "compensated_quantity": h1, "substitution_effect": sub, "income_effect": inc,
-         "laspeyres_gap_points": g}
-        for item, label, p0, p1, rel, q0, q1, h1, sub, inc, g in zip(
-            axis.ids, axis.labels, r.base_prices.tolist(), r.current_prices.tolist(),
-            (r.current_prices / r.base_prices).tolist(), d.base.tolist(), current,
-            compensated, substitution, income, gaps, strict=True)
-    ]
+    return {"item": axis.ids, "label": axis.labels, "base_price": r.base_prices.tolist(),
+            "current_price": r.current_prices.tolist(),
+            "price_relative": (r.current_prices / r.base_prices).tolist(),
+            "base_quantity": d.base.tolist(), "current_quantity": current,
+            "compensated_quantity": compensated, "substitution_effect": substitution,
+            "income_effect": income, "laspeyres_gap_points": gaps}
+
+
+def _items(r: Comparison, axis: ItemAxis) -> list[dict[str, Any]]:
+    """One record per item."""
+    columns = _item_columns(r, axis)
+    return [dict(zip(columns, row, strict=True)) for row in zip(*columns.values(), strict=True)]
 
 
 Row = tuple[str, float | None, str, float | None, float | None]

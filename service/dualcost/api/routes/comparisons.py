@@ -50,4 +50,4 @@ def compare_prices(body: ComparisonRequest, request: Request,
         return csv_response(header, rows, provenance=of_body(body),
                             trailer=provenance == "trailer", filename="comparison.csv",
                             headers=scale_headers(SCALE_RATIO))
-    return json_response(compare.document(outcome), provenance=of_body(body))
+    return json_response(compare.document(outcome, rows_as_text=True), provenance=of_body(body))
