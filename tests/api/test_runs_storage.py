@@ -1,12 +1,12 @@
 """How saved runs are written: their contents compressed with LZ4 on PostgreSQL, their
-transactions committed without waiting for the server's disk, and two writers per process on a
-database server, one on SQLite. What each PostgreSQL setting means is PostgreSQL's own
-documentation (version 15): ``ALTER TABLE ... SET COMPRESSION`` and ``SET STORAGE``, the
-catalogue ``pg_attribute`` (``attcompression`` 'l' for LZ4, ``attstorage`` 'e' for external,
-uncompressed), the function ``pg_column_compression``, and the setting ``synchronous_commit``
-(Write Ahead Log settings; ``SET LOCAL`` lasts until the end of the transaction). SQLite takes
-one writer at a time (its documentation, "File Locking And Concurrency"). What these changes
-gain is measured by benchmarks/save_runs.py, not here."""
+transactions committed without waiting for the server's disk, and two writers (of two worker
+processes) storing the same new content at once. What each PostgreSQL setting means is
+PostgreSQL's own documentation (version 15): ``ALTER TABLE ... SET COMPRESSION`` and
+``SET STORAGE``, the catalogue ``pg_attribute`` (``attcompression`` 'l' for LZ4,
+``attstorage`` 'e' for external, uncompressed), the function ``pg_column_compression``, and
+the setting ``synchronous_commit`` (Write Ahead Log settings; ``SET LOCAL`` lasts until the
+end of the transaction). What these changes gain is measured by benchmarks/save_runs.py, not
+here."""
 
 from __future__ import annotations
 
@@ -99,23 +99,12 @@ def test_saved_runs_are_written_in_transactions_that_are_not_durable(
     assert asked == [True]
 
 
-def test_two_writers_on_a_server_one_on_sqlite(database_url: str) -> None:
-    """A database server takes the runs of two writer threads at once (one gathers while the
-    other commits); SQLite, which takes one writer at a time, gets one."""
-    client = service(database_url)
-    db: Database = client.app.state.db  # type: ignore[attr-defined]
-    assert db.writers == (1 if database_url.startswith("sqlite") else 2)
-    client.post("/v1/comparisons?save=true", json=small_request())
-    store = client.app.state.runs  # type: ignore[attr-defined]
-    assert len(store._writers) == db.writers
-    assert all(w.is_alive() for w in store._writers)
-
-
 def test_two_writers_storing_the_same_new_input_at_once_store_it_once(
         database_url: str) -> None:
-    """Two transactions commit runs naming the same new input and answer at the same moment:
-    both runs are stored, the input and the answer once (the one that finds them stored by
-    the other tries again: the unique key of run_contents decides)."""
+    """Two transactions (the writers of two worker processes) commit runs naming the same new
+    input and answer at the same moment: both runs are stored, the input and the answer once
+    (the one that finds them stored by the other tries again: the unique key of run_contents
+    decides)."""
     client = service(database_url)
     store = client.app.state.runs  # type: ignore[attr-defined]
     saved = client.post("/v1/comparisons?save=true", json=small_request())

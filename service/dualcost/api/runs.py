@@ -13,13 +13,12 @@ The answer is sent only once its run is committed, and says where it is kept in 
 ``Dualcost-Run`` (its id) and ``Link: </v1/runs/{id}>; rel="related"``; a streamed (CSV) answer
 is gathered first. If the database cannot take it, the answer is a 503 problem (with
 Retry-After): a caller that asked for a record never gets an answer without one. Saves are
-written by writer threads, several to a transaction (:class:`RunStore`), off the event loop:
-each request waits for its own commit, none waits for a compute thread. A process has one
-writer on SQLite (one writer at a time there), two on a database server: one gathers the next
-runs while the other commits. The transactions are not ``durable``: on PostgreSQL their commit
-does not wait for the server's disk (:meth:`~dualcost.storage.Database.transaction`). An input or
-an answer is stored once, under the SHA-256 of its bytes (:class:`~dualcost.storage.tables.
-RunContent`), so a request asked again with the same input adds only a small row.
+written by one thread per process, several to a transaction (:class:`RunStore`), off the
+event loop: each request waits for its own commit, none waits for a compute thread. Those
+transactions are not ``durable``: on PostgreSQL their commit does not wait for the server's
+disk (:meth:`~dualcost.storage.Database.transaction`). An input or an answer is stored once,
+under the SHA-256 of its bytes (:class:`~dualcost.storage.tables.RunContent`), so a request
+asked again with the same input adds only a small row.
 """
 
 from __future__ import annotations
@@ -107,9 +106,8 @@ class RunStore:
     def __init__(self, db: Database) -> None:
         self.db = db
         self._queue: queue.SimpleQueue[_Pending] = queue.SimpleQueue()
-        self._writers: list[threading.Thread] = []
+        self._writer: threading.Thread | None = None
         self._lock = threading.Lock()
-        self._gathering = threading.Lock()
         #: Requests of this process that asked for save and are computing (counted on the
         #: event loop, read by the writer thread).
         self.coming = 0
@@ -127,17 +125,14 @@ class RunStore:
 
     def _start_writer(self) -> None:
         with self._lock:
-            if not self._writers:
-                for n in range(self.db.writers):
-                    writer = threading.Thread(target=self._write, name=f"dualcost-runs-{n}",
-                                              daemon=True)
-                    writer.start()
-                    self._writers.append(writer)
+            if self._writer is None:
+                self._writer = threading.Thread(target=self._write, name="dualcost-runs",
+                                                daemon=True)
+                self._writer.start()
 
     def _write(self) -> None:
         while True:
-            with self._gathering:  # one writer gathers while the others commit
-                batch = self._gather()
+            batch = self._gather()
             outcome: BaseException | None = None
             try:
                 self._commit([p.record for p in batch])

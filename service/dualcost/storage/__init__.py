@@ -77,9 +77,6 @@ class Database:
         if self.engine.dialect.name == "sqlite":
             event.listen(self.engine, "connect", _sqlite_pragmas)
         self.sessions = sessionmaker(self.engine, expire_on_commit=False)
-        #: Transactions that may write at the same moment: SQLite takes one writer at a time
-        #: (its file's lock), a database server several.
-        self.writers = 1 if self.engine.dialect.name == "sqlite" else 2
         self.healthy = True
         self._migrated = False
         self._lock = threading.Lock()
