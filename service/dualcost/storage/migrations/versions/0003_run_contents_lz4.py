@@ -5,7 +5,7 @@ PostgreSQL page, so PostgreSQL moves it out of the row into the table's TOAST st
 compressing it first; with its default method (pglz) that compression was most of the cost of
 saving a run with a new input: about 2.7 ms of the server's time per stored content here,
 against 0.9 ms with LZ4 (PostgreSQL 14 and later, where the server is built with it, as
-Debian's is), whose result is about 15 % larger (46 kB against 40 kB for these contents,
+Debian's is), whose result is about 14 % larger (46 kB against 40 kB for these contents,
 82 kB uncompressed). A server without LZ4 (older, or built without it) stores the contents
 uncompressed instead (``STORAGE EXTERNAL``), as fast as LZ4 and twice the size. Either
 setting applies to contents written from now on; those already stored stay as they are, and
