@@ -13,12 +13,20 @@ The same request repeated is the load benchmark's case: its input and answer (ab
 stored once, and each later run adds a small row. With ``--distinct`` every request (of both
 targets alike) has its own input, one price changed in its last digits, so that every run stores
 its own 27 kB input and 130 kB answer: the cost of saving work that is never repeated.
+
+On a machine shared with other work the throughput ratio moves with that work (single turns
+have ranged from 0.3 to 2.5 at a load average of 10), so on Linux the script also prints the
+CPU time each target spends per request: in the service's processes, and, for a PostgreSQL
+database on this machine, in the server processes that serve the benchmark's database (its
+background writers, shared with other databases, are not counted). Their ratio, plain / save,
+is the throughput ratio to expect when the CPUs are the limit and the database shares them.
 """
 
 from __future__ import annotations
 
 import argparse
 import json
+import math
 import os
 import shutil
 import sys
@@ -63,6 +71,54 @@ end
 """
 
 
+def _stat(pid: str) -> tuple[str, list[str]] | None:
+    """A process's name and the fields of /proc/<pid>/stat after it (state first)."""
+    try:
+        with open(f"/proc/{pid}/stat") as f:
+            name, fields = f.read().split(" (", 1)[1].rsplit(")", 1)
+    except (OSError, IndexError, ValueError):  # gone meanwhile
+        return None
+    return name, fields.split()
+
+
+def cpu_seconds(group: int, database: str | None) -> tuple[float, float]:
+    """CPU seconds used so far by the processes of the service's process group, and by the
+    local PostgreSQL server processes serving ``database`` (0 when None); (nan, nan) without
+    /proc."""
+    if not os.path.isdir("/proc/self"):
+        return math.nan, math.nan
+    tick = os.sysconf("SC_CLK_TCK")
+    service = served = 0.0
+    for pid in filter(str.isdigit, os.listdir("/proc")):
+        found = _stat(pid)
+        if found is None:
+            continue
+        name, stat = found
+        used = (int(stat[11]) + int(stat[12])) / tick  # utime, stime
+        if int(stat[2]) == group:  # pgrp
+            service += used
+        elif database is not None and name == "postgres":
+            try:
+                with open(f"/proc/{pid}/cmdline", "rb") as f:
+                    title = f.read().decode(errors="replace").split()
+            except OSError:
+                continue
+            if len(title) > 2 and title[0] == "postgres:" and title[2] == database:
+                served += used
+    return service, served
+
+
+def local_database(url: str | None) -> str | None:
+    """The database's name, when it is PostgreSQL on this machine."""
+    if url is None:
+        return None
+    from sqlalchemy.engine import make_url
+
+    parsed = make_url(url)
+    local = parsed.host in (None, "", "localhost", "127.0.0.1", "::1")
+    return parsed.database if parsed.get_backend_name() == "postgresql" and local else None
+
+
 def stored_runs(url: str) -> tuple[int, int]:
     """How many runs are stored, and how many distinct inputs and answers."""
     from sqlalchemy import create_engine, func, select
@@ -97,6 +153,7 @@ def main() -> int:
     body = json.dumps(request).encode()
     turn = max(1, round(args.seconds / args.rounds))
     runs: dict[str, list[dict[str, float]]] = {name: [] for name in TARGETS}
+    database = local_database(args.database_url)
     with tempfile.TemporaryDirectory() as tmp:
         url = args.database_url or f"sqlite:///{tmp}/runs.sqlite3"
         (Path(tmp) / "body.json").write_bytes(body)
@@ -122,7 +179,11 @@ def main() -> int:
                 drive(urls[name], str(script), 3, args.clients)  # warm-up
             for _ in range(args.rounds):
                 for name in TARGETS:
+                    before = cpu_seconds(proc.pid, database)
                     runs[name].append(drive(urls[name], str(script), turn, args.clients))
+                    after = cpu_seconds(proc.pid, database)
+                    runs[name][-1]["service_cpu"] = after[0] - before[0]
+                    runs[name][-1]["database_cpu"] = after[1] - before[1]
         finally:
             stop(proc)
         kept = stored_runs(url)
@@ -139,9 +200,20 @@ def main() -> int:
               f"{max(x['p99'] for x in r):8.2f} ms   errors {sum(x['errors'] for x in r)}")
     per_turn = [s["requests"] / p["requests"] for s, p in zip(runs["save"], runs["plain"],
                                                               strict=True)]
+    cpu = {}
+    for name in TARGETS:
+        done = sum(x["requests"] for x in runs[name])
+        service = 1000 * sum(x["service_cpu"] for x in runs[name]) / done
+        served = 1000 * sum(x["database_cpu"] for x in runs[name]) / done
+        cpu[name] = service + served
+        print(f"  {name:6s} CPU per request: service {service:.2f} ms"
+              + (f", database server {served:.2f} ms" if database else ""))
     print(f"  runs stored: {kept[0]}, distinct inputs and answers stored: {kept[1]}")
     print(f"  throughput ratio save / plain: {total['save'] / total['plain']:.2f} (target at "
           f"least 0.9); by turn: {', '.join(f'{x:.2f}' for x in per_turn)}")
+    shared = ", the database server on them" if database else ""
+    print(f"  CPU per request, ratio plain / save: {cpu['plain'] / cpu['save']:.2f} (the "
+          f"throughput ratio when the CPUs are the limit{shared})")
     return 0
 
 

@@ -334,3 +334,67 @@ def test_results_kept_as_csv_before_revision_0003_are_still_given(database_url: 
     assert pq.read_table(io.BytesIO(parquet)).equals(pq.read_table(io.BytesIO(streamed)))
     assert (pq.ParquetFile(io.BytesIO(parquet)).metadata.metadata
             == pq.ParquetFile(io.BytesIO(streamed)).metadata.metadata)
+
+
+def _lost_at_finish(client: TestClient, monkeypatch: pytest.MonkeyPatch) -> dict[str, bool]:
+    """Make the database out of reach from the moment the job is recorded as done (the flag
+    returned: set it false to bring the database back). Every app on the URL shares the one
+    Database object of the process, so all of them lose it."""
+    store = client.app.state.jobs  # type: ignore[attr-defined]
+    down = {"now": False}
+    transaction, finish = store.db.transaction, store.finish
+
+    def reachable(**kw: Any) -> Any:
+        if down["now"]:
+            raise StorageUnavailable("the database cannot be used: connection lost (test)")
+        return transaction(**kw)
+
+    def finish_then_lose(state: Any) -> None:
+        down["now"] = True
+        finish(state)
+
+    monkeypatch.setattr(store.db, "transaction", reachable)
+    monkeypatch.setattr(store, "finish", finish_then_lose)
+    return down
+
+
+def test_a_job_whose_end_the_database_could_not_take_is_failed_once_it_can(
+        database_url: str, monkeypatch: pytest.MonkeyPatch) -> None:
+    """The database fails exactly when a job is recorded as done: the answer ends with the
+    error, and the job is read as failed with that reason by every worker once the worker
+    that ran it reaches the database again (its keeper's round), not running until its lease
+    runs out; meanwhile it keeps its sign of life."""
+    one, two = worker(database_url), worker(database_url)
+    store = one.app.state.jobs  # type: ignore[attr-defined]
+    job = create_job(one, example())
+    down = _lost_at_finish(one, monkeypatch)
+    answer = upload(one, job, household_csv(example()))
+    assert "connection lost (test)" in answer.text.splitlines()[-1]
+    assert list(store.unrecorded) == [job["id"]] and job["id"] in store.local
+    down["now"] = False
+    assert two.get(job["links"]["self"]).json()["status"] == "running"
+    store.beat()  # the keeper's round
+    for client in (two, one):
+        status = client.get(job["links"]["self"]).json()
+        assert status["status"] == "failed", status
+        assert "connection lost (test)" in status["error"]
+    assert store.unrecorded == {} and store.local == {}
+    with one.app.state.db.transaction() as s:  # type: ignore[attr-defined]
+        assert s.scalars(select(JobResultPiece.piece)
+                         .where(JobResultPiece.job_id == job["id"])).all() == []
+
+
+def test_the_worker_that_knows_the_end_writes_it_before_answering_for_the_job(
+        database_url: str, monkeypatch: pytest.MonkeyPatch) -> None:
+    """Before its keeper's round, the worker that ran the job writes the outcome it keeps as
+    soon as it answers for the job; while the database is still out of reach that is a 503."""
+    client = worker(database_url)
+    store = client.app.state.jobs  # type: ignore[attr-defined]
+    job = create_job(client, example())
+    down = _lost_at_finish(client, monkeypatch)
+    upload(client, job, household_csv(example()))
+    assert client.get(job["links"]["self"]).status_code == 503
+    down["now"] = False
+    status = client.get(job["links"]["self"]).json()
+    assert status["status"] == "failed" and "connection lost (test)" in status["error"]
+    assert store.unrecorded == {}

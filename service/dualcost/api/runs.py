@@ -14,9 +14,11 @@ The answer is sent only once its run is committed, and says where it is kept in 
 is gathered first. If the database cannot take it, the answer is a 503 problem (with
 Retry-After): a caller that asked for a record never gets an answer without one. Saves are
 written by one thread per process, several to a transaction (:class:`RunStore`), off the
-event loop: each request waits for its own commit, none waits for a compute thread. An input or
-an answer is stored once, under the SHA-256 of its bytes (:class:`~dualcost.storage.tables.
-RunContent`), so a request asked again with the same input adds only a small row.
+event loop: each request waits for its own commit, none waits for a compute thread. Those
+transactions are not ``durable``: on PostgreSQL their commit does not wait for the server's
+disk (:meth:`~dualcost.storage.Database.transaction`). An input or an answer is stored once,
+under the SHA-256 of its bytes (:class:`~dualcost.storage.tables.RunContent`), so a request
+asked again with the same input adds only a small row.
 """
 
 from __future__ import annotations
@@ -178,7 +180,7 @@ class RunStore:
             rows.append(row)
         for attempt in range(ATTEMPTS):
             try:
-                with self.db.transaction() as s:
+                with self.db.transaction(durable=False) as s:
                     known = set(s.scalars(select(RunContent.digest)
                                           .where(RunContent.digest.in_(contents))))
                     new = [{"digest": d, "data": v} for d, v in contents.items()

@@ -16,6 +16,13 @@ every chunk, and its keeper thread (:mod:`dualcost.api.keeper`) does so every qu
 to a worker that stopped (a restart, a crash): it is marked failed, with that reason, by the
 next worker that looks at the table. A worker shutting down marks its own running jobs failed
 at once.
+
+**An end the database could not take.** When a job fails (the database lost while it wrote a
+chunk, or while it recorded the job as done) and the database cannot take that either, the
+worker keeps the outcome and the job's sign of life, and writes the outcome, with its reason,
+at its keeper's next round that reaches the database (within a quarter of the lease), or
+before it answers for the job itself, whichever comes first: from then on every worker reads
+the job as failed with that reason, rather than running until its lease runs out.
 """
 
 from __future__ import annotations
@@ -161,6 +168,9 @@ class JobStore:
         self.runner = f"{socket.gethostname()}:{os.getpid()}:{uuid.uuid4().hex[:8]}"
         #: The jobs running in this process (their heartbeats are this process's to write).
         self.local: dict[str, JobState] = {}
+        #: Outcomes (status, reason, document) of jobs of this process that ended while the
+        #: database could not take them, to write once it can (see the module's notes).
+        self.unrecorded: dict[str, tuple[str, str, str]] = {}
         self.lock = threading.Lock()
 
     # -- the table's membership ---------------------------------------------------------------
@@ -232,6 +242,8 @@ class JobStore:
 
     def record(self, job_id: str, owner: str | None = None) -> JobRecord:
         """The job's row, if ``owner`` may see it; another owner's job is 'not found' too."""
+        if job_id in self.unrecorded:  # its outcome, known here, is written first
+            self.write_outcomes()
         with self.db.transaction() as s:
             row = self._visible(s, job_id, owner)
             if self._stale(row):  # a write only when there is something to write
@@ -320,17 +332,49 @@ class JobStore:
 
     def fail(self, state: JobState, status: str, message: str) -> None:
         """The job stopped (failed or cancelled): said so, and its partial answer dropped."""
-        document, _ = state.view()
+        outcome = (status, message, _json(state.view()[0]))
         try:
             with self.db.transaction() as s:
-                s.execute(update(JobRecord)
-                          .where(JobRecord.id == state.id, JobRecord.status == "running")
-                          .values(status=status, error=message, runner=None,
-                                  document=_json(document), updated=utcnow()))
-                s.execute(delete(JobResultPiece).where(JobResultPiece.job_id == state.id))
-        except StorageUnavailable as exc:  # the lease will say it once the database is back
-            log.warning("household job %s %s, not recorded: %s", state.id, status, exc)
+                self._end(s, state.id, outcome)
+        except StorageUnavailable as exc:  # kept, and its sign of life, until it can be written
+            log.warning("household job %s %s, not recorded yet (it will be once the database "
+                        "answers): %s", state.id, status, exc)
+            with self.lock:
+                self.unrecorded[state.id] = outcome
+            return
         self._forget(state.id)
+
+    @staticmethod
+    def _end(session: Session, job_id: str, outcome: tuple[str, str, str]) -> None:
+        """A running job failed or cancelled, with its reason; its partial answer dropped."""
+        status, message, document = outcome
+        session.execute(update(JobRecord)
+                        .where(JobRecord.id == job_id, JobRecord.status == "running")
+                        .values(status=status, error=message, runner=None, document=document,
+                                updated=utcnow()))
+        session.execute(delete(JobResultPiece).where(JobResultPiece.job_id == job_id))
+
+    def _write_outcomes(self, session: Session) -> list[str]:
+        """The outcomes kept for want of a database, written (the jobs they end)."""
+        with self.lock:
+            kept = dict(self.unrecorded)
+        for job_id, outcome in kept.items():
+            self._end(session, job_id, outcome)
+        return list(kept)
+
+    def _written(self, job_ids: list[str]) -> None:
+        """The outcomes of ``job_ids`` are committed: nothing more to keep of those jobs."""
+        with self.lock:
+            for job_id in job_ids:
+                self.unrecorded.pop(job_id, None)
+                self.local.pop(job_id, None)
+
+    def write_outcomes(self) -> None:
+        """Write the outcomes kept for want of a database (StorageUnavailable while it is
+        still out of reach)."""
+        with self.db.transaction() as s:
+            written = self._write_outcomes(s)
+        self._written(written)
 
     def release(self, state: JobState) -> None:
         """The upload was refused before any work: the job waits for a corrected one."""
@@ -351,16 +395,21 @@ class JobStore:
     def beat(self) -> None:
         """A sign of life for the jobs running here; the stopped workers' jobs failed."""
         with self.lock:
-            running = list(self.local)
+            running = [j for j in self.local if j not in self.unrecorded]
         with self.db.transaction() as s:
+            written = self._write_outcomes(s)
             if running:
                 s.execute(update(JobRecord)
                           .where(JobRecord.id.in_(running), JobRecord.runner == self.runner)
                           .values(heartbeat=utcnow()))
             self._expire(s)
+        self._written(written)
 
     def stop(self) -> None:
-        """This process is shutting down: its running jobs are failed, with that reason."""
+        """This process is shutting down: its running jobs are failed, with that reason (and
+        the outcomes kept for want of a database are written, if it answers now)."""
+        if self.unrecorded:
+            self.write_outcomes()
         with self.lock:
             running = list(self.local.values())
         for state in running:

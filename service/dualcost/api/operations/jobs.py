@@ -154,7 +154,14 @@ class JobState:
             # The per-household columns served the summaries; the job keeps only counts now.
             self.acc.parts = []
         if self.store is not None:
-            self.store.finish(self)
+            try:
+                self.store.finish(self)
+            except Exception:
+                # Not recorded as done (the database failed): still running, for the failure
+                # that follows to end it with the reason, as the answer's last record does.
+                with self.lock:
+                    self.status, self.summary = "running", None
+                raise
 
     def fail(self, status: str, message: str) -> None:
         with self.lock:
