@@ -446,9 +446,15 @@ def test_a_bad_csv_is_refused_by_row_and_column(
 def test_the_shipped_panel_csv_fills_the_series_grids_and_computes(
         live_url: str, browser: Any) -> None:
     """docs/examples/wrenmouth_panel.csv is the series example in long form."""
+    upload_panel_and_compare(live_url, browser, ROOT / "docs/examples/wrenmouth_panel.csv")
+
+
+def upload_panel_and_compare(live_url: str, browser: Any, path: Path) -> None:
+    """Upload ``path`` (the series example's panel) into the series view, compute, and check
+    the page sent the example's prices and quantities and shows the JSON API's last figure."""
     example = load_example("indexSeries.wrenmouth_monthly_ces.json")
     open_view(browser, live_url, "series")
-    browser.find_element(By.ID, "upload").send_keys(str(ROOT / "docs/examples/wrenmouth_panel.csv"))
+    browser.find_element(By.ID, "upload").send_keys(str(path))
     wait(browser, 10).until(lambda d: d.execute_script(
         "return window.dualcost.state.scenario") == "")
     compute(browser)

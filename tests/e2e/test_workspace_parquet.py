@@ -14,9 +14,9 @@ import pyarrow as pa
 import pyarrow.parquet as pq
 import pytest
 
-from tests.conftest import ROOT, load_example
+from tests.conftest import ROOT
 from tests.e2e import test_workspace as tw
-from tests.e2e.test_workspace import compute, open_view, sent_and_answer, wait
+from tests.e2e.test_workspace import open_view, upload_panel_and_compare, wait
 
 browser = tw.browser  # the fixture, reused
 
@@ -38,16 +38,7 @@ def panel_parquet(path: Path) -> Path:
 
 def test_a_parquet_panel_fills_the_series_grids_and_computes(
         live_url: str, browser: Any, tmp_path: Path) -> None:
-    example = load_example("indexSeries.wrenmouth_monthly_ces.json")
-    open_view(browser, live_url, "series")
-    browser.find_element(By.ID, "upload").send_keys(str(panel_parquet(tmp_path / "panel.parquet")))
-    wait(browser, 10).until(lambda d: d.execute_script(
-        "return window.dualcost.state.scenario") == "")
-    compute(browser)
-    sent, answer = sent_and_answer(browser, live_url, "/v1/index-series")
-    assert sent["prices"] == example["prices"] and sent["quantities"] == example["quantities"]
-    last = answer["konus"]["fixed_base"]["base"][-1]
-    assert browser.find_element(By.ID, "series-konus-last").text == f"{last:.3f}"
+    upload_panel_and_compare(live_url, browser, panel_parquet(tmp_path / "panel.parquet"))
 
 
 def test_a_bad_parquet_cell_is_named_by_its_row_and_column(
