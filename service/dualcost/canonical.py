@@ -184,6 +184,10 @@ def _prepared(value: Any) -> Any:
             types = set(map(type, value))
             if types == _FLOAT:  # a vector
                 return value if _plain_floats(value) else [_float(v) for v in value]
+            if types == _FLOAT_NONE:  # a vector with gaps (a panel's row): null as it is
+                present = [v for v in value if v is not None]
+                return value if _plain_floats(present) else [
+                    None if v is None else _float(v) for v in value]
             if types == _STR:  # a list of ids
                 return value
         return [_prepared(v) for v in value]
@@ -192,7 +196,7 @@ def _prepared(value: Any) -> Any:
 
 #: Containers longer than this are first tried as a whole: all floats, all text.
 _MANY = 8
-_FLOAT, _STR = {float}, {str}
+_FLOAT, _STR, _FLOAT_NONE = {float}, {str}, {float, type(None)}
 
 
 # -- the quickest road ------------------------------------------------------------------------

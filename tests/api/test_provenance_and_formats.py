@@ -151,6 +151,22 @@ def test_the_quick_road_writes_what_the_scheme_writes(value: Any) -> None:
     assert canonical_json(value, json_values=True) == expected
 
 
+_GAPPY_ROW = st.lists(st.none() | st.floats(allow_nan=False, allow_infinity=False)
+                      | st.sampled_from([0.5, 2.4, 1e-5, 1e-7, 12.0, -0.0, 1e16, 3e300]),
+                      min_size=9, max_size=30)
+
+
+@settings(max_examples=300, deadline=None, derandomize=True)
+@given(st.lists(_GAPPY_ROW, max_size=4))
+def test_rows_with_gaps_are_written_as_the_scheme_writes_them(value: Any) -> None:
+    """A panel's rows (floats with nulls where an item is not priced) take orjson as they are
+    when every float is plain; whole, tiny or huge floats among them must still be written as
+    the value-by-value writer of RFC 8785 writes them."""
+    out: list[str] = []
+    _write(value, out)
+    assert canonical_json(value) == "".join(out).encode("utf-8")
+
+
 _TOKENS = st.sampled_from([1.0, -0.0, 0.5, 1e-5, 1e-7, 1e16, 1e21, 2.0 ** 53, 9007199254740993,
                            2 ** 63 - 1, -(2 ** 63), 2 ** 64, 123456789012345678, 1e-4, 0.1,
                            0.30000000000000004, 5e-324, "\U0001f600", "\ufb33", "\x1f\x7f",
