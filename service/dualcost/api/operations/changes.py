@@ -3,12 +3,14 @@ its CSV columns, written for every series the answer holds (formula, GEKS and Ko
 
 from __future__ import annotations
 
+import math
 from collections.abc import Sequence
 from typing import Any
 
 import numpy as np
 
 from ...core.series import IndexSeries, SeriesChanges
+from ..render import json_numbers
 
 DEFINITIONS: dict[str, str] = {
     "period_on_period_percent": "100 (X_t / X_{t-1} - 1), t-1 the period just before t.",
@@ -28,7 +30,7 @@ DEFINITIONS: dict[str, str] = {
 
 
 def _values(values: np.ndarray) -> list[float | None]:
-    return [x if np.isfinite(x) else None for x in values.tolist()]
+    return [x if math.isfinite(x) else None for x in values.tolist()]
 
 
 def _name(c: SeriesChanges) -> str:
@@ -57,12 +59,12 @@ def one(c: SeriesChanges, labels: Sequence[str]) -> dict[str, Any]:
     m = c.changes
     return {
         "series": c.series, "kind": c.kind, "standard": c.standard,
-        "period_on_period_percent": _values(m.period_on_period),
-        "twelve_month_percent": _values(m.twelve_month),
+        "period_on_period_percent": json_numbers(m.period_on_period),
+        "twelve_month_percent": json_numbers(m.twelve_month),
         "annual": [{"year": y, "average": a, "change_percent": ch} for y, a, ch in zip(
             m.annual.years, _values(m.annual.averages), _values(m.annual.change_percent),
             strict=True)],
-        "rebased": None if m.rebased is None else _values(m.rebased),
+        "rebased": None if m.rebased is None else json_numbers(m.rebased),
         "empty": [{"measure": e.measure, "reason": e.reason,
                    "periods": [labels[t] for t in e.periods], "years": list(e.years)}
                   for e in m.empty],
