@@ -17,7 +17,8 @@ from tests.conftest import ROOT, load_example
 EXAMPLE = "indexSeries.wrenmouth_monthly_ces.json"
 PANEL = (ROOT / "docs/examples/wrenmouth_panel.csv").read_text(encoding="utf-8")
 PER_ITEM_COLUMNS = {"items_not_priced", "items_left_out_fixed_base", "items_left_out_of_link"}
-CSV_QUERY = "/v1/index-series/csv?base_period=2024-12&model=%7B%22family%22%3A%22ces%22%2C%22sigma%22%3A0.7%7D"
+CSV_QUERY = ("/v1/index-series/csv?base_period=2024-12"
+             "&model=%7B%22family%22%3A%22ces%22%2C%22sigma%22%3A0.7%7D")
 
 
 def _gappy() -> dict[str, Any]:

@@ -71,7 +71,7 @@ def one(c: SeriesChanges, labels: Sequence[str]) -> dict[str, Any]:
     }
 
 
-def columns(r: IndexSeries) -> list[tuple[str, list[Any]]]:
+def columns(r: IndexSeries) -> list[tuple[str, Any]]:
     """CSV columns per series: period-on-period and 12-month change, the annual average and its
     change in the row of the year's last period, and the rebased levels when asked."""
     n_t = len(r.periods)
@@ -79,18 +79,16 @@ def columns(r: IndexSeries) -> list[tuple[str, list[Any]]]:
     if r.calendar is not None:
         for y, at in r.calendar.complete_years().items():
             last[y] = int(at[-1])
-    out: list[tuple[str, list[Any]]] = []
+    out: list[tuple[str, Any]] = []
     for c in r.changes:
         m, stem = c.changes, _name(c)
-        average: list[Any] = [None] * n_t
-        change: list[Any] = [None] * n_t
-        for y, a, ch in zip(m.annual.years, m.annual.averages.tolist(),
-                            m.annual.change_percent.tolist(), strict=True):
-            average[last[y]], change[last[y]] = a, ch
-        out += [(f"{stem}_period_on_period_percent", m.period_on_period.tolist()),
-                (f"{stem}_twelve_month_percent", m.twelve_month.tolist()),
+        average, change = np.full(n_t, np.nan), np.full(n_t, np.nan)  # NaN: an empty cell
+        ends = [last[y] for y in m.annual.years]  # each year's value in its last period's row
+        average[ends], change[ends] = m.annual.averages, m.annual.change_percent
+        out += [(f"{stem}_period_on_period_percent", m.period_on_period),
+                (f"{stem}_twelve_month_percent", m.twelve_month),
                 (f"{stem}_annual_average", average),
                 (f"{stem}_annual_average_change_percent", change)]
         if m.rebased is not None:
-            out.append((f"{stem}_rebased", m.rebased.tolist()))
+            out.append((f"{stem}_rebased", m.rebased))
     return out

@@ -10,7 +10,7 @@ one row per period.
 from __future__ import annotations
 
 import math
-from collections.abc import Mapping, Sequence
+from collections.abc import Mapping
 from dataclasses import dataclass, replace
 from typing import Any
 
@@ -29,7 +29,7 @@ from ..inputs.panels import Limits, PanelArrays
 from ..inputs.query import json_parameter, names
 from ..observability import computing
 from ..problems import RequestProblem
-from ..render import json_numbers
+from ..render import ByColumn, json_numbers
 from ..schemas.common import CAUTION
 from ..schemas.model import ModelSpec
 from ..schemas.revealed import BOUNDS_METHOD
@@ -412,7 +412,7 @@ def _band_columns(outcome: Outcome) -> list[tuple[str, list[Any]]]:
     band = outcome.band
     if band is None:
         return []
-    return [("band_konus_low", band.low.tolist()), ("band_konus_high", band.high.tolist()),
+    return [("band_konus_low", band.low), ("band_konus_high", band.high),
             ("band_models", band.count.tolist())]
 
 
@@ -441,23 +441,37 @@ def revealed_headers(outcome: Outcome) -> dict[str, str]:
 
 def table(outcome: Outcome) -> tuple[list[str], list[list[Any]]]:
     """The per-period table: one row per period, one column per series."""
+    header, columns = _columns(outcome)
+    lists = [c.tolist() if isinstance(c, np.ndarray) else c for c in columns]
+    return header, [list(row) for row in zip(*lists, strict=True)]
+
+
+def csv_table(outcome: Outcome) -> tuple[list[str], ByColumn]:
+    """The per-period table as the CSV answer writes it, column by column (the same text as
+    :func:`table`'s rows give)."""
+    header, columns = _columns(outcome)
+    return header, ByColumn(columns)
+
+
+def _columns(outcome: Outcome) -> tuple[list[str], list[Any]]:
+    """The table's header and columns: the periods, then each series (a float array, NaN
+    where empty) or list of cells."""
     r = outcome.result
     treatment = _treatment_columns(r, outcome.axis.ids) if outcome.detail == "full" else []
     columns = (_konus_columns(r) + _formula_columns(r) + treatment + changes.columns(r)
                + _revealed_columns(outcome) + _band_columns(outcome))
     header = ["period"] + [name for name, _ in columns]
-    rows = [[r.periods[t]] + [values[t] for _, values in columns]
-            for t in range(len(r.periods))]
-    return header, rows
+    return header, [list(r.periods)] + [values for _, values in columns]
 
 
-Column = tuple[str, Sequence[Any]]
+#: A column's name and its values, one per period: a float array or a list of cells.
+Column = tuple[str, Any]
 
 
 def _konus_columns(r: IndexSeries) -> list[Column]:
     if r.konus is None:
         return []
-    return [(f"konus_{kind}_{target}", values.tolist())
+    return [(f"konus_{kind}_{target}", values)
             for kind, block in (("fixed_base", r.konus.fixed_base), ("chained", r.konus.chained))
             for target, values in block.items()]
 
@@ -466,21 +480,21 @@ def _formula_columns(r: IndexSeries) -> list[Column]:
     bias = {(b.series, b.kind): b for b in r.bias}
     columns: list[Column] = []
     for f in r.formulas.values():
-        columns += [(f"{f.name}_fixed_base", f.fixed_base.tolist()),
-                    (f"{f.name}_chained", f.chained.tolist()),
-                    (f"{f.name}_link", [None, *f.links.tolist()]),
-                    (f"{f.name}_chain_drift_percent", r.chain_drift.drift_percent[f.name].tolist())]
-        columns += [(f"{f.name}_bias_{kind}_percent", bias[(f.name, kind)].percent.tolist())
+        columns += [(f"{f.name}_fixed_base", f.fixed_base),
+                    (f"{f.name}_chained", f.chained),
+                    (f"{f.name}_link", np.concatenate(([np.nan], f.links))),
+                    (f"{f.name}_chain_drift_percent", r.chain_drift.drift_percent[f.name])]
+        columns += [(f"{f.name}_bias_{kind}_percent", bias[(f.name, kind)].percent)
                     for kind in ("fixed_base", "chained") if (f.name, kind) in bias]
     for g in r.multilateral:
-        columns.append((g.name, g.full_span.tolist()))
+        columns.append((g.name, g.full_span))
         if (g.name, "full_span") in bias:
-            columns.append((f"{g.name}_bias_percent", bias[(g.name, "full_span")].percent.tolist()))
+            columns.append((f"{g.name}_bias_percent", bias[(g.name, "full_span")].percent))
         if g.rolling is not None:
-            columns.append((f"{g.name}_rolling", g.rolling.tolist()))
+            columns.append((f"{g.name}_rolling", g.rolling))
             if (g.name, "rolling") in bias:
                 columns.append((f"{g.name}_rolling_bias_percent",
-                                bias[(g.name, "rolling")].percent.tolist()))
+                                bias[(g.name, "rolling")].percent))
     return columns
 
 

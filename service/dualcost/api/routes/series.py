@@ -90,7 +90,7 @@ CSV_DESCRIPTION = (
 
 def _answer(outcome: series.Outcome, fmt: str, provenance: Provenance, place: str) -> Response:
     if fmt == "csv":
-        header, rows = series.table(outcome)
+        header, rows = series.csv_table(outcome)
         dialect = outcome.dialect
         headers = (scale_headers(series.scale(outcome)) | series.revealed_headers(outcome)
                    | series.detail_headers(outcome))
