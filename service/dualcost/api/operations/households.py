@@ -259,20 +259,52 @@ def skipped_json(report: SkipReport, loc: Locator) -> dict[str, Any]:
 
 
 def document(outcome: Outcome) -> dict[str, Any]:
-    """The JSON answer as plain data (built directly: thousands of households are common)."""
+    """The JSON answer as plain data (built directly: thousands of households are common); a
+    headline answer without the rows per household."""
     res, labels, axis = outcome.result, outcome.labels, outcome.axis
     job = res.job
+    full = headline_left_out(outcome) == []
     return finite({
         "family": job.family, "items": axis.ids, "scale": SCALE_RATIO,
         "formulas": list(job.formulas), "periods": list(labels),
-        "households": _with_band(_households(res, labels, axis.ids), outcome.band),
+        "households": _with_band(_households(res, labels, axis.ids), outcome.band)
+        if full else None,
         "summary": summary_json(res.summary, labels),
         "skipped": skipped_json(res.skipped, outcome.locator),
         "engine": res.engine, "chunks": res.chunks, "definitions": DEFINITIONS,
         "sign_convention": SIGN_CONVENTION,
         "notices": notices_json((*res.notices, *outcome.notices), axis.ids, axis.labels),
         "caution": CAUTION,
+        "detail": "full" if full else "headline", "left_out": headline_left_out(outcome),
     }, "households")
+
+
+def headline_left_out(outcome: Outcome) -> list[str]:
+    """What the answer leaves out: the rows per household in a headline answer, else nothing."""
+    return ["households"] if outcome.request.detail == "headline" else []
+
+
+#: The summary table's columns (a headline CSV answer): per period, then per index.
+SUMMARY_PERIOD_COLUMNS = ("households_outside_regular_region", "weight_total",
+                          "expenditure_total", "compensating_variation_total",
+                          "cv_percent_of_income")
+SUMMARY_INDEX_COLUMNS = ("households", "democratic", "plutocratic", "share_above_democratic",
+                         "share_above_plutocratic", "minimum", "maximum")
+
+
+def summary_table(outcome: Outcome) -> tuple[list[str], list[list[Any]]]:
+    """The summaries as one CSV row per period and index (the JSON answer's summary, flat): the
+    period's figures repeated on each of its rows, then the index's, then one column per
+    quantile (``quantile_<probability>``)."""
+    blocks = summary_json(outcome.result.summary, outcome.labels)
+    probabilities = [q["probability"] for q in blocks[0]["indices"][0]["quantiles"]] if (
+        blocks and blocks[0]["indices"]) else []
+    header = ["period", "index", *SUMMARY_PERIOD_COLUMNS, *SUMMARY_INDEX_COLUMNS,
+              *(f"quantile_{p!r}" for p in probabilities)]
+    rows = [[block["period"], i["index"], *(block[c] for c in SUMMARY_PERIOD_COLUMNS),
+             *(i[c] for c in SUMMARY_INDEX_COLUMNS), *(q["value"] for q in i["quantiles"])]
+            for block in blocks for i in block["indices"]]
+    return header, rows
 
 
 def _with_band(households: list[dict[str, Any]], band: Band | None) -> list[dict[str, Any]]:
