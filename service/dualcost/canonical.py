@@ -16,8 +16,10 @@ import json
 import math
 import re
 from collections.abc import Callable, Mapping
+from itertools import chain
 from typing import Any
 
+import numpy as np
 import orjson
 
 __all__ = ["canonical_json", "digest_of", "es_number"]
@@ -190,13 +192,31 @@ def _prepared(value: Any) -> Any:
                     None if v is None else _float(v) for v in value]
             if types == _STR:  # a list of ids
                 return value
+            if types == _LIST and _plain_rows(value):  # a panel: rows of floats and nulls
+                return value
         return [_prepared(v) for v in value]
     raise _Slow
 
 
 #: Containers longer than this are first tried as a whole: all floats, all text.
 _MANY = 8
-_FLOAT, _STR, _FLOAT_NONE = {float}, {str}, {float, type(None)}
+_FLOAT, _STR, _FLOAT_NONE, _LIST = {float}, {str}, {float, type(None)}, {list}
+
+
+def _plain_rows(rows: list[list[Any]]) -> bool:
+    """Rows holding floats and nulls only, every float as :func:`_plain_floats` asks, checked
+    over all rows at once (a panel of 1,000 items by 120 periods in a few C passes and numpy)."""
+    flat = list(chain.from_iterable(rows))
+    if not flat or not set(map(type, flat)) <= _FLOAT_NONE:
+        return False
+    # NaN and infinity are true, null is not: a sum over the rest is finite unless one is there
+    # (or the sum overflows, which only sends the rows down the slower road).
+    if not math.isfinite(sum(filter(None, flat))):
+        return False
+    values = np.array(flat, dtype=np.float64)  # null as NaN, left out below
+    values = np.abs(values[~np.isnan(values)])
+    return bool(values.size) and bool(
+        values.min() >= _LOW and values.max() < _HIGH and not (values == np.floor(values)).any())
 
 
 # -- the quickest road ------------------------------------------------------------------------
