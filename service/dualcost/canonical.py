@@ -136,9 +136,10 @@ class _Slow(Exception):
     """The value needs :func:`_write`."""
 
 
-def _encode(value: Any) -> str:
-    """Compact, keys sorted by code points, floats as Python's repr writes them."""
-    return orjson.dumps(value, option=orjson.OPT_SORT_KEYS).decode("utf-8")
+def _encode(value: Any) -> bytes:
+    """Compact, keys sorted by code points, floats as Python's repr writes them, in UTF-8 (orjson
+    refuses a lone surrogate, which takes :func:`_write`)."""
+    return orjson.dumps(value, option=orjson.OPT_SORT_KEYS)
 _LOW, _HIGH, _EXACT = 1e-4, 1e16, 2.0 ** 53
 
 
@@ -262,12 +263,11 @@ def canonical_json(value: Any, *, json_values: bool = False) -> bytes:
         if quick is not None:
             return quick
     try:
-        text = _encode(_prepared(value))
+        return _encode(_prepared(value))
     except (_Slow, orjson.JSONEncodeError):  # JSONEncodeError: a lone surrogate
         out: list[str] = []
         _write(value, out)
-        text = "".join(out)
-    return text.encode("utf-8", "surrogatepass")
+        return "".join(out).encode("utf-8", "surrogatepass")
 
 
 def digest_of(value: Any, *, json_values: bool = False) -> str:
