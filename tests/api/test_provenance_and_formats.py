@@ -30,7 +30,7 @@ from hypothesis import strategies as st
 
 from dualcost.api.render import accept_ranges
 from dualcost.api.schemas.common import CAUTION
-from dualcost.canonical import _write, canonical_json, es_number
+from dualcost.canonical import _plain_rows, _write, canonical_json, es_number
 from dualcost.client import Table, input_digest
 from tests.api.test_comparisons import small_request
 from tests.api.test_estimation_api import _long_csv
@@ -149,6 +149,52 @@ def test_the_quick_road_writes_what_the_scheme_writes(value: Any) -> None:
     expected = "".join(out).encode("utf-8", "surrogatepass")
     assert canonical_json(value) == expected
     assert canonical_json(value, json_values=True) == expected
+
+
+_GAPPY_ROW = st.lists(st.none() | st.floats(allow_nan=False, allow_infinity=False)
+                      | st.sampled_from([0.5, 2.4, 1e-5, 1e-7, 12.0, -0.0, 1e16, 3e300]),
+                      min_size=9, max_size=30)
+
+
+def test_a_plain_panel_takes_orjson_at_once_and_a_nan_in_it_is_still_refused() -> None:
+    """Twelve rows of plain floats and nulls: orjson's text as it is, equal to the scheme's;
+    one NaN among them has no canonical form, as the value-by-value writer says."""
+    rows: list[list[Any]] = [[None if (t + i) % 7 == 0 else 1.5 + t / 7 + i / 3
+                              for i in range(20)] for t in range(12)]
+    assert _plain_rows(rows)
+    out: list[str] = []
+    _write(rows, out)
+    assert canonical_json(rows) == "".join(out).encode("utf-8")
+    rows[5][3] = float("nan")
+    assert not _plain_rows(rows)
+    with pytest.raises(ValueError):
+        canonical_json(rows)
+
+
+_ODD_CELL = st.sampled_from([float("nan"), float("inf"), True, 3, 2 ** 60, "1.5", [1.5], {},
+                             0.0, 7.0, 1e-300])
+
+
+@settings(max_examples=300, deadline=None, derandomize=True)
+@given(st.lists(_GAPPY_ROW, max_size=4) | st.lists(_GAPPY_ROW, min_size=9, max_size=12),
+       st.lists(st.tuples(st.integers(0, 11), st.integers(0, 29), _ODD_CELL), max_size=2))
+def test_rows_with_gaps_are_written_as_the_scheme_writes_them(value: Any, odd: Any) -> None:
+    """A panel's rows (floats with nulls where an item is not priced) take orjson as they are
+    when every float is plain, checked row by row or, for many rows, all at once; whole, tiny,
+    huge or non-finite floats, integers, booleans, text or containers among them must still be
+    written as the value-by-value writer of RFC 8785 writes them (or refused as it refuses
+    them)."""
+    for row, column, cell in odd:
+        if row < len(value) and column < len(value[row]):
+            value[row][column] = cell
+    out: list[str] = []
+    try:
+        _write(value, out)
+    except ValueError:
+        with pytest.raises(ValueError):
+            canonical_json(value)
+        return
+    assert canonical_json(value) == "".join(out).encode("utf-8")
 
 
 _TOKENS = st.sampled_from([1.0, -0.0, 0.5, 1e-5, 1e-7, 1e16, 1e21, 2.0 ** 53, 9007199254740993,

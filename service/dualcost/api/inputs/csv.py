@@ -49,6 +49,7 @@ from fastapi import Query, Request
 
 from ..problems import FieldError, RequestProblem
 from ..schemas.common import DecimalMark
+from .csv_columns import arrow_columns
 from .json_text import SMALLEST_NORMAL, number_rule
 
 CSV_MEDIA_TYPE = "text/csv"
@@ -411,11 +412,18 @@ def read_table(
     declared: DeclaredDialect | None = None,
 ) -> Table:
     """The records of a CSV text by column, in the declared or detected dialect. Errors name
-    the row and column; all bad cells are reported, up to 20."""
+    the row and column; all bad cells are reported, up to 20. A table without quotes is read by
+    columns where that gives the same (:mod:`.csv_columns`); otherwise record by record."""
     declared = (declared or DeclaredDialect()).checked()
     text = text.lstrip("\ufeff")
     separator, separator_reason = separator_of(_first_line(text), declared)
     delimiter = SEPARATORS[separator]
+    spec = _Spec(required, numeric, optional_numeric, max_rows, declared, separator,
+                 separator_reason)
+    if '"' not in text:
+        quick = _by_columns(text, spec)
+        if quick is not None:
+            return quick
     reader = csv.reader(io.StringIO(text), delimiter=delimiter, strict=True)
     try:
         first = next(reader, None)
@@ -425,8 +433,7 @@ def read_table(
     header = _header(first, required, _one_column_hint(first, separator, separator_reason))
     width = len(header)
     # Records of the header's width that are not blank (record k + 2: the header is record 1).
-    kept_at = [k for k, cells in enumerate(rows)
-               if len(cells) == width and (cells[0].strip() or "".join(cells).strip())]
+    kept_at = [k for k, cells in enumerate(rows) if _kept(cells, width)]
     errors: list[FieldError] = []
     if len(kept_at) == len(rows):
         kept = rows
@@ -436,32 +443,106 @@ def read_table(
                              f"{width} columns") for k, cells in enumerate(rows)
                   if len(cells) != width and "".join(cells).strip()][:20]
     records = [k + 2 for k in kept_at]
-    if max_rows is not None and len(kept) > max_rows:
-        raise RequestProblem([FieldError(f"#row={records[max_rows]}", f"the CSV has more than "
-                                         f"{max_rows} rows, the limit")])
-    numeric_names = [c for c in list(numeric) + list(optional_numeric) if c in header]
-    position = {name: j for j, name in enumerate(header)}
-    decimal, decimal_reason = decimal_of(separator, declared, kept[:DETECTION_ROWS],
-                                         [position[c] for c in numeric_names])
-    dialect = Dialect(separator, decimal, {
-        k: v for k, v in (("separator", separator_reason), ("decimal", decimal_reason)) if v})
+    spec.check_rows(records)
+    numeric_names = spec.numeric_names(header)
+    dialect = spec.dialect(header, kept[:DETECTION_ROWS])
     raw = list(zip(*kept, strict=True)) if kept else [() for _ in header]
     columns: dict[str, list[Any]] = {}
     for j, name in enumerate(header):
-        cells = raw[j]
         if name in numeric_names:
-            columns[name] = _numbers(cells, name, j, records, dialect,
+            columns[name] = _numbers(raw[j], name, j, records, dialect,
                                      name in optional_numeric, errors)
         else:
-            columns[name] = list(map(str.strip, cells))
-            if name in required:
+            columns[name] = list(map(str.strip, raw[j]))
+    return spec.table(header, columns, records, dialect, errors)
+
+
+def _kept(cells: Sequence[str], width: int) -> bool:
+    """A record of the header's width that is not blank."""
+    return len(cells) == width and bool(cells[0].strip() or "".join(cells).strip())
+
+
+@dataclass(frozen=True)
+class _Spec:
+    """What :func:`read_table` was asked for, and the steps both of its readers share."""
+
+    required: Sequence[str]
+    numeric: Sequence[str]
+    optional_numeric: Sequence[str]
+    max_rows: int | None
+    declared: DeclaredDialect
+    separator: Separator
+    separator_reason: str | None
+
+    def numeric_names(self, header: Sequence[str]) -> list[str]:
+        return [c for c in list(self.numeric) + list(self.optional_numeric) if c in header]
+
+    def check_rows(self, records: Sequence[int]) -> None:
+        if self.max_rows is not None and len(records) > self.max_rows:
+            raise RequestProblem([FieldError(f"#row={records[self.max_rows]}", f"the CSV has "
+                                             f"more than {self.max_rows} rows, the limit")])
+
+    def dialect(self, header: Sequence[str], head: Sequence[Sequence[str]]) -> Dialect:
+        """The dialect, the decimal mark declared or detected from ``head`` (the first
+        :data:`DETECTION_ROWS` records kept)."""
+        position = {name: j for j, name in enumerate(header)}
+        decimal, decimal_reason = decimal_of(self.separator, self.declared, head,
+                                             [position[c] for c in self.numeric_names(header)])
+        return Dialect(self.separator, decimal, {
+            k: v for k, v in (("separator", self.separator_reason), ("decimal", decimal_reason))
+            if v})
+
+    def table(self, header: list[str], columns: dict[str, list[Any]], records: list[int],
+              dialect: Dialect, errors: list[FieldError]) -> Table:
+        """The table, or a problem naming its bad cells and the empty cells of required text
+        columns (up to 20, in the order of the file)."""
+        for j, name in enumerate(header):
+            if (name in self.required and name not in self.numeric_names(header)
+                    and not all(columns[name])):
                 empty = [k for k, v in enumerate(columns[name]) if not v]
-                errors += [FieldError(f"#cell={records[k]},{j + 1}", f"column {name!r} is empty")
-                           for k in empty[:20]]
-    if errors:
-        errors.sort(key=_order)
-        raise RequestProblem(errors[:20])
-    return Table(header, columns, records, dialect)
+                errors += [FieldError(f"#cell={records[k]},{j + 1}", f"column {name!r} is "
+                                      "empty") for k in empty[:20]]
+        if errors:
+            errors.sort(key=_order)
+            raise RequestProblem(errors[:20])
+        return Table(header, columns, records, dialect)
+
+
+def _by_columns(text: str, spec: _Spec) -> Table | None:
+    """The table read by columns (:func:`.csv_columns.arrow_columns`), or None where the
+    record-by-record reader must read it. The header and the records that decide the decimal
+    mark are read by the ``csv`` module first, as that reader reads them."""
+    end = -1
+    for _ in range(DETECTION_ROWS + 1):
+        end = text.find("\n", end + 1)
+        if end < 0:
+            break
+    head_text = text if end < 0 else text[:end + 1]
+    try:
+        head = list(csv.reader(io.StringIO(head_text), delimiter=SEPARATORS[spec.separator],
+                               strict=True))
+    except csv.Error:
+        return None
+    if not head or "\x00" in text:
+        return None
+    first, rows = head[0], head[1:]
+    try:  # a problem here is left to the other reader, to be named in the order it names them
+        header = _header(first, spec.required, "")
+        width = len(header)
+        if not all(_kept(cells, width) for cells in rows):
+            return None
+        dialect = spec.dialect(header, rows)
+    except RequestProblem:
+        return None
+    numeric = spec.numeric_names(header)
+    found = arrow_columns(text.encode("utf-8"), dialect.delimiter, width,
+                          {j: name in spec.optional_numeric for j, name in enumerate(header)
+                           if name in numeric}, dialect.mark)
+    if found is None or (found and len(found[0]) < len(rows)):
+        return None
+    records = list(range(2, 2 + (len(found[0]) if found else 0)))
+    spec.check_rows(records)
+    return spec.table(header, dict(zip(header, found, strict=True)), records, dialect, [])
 
 
 def _order(error: FieldError) -> tuple[int, int]:

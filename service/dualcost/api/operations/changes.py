@@ -3,12 +3,14 @@ its CSV columns, written for every series the answer holds (formula, GEKS and Ko
 
 from __future__ import annotations
 
+import math
 from collections.abc import Sequence
 from typing import Any
 
 import numpy as np
 
 from ...core.series import IndexSeries, SeriesChanges
+from ..render import json_numbers
 
 DEFINITIONS: dict[str, str] = {
     "period_on_period_percent": "100 (X_t / X_{t-1} - 1), t-1 the period just before t.",
@@ -28,7 +30,7 @@ DEFINITIONS: dict[str, str] = {
 
 
 def _values(values: np.ndarray) -> list[float | None]:
-    return [x if np.isfinite(x) else None for x in values.tolist()]
+    return [x if math.isfinite(x) else None for x in values.tolist()]
 
 
 def _name(c: SeriesChanges) -> str:
@@ -57,19 +59,19 @@ def one(c: SeriesChanges, labels: Sequence[str]) -> dict[str, Any]:
     m = c.changes
     return {
         "series": c.series, "kind": c.kind, "standard": c.standard,
-        "period_on_period_percent": _values(m.period_on_period),
-        "twelve_month_percent": _values(m.twelve_month),
+        "period_on_period_percent": json_numbers(m.period_on_period),
+        "twelve_month_percent": json_numbers(m.twelve_month),
         "annual": [{"year": y, "average": a, "change_percent": ch} for y, a, ch in zip(
             m.annual.years, _values(m.annual.averages), _values(m.annual.change_percent),
             strict=True)],
-        "rebased": None if m.rebased is None else _values(m.rebased),
+        "rebased": None if m.rebased is None else json_numbers(m.rebased),
         "empty": [{"measure": e.measure, "reason": e.reason,
                    "periods": [labels[t] for t in e.periods], "years": list(e.years)}
                   for e in m.empty],
     }
 
 
-def columns(r: IndexSeries) -> list[tuple[str, list[Any]]]:
+def columns(r: IndexSeries) -> list[tuple[str, Any]]:
     """CSV columns per series: period-on-period and 12-month change, the annual average and its
     change in the row of the year's last period, and the rebased levels when asked."""
     n_t = len(r.periods)
@@ -77,18 +79,16 @@ def columns(r: IndexSeries) -> list[tuple[str, list[Any]]]:
     if r.calendar is not None:
         for y, at in r.calendar.complete_years().items():
             last[y] = int(at[-1])
-    out: list[tuple[str, list[Any]]] = []
+    out: list[tuple[str, Any]] = []
     for c in r.changes:
         m, stem = c.changes, _name(c)
-        average: list[Any] = [None] * n_t
-        change: list[Any] = [None] * n_t
-        for y, a, ch in zip(m.annual.years, m.annual.averages.tolist(),
-                            m.annual.change_percent.tolist(), strict=True):
-            average[last[y]], change[last[y]] = a, ch
-        out += [(f"{stem}_period_on_period_percent", m.period_on_period.tolist()),
-                (f"{stem}_twelve_month_percent", m.twelve_month.tolist()),
+        average, change = np.full(n_t, np.nan), np.full(n_t, np.nan)  # NaN: an empty cell
+        ends = [last[y] for y in m.annual.years]  # each year's value in its last period's row
+        average[ends], change[ends] = m.annual.averages, m.annual.change_percent
+        out += [(f"{stem}_period_on_period_percent", m.period_on_period),
+                (f"{stem}_twelve_month_percent", m.twelve_month),
                 (f"{stem}_annual_average", average),
                 (f"{stem}_annual_average_change_percent", change)]
         if m.rebased is not None:
-            out.append((f"{stem}_rebased", m.rebased.tolist()))
+            out.append((f"{stem}_rebased", m.rebased))
     return out

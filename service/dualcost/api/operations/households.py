@@ -16,13 +16,11 @@ from __future__ import annotations
 
 import csv
 import io
-import math
 from collections.abc import Iterable, Iterator, Sequence
 from dataclasses import dataclass
 from typing import Any
 
 import numpy as np
-import orjson
 
 from ...config import Settings
 from ...core.households import (
@@ -46,6 +44,8 @@ from ..inputs.locator import Locator, Place
 from ..observability import computing
 from ..problems import RequestProblem
 from ..render import csv_line, finite
+from ..render import number_texts as _number_texts
+from ..render import text_cells as _text_cells
 from ..schemas.common import CAUTION, SIGN_CONVENTION
 from ..schemas.households import HouseholdIndicesRequest
 from . import bands
@@ -259,20 +259,52 @@ def skipped_json(report: SkipReport, loc: Locator) -> dict[str, Any]:
 
 
 def document(outcome: Outcome) -> dict[str, Any]:
-    """The JSON answer as plain data (built directly: thousands of households are common)."""
+    """The JSON answer as plain data (built directly: thousands of households are common); a
+    headline answer without the rows per household."""
     res, labels, axis = outcome.result, outcome.labels, outcome.axis
     job = res.job
+    full = headline_left_out(outcome) == []
     return finite({
         "family": job.family, "items": axis.ids, "scale": SCALE_RATIO,
         "formulas": list(job.formulas), "periods": list(labels),
-        "households": _with_band(_households(res, labels, axis.ids), outcome.band),
+        "households": _with_band(_households(res, labels, axis.ids), outcome.band)
+        if full else None,
         "summary": summary_json(res.summary, labels),
         "skipped": skipped_json(res.skipped, outcome.locator),
         "engine": res.engine, "chunks": res.chunks, "definitions": DEFINITIONS,
         "sign_convention": SIGN_CONVENTION,
         "notices": notices_json((*res.notices, *outcome.notices), axis.ids, axis.labels),
         "caution": CAUTION,
+        "detail": "full" if full else "headline", "left_out": headline_left_out(outcome),
     }, "households")
+
+
+def headline_left_out(outcome: Outcome) -> list[str]:
+    """What the answer leaves out: the rows per household in a headline answer, else nothing."""
+    return ["households"] if outcome.request.detail == "headline" else []
+
+
+#: The summary table's columns (a headline CSV answer): per period, then per index.
+SUMMARY_PERIOD_COLUMNS = ("households_outside_regular_region", "weight_total",
+                          "expenditure_total", "compensating_variation_total",
+                          "cv_percent_of_income")
+SUMMARY_INDEX_COLUMNS = ("households", "democratic", "plutocratic", "share_above_democratic",
+                         "share_above_plutocratic", "minimum", "maximum")
+
+
+def summary_table(outcome: Outcome) -> tuple[list[str], list[list[Any]]]:
+    """The summaries as one CSV row per period and index (the JSON answer's summary, flat): the
+    period's figures repeated on each of its rows, then the index's, then one column per
+    quantile (``quantile_<probability>``)."""
+    blocks = summary_json(outcome.result.summary, outcome.labels)
+    probabilities = [q["probability"] for q in blocks[0]["indices"][0]["quantiles"]] if (
+        blocks and blocks[0]["indices"]) else []
+    header = ["period", "index", *SUMMARY_PERIOD_COLUMNS, *SUMMARY_INDEX_COLUMNS,
+              *(f"quantile_{p!r}" for p in probabilities)]
+    rows = [[block["period"], i["index"], *(block[c] for c in SUMMARY_PERIOD_COLUMNS),
+             *(i[c] for c in SUMMARY_INDEX_COLUMNS), *(q["value"] for q in i["quantiles"])]
+            for block in blocks for i in block["indices"]]
+    return header, rows
 
 
 def _with_band(households: list[dict[str, Any]], band: Band | None) -> list[dict[str, Any]]:
@@ -394,37 +426,6 @@ def csv_rows(result: ChunkResult, job: HouseholdJob, labels: Sequence[str],
 def _by_period(cells: list[str], periods: int) -> list[str]:
     """A household's cell repeated on each of its period lines."""
     return cells if periods == 1 else [c for c in cells for _ in range(periods)]
-
-
-def _number_texts(values: Any) -> list[str]:
-    """Floats as render.format_cell writes them: repr's shortest round-trip text, empty where not
-    finite. orjson writes the same digits as repr, some ten times as fast, for every finite
-    float in [1e-4, 1e16) by magnitude, and 0 (tests/api/test_provenance_and_formats.py checks
-    the digits); the others (exponent forms differ: 1e-05 against 1e-5) are written by repr."""
-    array = np.asarray(values, dtype=np.float64)
-    if not array.size:
-        return []
-    text = orjson.dumps(array, option=orjson.OPT_SERIALIZE_NUMPY).decode()
-    texts = text[1:-1].split(",")
-    magnitude = np.abs(array)
-    odd = ~np.isfinite(array) | ((magnitude < 1e-4) & (array != 0.0)) | (magnitude >= 1e16)
-    for k in map(int, np.flatnonzero(odd)):
-        v = float(array[k])
-        texts[k] = repr(v) if math.isfinite(v) else ""
-    return texts
-
-
-def _text_cells(values: Sequence[str | None], n: int) -> list[str]:
-    """Text cells quoted as the csv module quotes them (a separator, quote or line break
-    inside); None as empty; ``n`` empty cells when there are no values."""
-    if not values:
-        return [""] * n
-    cells = ["" if v is None else v for v in values]
-    joined = "".join(cells)
-    if any(c in joined for c in ',"\r\n'):
-        cells = [('"' + c.replace('"', '""') + '"') if any(x in c for x in ',"\r\n') else c
-                 for c in cells]
-    return cells
 
 
 def csv_pieces(outcome: Outcome, rows: int = 4096) -> Iterator[str]:

@@ -9,7 +9,8 @@ one row per period.
 
 from __future__ import annotations
 
-from collections.abc import Mapping, Sequence
+import math
+from collections.abc import Mapping
 from dataclasses import dataclass, replace
 from typing import Any
 
@@ -28,10 +29,11 @@ from ..inputs.panels import Limits, PanelArrays
 from ..inputs.query import json_parameter, names
 from ..observability import computing
 from ..problems import RequestProblem
+from ..render import ByColumn, json_numbers
 from ..schemas.common import CAUTION
 from ..schemas.model import ModelSpec
 from ..schemas.revealed import BOUNDS_METHOD
-from ..schemas.series import SeriesOptions
+from ..schemas.series import HEADLINE_LEFT_OUT, Detail, SeriesOptions
 from . import bands, changes
 from .answers import SCALE_RATIO, notices_json
 from .revealed import consistency_json, rows_json
@@ -104,6 +106,8 @@ class Outcome:
     #: utility, and the band across them.
     band_series: tuple[tuple[str, np.ndarray], ...] = ()
     band: Band | None = None
+    #: full, or headline: the answer without its rows per item (HEADLINE_LEFT_OUT).
+    detail: Detail = "full"
 
 
 def locator(form: Form = "json") -> Locator:
@@ -128,7 +132,8 @@ def run(options: SeriesOptions, panel: PanelArrays, settings: Settings, loc: Loc
         labelled = series_by_label(**arguments)
         band = tuple(_band_series(j, spec, arguments, panel.axis, loc, settings)
                      for j, spec in enumerate(specs))
-    outcome = replace(_outcome(labelled, panel.axis), dialect=panel.dialect, band_series=band)
+    outcome = replace(_outcome(labelled, panel.axis), dialect=panel.dialect, band_series=band,
+                      detail=options.detail)
     return replace(outcome, band=band_of([v for _, v in band])) if band else outcome
 
 
@@ -216,46 +221,49 @@ def _weights(options: SeriesOptions, axis: ItemAxis, loc: Locator) -> dict[str, 
 
 
 def document(outcome: Outcome) -> dict[str, Any]:
-    """The answer as plain JSON-ready values, in the shape of ``SeriesResponse``."""
+    """The answer as JSON-ready values, in the shape of ``SeriesResponse``: the series as float
+    arrays (:func:`~dualcost.api.render.json_numbers`), null where withheld; in a headline
+    answer, without its rows per item."""
     r = outcome.result
     labels = list(r.periods)
     drift = r.chain_drift
+    full = outcome.detail == "full"
     return {
         "periods": labels, "items": outcome.axis.ids, "frequency": outcome.frequency,
         "base_period": labels[r.base], "reference_period": labels[r.reference],
         "reference_value": r.reference_value,
         "formulas": [{
             "formula": f.name, "title": f.title, "compared_with": f.target,
-            "fixed_base": f.fixed_base.tolist(), "chained": f.chained.tolist(),
-            "links": f.links.tolist(), "chain_drift_percent": drift.drift_percent[f.name].tolist(),
+            "fixed_base": json_numbers(f.fixed_base), "chained": json_numbers(f.chained),
+            "links": json_numbers(f.links),
+            "chain_drift_percent": json_numbers(drift.drift_percent[f.name]),
             "loop_product": drift.loop_product[f.name],
             "circularity_failure_percent": 100.0 * (drift.loop_product[f.name] - 1.0),
             "rule_for_items_that_come_and_go": f.rule} for f in r.formulas.values()],
         "konus": _konus(outcome),
         "multilateral": [{
-            "method": g.name, "bilateral": g.link, "full_span": g.full_span.tolist(),
-            "rolling": None if g.rolling is None else g.rolling.tolist(), "window": g.window,
+            "method": g.name, "bilateral": g.link, "full_span": json_numbers(g.full_span),
+            "rolling": None if g.rolling is None else json_numbers(g.rolling), "window": g.window,
             "splice": g.splice, "loop_product": drift.loop_product[g.name],
             "rule_for_items_that_come_and_go": g.rule} for g in r.multilateral],
         "bias": [{"series": b.series, "kind": b.kind, "compared_with": b.compared_with,
-                  "points": _values(b.points), "percent": _values(b.percent)} for b in r.bias],
+                  "points": json_numbers(b.points), "percent": json_numbers(b.percent)}
+                 for b in r.bias],
         "annual_bias": _annual(r, labels),
         "chain_drift": {"loop": [labels[t] for t in drift.loop],
                         "periods_with_base_prices": [labels[t] for t in
                                                      drift.periods_with_base_prices],
                         "definition": DRIFT_DEFINITION},
-        "item_treatment": [{
-            "period": labels[e.period], "item": outcome.axis.ids[e.item], "priced": e.priced,
-            "fixed_base": e.fixed_base, "chained": e.chained, "model": e.model,
-            "carried_from": None if e.carried_from is None else labels[e.carried_from],
-            "detail": describe_treatment(e, labels, r.base)} for e in r.item_treatment],
-        "weights": _weights_out(r, labels, outcome.axis.ids),
+        "item_treatment": _treatment(r, labels, outcome.axis.ids) if full else None,
+        "weights": _weights_out(r, labels, outcome.axis.ids, full),
         "lloyd_moulton_sigma": r.lloyd_moulton_sigma, "new_goods_sigma": r.new_goods_sigma,
         "changes": changes.document(r),
         "notices": dialect_notices(outcome.dialect)
         + notices_json(r.notices, outcome.axis.ids, outcome.axis.labels),
         "scale": scale(outcome),
         "caution": CAUTION,
+        "detail": outcome.detail,
+        "left_out": [] if full else list(HEADLINE_LEFT_OUT),
         "revealed_bounds": _revealed(outcome, labels),
         "band": _band_json(outcome, labels),
     }
@@ -280,7 +288,8 @@ def _band_json(outcome: Outcome, labels: list[str]) -> dict[str, Any] | None:
             for label, lo, hi, n, x in zip(labels, low, high, band.count.tolist(), own,
                                            strict=True)]
     return {"measure": BAND_MEASURE, "rows": rows,
-            "models": [{"family": f, "fixed_base": _values(v)} for f, v in outcome.band_series]}
+            "models": [{"family": f, "fixed_base": json_numbers(v)}
+                       for f, v in outcome.band_series]}
 
 
 def _revealed(outcome: Outcome, labels: list[str]) -> dict[str, Any] | None:
@@ -310,10 +319,10 @@ def _konus(outcome: Outcome) -> dict[str, Any] | None:
         return None
     return {
         "family": k.family, "homothetic": k.homothetic,
-        "fixed_base": {t: _values(v) for t, v in k.fixed_base.items()},
-        "chained": {t: _values(v) for t, v in k.chained.items()},
+        "fixed_base": {t: json_numbers(v) for t, v in k.fixed_base.items()},
+        "chained": {t: json_numbers(v) for t, v in k.chained.items()},
         "validity": _validity(outcome),
-        "incomes": k.incomes.tolist(), "utilities": k.utilities.tolist(),
+        "incomes": json_numbers(k.incomes), "utilities": json_numbers(k.utilities),
         "items": [outcome.axis.ids[i] for i in k.items],
         "model_parameters": dict(outcome.model.parameters()) if outcome.model is not None else {},
         "rule_for_items_that_come_and_go": MODEL_RULE,
@@ -330,7 +339,7 @@ def scale(outcome: Outcome) -> dict[str, str]:
 def _values(values: np.ndarray) -> list[float | None]:
     """A series as JSON: None where it has no value (NaN: the model's value withheld outside its
     regular region)."""
-    return [x if np.isfinite(x) else None for x in values.tolist()]
+    return [x if math.isfinite(x) else None for x in values.tolist()]
 
 
 def _validity(outcome: Outcome) -> dict[str, Any]:
@@ -361,19 +370,29 @@ def _annual(r: IndexSeries, labels: list[str]) -> dict[str, Any] | None:
     }
 
 
-def _weights_out(r: IndexSeries, labels: list[str], ids: list[str]) -> dict[str, Any] | None:
+def _treatment(r: IndexSeries, labels: list[str], ids: list[str]) -> list[dict[str, Any]]:
+    """One row per period and item left out of a comparison or valued otherwise."""
+    return [{"period": labels[e.period], "item": ids[e.item], "priced": e.priced,
+             "fixed_base": e.fixed_base, "chained": e.chained, "model": e.model,
+             "carried_from": None if e.carried_from is None else labels[e.carried_from],
+             "detail": describe_treatment(e, labels, r.base)} for e in r.item_treatment]
+
+
+def _weights_out(r: IndexSeries, labels: list[str], ids: list[str], full: bool = True
+                 ) -> dict[str, Any] | None:
     w = r.weights
     if w is None:
         return None
+    updated = [None] * len(ids) if w.price_updated is None else _values(w.price_updated)
     return {"period": None if w.period is None else labels[w.period],
-            "items": [{"item": ids[i], "share": _num(w.shares[i]),
-                       "price_updated_share": None if w.price_updated is None
-                       else _num(w.price_updated[i])} for i in range(len(ids))],
+            "items": [{"item": item, "share": share, "price_updated_share": p}
+                      for item, share, p in zip(ids, _values(w.shares), updated, strict=True)]
+            if full else None,
             "rule": WEIGHTS_RULE}
 
 
 def _num(x: float) -> float | None:
-    return None if not np.isfinite(x) else float(x)
+    return None if not math.isfinite(x) else float(x)
 
 
 #: The columns the model-free brackets add to the CSV table (revealed_bounds: true), after
@@ -393,8 +412,19 @@ def _band_columns(outcome: Outcome) -> list[tuple[str, list[Any]]]:
     band = outcome.band
     if band is None:
         return []
-    return [("band_konus_low", band.low.tolist()), ("band_konus_high", band.high.tolist()),
+    return [("band_konus_low", band.low), ("band_konus_high", band.high),
             ("band_models", band.count.tolist())]
+
+
+#: The CSV columns a headline answer leaves out (the rows per item, one cell per period).
+HEADLINE_COLUMNS = ("items_not_priced", "items_left_out_fixed_base", "items_left_out_of_link")
+
+
+def detail_headers(outcome: Outcome) -> dict[str, str]:
+    """What a headline CSV answer says it left out (nothing for a full answer)."""
+    if outcome.detail == "full":
+        return {}
+    return {"Dualcost-Detail": outcome.detail, "Dualcost-Left-Out": " ".join(HEADLINE_COLUMNS)}
 
 
 def revealed_headers(outcome: Outcome) -> dict[str, str]:
@@ -411,22 +441,37 @@ def revealed_headers(outcome: Outcome) -> dict[str, str]:
 
 def table(outcome: Outcome) -> tuple[list[str], list[list[Any]]]:
     """The per-period table: one row per period, one column per series."""
+    header, columns = _columns(outcome)
+    lists = [c.tolist() if isinstance(c, np.ndarray) else c for c in columns]
+    return header, [list(row) for row in zip(*lists, strict=True)]
+
+
+def csv_table(outcome: Outcome) -> tuple[list[str], ByColumn]:
+    """The per-period table as the CSV answer writes it, column by column (the same text as
+    :func:`table`'s rows give)."""
+    header, columns = _columns(outcome)
+    return header, ByColumn(columns)
+
+
+def _columns(outcome: Outcome) -> tuple[list[str], list[Any]]:
+    """The table's header and columns: the periods, then each series (a float array, NaN
+    where empty) or list of cells."""
     r = outcome.result
-    columns = (_konus_columns(r) + _formula_columns(r) + _treatment_columns(r, outcome.axis.ids)
-               + changes.columns(r) + _revealed_columns(outcome) + _band_columns(outcome))
+    treatment = _treatment_columns(r, outcome.axis.ids) if outcome.detail == "full" else []
+    columns = (_konus_columns(r) + _formula_columns(r) + treatment + changes.columns(r)
+               + _revealed_columns(outcome) + _band_columns(outcome))
     header = ["period"] + [name for name, _ in columns]
-    rows = [[r.periods[t]] + [values[t] for _, values in columns]
-            for t in range(len(r.periods))]
-    return header, rows
+    return header, [list(r.periods)] + [values for _, values in columns]
 
 
-Column = tuple[str, Sequence[Any]]
+#: A column's name and its values, one per period: a float array or a list of cells.
+Column = tuple[str, Any]
 
 
 def _konus_columns(r: IndexSeries) -> list[Column]:
     if r.konus is None:
         return []
-    return [(f"konus_{kind}_{target}", values.tolist())
+    return [(f"konus_{kind}_{target}", values)
             for kind, block in (("fixed_base", r.konus.fixed_base), ("chained", r.konus.chained))
             for target, values in block.items()]
 
@@ -435,21 +480,21 @@ def _formula_columns(r: IndexSeries) -> list[Column]:
     bias = {(b.series, b.kind): b for b in r.bias}
     columns: list[Column] = []
     for f in r.formulas.values():
-        columns += [(f"{f.name}_fixed_base", f.fixed_base.tolist()),
-                    (f"{f.name}_chained", f.chained.tolist()),
-                    (f"{f.name}_link", [None, *f.links.tolist()]),
-                    (f"{f.name}_chain_drift_percent", r.chain_drift.drift_percent[f.name].tolist())]
-        columns += [(f"{f.name}_bias_{kind}_percent", bias[(f.name, kind)].percent.tolist())
+        columns += [(f"{f.name}_fixed_base", f.fixed_base),
+                    (f"{f.name}_chained", f.chained),
+                    (f"{f.name}_link", np.concatenate(([np.nan], f.links))),
+                    (f"{f.name}_chain_drift_percent", r.chain_drift.drift_percent[f.name])]
+        columns += [(f"{f.name}_bias_{kind}_percent", bias[(f.name, kind)].percent)
                     for kind in ("fixed_base", "chained") if (f.name, kind) in bias]
     for g in r.multilateral:
-        columns.append((g.name, g.full_span.tolist()))
+        columns.append((g.name, g.full_span))
         if (g.name, "full_span") in bias:
-            columns.append((f"{g.name}_bias_percent", bias[(g.name, "full_span")].percent.tolist()))
+            columns.append((f"{g.name}_bias_percent", bias[(g.name, "full_span")].percent))
         if g.rolling is not None:
-            columns.append((f"{g.name}_rolling", g.rolling.tolist()))
+            columns.append((f"{g.name}_rolling", g.rolling))
             if (g.name, "rolling") in bias:
                 columns.append((f"{g.name}_rolling_bias_percent",
-                                bias[(g.name, "rolling")].percent.tolist()))
+                                bias[(g.name, "rolling")].percent))
     return columns
 
 
@@ -490,6 +535,8 @@ def options_body(query: Mapping[str, Any]) -> dict[str, Any]:
                     if query.get(f"geks_{key}") is not None}
     if query.get("span_start") is not None or query.get("span_end") is not None:
         body["span"] = {"start": query.get("span_start"), "end": query.get("span_end")}
+    if query.get("detail") is not None:
+        body["detail"] = query["detail"]
     if query.get("model"):
         body["model"] = json_parameter("model", query["model"], '{"family": "ces", "sigma": 0.7}')
     return body

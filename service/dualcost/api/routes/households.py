@@ -36,6 +36,7 @@ from ..render import (
     PARQUET_MEDIA_TYPE,
     Format,
     ProvenanceQuery,
+    csv_response,
     csv_stream,
     format_query,
     json_response,
@@ -130,9 +131,20 @@ def household_indices(body: HouseholdIndicesRequest, request: Request,
     Where a household's model is outside its regular region at a period's prices, its model
     figures there are null (model_regular false, with the reasons) and the summaries leave
     it out. Cobb-Douglas, CES and Stone-Geary are evaluated over all households at once. Bad
-    rows fail the request naming each one (rows from 1), unless bad_rows is skip."""
+    rows fail the request naming each one (rows from 1), unless bad_rows is skip. With
+    detail headline, the answer leaves out the rows per household (households null; as CSV,
+    the summary table, one row per period and index) and says so (detail, left_out; the
+    headers Dualcost-Detail and Dualcost-Left-Out)."""
     fmt = negotiate(request, OFFERS, format)
     outcome = households.run(body, settings_of(request))
+    left_out = households.headline_left_out(outcome)
+    if fmt == "csv" and left_out:
+        header, rows = households.summary_table(outcome)
+        return csv_response(header, rows, provenance=of_body(body),
+                            trailer=provenance == "trailer",
+                            headers={"Dualcost-Skipped-Rows": str(outcome.result.skipped.count),
+                                     "Dualcost-Detail": "headline",
+                                     "Dualcost-Left-Out": " ".join(left_out)} | SCALE_HEADERS)
     if fmt == "csv":
         return csv_stream(households.csv_pieces(outcome), provenance=of_body(body),
                           trailer=provenance == "trailer",

@@ -30,7 +30,7 @@ from ..render import (
     parquet_response,
 )
 from ..routing import JsonRoute, inline_when_cheap
-from ..schemas.series import SeriesOptions, SeriesRequest, SeriesResponse
+from ..schemas.series import DETAIL_TEXT, Detail, SeriesOptions, SeriesRequest, SeriesResponse
 
 router = APIRouter(route_class=JsonRoute, prefix="/v1", tags=["series"])
 
@@ -72,6 +72,12 @@ Lowe).
 average of each calendar year covered in full and its change over the previous year, and the
 levels rebased to any period or year (`rebase`). A measure that needs a period the series lacks
 is null, and `empty` says where and why.
+
+**Headline only**: `detail: "headline"` (in the CSV form, `detail=headline`) leaves out the rows
+per item (`item_treatment`, `weights.items`; in CSV the `items_*` columns), for a caller who
+wants the series alone: the figures, flags and notices are those of the full answer, and the
+answer's `detail` and `left_out` (in CSV, the headers `Dualcost-Detail` and `Dualcost-Left-Out`)
+say what was left out.
 """
 CSV_DESCRIPTION = (
     "The body is `text/csv` with columns `period`, `item`, `price` and, where known, "
@@ -93,9 +99,10 @@ CSV_DESCRIPTION = (
 
 def _answer(outcome: series.Outcome, fmt: str, provenance: Provenance, place: str) -> Response:
     if fmt in ("csv", "parquet"):
-        header, rows = series.table(outcome)
+        header, rows = series.csv_table(outcome) if fmt == "csv" else series.table(outcome)
         dialect = outcome.dialect
-        headers = scale_headers(series.scale(outcome)) | series.revealed_headers(outcome)
+        headers = (scale_headers(series.scale(outcome)) | series.revealed_headers(outcome)
+                   | series.detail_headers(outcome))
         if dialect is not None:
             headers |= dialect.headers()
         if fmt == "parquet":
@@ -152,6 +159,7 @@ def index_series_from_csv(
                                                            "levels).")] = None,
     rebase_year: Annotated[int | None, Query(ge=1, le=9999, description="Rebase every series "
                                              "to this calendar year's average.")] = None,
+    detail: Annotated[Detail | None, Query(description=DETAIL_TEXT)] = None,
     separator: SeparatorParam = None,
     decimal: DecimalParam = None,
     format: FormatParam = None,

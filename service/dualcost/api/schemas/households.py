@@ -23,6 +23,12 @@ from .common import (
 from .model import ModelSpec
 
 HouseholdFormula = Literal[formulas_for("households")]  # type: ignore[valid-type]
+HOUSEHOLD_DETAIL_TEXT = (
+    "How much the answer holds: full (default), or headline: the summaries (aggregates, "
+    "quantiles, shares above them), skipped rows, notices and caution as in full, without the "
+    "rows per household: households is null. As CSV, a headline answer is the summary table, "
+    "one row per period and index (the header Dualcost-Left-Out names what was left out). The "
+    "answer's detail and left_out say so; the figures are the same either way.")
 
 
 class PeriodPricesIn(StrictModel):
@@ -102,6 +108,7 @@ class HouseholdIndicesRequest(HouseholdJobSpec):
         "the least and greatest K(u0) across them. Households have one bundle each, so the "
         "model-free bracket of two observed bundles does not apply; the band is what is "
         "carried. Households times (1 + models) at most max_households.")
+    detail: Literal["full", "headline"] = Field("full", description=HOUSEHOLD_DETAIL_TEXT)
 
 
 # -- response models, for the OpenAPI document -------------------------------------------------
@@ -212,7 +219,8 @@ class HouseholdIndicesResponse(StrictModel):
     scale: ScaleOut
     formulas: list[str]
     periods: list[str]
-    households: list[HouseholdOut]
+    households: list[HouseholdOut] | None = Field(description="One entry per household (null "
+                                                  "in a headline answer).")
     summary: list[PeriodSummaryOut]
     skipped: SkippedOut
     engine: Literal["local", "cluster"]
@@ -221,6 +229,9 @@ class HouseholdIndicesResponse(StrictModel):
     sign_convention: str
     notices: list[NoticeOut]
     caution: str
+    detail: Literal["full", "headline"] = Field(description="full, or headline as asked.")
+    left_out: list[str] = Field(description="What a headline answer left out (households); "
+                                "empty in full.")
     provenance: ProvenanceOut
 
 

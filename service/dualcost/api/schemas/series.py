@@ -32,6 +32,17 @@ Row = Annotated[list[Cell] | dict[str, Cell], Field(
     description="One period: an object keyed by item id, or a list in the order of `items`; "
                 "null (or, in an object, no entry) where the item is not priced.")]
 
+Detail = Literal["full", "headline"]
+DETAIL_TEXT = (
+    "How much the answer holds: full (default), or headline: every series, bias, drift, change "
+    "measure and notice as in full, without the rows per item: item_treatment (one row per "
+    "period and item left out of a comparison or valued otherwise) and weights.items are null, "
+    "and in a CSV answer the columns items_not_priced, items_left_out_fixed_base and "
+    "items_left_out_of_link are left out (the header Dualcost-Left-Out names them). The "
+    "answer's detail and left_out say so. The figures are the same either way.")
+#: What a headline answer leaves out, as its left_out names them.
+HEADLINE_LEFT_OUT = ("item_treatment", "weights.items")
+
 FREQUENCY_TEXT = ("monthly, quarterly or annual; inferred from period labels of the form YYYY-MM, "
                   "YYYY-Qn or YYYY")
 
@@ -114,6 +125,7 @@ class SeriesOptions(StrictModel):
         None, description="Rebase every series to this period or year (worth reference_value "
                           "there) in `changes.by_series[].rebased`; the changes are the same on "
                           "any reference.")
+    detail: Detail = Field("full", description=DETAIL_TEXT)
     revealed_bounds: bool = Field(
         False, description="Also test the panel's choices for GARP (Varian 1982) and bracket "
         "each period's Konüs index against the base at base utility without a model, over the "
@@ -261,7 +273,8 @@ class WeightItemOut(StrictModel):
 
 class WeightsOut(StrictModel):
     period: str | None
-    items: list[WeightItemOut]
+    items: list[WeightItemOut] | None = Field(description="One row per item (null in a "
+                                              "headline answer).")
     rule: str
 
 
@@ -371,7 +384,9 @@ class SeriesResponse(StrictModel):
     bias: list[BiasOut]
     annual_bias: AnnualBiasBlock | None
     chain_drift: ChainDriftOut
-    item_treatment: list[ItemTreatmentOut]
+    item_treatment: list[ItemTreatmentOut] | None = Field(
+        description="One row per period and item left out of a comparison or valued otherwise "
+                    "by the model (null in a headline answer).")
     weights: WeightsOut | None
     lloyd_moulton_sigma: float | None
     new_goods_sigma: float | None
@@ -381,6 +396,9 @@ class SeriesResponse(StrictModel):
     notices: list[NoticeOut]
     scale: ScaleOut = Field(description="How the levels, links and biases are scaled.")
     caution: str
+    detail: Detail = Field(description="full, or headline as asked (see the request's detail).")
+    left_out: list[str] = Field(description="The members left out of a headline answer (null "
+                                "in it): item_treatment and weights.items; empty in full.")
     revealed_bounds: RevealedSeriesOut | None = Field(
         None, description="On request (revealed_bounds: true): the model-free brackets, as "
                           "ratios to the base period.")
@@ -389,5 +407,5 @@ class SeriesResponse(StrictModel):
     provenance: ProvenanceOut
 
 
-__all__ = ["FREQUENCY_TEXT", "RebaseIn", "PeriodLabel", "SeriesFormula", "SeriesOptions", "SeriesRequest",
-           "SeriesResponse"]
+__all__ = ["DETAIL_TEXT", "FREQUENCY_TEXT", "HEADLINE_LEFT_OUT", "Detail", "PeriodLabel",
+           "RebaseIn", "SeriesFormula", "SeriesOptions", "SeriesRequest", "SeriesResponse"]
