@@ -99,16 +99,17 @@ CSV_DESCRIPTION = (
 
 def _answer(outcome: series.Outcome, fmt: str, provenance: Provenance, place: str) -> Response:
     if fmt in ("csv", "parquet"):
-        header, rows = series.csv_table(outcome) if fmt == "csv" else series.table(outcome)
         dialect = outcome.dialect
         headers = (scale_headers(series.scale(outcome)) | series.revealed_headers(outcome)
                    | series.detail_headers(outcome))
         if dialect is not None:
             headers |= dialect.headers()
         if fmt == "parquet":
+            header, rows = series.table(outcome)
             return parquet_response(header, rows, provenance=provenance,
                                     filename="index-series.parquet", headers=headers)
-        return csv_response(header, rows, provenance=provenance, trailer=place == "trailer",
+        header, columns = series.csv_table(outcome)
+        return csv_response(header, columns, provenance=provenance, trailer=place == "trailer",
                             filename="index-series.csv", headers=headers)
     return json_response(series.document(outcome), provenance=provenance)
 
