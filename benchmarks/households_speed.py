@@ -21,12 +21,24 @@ It prints, measured in the same run:
   them, Apache Arrow's readers alone (the upload's bytes to float columns, nothing checked
   or computed), a floor under each path's reading, in the same ratio.
 
+``python benchmarks/households_speed.py --json-batch [--before TREE]`` measures only the JSON
+batch: POST /v1/household-indices in process (3,000 households by 200 items, the JSON answer
+read whole) against the core batch for the same households timed beside it. With ``--before``
+it runs that measurement alternately on another checkout's service (``TREE/service``, e.g. the
+main branch before a change) and on this one, each in its own process, three rounds each, and
+prints both ratios with the load average: before and after in one run.
+
 The machine is shared and noisy, so the ratios are the figures to compare between runs.
 """
 
 from __future__ import annotations
 
+import argparse
+import json
+import os
 import resource
+import subprocess
+import sys
 import tempfile
 import time
 import tracemalloc
@@ -219,7 +231,89 @@ def readers_alone(text: bytes, parquet: bytes, core: Callable[[], object]
             lambda: pq.read_table(io.BytesIO(parquet)), core)}
 
 
+JSON_HOUSEHOLDS = 3_000
+
+
+def json_batch_seconds() -> tuple[float, float]:
+    """Median seconds of POST /v1/household-indices in process (JSON in, the JSON answer read
+    and parsed whole) for JSON_HOUSEHOLDS households by ITEMS items, and of the core batch for
+    the same households timed beside it."""
+    import orjson
+
+    s = scenario()
+    w, m = s["w"][:JSON_HOUSEHOLDS], s["m"][:JSON_HOUSEHOLDS]
+    job = HouseholdJob.checked("ces", {"sigma": SIGMA}, s["p0"], s["p1"], formulas=FORMULAS)
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")
+        from fastapi.testclient import TestClient
+
+        from dualcost.api.app import create_app
+        from dualcost.config import Settings
+
+        data = tempfile.TemporaryDirectory()
+        client = TestClient(create_app(Settings(max_body_bytes=1 << 30, data_dir=data.name)))
+    ids = [f"item_{i:03d}" for i in range(ITEMS)]
+    body = orjson.dumps({
+        "items": ids, "base_prices": s["p0"].tolist(), "current_prices": s["p1"].tolist(),
+        "model": {"family": "ces", "sigma": SIGMA}, "formulas": FORMULAS,
+        "households": [{"id": f"h{h}", "shares": w[h].tolist(),
+                        "expenditure": float(m[h])} for h in range(JSON_HOUSEHOLDS)]})
+
+    def post() -> None:
+        r = client.post("/v1/household-indices", content=body,
+                        headers={"content-type": "application/json"})
+        assert r.status_code == 200, r.text[:300]
+        assert len(orjson.loads(r.content)["households"]) == JSON_HOUSEHOLDS
+
+    return beside(post, lambda: run_households(job, w, expenditure=m), repeat=7)
+
+
+def json_batch_line(name: str, t_http: float, t_core: float) -> str:
+    return (f"    {name:31s} {t_http * 1e3:8.1f} ms   core beside it {t_core * 1e3:6.1f} ms   "
+            f"HTTP / core {t_http / t_core:5.2f}")
+
+
+def json_batch_before_after(before: str, rounds: int = 3) -> None:
+    """The JSON batch on ``before``'s service and on this checkout's, alternately, each in its
+    own process (this script, with PYTHONPATH at the tree's service)."""
+    here = os.path.dirname(os.path.dirname(os.path.abspath(__file__)))
+    found: dict[str, list[tuple[float, float]]] = {"before": [], "after": []}
+    for _ in range(rounds):
+        for name, tree in (("before", before), ("after", here)):
+            env = os.environ | {"PYTHONPATH": os.pathsep.join(
+                [os.path.join(tree, "service"), os.path.dirname(os.path.abspath(__file__))])}
+            out = subprocess.run([sys.executable, os.path.abspath(__file__), "--json-batch",
+                                  "--print-seconds"], env=env, check=True, capture_output=True,
+                                 text=True).stdout
+            found[name].append(tuple(json.loads(out.strip().splitlines()[-1])))
+    print(f"JSON batch, POST /v1/household-indices in process: {JSON_HOUSEHOLDS} households x "
+          f"{ITEMS} items, CES, {len(FORMULAS)} formulas; {rounds} alternating rounds, medians "
+          f"(load average {', '.join(f'{x:.2f}' for x in os.getloadavg())})")
+    for name, tree in (("before", before), ("after", here)):
+        t_http = float(np.median([t for t, _ in found[name]]))
+        t_core = float(np.median([c for _, c in found[name]]))
+        print(json_batch_line(f"{name} ({tree})", t_http, t_core))
+
+
 def main() -> None:
+    parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
+    parser.add_argument("--json-batch", action="store_true",
+                        help="measure only the JSON batch (POST /v1/household-indices)")
+    parser.add_argument("--before", metavar="TREE",
+                        help="with --json-batch: also another checkout's service, alternately")
+    parser.add_argument("--print-seconds", action="store_true", help=argparse.SUPPRESS)
+    args = parser.parse_args()
+    if args.json_batch and args.before:
+        json_batch_before_after(args.before)
+    elif args.json_batch:
+        t_http, t_core = json_batch_seconds()
+        print(json.dumps([t_http, t_core]) if args.print_seconds else
+              json_batch_line("JSON batch", t_http, t_core))
+    else:
+        everything()
+
+
+def everything() -> None:
     s = scenario()
     job = HouseholdJob.checked("ces", {"sigma": SIGMA}, s["p0"], s["p1"], formulas=FORMULAS)
 
