@@ -26,7 +26,8 @@ batch: POST /v1/household-indices in process (3,000 households by 200 items, the
 read whole) against the core batch for the same households timed beside it. With ``--before``
 it runs that measurement alternately on another checkout's service (``TREE/service``, e.g. the
 main branch before a change) and on this one, each in its own process, three rounds each, and
-prints both ratios with the load average: before and after in one run.
+prints both ratios with the load average: before and after in one run; beside them, the time
+of writing the JSON answer alone (the route's document and orjson, from the batch's results).
 
 The machine is shared and noisy, so the ratios are the figures to compare between runs.
 """
@@ -234,10 +235,10 @@ def readers_alone(text: bytes, parquet: bytes, core: Callable[[], object]
 JSON_HOUSEHOLDS = 3_000
 
 
-def json_batch_seconds() -> tuple[float, float]:
+def json_batch_seconds() -> tuple[float, float, float]:
     """Median seconds of POST /v1/household-indices in process (JSON in, the JSON answer read
-    and parsed whole) for JSON_HOUSEHOLDS households by ITEMS items, and of the core batch for
-    the same households timed beside it."""
+    and parsed whole) for JSON_HOUSEHOLDS households by ITEMS items, of the core batch for
+    the same households timed beside it, and of the answer's writing alone."""
     import orjson
 
     s = scenario()
@@ -265,19 +266,40 @@ def json_batch_seconds() -> tuple[float, float]:
         assert r.status_code == 200, r.text[:300]
         assert len(orjson.loads(r.content)["households"]) == JSON_HOUSEHOLDS
 
-    return beside(post, lambda: run_households(job, w, expenditure=m), repeat=7)
+    t_http, t_core = beside(post, lambda: run_households(job, w, expenditure=m), repeat=7)
+    return t_http, t_core, answer_seconds(body)
 
 
-def json_batch_line(name: str, t_http: float, t_core: float) -> str:
+def answer_seconds(body: bytes) -> float:
+    """Median seconds of writing the JSON answer alone (``households.document`` and orjson, as
+    the route calls them in the tree on the path) for the request ``body``."""
+    import inspect
+
+    import orjson
+
+    from dualcost.api.operations import households
+    from dualcost.api.schemas.households import HouseholdIndicesRequest
+    from dualcost.config import Settings
+
+    outcome = households.run(HouseholdIndicesRequest.model_validate_json(body),
+                             Settings(max_body_bytes=1 << 30))
+    quick = "rows_as_text" in inspect.signature(households.document).parameters
+    options = {"rows_as_text": True} if quick else {}
+    return median_seconds(lambda: orjson.dumps(households.document(outcome, **options),
+                                               option=orjson.OPT_SERIALIZE_NUMPY), 7)
+
+
+def json_batch_line(name: str, t_http: float, t_core: float, t_answer: float) -> str:
     return (f"    {name:31s} {t_http * 1e3:8.1f} ms   core beside it {t_core * 1e3:6.1f} ms   "
-            f"HTTP / core {t_http / t_core:5.2f}")
+            f"HTTP / core {t_http / t_core:5.2f}   the JSON answer's writing alone "
+            f"{t_answer * 1e3:6.1f} ms")
 
 
 def json_batch_before_after(before: str, rounds: int = 3) -> None:
     """The JSON batch on ``before``'s service and on this checkout's, alternately, each in its
     own process (this script, with PYTHONPATH at the tree's service)."""
     here = os.path.dirname(os.path.dirname(os.path.abspath(__file__)))
-    found: dict[str, list[tuple[float, float]]] = {"before": [], "after": []}
+    found: dict[str, list[list[float]]] = {"before": [], "after": []}
     for _ in range(rounds):
         for name, tree in (("before", before), ("after", here)):
             env = os.environ | {"PYTHONPATH": os.pathsep.join(
@@ -285,14 +307,13 @@ def json_batch_before_after(before: str, rounds: int = 3) -> None:
             out = subprocess.run([sys.executable, os.path.abspath(__file__), "--json-batch",
                                   "--print-seconds"], env=env, check=True, capture_output=True,
                                  text=True).stdout
-            found[name].append(tuple(json.loads(out.strip().splitlines()[-1])))
+            found[name].append(json.loads(out.strip().splitlines()[-1]))
     print(f"JSON batch, POST /v1/household-indices in process: {JSON_HOUSEHOLDS} households x "
           f"{ITEMS} items, CES, {len(FORMULAS)} formulas; {rounds} alternating rounds, medians "
           f"(load average {', '.join(f'{x:.2f}' for x in os.getloadavg())})")
     for name, tree in (("before", before), ("after", here)):
-        t_http = float(np.median([t for t, _ in found[name]]))
-        t_core = float(np.median([c for _, c in found[name]]))
-        print(json_batch_line(f"{name} ({tree})", t_http, t_core))
+        t_http, t_core, t_answer = np.median(np.array(found[name]), axis=0).tolist()
+        print(json_batch_line(f"{name} ({tree})", t_http, t_core, t_answer))
 
 
 def main() -> None:
@@ -306,9 +327,9 @@ def main() -> None:
     if args.json_batch and args.before:
         json_batch_before_after(args.before)
     elif args.json_batch:
-        t_http, t_core = json_batch_seconds()
-        print(json.dumps([t_http, t_core]) if args.print_seconds else
-              json_batch_line("JSON batch", t_http, t_core))
+        seconds = json_batch_seconds()
+        print(json.dumps(seconds) if args.print_seconds else
+              json_batch_line("JSON batch", *seconds))
     else:
         everything()
 
