@@ -215,10 +215,20 @@ def all_finite(value: Any) -> bool:
 def finite(document: T, what: str) -> T:
     """``document`` when every number in it is finite; otherwise the evaluation failed."""
     if not all_finite(document):
-        raise NumericalFailure(what, "a result is not a finite number: the inputs are beyond "
-                               "what floating point can carry (a weight, income or price too "
-                               "large?)")
+        raise _not_finite(what)
     return document
+
+
+def finite_or_withheld(arrays: Iterable[Any], what: str) -> None:
+    """Arrays written into an answer with NaN as null (withheld): no infinity among them, the
+    rule :func:`finite` applies to the same numbers as lists with None for NaN."""
+    if any(np.isinf(a).any() for a in arrays):
+        raise _not_finite(what)
+
+
+def _not_finite(what: str) -> NumericalFailure:
+    return NumericalFailure(what, "a result is not a finite number: the inputs are beyond what "
+                            "floating point can carry (a weight, income or price too large?)")
 
 
 # -- CSV --------------------------------------------------------------------------------------

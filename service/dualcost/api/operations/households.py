@@ -21,6 +21,7 @@ from dataclasses import dataclass
 from typing import Any
 
 import numpy as np
+import orjson
 
 from ...config import Settings
 from ...core.households import (
@@ -43,7 +44,8 @@ from ..inputs.items import ItemAxis
 from ..inputs.locator import Locator, Place
 from ..observability import computing
 from ..problems import RequestProblem
-from ..render import csv_line, finite
+from ..records import Column, Grouped, Written, json_records
+from ..render import csv_line, finite, finite_or_withheld
 from ..render import number_texts as _number_texts
 from ..render import text_cells as _text_cells
 from ..schemas.common import CAUTION, SIGN_CONVENTION
@@ -258,17 +260,24 @@ def skipped_json(report: SkipReport, loc: Locator) -> dict[str, Any]:
     return {"count": report.count, "by_reason": dict(report.by_reason), "rows": rows}
 
 
-def document(outcome: Outcome) -> dict[str, Any]:
+def document(outcome: Outcome, *, rows_as_text: bool = False) -> dict[str, Any]:
     """The JSON answer as plain data (built directly: thousands of households are common); a
-    headline answer without the rows per household."""
+    headline answer without the rows per household. ``rows_as_text``: the households as their
+    JSON text, written column by column from the core's arrays
+    (:func:`dualcost.api.records.json_records`; the same bytes once the answer is written, no
+    Python object per number), for an answer that goes straight to orjson."""
     res, labels, axis = outcome.result, outcome.labels, outcome.axis
     job = res.job
     full = headline_left_out(outcome) == []
+    rows: Any = None
+    if full and rows_as_text:
+        rows = json_records(household_columns(res, labels, axis.ids, outcome.band))
+    elif full:
+        rows = _with_band(_households(res, labels, axis.ids), outcome.band)
     return finite({
         "family": job.family, "items": axis.ids, "scale": SCALE_RATIO,
         "formulas": list(job.formulas), "periods": list(labels),
-        "households": _with_band(_households(res, labels, axis.ids), outcome.band)
-        if full else None,
+        "households": rows,
         "summary": summary_json(res.summary, labels),
         "skipped": skipped_json(res.skipped, outcome.locator),
         "engine": res.engine, "chunks": res.chunks, "definitions": DEFINITIONS,
@@ -361,6 +370,70 @@ def _households(res: HouseholdResults, labels: Sequence[str],
                     "expenditure": None if res.expenditure is None else float(res.expenditure[j]),
                     "periods": periods})
     return out
+
+
+def household_columns(res: HouseholdResults, labels: Sequence[str], ids: Sequence[str],
+                      band: Band | None) -> dict[str, Column]:
+    """The households of the JSON answer as columns (:func:`dualcost.api.records.json_records`),
+    the members in the order :func:`_households` and :func:`_with_band` give them: each
+    household's periods a list of records, the core's arrays (periods by households) read
+    household by household, period by period; NaN (withheld, left out) written null."""
+    job, n, periods = res.job, res.rows.size, len(labels)
+
+    def flat(column: Any) -> Any:
+        return np.ascontiguousarray(np.asarray(column).T).reshape(-1)
+
+    v = {name: flat(res.values[name]) for name in _written_values(job)
+         if name in res.values}
+    lines = n * periods
+    nulls = Written([b"null"] * lines)
+    flags = flat(res.irregular) if res.irregular.size else np.zeros(lines, dtype=np.uint32)
+    reasons, named = [b"[]"] * lines, [b"[]"] * lines
+    for k in map(int, np.flatnonzero(flags)):
+        reasons[k] = orjson.dumps(list(reasons_of(int(flags[k]))))
+    for (t, j), at in res.irregular_items.items():
+        named[j * periods + t] = orjson.dumps([ids[i] for i in at])
+    per_period: dict[str, Column] = {
+        "period": Written([orjson.dumps(label) for label in labels] * n),
+        "model_regular": flags == 0, "irregular_reasons": Written(reasons),
+        "irregular_items": Written(named),
+        "indices": {f: v[f] for f in job.formulas},
+        "konus": v["konus"], "konus_current": v["konus_current"],
+        "konus_midpoint": v["konus_midpoint"],
+        "compensating_variation": v.get("compensating_variation", nulls),
+        "equivalent_variation": v.get("equivalent_variation", nulls),
+        "cv_percent": v["cv_percent"],
+        "bias_points": {f: v[f"bias_{f}"] for f in job.formulas},
+    }
+    if band is not None:
+        per_period["band"] = _band_columns(band, v["konus"], flat)
+    weights = np.asarray(res.weights, dtype=np.float64)
+    finite_or_withheld([*v.values(), weights, *(() if res.expenditure is None else
+                                                 (res.expenditure,))], "households")
+    return {"household": [None] * n if res.ids is None else list(res.ids), "row": res.rows,
+            "weight": weights,
+            "expenditure": Written([b"null"] * n) if res.expenditure is None else
+            np.asarray(res.expenditure, dtype=np.float64),
+            "periods": Grouped(per_period, periods)}
+
+
+def _written_values(job: HouseholdJob) -> list[str]:
+    """The core's value arrays the JSON answer writes per household-period."""
+    return [*job.formulas, "konus", "konus_current", "konus_midpoint", "compensating_variation",
+            "equivalent_variation", "cv_percent", *(f"bias_{f}" for f in job.formulas)]
+
+
+def _band_columns(band: Band, konus: Any, flat: Any) -> dict[str, Column]:
+    """The band's columns beside K(u0) (as :func:`_with_band`: inside within a relative 1e-9,
+    null where a bound or K(u0) is withheld)."""
+    low, high = flat(band.low), flat(band.high)
+    finite_or_withheld([low, high], "households")
+    known = ~(np.isnan(low) | np.isnan(high) | np.isnan(konus))
+    with np.errstate(invalid="ignore"):
+        inside = (low * (1 - 1e-9) <= konus) & (konus <= high * (1 + 1e-9))
+    texts = np.where(known, np.where(inside, b"true", b"false"), b"null").tolist()
+    return {"konus_low": low, "konus_high": high, "models": flat(band.count),
+            "konus_inside": Written(texts)}
 
 
 #: The columns that say whether the model is regular for a household-period, and why not.

@@ -150,7 +150,8 @@ def household_indices(body: HouseholdIndicesRequest, request: Request,
                           trailer=provenance == "trailer",
                           headers={"Dualcost-Skipped-Rows": str(outcome.result.skipped.count)}
                           | SCALE_HEADERS)
-    return json_response(households.document(outcome), provenance=of_body(body))
+    return json_response(households.document(outcome, rows_as_text=True),
+                         provenance=of_body(body))
 
 
 @router.post("/household-jobs", operation_id="createHouseholdJob", status_code=201,
