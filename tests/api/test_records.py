@@ -8,13 +8,14 @@ import json
 import math
 from typing import Any
 
+import numpy as np
 import orjson
 import pytest
 from hypothesis import given, settings
 from hypothesis import strategies as st
 
 from dualcost.api.operations import compare
-from dualcost.api.records import json_records
+from dualcost.api.records import Grouped, Written, json_records
 from dualcost.api.schemas.comparison import ComparisonRequest
 from dualcost.config import Settings
 from tests.api.test_validity import translog_far_from_base
@@ -66,3 +67,32 @@ def test_a_comparison_answer_is_the_same_bytes_with_its_rows_written_as_text(bod
     quick = orjson.dumps(compare.document(outcome, rows_as_text=True),
                          option=orjson.OPT_SERIALIZE_NUMPY)
     assert quick == plain
+
+
+@settings(max_examples=200, deadline=None, derandomize=True)
+@given(st.integers(0, 5), st.integers(0, 3), st.lists(st.floats(), min_size=15, max_size=15))
+def test_nested_objects_lists_of_records_and_arrays_are_orjson_bytes(n, per_row, floats) -> None:
+    """Columns as numpy arrays (NaN and infinity null, as orjson writes them in a list), texts
+    written before, an object in each row (also one without members) and a list of
+    ``per_row`` records in each row: orjson's bytes for the nested dicts and lists."""
+    values = np.array((floats * 2)[:n])
+    inner = np.array((floats * 4)[:n * per_row])
+    labels = [f"r{i}," for i in range(n * per_row)]
+    columns: dict[str, Any] = {
+        "x": values, "flag": values > 0, "count": np.arange(n),
+        "said": Written([orjson.dumps(["a", i]) for i in range(n)]),
+        "nested": {"y": values, "empty": {}, "z": [None] * n},
+        "rows": Grouped({"label": labels, "v": inner, "o": {"w": inner}}, per_row)}
+    plain = [{"x": float(values[i]), "flag": bool(values[i] > 0), "count": i, "said": ["a", i],
+              "nested": {"y": float(values[i]), "empty": {}, "z": None},
+              "rows": [{"label": labels[i * per_row + t], "v": float(inner[i * per_row + t]),
+                        "o": {"w": float(inner[i * per_row + t])}} for t in range(per_row)]}
+             for i in range(n)]
+    assert orjson.dumps({"rows": json_records(columns)}) == orjson.dumps({"rows": plain})
+
+
+def test_nested_columns_of_different_lengths_are_refused() -> None:
+    with pytest.raises(ValueError, match="differ in length"):
+        json_records({"a": [1.0, 2.0], "b": {"c": [1.0]}})
+    with pytest.raises(ValueError, match="differ in length"):
+        json_records({"a": [1.0, 2.0], "b": Grouped({"c": [1.0, 2.0, 3.0]}, 2)})

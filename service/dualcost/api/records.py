@@ -105,14 +105,14 @@ _Pieces: TypeAlias = "list[bytes | list[bytes]]"
 
 
 def _rows(column: Column) -> int | None:
-    """How many rows ``column`` has (None: an object without members, any number)."""
+    """How many rows ``column`` has (None: any number)."""
     if isinstance(column, Written):
         return len(column.texts)
     if isinstance(column, Grouped | Mapping):
         members = column.columns if isinstance(column, Grouped) else column
         inner = {r for c in members.values() if (r := _rows(c)) is not None}
-        if not inner:
-            return None
+        if not inner or isinstance(column, Grouped) and column.per_row == 0:
+            return None  # no members, or no records in any row: as many rows as the others
         rows = inner.pop() if len(inner) == 1 else -1
         return rows // max(column.per_row, 1) if isinstance(column, Grouped) else rows
     return len(column)
