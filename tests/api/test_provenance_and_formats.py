@@ -202,7 +202,12 @@ _TOKENS = st.sampled_from([1.0, -0.0, 0.5, 1e-5, 1e-7, 1e16, 1e21, 2.0 ** 53, 90
                            0.30000000000000004, 5e-324, "\U0001f600", "\ufb33", "\x1f\x7f",
                            "\u2028", "\ud800", "1.0", "e5", None, True,
                            # strings that hold what a whole float ends with, and quotes
-                           "1.0,", "[2.0]", "x.0}", '"', '".0,', '\\".0]', "-0.0,"])
+                           "1.0,", "[2.0]", "x.0}", '"', '".0,', '\\".0]', "-0.0,",
+                           # numbers orjson writes with an exponent that RFC 8785 writes
+                           # plainly (1e-6 to 1e-5, 1e16 to 1e21) or otherwise, and strings
+                           # that look like them
+                           9.185394123497313e-6, -2.5e-6, 1.5e16, -1e20, 3e-300, -1.5e300,
+                           "9e-6", "type-2e-5", "x1e+16,", '"2e-6'])
 _RISKY_JSON = st.recursive(_SCALARS | _TOKENS, lambda inner: st.lists(inner, max_size=6)
                            | st.dictionaries(st.text(max_size=3) | _TOKENS.filter(
                                lambda t: isinstance(t, str)), inner, max_size=6), max_leaves=30)
@@ -244,6 +249,13 @@ def test_the_quickest_road_is_taken_where_orjson_writes_the_scheme_s_text() -> N
         out = []
         _write(value | whole, out)
         assert _quickest(value | whole) == "".join(out).encode()
+    # Shares of a few millionths (orjson '9.1e-6', RFC 8785 '0.0000091') and huge numbers are
+    # mended in the text too, outside strings only.
+    for tiny in ({"shares": [9.1e-6, 0.25, -2.5e-6, 1e-7], "note": "9.1e-6, type-2e-5"},
+                 {"h": [{"id": "1e+16", "x": 1.5e16, "y": 3e-300}]}):
+        out = []
+        _write(value | tiny, out)
+        assert _quickest(value | tiny) == "".join(out).encode()
     for declined in ({"q": -0.0}, {"q": 12.0, "name": 'say "1.0,"'}):
         assert _quickest(value | declined) is None
         assert canonical_json(value | declined, json_values=True) == canonical_json(
