@@ -15,7 +15,7 @@ import hashlib
 import json
 import math
 import re
-from collections.abc import Callable, Mapping
+from collections.abc import Callable, Iterable, Iterator, Mapping
 from itertools import chain
 from typing import Any
 
@@ -275,25 +275,20 @@ def _exponents_mended(text: bytes) -> bytes | None:
     (a backslash)."""
     if b"\\" in text:
         return None
-    pieces: list[bytes] = []
-    kept = counted = 0
-    inside = False  # within a string at ``counted``
-    count = text.count
+    return _spliced(text, ((at, end, _es_exponent(text[at:end].decode()).encode())
+                           for at, end in _outside_strings(text, _exponent_places(text))))
+
+
+def _exponent_places(text: bytes) -> Iterator[tuple[int, int]]:
+    """Where each number with an exponent starts and ends in ``text`` (and look-alikes in
+    strings, which :func:`_outside_strings` leaves out)."""
     for found in _EXPONENT.finditer(text):
         at = found.start()
         if at == 0 or text[at - 1] not in _DIGITS:  # not a number's exponent ("type-2")
             continue
         while at > 0 and text[at - 1] in _NUMBER:  # back to the number's first character
             at -= 1
-        if count(b'"', counted, at) & 1:
-            inside = not inside
-        counted = at
-        if not inside:
-            pieces.append(text[kept:at])
-            pieces.append(_es_exponent(text[at:found.end()].decode()).encode())
-            kept = found.end()
-    pieces.append(text[kept:])
-    return b"".join(pieces)
+        yield at, found.end()
 
 
 def _whole_floats_mended(text: bytes) -> bytes | None:
@@ -301,18 +296,33 @@ def _whole_floats_mended(text: bytes) -> bytes | None:
     where the quotes cannot be counted plainly (a backslash) or a negative zero may be there."""
     if b"\\" in text or (b"-0.0" in text and _NEGATIVE_ZERO.search(text)):
         return None
-    pieces: list[bytes] = []
-    kept = counted = 0
+    places = ((found.start(), found.end()) for found in _WHOLE_END.finditer(text))
+    return _spliced(text, ((at, end, b"") for at, end in _outside_strings(text, places)))
+
+
+def _outside_strings(text: bytes, places: Iterable[tuple[int, int]]
+                     ) -> Iterator[tuple[int, int]]:
+    """The ``places`` (in order, none inside another) that lie outside strings, told by the
+    parity of the quotes before each (``text`` holds no backslash, so no escaped quote)."""
+    counted = 0
     inside = False  # within a string at ``counted``
     count = text.count
-    for found in _WHOLE_END.finditer(text):
-        at = found.start()
+    for at, end in places:
         if count(b'"', counted, at) & 1:
             inside = not inside
         counted = at
         if not inside:
-            pieces.append(text[kept:at])
-            kept = at + 2
+            yield at, end
+
+
+def _spliced(text: bytes, edits: Iterable[tuple[int, int, bytes]]) -> bytes:
+    """``text`` with each (start, end) span of ``edits`` (in order) replaced by its bytes."""
+    pieces: list[bytes] = []
+    kept = 0
+    for at, end, replacement in edits:
+        pieces.append(text[kept:at])
+        pieces.append(replacement)
+        kept = end
     pieces.append(text[kept:])
     return b"".join(pieces)
 
