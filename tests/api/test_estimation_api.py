@@ -100,6 +100,46 @@ def test_fit_and_compare_is_seeded_and_reports_the_bias_interval(client: Any) ->
     assert "bootstrap" in intervals["method"]
 
 
+@pytest.mark.parametrize("fmt", ["csv", "parquet"])
+def test_the_fitted_comparison_as_a_table_holds_the_json_figures_and_intervals(
+        client: Any, fmt: str) -> None:
+    """The table form (a row per measure, as the comparison's CSV answer, with the interval of
+    each figure that has one) carries exactly the JSON answer's figures; Parquet is read back
+    with pyarrow, the format's reference library."""
+    body = load_example(COMPARE_EXAMPLE)
+    whole = client.post("/v1/fitted-comparisons", json=body).json()
+    r = client.post("/v1/fitted-comparisons", json=body, params={"format": fmt})
+    assert r.status_code == 200, r.text
+    if fmt == "csv":
+        assert r.headers["content-type"].startswith("text/csv")
+        table = list(csv.DictReader(io.StringIO(r.text)))
+        rows = {row["measure"]: {k: (float(v) if v and k not in ("measure", "compared_with")
+                                     else v) for k, v in row.items()} for row in table}
+    else:
+        import pyarrow.parquet as pq
+
+        assert r.headers["content-type"] == "application/vnd.apache.parquet"
+        rows = {row["measure"]: row for row in pq.read_table(io.BytesIO(r.content)).to_pylist()}
+    intervals = whole["intervals"]
+    assert rows["konus_base"]["value"] == whole["comparison"]["konus"]["base"]
+    for kind, interval in intervals["konus"].items():
+        row = rows[f"konus_{kind}"]
+        assert (row["value_low"], row["value_high"], row["value_std_error"]) == (
+            interval["low"], interval["high"], interval["std_error"])
+    for f in intervals["formulas"]:
+        row = rows[f["formula"]]
+        assert (row["bias_points_low"], row["bias_points_high"]) == (
+            f["bias_points"]["low"], f["bias_points"]["high"])
+        assert (row["bias_percent_low"], row["bias_percent_high"]) == (
+            f["bias_percent"]["low"], f["bias_percent"]["high"])
+    cv = intervals["compensating_variation"]
+    assert (rows["compensating_variation"]["value_low"],
+            rows["compensating_variation"]["value_high"]) == (cv["low"], cv["high"])
+    assert rows["intervals_seed"]["value"] == body["uncertainty"]["seed"]
+    assert rows["intervals_confidence_level"]["value"] == intervals["confidence_level"]
+    assert rows["intervals_draws"]["value"] == intervals["draws"]
+
+
 def test_csv_upload_in_long_form_gives_the_json_fit(client: Any) -> None:
     """The same data as long-form CSV (rows in any order after the first observation) give the
     same estimates as the JSON request, to the fit's convergence tolerance (1e-8: the

@@ -909,7 +909,8 @@ def _downloaded(browser: Any, name: str) -> str:
     return target.read_text(encoding="utf-8")
 
 
-@pytest.mark.parametrize("case", [c for c in CASES if c.view in NEW_VIEWS], ids=NEW_VIEWS)
+@pytest.mark.parametrize("case", [c for c in CASES if c.view in (*NEW_VIEWS, "fitted")],
+                         ids=lambda c: c.view)
 def test_the_new_views_download_json_and_the_services_csv(
         live_url: str, browser: Any, case: ViewCase) -> None:
     """JSON is the answer shown; CSV is the service's own CSV answer to the same request."""

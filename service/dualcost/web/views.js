@@ -655,7 +655,6 @@
     path: "/v1/fitted-comparisons",
     operationId: "fitAndCompare",
     action: "Fit and compare",
-    downloads: ["json"],
     csv: fits.csv,
     fields: [
       ...fits.fields,

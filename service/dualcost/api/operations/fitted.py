@@ -156,3 +156,44 @@ def document(outcome: Outcome) -> dict[str, Any]:
         },
         "caution": CAUTION,
     }
+
+
+# -- the table (format=csv or parquet) ------------------------------------------------------------
+
+#: The columns of a fitted comparison as a table: the comparison's measures
+#: (:data:`compare.TABLE_COLUMNS`), each with the parametric-bootstrap interval of its figure
+#: where it has one: of the value (the Konüs indices, the compensating and equivalent variation)
+#: or of the bias (each formula's, in points and in percent).
+TABLE_COLUMNS: tuple[str, ...] = compare.TABLE_COLUMNS + (
+    "value_low", "value_high", "value_std_error", "bias_points_low", "bias_points_high",
+    "bias_percent_low", "bias_percent_high")
+
+
+def table(outcome: Outcome) -> tuple[tuple[str, ...], list[tuple[Any, ...]]]:
+    """The fitted comparison as one table: a row per measure of :func:`compare.measures` with
+    its intervals, then the intervals' confidence level, draws (and how many failed) and seed.
+    Outside the fitted model's regular region the model's figures are withheld (empty), and so
+    are their intervals."""
+    c = outcome.intervals
+    regular = outcome.comparison.result.validity.regular
+    of_value = {f"konus_{k}": v for k, v in c.konus.items()} | {
+        "compensating_variation": c.compensating_variation,
+        "equivalent_variation": c.equivalent_variation}
+    rows: list[tuple[Any, ...]] = []
+    for row in compare.measures(outcome.comparison):
+        name = row[0]
+        value, points, percent = ((of_value.get(name), c.bias_points.get(name),
+                                   c.bias_percent.get(name)) if regular else (None, None, None))
+        rows.append(row + _ends(value) + (None if value is None else value.std_error,)
+                    + _ends(points) + _ends(percent))
+    blank = (None,) * (len(TABLE_COLUMNS) - 2)
+    rows += [("intervals_confidence_level", c.confidence_level, *blank),
+             ("intervals_draws", float(c.draws), *blank),
+             ("intervals_draws_failed", float(c.failed), *blank),
+             ("intervals_seed", float(c.seed), *blank)]
+    return TABLE_COLUMNS, rows
+
+
+def _ends(i: Interval | None) -> tuple[float | None, float | None]:
+    return (None, None) if i is None else (i.low, i.high)
+

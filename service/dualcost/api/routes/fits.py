@@ -15,6 +15,7 @@ from ..inputs.csv import DecimalParam, DeclaredDialect, SeparatorParam
 from ..inputs.json_text import in_float_range
 from ..inputs.uploads import TABLE_REQUEST_BODY, TableUpload, table_upload
 from ..operations import fits, fitted
+from ..operations.answers import SCALE_RATIO, scale_headers
 from ..provenance import Provenance, UploadSha256, of_body, of_upload, query_of
 from ..render import (
     PARQUET_ANSWER,
@@ -38,6 +39,15 @@ RESPONSES: dict[int | str, dict[str, Any]] = {
                          "format=parquet).", **PARQUET_ANSWER},
     422: {"description": "The request breaks a rule, or the fit does not converge (RFC 9457 "
                          "problem details)."},
+}
+FITTED_RESPONSES: dict[int | str, dict[str, Any]] = {
+    200: {"description": "The fitted comparison; as a table when asked: CSV (Accept: text/csv, "
+                         "or format=csv) or Parquet (Accept: application/vnd.apache.parquet, or "
+                         "format=parquet), a row per measure of the comparison (as POST "
+                         "/v1/comparisons gives it as CSV) with the interval of its value or of "
+                         "its bias, then the intervals' confidence level, draws and seed. The "
+                         "fit's parameters as a table: POST /v1/fits.", **PARQUET_ANSWER},
+    422: RESPONSES[422],
 }
 OFFERS: tuple[Format, ...] = ("json", "csv", "parquet")
 FormatParam = Annotated[Literal["json", "csv", "parquet"] | None, format_query(OFFERS)]
@@ -143,7 +153,7 @@ def fit_model_csv(
 
 
 @router.post("/fitted-comparisons", operation_id="fitAndCompare",
-             response_model=FitAndCompareResponse,
+             response_model=FitAndCompareResponse, responses=FITTED_RESPONSES,
              summary="Fit a preference model to budget data, then compare two price situations "
                      "under it, with intervals from the parameter uncertainty",
              description=(
@@ -154,7 +164,17 @@ def fit_model_csv(
                  "estimate's normal distribution with its robust covariance, seeded "
                  "(`uncertainty.seed`). Without a base bundle the base bundle is the fitted "
                  "model's demand at the base prices and expenditure.\n\n" + DESCRIPTION))
-def fit_and_compare(body: FitAndCompareRequest, request: Request) -> Response:
-    negotiate(request, ("json",))
-    return json_response(fitted.document(fitted.run(body, settings_of(request))),
-                         provenance=of_body(body))
+def fit_and_compare(body: FitAndCompareRequest, request: Request, format: FormatParam = None,
+                    provenance: ProvenanceQuery = "headers") -> Response:
+    fmt = negotiate(request, OFFERS, format)
+    outcome = fitted.run(body, settings_of(request))
+    origin = of_body(body)
+    if fmt == "json":
+        return json_response(fitted.document(outcome), provenance=origin)
+    header, rows = fitted.table(outcome)
+    if fmt == "parquet":
+        return parquet_response(header, rows, provenance=origin,
+                                filename="fitted-comparison.parquet",
+                                headers=scale_headers(SCALE_RATIO))
+    return csv_response(header, rows, provenance=origin, trailer=provenance == "trailer",
+                        filename="fitted-comparison.csv", headers=scale_headers(SCALE_RATIO))
