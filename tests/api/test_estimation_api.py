@@ -140,6 +140,32 @@ def test_the_fitted_comparison_as_a_table_holds_the_json_figures_and_intervals(
     assert rows["intervals_draws"]["value"] == intervals["draws"]
 
 
+def test_outside_the_regular_region_the_table_withholds_figures_and_their_intervals() -> None:
+    """A number the model cannot stand behind is not a result (common practice): the fitted
+    comparison's table leaves the model's figures and their intervals empty when the comparison
+    is outside the fitted model's regular region (the formula values stay)."""
+    from dataclasses import replace
+
+    from dualcost.api.operations import fitted
+    from dualcost.api.schemas.estimation import FitAndCompareRequest
+    from dualcost.config import Settings
+    from dualcost.core.validity import Notice, Validity
+
+    request = FitAndCompareRequest.model_validate(load_example(COMPARE_EXAMPLE))
+    outcome = fitted.run(request, Settings())
+    irregular = Validity((Notice("test", "outside the regular region"),))
+    comparison = replace(outcome.comparison,
+                         result=replace(outcome.comparison.result, validity=irregular))
+    header, rows = fitted.table(replace(outcome, comparison=comparison))
+    by_name = {row[0]: dict(zip(header, row, strict=True)) for row in rows}
+    assert by_name["model_regular"]["value"] == 0.0
+    for name in ("konus_base", "compensating_variation"):
+        assert by_name[name]["value"] is None and by_name[name]["value_low"] is None
+    assert by_name["laspeyres"]["value"] is not None
+    assert by_name["laspeyres"]["bias_points"] is None
+    assert by_name["laspeyres"]["bias_points_low"] is None
+
+
 def test_csv_upload_in_long_form_gives_the_json_fit(client: Any) -> None:
     """The same data as long-form CSV (rows in any order after the first observation) give the
     same estimates as the JSON request, to the fit's convergence tolerance (1e-8: the
