@@ -140,10 +140,11 @@ def test_the_fitted_comparison_as_a_table_holds_the_json_figures_and_intervals(
     assert rows["intervals_draws"]["value"] == intervals["draws"]
 
 
-def test_outside_the_regular_region_the_table_withholds_figures_and_their_intervals() -> None:
-    """A number the model cannot stand behind is not a result (common practice): the fitted
-    comparison's table leaves the model's figures and their intervals empty when the comparison
-    is outside the fitted model's regular region (the formula values stay)."""
+def test_outside_the_regular_region_figures_and_their_intervals_are_withheld() -> None:
+    """A number the model cannot stand behind is not a result (common practice): outside the
+    fitted model's regular region the JSON answer's intervals are null with a notice saying
+    why, and the table leaves the model's figures and their intervals empty (the formula values
+    stay)."""
     from dataclasses import replace
 
     from dualcost.api.operations import fitted
@@ -156,6 +157,11 @@ def test_outside_the_regular_region_the_table_withholds_figures_and_their_interv
     irregular = Validity((Notice("test", "outside the regular region"),))
     comparison = replace(outcome.comparison,
                          result=replace(outcome.comparison.result, validity=irregular))
+    answer = fitted.document(replace(outcome, comparison=comparison))["intervals"]
+    assert set(answer["konus"].values()) == {None}
+    assert answer["compensating_variation"] is None and answer["equivalent_variation"] is None
+    assert all(f["bias_points"] is None and f["bias_percent"] is None for f in answer["formulas"])
+    assert "intervals_withheld" in {n["code"] for n in answer["notices"]}
     header, rows = fitted.table(replace(outcome, comparison=comparison))
     by_name = {row[0]: dict(zip(header, row, strict=True)) for row in rows}
     assert by_name["model_regular"]["value"] == 0.0

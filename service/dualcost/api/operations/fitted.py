@@ -133,26 +133,37 @@ def _intervals(request: FitAndCompareRequest, fitted: fits.Outcome, comparison: 
 # -- the answer -------------------------------------------------------------------------------
 
 
-def _interval(i: Interval) -> dict[str, float]:
-    return {"estimate": i.estimate, "low": i.low, "high": i.high, "std_error": i.std_error}
+#: Said with the intervals of a comparison outside the fitted model's regular region.
+WITHHELD = ("intervals_withheld", "The comparison is outside the fitted model's regular region, "
+            "so its model figures are withheld (see comparison.validity), and so are their "
+            "intervals: a spread of numbers the model cannot stand behind is not a result.")
 
 
 def document(outcome: Outcome) -> dict[str, Any]:
-    """The answer as plain values, in the shape of ``FitAndCompareResponse``."""
+    """The answer as plain values, in the shape of ``FitAndCompareResponse``. Outside the
+    fitted model's regular region the intervals of the withheld figures are null too."""
     c = outcome.intervals
+    regular = outcome.comparison.result.validity.regular
+
+    def interval(i: Interval) -> dict[str, float] | None:
+        if not regular:
+            return None
+        return {"estimate": i.estimate, "low": i.low, "high": i.high, "std_error": i.std_error}
+
+    notices = [(n.code, n.message) for n in c.notices] + ([] if regular else [WITHHELD])
     return {
         "fit": fits.document(outcome.fit),
         "comparison": compare.document(outcome.comparison),
         "intervals": {
             "method": c.method, "confidence_level": c.confidence_level, "draws": c.draws,
             "draws_failed": c.failed, "seed": c.seed,
-            "konus": {k: _interval(v) for k, v in c.konus.items()},
-            "formulas": [{"formula": k, "bias_points": _interval(v),
-                          "bias_percent": _interval(c.bias_percent[k])}
+            "konus": {k: interval(v) for k, v in c.konus.items()},
+            "formulas": [{"formula": k, "bias_points": interval(v),
+                          "bias_percent": interval(c.bias_percent[k])}
                          for k, v in c.bias_points.items()],
-            "compensating_variation": _interval(c.compensating_variation),
-            "equivalent_variation": _interval(c.equivalent_variation),
-            "notices": [{"code": n.code, "message": n.message} for n in c.notices],
+            "compensating_variation": interval(c.compensating_variation),
+            "equivalent_variation": interval(c.equivalent_variation),
+            "notices": [{"code": code, "message": message} for code, message in notices],
         },
         "caution": CAUTION,
     }

@@ -299,8 +299,9 @@ class IntervalOut(StrictModel):
 
 class FormulaIntervalOut(StrictModel):
     formula: str
-    bias_points: IntervalOut
-    bias_percent: IntervalOut
+    bias_points: IntervalOut | None = Field(description="Null outside the fitted model's "
+                                            "regular region, as the bias itself.")
+    bias_percent: IntervalOut | None
 
 
 class IntervalsOut(StrictModel):
@@ -309,10 +310,13 @@ class IntervalsOut(StrictModel):
     draws: int
     draws_failed: int
     seed: int
-    konus: dict[str, IntervalOut] = Field(description="base, current, midpoint (and reference).")
+    konus: dict[str, IntervalOut | None] = Field(
+        description="base, current, midpoint (and reference); each null outside the fitted "
+                    "model's regular region, where the comparison withholds the figure (a notice "
+                    "says so).")
     formulas: list[FormulaIntervalOut]
-    compensating_variation: IntervalOut
-    equivalent_variation: IntervalOut
+    compensating_variation: IntervalOut | None
+    equivalent_variation: IntervalOut | None
     notices: list[NoticeOut]
 
 
