@@ -676,7 +676,8 @@
           { id: "fitted-konus", label: "Konüs index (base standard)", value: a.comparison.konus.base, withheld: !a.comparison.validity.regular },
           { id: "fitted-konus-low", label: "its interval, low", value: k ? k.low : null },
           { id: "fitted-konus-high", label: "its interval, high", value: k ? k.high : null },
-          { id: "fitted-laspeyres-bias", label: "Laspeyres bias, index points", value: lasp ? lasp.bias_points.estimate : a.comparison.laspeyres_gap_points, digits: 3 },
+          { id: "fitted-laspeyres-bias", label: "Laspeyres bias, index points", value: lasp && lasp.bias_points ? lasp.bias_points.estimate : a.comparison.laspeyres_gap_points, digits: 3,
+            withheld: !a.comparison.validity.regular },
         ];
       } },
       { kind: "chart", id: "fitted-bias-chart", title: "How much each formula overstates the Konüs index, with intervals",
