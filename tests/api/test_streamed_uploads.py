@@ -101,8 +101,8 @@ def test_a_bad_cell_after_the_first_blocks_is_named_by_its_row(
 def test_the_job_takes_its_slot_at_its_first_block_and_a_stall_then_is_ended_408(
         service: str) -> None:
     """Three blocks sent, then nothing: the job runs (its first block is computed) while the
-    upload is on its way; the body's read time ends the request (408) and the job waits
-    again, nothing kept. (Before its first block, a stalled upload holds no slot:
+    upload is on its way, and /live answers; the body's read time ends the request (408) and
+    the job waits again, nothing kept. (Before its first block, a stalled upload holds no slot:
     test_transport.py.)"""
     body = upload_of(3)
     job = create_job(service)
@@ -110,7 +110,9 @@ def test_the_job_takes_its_slot_at_its_first_block_and_a_stall_then_is_ended_408
     with connect(service) as sock:
         sock.sendall(upload_head(job["links"]["households"], 2 * len(body)) + body)
         wait_for(lambda: httpx.get(url).json()["status"] == "running", 10.0)
-        assert httpx.get(url).json()["progress"]["households_done"] > 0
+        wait_for(lambda: httpx.get(url).json()["progress"]["households_done"] > 0, 10.0)
+        # The computing is off the event loop: the probe answers meanwhile.
+        assert httpx.get(service + "/live", timeout=1.0).status_code == 200
         answer = read_all(sock)
     assert status(answer) == 408, answer[:300]
     wait_for(lambda: httpx.get(url).json()["status"] == "waiting_for_households", 5.0)
