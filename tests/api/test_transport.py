@@ -254,7 +254,10 @@ def test_an_upload_dropped_halfway_ends_quietly(service: str) -> None:
 
 def test_stalled_uploads_hold_no_job_slot(service: str) -> None:
     """Every job of the table (32) with an upload stalled halfway: a new job is still created,
-    in place of the oldest one, and its households computed."""
+    in place of the oldest one, and its households computed. A job takes its slot when its
+    first block is ready (operations/job_intake.py): these stall in their header, before any
+    block, and hold none; one stalled after its first block holds its slot until the body's
+    read time ends it (test_streamed_uploads.py)."""
     stalled: list[socket.socket] = []
     with httpx.Client() as client:
         for _ in range(33):
