@@ -4,7 +4,10 @@ the service's own process and on a Dask LocalCluster, with the service's peak me
 Run: ``PYTHONPATH=service python benchmarks/million_households.py`` (the full run: 1,000,000
 households by 200 items, a 1.6 GB Parquet file in a temporary folder, some minutes on a small
 machine); ``--households 20000`` for a quick run; ``--no-cluster`` to leave out the Dask part
-(which needs ``dualcost[cluster]``). It
+(which needs ``dualcost[cluster]``); ``--csv`` for the CSV path alone instead (the same
+households as a CSV upload with a CSV answer, read once the upload has arrived, as before, then
+computed while it arrives, in the same run: the time from the upload's first byte to the
+answer's last, and whether the two answers are the same bytes). It
 
 1. writes the households (random shares, seeded, each row summing to 1; lognormal incomes) as
    a Parquet file, row group by row group (65,536 households each);
@@ -143,6 +146,19 @@ def watch(url: str, done: threading.Event, households: int, quiet: bool) -> None
                   f"{progress['households_done']:>9,} done of {households:,}", flush=True)
 
 
+def write_csv(parquet: Path, path: Path) -> None:
+    """The same households as a CSV file (no quotes: the ids need none), batch by batch."""
+    import pyarrow.csv as pacsv
+
+    pf = pq.ParquetFile(parquet)
+    with path.open("wb") as out:
+        out.write((",".join(pf.schema_arrow.names) + "\n").encode())  # pyarrow would quote it
+        with pacsv.CSVWriter(out, pf.schema_arrow, write_options=pacsv.WriteOptions(
+                include_header=False, quoting_style="none")) as writer:
+            for batch in pf.iter_batches(ROW_GROUP):
+                writer.write_batch(batch)
+
+
 def run_job(url: str, upload: Path, answer: Path, households: int, engine: str, *,
             quiet: bool = False) -> float:
     """Seconds from the upload's first byte to the answer's last (the job created before)."""
@@ -161,11 +177,12 @@ def run_job(url: str, upload: Path, answer: Path, households: int, engine: str, 
         try:
             with upload.open("rb") as file, client.stream(
                     "POST", url + links["households"], content=iter(lambda: file.read(1 << 20), b""),
-                    headers={"content-type": PARQUET, "accept": PARQUET}) as r:
+                    headers={"content-type": media_of(upload), "accept": media_of(answer)}
+            ) as r:
                 if r.status_code != 200:
                     raise RuntimeError(f"{r.status_code}: {r.read()[:500]!r}")
                 if not quiet:
-                    print(f"    upload received and checked after "
+                    print(f"    answer begun after "
                           f"{time.perf_counter() - start:.1f} s", flush=True)
                 with answer.open("wb") as out:
                     for piece in r.iter_bytes(1 << 20):
@@ -180,6 +197,10 @@ def run_job(url: str, upload: Path, answer: Path, households: int, engine: str, 
     return elapsed
 
 
+def media_of(path: Path) -> str:
+    return "text/csv" if path.suffix == ".csv" else PARQUET
+
+
 def identical(a: Path, b: Path) -> bool:
     """Both answers, row group by row group, every column equal (NaN where NaN)."""
     fa, fb = pq.ParquetFile(a), pq.ParquetFile(b)
@@ -192,7 +213,7 @@ def identical(a: Path, b: Path) -> bool:
 
 
 def one_path(label: str, env: dict[str, str], upload: Path, answer: Path, households: int,
-             engine: str, baseline: float) -> None:
+             engine: str, baseline: float) -> float:
     proc, url = serve(env)
     try:
         print(f"  {label}:", flush=True)
@@ -200,6 +221,8 @@ def one_path(label: str, env: dict[str, str], upload: Path, answer: Path, househ
         warm = upload.with_name("warm-up.parquet")
         if not warm.exists():
             write_households(warm, 1000, ITEMS)
+        if upload.suffix == ".csv":
+            write_csv(warm, warm := warm.with_suffix(".csv"))
         run_job(url, warm, answer, 1000, engine, quiet=True)
         seconds = run_job(url, upload, answer, households, engine)
         peak = peak_rss_mib(proc.pid)
@@ -209,12 +232,35 @@ def one_path(label: str, env: dict[str, str], upload: Path, answer: Path, househ
     print(f"    {seconds:8.1f} s   {rate:10,.0f} households/s   ratio to the core "
           f"{rate / baseline:5.2f}   service peak memory {peak:6.0f} MiB (target under 1024)",
           flush=True)
+    return seconds
+
+
+def csv_paths(env: dict[str, str], folder: Path, households: int, baseline: float) -> bool:
+    """A CSV upload and answer, read once the upload has arrived (as before; the baseline)
+    and computed while it arrives, in the same run: seconds from the upload's first byte to
+    the answer's last, and whether the two answers are the same bytes."""
+    upload = folder / "households.csv"
+    write_csv(folder / "households.parquet", upload)
+    print(f"  CSV upload {upload.stat().st_size / 2**20:,.0f} MiB, CSV answer; load average "
+          f"{os.getloadavg()[0]:.2f}", flush=True)
+    before = one_path("CSV read once it has arrived (before)", env | {
+        "DUALCOST_STREAM_CSV_UPLOADS": "false"}, upload, folder / "spooled.csv", households,
+        "local", baseline)
+    after = one_path("CSV computed while it arrives", env, upload, folder / "streamed.csv",
+                     households, "local", baseline)
+    same = (folder / "spooled.csv").read_bytes() == (folder / "streamed.csv").read_bytes()
+    print(f"  computed while it arrives: {before / after:.2f} times as fast (upload's first "
+          f"byte to answer's last); the same bytes: {same}; load average "
+          f"{os.getloadavg()[0]:.2f}", flush=True)
+    return same
 
 
 def main() -> int:
     parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     parser.add_argument("--households", type=int, default=1_000_000)
     parser.add_argument("--no-cluster", action="store_true")
+    parser.add_argument("--csv", action="store_true", help="only the CSV upload, read once it "
+                        "has arrived and computed while it arrives (in the same run)")
     args = parser.parse_args()
     env = dict(os.environ, DUALCOST_MAX_BODY_BYTES=str(1 << 40), DUALCOST_LOG_JSON="false",
                DUALCOST_COMPUTE_THREADS="2")
@@ -232,6 +278,8 @@ def main() -> int:
               f"(written in {time.perf_counter() - start:.1f} s)", flush=True)
         baseline = core_rate(ITEMS)
         print(f"  baseline: the core batch, {baseline:,.0f} households/s", flush=True)
+        if args.csv:
+            return 0 if csv_paths(env, folder, args.households, baseline) else 1
         one_path("in process", env, upload, folder / "local.parquet", args.households, "local",
                  baseline)
         if args.no_cluster:

@@ -109,6 +109,9 @@ class Settings(BaseSettings):
                                 "(larger batches: a household job with a CSV upload).")
     household_chunk_rows: int | None = Field(None, ge=1, description="Household rows evaluated "
                                              "together (default: about 128k numbers per chunk).")
+    stream_csv_uploads: bool = Field(
+        True, description="Compute a household job's CSV upload while it arrives (its answer "
+        "the same bytes); false: read it once it has arrived whole, as before (a comparison).")
     max_household_jobs: int = Field(32, ge=1, description="Household jobs kept in the database "
                                     "(one table shared by every worker and instance).")
     max_household_jobs_per_key: int | None = Field(

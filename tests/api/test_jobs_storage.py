@@ -277,8 +277,10 @@ def test_a_job_s_results_are_stored_a_few_chunks_to_a_transaction_each_chunk_a_p
     assert streamed.status_code == 200, streamed.text
     n = len(body["households"])
     chunks = -(-n // 2)
-    # The upload opened (no piece), the header, then the chunks two at a time.
-    assert calls == [0, 1, *([2] * (chunks // 2)), *([1] if chunks % 2 else [])]
+    # Computed while the upload arrives (operations/job_intake.py): the header with the first
+    # block, then the chunks two at a time, then the upload's end (no piece: its rows and
+    # digest), before anything is sent.
+    assert calls == [1, *([2] * (chunks // 2)), *([1] if chunks % 2 else []), 0]
     with client.app.state.db.transaction() as s:  # type: ignore[attr-defined]
         kept = s.execute(select(JobResultPiece.piece, JobResultPiece.text, JobResultPiece.data)
                          .where(JobResultPiece.job_id == job["id"])

@@ -10,13 +10,17 @@ are kept as columns whatever format the upload answers in (each chunk's as an Ar
 stream: :mod:`.job_results`): GET .../results writes them again as CSV or Parquet with the
 writers that wrote the upload's answer (:func:`stored_answer`), so that any worker gives
 either, the same bytes. A job that fails after its answer has begun ends that answer with an
-error record whose reason is the job's ``error``. The upload is spooled to a
-temporary file (in memory up to 8 MiB, then on disk) and read back chunk by chunk, so the
+error record whose reason is the job's ``error``. A CSV upload is computed while it
+arrives (:mod:`.job_intake`: spooled to disk and hashed, read block by block as it is
+written, its answer then written from the stored columns); a Parquet upload (whose footer
+comes last), and one with bad_rows reject or for a cluster, is spooled to a temporary file (in
+memory up to 8 MiB, then on disk) and read back chunk by chunk once it has arrived, so the
 households are never held twice.
 
-**Slots.** A job takes a slot of the table, one that newer jobs may not take from it, only
-once its households have fully arrived and it runs: while an upload is on its way the job is
-still waiting (and a stalled upload is ended by the body's read time, 408). **Owners.** With
+**Slots.** A job takes a slot of the table, one that newer jobs may not take from it, once it
+runs: a CSV upload computed while it arrives when its first block is ready, any other once its
+households have fully arrived. Before that the job is still waiting; a stalled upload is ended
+by the body's read time (408), which leaves the job waiting again. **Owners.** With
 access control on, a job belongs to the API key that created it (:func:`owner_of`, the key's
 SHA-256): other keys are told there is no such job (404, which does not reveal that it
 exists). Which job a new one replaces when the table is full: :mod:`.job_store`.
@@ -76,6 +80,7 @@ from .job_store import FINISHED, JobStore, Piece, already_received, owner_of
 
 if TYPE_CHECKING:
     from ..inputs.columnar import UploadScan
+    from .job_intake import Growing
 
 SPOOL_MEMORY_BYTES = 8 * 1024 * 1024
 #: Households whose results are held before they are stored (with the progress, in one
@@ -267,19 +272,23 @@ def upload_media(request: Request) -> bool:
     return False
 
 
-async def spool(request: Request) -> Upload:
+async def spool(request: Request, *, file: Any = None, scan: UploadScan | None = None,
+                growing: Growing | None = None) -> Upload:
     """The request body in a temporary file; a CSV checked to be UTF-8 (and scanned for what
-    only the reference reader reads), its number of lines; the SHA-256 of the bytes."""
+    only the reference reader reads), its number of lines; the SHA-256 of the bytes. With
+    ``growing``, each piece is told to the reader of ``file`` once written (and scanned before:
+    :mod:`.job_intake`)."""
     # pyarrow is imported with the first upload, not with the service: the other operations
     # never need it.
     from ..inputs.columnar import UploadScan
 
     parquet = upload_media(request)
-    file = tempfile.SpooledTemporaryFile(max_size=SPOOL_MEMORY_BYTES)
+    if file is None:
+        file = tempfile.SpooledTemporaryFile(max_size=SPOOL_MEMORY_BYTES)
+    scan = UploadScan() if scan is None else scan
     decoder = codecs.getincrementaldecoder("utf-8")()
     lines, size, last = 0, 0, b"\n"
     digest = hashlib.sha256()
-    scan = UploadScan()
     try:
         async for piece in request.stream():
             if not piece:
@@ -295,6 +304,8 @@ async def spool(request: Request) -> Upload:
                 scan.feed(piece)
                 lines += piece.count(b"\n")
             file.write(piece)
+            if growing is not None:
+                growing.wrote(len(piece))
             digest.update(piece)
             size += len(piece)
             last = piece[-1:]
@@ -323,7 +334,7 @@ def open_upload(state: JobState, upload: Upload, settings: Settings,
     if upload.parquet:
         closer, chunks = upload.file, _parquet_chunks(state, upload)
     else:
-        closer, chunks = _csv_chunks(state, upload, declared or DeclaredDialect())
+        closer, chunks = csv_chunks_of(state, upload, declared or DeclaredDialect())
     assert state.layout is not None
     if state.layout.weight_column is None:
         state.defaults = (households.weights_notice(None),)
@@ -336,7 +347,7 @@ def open_upload(state: JobState, upload: Upload, settings: Settings,
     return closer, chunks, address
 
 
-def _csv_chunks(state: JobState, upload: Upload, declared: DeclaredDialect
+def csv_chunks_of(state: JobState, upload: Upload, declared: DeclaredDialect
                 ) -> tuple[io.TextIOWrapper, Iterator[HouseholdChunk]]:
     """A CSV upload's text and chunks: read by pyarrow where the scan allows, else (and from
     the first block pyarrow does not read by the rules) by the reference reader."""
@@ -454,6 +465,39 @@ def stream(state: JobState, chunks: Iterator[HouseholdChunk], closer: Any, sched
             closer.close()
         if scheduler is not None:
             scheduler.close()
+
+
+def answer_of_stored(state: JobState, closer: Any,
+                     answer: households.CsvAnswer | households.ParquetAnswer
+                     ) -> Generator[str | bytes, None, None]:
+    """The answer of a job computed while its upload arrived (:mod:`.job_intake`): written
+    from its stored columns (past the stored header) by the answer's writer, the bytes
+    :func:`stream` gives; then the job is done. Errors and a client that goes end it as
+    :func:`stream` does."""
+    begun = False
+    try:
+        yield answer.head()
+        begun = True
+        assert state.store is not None
+        pieces = state.store.pieces(state.id)
+        next(pieces, None)  # the stored header
+        for piece in pieces:
+            assert piece.data is not None
+            yield answer.rows(job_results.decode(piece.data))
+        state.finish()
+        yield answer.end()
+    except GeneratorExit:
+        state.fail("cancelled", "the client stopped reading the answer")
+        raise
+    except Exception as exc:
+        message = _failure(exc)
+        state.fail("failed", message)
+        if not begun:
+            raise
+        yield answer.error(message)
+    finally:
+        state.fail("cancelled", "the answer was not read to the end")
+        closer.close()
 
 
 class _Held:

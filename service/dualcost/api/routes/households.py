@@ -13,7 +13,9 @@
 
 from __future__ import annotations
 
+import asyncio
 import inspect
+import io
 import itertools
 from collections.abc import Generator, Iterator
 from typing import Annotated, Any, Literal
@@ -26,7 +28,7 @@ from starlette.types import Receive, Scope, Send
 
 from ..deps import settings_of
 from ..inputs.csv import CSV_REQUEST_BODY, DecimalParam, DeclaredDialect, SeparatorParam
-from ..operations import households, jobs
+from ..operations import households, job_intake, jobs
 from ..operations.answers import SCALE_RATIO, scale_headers
 from ..problems import PROBLEM_MEDIA_TYPE, JobConflict
 from ..provenance import Provenance, of_body
@@ -212,15 +214,96 @@ async def household_indices_from_csv(job_id: str, request: Request,
     fmt = negotiate(request, JOB_OFFERS)
     settings = settings_of(request)
     store = _store(request)
-    state = await run_in_threadpool(jobs.restore, store, job_id, jobs.owner_of(request),
-                                    settings)
-    # The job takes its slot only once its households have arrived: a stalled upload holds
-    # none (and is ended by the body's read time).
+    owner = jobs.owner_of(request)
+    state = await run_in_threadpool(jobs.restore, store, job_id, owner, settings)
+    declared = DeclaredDialect(separator, decimal)
+    trailer = provenance == "trailer"
+    if job_intake.streams(state, jobs.upload_media(request), settings):
+        # Computed while it arrives; the slot is taken at the first block (job_intake).
+        streamed = await _streamed(state, request, store, declared)
+        if isinstance(streamed, jobs.Upload):  # fallen back: read again as if spooled
+            try:
+                state = await run_in_threadpool(jobs.restore, store, job_id, owner, settings)
+            except BaseException:
+                streamed.file.close()
+                raise
+            return await _spooled_answer(state, streamed, request, fmt, declared, trailer)
+        upload, closer = streamed
+        try:
+            await run_in_threadpool(job_intake.arrived, state, upload)
+        except BaseException:
+            closer.close()
+            await run_in_threadpool(state.release)
+            raise
+        return await run_in_threadpool(
+            _JobAnswer, state, jobs.answer_of_stored(state, closer, jobs.answer_for(state, fmt)),
+            _job_headers(state, upload), state.provenance, trailer, fmt)
+    # Not streamed (Parquet, reject, a cluster): the job takes its slot only once its
+    # households have arrived; a stalled upload holds none (and is ended by the body's read
+    # time).
     await run_in_threadpool(store.upload_started, job_id)
     try:
         upload = await jobs.spool(request)
     finally:
         await run_in_threadpool(store.upload_ended, job_id)
+    return await _spooled_answer(state, upload, request, fmt, declared, trailer)
+
+
+async def _streamed(state: jobs.JobState, request: Request, store: jobs.JobStore,
+                    declared: DeclaredDialect) -> jobs.Upload | tuple[jobs.Upload, Any]:
+    """A CSV upload spooled while a worker thread computes it (job_intake): the upload and
+    what to close once answered; or, where the computation cannot stand, the spooled upload
+    alone, the job released (waiting) to be read again."""
+    from ..inputs.columnar import UploadScan
+
+    scan, file = UploadScan(), job_intake.spool_file()
+    source = job_intake.Growing(file)
+    live = jobs.Upload(file, 0, "", 0, False, scan)
+    worker = job_intake.start(state, live, source, store, declared, settings_of(request))
+    await run_in_threadpool(store.upload_started, state.id)
+    try:
+        upload = await jobs.spool(request, file=file, scan=scan, growing=source)
+    except BaseException:
+        source.abort()
+        with anyio.CancelScope(shield=True):
+            await asyncio.wait([worker])
+            worker.exception()
+            file.close()
+            await run_in_threadpool(_released, state)
+        raise
+    finally:
+        with anyio.CancelScope(shield=True):
+            await run_in_threadpool(store.upload_ended, state.id)
+    source.end()
+    try:
+        await worker
+    except (job_intake.Fallback, job_intake.Aborted):
+        await run_in_threadpool(_released, state)
+        upload.file = io.BufferedRandom(file)
+        upload.file.seek(0)
+        return upload
+    return upload, file
+
+
+def _released(state: jobs.JobState) -> None:
+    """A job claimed by an upload that did not stand: waiting again, nothing kept."""
+    if state.status == "running":
+        state.release()
+
+
+def _job_headers(state: jobs.JobState, upload: jobs.Upload) -> dict[str, str]:
+    headers = {"Link": f'</v1/household-jobs/{state.id}>; rel="monitor"',
+               "Content-Location": f"/v1/household-jobs/{state.id}"} | SCALE_HEADERS
+    if state.layout is not None and not upload.parquet:
+        headers |= state.layout.dialect.headers()
+    return headers
+
+
+async def _spooled_answer(state: jobs.JobState, upload: jobs.Upload, request: Request,
+                          fmt: Format, declared: DeclaredDialect, trailer: bool) -> Response:
+    """The answer to an upload that has fully arrived: the job takes its slot, then its
+    households are read chunk by chunk and computed."""
+    settings, store = settings_of(request), _store(request)
     try:
         await run_in_threadpool(store.claim, state)
     except BaseException:
@@ -231,7 +314,7 @@ async def household_indices_from_csv(job_id: str, request: Request,
         # The header or schema and, for a dialect to detect, the first records: off the event
         # loop.
         closer, chunks, address = await run_in_threadpool(
-            jobs.open_upload, state, upload, settings, DeclaredDialect(separator, decimal))
+            jobs.open_upload, state, upload, settings, declared)
         # Connect before answering, so that an unreachable cluster is a 503, not a cut stream.
         scheduler = None if address is None else await run_in_threadpool(households.connect,
                                                                           address)
@@ -239,11 +322,7 @@ async def household_indices_from_csv(job_id: str, request: Request,
         (upload.file if closer is None else closer).close()
         await run_in_threadpool(state.release)
         raise
-    headers = {"Link": f'</v1/household-jobs/{state.id}>; rel="monitor"',
-               "Content-Location": f"/v1/household-jobs/{state.id}"} | SCALE_HEADERS
-    trailer = provenance == "trailer"
-    if state.layout is not None and not upload.parquet:
-        headers |= state.layout.dialect.headers()
+    headers = _job_headers(state, upload)
     answer = jobs.answer_for(state, fmt)
     if state.bad_rows == "skip":
         # The answer's first piece is written to the database: off the event loop too.
