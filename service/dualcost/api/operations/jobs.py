@@ -44,7 +44,7 @@ from collections.abc import Generator, Iterator, Sequence
 from dataclasses import dataclass, replace
 from datetime import datetime, timezone
 from itertools import chain, islice
-from typing import TYPE_CHECKING, Any
+from typing import TYPE_CHECKING, Any, Protocol
 
 import orjson
 from fastapi import Request
@@ -80,7 +80,16 @@ from .job_store import FINISHED, JobStore, Piece, already_received, owner_of
 
 if TYPE_CHECKING:
     from ..inputs.columnar import UploadScan
-    from .job_intake import Growing
+
+
+
+class Growing(Protocol):
+    """What :func:`spool` tells the reader of a file it writes (job_intake.Growing; named
+    here by its one method, so that this module does not import job_intake, which imports
+    it)."""
+
+    def wrote(self, n: int) -> None: ...
+
 
 SPOOL_MEMORY_BYTES = 8 * 1024 * 1024
 #: Households whose results are held before they are stored (with the progress, in one
